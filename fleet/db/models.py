@@ -1,0 +1,255 @@
+"""Typed SQLAlchemy models: the asset register, readings, oil samples, maintenance and stored analysis.
+
+Values are stored in canonical units (bar, L/min, rpm, degC, h, cm3/rev, mm2/s, kg/L); times are naive UTC.
+Float columns name their type explicitly: SQLAlchemy 2.1 would map ``Mapped[float]`` to Double, which Alembic
+then reports as a change against the migrations.
+"""
+
+from datetime import datetime
+from typing import Any
+
+from sqlalchemy import JSON, Boolean, DateTime, Float, ForeignKey, Integer, String, Text, UniqueConstraint
+from sqlalchemy.orm import Mapped, mapped_column, relationship
+
+from fleet.db.base import Base
+from fleet.timeutil import utcnow
+
+
+class Site(Base):
+    __tablename__ = "site"
+
+    id: Mapped[int] = mapped_column(primary_key=True)
+    name: Mapped[str] = mapped_column(String(120), unique=True)
+    currency: Mapped[str] = mapped_column(String(8), default="EUR")
+    tariff_per_kwh: Mapped[float] = mapped_column(Float, default=0.15)
+    motor_efficiency: Mapped[float] = mapped_column(Float, default=0.93)
+    note: Mapped[str | None] = mapped_column(Text)
+
+    machines: Mapped[list["Machine"]] = relationship(back_populates="site", order_by="Machine.name")
+
+
+class Oil(Base):
+    """An oil as filled in a reservoir, with the two data-sheet viscosities that place its curve (ASTM D341)."""
+
+    __tablename__ = "oil"
+
+    id: Mapped[int] = mapped_column(primary_key=True)
+    name: Mapped[str] = mapped_column(String(120), unique=True)
+    iso_vg: Mapped[int | None] = mapped_column(Integer)
+    viscosity_40: Mapped[float] = mapped_column(Float)
+    viscosity_100: Mapped[float] = mapped_column(Float)
+    density_15: Mapped[float] = mapped_column(Float, default=0.87)
+
+
+class Machine(Base):
+    """A hydraulic power unit or machine: one reservoir, one oil, several pump positions."""
+
+    __tablename__ = "machine"
+    __table_args__ = (UniqueConstraint("site_id", "name"),)
+
+    id: Mapped[int] = mapped_column(primary_key=True)
+    site_id: Mapped[int] = mapped_column(ForeignKey("site.id"), index=True)
+    name: Mapped[str] = mapped_column(String(120))
+    oil_id: Mapped[int | None] = mapped_column(ForeignKey("oil.id"))
+    note: Mapped[str | None] = mapped_column(Text)
+
+    site: Mapped[Site] = relationship(back_populates="machines")
+    oil: Mapped[Oil | None] = relationship()
+    positions: Mapped[list["Position"]] = relationship(back_populates="machine", order_by="Position.name")
+
+
+class Position(Base):
+    """A place on a machine where a pump sits; it keeps the list of pumps it has had."""
+
+    __tablename__ = "position"
+    __table_args__ = (UniqueConstraint("machine_id", "name"),)
+
+    id: Mapped[int] = mapped_column(primary_key=True)
+    machine_id: Mapped[int] = mapped_column(ForeignKey("machine.id"), index=True)
+    name: Mapped[str] = mapped_column(String(120))
+
+    machine: Mapped[Machine] = relationship(back_populates="positions")
+
+
+class Pump(Base):
+    """The serial-numbered unit that can move between positions; its history follows its serial."""
+
+    __tablename__ = "pump"
+
+    id: Mapped[int] = mapped_column(primary_key=True)
+    serial: Mapped[str] = mapped_column(String(120), unique=True)
+    kind: Mapped[str] = mapped_column(String(32))
+    variable: Mapped[bool] = mapped_column(Boolean, default=False)
+    displacement_cc: Mapped[float] = mapped_column(Float)
+    rated_speed_rpm: Mapped[float] = mapped_column(Float)
+    rated_pressure_bar: Mapped[float] = mapped_column(Float)
+    max_flow_lpm: Mapped[float | None] = mapped_column(Float)
+    case_drain: Mapped[bool] = mapped_column(Boolean, default=False)
+    reference_temp_c: Mapped[float] = mapped_column(Float, default=50.0)
+    # Per-pump overrides of the kind's default limits; NULL means "use the kind default".
+    eta_v_limit: Mapped[float | None] = mapped_column(Float)
+    drain_limit_pct: Mapped[float | None] = mapped_column(Float)
+    oil_temp_max_c: Mapped[float | None] = mapped_column(Float)
+    oil_temp_min_c: Mapped[float | None] = mapped_column(Float)
+    cleanliness_target: Mapped[str | None] = mapped_column(String(16))
+    reading_interval_days: Mapped[int | None] = mapped_column(Integer)
+    planning_horizon_weeks: Mapped[int | None] = mapped_column(Integer)
+    overhaul_cost: Mapped[float | None] = mapped_column(Float)
+    note: Mapped[str | None] = mapped_column(Text)
+    created_at: Mapped[datetime] = mapped_column(DateTime, default=utcnow)
+
+    installations: Mapped[list["Installation"]] = relationship(
+        back_populates="pump", order_by="Installation.installed_at"
+    )
+
+    @property
+    def max_flow(self) -> float:
+        """Given maximum flow, else derived from displacement and rated speed."""
+        if self.max_flow_lpm is not None:
+            return self.max_flow_lpm
+        return self.displacement_cc * self.rated_speed_rpm / 1000.0
+
+
+class Installation(Base):
+    """Which pump sat in which position from when to when, with the pump's hour meter at each end."""
+
+    __tablename__ = "installation"
+
+    id: Mapped[int] = mapped_column(primary_key=True)
+    pump_id: Mapped[int] = mapped_column(ForeignKey("pump.id"), index=True)
+    position_id: Mapped[int] = mapped_column(ForeignKey("position.id"), index=True)
+    installed_at: Mapped[datetime] = mapped_column(DateTime)
+    installed_hours: Mapped[float | None] = mapped_column(Float)
+    removed_at: Mapped[datetime | None] = mapped_column(DateTime)
+    removed_hours: Mapped[float | None] = mapped_column(Float)
+
+    pump: Mapped[Pump] = relationship(back_populates="installations")
+    position: Mapped[Position] = relationship()
+
+
+class Reading(Base):
+    """One pump, one visit."""
+
+    __tablename__ = "reading"
+    __table_args__ = (UniqueConstraint("pump_id", "taken_at"),)
+
+    id: Mapped[int] = mapped_column(primary_key=True)
+    pump_id: Mapped[int] = mapped_column(ForeignKey("pump.id"), index=True)
+    taken_at: Mapped[datetime] = mapped_column(DateTime)
+    hours: Mapped[float] = mapped_column(Float)
+    pressure_bar: Mapped[float] = mapped_column(Float)
+    speed_rpm: Mapped[float] = mapped_column(Float)
+    flow_lpm: Mapped[float | None] = mapped_column(Float)
+    drain_lpm: Mapped[float | None] = mapped_column(Float)
+    temp_c: Mapped[float] = mapped_column(Float)
+    stroke: Mapped[float | None] = mapped_column(Float)  # fraction of full displacement; NULL = not recorded
+    taken_by: Mapped[str | None] = mapped_column(String(120))
+    note: Mapped[str | None] = mapped_column(Text)
+    source: Mapped[str] = mapped_column(String(16), default="form")
+    created_at: Mapped[datetime] = mapped_column(DateTime, default=utcnow)
+
+    flow_points: Mapped[list["FlowTestPoint"]] = relationship(
+        back_populates="reading", cascade="all, delete-orphan", order_by="FlowTestPoint.pressure_bar"
+    )
+
+
+class FlowTestPoint(Base):
+    """An extra pressure/flow point of a multi-point flow test taken on the same visit as its reading."""
+
+    __tablename__ = "flow_test_point"
+
+    id: Mapped[int] = mapped_column(primary_key=True)
+    reading_id: Mapped[int] = mapped_column(ForeignKey("reading.id", ondelete="CASCADE"), index=True)
+    pressure_bar: Mapped[float] = mapped_column(Float)
+    flow_lpm: Mapped[float] = mapped_column(Float)
+
+    reading: Mapped[Reading] = relationship(back_populates="flow_points")
+
+
+class OilSample(Base):
+    """A lab result for a machine's reservoir: sampled on one day, reported days later."""
+
+    __tablename__ = "oil_sample"
+    __table_args__ = (UniqueConstraint("machine_id", "sampled_at"),)
+
+    id: Mapped[int] = mapped_column(primary_key=True)
+    machine_id: Mapped[int] = mapped_column(ForeignKey("machine.id"), index=True)
+    sampled_at: Mapped[datetime] = mapped_column(DateTime)
+    reported_at: Mapped[datetime | None] = mapped_column(DateTime)
+    code_4: Mapped[int | None] = mapped_column(Integer)
+    code_6: Mapped[int | None] = mapped_column(Integer)
+    code_14: Mapped[int | None] = mapped_column(Integer)
+    count_4: Mapped[float | None] = mapped_column(Float)  # particles per mL, when the lab gave counts
+    count_6: Mapped[float | None] = mapped_column(Float)
+    count_14: Mapped[float | None] = mapped_column(Float)
+    low_count: Mapped[bool] = mapped_column(Boolean, default=False)
+    water_ppm: Mapped[float | None] = mapped_column(Float)
+    viscosity_40: Mapped[float | None] = mapped_column(Float)
+    lab_ref: Mapped[str | None] = mapped_column(String(120))
+    note: Mapped[str | None] = mapped_column(Text)
+
+
+class MaintenanceEvent(Base):
+    """Work done on a pump. An overhaul or replacement starts a new service interval."""
+
+    __tablename__ = "maintenance_event"
+
+    id: Mapped[int] = mapped_column(primary_key=True)
+    pump_id: Mapped[int] = mapped_column(ForeignKey("pump.id"), index=True)
+    date: Mapped[datetime] = mapped_column(DateTime)
+    hours: Mapped[float | None] = mapped_column(Float)
+    kind: Mapped[str] = mapped_column(String(32))
+    cost: Mapped[float | None] = mapped_column(Float)
+    downtime_h: Mapped[float | None] = mapped_column(Float)
+    failure_mode: Mapped[str | None] = mapped_column(String(32))
+    note: Mapped[str | None] = mapped_column(Text)
+    created_at: Mapped[datetime] = mapped_column(DateTime, default=utcnow)
+
+
+class LimitDefault(Base):
+    """Fleet default limits for one pump kind; pumps override any of them."""
+
+    __tablename__ = "limit_default"
+
+    kind: Mapped[str] = mapped_column(String(32), primary_key=True)
+    eta_v_limit: Mapped[float] = mapped_column(Float)
+    drain_limit_pct: Mapped[float | None] = mapped_column(Float)
+    oil_temp_max_c: Mapped[float] = mapped_column(Float)
+    oil_temp_min_c: Mapped[float] = mapped_column(Float)
+    cleanliness_target: Mapped[str] = mapped_column(String(16))
+    reading_interval_days: Mapped[int] = mapped_column(Integer)
+    planning_horizon_weeks: Mapped[int] = mapped_column(Integer)
+    source: Mapped[str] = mapped_column(Text)
+
+
+class AnalysisResult(Base):
+    """The latest analysis of one pump, stored so pages read it instead of recomputing."""
+
+    __tablename__ = "analysis_result"
+
+    pump_id: Mapped[int] = mapped_column(ForeignKey("pump.id", ondelete="CASCADE"), primary_key=True)
+    computed_at: Mapped[datetime] = mapped_column(DateTime)
+    status: Mapped[str] = mapped_column(String(16), index=True)
+    rank: Mapped[int] = mapped_column(Integer, index=True)
+    reasons: Mapped[list[str]] = mapped_column(JSON)
+    eta_v_ref: Mapped[float | None] = mapped_column(Float)
+    eta_v_decline_per_1000h: Mapped[float | None] = mapped_column(Float)
+    drain_pct_ref: Mapped[float | None] = mapped_column(Float)
+    hours_to_limit: Mapped[float | None] = mapped_column(Float)
+    hours_to_limit_low: Mapped[float | None] = mapped_column(Float)
+    hours_to_limit_high: Mapped[float | None] = mapped_column(Float)
+    limit_date: Mapped[str | None] = mapped_column(String(10))
+    governing_limit: Mapped[str | None] = mapped_column(String(16))
+    prior_hours_to_overhaul: Mapped[float | None] = mapped_column(Float)
+    energy_cost_per_year: Mapped[float | None] = mapped_column(Float)
+    detail: Mapped[dict[str, Any]] = mapped_column(JSON)  # every other figure of the analysis, JSON-ready
+
+
+class FleetPrior(Base):
+    """Weibull fit of running hours between overhauls for one pump kind (the fleet's history)."""
+
+    __tablename__ = "fleet_prior"
+
+    kind: Mapped[str] = mapped_column(String(32), primary_key=True)
+    computed_at: Mapped[datetime] = mapped_column(DateTime)
+    detail: Mapped[dict[str, Any]] = mapped_column(JSON)

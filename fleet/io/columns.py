@@ -1,0 +1,139 @@
+"""The CSV columns of every import/export kind: name, type, unit quantity, whether required, and bounds.
+
+One table serves the importer, the exporter, the README's format section and the upload page.
+"""
+
+from dataclasses import dataclass
+
+
+@dataclass(frozen=True)
+class Column:
+    name: str
+    type: str  # number | text | bool | datetime | kind | event_kind | failure_mode | iso4406 | source
+    quantity: str | None = None  # a key of fleet.units.CANONICAL for numbers with a unit
+    required: bool = False
+    min: float | None = None  # inclusive bounds, in canonical units
+    max: float | None = None
+    positive: bool = False  # strictly above zero
+    help: str = ""
+    export_unit: str | None = None  # header unit written on export (defaults to the canonical label)
+
+
+def _num(name, quantity, help_, required=False, min_=None, max_=None, positive=False, export_unit=None):
+    return Column(name, "number", quantity, required, min_, max_, positive, help_, export_unit)
+
+
+SITES = (
+    Column("site", "text", required=True, help="site name"),
+    Column("currency", "text", help="currency code for costs, e.g. EUR"),
+    _num("tariff_per_kwh", None, "electricity price per kWh, site currency", min_=0),
+    _num("motor_efficiency", "fraction", "drive motor efficiency (fraction, or tag the header [%])",
+         min_=0.3, max_=1.0),
+    Column("note", "text"),
+)
+
+PUMPS = (
+    Column("pump", "text", required=True, help="serial number or tag; unique"),
+    Column("site", "text", required=True),
+    Column("machine", "text", required=True, help="hydraulic power unit or machine (one reservoir)"),
+    Column("position", "text", required=True, help="where on the machine the pump sits"),
+    Column("kind", "kind", required=True,
+           help="external_gear, internal_gear, gerotor, lobe, vane, axial_piston, radial_piston"),
+    Column("variable", "bool", help="variable displacement (yes/no; default no)"),
+    _num("displacement", "displacement", "geometric displacement per revolution", True, positive=True),
+    _num("rated_speed", "speed", "rated shaft speed", True, positive=True),
+    _num("rated_pressure", "pressure", "rated outlet pressure", True, positive=True),
+    _num("max_flow", "flow", "maximum flow (default displacement x rated speed)", positive=True),
+    Column("case_drain", "bool", help="has an external case drain to measure (yes/no; default no)"),
+    _num("reference_temp", "temperature", "oil temperature readings are referred to (default 50 degC)",
+         min_=0, max_=120),
+    Column("oil", "text", required=True, help="oil name as filled in the machine's reservoir"),
+    _num("oil_grade", None, "ISO VG grade number", positive=True),
+    _num("viscosity_40", "viscosity", "oil data sheet viscosity at 40 degC", True, positive=True),
+    _num("viscosity_100", "viscosity", "oil data sheet viscosity at 100 degC", True, positive=True),
+    _num("density_15", "density", "oil density at 15 degC (default 0.87 kg/L)", min_=0.6, max_=1.3),
+    _num("eta_v_limit", "fraction", "volumetric efficiency limit (fraction; blank = kind default)",
+         min_=0.3, max_=0.999),
+    _num("drain_limit_pct", None, "case drain limit, % of max flow (blank = kind default)", min_=0, max_=100),
+    _num("oil_temp_max", "temperature", "oil temperature upper limit (blank = kind default)"),
+    _num("oil_temp_min", "temperature", "oil temperature lower limit (blank = kind default)"),
+    Column("cleanliness_target", "iso4406", help="ISO 4406 target code, e.g. 18/16/13 (blank = kind default)"),
+    _num("reading_interval_days", None, "days between readings (blank = kind default)", positive=True),
+    _num("planning_horizon_weeks", None, "planning horizon (blank = kind default)", positive=True),
+    _num("overhaul_cost", None, "expected cost of an overhaul, site currency", min_=0),
+    Column("installed_at", "datetime", help="when the pump went into this position (default: now)"),
+    _num("installed_hours", "hours", "pump hour meter then", min_=0),
+    Column("note", "text"),
+)
+
+INSTALLATIONS = (
+    Column("pump", "text", required=True),
+    Column("site", "text", required=True),
+    Column("machine", "text", required=True),
+    Column("position", "text", required=True),
+    Column("installed_at", "datetime", required=True),
+    _num("hours", "hours", "pump hour meter at installation", min_=0),
+)
+
+READINGS = (
+    Column("pump", "text", required=True),
+    Column("taken_at", "datetime", required=True),
+    _num("hours", "hours", "pump running hours (hour meter)", True, min_=0),
+    _num("outlet_pressure", "pressure", "outlet pressure (gauge)", True, min_=0),
+    _num("speed", "speed", "shaft speed", True, positive=True),
+    _num("outlet_flow", "flow", "outlet flow (blank if not measured)", min_=0),
+    _num("case_drain_flow", "flow", "case drain flow (blank if not measured)", min_=0),
+    _num("oil_temp", "temperature", "oil temperature", True, min_=-40, max_=150),
+    _num("stroke", "fraction", "displacement setting of a variable pump (default unit %; blank = full)",
+         min_=0, max_=1.0, export_unit="%"),
+    Column("taken_by", "text"),
+    Column("note", "text"),
+    Column("source", "source", help="form, import or api (default import)"),
+)
+
+FLOWTESTS = (
+    Column("pump", "text", required=True),
+    Column("taken_at", "datetime", required=True, help="the visit: a reading of the pump at this time"),
+    _num("outlet_pressure", "pressure", "test point pressure", True, min_=0),
+    _num("outlet_flow", "flow", "test point flow", True, min_=0),
+)
+
+SAMPLES = (
+    Column("site", "text", help="needed when two sites have a machine of the same name"),
+    Column("machine", "text", required=True, help="the machine (reservoir) sampled"),
+    Column("sampled_at", "datetime", required=True),
+    Column("reported_at", "datetime", help="when the lab reported (blank: still at the lab)"),
+    Column("iso4406", "iso4406", help="ISO 4406 code, e.g. 18/16/13 or -/16/13"),
+    _num("count_4", "count", "particles per mL >= 4 um(c) (code computed when no iso4406)", min_=0),
+    _num("count_6", "count", "particles per mL >= 6 um(c)", min_=0),
+    _num("count_14", "count", "particles per mL >= 14 um(c)", min_=0),
+    _num("water", "concentration", "water content", min_=0),
+    _num("viscosity_40", "viscosity", "measured viscosity at 40 degC", positive=True),
+    Column("lab_ref", "text"),
+    Column("note", "text"),
+)
+
+EVENTS = (
+    Column("pump", "text", required=True),
+    Column("date", "datetime", required=True),
+    _num("hours", "hours", "pump running hours at the event", min_=0),
+    Column("kind", "event_kind", required=True,
+           help="overhaul, replacement, seal_repair, shaft_repair, filter_change, oil_change, inspection"),
+    _num("cost", None, "cost, site currency", min_=0),
+    _num("downtime", "duration", "downtime", min_=0),
+    Column("failure_mode", "failure_mode", help="low_output, internal_leakage, external_leakage, noise, "
+           "overheating, vibration, seizure, other"),
+    Column("note", "text", help="as-found notes"),
+)
+
+KINDS: dict[str, tuple[Column, ...]] = {
+    "sites": SITES,
+    "pumps": PUMPS,
+    "installations": INSTALLATIONS,
+    "readings": READINGS,
+    "flowtests": FLOWTESTS,
+    "samples": SAMPLES,
+    "events": EVENTS,
+}
+# The order a whole plant is loaded in: each kind refers only to kinds before it.
+LOAD_ORDER = ("sites", "pumps", "installations", "readings", "flowtests", "samples", "events")

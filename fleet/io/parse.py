@@ -1,0 +1,173 @@
+"""Turn a table of text cells (a CSV file, a form, a JSON body) into typed, canonical columns.
+
+Every bad cell becomes a Problem naming its row, column and reason; nothing is dropped silently. Row numbers
+count as a spreadsheet does: the header is row 1, the first data row is row 2.
+"""
+
+from dataclasses import dataclass, field
+
+import numpy as np
+import pandas as pd
+
+from fleet import units
+from fleet.io.columns import KINDS, Column
+from fleet.kinds import EVENT_KINDS, FAILURE_MODES, PUMP_KINDS, READING_SOURCES, normalise_kind
+from fleet.physics.cleanliness import parse_code
+
+TRUE_WORDS = frozenset({"yes", "y", "true", "1", "x"})
+FALSE_WORDS = frozenset({"no", "n", "false", "0", ""})
+
+
+@dataclass(frozen=True, order=True)
+class Problem:
+    row: int
+    column: str
+    reason: str
+
+    def __str__(self) -> str:
+        return f"row {self.row}, column '{self.column}': {self.reason}"
+
+
+class ImportRejected(Exception):
+    """A table with problems; nothing of it was written."""
+
+    def __init__(self, problems: list[Problem]):
+        self.problems = sorted(problems)
+        super().__init__(f"{len(self.problems)} problem(s); nothing was written")
+
+    def report(self) -> str:
+        return "\n".join(str(p) for p in self.problems)
+
+
+@dataclass
+class ParsedTable:
+    kind: str
+    data: pd.DataFrame  # one column per known column present, typed and canonical; index = file row number
+    present: set[str]
+    units: dict[str, str | None]  # the unit each header carried
+    ignored: list[str] = field(default_factory=list)  # headers fleet does not use
+
+
+def row_numbers(index: pd.Index) -> np.ndarray:
+    return np.asarray(index) + 2
+
+
+def _cells(series: pd.Series) -> pd.Series:
+    """Text cells, stripped, with blanks as NA."""
+    text = series.astype("string").str.strip()
+    return text.mask(text == "")
+
+
+def parse_table(kind: str, table: pd.DataFrame) -> tuple[ParsedTable, list[Problem]]:
+    """Parse ``table`` (any cells; read CSVs with dtype=str) as an import of ``kind``."""
+    if kind not in KINDS:
+        raise KeyError(f"unknown kind {kind!r}; one of {', '.join(KINDS)}")
+    specs = {column.name: column for column in KINDS[kind]}
+    problems: list[Problem] = []
+    headers: dict[str, tuple[str, str | None]] = {}  # spec name -> (original header, unit)
+    ignored: list[str] = []
+    for header in table.columns:
+        try:
+            name, unit = units.parse_header(str(header))
+        except units.UnitError as exc:
+            problems.append(Problem(1, str(header), str(exc)))
+            continue
+        if name not in specs:
+            ignored.append(str(header))
+            continue
+        if name in headers:
+            problems.append(Problem(1, str(header), f"column '{name}' appears twice"))
+            continue
+        spec = specs[name]
+        if unit is not None:
+            if spec.quantity is None:
+                problems.append(Problem(1, str(header), "this column takes a plain value, without a unit"))
+                continue
+            try:
+                units.resolve(unit, spec.quantity)
+            except units.UnitError as exc:
+                problems.append(Problem(1, str(header), str(exc)))
+                continue
+        headers[name] = (str(header), unit)
+    for spec in specs.values():
+        if spec.required and spec.name not in headers and not any(p.column.startswith(spec.name) for p in problems):
+            problems.append(Problem(1, spec.name, "required column is missing"))
+
+    table = table.reset_index(drop=True)
+    data = pd.DataFrame(index=table.index)
+    for name, (header, unit) in headers.items():
+        values, column_problems = _parse_column(specs[name], table[header], unit)
+        data[name] = values
+        problems.extend(column_problems)
+    parsed = ParsedTable(kind, data, set(headers), {k: u for k, (_, u) in headers.items()}, ignored)
+    return parsed, problems
+
+
+def _parse_column(spec: Column, raw: pd.Series, unit: str | None) -> tuple[pd.Series, list[Problem]]:
+    cells = _cells(raw)
+    blank = cells.isna()
+    problems: list[Problem] = []
+    rows = row_numbers(cells.index)
+
+    def flag(mask, reason_for):
+        for position in np.flatnonzero(np.asarray(mask)):
+            problems.append(Problem(int(rows[position]), spec.name, reason_for(cells.iloc[position])))
+
+    if spec.required:
+        flag(blank, lambda _cell: "a value is required")
+
+    if spec.type == "number":
+        numbers = pd.to_numeric(cells, errors="coerce").astype(float)
+        flag(~blank & numbers.isna(), lambda cell: f"'{cell}' is not a number")
+        values = pd.Series(units.to_canonical(numbers.to_numpy(), unit, spec.quantity), index=cells.index) \
+            if spec.quantity else numbers
+        label = units.LABELS.get(spec.quantity or "", "")
+        with np.errstate(invalid="ignore"):
+            if spec.positive:
+                flag(values <= 0, lambda cell: f"{cell} must be above zero")
+            if spec.min is not None:
+                flag(values < spec.min - 1e-9, lambda cell: f"{cell} is below the lowest allowed value "
+                     f"({spec.min:g} {label})".rstrip())
+            if spec.max is not None:
+                flag(values > spec.max + 1e-9, lambda cell: f"{cell} is above the highest allowed value "
+                     f"({spec.max:g} {label})".rstrip())
+        return values, problems
+
+    if spec.type == "datetime":
+        stamps = pd.to_datetime(cells, errors="coerce", format="ISO8601", utc=True)
+        flag(~blank & stamps.isna(), lambda cell: f"'{cell}' is not a date (write YYYY-MM-DD or "
+             "YYYY-MM-DD HH:MM)")
+        return stamps.dt.tz_localize(None), problems
+
+    if spec.type == "bool":
+        lowered = cells.str.lower()
+        known = lowered.isin(TRUE_WORDS | FALSE_WORDS) | blank
+        flag(~known, lambda cell: f"'{cell}' is not yes or no")
+        return lowered.isin(TRUE_WORDS).where(~blank, None).astype(object), problems
+
+    if spec.type == "kind":
+        keys = cells.map(lambda cell: normalise_kind(cell) if isinstance(cell, str) else None)
+        flag(~blank & keys.isna(), lambda cell: f"'{cell}' is not a pump kind ({', '.join(PUMP_KINDS)})")
+        return keys.astype(object), problems
+
+    vocabularies = {"event_kind": EVENT_KINDS, "failure_mode": FAILURE_MODES, "source": READING_SOURCES}
+    if spec.type in vocabularies:
+        allowed = tuple(vocabularies[spec.type])
+        keys = cells.str.lower().str.replace(" ", "_").str.replace("-", "_")
+        flag(~blank & ~keys.isin(allowed), lambda cell: f"'{cell}' is not one of {', '.join(allowed)}")
+        return keys.where(~blank, None).astype(object), problems
+
+    if spec.type == "iso4406":
+        codes = []
+        for position, cell in enumerate(cells):
+            if pd.isna(cell):
+                codes.append(None)
+                continue
+            try:
+                codes.append(parse_code(cell))
+            except ValueError as exc:
+                problems.append(Problem(int(rows[position]), spec.name, str(exc)))
+                codes.append(None)
+        return pd.Series(codes, index=cells.index, dtype=object), problems
+
+    return cells.astype(object).where(~blank, None), problems  # text

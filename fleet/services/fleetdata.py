@@ -1,0 +1,205 @@
+"""Load the frames the computation core reads (columns declared in fleet.frames) from the database.
+
+Set-based: one query per table, joined in pandas, never a query per pump.
+"""
+
+from dataclasses import dataclass
+from typing import Any
+
+import numpy as np
+import pandas as pd
+from sqlalchemy import select
+from sqlalchemy.orm import Session
+
+from fleet.db.models import (
+    FlowTestPoint,
+    Installation,
+    LimitDefault,
+    Machine,
+    MaintenanceEvent,
+    Oil,
+    OilSample,
+    Position,
+    Pump,
+    Reading,
+    Site,
+)
+from fleet.frames import EVENT_COLUMNS, FLOW_POINT_COLUMNS, PUMP_COLUMNS, READING_COLUMNS, SAMPLE_COLUMNS
+from fleet.limits import DEFAULT_LIMITS, VARIABLE_PISTON_TARGET
+from fleet.kinds import PISTON_KINDS
+
+LIMIT_FIELDS = ("eta_v_limit", "drain_limit_pct", "oil_temp_max_c", "oil_temp_min_c", "cleanliness_target",
+                "reading_interval_days", "planning_horizon_weeks")
+
+
+@dataclass
+class FleetFrames:
+    pumps: pd.DataFrame
+    readings: pd.DataFrame
+    flow_points: pd.DataFrame
+    events: pd.DataFrame
+    samples: pd.DataFrame
+
+
+def _query(session: Session, statement) -> pd.DataFrame:
+    result = session.execute(statement)
+    return pd.DataFrame(result.all(), columns=list(result.keys()))
+
+
+def _restrict(statement, column, pump_ids):
+    return statement if pump_ids is None else statement.where(column.in_(list(pump_ids)))
+
+
+def installation_history(session: Session, pump_ids=None) -> pd.DataFrame:
+    """Every stay of every pump, with the machine, site and oil of the position."""
+    statement = (
+        select(Installation.pump_id, Installation.installed_at, Installation.removed_at,
+               Installation.installed_hours, Position.name.label("position"), Machine.id.label("machine_id"),
+               Machine.name.label("machine"), Site.name.label("site"), Site.id.label("site_id"),
+               Oil.viscosity_40.label("nu40"), Oil.viscosity_100.label("nu100"), Oil.density_15.label("density15"))
+        .join(Position, Position.id == Installation.position_id)
+        .join(Machine, Machine.id == Position.machine_id)
+        .join(Site, Site.id == Machine.site_id)
+        .outerjoin(Oil, Oil.id == Machine.oil_id)
+    )
+    frame = _query(session, _restrict(statement, Installation.pump_id, pump_ids))
+    frame["installed_at"] = pd.to_datetime(frame["installed_at"])
+    return frame.sort_values(["installed_at", "pump_id"], kind="stable").reset_index(drop=True)
+
+
+def effective_limits(pumps: pd.DataFrame, defaults: pd.DataFrame) -> pd.DataFrame:
+    """Per-pump limits: the pump's override where set, else its kind's stored default, else the built-in one."""
+    built_in = pd.DataFrame(
+        [{"kind": kind, **{f: getattr(lim, f) for f in LIMIT_FIELDS}} for kind, lim in DEFAULT_LIMITS.items()]
+    ).set_index("kind")
+    table = defaults.set_index("kind")[list(LIMIT_FIELDS)] if len(defaults) else built_in.iloc[0:0]
+    table = table.combine_first(built_in)
+    by_kind = table.reindex(pumps["kind"]).set_index(pumps.index)
+    out = pumps.copy()
+    for name in LIMIT_FIELDS:
+        override = out[name] if name in out else pd.Series(np.nan, index=out.index)
+        out[name] = override.where(override.notna(), by_kind[name])
+    # A variable piston pump without its own target, under a kind default that was never edited, wants the
+    # cleaner code (common practice, no source).
+    variable_piston = out["variable"].astype(bool) & out["kind"].isin(PISTON_KINDS)
+    untouched = pumps.get("cleanliness_target", pd.Series(None, index=out.index)).isna()
+    default_target = out["kind"].map(lambda k: DEFAULT_LIMITS[k].cleanliness_target if k in DEFAULT_LIMITS else None)
+    plain = out["cleanliness_target"] == default_target
+    out.loc[variable_piston & untouched & plain, "cleanliness_target"] = VARIABLE_PISTON_TARGET
+    return out
+
+
+def load_pumps(session: Session, pump_ids=None) -> pd.DataFrame:
+    pumps = _query(session, _restrict(select(Pump.__table__), Pump.id, pump_ids)).rename(
+        columns={"id": "pump_id", "serial": "pump", "oil_temp_max_c": "oil_temp_max_c"}
+    )
+    history = installation_history(session, pump_ids)
+    current = history[history["removed_at"].isna()].drop_duplicates("pump_id", keep="last").set_index("pump_id")
+    for column in ("site", "machine", "position", "machine_id", "site_id"):
+        pumps[column] = pumps["pump_id"].map(current[column]) if len(current) else None
+    sites = _query(session, select(Site.id.label("site_id"), Site.tariff_per_kwh, Site.motor_efficiency,
+                                   Site.currency)).set_index("site_id")
+    for column in ("tariff_per_kwh", "motor_efficiency", "currency"):
+        pumps[column] = pumps["site_id"].map(sites[column]) if len(sites) else None
+    pumps["max_flow_lpm"] = pumps["max_flow_lpm"].where(
+        pumps["max_flow_lpm"].notna(), pumps["displacement_cc"] * pumps["rated_speed_rpm"] / 1000.0
+    )
+    defaults = _query(session, select(LimitDefault.__table__))
+    pumps = effective_limits(pumps, defaults)
+    missing = [c for c in PUMP_COLUMNS if c not in pumps]
+    assert not missing, missing
+    return pumps.sort_values("pump_id").reset_index(drop=True)
+
+
+def load_readings(session: Session, pump_ids=None, history: pd.DataFrame | None = None) -> pd.DataFrame:
+    statement = select(Reading.id.label("reading_id"), Reading.pump_id, Reading.taken_at, Reading.hours,
+                       Reading.pressure_bar, Reading.speed_rpm, Reading.flow_lpm, Reading.drain_lpm,
+                       Reading.temp_c, Reading.stroke)
+    readings = _query(session, _restrict(statement, Reading.pump_id, pump_ids))
+    readings["taken_at"] = pd.to_datetime(readings["taken_at"])
+    readings = readings.astype({c: float for c in ("hours", "pressure_bar", "speed_rpm", "flow_lpm", "drain_lpm",
+                                                   "temp_c", "stroke")})
+    if history is None:
+        history = installation_history(session, pump_ids)
+    readings = attach_oil(readings, history)
+    return readings[list(READING_COLUMNS)].sort_values(["pump_id", "taken_at"], kind="stable").reset_index(drop=True)
+
+
+def attach_oil(readings: pd.DataFrame, history: pd.DataFrame) -> pd.DataFrame:
+    """Give each reading the oil of the machine its pump sat in when it was taken.
+
+    A reading from before the pump's first recorded installation takes that first installation's oil.
+    """
+    oil_columns = ["nu40", "nu100", "density15"]
+    if len(readings) == 0 or len(history) == 0:
+        return readings.assign(**{c: np.nan for c in oil_columns})
+    left = readings.sort_values("taken_at", kind="stable")
+    right = history[["pump_id", "installed_at", *oil_columns]].sort_values("installed_at", kind="stable")
+    placed = pd.merge_asof(left, right, left_on="taken_at", right_on="installed_at", by="pump_id",
+                           direction="backward")
+    first = right.drop_duplicates("pump_id", keep="first").set_index("pump_id")
+    for column in oil_columns:
+        fallback = placed["pump_id"].map(first[column])
+        placed[column] = placed[column].where(placed[column].notna(), fallback).astype(float)
+    return placed.drop(columns=["installed_at"])
+
+
+def load_flow_points(session: Session, pump_ids=None) -> pd.DataFrame:
+    statement = (select(FlowTestPoint.reading_id, FlowTestPoint.pressure_bar, FlowTestPoint.flow_lpm)
+                 .join(Reading, Reading.id == FlowTestPoint.reading_id))
+    frame = _query(session, _restrict(statement, Reading.pump_id, pump_ids))
+    return frame[list(FLOW_POINT_COLUMNS)]
+
+
+def load_events(session: Session, pump_ids=None) -> pd.DataFrame:
+    statement = select(MaintenanceEvent.pump_id, MaintenanceEvent.date, MaintenanceEvent.hours,
+                       MaintenanceEvent.kind, MaintenanceEvent.cost)
+    frame = _query(session, _restrict(statement, MaintenanceEvent.pump_id, pump_ids))
+    frame["date"] = pd.to_datetime(frame["date"])
+    frame = frame.astype({"hours": float, "cost": float})
+    return frame[list(EVENT_COLUMNS)]
+
+
+def load_samples(session: Session, machine_ids=None) -> pd.DataFrame:
+    statement = select(OilSample.machine_id, OilSample.sampled_at, OilSample.reported_at, OilSample.code_4,
+                       OilSample.code_6, OilSample.code_14, OilSample.low_count, OilSample.water_ppm,
+                       OilSample.viscosity_40)
+    if machine_ids is not None:
+        statement = statement.where(OilSample.machine_id.in_([int(m) for m in machine_ids]))
+    frame = _query(session, statement)
+    for column in ("sampled_at", "reported_at"):
+        frame[column] = pd.to_datetime(frame[column])
+    frame = frame.astype({c: float for c in ("code_4", "code_6", "code_14", "water_ppm", "viscosity_40")})
+    frame["low_count"] = frame["low_count"].astype(bool)
+    return frame[list(SAMPLE_COLUMNS)]
+
+
+def load_frames(session: Session, pump_ids=None) -> FleetFrames:
+    """Everything the core needs about ``pump_ids`` (None: the whole fleet)."""
+    pumps = load_pumps(session, pump_ids)
+    history = installation_history(session, pump_ids)
+    machine_ids = None if pump_ids is None else pumps["machine_id"].dropna().astype(int).unique().tolist()
+    return FleetFrames(
+        pumps=pumps,
+        readings=load_readings(session, pump_ids, history),
+        flow_points=load_flow_points(session, pump_ids),
+        events=load_events(session, pump_ids),
+        samples=load_samples(session, machine_ids),
+    )
+
+
+def json_ready(value: Any) -> Any:
+    """NaN -> None, numpy scalars -> Python, timestamps -> ISO text: values safe for a JSON column."""
+    if isinstance(value, dict):
+        return {str(k): json_ready(v) for k, v in value.items()}
+    if isinstance(value, list | tuple | np.ndarray):
+        return [json_ready(v) for v in value]
+    if value is None or value is pd.NaT:
+        return None
+    if isinstance(value, pd.Timestamp):
+        return value.isoformat()
+    if isinstance(value, np.generic):
+        value = value.item()
+    if isinstance(value, float) and not np.isfinite(value):
+        return None
+    return value

@@ -1,0 +1,515 @@
+"""Import a table of one kind (CSV, form or JSON) into the database: whole or not at all.
+
+``import_table`` parses and checks every row first; if any row has a problem it raises ImportRejected naming each
+one (row, column, reason) and writes nothing. It never commits: the caller owns the transaction.
+"""
+
+from dataclasses import dataclass, field
+from datetime import datetime, timedelta
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+from sqlalchemy import insert, select, tuple_
+from sqlalchemy.orm import Session
+
+from fleet.db.models import (
+    FlowTestPoint,
+    Installation,
+    Machine,
+    MaintenanceEvent,
+    OilSample,
+    Position,
+    Pump,
+    Reading,
+    Site,
+)
+from fleet.io.parse import ImportRejected, ParsedTable, Problem, parse_table, row_numbers
+from fleet.physics.cleanliness import code_from_counts
+from fleet.services import register
+from fleet.timeutil import utcnow
+
+FUTURE_TOLERANCE = timedelta(hours=1)  # clocks on handhelds drift; an hour ahead is still "now"
+
+
+@dataclass
+class ImportResult:
+    kind: str
+    rows: int
+    created: int = 0
+    updated: int = 0
+    skipped: int = 0  # rows already stored exactly so
+    pump_ids: set[int] = field(default_factory=set)  # pumps whose analysis the import changes
+    ignored_columns: list[str] = field(default_factory=list)
+
+    def summary(self) -> str:
+        text = f"{self.kind}: {self.rows} row(s): {self.created} new, {self.updated} updated"
+        if self.skipped:
+            text += f", {self.skipped} already stored"
+        if self.ignored_columns:
+            text += f"; columns not used: {', '.join(self.ignored_columns)}"
+        return text
+
+
+def read_csv(path: str | Path) -> pd.DataFrame:
+    """Read a CSV as text cells (types are decided by the column specs, not guessed)."""
+    return pd.read_csv(path, dtype=str, keep_default_na=False, skipinitialspace=True, encoding="utf-8-sig")
+
+
+def import_file(session: Session, kind: str, path: str | Path, **kwargs) -> ImportResult:
+    return import_table(session, kind, read_csv(path), **kwargs)
+
+
+def import_table(session: Session, kind: str, table: pd.DataFrame, *, now: datetime | None = None,
+                 source: str = "import", taken_by: str | None = None) -> ImportResult:
+    parsed, problems = parse_table(kind, table)
+    if problems:
+        if "pump" in parsed.present and kind != "pumps":
+            _pump_ids(session, parsed, problems)  # name unknown pumps in the same report
+        raise ImportRejected(problems)
+    handler = _HANDLERS[kind]
+    result = ImportResult(kind, len(parsed.data), ignored_columns=parsed.ignored)
+    context = _Context(session, now or utcnow(), source, taken_by)
+    problems = handler(context, parsed, result)
+    if problems:
+        raise ImportRejected(problems)
+    session.flush()
+    return result
+
+
+@dataclass
+class _Context:
+    session: Session
+    now: datetime
+    source: str
+    taken_by: str | None
+
+
+def _value(row: pd.Series, name: str, default=None):
+    value = row.get(name, default)
+    if value is None or (isinstance(value, float) and np.isnan(value)) or value is pd.NaT:
+        return default
+    if isinstance(value, pd.Timestamp):
+        return value.to_pydatetime()
+    if isinstance(value, np.floating | np.integer):
+        return value.item()
+    return value
+
+
+def _column(parsed: ParsedTable, name: str) -> pd.Series:
+    if name in parsed.data:
+        return parsed.data[name]
+    return pd.Series([None] * len(parsed.data), index=parsed.data.index, dtype=object)
+
+
+def _pump_ids(session: Session, parsed: ParsedTable, problems: list[Problem]) -> pd.Series:
+    """Map the 'pump' column to pump ids; unknown serials become problems."""
+    serials = parsed.data["pump"]
+    known = dict(session.execute(select(Pump.serial, Pump.id).where(Pump.serial.in_(serials.dropna().unique()))).all())
+    ids = serials.map(known)
+    for row, serial in zip(row_numbers(parsed.data.index[ids.isna()]), serials[ids.isna()], strict=True):
+        problems.append(Problem(int(row), "pump", f"no pump '{serial}' in the register (import it with the pumps "
+                                "first)"))
+    return ids
+
+
+def _duplicates_in_file(parsed: ParsedTable, keys: list[str], problems: list[Problem], what: str) -> None:
+    dup = parsed.data.duplicated(subset=keys, keep="first")
+    for row in row_numbers(parsed.data.index[dup]):
+        problems.append(Problem(int(row), keys[-1], f"the same {what} appears earlier in the file"))
+
+
+def _not_in_future(ctx: _Context, parsed: ParsedTable, column: str, problems: list[Problem]) -> None:
+    stamps = parsed.data[column]
+    late = stamps > pd.Timestamp(ctx.now + FUTURE_TOLERANCE)
+    for row, stamp in zip(row_numbers(parsed.data.index[late]), stamps[late], strict=True):
+        problems.append(Problem(int(row), column, f"{stamp:%Y-%m-%d %H:%M} is in the future"))
+
+
+# --- sites -------------------------------------------------------------------------------------------------
+
+def _import_sites(ctx: _Context, parsed: ParsedTable, result: ImportResult) -> list[Problem]:
+    problems: list[Problem] = []
+    _duplicates_in_file(parsed, ["site"], problems, "site")
+    if problems:
+        return problems
+    for _, row in parsed.data.iterrows():
+        site = ctx.session.scalar(select(Site).where(Site.name == row["site"]))
+        if site is None:
+            site = Site(name=row["site"])
+            ctx.session.add(site)
+            result.created += 1
+        else:
+            result.updated += 1
+        for column, attribute in (("currency", "currency"), ("tariff_per_kwh", "tariff_per_kwh"),
+                                  ("motor_efficiency", "motor_efficiency"), ("note", "note")):
+            value = _value(row, column)
+            if value is not None:
+                setattr(site, attribute, value)
+    return problems
+
+
+# --- pumps -------------------------------------------------------------------------------------------------
+
+_PUMP_FIELDS = {  # csv column -> Pump attribute, for optional values that simply overwrite
+    "max_flow": "max_flow_lpm",
+    "eta_v_limit": "eta_v_limit",
+    "drain_limit_pct": "drain_limit_pct",
+    "oil_temp_max": "oil_temp_max_c",
+    "oil_temp_min": "oil_temp_min_c",
+    "reading_interval_days": "reading_interval_days",
+    "planning_horizon_weeks": "planning_horizon_weeks",
+    "overhaul_cost": "overhaul_cost",
+    "note": "note",
+}
+
+
+def _check_pumps(parsed: ParsedTable, problems: list[Problem]) -> None:
+    data = parsed.data
+    _duplicates_in_file(parsed, ["pump"], problems, "pump")
+    thinner = data["viscosity_100"] >= data["viscosity_40"]
+    for row in row_numbers(data.index[thinner]):
+        problems.append(Problem(int(row), "viscosity_100", "must be below viscosity_40 (oil thins as it warms)"))
+    # One machine has one reservoir: every row of a machine must name the same oil.
+    oil_cols = [c for c in ("oil", "viscosity_40", "viscosity_100", "density_15") if c in data]
+    for (_, _), group in data.groupby(["site", "machine"], sort=False):
+        first = group.iloc[0]
+        for index, row in group.iloc[1:].iterrows():
+            for column in oil_cols:
+                a, b = row[column], first[column]
+                same = (pd.isna(a) and pd.isna(b)) or a == b
+                if not same:
+                    problems.append(Problem(int(index) + 2, column, f"machine '{row['machine']}' has one "
+                                            f"reservoir, but this row's {column} differs from row "
+                                            f"{int(group.index[0]) + 2}"))
+                    break
+    for oil, group in data.groupby("oil", sort=False):
+        for column in ("viscosity_40", "viscosity_100"):
+            if group[column].nunique() > 1:
+                problems.append(Problem(int(group.index[-1]) + 2, column, f"oil '{oil}' is given different "
+                                        f"{column} values in this file"))
+    if {"oil_temp_min", "oil_temp_max"} <= parsed.present:
+        inverted = data["oil_temp_min"] >= data["oil_temp_max"]
+        for row in row_numbers(data.index[inverted]):
+            problems.append(Problem(int(row), "oil_temp_min", "must be below oil_temp_max"))
+
+
+def _import_pumps(ctx: _Context, parsed: ParsedTable, result: ImportResult) -> list[Problem]:
+    problems: list[Problem] = []
+    _check_pumps(parsed, problems)
+    if problems:
+        return problems
+    session = ctx.session
+    for _, row in parsed.data.iterrows():
+        oil = register.set_oil(session, row["oil"], row["viscosity_40"], row["viscosity_100"],
+                               _value(row, "density_15"), _int(_value(row, "oil_grade")))
+        position = register.locate_position(session, row["site"], row["machine"], row["position"])
+        position.machine.oil_id = oil.id
+        pump = session.scalar(select(Pump).where(Pump.serial == row["pump"]))
+        if pump is None:
+            pump = Pump(serial=row["pump"])
+            session.add(pump)
+            result.created += 1
+        else:
+            result.updated += 1
+        pump.kind = row["kind"]
+        pump.variable = bool(_value(row, "variable", pump.variable or False))
+        pump.case_drain = bool(_value(row, "case_drain", pump.case_drain or False))
+        pump.displacement_cc = row["displacement"]
+        pump.rated_speed_rpm = row["rated_speed"]
+        pump.rated_pressure_bar = row["rated_pressure"]
+        pump.reference_temp_c = _value(row, "reference_temp", pump.reference_temp_c or 50.0)
+        code = _value(row, "cleanliness_target")
+        if code is not None:
+            pump.cleanliness_target = str(code)
+        for column, attribute in _PUMP_FIELDS.items():
+            if column in parsed.present:
+                value = _value(row, column)
+                if attribute in ("reading_interval_days", "planning_horizon_weeks"):
+                    value = _int(value)
+                setattr(pump, attribute, value)
+        session.flush()
+        current = register.current_installation(pump)
+        if current is None or current.position_id != position.id:
+            at = _value(row, "installed_at") or ctx.now
+            register.place_pump(session, pump, position, at, _value(row, "installed_hours"))
+        result.pump_ids.add(pump.id)
+    return problems
+
+
+def _int(value):
+    return None if value is None else int(round(value))
+
+
+# --- installations -----------------------------------------------------------------------------------------
+
+def _import_installations(ctx: _Context, parsed: ParsedTable, result: ImportResult) -> list[Problem]:
+    problems: list[Problem] = []
+    ids = _pump_ids(ctx.session, parsed, problems)
+    _duplicates_in_file(parsed, ["pump", "installed_at"], problems, "pump and time")
+    _not_in_future(ctx, parsed, "installed_at", problems)
+    if problems:
+        return problems
+    data = parsed.data.assign(pump_id=ids).sort_values("installed_at", kind="stable")
+    for _, row in data.iterrows():
+        pump = ctx.session.get(Pump, int(row["pump_id"]))
+        position = register.locate_position(ctx.session, row["site"], row["machine"], row["position"])
+        if register.place_pump(ctx.session, pump, position, _value(row, "installed_at"), _value(row, "hours")):
+            result.created += 1
+        else:
+            result.skipped += 1
+        result.pump_ids.add(pump.id)
+    return problems
+
+
+# --- readings ----------------------------------------------------------------------------------------------
+
+def _existing_pairs(session: Session, model, time_column, pump_ids: np.ndarray, stamps: pd.Series) -> set:
+    """(pump_id, time) pairs of ``model`` already stored, among those the file names."""
+    if len(pump_ids) == 0:
+        return set()
+    low, high = stamps.min().to_pydatetime(), stamps.max().to_pydatetime()
+    rows = session.execute(
+        select(model.pump_id, time_column).where(
+            model.pump_id.in_([int(x) for x in np.unique(pump_ids)]), time_column >= low, time_column <= high
+        )
+    )
+    return {(pump_id, pd.Timestamp(stamp)) for pump_id, stamp in rows}
+
+
+def _import_readings(ctx: _Context, parsed: ParsedTable, result: ImportResult) -> list[Problem]:
+    problems: list[Problem] = []
+    ids = _pump_ids(ctx.session, parsed, problems)
+    _duplicates_in_file(parsed, ["pump", "taken_at"], problems, "pump and time")
+    _not_in_future(ctx, parsed, "taken_at", problems)
+    data = parsed.data.assign(pump_id=ids)
+    known = data[ids.notna()]
+    stored = _existing_pairs(ctx.session, Reading, Reading.taken_at, known["pump_id"].to_numpy(), known["taken_at"])
+    for index, row in known.iterrows():
+        if (int(row["pump_id"]), row["taken_at"]) in stored:
+            problems.append(Problem(int(index) + 2, "taken_at", f"a reading of pump '{row['pump']}' at "
+                                    f"{row['taken_at']:%Y-%m-%d %H:%M} is already stored"))
+    if problems:
+        return problems
+    source = _column(parsed, "source").where(lambda s: s.notna(), ctx.source)
+    taken_by = _column(parsed, "taken_by").where(lambda s: s.notna(), ctx.taken_by)
+    frame = pd.DataFrame({
+        "pump_id": data["pump_id"].astype(int),
+        "taken_at": data["taken_at"],
+        "hours": data["hours"],
+        "pressure_bar": data["outlet_pressure"],
+        "speed_rpm": data["speed"],
+        "flow_lpm": _column(parsed, "outlet_flow"),
+        "drain_lpm": _column(parsed, "case_drain_flow"),
+        "temp_c": data["oil_temp"],
+        "stroke": _column(parsed, "stroke"),
+        "taken_by": taken_by,
+        "note": _column(parsed, "note"),
+        "source": source,
+    })
+    records = _records(frame)
+    now = utcnow()
+    for record in records:
+        record["created_at"] = now
+    if records:
+        ctx.session.execute(insert(Reading), records)
+    result.created = len(records)
+    result.pump_ids.update(int(x) for x in frame["pump_id"].unique())
+    return problems
+
+
+def _records(frame: pd.DataFrame) -> list[dict]:
+    """Rows as plain dicts for an executemany insert: NaN/NaT -> None, numpy scalars -> Python."""
+    columns = {}
+    for name in frame.columns:
+        series = frame[name]
+        if pd.api.types.is_datetime64_any_dtype(series):
+            values = [None if pd.isna(v) else v.to_pydatetime() for v in series]
+        else:
+            values = [None if pd.isna(v) else (v.item() if isinstance(v, np.generic) else v)
+                      for v in series.astype(object)]
+        columns[name] = values
+    return [dict(zip(columns, row, strict=True)) for row in zip(*columns.values(), strict=True)]
+
+
+# --- flow tests --------------------------------------------------------------------------------------------
+
+def _import_flowtests(ctx: _Context, parsed: ParsedTable, result: ImportResult) -> list[Problem]:
+    problems: list[Problem] = []
+    ids = _pump_ids(ctx.session, parsed, problems)
+    data = parsed.data.assign(pump_id=ids)
+    known = data[ids.notna()]
+    reading_ids: dict[tuple[int, pd.Timestamp], int] = {}
+    if len(known):
+        rows = ctx.session.execute(
+            select(Reading.pump_id, Reading.taken_at, Reading.id).where(
+                tuple_(Reading.pump_id, Reading.taken_at).in_(
+                    [(int(p), t.to_pydatetime()) for p, t in zip(known["pump_id"], known["taken_at"], strict=True)]
+                )
+            )
+        )
+        reading_ids = {(p, pd.Timestamp(t)): rid for p, t, rid in rows}
+    resolved = []
+    for index, row in known.iterrows():
+        reading_id = reading_ids.get((int(row["pump_id"]), row["taken_at"]))
+        if reading_id is None:
+            problems.append(Problem(int(index) + 2, "taken_at", f"no reading of pump '{row['pump']}' at "
+                                    f"{row['taken_at']:%Y-%m-%d %H:%M}: import the visit's reading first"))
+        resolved.append(reading_id)
+    if problems:
+        return problems
+    records = [
+        {"reading_id": rid, "pressure_bar": float(p), "flow_lpm": float(q)}
+        for rid, p, q in zip(resolved, known["outlet_pressure"], known["outlet_flow"], strict=True)
+    ]
+    if records:
+        ctx.session.execute(insert(FlowTestPoint), records)
+    result.created = len(records)
+    result.pump_ids.update(int(x) for x in known["pump_id"].unique())
+    return problems
+
+
+# --- oil samples -------------------------------------------------------------------------------------------
+
+def _machines_by_name(session: Session) -> dict[tuple[str, str], Machine]:
+    rows = session.execute(select(Site.name, Machine).join(Machine, Machine.site_id == Site.id))
+    return {(site, machine.name): machine for site, machine in rows}
+
+
+def _import_samples(ctx: _Context, parsed: ParsedTable, result: ImportResult) -> list[Problem]:
+    problems: list[Problem] = []
+    machines = _machines_by_name(ctx.session)
+    by_name: dict[str, list[Machine]] = {}
+    for (_, name), machine in machines.items():
+        by_name.setdefault(name, []).append(machine)
+    _duplicates_in_file(parsed, [c for c in ("site", "machine", "sampled_at") if c in parsed.present], problems,
+                        "machine and sampling time")
+    _not_in_future(ctx, parsed, "sampled_at", problems)
+    rows = []
+    for index, row in parsed.data.iterrows():
+        number = int(index) + 2
+        site, name = _value(row, "site"), row["machine"]
+        if site is not None:
+            machine = machines.get((site, name))
+            if machine is None:
+                problems.append(Problem(number, "machine", f"no machine '{name}' at site '{site}'"))
+                continue
+        else:
+            candidates = by_name.get(name, [])
+            if len(candidates) != 1:
+                reason = (f"no machine '{name}' in the register" if not candidates else
+                          f"machine '{name}' exists at {len(candidates)} sites: add a 'site' column")
+                problems.append(Problem(number, "machine", reason))
+                continue
+            machine = candidates[0]
+        reported = _value(row, "reported_at")
+        if reported is not None and reported < _value(row, "sampled_at"):
+            problems.append(Problem(number, "reported_at", "is before sampled_at"))
+            continue
+        code = _value(row, "iso4406")
+        counts = [_value(row, f"count_{size}") for size in (4, 6, 14)]
+        if code is None and counts[1] is not None and counts[2] is not None:
+            try:
+                code = code_from_counts(*counts)
+            except ValueError as exc:
+                problems.append(Problem(number, "count_6", str(exc)))
+                continue
+        elif code is None and any(c is not None for c in counts):
+            problems.append(Problem(number, "count_6", "particle counts need at least the 6 and 14 um channels"))
+            continue
+        if reported is not None and code is None and _value(row, "water") is None \
+                and _value(row, "viscosity_40") is None:
+            problems.append(Problem(number, "iso4406", "a reported result needs a code, counts, water or "
+                                    "viscosity"))
+            continue
+        rows.append((machine, row, code, counts))
+    if problems:
+        return problems
+    for machine, row, code, counts in rows:
+        sampled = _value(row, "sampled_at")
+        sample = ctx.session.scalar(
+            select(OilSample).where(OilSample.machine_id == machine.id, OilSample.sampled_at == sampled)
+        )
+        if sample is None:
+            sample = OilSample(machine_id=machine.id, sampled_at=sampled)
+            ctx.session.add(sample)
+            result.created += 1
+        else:
+            result.updated += 1
+        for column, attribute in (("reported_at", "reported_at"), ("water", "water_ppm"),
+                                  ("viscosity_40", "viscosity_40"), ("lab_ref", "lab_ref"), ("note", "note")):
+            value = _value(row, column)
+            if value is not None:
+                setattr(sample, attribute, value)
+        if code is not None:
+            sample.code_4, sample.code_6, sample.code_14 = code.c4, code.c6, code.c14
+            sample.low_count = code.low_count
+        for size, count in zip((4, 6, 14), counts, strict=True):
+            if count is not None:
+                setattr(sample, f"count_{size}", count)
+        result.pump_ids.update(_pumps_on_machine(ctx.session, machine.id))
+    return problems
+
+
+def _pumps_on_machine(session: Session, machine_id: int) -> set[int]:
+    rows = session.scalars(
+        select(Installation.pump_id).join(Position, Installation.position_id == Position.id).where(
+            Position.machine_id == machine_id, Installation.removed_at.is_(None)
+        )
+    )
+    return set(rows)
+
+
+# --- maintenance events ------------------------------------------------------------------------------------
+
+def _import_events(ctx: _Context, parsed: ParsedTable, result: ImportResult) -> list[Problem]:
+    problems: list[Problem] = []
+    ids = _pump_ids(ctx.session, parsed, problems)
+    _duplicates_in_file(parsed, ["pump", "date", "kind"], problems, "pump, date and kind")
+    _not_in_future(ctx, parsed, "date", problems)
+    data = parsed.data.assign(pump_id=ids)
+    known = data[ids.notna()]
+    if len(known):
+        stored = set(
+            (p, pd.Timestamp(d), k) for p, d, k in ctx.session.execute(
+                select(MaintenanceEvent.pump_id, MaintenanceEvent.date, MaintenanceEvent.kind).where(
+                    MaintenanceEvent.pump_id.in_([int(x) for x in known["pump_id"].unique()])
+                )
+            )
+        )
+        for index, row in known.iterrows():
+            if (int(row["pump_id"]), row["date"], row["kind"]) in stored:
+                problems.append(Problem(int(index) + 2, "date", f"this {row['kind']} of pump '{row['pump']}' "
+                                        "is already stored"))
+    if problems:
+        return problems
+    frame = pd.DataFrame({
+        "pump_id": data["pump_id"].astype(int),
+        "date": data["date"],
+        "hours": _column(parsed, "hours"),
+        "kind": data["kind"],
+        "cost": _column(parsed, "cost"),
+        "downtime_h": _column(parsed, "downtime"),
+        "failure_mode": _column(parsed, "failure_mode"),
+        "note": _column(parsed, "note"),
+    })
+    records = _records(frame)
+    now = utcnow()
+    for record in records:
+        record["created_at"] = now
+    if records:
+        ctx.session.execute(insert(MaintenanceEvent), records)
+    result.created = len(records)
+    result.pump_ids.update(int(x) for x in frame["pump_id"].unique())
+    return problems
+
+
+_HANDLERS = {
+    "sites": _import_sites,
+    "pumps": _import_pumps,
+    "installations": _import_installations,
+    "readings": _import_readings,
+    "flowtests": _import_flowtests,
+    "samples": _import_samples,
+    "events": _import_events,
+}
