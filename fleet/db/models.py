@@ -253,3 +253,60 @@ class FleetPrior(Base):
     kind: Mapped[str] = mapped_column(String(32), primary_key=True)
     computed_at: Mapped[datetime] = mapped_column(DateTime)
     detail: Mapped[dict[str, Any]] = mapped_column(JSON)
+
+
+class Route(Base):
+    """An ordered walk of pumps a technician reads on one round."""
+
+    __tablename__ = "route"
+
+    id: Mapped[int] = mapped_column(primary_key=True)
+    name: Mapped[str] = mapped_column(String(120), unique=True)
+    note: Mapped[str | None] = mapped_column(Text)
+
+    stops: Mapped[list["RouteStop"]] = relationship(
+        back_populates="route", cascade="all, delete-orphan", order_by="RouteStop.seq"
+    )
+
+
+class RouteStop(Base):
+    __tablename__ = "route_stop"
+    __table_args__ = (UniqueConstraint("route_id", "pump_id"),)
+
+    id: Mapped[int] = mapped_column(primary_key=True)
+    route_id: Mapped[int] = mapped_column(ForeignKey("route.id", ondelete="CASCADE"), index=True)
+    pump_id: Mapped[int] = mapped_column(ForeignKey("pump.id"), index=True)
+    seq: Mapped[int] = mapped_column(Integer)
+
+    route: Mapped[Route] = relationship(back_populates="stops")
+    pump: Mapped[Pump] = relationship()
+
+
+class ShutdownWindow(Base):
+    """A planned stop of a site or machine in which overhauls can be done."""
+
+    __tablename__ = "shutdown_window"
+
+    id: Mapped[int] = mapped_column(primary_key=True)
+    site_id: Mapped[int | None] = mapped_column(ForeignKey("site.id"))
+    machine_id: Mapped[int | None] = mapped_column(ForeignKey("machine.id"))
+    starts_at: Mapped[datetime] = mapped_column(DateTime)
+    ends_at: Mapped[datetime] = mapped_column(DateTime)
+    note: Mapped[str | None] = mapped_column(Text)
+
+
+class StatusChange(Base):
+    """A change of a pump's status or reasons between two analyses: what the weekly review reports."""
+
+    __tablename__ = "status_change"
+
+    id: Mapped[int] = mapped_column(primary_key=True)
+    pump_id: Mapped[int] = mapped_column(ForeignKey("pump.id", ondelete="CASCADE"), index=True)
+    at: Mapped[datetime] = mapped_column(DateTime, index=True)
+    status: Mapped[str] = mapped_column(String(16))
+    previous_status: Mapped[str | None] = mapped_column(String(16))
+    reasons: Mapped[list[str]] = mapped_column(JSON)
+    new_reasons: Mapped[list[str]] = mapped_column(JSON)
+    eta_v_ref: Mapped[float | None] = mapped_column(Float)
+    hours_to_limit: Mapped[float | None] = mapped_column(Float)
+    limit_date: Mapped[str | None] = mapped_column(String(10))

@@ -1,0 +1,204 @@
+"""The ``fleet`` command: set up the database, move CSV files in and out, analyse, serve the dashboard."""
+
+import json
+import sys
+from pathlib import Path
+
+import click
+
+from fleet.db import migrate
+from fleet.db.engine import database_url, make_engine, make_session_factory
+from fleet.io.columns import KINDS
+from fleet.io.parse import ImportRejected
+
+
+class Database:
+    """The engine and session factory of the URL in use, opened once per command."""
+
+    def __init__(self, url: str | None = None):
+        self.url = database_url(url)
+        self.engine = make_engine(self.url)
+        self.sessions = make_session_factory(self.engine)
+
+    def require_current(self) -> None:
+        current, head = migrate.current_revision(self.engine), migrate.head_revision()
+        if current != head:
+            state = "is empty" if current is None else f"is at revision {current}, the newest is {head}"
+            raise click.ClickException(f"the database {state}; run 'fleet init' first")
+
+
+def _safe_url(url: str) -> str:
+    """The URL without its password, for messages."""
+    from sqlalchemy.engine import make_url
+
+    return make_url(url).render_as_string(hide_password=True)
+
+
+@click.group(help=__doc__)
+@click.option("--database", "url", envvar="FLEET_DATABASE_URL", metavar="URL",
+              help="SQLAlchemy URL (default: env FLEET_DATABASE_URL, else ./fleet.sqlite)")
+@click.pass_context
+def main(ctx: click.Context, url: str | None) -> None:
+    ctx.obj = Database(url)
+
+
+@main.command()
+@click.pass_obj
+def init(db: Database) -> None:
+    """Create or upgrade the database to the newest migration."""
+    from fleet.services.register import ensure_limit_defaults
+
+    before = migrate.current_revision(db.engine)
+    migrate.upgrade(db.engine)
+    with db.sessions.begin() as session:
+        added = ensure_limit_defaults(session)
+    after = migrate.current_revision(db.engine)
+    verb = "created" if before is None else ("upgraded" if before != after else "already current")
+    click.echo(f"database {verb} at revision {after}: {_safe_url(db.url)}")
+    if added:
+        click.echo(f"stored default limits for {added} pump kinds")
+
+
+@main.command("import")
+@click.argument("kind", type=click.Choice(list(KINDS)))
+@click.argument("file", type=click.Path(exists=True, dir_okay=False, path_type=Path))
+@click.option("--no-analysis", is_flag=True, help="do not refresh the analysis of the pumps touched")
+@click.pass_obj
+def import_(db: Database, kind: str, file: Path, no_analysis: bool) -> None:
+    """Import a CSV file of KIND, whole or not at all.
+
+    Headers may carry a unit in brackets, e.g. 'outlet_flow [gal/min]'. On any bad row nothing is written and
+    every problem is listed with its row (the header is row 1), column and reason.
+    """
+    from fleet.services.importing import import_file
+
+    db.require_current()
+    try:
+        with db.sessions.begin() as session:
+            result = import_file(session, kind, file)
+    except ImportRejected as rejected:
+        click.echo(f"{file}: {len(rejected.problems)} problem(s); nothing was imported.", err=True)
+        click.echo(rejected.report(), err=True)
+        sys.exit(1)
+    click.echo(result.summary())
+    if not no_analysis and result.pump_ids:
+        _refresh(db, result.pump_ids)
+
+
+def _refresh(db: Database, pump_ids) -> None:
+    from fleet.services.analysis import refresh_analysis
+
+    with db.sessions.begin() as session:
+        summary = refresh_analysis(session, pump_ids=pump_ids)
+    click.echo(summary.describe())
+
+
+@main.command("export")
+@click.argument("kind", type=click.Choice(list(KINDS)))
+@click.argument("file", type=click.Path(dir_okay=False, allow_dash=True))
+@click.pass_obj
+def export(db: Database, kind: str, file: str) -> None:
+    """Write KIND as CSV (canonical units in the headers) to FILE, or '-' for standard output."""
+    from fleet.services.exporting import export_table
+
+    db.require_current()
+    with db.sessions() as session:
+        table = export_table(session, kind)
+    if file == "-":
+        table.to_csv(sys.stdout, index=False)
+    else:
+        table.to_csv(file, index=False)
+        click.echo(f"{kind}: {len(table)} row(s) written to {file}")
+
+
+@main.command()
+@click.option("--json", "as_json", is_flag=True, help="print a JSON array, one object per pump")
+@click.option("--pump", "pumps", multiple=True, help="only these pumps (repeatable); default the whole fleet")
+@click.option("--stored", is_flag=True, help="print the stored results without recomputing")
+@click.pass_obj
+def analyze(db: Database, as_json: bool, pumps: tuple[str, ...], stored: bool) -> None:
+    """Analyse the fleet (or some pumps), store the results and print them, most urgent first."""
+    from fleet.services.analysis import analysis_records, pump_ids_for, refresh_analysis
+    from fleet.textreport import service_table
+
+    db.require_current()
+    with db.sessions.begin() as session:
+        ids = pump_ids_for(session, pumps) if pumps else None
+        if not stored:
+            progress = None if as_json else _progress_bar()
+            refresh_analysis(session, pump_ids=ids, progress=progress)
+        records = analysis_records(session, pump_ids=ids)
+    if as_json:
+        click.echo(json.dumps(records, indent=2, ensure_ascii=False))
+    else:
+        click.echo(service_table(records))
+
+
+def _progress_bar():
+    """A progress callback for big fleets, drawn on stderr so piped output stays clean."""
+    state = {}
+
+    def report(done: int, total: int, label: str) -> None:
+        if total < 500:
+            return
+        if "bar" not in state:
+            state["bar"] = click.progressbar(length=total, label=label, file=sys.stderr)
+            state["bar"].__enter__()
+            state["done"] = 0
+        state["bar"].update(done - state["done"])
+        state["done"] = done
+        if done >= total:
+            state.pop("bar").__exit__(None, None, None)
+
+    return report
+
+
+@main.command()
+@click.option("--host", default="127.0.0.1", show_default=True, help="address to listen on (0.0.0.0: all)")
+@click.option("--port", default=8000, show_default=True, type=int)
+@click.option("--threads", default=8, show_default=True, type=int)
+@click.pass_obj
+def serve(db: Database, host: str, port: int, threads: int) -> None:
+    """Serve the dashboard with a production WSGI server (waitress)."""
+    db.require_current()
+    _serve(db, host, port, threads)
+
+
+def _serve(db: Database, host: str, port: int, threads: int) -> None:
+    from waitress import serve as waitress_serve
+
+    from fleet.web import create_app
+
+    app = create_app({"DATABASE_URL": db.url})
+    click.echo(f"fleet dashboard on http://{host}:{port}/  (database {_safe_url(db.url)}; Ctrl+C stops)")
+    waitress_serve(app, host=host, port=port, threads=threads)
+
+
+@main.command()
+@click.option("--no-serve", is_flag=True, help="build the demo database and stop")
+@click.option("--seed", default=2026, show_default=True, type=int, help="random seed of the invented plant")
+@click.option("--rebuild", is_flag=True, help="wipe the database and build the demo again")
+@click.option("--host", default="127.0.0.1", show_default=True)
+@click.option("--port", default=8000, show_default=True, type=int)
+@click.pass_obj
+def demo(db: Database, no_serve: bool, seed: int, rebuild: bool, host: str, port: int) -> None:
+    """Build an invented demo plant in the database and serve the dashboard."""
+    from seed_demo import build_demo, demo_present
+
+    if rebuild:
+        migrate.downgrade_to_empty(db.engine)
+    migrate.upgrade(db.engine)
+    with db.sessions() as session:
+        present = demo_present(session)
+    if present and not rebuild:
+        click.echo("the database already holds data; serving it as it is (use --rebuild to start again)")
+    else:
+        with db.sessions.begin() as session:
+            summary = build_demo(session, seed=seed, echo=click.echo)
+        click.echo(summary)
+    if not no_serve:
+        _serve(db, host, port, threads=8)
+
+
+if __name__ == "__main__":  # pragma: no cover
+    main()

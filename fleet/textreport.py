@@ -1,0 +1,49 @@
+"""Plain-text tables for the terminal: the service list as `fleet analyze` prints it."""
+
+import textwrap
+
+from fleet.status_words import STATUS_LABELS
+
+
+def _num(value, fmt: str, empty: str = "-") -> str:
+    return empty if value is None else format(value, fmt)
+
+
+def _hours(record: dict) -> str:
+    if record.get("hours_to_limit") is None:
+        return "-"
+    low, high = record.get("hours_to_limit_low"), record.get("hours_to_limit_high")
+    text = f"{record['hours_to_limit']:,.0f}"
+    if low is not None:
+        text += f" ({low:,.0f}-{'open' if high is None else format(high, ',.0f')})"
+    return text
+
+
+def service_table(records: list[dict], width: int = 110) -> str:
+    """One line per pump, most urgent first, with its first reason wrapped beneath."""
+    header = f"{'#':>3}  {'pump':<14} {'status':<11} {'eta_v,ref':>9} {'-/1000h':>7} {'drain%':>6} " \
+             f"{'hours to limit (bounds)':<26} {'date':<10} {'limit':<10}"
+    lines = [header, "-" * len(header)]
+    for record in records:
+        lines.append(
+            f"{record.get('rank', 0):>3}  {str(record['pump'])[:14]:<14} "
+            f"{STATUS_LABELS.get(record['status'], record['status']):<11} "
+            f"{_num(record.get('eta_v_ref'), '.3f'):>9} {_num(record.get('eta_v_decline_per_1000h'), '.4f'):>7} "
+            f"{_num(record.get('drain_pct_ref'), '.1f'):>6} {_hours(record):<26} "
+            f"{record.get('limit_date') or '-':<10} {record.get('governing_limit') or '-':<10}"
+        )
+        for reason in record.get("reasons") or []:
+            lines.extend(textwrap.wrap(reason, width=width, initial_indent="       - ",
+                                       subsequent_indent="         "))
+    counts: dict[str, int] = {}
+    for record in records:
+        counts[record["status"]] = counts.get(record["status"], 0) + 1
+    summary = ", ".join(f"{n} {STATUS_LABELS.get(s, s).lower()}" for s, n in counts.items())
+    lines.append(f"\n{len(records)} pump(s): {summary}. Bounds are {_confidence(records)} intervals; "
+                 "hours are running hours.")
+    return "\n".join(lines)
+
+
+def _confidence(records: list[dict]) -> str:
+    levels = {r.get("confidence") for r in records if r.get("confidence")}
+    return "/".join(f"{level:.0%}" for level in sorted(levels)) or "90%"

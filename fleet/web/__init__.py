@@ -1,0 +1,52 @@
+"""The dashboard: a small Flask app over the same services the CLI uses."""
+
+import os
+from pathlib import Path
+
+from flask import Flask
+
+from fleet.db.engine import database_url, make_engine, make_session_factory
+
+# fleet runs from a checkout: the page templates live at the top level beside the package.
+TEMPLATES = Path(__file__).resolve().parents[2] / "templates"
+
+
+def create_app(test_config: dict | None = None) -> Flask:
+    """Defaults, then the environment, then ``test_config``."""
+    app = Flask(__name__, template_folder=str(TEMPLATES), static_folder="static")
+    app.config.update(
+        DATABASE_URL=database_url(None),
+        SECRET_KEY=os.environ.get("FLEET_SECRET_KEY") or os.urandom(32),
+        PAGE_SIZE=50,
+        JSON_SORT_KEYS=False,
+    )
+    if test_config:
+        app.config.update(test_config)
+    engine = make_engine(app.config["DATABASE_URL"])
+    app.extensions["fleet_db"] = make_session_factory(engine)
+    app.extensions["fleet_engine"] = engine
+
+    from fleet.web import assets, db, filters, service_list
+
+    db.init_app(app)
+    filters.init_app(app)
+    app.register_blueprint(assets.bp)
+    app.register_blueprint(service_list.bp)
+    # pump pages: register blueprints here
+    # planning pages: register blueprints here
+
+    @app.context_processor
+    def navigation():
+        return {"nav_links": [(endpoint, label) for endpoint, label in NAV if endpoint in app.view_functions]}
+
+    return app
+
+
+# The main menu, in the order people use it; an entry shows once its page exists.
+NAV = (
+    ("service_list.index", "Service list"),
+    ("rounds.index", "Rounds"),
+    ("review.weekly", "Weekly review"),
+    ("plan.overhaul", "Overhaul plan"),
+    ("register.index", "Register"),
+)

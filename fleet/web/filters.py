@@ -1,0 +1,37 @@
+"""Template filters: numbers and times as people on a plant floor read them."""
+
+from datetime import datetime
+
+from flask import Flask
+
+from fleet.status_words import STATUS_LABELS, STATUS_METER
+from fleet.timeutil import utcnow
+
+
+def number(value, digits: int = 1, empty: str = "–") -> str:
+    if value is None:
+        return empty
+    return f"{value:,.{digits}f}"
+
+
+def percent(value, digits: int = 1, empty: str = "–") -> str:
+    return empty if value is None else f"{100 * value:.{digits}f} %"
+
+
+def age(value, now: datetime | None = None) -> str:
+    """'3 d ago' from an ISO time or datetime."""
+    if not value:
+        return "never"
+    moment = datetime.fromisoformat(value) if isinstance(value, str) else value
+    days = ((now or utcnow()) - moment).total_seconds() / 86400
+    if days < 1:
+        return "today"
+    return f"{days:.0f} d ago"
+
+
+def init_app(app: Flask) -> None:
+    app.add_template_filter(number)
+    app.add_template_filter(percent)
+    app.add_template_filter(age)
+    app.add_template_global(STATUS_LABELS, "STATUS_LABELS")
+    app.add_template_global(STATUS_METER, "STATUS_METER")

@@ -1,0 +1,36 @@
+"""The invented demo plant: generated tables (seed_demo.plant) loaded through the same importer users use."""
+
+from collections.abc import Callable
+
+import pandas as pd
+from sqlalchemy import func, select
+from sqlalchemy.orm import Session
+
+from fleet.db.models import Pump
+from fleet.io.columns import LOAD_ORDER
+
+
+def demo_present(session: Session) -> bool:
+    """True when the database already holds pumps (demo or real): the demo never overwrites data."""
+    return bool(session.scalar(select(func.count()).select_from(Pump)))
+
+
+def _as_text(table: pd.DataFrame) -> pd.DataFrame:
+    return table.astype(object).where(table.notna(), "").astype(str)
+
+
+def build_demo(session: Session, seed: int = 2026, end=None, echo: Callable[[str], None] = print) -> str:
+    """Generate the invented plant and import it kind by kind, then analyse it; the caller commits."""
+    from fleet.services.analysis import refresh_analysis
+    from fleet.services.importing import import_table
+    from fleet.services.register import ensure_limit_defaults
+    from seed_demo.plant import generate
+
+    ensure_limit_defaults(session)
+    tables = generate(seed=seed, end=end)
+    for kind in LOAD_ORDER:
+        if kind in tables:
+            result = import_table(session, kind, _as_text(tables[kind]), source="import")
+            echo(f"  {result.summary()}")
+    summary = refresh_analysis(session)
+    return f"invented demo plant built (seed {seed}); {summary.describe()}"
