@@ -1,6 +1,7 @@
 """The invented demo plant: generated tables (seed_demo.plant) loaded through the same importer users use."""
 
 from collections.abc import Callable
+from datetime import timedelta
 
 import pandas as pd
 from sqlalchemy import func, select
@@ -8,6 +9,7 @@ from sqlalchemy.orm import Session
 
 from fleet.db.models import Pump
 from fleet.io.columns import LOAD_ORDER
+from fleet.timeutil import utcnow
 
 
 def demo_present(session: Session) -> bool:
@@ -27,6 +29,8 @@ def build_demo(session: Session, seed: int = 2026, end=None, echo: Callable[[str
     from seed_demo.plant import generate
 
     ensure_limit_defaults(session)
+    if end is None:  # yesterday's round is the last one: today's would still lie ahead of the clock
+        end = (utcnow() - timedelta(days=1)).date()
     tables = generate(seed=seed, end=end)
     for kind in LOAD_ORDER:
         if kind in tables:

@@ -1,0 +1,330 @@
+"""The fleet analysis: readings in, one row of figures, status and reasons per pump out.
+
+Order of work: refer readings -> place them in service intervals -> fit wear trends of every interval at
+once -> hours and dates to each limit -> oil, energy and fleet life figures -> status and service order.
+"""
+
+from dataclasses import dataclass, field
+
+import numpy as np
+import pandas as pd
+
+from fleet.trend.degradation import fit_degradation, not_enough_reason, summarise_fits
+from fleet.trend.energy import leakage_energy, typical_pressure_bar
+from fleet.trend.intervals import assign_intervals, interval_lives
+from fleet.trend.linear import t_quantile
+from fleet.trend.oil_condition import OIL_COLUMNS, oil_condition
+from fleet.trend.referral import refer_readings
+from fleet.trend.remaining_life import hours_per_day, hours_to_limits, limit_dates, limit_flows_lpm
+from fleet.trend.settings import AnalysisSettings
+from fleet.trend.status import assess_status, horizon_remaining_hours
+from fleet.trend.weibull import expected_overhauls, fit_fleet_priors, mean_residual_life
+
+KEYS = ["pump_id", "interval_no"]
+
+
+@dataclass
+class FleetAnalysis:
+    """results: one row per pump (index pump_id). readings: the referred per-reading frame. fits: one row per
+    pump interval. priors: one row per pump kind. intervals: every service interval. totals: fleet sums."""
+
+    results: pd.DataFrame
+    readings: pd.DataFrame
+    fits: pd.DataFrame
+    priors: pd.DataFrame
+    intervals: pd.DataFrame
+    totals: dict = field(default_factory=dict)
+    settings: AnalysisSettings = field(default_factory=AnalysisSettings)
+
+
+def _empty_readings() -> pd.DataFrame:
+    return pd.DataFrame(
+        {
+            "reading_id": pd.Series(dtype=np.int64),
+            "pump_id": pd.Series(dtype=np.int64),
+            "taken_at": pd.Series(dtype="datetime64[ns]"),
+            **{
+                c: pd.Series(dtype=float)
+                for c in [
+                    "hours",
+                    "pressure_bar",
+                    "speed_rpm",
+                    "flow_lpm",
+                    "drain_lpm",
+                    "temp_c",
+                    "stroke",
+                    "nu40",
+                    "nu100",
+                    "density15",
+                ]
+            },
+        }
+    )
+
+
+def _pump_table(pumps: pd.DataFrame) -> pd.DataFrame:
+    p = pumps.set_index("pump_id", drop=False)
+    rated_flow = (
+        pd.to_numeric(p["displacement_cc"], errors="coerce")
+        * pd.to_numeric(p["rated_speed_rpm"], errors="coerce")
+        / 1000.0
+    )
+    p = p.assign(rated_flow_lpm=rated_flow)
+    given = pd.to_numeric(p.get("max_flow_lpm"), errors="coerce") if "max_flow_lpm" in p else rated_flow * np.nan
+    p["max_flow_lpm"] = given.where(given.notna(), rated_flow)
+    no_port = ~p["case_drain"].astype("boolean").fillna(False).astype(bool)
+    p["drain_limit_pct"] = pd.to_numeric(p["drain_limit_pct"], errors="coerce").mask(no_port)
+    return p
+
+
+def _last_usable(referred: pd.DataFrame, current: pd.MultiIndex) -> pd.DataFrame:
+    """Per pump: last reading of its current interval (flag), last usable eta/drain, case drain jump ratio."""
+    idx = pd.MultiIndex.from_frame(referred[KEYS])
+    cur = referred[idx.isin(current)].sort_values(["pump_id", "taken_at"], kind="stable")
+    out = pd.DataFrame(index=pd.Index(current.get_level_values(0), name="pump_id"))
+    # groupby().last() would skip a None flag, so take the last row explicitly.
+    last_rows = cur.groupby("pump_id").tail(1).set_index("pump_id")
+    out["last_flag"] = last_rows["flag"].reindex(out.index)
+    good = cur[cur["flag"].isna()]
+    out["last_eta_v_ref"] = good.dropna(subset=["eta_v_ref"]).groupby("pump_id")["eta_v_ref"].last()
+    out["last_drain_pct_ref"] = good.dropna(subset=["drain_pct_ref"]).groupby("pump_id")["drain_pct_ref"].last()
+    drains = good.dropna(subset=["drain_ref_lpm"])
+    drains = drains[drains["drain_ref_lpm"] > 0]
+    is_last = drains.groupby("pump_id").cumcount(ascending=False) == 0
+    earlier = drains[~is_last].groupby("pump_id")["drain_ref_lpm"]
+    median_before = earlier.median().where(earlier.size() >= 3)
+    latest = drains[is_last].set_index("pump_id")["drain_ref_lpm"]
+    out["drain_jump_ratio"] = (latest / median_before.reindex(latest.index)).reindex(out.index)
+    return out
+
+
+def _past_margin(fits: pd.DataFrame, limits: dict[str, np.ndarray], last: pd.DataFrame, pumps: pd.DataFrame):
+    """How far beyond its limits a pump is, ln(value / limit) of the worst limit (fitted, else last reading)."""
+    with np.errstate(divide="ignore", invalid="ignore"):
+        slip = np.log(fits["slip_current_lpm"].to_numpy(float) / limits["slip"])
+        drain = np.log(fits["drain_current_lpm"].to_numpy(float) / limits["drain"])
+        raw_slip = np.log((1.0 - last["last_eta_v_ref"].to_numpy(float)) / (1.0 - pumps["eta_v_limit"].to_numpy(float)))
+        raw_drain = np.log(last["last_drain_pct_ref"].to_numpy(float) / pumps["drain_limit_pct"].to_numpy(float))
+    slip = np.where(fits["slip_enough_data"].to_numpy(bool), slip, raw_slip)
+    drain = np.where(fits["drain_enough_data"].to_numpy(bool), drain, raw_drain)
+    return np.fmax(slip, drain)
+
+
+def analyze_fleet(
+    pumps: pd.DataFrame,
+    readings: pd.DataFrame,
+    events: pd.DataFrame | None,
+    samples: pd.DataFrame | None,
+    flow_points: pd.DataFrame | None = None,
+    *,
+    now,
+    settings: AnalysisSettings | None = None,
+    priors: pd.DataFrame | None = None,
+) -> FleetAnalysis:
+    """Analyse every pump. `now` is the moment of the analysis (overdue readings, late lab results, horizon).
+
+    priors, when given, is used as is (no refit of the fleet Weibull), so a single pump can be re-analysed.
+    """
+    s = settings or AnalysisSettings()
+    now = pd.Timestamp(now)
+    pump_tab = _pump_table(pumps)
+    readings = _empty_readings() if readings is None or len(readings) == 0 else readings
+
+    referred = refer_readings(readings, pumps, flow_points, s)
+    referred, intervals = assign_intervals(referred, events)
+    intervals = intervals[intervals["pump_id"].isin(pump_tab.index)].reset_index(drop=True)
+
+    # Wear trends and remaining life, every pump interval at once.
+    fits = fit_degradation(referred, s)
+    fit_pump = pump_tab.reindex(fits["pump_id"])
+    fits = summarise_fits(fits, fit_pump["rated_flow_lpm"].to_numpy(float), fit_pump["max_flow_lpm"].to_numpy(float), s)
+    limits = limit_flows_lpm(
+        fit_pump["eta_v_limit"], fit_pump["drain_limit_pct"], fit_pump["rated_flow_lpm"], fit_pump["max_flow_lpm"]
+    )
+    fits = pd.concat([fits, hours_to_limits(fits, limits, s)], axis=1)
+    t = t_quantile(s.confidence, fits["slip_dof"].to_numpy(float))
+    with np.errstate(invalid="ignore"):
+        fits["slip_b_significant"] = fits["slip_b"].to_numpy(float) > t * np.sqrt(fits["slip_var_b"].to_numpy(float))
+    fkeys = pd.MultiIndex.from_frame(fits[KEYS])
+    fits["hours_per_day"] = hours_per_day(referred, s).reindex(fkeys).to_numpy()
+    fits["typical_pressure_bar"] = typical_pressure_bar(referred, s.typical_window_days).reindex(fkeys).to_numpy()
+
+    # One row per pump: its current interval.
+    current_iv = intervals[intervals["is_current"]].set_index("pump_id").reindex(pump_tab.index)
+    current_iv["interval_no"] = current_iv["interval_no"].fillna(0).astype(np.int64)
+    cur_keys = pd.MultiIndex.from_arrays([pump_tab.index, current_iv["interval_no"]])
+    cur = fits.set_index(KEYS).reindex(cur_keys)
+    cur.index = pump_tab.index
+    cur_limits = {
+        q: limit_flows_lpm(
+            pump_tab["eta_v_limit"], pump_tab["drain_limit_pct"], pump_tab["rated_flow_lpm"], pump_tab["max_flow_lpm"]
+        )[q]
+        for q in ("slip", "drain")
+    }
+    for col in (
+        "slip_enough_data",
+        "drain_enough_data",
+        "slip_past",
+        "drain_past",
+        "slip_b_significant",
+        "slip_upper_open",
+        "drain_upper_open",
+        "upper_bound_open",
+    ):
+        cur[col] = cur[col].astype("boolean").fillna(False).astype(bool)
+    last = _last_usable(referred, cur_keys)
+    last.index = pump_tab.index
+
+    res = pd.DataFrame(index=pump_tab.index)
+    res["pump"] = pump_tab["pump"]
+    res["kind"] = pump_tab["kind"]
+    for col in (
+        "eta_v_ref",
+        "eta_v_decline_per_1000h",
+        "drain_pct_ref",
+        "hours_to_limit",
+        "hours_to_limit_low",
+        "hours_to_limit_high",
+        "upper_bound_open",
+        "governing_limit",
+        "hours_per_day",
+    ):
+        res[col] = cur[col]
+    res["governing_limit"] = res["governing_limit"].astype(object).where(res["governing_limit"].notna(), None)
+    res["confidence"] = np.where(np.isfinite(res["hours_to_limit_low"]), s.confidence, np.nan)
+    res["n_points"] = cur["slip_n_points"].fillna(0).astype(np.int64)
+    res["n_drain_points"] = cur["drain_n_points"].fillna(0).astype(np.int64)
+    res["slip_enough_data"] = cur["slip_enough_data"]
+    res["drain_enough_data"] = cur["drain_enough_data"]
+    res["slip_b_significant"] = cur["slip_b_significant"]
+    res["slip_past"], res["drain_past"] = cur["slip_past"], cur["drain_past"]
+    for q, name in (("slip", "eta_v"), ("drain", "case_drain")):
+        res[f"{name}_hours_to_limit"] = cur[f"{q}_hours_to_limit"]
+        res[f"{name}_hours_low"] = cur[f"{q}_hours_low"]
+        res[f"{name}_hours_high"] = cur[f"{q}_hours_high"]
+        res[f"{name}_note"] = cur[f"{q}_note"]
+    res["interval_no"] = current_iv["interval_no"]
+    res["interval_start"] = pd.to_datetime(current_iv["start_at"])
+    res["interval_start_kind"] = current_iv["start_kind"]
+    res["interval_hours"] = cur["current_hours"]
+    all_last = referred.groupby("pump_id")["taken_at"].max()
+    res["last_reading_at"] = pd.to_datetime(all_last.reindex(pump_tab.index))
+    res["days_since_reading"] = (now - res["last_reading_at"]).dt.total_seconds() / 86400.0
+    res["installed"] = pump_tab["machine_id"].notna() if "machine_id" in pump_tab else True
+    res = res.join(last)
+    for col in (
+        "eta_v_limit",
+        "drain_limit_pct",
+        "oil_temp_max_c",
+        "oil_temp_min_c",
+        "reading_interval_days",
+        "planning_horizon_weeks",
+        "rated_flow_lpm",
+        "max_flow_lpm",
+        "currency",
+    ):
+        res[col] = pump_tab[col] if col in pump_tab else np.nan
+
+    # Calendar dates, from the last reading at the pump's own hours per day.
+    for src, dst in (
+        ("hours_to_limit", "limit_date"),
+        ("hours_to_limit_low", "limit_date_low"),
+        ("hours_to_limit_high", "limit_date_high"),
+    ):
+        res[dst] = limit_dates(res["last_reading_at"], res[src], res["hours_per_day"]).to_numpy()
+
+    res["past_margin"] = _past_margin(cur, cur_limits, last, pump_tab)
+    res["data_note"] = _data_note(res, current_iv, cur, s)
+
+    # Oil condition and the cost of leakage.
+    res = res.join(
+        oil_condition(pump_tab.reset_index(drop=True), referred, samples, now, s)[
+            [c for c in OIL_COLUMNS if c != "cleanliness_target"]
+        ]
+    )
+    res["cleanliness_target"] = pump_tab["cleanliness_target"]
+    with np.errstate(over="ignore"):
+        slip_start = np.exp(cur["slip_a"].to_numpy(float))
+    slip_now = np.where(cur["slip_enough_data"], cur["slip_current_lpm"], np.nan)
+    energy = leakage_energy(
+        slip_now,
+        np.where(cur["slip_enough_data"], slip_start, np.nan),
+        pump_tab["rated_pressure_bar"],
+        cur["typical_pressure_bar"],
+        cur["hours_per_day"],
+        pump_tab["motor_efficiency"],
+        pump_tab["tariff_per_kwh"],
+        pump_tab["overhaul_cost"] if "overhaul_cost" in pump_tab else np.nan,
+    )
+    energy.index = pump_tab.index
+    res = res.join(energy)
+
+    # Fleet life figures: the separate, labelled prior.
+    lives = interval_lives(intervals)
+    kind_of = pump_tab["kind"]
+    fleet_priors = fit_fleet_priors(lives, kind_of, s.min_weibull_failures) if priors is None else priors.copy()
+    age = np.where(
+        current_iv["interval_no"] == 0, current_iv["last_hours"], current_iv["last_hours"] - current_iv["start_hours"]
+    )
+    kind_prior = fleet_priors.reindex(kind_of.to_numpy())
+    res["age_hours"] = age
+    res["prior_hours_to_overhaul"] = mean_residual_life(
+        age, kind_prior["beta"].to_numpy(float), kind_prior["alpha"].to_numpy(float)
+    )
+    res["prior_b10_hours"] = kind_prior["b10_hours"].to_numpy(float)
+    _, horizon_h = horizon_remaining_hours(res, now)
+    expected = expected_overhauls(age, horizon_h, kind_of.to_numpy(), fleet_priors)
+    fleet_priors["expected_overhauls_in_horizon"] = expected.reindex(fleet_priors.index)
+
+    res = res.join(assess_status(res, now, s))
+    res.index.name = "pump_id"
+    totals = {
+        "pumps": int(len(res)),
+        "by_status": {k: int(v) for k, v in res["status"].value_counts().items()},
+        "energy_cost_per_year": {
+            str(k): float(v) for k, v in res.groupby(res["currency"].fillna(""))["energy_cost_per_year"].sum().items()
+        },
+        "leakage_kw": float(np.nansum(res["leakage_kw"])),
+    }
+    first_cols = ["rank", "pump", "kind", "status", "reasons"]
+    res = res[first_cols + [c for c in res.columns if c not in first_cols]]
+    return FleetAnalysis(res, referred, fits, fleet_priors, intervals, totals, s)
+
+
+def _data_note(res: pd.DataFrame, current_iv: pd.DataFrame, cur: pd.DataFrame, s: AnalysisSettings) -> np.ndarray:
+    """The 'not enough data' sentence of each pump that has too little for its own trend, else None."""
+    note = not_enough_reason(cur["slip_n_points"], cur["slip_span_hours"], s, "volumetric efficiency")
+    no_readings = res["last_reading_at"].isna().to_numpy()
+    empty_interval = (current_iv["n_readings"].fillna(0).to_numpy() == 0) & ~no_readings
+    since = [
+        f"Not enough data: no readings since the {k} on {pd.Timestamp(d):%Y-%m-%d}." if e else None
+        for e, k, d in zip(empty_interval, current_iv["start_kind"], current_iv["start_at"], strict=True)
+    ]
+    note = np.where(empty_interval, np.array(since, dtype=object), note)
+    return np.where(no_readings, "Not enough data: no readings yet.", note)
+
+
+def _plain(value):
+    """One value as JSON-ready Python: NaN/NaT/inf -> None, dates -> 'YYYY-MM-DD', numpy -> python."""
+    if isinstance(value, list | tuple | np.ndarray):
+        return [_plain(v) for v in value]
+    if isinstance(value, dict):
+        return {str(k): _plain(v) for k, v in value.items()}
+    if value is None or value is pd.NaT:
+        return None
+    if isinstance(value, pd.Timestamp | np.datetime64):
+        ts = pd.Timestamp(value)
+        return None if pd.isna(ts) else ts.strftime("%Y-%m-%d")
+    if isinstance(value, np.generic):
+        value = value.item()
+    if isinstance(value, float) and not np.isfinite(value):
+        return None
+    if isinstance(value, str | bool | int | float):
+        return value
+    return None if pd.isna(value) else str(value)
+
+
+def results_to_records(results: pd.DataFrame) -> list[dict]:
+    """Results rows as JSON-ready dicts (pump_id included)."""
+    frame = results.reset_index()
+    return [{str(k): _plain(v) for k, v in row.items()} for row in frame.to_dict(orient="records")]

@@ -1,0 +1,157 @@
+"""Service intervals: from a pump's first reading or an overhaul/replacement to the next one.
+
+Trends never cross an interval start, because an overhaul resets the clearances the trend measures.
+"""
+
+import numpy as np
+import pandas as pd
+
+from fleet.kinds import RESETS_INTERVAL
+
+# Ordering key = day number * _DAY_SLOT + hour-meter value, so that on the day of an event the hour meter
+# decides which side of it a reading falls. _DAY_SLOT exceeds any hour-meter value (114 years of running).
+_DAY_SLOT = 1.0e6
+_END_OF_DAY = _DAY_SLOT - 1.0
+
+INTERVAL_COLUMNS = [
+    "pump_id",
+    "interval_no",
+    "start_at",
+    "start_kind",
+    "start_hours",
+    "end_at",
+    "end_kind",
+    "end_hours",
+    "n_readings",
+    "first_hours",
+    "last_hours",
+    "first_reading_at",
+    "last_reading_at",
+    "is_current",
+]
+
+
+def _day_number(times: pd.Series) -> np.ndarray:
+    days = pd.to_datetime(times).dt.normalize().to_numpy(dtype="datetime64[D]")
+    return days.astype(np.int64).astype(float)
+
+
+def _order_key(times: pd.Series, hours: pd.Series, missing_hours: float) -> np.ndarray:
+    h = pd.to_numeric(hours, errors="coerce").to_numpy(dtype=float)
+    h = np.where(np.isfinite(h), np.clip(h, 0.0, _END_OF_DAY), missing_hours)
+    return _day_number(times) * _DAY_SLOT + h
+
+
+def reset_events(events: pd.DataFrame | None) -> pd.DataFrame:
+    """The events that start a new interval, numbered 1.. per pump in time order."""
+    cols = ["pump_id", "date", "hours", "kind"]
+    if events is None or len(events) == 0:
+        events = pd.DataFrame(
+            {
+                "pump_id": pd.Series(dtype=np.int64),
+                "date": pd.Series(dtype="datetime64[ns]"),
+                "hours": pd.Series(dtype=float),
+                "kind": pd.Series(dtype=object),
+            }
+        )
+    resets = events.loc[events["kind"].isin(RESETS_INTERVAL), cols].copy()
+    resets["date"] = pd.to_datetime(resets["date"])
+    # An event without hours applies to every reading of its day ("at or before it").
+    resets["key"] = _order_key(resets["date"], resets["hours"], missing_hours=-1.0)
+    resets = resets.sort_values(["pump_id", "key"], kind="stable").reset_index(drop=True)
+    resets["interval_no"] = resets.groupby("pump_id").cumcount().astype(np.int64) + 1
+    return resets
+
+
+def assign_intervals(readings: pd.DataFrame, events: pd.DataFrame | None) -> tuple[pd.DataFrame, pd.DataFrame]:
+    """Place every reading in its pump's service interval.
+
+    Returns (readings, intervals). readings gains interval_no (0 = from the first reading, k = after the
+    k-th reset event), interval_start_at, interval_start_hours, interval_hours (hours since the interval
+    start) and age_hours (hours since the last reset; for interval 0 the hour meter itself, taken to count
+    from new). intervals has one row per pump interval (INTERVAL_COLUMNS), including intervals opened by an
+    event that have no readings yet; is_current marks each pump's latest one.
+    """
+    resets = reset_events(events)
+    r = readings.copy()
+    r["taken_at"] = pd.to_datetime(r["taken_at"])
+    r["_key"] = _order_key(r["taken_at"], r["hours"], missing_hours=_END_OF_DAY)
+    r["_row"] = np.arange(len(r))
+    r = r.sort_values("_key", kind="stable")
+    placed = pd.merge_asof(
+        r[["_key", "_row", "pump_id"]],
+        resets[["key", "pump_id", "interval_no"]].sort_values("key", kind="stable"),
+        left_on="_key",
+        right_on="key",
+        by="pump_id",
+        direction="backward",
+        allow_exact_matches=True,
+    )
+    r["interval_no"] = placed.set_index("_row")["interval_no"].reindex(r["_row"]).fillna(0).astype(np.int64).values
+    r = r.sort_values("_row").drop(columns=["_key", "_row"])
+
+    hours = pd.to_numeric(r["hours"], errors="coerce")
+    grouped = r.assign(_hours=hours).groupby(["pump_id", "interval_no"])
+    from_readings = pd.DataFrame(
+        {
+            "n_readings": grouped.size(),
+            "first_hours": grouped["_hours"].min(),
+            "last_hours": grouped["_hours"].max(),
+            "first_reading_at": grouped["taken_at"].min(),
+            "last_reading_at": grouped["taken_at"].max(),
+        }
+    )
+
+    from_events = resets.set_index(["pump_id", "interval_no"])[["date", "kind", "hours"]].rename(
+        columns={"date": "start_at", "kind": "start_kind", "hours": "event_hours"}
+    )
+    intervals = from_readings.join(from_events, how="outer")
+    intervals["n_readings"] = intervals["n_readings"].fillna(0).astype(np.int64)
+    initial = intervals.index.get_level_values("interval_no") == 0
+    intervals["start_at"] = pd.to_datetime(intervals["start_at"]).where(~initial, intervals["first_reading_at"])
+    intervals["start_kind"] = intervals["start_kind"].astype(object).where(~initial, "first_reading")
+    # The event's hour-meter value starts the clock unless the readings after it show a fresh meter.
+    event_hours = intervals["event_hours"]
+    use_event = event_hours.notna() & ~(event_hours > intervals["first_hours"])
+    intervals["start_hours"] = np.where(use_event, event_hours, intervals["first_hours"])
+    intervals = intervals.reset_index().sort_values(["pump_id", "interval_no"], kind="stable")
+
+    nxt = intervals.groupby("pump_id").shift(-1)
+    intervals["end_at"] = pd.to_datetime(nxt["start_at"])
+    intervals["end_kind"] = nxt["start_kind"]
+    intervals["end_hours"] = nxt["event_hours"]
+    intervals["is_current"] = intervals["end_at"].isna()
+    intervals = intervals[INTERVAL_COLUMNS].reset_index(drop=True)
+
+    start = intervals.set_index(["pump_id", "interval_no"])[["start_at", "start_hours"]]
+    idx = pd.MultiIndex.from_arrays([r["pump_id"], r["interval_no"]])
+    r["interval_start_at"] = pd.to_datetime(start["start_at"].reindex(idx).to_numpy())
+    r["interval_start_hours"] = start["start_hours"].reindex(idx).to_numpy(dtype=float)
+    r["interval_hours"] = hours.to_numpy(dtype=float) - r["interval_start_hours"].to_numpy()
+    r["age_hours"] = np.where(r["interval_no"].to_numpy() == 0, hours.to_numpy(dtype=float), r["interval_hours"])
+    return r, intervals
+
+
+def interval_lives(intervals: pd.DataFrame) -> pd.DataFrame:
+    """Running hours lived by each interval, for the fleet life statistics.
+
+    failed: the interval ended at a reset event. life_hours: age at the end (the event's hours, else the
+    last reading's) or, for the running interval, at its last reading. entry_hours: age when we started
+    watching it (interval 0 enters at its first reading's meter value: left truncation; a reset interval at 0).
+    """
+    iv = intervals.copy()
+    initial = iv["interval_no"].to_numpy() == 0
+    zero = np.where(initial, 0.0, iv["start_hours"].to_numpy(dtype=float))
+    end_meter = np.where(iv["is_current"], iv["last_hours"], iv["end_hours"].fillna(iv["last_hours"]))
+    out = pd.DataFrame(
+        {
+            "pump_id": iv["pump_id"],
+            "interval_no": iv["interval_no"],
+            "entry_hours": np.where(initial, iv["first_hours"], 0.0),
+            "life_hours": end_meter.astype(float) - zero,
+            "failed": ~iv["is_current"].to_numpy(dtype=bool),
+        }
+    )
+    usable = np.isfinite(out["life_hours"]) & np.isfinite(out["entry_hours"]) & (out["life_hours"] > 0)
+    usable &= out["life_hours"] >= out["entry_hours"]
+    return out[usable].reset_index(drop=True)

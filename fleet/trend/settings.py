@@ -1,0 +1,43 @@
+"""Tunable settings of the trend engine, with where each default comes from."""
+
+from dataclasses import dataclass
+
+
+@dataclass(frozen=True)
+class AnalysisSettings:
+    """Knobs of one fleet analysis. Defaults are our own choices unless a comment names a source."""
+
+    # Two-sided confidence level of the remaining-life bounds and chart bands.
+    confidence: float = 0.90
+    # Minimum data for a pump's own trend: usable readings and the running hours they span.
+    min_points: int = 4
+    min_span_hours: float = 300.0
+    # Flow-meter noise, one standard deviation as a fraction of the reading (a typical turbine or gear meter).
+    flow_noise_fraction: float = 0.005
+    # Case drain meter noise as a fraction of the reading (small-flow meters and timed buckets are cruder).
+    drain_noise_fraction: float = 0.02
+    # Robust fit: Huber tuning constant (95 % efficiency under normal errors, Huber 1964) and IRLS passes.
+    huber_k: float = 1.345
+    irls_iterations: int = 8
+    # Slip below this fraction of theoretical flow is floored before the log (noise can push flow above theory).
+    slip_floor_fraction: float = 0.001
+
+    # Plausibility of a reading (outside: flagged, kept, not fitted).
+    max_flow_over_theoretical: float = 1.05
+    speed_ratio_range: tuple[float, float] = (0.3, 1.3)
+    max_pressure_ratio: float = 1.5
+    temp_range_c: tuple[float, float] = (-30.0, 130.0)
+
+    # Calendar: hours per day from the hour meter over this many recent days (else the whole interval).
+    hours_per_day_window_days: float = 120.0
+    # Typical working pressure and oil temperature: median over this many recent days of the interval.
+    typical_window_days: float = 90.0
+
+    # Watch rules.
+    fast_decline_per_1000h: float = 0.02  # eta_v,ref fraction lost per 1000 h; our choice (2 points)
+    drain_jump_ratio: float = 2.0  # a doubling of case drain means act now (common practice, no source)
+    water_limit_ppm: float = 500.0  # mineral oil, common practice, no source
+    lab_late_days: float = 14.0  # sampled this long ago and still not reported
+
+    # Fleet prior (Weibull of hours between overhauls).
+    min_weibull_failures: int = 3

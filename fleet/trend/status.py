@@ -1,0 +1,257 @@
+"""Status of every pump in plain words, each backed by full-sentence reasons, and the service-list order.
+
+past_limit: a limit is crossed now. due_soon: a limit is expected inside the planning horizon (own trend).
+watch: something needs a look (fast decline, case drain jump, oil, overdue reading or lab result, too
+little data). healthy: none of these, said with the figures that show it.
+"""
+
+import numpy as np
+import pandas as pd
+
+from fleet.trend.referral import NO_LEAKAGE_MEASURED
+from fleet.trend.settings import AnalysisSettings
+
+STATUS_ORDER = ("past_limit", "due_soon", "watch", "healthy")
+LIMIT_WORDS = {"eta_v": "volumetric efficiency", "case_drain": "case drain"}
+FALLBACK_HOURS_PER_DAY = 24.0  # with no hour-meter history, assume continuous running (the earliest date)
+
+
+def _col(frame: pd.DataFrame, name: str, default=np.nan) -> pd.Series:
+    return frame[name] if name in frame else pd.Series(default, index=frame.index)
+
+
+def _num(frame: pd.DataFrame, name: str) -> np.ndarray:
+    return pd.to_numeric(_col(frame, name), errors="coerce").to_numpy(dtype=float)
+
+
+def _flag(frame: pd.DataFrame, name: str) -> np.ndarray:
+    return _col(frame, name, False).astype("boolean").fillna(False).to_numpy(dtype=bool)
+
+
+def _date(value) -> str:
+    return "no date" if pd.isna(value) else pd.Timestamp(value).strftime("%Y-%m-%d")
+
+
+def _sentences(mask: np.ndarray, make, *columns) -> list:
+    """make(*values) for the masked pumps, None elsewhere (one string per pump, no loop per reading)."""
+    return [make(*vals) if m else None for m, *vals in zip(mask, *columns, strict=True)]
+
+
+def horizon_remaining_hours(results: pd.DataFrame, now) -> tuple[np.ndarray, np.ndarray]:
+    """(hours left from now to the governing limit, hours in the planning horizon) per pump."""
+    per_day = _num(results, "hours_per_day")
+    per_day = np.where(np.isfinite(per_day) & (per_day > 0), per_day, FALLBACK_HOURS_PER_DAY)
+    last_at = pd.to_datetime(_col(results, "last_reading_at", pd.NaT))
+    since_days = ((pd.Timestamp(now) - last_at).dt.total_seconds() / 86400.0).to_numpy(dtype=float)
+    since_days = np.where(np.isfinite(since_days), np.maximum(since_days, 0.0), 0.0)
+    left = _num(results, "hours_to_limit") - per_day * since_days
+    horizon = _num(results, "planning_horizon_weeks") * 7.0 * per_day
+    return left, horizon
+
+
+def assess_status(results: pd.DataFrame, now, settings: AnalysisSettings) -> pd.DataFrame:
+    """status, reasons (list of sentences) and rank (1..N, the service-list order) for every pump."""
+    r = results
+    eta, eta_lim = _num(r, "eta_v_ref"), _num(r, "eta_v_limit")
+    drain, drain_lim = _num(r, "drain_pct_ref"), _num(r, "drain_limit_pct")
+    last_eta, last_drain = _num(r, "last_eta_v_ref"), _num(r, "last_drain_pct_ref")
+    trend_slip, trend_drain = _flag(r, "slip_enough_data"), _flag(r, "drain_enough_data")
+
+    # past_limit: the fitted value now, or with no trend the last usable reading, beyond a limit.
+    slip_past = _flag(r, "slip_past")
+    drain_past = _flag(r, "drain_past")
+    raw_slip_past = ~trend_slip & (last_eta <= eta_lim)
+    raw_drain_past = ~trend_drain & (last_drain >= drain_lim)
+    past = slip_past | drain_past | raw_slip_past | raw_drain_past
+    reasons_past = [
+        _sentences(
+            slip_past,
+            lambda e, lim: (
+                f"Volumetric efficiency at reference is {e:.3f} by its trend, at or below its limit {lim:.2f}."
+            ),
+            eta,
+            eta_lim,
+        ),
+        _sentences(
+            drain_past,
+            lambda d, lim: (
+                f"Case drain at reference is {d:.1f} % of max flow by its trend, at or above its limit {lim:.1f} %."
+            ),
+            drain,
+            drain_lim,
+        ),
+        _sentences(
+            raw_slip_past,
+            lambda e, lim: (
+                f"The last usable reading gives a volumetric efficiency at reference "
+                f"of {e:.3f}, at or below the limit {lim:.2f} (too few readings for a trend)."
+            ),
+            last_eta,
+            eta_lim,
+        ),
+        _sentences(
+            raw_drain_past,
+            lambda d, lim: (
+                f"The last usable reading gives a case drain at reference of "
+                f"{d:.1f} % of max flow, at or above the limit {lim:.1f} % (too few readings for a trend)."
+            ),
+            last_drain,
+            drain_lim,
+        ),
+    ]
+
+    # due_soon: the governing limit expected inside the planning horizon, by the pump's own trend.
+    left, horizon = horizon_remaining_hours(r, now)
+    due = ~past & np.isfinite(left) & (left <= horizon)
+    governing = _col(r, "governing_limit", None)
+    reasons_due = [
+        _sentences(
+            due,
+            lambda g, h, d, dl, dh, open_, w: (
+                f"The {LIMIT_WORDS.get(g, g)} limit is expected in about {h:,.0f} running hours, around {_date(d)} "
+                f"({settings.confidence:.0%} bounds {_date(dl)} to "
+                f"{'open (the trend is not yet certain)' if open_ else _date(dh)}), inside the {w:.0f}-week plan."
+            ),
+            governing,
+            _num(r, "hours_to_limit"),
+            _col(r, "limit_date", pd.NaT),
+            _col(r, "limit_date_low", pd.NaT),
+            _col(r, "limit_date_high", pd.NaT),
+            _flag(r, "upper_bound_open"),
+            _num(r, "planning_horizon_weeks"),
+        )
+    ]
+
+    # watch rules.
+    decline = _num(r, "eta_v_decline_per_1000h")
+    fast = trend_slip & _flag(r, "slip_b_significant") & (decline > settings.fast_decline_per_1000h)
+    jump = _num(r, "drain_jump_ratio") >= settings.drain_jump_ratio
+    hot, cold = _flag(r, "oil_hot"), _flag(r, "oil_cold")
+    steps = _num(r, "cleanliness_steps_over")
+    dirty = steps > 0
+    water = _flag(r, "water_high")
+    lab_late = _flag(r, "lab_late")
+    since = _num(r, "days_since_reading")
+    # A pump removed to stores has no rounds to miss.
+    installed = _col(r, "installed", True).astype("boolean").fillna(True).to_numpy(dtype=bool)
+    overdue = (since > _num(r, "reading_interval_days")) & installed
+    window = _col(r, "viscosity_window", None).to_numpy(dtype=object)
+    visc_bad = np.isin(window, ["too_thin", "too_thick"])
+    last_flag = _col(r, "last_flag", None).to_numpy(dtype=object)
+    flagged = np.array([isinstance(f, str) and f != NO_LEAKAGE_MEASURED for f in last_flag], dtype=bool)
+    notes = _col(r, "data_note", None).to_numpy(dtype=object)
+    few = np.array([isinstance(n, str) for n in notes], dtype=bool)
+    reasons_watch = [
+        _sentences(
+            fast,
+            lambda d: (
+                f"Volumetric efficiency is falling fast: {100 * d:.1f} points per 1000 h "
+                f"(watch above {100 * settings.fast_decline_per_1000h:.1f})."
+            ),
+            decline,
+        ),
+        _sentences(
+            jump,
+            lambda x: (
+                f"Case drain jumped to {x:.1f} times the median of this interval's earlier "
+                "readings: check the pump now."
+            ),
+            _num(r, "drain_jump_ratio"),
+        ),
+        _sentences(
+            hot,
+            lambda t, m: f"Oil at {t:.0f} degC on the last reading, above the {m:.0f} degC limit.",
+            _num(r, "oil_temp_c"),
+            _num(r, "oil_temp_max_c"),
+        ),
+        _sentences(
+            cold,
+            lambda t, m: f"Oil at {t:.0f} degC on the last reading, below the {m:.0f} degC minimum.",
+            _num(r, "oil_temp_c"),
+            _num(r, "oil_temp_min_c"),
+        ),
+        _sentences(
+            dirty,
+            lambda c, n, t: (
+                f"The latest oil sample, {c}, is {n:.0f} step{'s' if n != 1 else ''} dirtier than the {t} target."
+            ),
+            _col(r, "cleanliness_code", None),
+            steps,
+            _col(r, "cleanliness_target", None),
+        ),
+        _sentences(
+            water,
+            lambda w: f"Water in the oil is {w:.0f} ppm, above {settings.water_limit_ppm:.0f} ppm.",
+            _num(r, "water_ppm"),
+        ),
+        _sentences(
+            lab_late,
+            lambda d: f"The oil sample taken {_date(d)} has no lab result after {settings.lab_late_days:.0f} days.",
+            _col(r, "lab_pending_since", pd.NaT),
+        ),
+        _sentences(
+            overdue,
+            lambda s, n: f"Last reading {s:.0f} days ago; readings are due every {n:.0f} days.",
+            since,
+            _num(r, "reading_interval_days"),
+        ),
+        _sentences(
+            visc_bad,
+            lambda nu, t: (
+                f"Oil viscosity at its typical {t:.0f} degC is {nu:.0f} mm2/s, outside the pump's working window."
+            ),
+            _num(r, "viscosity_typical_cst"),
+            _num(r, "oil_temp_typical_c"),
+        ),
+        _sentences(flagged, lambda f: f"The last reading could not be referred: {f}.", last_flag),
+        _sentences(few, lambda n: n, notes),
+    ]
+    watch = ~past & ~due & (fast | jump | hot | cold | dirty | water | lab_late | overdue | visc_bad | flagged | few)
+
+    status = np.select([past, due, watch], ["past_limit", "due_soon", "watch"], default="healthy")
+    healthy = status == "healthy"
+    reasons_healthy = [
+        _sentences(
+            healthy,
+            lambda e, g, h, w: (
+                f"eta_v,ref {e:.2f}, "
+                + (
+                    f"no limit expected within {w:.0f} weeks ({LIMIT_WORDS.get(g, g)} in about {h:,.0f} h)."
+                    if isinstance(g, str)
+                    else f"trend flat: no limit expected within {w:.0f} weeks."
+                )
+            ),
+            eta,
+            governing,
+            _num(r, "hours_to_limit"),
+            _num(r, "planning_horizon_weeks"),
+        )
+    ]
+    all_reasons = reasons_past + reasons_due + reasons_watch + reasons_healthy
+    reasons = [[s for s in row if s is not None] for row in zip(*all_reasons, strict=True)] if len(r) else []
+
+    rank = service_rank(
+        pd.DataFrame({"status": status}, index=r.index).join(
+            r[[c for c in ("past_margin", "limit_date_low", "hours_to_limit", "pump") if c in r]]
+        )
+    )
+    return pd.DataFrame({"status": status, "reasons": reasons, "rank": rank.to_numpy()}, index=r.index)
+
+
+def service_rank(frame: pd.DataFrame) -> pd.Series:
+    """Service-list order 1..N (index as frame's): past_limit first, furthest past first (past_margin, the
+    log of value over limit); then due_soon by the lower-bound date (how soon and how sure); then watch,
+    then healthy, each by hours to limit; the pump's name breaks ties. Works on stored records too."""
+    status = _col(frame, "status", "healthy").astype(str).to_numpy()
+    order = pd.DataFrame(
+        {
+            "group": pd.Categorical(status, categories=list(STATUS_ORDER), ordered=True).codes,
+            "past_margin": -np.nan_to_num(_num(frame, "past_margin"), nan=-np.inf),
+            "date_low": pd.to_datetime(_col(frame, "limit_date_low", pd.NaT)).where(status == "due_soon"),
+            "hours": np.nan_to_num(_num(frame, "hours_to_limit"), nan=np.inf),
+            "pump": _col(frame, "pump", "").astype(str).to_numpy(),
+        },
+        index=frame.index,
+    )
+    order = order.sort_values(["group", "past_margin", "date_low", "hours", "pump"], na_position="last", kind="stable")
+    return pd.Series(np.arange(1, len(order) + 1), index=order.index, name="rank").reindex(frame.index)

@@ -1,0 +1,81 @@
+"""Service intervals: trends restart at an overhaul or replacement, never at other work."""
+
+import numpy as np
+import pandas as pd
+
+from fleet.trend.intervals import assign_intervals, interval_lives
+
+
+def _readings(pump_id, days, hours):
+    return pd.DataFrame(
+        {
+            "reading_id": np.arange(len(days)) + 100 * pump_id,
+            "pump_id": pump_id,
+            "taken_at": pd.Timestamp("2025-01-01 08:00") + pd.to_timedelta(days, unit="D"),
+            "hours": np.asarray(hours, dtype=float),
+        }
+    )
+
+
+def _events(rows):
+    return pd.DataFrame(rows, columns=["pump_id", "date", "hours", "kind", "cost"]).astype(
+        {"date": "datetime64[ns]", "hours": float}
+    )
+
+
+def test_overhaul_starts_a_new_interval_and_other_work_does_not():
+    r = _readings(1, [0, 10, 20, 30, 40], [1000, 1100, 1200, 1300, 1400])
+    ev = _events(
+        [
+            (1, "2025-01-16", 1150.0, "filter_change", np.nan),
+            (1, "2025-01-26", 1250.0, "overhaul", 3000.0),
+        ]
+    )
+    placed, intervals = assign_intervals(r, ev)
+    assert list(placed["interval_no"]) == [0, 0, 0, 1, 1]
+    assert list(placed["interval_hours"]) == [0.0, 100.0, 200.0, 50.0, 150.0]
+    assert list(placed["age_hours"]) == [1000.0, 1100.0, 1200.0, 50.0, 150.0]
+    assert list(intervals["start_kind"]) == ["first_reading", "overhaul"]
+    assert list(intervals["is_current"]) == [False, True]
+
+
+def test_same_day_event_hours_decide_the_side():
+    # Two readings on the overhaul day: the one before the event's hour-meter value stays in the old interval.
+    r = _readings(1, [0, 10, 10, 20], [1000, 1100, 1120, 1200])
+    ev = _events([(1, "2025-01-11", 1110.0, "replacement", np.nan)])
+    placed, _ = assign_intervals(r, ev)
+    assert list(placed["interval_no"]) == [0, 0, 1, 1]
+    # Without event hours the event counts from the start of its day ("at or before it").
+    placed, _ = assign_intervals(r, _events([(1, "2025-01-11", np.nan, "replacement", np.nan)]))
+    assert list(placed["interval_no"]) == [0, 1, 1, 1]
+    assert list(placed["interval_hours"]) == [0.0, 0.0, 20.0, 100.0]
+
+
+def test_event_after_last_reading_opens_an_empty_current_interval():
+    r = _readings(1, [0, 10], [10, 50])
+    _, intervals = assign_intervals(r, _events([(1, "2025-02-01", 60.0, "overhaul", np.nan)]))
+    current = intervals[intervals["is_current"]].iloc[0]
+    assert current["interval_no"] == 1 and current["n_readings"] == 0
+
+
+def test_replacement_with_a_fresh_hour_meter():
+    # The new pump's meter starts near zero, below the event's old-meter value: the clock starts at its readings.
+    r = _readings(1, [0, 10, 20, 30], [5000, 5100, 3, 80])
+    placed, _ = assign_intervals(r, _events([(1, "2025-01-15", 5150.0, "replacement", np.nan)]))
+    assert list(placed["interval_hours"]) == [0.0, 100.0, 0.0, 77.0]
+
+
+def test_interval_lives_for_the_fleet_prior():
+    r = pd.concat([_readings(1, [0, 10, 20, 30], [1000, 1100, 1200, 1300]), _readings(2, [0, 5], [0, 40])])
+    ev = _events([(1, "2025-01-16", 1150.0, "overhaul", np.nan)])
+    _, intervals = assign_intervals(r, ev)
+    lives = interval_lives(intervals).set_index(["pump_id", "interval_no"])
+    # Interval 0 of pump 1: hour meter from new, watched from 1000 h (left truncation), overhauled at 1150 h.
+    assert lives.loc[(1, 0), ["entry_hours", "life_hours", "failed"]].tolist() == [1000.0, 1150.0, True]
+    assert lives.loc[(1, 1), ["entry_hours", "life_hours", "failed"]].tolist() == [0.0, 150.0, False]
+    assert lives.loc[(2, 0), ["entry_hours", "life_hours", "failed"]].tolist() == [0.0, 40.0, False]
+
+
+def test_no_events_at_all():
+    placed, intervals = assign_intervals(_readings(3, [0, 1], [1, 2]), None)
+    assert list(placed["interval_no"]) == [0, 0] and len(intervals) == 1

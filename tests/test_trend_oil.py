@@ -1,0 +1,69 @@
+"""Oil condition per pump: its machine's latest lab result and the temperature it runs at."""
+
+import numpy as np
+import pandas as pd
+import pytest
+
+from fleet.trend.oil_condition import latest_lab_results, oil_condition
+from fleet.trend.settings import AnalysisSettings
+
+NOW = pd.Timestamp("2025-06-30")
+
+
+def _samples():
+    return pd.DataFrame(
+        {
+            "machine_id": [1, 1, 1, 2],
+            "sampled_at": pd.to_datetime(["2025-03-01", "2025-05-01", "2025-06-25", "2025-05-20"]),
+            "reported_at": pd.to_datetime(["2025-03-10", "2025-05-12", None, None]),
+            "code_4": [18.0, 19.0, np.nan, np.nan],
+            "code_6": [16.0, 17.0, np.nan, np.nan],
+            "code_14": [13.0, 14.0, np.nan, np.nan],
+            "low_count": [False, True, False, False],
+            "water_ppm": [100.0, 650.0, np.nan, np.nan],
+            "viscosity_40": [46.0, 45.0, np.nan, np.nan],
+        }
+    )
+
+
+def test_latest_reported_sample_and_late_results():
+    lab = latest_lab_results(_samples(), NOW, AnalysisSettings())
+    assert lab.loc[1, "sample_sampled_at"] == pd.Timestamp("2025-05-01")  # the June sample is still at the lab
+    assert not lab.loc[1, "lab_late"]  # ...but only 5 days, inside the 14 days allowed
+    assert lab.loc[2, "lab_late"]  # sampled 41 days ago, never reported
+    assert np.isnan(lab.loc[2, "c6"])
+
+
+def test_pump_takes_its_machines_result_against_its_own_target():
+    pumps = pd.DataFrame(
+        {
+            "pump_id": [10, 11],
+            "machine_id": [1, 2],
+            "cleanliness_target": ["18/16/13", "17/15/12"],
+            "oil_temp_max_c": 80.0,
+            "oil_temp_min_c": 10.0,
+        }
+    )
+    readings = pd.DataFrame(
+        {
+            "pump_id": [10, 10, 10, 11],
+            "taken_at": pd.to_datetime(["2025-06-01", "2025-06-10", "2025-06-20", "2025-06-20"]),
+            "temp_c": [68.0, 70.0, 84.0, 40.0],
+            "nu40": 46.0,
+            "nu100": 6.8,
+        }
+    )
+    oil = oil_condition(pumps, readings, _samples(), NOW, AnalysisSettings())
+    # ISO 4406: 19/17/14 against 18/16/13 is one scale step over on every channel.
+    assert oil.loc[10, "cleanliness_code"] == "19/17/≥14" and oil.loc[10, "cleanliness_steps_over"] == 1
+    assert oil.loc[10, "low_count"]
+    assert oil.loc[10, "water_high"]  # 650 ppm > 500 ppm, common practice, no source
+    assert oil.loc[10, "oil_hot"] and oil.loc[10, "oil_temp_c"] == 84.0
+    # Oil life halves per 10 degC above 60 degC (common practice, no source): typical 70 degC -> 0.5.
+    assert oil.loc[10, "oil_temp_typical_c"] == 70.0
+    assert oil.loc[10, "oil_life_factor"] == pytest.approx(0.5)
+    # VG 46 (nu100 6.8, from memory) at 70 degC is 14.85 cSt (domain.md sec. 3): below the 16-36 cSt band.
+    assert oil.loc[10, "viscosity_typical_cst"] == pytest.approx(14.85, abs=0.02)
+    assert oil.loc[10, "viscosity_window"] == "thin"
+    assert pd.isna(oil.loc[11, "cleanliness_code"]) and oil.loc[11, "lab_late"]
+    assert oil.loc[11, "oil_life_factor"] == 1.0  # no credit below 60 degC
