@@ -1,0 +1,57 @@
+"""The landing page (service list) and its JSON and CSV twins, through the Flask test client."""
+
+import csv
+import io
+
+from fleet.services.servicelist import CSV_COLUMNS
+
+ROW_KEYS = {"pump", "kind", "kind_label", "site", "machine", "position", "rank", "status", "reasons", "eta_v_ref",
+            "eta_v_decline_per_1000h", "drain_pct_ref", "hours_to_limit", "hours_to_limit_low", "hours_to_limit_high",
+            "limit_date", "governing_limit", "prior_hours_to_overhaul", "energy_cost_per_year", "limit_date_low",
+            "limit_date_high", "confidence", "last_reading_at", "cleanliness_code", "currency", "computed_at"}
+
+
+def test_service_list_page_lists_pumps_most_urgent_first(client):
+    response = client.get("/")
+    assert response.status_code == 200
+    page = response.get_data(as_text=True)
+    assert "<h1>Service list</h1>" in page
+    assert page.index("RS-503") < page.index("EY-302") < page.index("EY-301")  # past, due soon, healthy
+    assert "Past limit" in page and "●●●" in page  # words and shape, not colour alone
+    assert 'href="/index.json"' in page and 'href="/index.csv"' in page
+    assert "/pumps/EY-101" in page
+
+
+def test_json_twin_has_the_page_data(client):
+    for response in (client.get("/index.json"), client.get("/", headers={"Accept": "application/json"})):
+        assert response.status_code == 200 and response.is_json
+        data = response.get_json()
+        assert set(data) == {"pumps", "total", "page", "pages", "query", "counts", "choices"}
+        assert data["total"] == 41 and len(data["pumps"]) == 41
+        assert set(data["pumps"][0]) == ROW_KEYS
+        assert data["pumps"][0]["rank"] == 1 and data["pumps"][0]["status"] == "past_limit"
+
+
+def test_csv_twin(client):
+    response = client.get("/index.csv?status=past_limit")
+    assert response.status_code == 200 and response.mimetype == "text/csv"
+    rows = list(csv.DictReader(io.StringIO(response.get_data(as_text=True))))
+    assert tuple(rows[0]) == CSV_COLUMNS
+    assert {r["status"] for r in rows} == {"past_limit"} and len(rows) == 5
+
+
+def test_filters_sorting_and_paging(client):
+    data = client.get("/index.json?site=River%20Shop&kind=axial_piston").get_json()
+    assert data["total"] > 0 and {p["site"] for p in data["pumps"]} == {"River Shop"}
+    assert {p["kind"] for p in data["pumps"]} == {"axial_piston"}
+    paged = client.get("/index.json?page_size=10&page=2&sort=pump").get_json()
+    assert paged["pages"] == 5 and len(paged["pumps"]) == 10
+    names = [p["pump"] for p in paged["pumps"]]
+    assert names == sorted(names)
+
+
+def test_plotly_is_served_locally(client):
+    response = client.get("/assets/plotly.min.js")
+    assert response.status_code == 200 and response.mimetype == "text/javascript"
+    assert b"plotly" in response.data[:2000].lower()
+    response.close()
