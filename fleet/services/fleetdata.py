@@ -25,8 +25,8 @@ from fleet.db.models import (
     Site,
 )
 from fleet.frames import EVENT_COLUMNS, FLOW_POINT_COLUMNS, PUMP_COLUMNS, READING_COLUMNS, SAMPLE_COLUMNS
-from fleet.limits import DEFAULT_LIMITS, VARIABLE_PISTON_TARGET
 from fleet.kinds import PISTON_KINDS
+from fleet.limits import DEFAULT_LIMITS, VARIABLE_PISTON_TARGET
 
 LIMIT_FIELDS = ("eta_v_limit", "drain_limit_pct", "oil_temp_max_c", "oil_temp_min_c", "cleanliness_target",
                 "reading_interval_days", "planning_horizon_weeks")

@@ -32,8 +32,16 @@ def create_app(test_config: dict | None = None) -> Flask:
     filters.init_app(app)
     app.register_blueprint(assets.bp)
     app.register_blueprint(service_list.bp)
-    # pump pages: register blueprints here
-    # planning pages: register blueprints here
+    from fleet.web import api, pumps, rounds
+
+    app.register_blueprint(pumps.bp)
+    app.register_blueprint(rounds.bp)
+    app.register_blueprint(api.bp)
+    from fleet.web import plan, register, review
+
+    app.register_blueprint(register.bp)
+    app.register_blueprint(review.bp)
+    app.register_blueprint(plan.bp)
 
     @app.context_processor
     def navigation():
