@@ -11,6 +11,8 @@ from fleet.db.models import Pump
 from fleet.io.columns import LOAD_ORDER
 from fleet.timeutil import utcnow
 
+HISTORY_WEEKS = 6
+
 
 def demo_present(session: Session) -> bool:
     """True when the database already holds pumps (demo or real): the demo never overwrites data."""
@@ -36,5 +38,10 @@ def build_demo(session: Session, seed: int = 2026, end=None, echo: Callable[[str
         if kind in tables:
             result = import_table(session, kind, _as_text(tables[kind]), source="import")
             echo(f"  {result.summary()}")
-    summary = refresh_analysis(session)
+    # Replay the weekly analyses of the last weeks, each on what was known then, so the weekly review has a
+    # history of status changes to show; the last analysis is of now.
+    last = utcnow()
+    for weeks_ago in range(HISTORY_WEEKS, 0, -1):
+        refresh_analysis(session, now=last - timedelta(weeks=weeks_ago))
+    summary = refresh_analysis(session, now=last)
     return f"invented demo plant built (seed {seed}); {summary.describe()}"

@@ -56,16 +56,23 @@ def stored_priors(session: Session) -> pd.DataFrame | None:
     rows = session.scalars(select(FleetPrior)).all()
     if not rows:
         return None
-    return pd.DataFrame([{**row.detail} for row in rows], index=pd.Index([r.kind for r in rows], name="kind"))
+    frame = pd.DataFrame([{**row.detail} for row in rows], index=pd.Index([r.kind for r in rows], name="kind"))
+    # JSON gives None for a kind without a fit; the engine wants NaN in float columns.
+    for column in frame.columns:
+        numbers = pd.to_numeric(frame[column], errors="coerce")
+        if numbers.notna().sum() == frame[column].notna().sum():
+            frame[column] = numbers.astype(float)
+    return frame
 
 
 def analyse(session: Session, pump_ids=None, now: datetime | None = None,
             settings: AnalysisSettings | None = None) -> FleetAnalysis:
     """Compute (without storing) the analysis of ``pump_ids`` (None: the fleet)."""
-    frames = load_frames(session, pump_ids)
+    now = now or utcnow()
+    frames = load_frames(session, pump_ids, as_of=now)
     priors = None if pump_ids is None else stored_priors(session)
     return analyze_fleet(frames.pumps, frames.readings, frames.events, frames.samples, frames.flow_points,
-                         now=now or utcnow(), settings=settings, priors=priors)
+                         now=now, settings=settings, priors=priors)
 
 
 def refresh_analysis(session: Session, pump_ids=None, now: datetime | None = None,

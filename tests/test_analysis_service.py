@@ -1,0 +1,61 @@
+"""Stored analysis: full and partial refreshes agree, ranks stay whole, status changes are recorded."""
+
+import datetime as dt
+
+import pytest
+from sqlalchemy import select, update
+
+from fleet.db.models import AnalysisResult, Pump, StatusChange
+from fleet.services.analysis import analysis_records, refresh_analysis, stored_priors
+
+FIELDS = ("status", "eta_v_ref", "eta_v_decline_per_1000h", "drain_pct_ref", "hours_to_limit", "hours_to_limit_low",
+          "hours_to_limit_high", "limit_date", "governing_limit", "prior_hours_to_overhaul", "energy_cost_per_year")
+
+
+def _by_pump(records):
+    return {r["pump"]: r for r in records}
+
+
+def test_partial_refresh_matches_the_full_one(demo_db):
+    now = dt.datetime(2026, 12, 1, 12)
+    with demo_db.sessions.begin() as session:
+        refresh_analysis(session, now=now)
+        full = _by_pump(analysis_records(session))
+        ids = list(session.scalars(select(Pump.id).where(Pump.serial.in_(["EY-302", "RS-503", "EY-101"]))))
+        summary = refresh_analysis(session, pump_ids=ids, now=now)
+        assert not summary.full and summary.pumps == 3
+        partial = _by_pump(analysis_records(session))
+    for serial in ("EY-302", "RS-503", "EY-101"):
+        for field in FIELDS:
+            a, b = full[serial][field], partial[serial][field]
+            assert b == pytest.approx(a) if isinstance(a, float) else a == b, (serial, field)
+    assert sorted(r["rank"] for r in partial.values()) == list(range(1, 42))
+
+
+def test_stored_priors_come_back_as_numbers(demo_db):
+    with demo_db.sessions() as session:
+        priors = stored_priors(session)
+    assert priors is not None and len(priors) == 7
+    assert priors["beta"].dtype == float  # kinds without a fit hold NaN, not None
+
+
+def test_a_status_change_is_recorded_with_its_new_reason(demo_db):
+    now = dt.datetime(2026, 12, 1, 12)
+    with demo_db.sessions.begin() as session:
+        pump = session.scalar(select(Pump).where(Pump.serial == "EY-101"))
+        before = session.get(AnalysisResult, pump.id).status
+        assert before != "past_limit"
+        session.execute(update(Pump).where(Pump.id == pump.id).values(eta_v_limit=0.99))
+        refresh_analysis(session, pump_ids=[pump.id], now=now)
+        change = session.scalars(select(StatusChange).where(StatusChange.pump_id == pump.id)
+                                 .order_by(StatusChange.id.desc())).first()
+    assert (change.previous_status, change.status) == (before, "past_limit")
+    assert any("limit 0.99" in reason for reason in change.new_reasons)
+
+
+def test_analysis_of_a_past_moment_uses_only_what_was_known(demo_db):
+    moment = dt.datetime(2026, 6, 1)
+    with demo_db.sessions.begin() as session:
+        refresh_analysis(session, now=moment)
+        records = analysis_records(session)
+    assert max(r["last_reading_at"] for r in records if r["last_reading_at"]) <= "2026-06-01"
