@@ -174,17 +174,37 @@ def load_samples(session: Session, machine_ids=None) -> pd.DataFrame:
     return frame[list(SAMPLE_COLUMNS)]
 
 
-def load_frames(session: Session, pump_ids=None) -> FleetFrames:
-    """Everything the core needs about ``pump_ids`` (None: the whole fleet)."""
+def load_frames(session: Session, pump_ids=None, as_of=None) -> FleetFrames:
+    """Everything the core needs about ``pump_ids`` (None: the whole fleet).
+
+    ``as_of`` keeps only what was known at that moment (readings taken, events done, lab results reported by
+    then), so an analysis can be replayed for a past week.
+    """
     pumps = load_pumps(session, pump_ids)
     history = installation_history(session, pump_ids)
     machine_ids = None if pump_ids is None else pumps["machine_id"].dropna().astype(int).unique().tolist()
-    return FleetFrames(
+    frames = FleetFrames(
         pumps=pumps,
         readings=load_readings(session, pump_ids, history),
         flow_points=load_flow_points(session, pump_ids),
         events=load_events(session, pump_ids),
         samples=load_samples(session, machine_ids),
+    )
+    return frames if as_of is None else known_by(frames, pd.Timestamp(as_of))
+
+
+def known_by(frames: FleetFrames, moment: pd.Timestamp) -> FleetFrames:
+    readings = frames.readings[frames.readings["taken_at"] <= moment]
+    samples = frames.samples[frames.samples["sampled_at"] <= moment].copy()
+    pending = samples["reported_at"].isna() | (samples["reported_at"] > moment)
+    samples.loc[pending, ["reported_at", "code_4", "code_6", "code_14", "water_ppm", "viscosity_40"]] = np.nan
+    samples.loc[pending, "low_count"] = False
+    return FleetFrames(
+        pumps=frames.pumps,
+        readings=readings,
+        flow_points=frames.flow_points[frames.flow_points["reading_id"].isin(readings["reading_id"])],
+        events=frames.events[frames.events["date"] <= moment],
+        samples=samples,
     )
 
 

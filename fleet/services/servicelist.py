@@ -1,0 +1,106 @@
+"""The service list: every pump with its stored analysis, most urgent first, filtered, sorted and paged."""
+
+from dataclasses import dataclass
+
+from sqlalchemy import func, select
+from sqlalchemy.orm import Session, aliased
+
+from fleet.db.models import AnalysisResult, Installation, Machine, Position, Pump, Site
+from fleet.kinds import PUMP_KINDS
+from fleet.status_words import STATUS_LABELS
+
+SORTS = {
+    "urgency": (AnalysisResult.rank, Pump.serial),
+    "pump": (Pump.serial,),
+    "eta_v": (AnalysisResult.eta_v_ref, Pump.serial),
+    "hours": (AnalysisResult.hours_to_limit, Pump.serial),
+    "energy": (AnalysisResult.energy_cost_per_year.desc(), Pump.serial),
+}
+# Columns of the CSV twin, in order.
+CSV_COLUMNS = ("rank", "pump", "status", "site", "machine", "position", "kind", "eta_v_ref",
+               "eta_v_decline_per_1000h", "drain_pct_ref", "hours_to_limit", "hours_to_limit_low",
+               "hours_to_limit_high", "limit_date", "limit_date_low", "limit_date_high", "governing_limit",
+               "confidence", "prior_hours_to_overhaul", "energy_cost_per_year", "last_reading_at", "cleanliness_code",
+               "reasons")
+
+
+@dataclass
+class ListQuery:
+    site: str | None = None
+    machine: str | None = None
+    kind: str | None = None
+    status: str | None = None
+    sort: str = "urgency"
+    page: int = 1
+    page_size: int = 50
+
+
+def service_list(session: Session, query: ListQuery) -> dict:
+    current = aliased(Installation)
+    statement = (
+        select(Pump, AnalysisResult, Site.name, Machine.name, Position.name)
+        .outerjoin(AnalysisResult, AnalysisResult.pump_id == Pump.id)
+        .outerjoin(current, (current.pump_id == Pump.id) & current.removed_at.is_(None))
+        .outerjoin(Position, Position.id == current.position_id)
+        .outerjoin(Machine, Machine.id == Position.machine_id)
+        .outerjoin(Site, Site.id == Machine.site_id)
+    )
+    if query.site:
+        statement = statement.where(Site.name == query.site)
+    if query.machine:
+        statement = statement.where(Machine.name == query.machine)
+    if query.kind:
+        statement = statement.where(Pump.kind == query.kind)
+    if query.status:
+        statement = statement.where(AnalysisResult.status == query.status)
+    total = session.scalar(select(func.count()).select_from(statement.subquery()))
+    order = SORTS.get(query.sort, SORTS["urgency"])
+    page = max(1, query.page)
+    rows = session.execute(
+        statement.order_by(*[o.nulls_last() if hasattr(o, "nulls_last") else o for o in order])
+        .limit(query.page_size).offset((page - 1) * query.page_size)
+    ).all()
+    pumps = [_row(pump, result, site, machine, position) for pump, result, site, machine, position in rows]
+    counts = dict(session.execute(select(AnalysisResult.status, func.count()).group_by(AnalysisResult.status)).all())
+    return {
+        "pumps": pumps,
+        "total": total,
+        "page": page,
+        "pages": max(1, -(-total // query.page_size)),
+        "query": query.__dict__,
+        "counts": {status: counts.get(status, 0) for status in STATUS_LABELS},
+        "choices": _choices(session),
+    }
+
+
+def _row(pump: Pump, result: AnalysisResult | None, site, machine, position) -> dict:
+    row = {"pump": pump.serial, "kind": pump.kind, "kind_label": PUMP_KINDS.get(pump.kind, pump.kind),
+           "site": site, "machine": machine, "position": position}
+    if result is None:
+        row.update({"status": None, "reasons": ["Not analysed yet: run 'fleet analyze'."], "rank": None})
+        return row
+    detail = result.detail or {}
+    row.update({
+        "rank": result.rank, "status": result.status, "reasons": result.reasons,
+        "eta_v_ref": result.eta_v_ref, "eta_v_decline_per_1000h": result.eta_v_decline_per_1000h,
+        "drain_pct_ref": result.drain_pct_ref, "hours_to_limit": result.hours_to_limit,
+        "hours_to_limit_low": result.hours_to_limit_low, "hours_to_limit_high": result.hours_to_limit_high,
+        "limit_date": result.limit_date, "governing_limit": result.governing_limit,
+        "prior_hours_to_overhaul": result.prior_hours_to_overhaul,
+        "energy_cost_per_year": result.energy_cost_per_year,
+        "limit_date_low": detail.get("limit_date_low"), "limit_date_high": detail.get("limit_date_high"),
+        "confidence": detail.get("confidence"), "last_reading_at": detail.get("last_reading_at"),
+        "cleanliness_code": detail.get("cleanliness_code"), "currency": detail.get("currency"),
+        "computed_at": result.computed_at.isoformat(timespec="seconds"),
+    })
+    return row
+
+
+def _choices(session: Session) -> dict:
+    return {
+        "sites": list(session.scalars(select(Site.name).order_by(Site.name))),
+        "machines": list(session.scalars(select(Machine.name).distinct().order_by(Machine.name))),
+        "kinds": {k: v for k, v in PUMP_KINDS.items()},
+        "statuses": STATUS_LABELS,
+        "sorts": list(SORTS),
+    }
