@@ -1,4 +1,4 @@
-"""The ``fleet`` command: set up the database, move CSV files in and out, analyse, serve the dashboard."""
+"""The fleet command: set up the database, move CSV files in and out, analyse, serve the dashboard."""
 
 import json
 import sys
