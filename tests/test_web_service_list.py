@@ -55,3 +55,16 @@ def test_plotly_is_served_locally(client):
     assert response.status_code == 200 and response.mimetype == "text/javascript"
     assert b"plotly" in response.data[:2000].lower()
     response.close()
+
+
+def test_a_pump_registered_since_the_last_analysis_is_listed(client, demo_db):
+    from sqlalchemy import delete, select
+
+    from fleet.db.models import AnalysisResult, Pump
+
+    with demo_db.sessions.begin() as session:
+        pump_id = session.scalar(select(Pump.id).where(Pump.serial == "EY-101"))
+        session.execute(delete(AnalysisResult).where(AnalysisResult.pump_id == pump_id))
+    assert "Not analysed yet" in client.get("/").get_data(as_text=True)
+    row = next(p for p in client.get("/index.json?sort=pump").get_json()["pumps"] if p["pump"] == "EY-101")
+    assert set(row) == ROW_KEYS and row["status"] is None

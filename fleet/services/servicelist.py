@@ -24,6 +24,12 @@ CSV_COLUMNS = ("rank", "pump", "status", "site", "machine", "position", "kind", 
                "reasons")
 
 
+ROW_FIELDS = ("rank", "status", "reasons", "eta_v_ref", "eta_v_decline_per_1000h", "drain_pct_ref", "hours_to_limit",
+              "hours_to_limit_low", "hours_to_limit_high", "limit_date", "governing_limit", "prior_hours_to_overhaul",
+              "energy_cost_per_year", "limit_date_low", "limit_date_high", "confidence", "last_reading_at",
+              "cleanliness_code", "currency", "computed_at")
+
+
 @dataclass
 class ListQuery:
     site: str | None = None
@@ -76,8 +82,9 @@ def service_list(session: Session, query: ListQuery) -> dict:
 def _row(pump: Pump, result: AnalysisResult | None, site, machine, position) -> dict:
     row = {"pump": pump.serial, "kind": pump.kind, "kind_label": PUMP_KINDS.get(pump.kind, pump.kind),
            "site": site, "machine": machine, "position": position}
-    if result is None:
-        row.update({"status": None, "reasons": ["Not analysed yet: run 'fleet analyze'."], "rank": None})
+    if result is None:  # registered since the last analysis: every key present, values unknown
+        row.update({key: None for key in ROW_FIELDS})
+        row["reasons"] = ["Not analysed yet: run 'fleet analyze'."]
         return row
     detail = result.detail or {}
     row.update({
