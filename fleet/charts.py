@@ -1,0 +1,143 @@
+"""Plotly figures of one pump, built from plain data frames; pages load plotly's JavaScript themselves.
+
+Colours follow the dashboard's palette; every series is also told apart by marker shape or dash and by its
+legend entry, so nothing rests on colour alone.
+"""
+
+import pandas as pd
+import plotly.graph_objects as go
+
+INK = "#1e2529"
+MUTED = "#5d676d"
+ACCENT = "#24525e"
+LIMIT = "#8c2f1c"
+BAND = "rgba(36, 82, 94, 0.15)"
+EVENT = "#8a5a00"
+RAW = "#9aa3a8"
+
+
+def _layout(fig: go.Figure, x_title: str, y_title: str, y_format: str | None = None) -> go.Figure:
+    fig.update_layout(
+        margin={"l": 56, "r": 12, "t": 12, "b": 44}, height=320, paper_bgcolor="#ffffff", plot_bgcolor="#ffffff",
+        font={"family": "system-ui, sans-serif", "size": 12, "color": INK}, hovermode="closest",
+        legend={"orientation": "h", "y": -0.22, "x": 0},
+    )
+    fig.update_xaxes(title_text=x_title, gridcolor="#ece8df", zeroline=False)
+    fig.update_yaxes(title_text=y_title, gridcolor="#ece8df", zeroline=False, tickformat=y_format)
+    return fig
+
+
+def _limit_line(fig: go.Figure, value, text: str) -> None:
+    if value is not None and pd.notna(value):
+        fig.add_hline(y=float(value), line={"color": LIMIT, "dash": "dash", "width": 2},
+                      annotation_text=text, annotation_position="bottom left",
+                      annotation_font={"color": LIMIT, "size": 11})
+
+
+def _event_lines(fig: go.Figure, events: pd.DataFrame | None, x_column: str) -> None:
+    """Maintenance events as labelled vertical markers."""
+    if events is None or events.empty:
+        return
+    for x, label in zip(events[x_column], events["kind_label"], strict=True):
+        if pd.notna(x):
+            fig.add_vline(x=x, line={"color": EVENT, "dash": "dot", "width": 1.5})
+            fig.add_annotation(x=x, y=1, yref="paper", text=str(label), showarrow=False, textangle=-90,
+                               xanchor="right", yanchor="top", font={"color": EVENT, "size": 10})
+
+
+def efficiency_figure(readings: pd.DataFrame, band: pd.DataFrame | None, limit, events: pd.DataFrame | None = None
+                      ) -> go.Figure:
+    """eta_v,ref (and raw eta_v) against running hours, the fitted trend, its band, forecast and limit.
+
+    readings: hours, eta_v, eta_v_ref. band: hours, mean, low, high, forecast (bool). events: chart_hours,
+    kind_label.
+    """
+    fig = go.Figure()
+    fig.add_trace(go.Scatter(x=readings["hours"], y=readings["eta_v"], mode="markers", name="η_v as measured",
+                             marker={"color": RAW, "symbol": "circle-open", "size": 6}))
+    fig.add_trace(go.Scatter(x=readings["hours"], y=readings["eta_v_ref"], mode="markers",
+                             name="η_v,ref (referred)", marker={"color": ACCENT, "symbol": "circle", "size": 7}))
+    if band is not None and not band.empty:
+        fig.add_trace(go.Scatter(x=band["hours"], y=band["high"], mode="lines", line={"width": 0},
+                                 hoverinfo="skip", showlegend=False))
+        fig.add_trace(go.Scatter(x=band["hours"], y=band["low"], mode="lines", line={"width": 0}, fill="tonexty",
+                                 fillcolor=BAND, name="trend band"))
+        fitted = band[~band["forecast"].astype(bool)]
+        ahead = band[band["forecast"].astype(bool) | (band["hours"] == fitted["hours"].max())]
+        fig.add_trace(go.Scatter(x=fitted["hours"], y=fitted["mean"], mode="lines", name="fitted trend",
+                                 line={"color": INK, "width": 2}))
+        fig.add_trace(go.Scatter(x=ahead["hours"], y=ahead["mean"], mode="lines", name="forecast",
+                                 line={"color": INK, "width": 2, "dash": "dash"}))
+    _limit_line(fig, limit, "limit")
+    _event_lines(fig, events, "chart_hours")
+    return _layout(fig, "running hours (h)", "volumetric efficiency", ".0%")
+
+
+def drain_figure(readings: pd.DataFrame, limit_pct, events: pd.DataFrame | None = None) -> go.Figure:
+    """Case drain as % of max flow, as measured and referred, against running hours, with its limit.
+
+    readings: hours, case_drain_pct, case_drain_pct_ref.
+    """
+    fig = go.Figure()
+    fig.add_trace(go.Scatter(x=readings["hours"], y=readings["case_drain_pct"], mode="markers",
+                             name="as measured", marker={"color": RAW, "symbol": "diamond-open", "size": 7}))
+    fig.add_trace(go.Scatter(x=readings["hours"], y=readings["case_drain_pct_ref"], mode="lines+markers",
+                             name="referred", marker={"color": ACCENT, "symbol": "diamond", "size": 7},
+                             line={"color": ACCENT, "width": 1}))
+    _limit_line(fig, limit_pct, "limit")
+    _event_lines(fig, events, "chart_hours")
+    return _layout(fig, "running hours (h)", "case drain, % of max flow")
+
+
+def temperature_figure(readings: pd.DataFrame, min_c, max_c, events: pd.DataFrame | None = None) -> go.Figure:
+    """Oil temperature at each reading against time, with the pump's lower and upper limits.
+
+    readings: taken_at, oil_temp_c. events: date, kind_label.
+    """
+    fig = go.Figure()
+    fig.add_trace(go.Scatter(x=readings["taken_at"], y=readings["oil_temp_c"], mode="lines+markers",
+                             name="oil temperature", marker={"color": ACCENT, "symbol": "square", "size": 6},
+                             line={"color": ACCENT, "width": 1}))
+    _limit_line(fig, max_c, "upper limit")
+    _limit_line(fig, min_c, "lower limit")
+    _event_lines(fig, events, "date")
+    return _layout(fig, "date", "oil temperature (°C)")
+
+
+def cleanliness_figure(samples: pd.DataFrame, target: tuple | None) -> go.Figure:
+    """ISO 4406 scale numbers of each lab result against time, with the target code per channel.
+
+    samples: sampled_at, code_4, code_6, code_14. target: (c4, c6, c14) scale numbers or None.
+    """
+    fig = go.Figure()
+    styles = (("code_4", "≥4 µm(c)", "circle", "solid"), ("code_6", "≥6 µm(c)", "square", "dash"),
+              ("code_14", "≥14 µm(c)", "triangle-up", "dot"))
+    for column, name, symbol, dash in styles:
+        fig.add_trace(go.Scatter(x=samples["sampled_at"], y=samples[column], mode="lines+markers", name=name,
+                                 marker={"symbol": symbol, "size": 8, "color": ACCENT},
+                                 line={"dash": dash, "color": ACCENT, "width": 1}))
+    if target:
+        for value, (_, name, _, _) in zip(target, styles, strict=True):
+            if value is not None and pd.notna(value):
+                _limit_line(fig, value, f"target {name}")
+    return _layout(fig, "sampled", "ISO 4406 scale number")
+
+
+def flow_test_figure(points: pd.DataFrame, baseline: pd.DataFrame) -> go.Figure:
+    """A multi-point flow test's flow against pressure, beside the line the pump's baseline slip gives.
+
+    points, baseline: pressure_bar, flow_lpm.
+    """
+    fig = go.Figure()
+    fig.add_trace(go.Scatter(x=baseline["pressure_bar"], y=baseline["flow_lpm"], mode="lines", name="baseline",
+                             line={"color": MUTED, "dash": "dash", "width": 2}))
+    fig.add_trace(go.Scatter(x=points["pressure_bar"], y=points["flow_lpm"], mode="lines+markers",
+                             name="this test", marker={"color": ACCENT, "symbol": "circle", "size": 9},
+                             line={"color": ACCENT, "width": 1}))
+    return _layout(fig, "outlet pressure (bar)", "outlet flow (L/min)")
+
+
+def figure_html(fig: go.Figure, div_id: str) -> str:
+    """The figure as a <div> and its script; plotly.js itself is loaded once by the page."""
+    return fig.to_html(full_html=False, include_plotlyjs=False, div_id=div_id,
+                       config={"displaylogo": False, "responsive": True})

@@ -1,0 +1,299 @@
+"""Everything the pump page shows about one pump, as one JSON-ready dict (the page, its JSON and its CSV).
+
+The headline figures are the stored analysis (the same the service list shows); the per-reading table, the
+trend band and the flow test are computed afresh for this one pump by the analysis engine.
+"""
+
+from datetime import datetime
+
+import numpy as np
+import pandas as pd
+from sqlalchemy import select
+from sqlalchemy.orm import Session
+
+from fleet.db.models import (
+    AnalysisResult,
+    FlowTestPoint,
+    Installation,
+    Machine,
+    MaintenanceEvent,
+    Oil,
+    OilSample,
+    Position,
+    Pump,
+    Reading,
+    Site,
+)
+from fleet.kinds import EVENT_KINDS, PUMP_KINDS
+from fleet.physics.cleanliness import Iso4406Code
+from fleet.physics.pump import theoretical_flow_lpm
+from fleet.services.analysis import analyse
+from fleet.services.fleetdata import json_ready, load_pumps
+from fleet.trend.remaining_life import trend_band
+
+# Columns of the readings table and of the page's CSV twin, in order: raw values, then referred ones.
+READING_COLUMNS = (
+    "taken_at", "hours", "interval_no", "outlet_pressure_bar", "speed_rpm", "outlet_flow_lpm", "case_drain_lpm",
+    "oil_temp_c", "stroke", "eta_v", "eta_v_ref", "case_drain_pct", "case_drain_ref_lpm", "case_drain_pct_ref",
+    "flag", "source", "taken_by",
+)
+LIMIT_FIELDS = ("eta_v_limit", "drain_limit_pct", "oil_temp_min_c", "oil_temp_max_c", "cleanliness_target",
+                "reading_interval_days", "planning_horizon_weeks")
+HEADLINE_FIELDS = ("status", "reasons", "rank", "eta_v_ref", "eta_v_decline_per_1000h", "drain_pct_ref",
+                   "hours_to_limit", "hours_to_limit_low", "hours_to_limit_high", "limit_date", "governing_limit",
+                   "prior_hours_to_overhaul", "energy_cost_per_year")
+DETAIL_FIELDS = ("limit_date_low", "limit_date_high", "confidence", "upper_bound_open", "currency", "leakage_kw",
+                 "overhaul_saving_per_year", "overhaul_payback_years", "prior_b10_hours", "data_note",
+                 "last_reading_at", "hours_per_day", "cleanliness_code")
+BAND_POINTS = 60
+# How far past the last reading the forecast is drawn when the trend never reaches its limit (our choice).
+FORECAST_MIN_HOURS = 2000.0
+
+
+def baseline_flow_lpm(displacement_cc, speed_rpm, slip_at_rated_lpm, rated_pressure_bar, pressure_bar,
+                      viscosity_ratio=1.0):
+    """Outlet flow a pump with a known slip should give: theoretical flow minus slip growing with pressure.
+
+    Laminar slip is proportional to pressure and inversely to viscosity (Wilson's model); viscosity_ratio is
+    mu_ref / mu at the test's oil temperature (1.0 at the reference temperature).
+    """
+    pressure = np.asarray(pressure_bar, dtype=float)
+    slip = np.asarray(slip_at_rated_lpm, dtype=float) * pressure / float(rated_pressure_bar) * viscosity_ratio
+    return np.asarray(theoretical_flow_lpm(displacement_cc, speed_rpm), dtype=float) - slip
+
+
+def find_pump(session: Session, serial: str) -> Pump | None:
+    return session.scalar(select(Pump).where(Pump.serial == serial))
+
+
+def pump_page(session: Session, serial: str) -> dict | None:
+    """The pump page's data; None when no pump has that serial."""
+    pump = find_pump(session, serial)
+    if pump is None:
+        return None
+    analysis = analyse(session, [pump.id])
+    referred = analysis.readings[analysis.readings["pump_id"] == pump.id].sort_values("taken_at", kind="stable")
+    limits = load_pumps(session, [pump.id]).iloc[0]
+    events = _events(session, pump.id)
+    readings = _reading_rows(session, referred)
+    current_fit = _current_fit(analysis, pump.id)
+    data = {
+        "pump": _rated(pump),
+        "where": _where(session, pump.id),
+        "oil": _oil(session, pump.id),
+        "limits": {name: limits.get(name) for name in LIMIT_FIELDS},
+        "headline": _headline(session, pump.id),
+        "installations": _installations(session, pump.id),
+        "events": _place_events(events, referred),
+        "readings": readings,
+        "trend": _trend(current_fit, pump, analysis.settings.confidence),
+        "samples": _samples(session, pump.id),
+        "flow_test": _flow_test(session, pump, referred, current_fit),
+    }
+    return json_ready(data)
+
+
+def _rated(pump: Pump) -> dict:
+    return {
+        "serial": pump.serial, "kind": pump.kind, "kind_label": PUMP_KINDS.get(pump.kind, pump.kind),
+        "variable": pump.variable, "displacement_cc": pump.displacement_cc, "rated_speed_rpm": pump.rated_speed_rpm,
+        "rated_pressure_bar": pump.rated_pressure_bar, "rated_flow_lpm": pump.displacement_cc *
+        pump.rated_speed_rpm / 1000.0, "max_flow_lpm": pump.max_flow, "case_drain": pump.case_drain,
+        "reference_temp_c": pump.reference_temp_c, "overhaul_cost": pump.overhaul_cost, "note": pump.note,
+    }
+
+
+def _where(session: Session, pump_id: int) -> dict | None:
+    row = session.execute(
+        select(Site.name, Machine.name, Position.name)
+        .select_from(Installation).join(Position, Position.id == Installation.position_id)
+        .join(Machine, Machine.id == Position.machine_id).join(Site, Site.id == Machine.site_id)
+        .where(Installation.pump_id == pump_id, Installation.removed_at.is_(None))
+        .order_by(Installation.installed_at.desc()).limit(1)
+    ).first()
+    return None if row is None else {"site": row[0], "machine": row[1], "position": row[2]}
+
+
+def _current_machine_id(session: Session, pump_id: int) -> int | None:
+    return session.scalar(
+        select(Position.machine_id).select_from(Installation).join(Position, Position.id == Installation.position_id)
+        .where(Installation.pump_id == pump_id, Installation.removed_at.is_(None))
+        .order_by(Installation.installed_at.desc()).limit(1)
+    )
+
+
+def _oil(session: Session, pump_id: int) -> dict | None:
+    machine_id = _current_machine_id(session, pump_id)
+    oil = None if machine_id is None else session.scalar(
+        select(Oil).join(Machine, Machine.oil_id == Oil.id).where(Machine.id == machine_id))
+    if oil is None:
+        return None
+    return {"name": oil.name, "iso_vg": oil.iso_vg, "viscosity_40": oil.viscosity_40,
+            "viscosity_100": oil.viscosity_100, "density_15": oil.density_15}
+
+
+def _headline(session: Session, pump_id: int) -> dict | None:
+    result = session.get(AnalysisResult, pump_id)
+    if result is None:
+        return None
+    detail = result.detail or {}
+    headline = {name: getattr(result, name) for name in HEADLINE_FIELDS}
+    headline.update({name: detail.get(name) for name in DETAIL_FIELDS})
+    headline["computed_at"] = result.computed_at.isoformat(timespec="seconds")
+    return headline
+
+
+def _installations(session: Session, pump_id: int) -> list[dict]:
+    rows = session.execute(
+        select(Installation, Position.name, Machine.name, Site.name)
+        .join(Position, Position.id == Installation.position_id).join(Machine, Machine.id == Position.machine_id)
+        .join(Site, Site.id == Machine.site_id).where(Installation.pump_id == pump_id)
+        .order_by(Installation.installed_at)
+    )
+    return [{"site": site, "machine": machine, "position": position, "installed_at": _iso(stay.installed_at),
+             "installed_hours": stay.installed_hours, "removed_at": _iso(stay.removed_at),
+             "removed_hours": stay.removed_hours} for stay, position, machine, site in rows]
+
+
+def _events(session: Session, pump_id: int) -> pd.DataFrame:
+    rows = session.scalars(select(MaintenanceEvent).where(MaintenanceEvent.pump_id == pump_id)
+                           .order_by(MaintenanceEvent.date)).all()
+    return pd.DataFrame([{
+        "date": e.date, "hours": e.hours, "kind": e.kind, "kind_label": EVENT_KINDS.get(e.kind, e.kind),
+        "cost": e.cost, "downtime_h": e.downtime_h, "failure_mode": e.failure_mode, "note": e.note,
+    } for e in rows], columns=["date", "hours", "kind", "kind_label", "cost", "downtime_h", "failure_mode", "note"])
+
+
+def _place_events(events: pd.DataFrame, referred: pd.DataFrame) -> list[dict]:
+    """Events with an hour-meter position for the hours charts: as recorded, else interpolated from readings."""
+    if events.empty:
+        return []
+    hours = pd.to_numeric(events["hours"], errors="coerce").to_numpy(float)
+    if len(referred):
+        stamps = pd.to_datetime(referred["taken_at"]).astype("int64").to_numpy(float)
+        when = pd.to_datetime(events["date"]).astype("int64").to_numpy(float)
+        guessed = np.interp(when, stamps, referred["hours"].to_numpy(float))
+        hours = np.where(np.isfinite(hours), hours, guessed)
+    out = events.assign(chart_hours=hours, date=pd.to_datetime(events["date"]).dt.strftime("%Y-%m-%d"))
+    return out.to_dict(orient="records")
+
+
+def _reading_rows(session: Session, referred: pd.DataFrame) -> list[dict]:
+    if referred.empty:
+        return []
+    extra = pd.DataFrame(session.execute(
+        select(Reading.id, Reading.source, Reading.taken_by).where(Reading.id.in_(
+            [int(i) for i in referred["reading_id"]]))).all(), columns=["reading_id", "source", "taken_by"])
+    r = referred.merge(extra, on="reading_id", how="left")
+    max_flow = r["max_flow_lpm"].to_numpy(float)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        drain_pct = 100.0 * r["drain_lpm"].to_numpy(float) / max_flow
+    table = pd.DataFrame({
+        "taken_at": pd.to_datetime(r["taken_at"]).dt.strftime("%Y-%m-%d %H:%M"),
+        "hours": r["hours"], "interval_no": r["interval_no"], "outlet_pressure_bar": r["pressure_bar"],
+        "speed_rpm": r["speed_rpm"], "outlet_flow_lpm": r["flow_lpm"], "case_drain_lpm": r["drain_lpm"],
+        "oil_temp_c": r["temp_c"], "stroke": r["stroke"], "eta_v": r["eta_v"], "eta_v_ref": r["eta_v_ref"],
+        "case_drain_pct": drain_pct, "case_drain_ref_lpm": r["drain_ref_lpm"], "case_drain_pct_ref": r["drain_pct_ref"],
+        "flag": r["flag"], "source": r["source"], "taken_by": r["taken_by"],
+    })
+    return json_ready(table[list(READING_COLUMNS)].astype(object).to_dict(orient="records"))
+
+
+def _current_fit(analysis, pump_id: int) -> pd.Series | None:
+    """The fit row of the pump's current service interval, or None."""
+    intervals = analysis.intervals
+    current = intervals[(intervals["pump_id"] == pump_id) & intervals["is_current"]]
+    if current.empty:
+        return None
+    interval = current.iloc[0]
+    fits = analysis.fits
+    row = fits[(fits["pump_id"] == pump_id) & (fits["interval_no"] == interval["interval_no"])]
+    if row.empty:
+        return None
+    fit = row.iloc[0].copy()
+    fit["start_hours"] = interval["start_hours"]
+    return fit
+
+
+def _trend(fit: pd.Series | None, pump: Pump, confidence: float) -> dict | None:
+    """The fitted eta_v,ref line of the current interval, its band, and its forecast to the limit."""
+    if fit is None or not bool(fit["slip_enough_data"]):
+        return None
+    now_h = float(fit["current_hours"])
+    crossing = float(fit["slip_crossing_hours"])
+    end_h = crossing if np.isfinite(crossing) and crossing > now_h else now_h + max(FORECAST_MIN_HOURS, now_h)
+    end_h = min(end_h, now_h + 4 * max(now_h, FORECAST_MIN_HOURS))  # a flat trend would run off to infinity
+    grid = np.unique(np.concatenate([np.linspace(0.0, end_h, BAND_POINTS), [now_h]]))
+    band = trend_band(fit, grid, pump.displacement_cc * pump.rated_speed_rpm / 1000.0, confidence, "slip")
+    start_h = float(fit["start_hours"]) if np.isfinite(float(fit["start_hours"])) else 0.0
+    band = band.assign(hours=band["hours"] + start_h, forecast=grid > now_h)
+    return {"interval_no": int(fit["interval_no"]), "interval_start_hours": start_h, "now_hours": now_h + start_h,
+            "limit_hours": crossing + start_h if np.isfinite(crossing) else None, "confidence": confidence,
+            "points": band.to_dict(orient="records")}
+
+
+def _samples(session: Session, pump_id: int) -> list[dict]:
+    """Lab results of the reservoir the pump sits in now (a result belongs to the oil, not to one pump)."""
+    machine_id = _current_machine_id(session, pump_id)
+    if machine_id is None:
+        return []
+    rows = session.scalars(select(OilSample).where(OilSample.machine_id == machine_id)
+                           .order_by(OilSample.sampled_at)).all()
+    return [{"sampled_at": _iso(s.sampled_at, date_only=True), "reported_at": _iso(s.reported_at, date_only=True),
+             "code_4": s.code_4, "code_6": s.code_6, "code_14": s.code_14, "code": _code(s),
+             "water_ppm": s.water_ppm, "viscosity_40": s.viscosity_40, "lab_ref": s.lab_ref} for s in rows]
+
+
+def _code(sample: OilSample) -> str | None:
+    if sample.code_6 is None or sample.code_14 is None:
+        return None
+    try:
+        return str(Iso4406Code(sample.code_4, sample.code_6, sample.code_14, low_count=bool(sample.low_count)))
+    except ValueError:  # a lab typo (channels rising): show the numbers as reported
+        return "/".join("-" if c is None else str(c) for c in (sample.code_4, sample.code_6, sample.code_14))
+
+
+def _flow_test(session: Session, pump: Pump, referred: pd.DataFrame, fit: pd.Series | None) -> dict | None:
+    """The latest multi-point flow test, and the line a pump with the interval's first fitted slip would give."""
+    latest = session.execute(
+        select(Reading.id, Reading.taken_at, Reading.speed_rpm, Reading.temp_c)
+        .join(FlowTestPoint, FlowTestPoint.reading_id == Reading.id)
+        .where(Reading.pump_id == pump.id).order_by(Reading.taken_at.desc()).limit(1)
+    ).first()
+    if latest is None:
+        return None
+    points = session.execute(select(FlowTestPoint.pressure_bar, FlowTestPoint.flow_lpm)
+                             .where(FlowTestPoint.reading_id == latest.id)
+                             .order_by(FlowTestPoint.pressure_bar)).all()
+    reading = referred[referred["reading_id"] == latest.id]
+    ratio = 1.0
+    if len(reading):
+        mu, mu_ref = float(reading["mu_pas"].iloc[0]), float(reading["mu_ref_pas"].iloc[0])
+        ratio = mu_ref / mu if np.isfinite(mu) and np.isfinite(mu_ref) and mu > 0 else 1.0
+    slip_rated, source = _baseline_slip(pump, fit)
+    top = max([p for p, _ in points] + [pump.rated_pressure_bar])
+    pressures = np.linspace(0.0, top, 11)
+    flows = baseline_flow_lpm(pump.displacement_cc, latest.speed_rpm, slip_rated, pump.rated_pressure_bar,
+                              pressures, ratio)
+    return {
+        "taken_at": _iso(latest.taken_at), "speed_rpm": latest.speed_rpm, "oil_temp_c": latest.temp_c,
+        "points": [{"pressure_bar": p, "flow_lpm": q} for p, q in points],
+        "baseline": [{"pressure_bar": p, "flow_lpm": q} for p, q in zip(pressures, flows, strict=True)],
+        "baseline_from": source, "baseline_slip_at_rated_lpm": slip_rated,
+    }
+
+
+def _baseline_slip(pump: Pump, fit: pd.Series | None) -> tuple[float, str]:
+    """Referred slip at rated pressure the baseline assumes, and where it comes from."""
+    if fit is not None and bool(fit["slip_enough_data"]) and np.isfinite(float(fit["slip_a"])):
+        return float(np.exp(float(fit["slip_a"]))), "the start of this service interval's fitted trend"
+    theoretical = pump.displacement_cc * pump.rated_speed_rpm / 1000.0
+    if pump.max_flow_lpm is not None and pump.max_flow_lpm < theoretical:
+        return theoretical - pump.max_flow_lpm, "the rated maximum flow"
+    return 0.0, "theoretical flow only (no trend yet and no rated maximum flow below it)"
+
+
+def _iso(moment: datetime | None, date_only: bool = False) -> str | None:
+    if moment is None:
+        return None
+    return moment.strftime("%Y-%m-%d") if date_only else moment.isoformat(sep=" ", timespec="minutes")

@@ -1,0 +1,298 @@
+"""Rounds: routes (ordered walks of pumps), the quick reading form's checks, and saving one reading.
+
+Every write goes through the same importer as a CSV file (source "form"), so a form, an upload and the API
+accept and refuse exactly the same readings. Functions never commit: the caller owns the transaction.
+"""
+
+from dataclasses import dataclass, field
+from datetime import datetime
+
+import numpy as np
+import pandas as pd
+from sqlalchemy import func, select
+from sqlalchemy.orm import Session
+
+from fleet import units
+from fleet.db.models import Installation, Machine, Position, Pump, Reading, Route, RouteStop, Site
+from fleet.io.parse import ImportRejected, Problem, parse_table
+from fleet.kinds import PUMP_KINDS
+from fleet.physics.pump import theoretical_flow_lpm
+from fleet.services.analysis import RefreshSummary, refresh_analysis
+from fleet.services.fleetdata import load_pumps
+from fleet.services.importing import ImportResult, import_table
+from fleet.timeutil import utcnow
+
+
+@dataclass(frozen=True)
+class FormField:
+    name: str  # the readings CSV column
+    quantity: str | None  # a key of units.CHOICES; None for text
+    label: str
+    required: bool = False
+    only_if: str | None = None  # a Pump attribute that must be true for the field to show
+
+
+# The quick form, in walking order of a technician's eyes: hour meter first, then gauges, then meters.
+FORM_FIELDS = (
+    FormField("hours", "hours", "Running hours", True),
+    FormField("outlet_pressure", "pressure", "Outlet pressure", True),
+    FormField("speed", "speed", "Shaft speed", True),
+    FormField("outlet_flow", "flow", "Outlet flow"),
+    FormField("case_drain_flow", "flow", "Case drain flow", only_if="case_drain"),
+    FormField("oil_temp", "temperature", "Oil temperature", True),
+    FormField("stroke", None, "Displacement setting, %", only_if="variable"),
+)
+STROKE_UNIT = "%"
+
+
+class RouteError(ValueError):
+    def __init__(self, problems: list[str]):
+        self.problems = problems
+        super().__init__("; ".join(problems))
+
+
+# --- routes ------------------------------------------------------------------------------------------------
+
+def _current_places(session: Session) -> dict[int, dict]:
+    rows = session.execute(
+        select(Installation.pump_id, Site.name, Machine.name, Position.name)
+        .join(Position, Position.id == Installation.position_id).join(Machine, Machine.id == Position.machine_id)
+        .join(Site, Site.id == Machine.site_id).where(Installation.removed_at.is_(None))
+    )
+    return {pump_id: {"site": s, "machine": m, "position": p} for pump_id, s, m, p in rows}
+
+
+def _last_readings(session: Session, pump_ids) -> dict[int, tuple[datetime, float]]:
+    latest = (select(Reading.pump_id, func.max(Reading.taken_at).label("at"))
+              .where(Reading.pump_id.in_(list(pump_ids))).group_by(Reading.pump_id).subquery())
+    rows = session.execute(select(Reading.pump_id, Reading.taken_at, Reading.hours)
+                           .join(latest, (latest.c.pump_id == Reading.pump_id) & (latest.c.at == Reading.taken_at)))
+    return {pump_id: (at, hours) for pump_id, at, hours in rows}
+
+
+def route_list(session: Session) -> dict:
+    """Stored routes with their stops; when there are none, one suggested route per machine."""
+    routes = session.scalars(select(Route).order_by(Route.name)).all()
+    places = _current_places(session)
+    listed = []
+    for route in routes:
+        stops = [{"seq": stop.seq, "pump": stop.pump.serial, **places.get(stop.pump_id, {})} for stop in route.stops]
+        listed.append({"id": route.id, "name": route.name, "note": route.note, "stops": stops,
+                       "pumps": [stop["pump"] for stop in stops]})
+    rows = [{"id": r["id"], "name": r["name"], "stops": len(r["stops"]), "pumps": r["pumps"]} for r in listed]
+    return {
+        "routes": listed,
+        "rows": rows,
+        "suggested": [] if routes else suggested_routes(session),
+        "pumps": list(session.scalars(select(Pump.serial).order_by(Pump.serial))),
+    }
+
+
+def suggested_routes(session: Session) -> list[dict]:
+    """One route per machine from the register: its installed pumps in position order."""
+    rows = session.execute(
+        select(Site.name, Machine.name, Position.name, Pump.serial)
+        .select_from(Installation).join(Pump, Pump.id == Installation.pump_id)
+        .join(Position, Position.id == Installation.position_id).join(Machine, Machine.id == Position.machine_id)
+        .join(Site, Site.id == Machine.site_id).where(Installation.removed_at.is_(None))
+        .order_by(Site.name, Machine.name, Position.name)
+    ).all()
+    routes: dict[tuple[str, str], list[str]] = {}
+    for site, machine, _position, serial in rows:
+        routes.setdefault((site, machine), []).append(serial)
+    return [{"name": f"{site} · {machine}", "pumps": serials} for (site, machine), serials in routes.items()]
+
+
+def parse_serials(text: str) -> list[str]:
+    """Serials typed one per line (or separated by commas), blanks dropped, order kept."""
+    return [part.strip() for line in text.splitlines() for part in line.split(",") if part.strip()]
+
+
+def create_route(session: Session, name: str, serials: list[str], note: str | None = None) -> Route:
+    """Store a route walking ``serials`` in that order; RouteError lists every problem, nothing is written."""
+    name = (name or "").strip()
+    problems = []
+    if not name:
+        problems.append("give the route a name")
+    elif session.scalar(select(Route.id).where(Route.name == name)) is not None:
+        problems.append(f"a route named '{name}' already exists")
+    if not serials:
+        problems.append("list at least one pump")
+    seen = set()
+    for serial in serials:
+        if serial in seen:
+            problems.append(f"pump '{serial}' is listed twice")
+        seen.add(serial)
+    known = dict(session.execute(select(Pump.serial, Pump.id).where(Pump.serial.in_(serials))).all())
+    problems += [f"no pump '{s}' in the register" for s in serials if s not in known]
+    if problems:
+        raise RouteError(problems)
+    route = Route(name=name, note=note or None,
+                  stops=[RouteStop(pump_id=known[s], seq=i) for i, s in enumerate(serials, start=1)])
+    session.add(route)
+    session.flush()
+    return route
+
+
+def route_walk(session: Session, route_id: int, now: datetime | None = None) -> dict | None:
+    """A route's stops in order, each with what the technician needs at the pump; None if no such route."""
+    route = session.get(Route, route_id)
+    if route is None:
+        return None
+    now = now or utcnow()
+    places = _current_places(session)
+    last = _last_readings(session, [stop.pump_id for stop in route.stops])
+    stops = []
+    for number, stop in enumerate(route.stops, start=1):
+        pump = stop.pump
+        at, hours = last.get(pump.id, (None, None))
+        stops.append({
+            "number": number, "pump": pump.serial, "kind_label": PUMP_KINDS.get(pump.kind, pump.kind),
+            **{k: None for k in ("site", "machine", "position")}, **places.get(pump.id, {}),
+            "last_reading_at": at.isoformat(sep=" ", timespec="minutes") if at else None, "last_hours": hours,
+            "read_today": bool(at and at.date() == now.date()),
+        })
+    return {"route": {"id": route.id, "name": route.name, "note": route.note}, "stops": stops}
+
+
+# --- one reading -------------------------------------------------------------------------------------------
+
+def fields_for(pump: Pump) -> list[FormField]:
+    return [f for f in FORM_FIELDS if f.only_if is None or getattr(pump, f.only_if)]
+
+
+def reading_table(serial: str, taken_at: str, values: dict[str, str], chosen_units: dict[str, str],
+                  note: str = "", taken_by: str = "") -> pd.DataFrame:
+    """One row of text cells whose headers carry the chosen units, e.g. ``outlet_flow [gal/min]``."""
+    row = {"pump": serial, "taken_at": (taken_at or "").replace("T", " ")}
+    for spec in FORM_FIELDS:
+        if spec.name not in values:
+            continue
+        unit = STROKE_UNIT if spec.name == "stroke" else chosen_units.get(spec.name)
+        header = f"{spec.name} [{unit}]" if unit else spec.name
+        row[header] = values[spec.name]
+    row["note"] = note or ""
+    row["taken_by"] = taken_by or ""
+    return pd.DataFrame([row], dtype=str)
+
+
+@dataclass
+class PumpFacts:
+    """What a reading of one pump is checked against."""
+
+    displacement_cc: float
+    rated_pressure_bar: float
+    oil_temp_min_c: float
+    oil_temp_max_c: float
+    last_taken_at: datetime | None
+    last_hours: float | None
+
+
+def pump_facts(session: Session, pump: Pump, before: datetime | None = None) -> PumpFacts:
+    """Limits of ``pump`` and its latest reading (before ``before`` when given)."""
+    limits = load_pumps(session, [pump.id]).iloc[0]
+    statement = select(Reading.taken_at, Reading.hours).where(Reading.pump_id == pump.id)
+    if before is not None:
+        statement = statement.where(Reading.taken_at < before)
+    last = session.execute(statement.order_by(Reading.taken_at.desc()).limit(1)).first()
+    return PumpFacts(pump.displacement_cc, pump.rated_pressure_bar, float(limits["oil_temp_min_c"]),
+                     float(limits["oil_temp_max_c"]), last[0] if last else None, last[1] if last else None)
+
+
+@dataclass(frozen=True)
+class Doubt:
+    code: str
+    field: str
+    message: str
+
+
+def plausibility_warnings(facts: PumpFacts, reading: dict, now: datetime) -> list[Doubt]:
+    """Readings that can be right but often are a slip of the finger: shown before saving, never refused.
+
+    ``reading`` holds canonical values: taken_at, hours, outlet_pressure (bar), speed (rpm), outlet_flow (L/min),
+    oil_temp (degC), stroke (fraction; None = full).
+    """
+    warnings = []
+    stroke = reading.get("stroke")
+    theoretical = float(theoretical_flow_lpm(facts.displacement_cc, reading["speed"], 1.0 if _blank(stroke)
+                                             else stroke))
+    flow = reading.get("outlet_flow")
+    if not _blank(flow) and flow > theoretical:
+        warnings.append(Doubt("flow_above_theoretical", "outlet_flow",
+                                 f"Outlet flow {flow:.1f} L/min is above the theoretical {theoretical:.1f} L/min at "
+                                 f"{reading['speed']:.0f} rpm: a pump cannot deliver more than its displacement."))
+    if reading["outlet_pressure"] > facts.rated_pressure_bar:
+        warnings.append(Doubt("pressure_above_rated", "outlet_pressure",
+                                 f"Outlet pressure {reading['outlet_pressure']:.1f} bar is above the rated "
+                                 f"{facts.rated_pressure_bar:.0f} bar."))
+    temp = reading["oil_temp"]
+    if not facts.oil_temp_min_c <= temp <= facts.oil_temp_max_c:
+        warnings.append(Doubt("temperature_outside_limits", "oil_temp",
+                                 f"Oil temperature {temp:.1f} °C is outside this pump's limits "
+                                 f"({facts.oil_temp_min_c:.0f}–{facts.oil_temp_max_c:.0f} °C)."))
+    if facts.last_hours is not None and reading["hours"] < facts.last_hours:
+        warnings.append(Doubt("hours_backwards", "hours",
+                                 f"Running hours {reading['hours']:.0f} h are below the last reading's "
+                                 f"{facts.last_hours:.0f} h ({facts.last_taken_at:%Y-%m-%d}): is it the right pump "
+                                 "or a new hour meter?"))
+    if reading["taken_at"] > now:
+        warnings.append(Doubt("time_in_future", "taken_at",
+                                 f"The time {reading['taken_at']:%Y-%m-%d %H:%M} is later than now "
+                                 f"({now:%Y-%m-%d %H:%M} UTC)."))
+    return warnings
+
+
+def _blank(value) -> bool:
+    return value is None or (isinstance(value, float) and not np.isfinite(value))
+
+
+@dataclass
+class CheckOutcome:
+    problems: list[Problem] = field(default_factory=list)  # hard errors: the importer refuses the row
+    warnings: list[Doubt] = field(default_factory=list)  # plausibility: the technician may confirm
+
+    @property
+    def clean(self) -> bool:
+        return not self.problems and not self.warnings
+
+
+def check_reading(session: Session, pump: Pump, table: pd.DataFrame, now: datetime | None = None) -> CheckOutcome:
+    """Run the importer on ``table`` without keeping anything (a savepoint rolled back), then the plausibility
+    checks. Leaves the session as it found it."""
+    now = now or utcnow()
+    nested = session.begin_nested()
+    try:
+        import_table(session, "readings", table, now=now, source="form")
+    except ImportRejected as rejected:
+        return CheckOutcome(problems=rejected.problems)
+    finally:
+        nested.rollback()
+    parsed, _ = parse_table("readings", table)
+    row = parsed.data.iloc[0]
+    reading = {name: _plain(row.get(name)) for name in
+               ("taken_at", "hours", "outlet_pressure", "speed", "outlet_flow", "oil_temp", "stroke")}
+    facts = pump_facts(session, pump, before=reading["taken_at"])
+    return CheckOutcome(warnings=plausibility_warnings(facts, reading, now))
+
+
+def _plain(value):
+    if value is None or value is pd.NaT:
+        return None
+    if isinstance(value, pd.Timestamp):
+        return value.to_pydatetime()
+    if isinstance(value, np.generic):
+        value = value.item()
+    return None if isinstance(value, float) and not np.isfinite(value) else value
+
+
+def save_reading(session: Session, table: pd.DataFrame, now: datetime | None = None,
+                 source: str = "form") -> tuple[ImportResult, RefreshSummary]:
+    """Store the reading through the importer, then re-analyse that pump. Raises ImportRejected."""
+    result = import_table(session, "readings", table, now=now, source=source)
+    summary = refresh_analysis(session, pump_ids=sorted(result.pump_ids))
+    return result, summary
+
+
+def unit_choices() -> dict[str, tuple[str, ...]]:
+    """Units the form offers per field (canonical first)."""
+    return {f.name: units.CHOICES[f.quantity] for f in FORM_FIELDS if f.quantity}

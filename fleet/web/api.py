@@ -1,0 +1,176 @@
+"""POST /api/readings: readings from data loggers and handhelds, checked by the same importer as a CSV file.
+
+The body is one JSON object or a list of them, keyed by the readings CSV column names. A number may carry its
+unit: ``"outlet_pressure": {"value": 3000, "unit": "psi"}``. All or nothing: 201 with the stored readings and
+each pump's refreshed status, or 422 with every problem and nothing written. Problem rows count the posted
+objects from 1 (row 0: the request as a whole).
+"""
+
+import math
+
+import pandas as pd
+from flask import Blueprint, jsonify, request
+from sqlalchemy import select, tuple_
+
+from fleet import units
+from fleet.db.models import AnalysisResult, Pump, Reading
+from fleet.io.columns import READINGS
+from fleet.io.parse import ImportRejected, Problem, parse_table
+from fleet.services.rounds import save_reading
+from fleet.web.db import session
+
+bp = Blueprint("api", __name__, url_prefix="/api")
+
+# 'source' is the server's to set: everything posted here is an API reading.
+FIELDS = {column.name: column for column in READINGS if column.name != "source"}
+MAX_ITEMS = 5000
+
+
+def _problems_response(problems: list[Problem], status: int = 422):
+    body = {"problems": [{"row": p.row, "column": p.column, "reason": p.reason} for p in sorted(problems)]}
+    return jsonify(body), status
+
+
+def _cell(value, item_no: int, name: str, problems: list[Problem]) -> str:
+    """A JSON scalar as the text cell the importer reads; anything else is a problem."""
+    if value is None:
+        return ""
+    if isinstance(value, bool):
+        problems.append(Problem(item_no, name, "true/false is not a value of this field"))
+        return ""
+    if isinstance(value, int | float):
+        if not math.isfinite(value):
+            problems.append(Problem(item_no, name, f"{value} is not a finite number"))
+            return ""
+        return repr(value)
+    if isinstance(value, str):
+        spec = FIELDS[name]
+        if spec.type == "number" and value.strip().lower().lstrip("+-") in ("inf", "infinity", "nan"):
+            problems.append(Problem(item_no, name, f"'{value}' is not a finite number"))
+            return ""
+        return value
+    problems.append(Problem(item_no, name, "expected a number or text, or {\"value\": ..., \"unit\": ...}"))
+    return ""
+
+
+def readings_table(items: list) -> tuple[pd.DataFrame, list[Problem]]:
+    """The posted objects as a table of text cells for the importer, and the problems of their shape.
+
+    A column whose values all carry the same unit keeps it in its header (the importer converts it); when
+    objects use different units, each value is converted here to the canonical unit with fleet.units.
+    """
+    problems: list[Problem] = []
+    cells: list[dict[str, str]] = []
+    unit_of: list[dict[str, str | None]] = []
+    for item_no, item in enumerate(items, start=1):
+        row: dict[str, str] = {}
+        row_units: dict[str, str | None] = {}
+        if not isinstance(item, dict):
+            problems.append(Problem(item_no, "", "each reading must be a JSON object"))
+        else:
+            for name, value in item.items():
+                if name not in FIELDS:
+                    problems.append(Problem(item_no, str(name), f"not a readings field (fields: {', '.join(FIELDS)})"))
+                    continue
+                unit = None
+                if isinstance(value, dict):
+                    unit, value = _split_unit(value, item_no, name, problems)
+                row[name] = _cell(value, item_no, name, problems)
+                row_units[name] = unit
+        cells.append(row)
+        unit_of.append(row_units)
+    columns = [name for name in FIELDS if any(name in row for row in cells)]
+    table = {}
+    for name in columns:
+        used = {u.get(name) for u in unit_of if name in u}
+        values = [row.get(name, "") for row in cells]
+        if len(used) <= 1:
+            unit = next(iter(used), None)
+            table[f"{name} [{unit}]" if unit else name] = values
+        else:
+            table[name] = [_to_canonical(v, u.get(name), FIELDS[name].quantity)
+                           for v, u in zip(values, unit_of, strict=True)]
+    return pd.DataFrame(table, index=range(len(cells)), dtype=str), problems
+
+
+def _split_unit(value: dict, item_no: int, name: str, problems: list[Problem]):
+    spec = FIELDS[name]
+    unit = value.get("unit")
+    if set(value) - {"value", "unit"} or "value" not in value:
+        problems.append(Problem(item_no, name, 'write a number with its unit as {"value": 10, "unit": "gal/min"}'))
+        return None, None
+    if unit is None:
+        return None, value["value"]
+    if not isinstance(unit, str):
+        problems.append(Problem(item_no, name, "the unit must be text, e.g. \"psi\""))
+        return None, None
+    if spec.quantity is None:
+        problems.append(Problem(item_no, name, "this field takes a plain value, without a unit"))
+        return None, None
+    try:
+        units.resolve(unit, spec.quantity)
+    except units.UnitError as error:
+        problems.append(Problem(item_no, name, str(error)))
+        return None, None
+    return unit, value["value"]
+
+
+def _to_canonical(text: str, unit: str | None, quantity: str | None) -> str:
+    if not unit or not text.strip() or quantity is None:
+        return text
+    try:
+        return repr(units.convert_one(float(text), unit, quantity))
+    except ValueError:
+        return text  # not a number: the importer names it
+
+
+@bp.post("/readings")
+def post_readings():
+    body = request.get_json(silent=True)
+    if body is None:
+        return _problems_response([Problem(0, "", "the body must be JSON: one reading object or a list of them")],
+                                  400)
+    items = body if isinstance(body, list) else [body]
+    if not items:
+        return _problems_response([Problem(0, "", "the list holds no readings")])
+    if len(items) > MAX_ITEMS:
+        return _problems_response([Problem(0, "", f"at most {MAX_ITEMS} readings per request")], 413)
+    table, problems = readings_table(items)
+    if problems:
+        return _problems_response(problems)
+    db = session()
+    try:
+        result, _summary = save_reading(db, table, source="api")
+    except ImportRejected as rejected:
+        db.rollback()
+        # The importer counts rows as a spreadsheet does (header = row 1); here row 1 is the first object.
+        return _problems_response([Problem(max(p.row - 1, 0), _field_name(p.column), p.reason)
+                                   for p in rejected.problems])
+    stored = _stored(db, table)
+    statuses = _statuses(db, result.pump_ids)
+    db.commit()
+    return jsonify({"created": result.created, "readings": stored, "pumps": statuses}), 201
+
+
+def _field_name(column: str) -> str:
+    try:
+        return units.parse_header(column)[0]
+    except units.UnitError:
+        return column
+
+
+def _stored(db, table: pd.DataFrame) -> list[dict]:
+    parsed, _ = parse_table("readings", table)
+    keys = [(serial, stamp.to_pydatetime()) for serial, stamp in zip(parsed.data["pump"], parsed.data["taken_at"],
+                                                                       strict=True)]
+    rows = db.execute(select(Reading.id, Pump.serial, Reading.taken_at).join(Pump, Pump.id == Reading.pump_id)
+                      .where(tuple_(Pump.serial, Reading.taken_at).in_(keys)))
+    found = {(serial, at): rid for rid, serial, at in rows}
+    return [{"id": found.get(key), "pump": key[0], "taken_at": key[1].isoformat(timespec="minutes")} for key in keys]
+
+
+def _statuses(db, pump_ids) -> list[dict]:
+    rows = db.execute(select(Pump.serial, AnalysisResult).join(AnalysisResult, AnalysisResult.pump_id == Pump.id)
+                      .where(Pump.id.in_(list(pump_ids))).order_by(Pump.serial))
+    return [{"pump": serial, "status": r.status, "reasons": r.reasons, "eta_v_ref": r.eta_v_ref,
+             "hours_to_limit": r.hours_to_limit, "limit_date": r.limit_date} for serial, r in rows]

@@ -1,0 +1,164 @@
+"""Rounds: pick or make a route, then walk it with one quick reading form per pump.
+
+The form works without JavaScript: "Check and save" runs the importer's validation and the plausibility
+checks first; doubtful values come back with the reasons and a "Save as typed" button; refused values come
+back with every typed value kept. The unit chosen for each field is remembered in a cookie.
+"""
+
+from urllib.parse import parse_qsl, urlencode
+
+from flask import Blueprint, abort, flash, make_response, redirect, render_template, request, url_for
+from sqlalchemy import select
+
+from fleet import units
+from fleet.db.models import Pump
+from fleet.io.parse import ImportRejected
+from fleet.services import rounds
+from fleet.timeutil import utcnow
+from fleet.web.db import session
+from fleet.web.respond import respond, twin_routes, twin_urls, wants_json
+
+bp = Blueprint("rounds", __name__)
+
+UNIT_COOKIE = "fleet_units"
+UNIT_COOKIE_AGE_S = 365 * 24 * 3600
+ROUTE_COLUMNS = ("id", "name", "stops", "pumps")
+STOP_COLUMNS = ("number", "pump", "kind_label", "site", "machine", "position", "last_reading_at", "last_hours",
+                "read_today")
+
+
+# --- routes ------------------------------------------------------------------------------------------------
+
+@twin_routes(bp, "/rounds")
+def index(fmt):
+    data = rounds.route_list(session())
+    return respond(data, "rounds/index.html", fmt, "rows", ROUTE_COLUMNS, "routes")
+
+
+@bp.post("/rounds")
+def create():
+    form = request.form
+    serials = rounds.parse_serials(form.get("pumps", ""))
+    try:
+        route = rounds.create_route(session(), form.get("name", ""), serials, form.get("note"))
+    except rounds.RouteError as error:
+        session().rollback()
+        data = rounds.route_list(session())
+        if wants_json(None):
+            return {"problems": error.problems}, 422
+        return render_template("rounds/index.html", twins=twin_urls_for_index(), errors=error.problems,
+                               form=form, **data), 422
+    session().commit()
+    flash(f"Route '{route.name}' saved with {len(route.stops)} pump(s).", "info")
+    return redirect(url_for("rounds.walk", route_id=route.id))
+
+
+def twin_urls_for_index() -> dict[str, str]:
+    return {fmt: url_for("rounds.index", fmt=fmt) for fmt in ("json", "csv")}
+
+
+# --- walking a route ---------------------------------------------------------------------------------------
+
+@twin_routes(bp, "/rounds/<int:route_id>")
+def walk(route_id, fmt):
+    data = rounds.route_walk(session(), route_id)
+    if data is None:
+        abort(404, description="No such route.")
+    if wants_json(fmt) or fmt == "csv":
+        return respond(data, "rounds/walk.html", fmt, "stops", STOP_COLUMNS, f"route-{route_id}")
+    number = request.args.get("stop", type=int) or _first_unread(data["stops"])
+    return _render_walk(data, number, values={}, chosen=_remembered_units(), twins=twin_urls())
+
+
+@bp.post("/rounds/<int:route_id>/stops/<int:number>")
+def reading(route_id, number):
+    db = session()
+    data = rounds.route_walk(db, route_id)
+    if data is None or not 1 <= number <= len(data["stops"]):
+        abort(404, description="No such stop on this route.")
+    stop = data["stops"][number - 1]
+    pump = db.scalar(select(Pump).where(Pump.serial == stop["pump"]))
+    form = request.form
+    fields = rounds.fields_for(pump)
+    values = {f.name: form.get(f.name, "") for f in fields}
+    values.update(taken_at=form.get("taken_at", ""), note=form.get("note", ""), taken_by=form.get("taken_by", ""))
+    chosen = _chosen_units(form)
+    table = rounds.reading_table(pump.serial, values["taken_at"], {f.name: values[f.name] for f in fields}, chosen,
+                                 values["note"], values["taken_by"])
+    action = form.get("action", "save")
+    outcome = rounds.check_reading(db, pump, table)
+    confirmed = set(filter(None, form.get("confirmed", "").split(",")))
+    doubts = {d.code for d in outcome.warnings}
+    if outcome.problems or action == "check" or (doubts and not (action == "confirm" and doubts <= confirmed)):
+        status = 422 if outcome.problems else 200
+        page = _render_walk(data, number, values=values, chosen=chosen, outcome=outcome, checked=True,
+                            twins={fmt: url_for("rounds.walk", route_id=route_id, fmt=fmt) for fmt in ("json", "csv")})
+        return _remember_units(page, chosen), status
+    try:
+        result, summary = rounds.save_reading(db, table)
+    except ImportRejected as rejected:  # stored by someone else between the check and the save
+        db.rollback()
+        outcome = rounds.CheckOutcome(problems=rejected.problems)
+        page = _render_walk(data, number, values=values, chosen=chosen, outcome=outcome, checked=True,
+                            twins={fmt: url_for("rounds.walk", route_id=route_id, fmt=fmt) for fmt in ("json", "csv")})
+        return _remember_units(page, chosen), 422
+    db.commit()
+    flash(f"Saved the reading of {pump.serial}; {summary.describe()}.", "info")
+    after = number + 1 if number < len(data["stops"]) else None
+    target = url_for("rounds.walk", route_id=route_id, stop=after) if after else \
+        url_for("rounds.walk", route_id=route_id, stop=number, done=1)
+    return _remember_units(redirect(target), chosen)
+
+
+def _first_unread(stops: list[dict]) -> int:
+    return next((s["number"] for s in stops if not s["read_today"]), 1)
+
+
+def _render_walk(data: dict, number: int, values: dict, chosen: dict, twins: dict, outcome=None,
+                 checked: bool = False) -> str:
+    number = min(max(number, 1), len(data["stops"])) if data["stops"] else 0
+    stop = data["stops"][number - 1] if number else None
+    pump = session().scalar(select(Pump).where(Pump.serial == stop["pump"])) if stop else None
+    errors: dict[str, list[str]] = {}
+    for problem in (outcome.problems if outcome else []):
+        errors.setdefault(_field_of(problem.column), []).append(problem.reason)
+    doubts: dict[str, list[str]] = {}
+    for doubt in (outcome.warnings if outcome else []):
+        doubts.setdefault(doubt.field, []).append(doubt.message)
+    return render_template(
+        "rounds/walk.html", twins=twins, **data, number=number, stop=stop, pump=pump,
+        fields=rounds.fields_for(pump) if pump else [], choices=units.CHOICES, stroke_unit=rounds.STROKE_UNIT,
+        values=values, chosen=chosen, default_time=utcnow().strftime("%Y-%m-%dT%H:%M"), outcome=outcome,
+        errors=errors, doubts=doubts, checked=checked, done=request.args.get("done") == "1",
+        confirm_codes=",".join(sorted({d.code for d in outcome.warnings})) if outcome else "",
+    )
+
+
+def _field_of(column: str) -> str:
+    """The form field a problem's column names ('outlet_flow [gal/min]' -> 'outlet_flow')."""
+    return units.parse_header(column)[0] if column else ""
+
+
+# --- units remembered per browser --------------------------------------------------------------------------
+
+def _valid(chosen: dict) -> dict[str, str]:
+    offered = rounds.unit_choices()
+    return {name: unit for name, unit in chosen.items() if name in offered and unit in offered[name]}
+
+
+def _remembered_units() -> dict[str, str]:
+    return _valid(dict(parse_qsl(request.cookies.get(UNIT_COOKIE, ""))))
+
+
+def _chosen_units(form) -> dict[str, str]:
+    chosen = _remembered_units()
+    chosen.update(_valid({name: form.get(f"{name}_unit", "") for name in rounds.unit_choices()}))
+    return chosen
+
+
+def _remember_units(response, chosen: dict):
+    response = make_response(response)
+    # Query-string form ('outlet_flow=gal%2Fmin&...'): safe in a cookie value whatever the unit's spelling.
+    response.set_cookie(UNIT_COOKIE, urlencode(sorted(chosen.items())), max_age=UNIT_COOKIE_AGE_S,
+                        samesite="Lax", httponly=True)
+    return response

@@ -1,0 +1,180 @@
+"""The pump page: HTML, its JSON and CSV twins, the referred readings and the flow-test baseline."""
+
+import csv
+import io
+import math
+
+import numpy as np
+import pandas as pd
+import pytest
+
+from fleet import charts
+from fleet.services.pumppage import READING_COLUMNS, baseline_flow_lpm
+
+FIXED_PUMP = "EY-104"  # invented demo plant: an internal gear pump (fixed displacement, no case drain)
+PISTON_PUMP = "EY-101"  # invented demo plant: a variable axial piston pump with a case drain
+
+PAGE_KEYS = {"pump", "where", "oil", "limits", "headline", "installations", "events", "readings", "trend",
+             "samples", "flow_test"}
+HEADLINE_KEYS = {"status", "reasons", "rank", "eta_v_ref", "eta_v_decline_per_1000h", "drain_pct_ref",
+                 "hours_to_limit", "hours_to_limit_low", "hours_to_limit_high", "limit_date", "governing_limit",
+                 "prior_hours_to_overhaul", "energy_cost_per_year", "limit_date_low", "limit_date_high",
+                 "confidence", "upper_bound_open", "currency", "leakage_kw", "overhaul_saving_per_year",
+                 "overhaul_payback_years", "prior_b10_hours", "data_note", "last_reading_at", "hours_per_day",
+                 "cleanliness_code", "computed_at"}
+
+
+def _walther_cst(temp_c, nu40, nu100):
+    """ASTM D341: log10(log10(nu + 0.7)) = A - B log10(T[K]), fixed by two data-sheet points."""
+    z = lambda nu: math.log10(math.log10(nu + 0.7))  # noqa: E731
+    t40, t100 = math.log10(313.15), math.log10(373.15)
+    b = (z(nu40) - z(nu100)) / (t100 - t40)
+    a = z(nu40) + b * t40
+    return 10 ** (10 ** (a - b * math.log10(temp_c + 273.15))) - 0.7
+
+
+def test_walther_helper_matches_the_astm_d341_worked_example():
+    # ASTM D341 worked example (reproduced in our domain notes): 32 / 5.4 cSt at 40 / 100 degC -> 8.53 cSt at 80 degC.
+    assert _walther_cst(80.0, 32.0, 5.4) == pytest.approx(8.53, abs=0.01)
+
+
+def test_pump_page_shows_headline_charts_and_tables(client):
+    page = client.get(f"/pumps/{PISTON_PUMP}")
+    assert page.status_code == 200
+    html = page.get_data(as_text=True)
+    data = client.get(f"/pumps/{PISTON_PUMP}.json").get_json()
+    status = data["headline"]["status"]
+    assert f"Pump {PISTON_PUMP}" in html
+    assert {"past_limit": "Past limit", "due_soon": "Due soon", "watch": "Watch", "healthy": "Healthy"}[status] in html
+    for text in ("Fleet history (not this pump's trend)", "Leakage energy cost", "Overhaul payback", "Rated data",
+                 "Where it has been", "Maintenance", "Readings"):
+        assert text in html
+    for reason in data["headline"]["reasons"]:
+        assert reason.replace("'", "&#39;") in html
+    # Charts drawn by plotly served from this server, never a CDN: the page must work offline.
+    assert '<script src="/assets/plotly.min.js"></script>' in html
+    assert "cdn.plot.ly" not in html
+    for div in ("chart-efficiency", "chart-drain", "chart-temperature"):
+        assert f'id="{div}"' in html
+    assert f'href="/pumps/{PISTON_PUMP}.json"' in html and f'href="/pumps/{PISTON_PUMP}.csv"' in html
+
+
+def test_json_twin_has_exact_keys_and_matches_the_service_list(client):
+    data = client.get(f"/pumps/{PISTON_PUMP}.json").get_json()
+    assert set(data) == PAGE_KEYS
+    assert set(data["headline"]) == HEADLINE_KEYS
+    assert set(data["readings"][0]) == set(READING_COLUMNS)
+    assert set(data["limits"]) == {"eta_v_limit", "drain_limit_pct", "oil_temp_min_c", "oil_temp_max_c",
+                                   "cleanliness_target", "reading_interval_days", "planning_horizon_weeks"}
+    listed = {row["pump"]: row for row in client.get("/index.json?page_size=500").get_json()["pumps"]}
+    assert data["headline"]["status"] == listed[PISTON_PUMP]["status"]
+    assert data["headline"]["eta_v_ref"] == listed[PISTON_PUMP]["eta_v_ref"]
+    # The same JSON when the request asks for it on the page's own address.
+    negotiated = client.get(f"/pumps/{PISTON_PUMP}", headers={"Accept": "application/json"})
+    assert negotiated.is_json and negotiated.get_json() == data
+
+
+def test_csv_twin_is_the_readings_table(client):
+    data = client.get(f"/pumps/{FIXED_PUMP}.json").get_json()
+    response = client.get(f"/pumps/{FIXED_PUMP}.csv")
+    assert response.status_code == 200 and response.mimetype == "text/csv"
+    assert f'filename="pump-{FIXED_PUMP}.csv"' in response.headers["Content-Disposition"]
+    rows = list(csv.reader(io.StringIO(response.get_data(as_text=True))))
+    assert rows[0] == list(READING_COLUMNS)
+    assert len(rows) - 1 == len(data["readings"]) > 10
+    assert rows[-1][0] == data["readings"][-1]["taken_at"]
+
+
+def test_referred_efficiency_matches_the_handbook_referral(client):
+    """eta_v,ref recomputed outside fleet: theoretical flow (handbook), ASTM D341 viscosity, laminar referral."""
+    data = client.get(f"/pumps/{FIXED_PUMP}.json").get_json()
+    pump, oil = data["pump"], data["oil"]
+    usable = [r for r in data["readings"] if r["flag"] is None and r["outlet_flow_lpm"] is not None]
+    row = usable[-1]  # the latest reading: taken in the machine whose oil the page lists
+    q_th = pump["displacement_cc"] * row["speed_rpm"] / 1000.0  # Q_th = V_g n / 1000 (hydraulics handbook)
+    assert row["eta_v"] == pytest.approx(row["outlet_flow_lpm"] / q_th, rel=1e-9)
+
+    def mu(temp_c):  # mu = nu rho; density falls 0.07 %/K (common practice, no source)
+        return _walther_cst(temp_c, oil["viscosity_40"], oil["viscosity_100"]) * oil["density_15"] * \
+            (1 - 0.0007 * (temp_c - 15.0))
+
+    # Laminar slip scales with pressure and inversely with viscosity (Wilson 1950; domain notes section 4).
+    slip_ref = (q_th - row["outlet_flow_lpm"]) * (pump["rated_pressure_bar"] / row["outlet_pressure_bar"]) * \
+        (mu(row["oil_temp_c"]) / mu(pump["reference_temp_c"]))
+    expected = 1.0 - slip_ref / (pump["displacement_cc"] * pump["rated_speed_rpm"] / 1000.0)
+    assert row["eta_v_ref"] == pytest.approx(expected, abs=2e-4)
+
+
+def test_case_drain_raw_and_referred_as_percent_of_max_flow(client):
+    data = client.get(f"/pumps/{PISTON_PUMP}.json").get_json()
+    row = next(r for r in reversed(data["readings"]) if r["flag"] is None and r["case_drain_lpm"] is not None)
+    assert row["case_drain_pct"] == pytest.approx(100 * row["case_drain_lpm"] / data["pump"]["max_flow_lpm"])
+    assert row["case_drain_pct_ref"] == pytest.approx(100 * row["case_drain_ref_lpm"] / data["pump"]["max_flow_lpm"])
+
+
+def test_trend_forecast_reaches_the_limit_where_the_analysis_says(client):
+    data = client.get(f"/pumps/{PISTON_PUMP}.json").get_json()
+    trend = data["trend"]
+    assert trend is not None and trend["points"][0]["hours"] == pytest.approx(trend["interval_start_hours"])
+    points = pd.DataFrame(trend["points"])
+    assert (points["low"] <= points["mean"] + 1e-12).all() and (points["mean"] <= points["high"] + 1e-12).all()
+    assert points["forecast"].any() and not points["forecast"].all()
+    if trend["limit_hours"] is not None:
+        at_limit = np.interp(trend["limit_hours"], points["hours"], points["mean"])
+        assert at_limit == pytest.approx(data["limits"]["eta_v_limit"], abs=2e-3)
+
+
+def test_baseline_flow_reproduces_the_worked_efficiency_example():
+    # Fluid Power Journal, "Hydraulic Pumps and Motors: Considering Efficiency": 100 cm3/rev at 1000 rpm is
+    # 100 L/min theoretical; 90 L/min at 207 bar is eta_v 0.90. A slip of 10 L/min at 207 bar gives that point.
+    flows = baseline_flow_lpm(100.0, 1000.0, 10.0, 207.0, [0.0, 103.5, 207.0])
+    assert flows == pytest.approx([100.0, 95.0, 90.0])  # slip grows linearly with pressure (laminar, Wilson)
+    # Hot oil: half the viscosity, twice the slip (Hagen-Poiseuille: leakage inversely proportional to mu).
+    assert baseline_flow_lpm(100.0, 1000.0, 10.0, 207.0, 207.0, viscosity_ratio=2.0) == pytest.approx(80.0)
+
+
+def test_flow_test_points_sit_beside_the_baseline(client):
+    tested = None
+    for serial in [row["pump"] for row in client.get("/index.json?page_size=500").get_json()["pumps"]]:
+        data = client.get(f"/pumps/{serial}.json").get_json()
+        if data["flow_test"]:
+            tested = data
+            break
+    assert tested is not None, "the invented demo plant has multi-point flow tests"
+    test = tested["flow_test"]
+    assert len(test["points"]) >= 3
+    first = test["baseline"][0]
+    # At zero pressure there is no slip: the baseline starts at V_g n / 1000 at the test's speed (handbook).
+    assert first["pressure_bar"] == 0.0
+    assert first["flow_lpm"] == pytest.approx(tested["pump"]["displacement_cc"] * test["speed_rpm"] / 1000.0)
+    html = client.get(f"/pumps/{tested['pump']['serial']}").get_data(as_text=True)
+    assert 'id="chart-flowtest"' in html and "Flow test of" in html
+
+
+def test_unknown_pump_is_404_in_every_format(client):
+    assert client.get("/pumps/NO-SUCH").status_code == 404
+    missing = client.get("/pumps/NO-SUCH.json")
+    assert missing.status_code == 404 and missing.get_json() == {"error": "no pump 'NO-SUCH' in the register"}
+
+
+def test_service_list_links_reach_the_pump_page(client):
+    html = client.get("/").get_data(as_text=True)
+    assert f'href="/pumps/{FIXED_PUMP}"' in html
+    assert client.get(f"/pumps/{FIXED_PUMP}").status_code == 200
+
+
+def test_efficiency_figure_carries_points_band_limit_and_events():
+    readings = pd.DataFrame({"hours": [0.0, 500.0, 1000.0], "eta_v": [0.93, 0.92, 0.91],
+                             "eta_v_ref": [0.95, 0.94, 0.93]})
+    band = pd.DataFrame({"hours": [0.0, 1000.0, 2000.0], "mean": [0.95, 0.93, 0.90], "low": [0.94, 0.92, 0.88],
+                         "high": [0.96, 0.94, 0.92], "forecast": [False, False, True]})
+    events = pd.DataFrame({"chart_hours": [700.0], "kind_label": ["Inspection"]})
+    fig = charts.efficiency_figure(readings, band, 0.85, events)
+    named = {trace.name: trace for trace in fig.data}
+    assert list(named["η_v,ref (referred)"].y) == [0.95, 0.94, 0.93]
+    assert list(named["forecast"].x) == [1000.0, 2000.0]
+    shapes = fig.layout.shapes
+    assert any(s.y0 == 0.85 and s.y1 == 0.85 for s in shapes)  # the limit line
+    assert any(s.x0 == 700.0 and s.x1 == 700.0 for s in shapes)  # the event marker
+    html = charts.figure_html(fig, "chart-x")
+    assert 'id="chart-x"' in html and "<script" in html and "plotly.min.js" not in html
