@@ -23,6 +23,20 @@ def _as_text(table: pd.DataFrame) -> pd.DataFrame:
     return table.astype(object).where(table.notna(), "").astype(str)
 
 
+def _add_shutdown_windows(session: Session, end) -> None:
+    """Two planned stops for the planner to fit overhauls into (invented), entered as the plan page does."""
+    from fleet.db.models import Site
+    from fleet.services.plan import add_window
+
+    sites = dict(session.execute(select(Site.name, Site.id)).all())
+    for site, weeks, days, note in (("East Yard", 3, 2, "invented: winter maintenance stop"),
+                                    ("River Shop", 9, 3, "invented: spring line rebuild")):
+        if site in sites:
+            start = end + timedelta(weeks=weeks)
+            add_window(session, {"scope": f"site:{sites[site]}", "starts_at": start.isoformat(),
+                                 "ends_at": (start + timedelta(days=days)).isoformat(), "note": note})
+
+
 def build_demo(session: Session, seed: int = 2026, end=None, echo: Callable[[str], None] = print) -> str:
     """Generate the invented plant and import it kind by kind, then analyse it; the caller commits."""
     from fleet.services.analysis import refresh_analysis
@@ -38,6 +52,7 @@ def build_demo(session: Session, seed: int = 2026, end=None, echo: Callable[[str
         if kind in tables:
             result = import_table(session, kind, _as_text(tables[kind]), source="import")
             echo(f"  {result.summary()}")
+    _add_shutdown_windows(session, end)
     # Replay the weekly analyses of the last weeks, each on what was known then, so the weekly review has a
     # history of status changes to show; the last analysis is of now.
     last = utcnow()
