@@ -40,6 +40,7 @@ def _safe_url(url: str) -> str:
 @click.pass_context
 def main(ctx: click.Context, url: str | None) -> None:
     ctx.obj = Database(url)
+    ctx.call_on_close(ctx.obj.engine.dispose)  # close pooled connections when the command ends
 
 
 @main.command()
