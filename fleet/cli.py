@@ -1,5 +1,6 @@
 """The fleet command: set up the database, move CSV files in and out, analyse, serve the dashboard."""
 
+import importlib
 import json
 import sys
 from pathlib import Path
@@ -199,6 +200,13 @@ def demo(db: Database, no_serve: bool, seed: int, rebuild: bool, host: str, port
         click.echo(summary)
     if not no_serve:
         _serve(db, host, port, threads=8)
+
+
+# Subcommands that live in their own modules (fleet/commands/*.py), each with ``register(group)``.
+COMMAND_MODULES: tuple[str, ...] = (
+)
+for _module in COMMAND_MODULES:
+    importlib.import_module(_module).register(main)
 
 
 if __name__ == "__main__":  # pragma: no cover

@@ -310,3 +310,50 @@ class StatusChange(Base):
     eta_v_ref: Mapped[float | None] = mapped_column(Float)
     hours_to_limit: Mapped[float | None] = mapped_column(Float)
     limit_date: Mapped[str | None] = mapped_column(String(10))
+
+
+class User(Base):
+    """Someone who signs in to the dashboard. Roles: viewer (read), technician (readings, lab results),
+    engineer (everything a technician can, plus the register, limits and events)."""
+
+    __tablename__ = "app_user"
+
+    id: Mapped[int] = mapped_column(primary_key=True)
+    name: Mapped[str] = mapped_column(String(80), unique=True)
+    role: Mapped[str] = mapped_column(String(16))
+    password_hash: Mapped[str] = mapped_column(String(255))
+    active: Mapped[bool] = mapped_column(Boolean, default=True)
+    created_at: Mapped[datetime] = mapped_column(DateTime, default=utcnow)
+    last_login_at: Mapped[datetime | None] = mapped_column(DateTime)
+
+
+class ApiToken(Base):
+    """A token for data loggers and handhelds posting readings; only its hash is stored."""
+
+    __tablename__ = "api_token"
+
+    id: Mapped[int] = mapped_column(primary_key=True)
+    user_id: Mapped[int] = mapped_column(ForeignKey("app_user.id", ondelete="CASCADE"), index=True)
+    name: Mapped[str] = mapped_column(String(120))
+    token_hash: Mapped[str] = mapped_column(String(128), unique=True)
+    created_at: Mapped[datetime] = mapped_column(DateTime, default=utcnow)
+    last_used_at: Mapped[datetime | None] = mapped_column(DateTime)
+    revoked_at: Mapped[datetime | None] = mapped_column(DateTime)
+
+
+class AuditRecord(Base):
+    """The previous values of a record that was edited or deleted, who did it and when; a deleted record
+    can be restored from here."""
+
+    __tablename__ = "audit_record"
+
+    id: Mapped[int] = mapped_column(primary_key=True)
+    at: Mapped[datetime] = mapped_column(DateTime, index=True)
+    actor: Mapped[str] = mapped_column(String(120))
+    action: Mapped[str] = mapped_column(String(16))  # update | delete | restore
+    table_name: Mapped[str] = mapped_column(String(64), index=True)
+    row_id: Mapped[int] = mapped_column(Integer, index=True)
+    before: Mapped[dict[str, Any] | None] = mapped_column(JSON)
+    after: Mapped[dict[str, Any] | None] = mapped_column(JSON)
+    restored_at: Mapped[datetime | None] = mapped_column(DateTime)
+    restored_by: Mapped[str | None] = mapped_column(String(120))
