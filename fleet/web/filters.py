@@ -4,6 +4,7 @@ from datetime import datetime
 
 from flask import Flask
 
+from fleet.safety import CAUTION_TITLE, CAUTIONS
 from fleet.status_words import STATUS_LABELS, STATUS_METER
 from fleet.timeutil import utcnow
 
@@ -35,3 +36,5 @@ def init_app(app: Flask) -> None:
     app.add_template_filter(age)
     app.add_template_global(STATUS_LABELS, "STATUS_LABELS")
     app.add_template_global(STATUS_METER, "STATUS_METER")
+    app.add_template_global(CAUTIONS, "CAUTIONS")
+    app.add_template_global(CAUTION_TITLE, "CAUTION_TITLE")
