@@ -42,6 +42,7 @@ def build_demo(session: Session, seed: int = 2026, end=None, echo: Callable[[str
     from fleet.services.analysis import refresh_analysis
     from fleet.services.importing import import_table
     from fleet.services.register import ensure_limit_defaults
+    from seed_demo.history import earlier_overhauls
     from seed_demo.plant import generate
 
     ensure_limit_defaults(session)
@@ -52,6 +53,8 @@ def build_demo(session: Session, seed: int = 2026, end=None, echo: Callable[[str
         if kind in tables:
             result = import_table(session, kind, _as_text(tables[kind]), source="import")
             echo(f"  {result.summary()}")
+    result = import_table(session, "events", _as_text(earlier_overhauls(tables, seed)), source="import")
+    echo(f"  earlier overhauls from the (invented) paper log: {result.summary()}")
     _add_shutdown_windows(session, end)
     # Replay the weekly analyses of the last weeks, each on what was known then, so the weekly review has a
     # history of status changes to show; the last analysis is of now.

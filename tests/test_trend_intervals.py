@@ -79,3 +79,17 @@ def test_interval_lives_for_the_fleet_prior():
 def test_no_events_at_all():
     placed, intervals = assign_intervals(_readings(3, [0, 1], [1, 2]), None)
     assert list(placed["interval_no"]) == [0, 0] and len(intervals) == 1
+
+
+def test_overhauls_from_before_the_first_reading_give_lives_from_new():
+    # A site's maintenance log: overhauled at 9000 h and 17000 h, readings only begin at 20000 h.
+    r = _readings(4, [0, 10, 20], [20000, 20100, 20200])
+    ev = _events([(4, "2023-01-10", 9000.0, "overhaul", np.nan), (4, "2024-02-01", 17000.0, "overhaul", np.nan)])
+    placed, intervals = assign_intervals(r, ev)
+    assert set(placed["interval_no"]) == {2}  # every reading after the second overhaul
+    lives = interval_lives(intervals).set_index(["pump_id", "interval_no"])
+    # New to first overhaul: seen whole (entry 0), 9000 h; then 8000 h; the running one 3200 h so far.
+    assert lives.loc[(4, 0), ["entry_hours", "life_hours", "failed"]].tolist() == [0.0, 9000.0, True]
+    assert lives.loc[(4, 1), ["entry_hours", "life_hours", "failed"]].tolist() == [0.0, 8000.0, True]
+    assert lives.loc[(4, 2), ["entry_hours", "life_hours", "failed"]].tolist() == [0.0, 3200.0, False]
+    assert intervals.loc[intervals["interval_no"] == 0, "start_kind"].tolist() == ["new"]

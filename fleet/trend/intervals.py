@@ -106,14 +106,23 @@ def assign_intervals(readings: pd.DataFrame, events: pd.DataFrame | None) -> tup
         columns={"date": "start_at", "kind": "start_kind", "hours": "event_hours"}
     )
     intervals = from_readings.join(from_events, how="outer")
+    # A pump overhauled before its first reading lived from new to that overhaul: that life is on record too.
+    overhauled = resets.loc[resets["interval_no"] == 1, "pump_id"].to_numpy()
+    from_new = pd.MultiIndex.from_arrays([overhauled, np.zeros(len(overhauled), dtype=np.int64)],
+                                         names=["pump_id", "interval_no"]).difference(intervals.index)
+    if len(from_new):
+        intervals = pd.concat([intervals, pd.DataFrame(index=from_new)]).sort_index()
     intervals["n_readings"] = intervals["n_readings"].fillna(0).astype(np.int64)
     initial = intervals.index.get_level_values("interval_no") == 0
+    unread = initial & (intervals["n_readings"] == 0)
     intervals["start_at"] = pd.to_datetime(intervals["start_at"]).where(~initial, intervals["first_reading_at"])
     intervals["start_kind"] = intervals["start_kind"].astype(object).where(~initial, "first_reading")
+    intervals.loc[unread, "start_kind"] = "new"
     # The event's hour-meter value starts the clock unless the readings after it show a fresh meter.
     event_hours = intervals["event_hours"]
     use_event = event_hours.notna() & ~(event_hours > intervals["first_hours"])
     intervals["start_hours"] = np.where(use_event, event_hours, intervals["first_hours"])
+    intervals.loc[unread, "start_hours"] = 0.0  # the hour meter counts from new
     intervals = intervals.reset_index().sort_values(["pump_id", "interval_no"], kind="stable")
 
     nxt = intervals.groupby("pump_id").shift(-1)
@@ -147,7 +156,9 @@ def interval_lives(intervals: pd.DataFrame) -> pd.DataFrame:
         {
             "pump_id": iv["pump_id"],
             "interval_no": iv["interval_no"],
-            "entry_hours": np.where(initial, iv["first_hours"], 0.0),
+            # Interval 0 is watched from its first reading (left truncation), or from new when the maintenance
+            # record shows it ended before any reading.
+            "entry_hours": np.where(initial & (iv["n_readings"].to_numpy() > 0), iv["first_hours"], 0.0),
             "life_hours": end_meter.astype(float) - zero,
             "failed": ~iv["is_current"].to_numpy(dtype=bool),
         }
