@@ -96,7 +96,7 @@ def test_every_pump_has_a_status_and_at_least_one_full_sentence_reason(fleet):
 def test_healthy_pump_says_why(fleet):
     res = fleet[0].results
     assert res.loc[1, "status"] == "healthy"
-    assert res.loc[1, "reasons"][0].startswith("eta_v,ref 0.95")
+    assert res.loc[1, "reasons"][0].startswith("Volumetric efficiency at reference 0.95; no limit expected")
     assert "within 12 weeks" in res.loc[1, "reasons"][0]
 
 

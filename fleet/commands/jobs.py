@@ -60,7 +60,7 @@ def review_text(data: dict) -> str:
     lines.append(f"\nStatus changes ({counts['status_change']})")
     for item in data["status_changes"]:
         lines.append(f"  {item['pump']:<12} {_label(item['previous_status']):>10} -> {_label(item['status']):<10} "
-                     f"{item['at'][:16].replace('T', ' ')}  eta_v,ref {_num(item.get('eta_v_ref'), '.3f')}")
+                     f"{item['at'][:16].replace('T', ' ')}  η_v,ref {_num(item.get('eta_v_ref'), '.3f')}")
         for reason in item.get("new_reasons") or []:
             lines.append(_wrap(f"+ {reason}"))
     lines.append(f"\nRounds missed ({counts['round_missed']})")

@@ -214,11 +214,12 @@ def assess_status(results: pd.DataFrame, now, settings: AnalysisSettings) -> pd.
         _sentences(
             healthy,
             lambda e, g, h, w: (
-                f"eta_v,ref {e:.2f}, "
+                (f"Volumetric efficiency at reference {e:.2f}; n" if np.isfinite(e) else "N")
                 + (
-                    f"no limit expected within {w:.0f} weeks ({LIMIT_WORDS.get(g, g)} in about {h:,.0f} h)."
+                    f"o limit expected within {w:.0f} weeks (the {LIMIT_WORDS.get(g, g)} limit in about "
+                    f"{h:,.0f} running hours)."
                     if isinstance(g, str)
-                    else f"trend flat: no limit expected within {w:.0f} weeks."
+                    else f"o limit expected within {w:.0f} weeks: the trend shows no decline."
                 )
             ),
             eta,
