@@ -116,7 +116,10 @@ def test_past_limit_first_furthest_past_first(fleet):
     assert (res.loc[[2, 3, 16], "status"] == "past_limit").all()
     assert res.loc[3, "eta_v_ref"] < res.loc[2, "eta_v_ref"] < 0.85
     # Pump 16 has no trend (two readings): its last usable reading decides, and it says so.
-    assert np.isnan(res.loc[16, "eta_v_ref"]) and res.loc[16, "last_eta_v_ref"] == pytest.approx(0.78, abs=0.01)
+    assert res.loc[16, "last_eta_v_ref"] == pytest.approx(0.78, abs=0.01)
+    assert res.loc[16, "eta_v_ref"] == res.loc[16, "last_eta_v_ref"]
+    assert res.loc[16, "eta_v_ref_source"] == "last_reading"
+    assert res.loc[2, "eta_v_ref_source"] == "trend" and np.isnan(res.loc[16, "hours_to_limit"])
     assert "too few readings for a trend" in _reasons(res, 16)
     # Furthest past first: slip over its limit is 2.1x (pump 3), 1.47x (16), 1.3x (2).
     assert (res.loc[3, "rank"], res.loc[16, "rank"], res.loc[2, "rank"]) == (1, 2, 3)

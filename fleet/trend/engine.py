@@ -212,6 +212,11 @@ def analyze_fleet(
     res["days_since_reading"] = (now - res["last_reading_at"]).dt.total_seconds() / 86400.0
     res["installed"] = pump_tab["machine_id"].notna() if "machine_id" in pump_tab else True
     res = res.join(last)
+    # With too little for a trend, the current value is the last usable reading's; *_source says which.
+    for col, last_col in (("eta_v_ref", "last_eta_v_ref"), ("drain_pct_ref", "last_drain_pct_ref")):
+        from_trend = res[col].notna()
+        res[f"{col}_source"] = np.where(from_trend, "trend", np.where(res[last_col].notna(), "last_reading", None))
+        res[col] = res[col].where(from_trend, res[last_col])
     for col in (
         "eta_v_limit",
         "drain_limit_pct",

@@ -108,8 +108,12 @@ def assess_status(results: pd.DataFrame, now, settings: AnalysisSettings) -> pd.
         _sentences(
             due,
             lambda g, h, d, dl, dh, open_, w: (
-                f"The {LIMIT_WORDS.get(g, g)} limit is expected in about {h:,.0f} running hours, around {_date(d)} "
-                f"({settings.confidence:.0%} bounds {_date(dl)} to "
+                f"The {LIMIT_WORDS.get(g, g)} limit is expected in about {h:,.0f} running hours "
+                + (f"after the last reading, around {_date(d)}: already past today if the pump kept running, and "
+                   "no reading since confirms it"
+                   if pd.notna(d) and pd.Timestamp(d) < pd.Timestamp(now).normalize()
+                   else f"around {_date(d)}")
+                + f" ({settings.confidence:.0%} bounds {_date(dl)} to "
                 f"{'open (the trend is not yet certain)' if open_ else _date(dh)}), inside the {w:.0f}-week plan."
             ),
             governing,
