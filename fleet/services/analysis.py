@@ -9,13 +9,13 @@ from dataclasses import dataclass
 from datetime import datetime
 
 import pandas as pd
-from sqlalchemy import delete, select
+from sqlalchemy import delete, select, update
 from sqlalchemy.orm import Session
 
 from fleet.db.models import AnalysisResult, FleetPrior, Pump, StatusChange
 from fleet.services.fleetdata import json_ready, load_frames
 from fleet.timeutil import utcnow
-from fleet.trend.engine import FleetAnalysis, analyze_fleet, results_to_records
+from fleet.trend.engine import FleetAnalysis, analyze_fleet, apply_priors, fit_priors, results_to_records
 from fleet.trend.settings import AnalysisSettings
 from fleet.trend.status import service_rank
 
@@ -28,6 +28,7 @@ CONTRACT_FIELDS = (
 _COLUMNS = CONTRACT_FIELDS[1:]  # 'pump' is the serial, kept on the pump row
 
 Progress = Callable[[int, int, str], None]
+CHUNK_PUMPS = 800  # pumps analysed at once in a full refresh: bounds its memory (measured in benchmarks/run.py)
 
 
 @dataclass
@@ -75,29 +76,68 @@ def analyse(session: Session, pump_ids=None, now: datetime | None = None,
                          now=now, settings=settings, priors=priors)
 
 
+def analyse_results(session: Session, pump_ids=None, now: datetime | None = None,
+                    settings: AnalysisSettings | None = None,
+                    chunk_pumps: int = CHUNK_PUMPS) -> tuple[pd.DataFrame, pd.DataFrame | None]:
+    """(results, refitted priors or None) of ``pump_ids`` (None: the fleet, priors refitted).
+
+    The fleet is analysed ``chunk_pumps`` pumps at a time, so memory stays bounded by one part. A pump's
+    figures depend only on its own data and the fleet priors; those are fitted once from every part's service
+    intervals and then given to every pump (fleet.trend.engine.apply_priors), so the results are the same as
+    one pass over the whole fleet.
+    """
+    now = now or utcnow()
+    settings = settings or AnalysisSettings()
+    if pump_ids is not None:
+        return analyse(session, pump_ids, now, settings).results, None
+    ids = list(session.scalars(select(Pump.id).order_by(Pump.id)))
+    parts, intervals, kinds = [], [], []
+    for first in range(0, max(len(ids), 1), chunk_pumps):
+        chunk = ids[first:first + chunk_pumps] if ids else None
+        part = analyse(session, chunk, now, settings) if chunk is not None else None
+        if part is None:  # no pumps at all: the engine's own empty answer
+            frames = load_frames(session, None, as_of=now)
+            part = analyze_fleet(frames.pumps, frames.readings, frames.events, frames.samples,
+                                 frames.flow_points, now=now, settings=settings)
+            return part.results, part.priors
+        parts.append(part.results)
+        intervals.append(part.intervals)
+        kinds.append(part.results["kind"])
+    results = pd.concat(parts) if len(parts) > 1 else parts[0]
+    if len(parts) > 1:  # each part ranked its own pumps: rank the fleet
+        results["rank"] = service_rank(results).to_numpy()
+    priors = fit_priors(pd.concat(intervals, ignore_index=True), pd.concat(kinds), settings)
+    priors = apply_priors(results, priors, now)
+    return results, priors
+
+
 def refresh_analysis(session: Session, pump_ids=None, now: datetime | None = None,
                      settings: AnalysisSettings | None = None, progress: Progress | None = None) -> RefreshSummary:
     """Analyse ``pump_ids`` (None: the whole fleet) and store the results; never commits."""
-    full = pump_ids is None or stored_priors(session) is None
+    full = pump_ids is None or not _has_priors(session)
     ids = None if full else sorted({int(i) for i in pump_ids})
     computed_at = now or utcnow()
-    analysis = analyse(session, ids, computed_at, settings)
-    records = results_to_records(analysis.results)
+    results, priors = analyse_results(session, ids, computed_at, settings)
+    records = results_to_records(results)
     if progress:
         progress(0, len(records), "storing analysis")
     _store_results(session, records, computed_at, replace_all=full)
     if full:
-        _store_priors(session, analysis.priors, computed_at)
+        _store_priors(session, priors, computed_at)
     _rerank(session)
     if progress:
         progress(len(records), len(records), "storing analysis")
-    by_status = analysis.results["status"].value_counts().to_dict()
+    by_status = results["status"].value_counts().to_dict()
     return RefreshSummary(len(records), {str(k): int(v) for k, v in by_status.items()}, full, computed_at)
+
+
+def _has_priors(session: Session) -> bool:
+    return session.scalar(select(FleetPrior.kind).limit(1)) is not None
 
 
 def _store_results(session: Session, records: list[dict], computed_at: datetime, replace_all: bool) -> None:
     ids = [record["pump_id"] for record in records]
-    _record_changes(session, records, computed_at)
+    _record_changes(session, records, computed_at, None if replace_all else ids)
     if replace_all:
         session.execute(delete(AnalysisResult))
     elif ids:
@@ -113,14 +153,15 @@ def _store_results(session: Session, records: list[dict], computed_at: datetime,
     session.flush()
 
 
-def _record_changes(session: Session, records: list[dict], computed_at: datetime) -> None:
-    """Append a StatusChange for every pump whose status or reasons differ from its stored analysis."""
-    previous = {
-        pump_id: (status, reasons)
-        for pump_id, status, reasons in session.execute(
-            select(AnalysisResult.pump_id, AnalysisResult.status, AnalysisResult.reasons)
-        )
-    }
+def _record_changes(session: Session, records: list[dict], computed_at: datetime, pump_ids=None) -> None:
+    """Append a StatusChange for every pump whose status or reasons differ from its stored analysis.
+
+    pump_ids: the pumps of a partial refresh, so only their stored reasons are read (None: all).
+    """
+    statement = select(AnalysisResult.pump_id, AnalysisResult.status, AnalysisResult.reasons)
+    if pump_ids is not None:
+        statement = statement.where(AnalysisResult.pump_id.in_(pump_ids))
+    previous = {pump_id: (status, reasons) for pump_id, status, reasons in session.execute(statement)}
     for record in records:
         before_status, before_reasons = previous.get(record["pump_id"], (None, []))
         reasons = record.get("reasons") or []
@@ -152,18 +193,28 @@ def _store_priors(session: Session, priors: pd.DataFrame, computed_at: datetime)
 
 
 def _rerank(session: Session) -> None:
-    """Order the whole stored service list again (a partial refresh moves some pumps)."""
-    stored = session.scalars(select(AnalysisResult)).all()
-    if not stored:
+    """Order the whole stored service list again (a partial refresh moves some pumps).
+
+    Reads only the figures the order uses (status, hours to limit, and from each stored detail its margin past
+    the limit, lower-bound date and pump name, extracted by the database) and writes only the ranks that moved.
+    """
+    detail = AnalysisResult.detail
+    rows = session.execute(select(
+        AnalysisResult.pump_id, AnalysisResult.rank, AnalysisResult.status, AnalysisResult.hours_to_limit,
+        detail["past_margin"].as_float(), detail["limit_date_low"].as_string(), detail["pump"].as_string(),
+    )).all()
+    if not rows:
         return
-    frame = pd.DataFrame([{**(row.detail or {}), "status": row.status, "pump_id": row.pump_id,
-                           "hours_to_limit": row.hours_to_limit} for row in stored]).set_index("pump_id")
-    for column in ("limit_date_low",):
-        if column in frame:
-            frame[column] = pd.to_datetime(frame[column])
+    frame = pd.DataFrame(rows, columns=["pump_id", "rank", "status", "hours_to_limit", "past_margin",
+                                        "limit_date_low", "pump"]).set_index("pump_id")
+    frame["past_margin"] = frame["past_margin"].astype(float)
+    frame["hours_to_limit"] = frame["hours_to_limit"].astype(float)
+    frame["limit_date_low"] = pd.to_datetime(frame["limit_date_low"])
     ranks = service_rank(frame)
-    for row in stored:
-        row.rank = int(ranks.loc[row.pump_id])
+    moved = ranks[ranks != frame["rank"]]
+    if len(moved):
+        session.execute(update(AnalysisResult), [{"pump_id": int(pump_id), "rank": int(rank)}
+                                                 for pump_id, rank in moved.items()])
     session.flush()
 
 

@@ -265,21 +265,12 @@ def analyze_fleet(
     res = res.join(energy)
 
     # Fleet life figures: the separate, labelled prior.
-    lives = interval_lives(intervals)
     kind_of = pump_tab["kind"]
-    fleet_priors = fit_fleet_priors(lives, kind_of, s.min_weibull_failures) if priors is None else priors.copy()
-    age = np.where(
+    fleet_priors = fit_priors(intervals, kind_of, s) if priors is None else priors.copy()
+    res["age_hours"] = np.where(
         current_iv["interval_no"] == 0, current_iv["last_hours"], current_iv["last_hours"] - current_iv["start_hours"]
     )
-    kind_prior = fleet_priors.reindex(kind_of.to_numpy())
-    res["age_hours"] = age
-    res["prior_hours_to_overhaul"] = mean_residual_life(
-        age, kind_prior["beta"].to_numpy(float), kind_prior["alpha"].to_numpy(float)
-    )
-    res["prior_b10_hours"] = kind_prior["b10_hours"].to_numpy(float)
-    _, horizon_h = horizon_remaining_hours(res, now)
-    expected = expected_overhauls(age, horizon_h, kind_of.to_numpy(), fleet_priors)
-    fleet_priors["expected_overhauls_in_horizon"] = expected.reindex(fleet_priors.index)
+    fleet_priors = apply_priors(res, fleet_priors, now)
 
     res = res.join(assess_status(res, now, s))
     res.index.name = "pump_id"
@@ -294,6 +285,32 @@ def analyze_fleet(
     first_cols = ["rank", "pump", "kind", "status", "reasons"]
     res = res[first_cols + [c for c in res.columns if c not in first_cols]]
     return FleetAnalysis(res, referred, fits, fleet_priors, intervals, totals, s)
+
+
+def fit_priors(intervals: pd.DataFrame, kind_of_pump: pd.Series, settings: AnalysisSettings) -> pd.DataFrame:
+    """The fleet Weibull of each pump kind from every service interval (FleetAnalysis.intervals)."""
+    return fit_fleet_priors(interval_lives(intervals), kind_of_pump, settings.min_weibull_failures)
+
+
+def apply_priors(res: pd.DataFrame, priors: pd.DataFrame, now) -> pd.DataFrame:
+    """Set each pump's prior figures (in place) from its kind's fleet Weibull; return the priors with the
+    expected overhauls of ``res``'s pumps in their planning horizon.
+
+    res needs kind, age_hours and what horizon_remaining_hours reads. Nothing else of a pump's analysis
+    depends on the priors, so a fleet analysed in parts can be given the whole fleet's priors afterwards.
+    """
+    fleet_priors = priors.copy()
+    kinds = res["kind"].to_numpy()
+    age = res["age_hours"].to_numpy(float)
+    kind_prior = fleet_priors.reindex(kinds)
+    res["prior_hours_to_overhaul"] = mean_residual_life(
+        age, kind_prior["beta"].to_numpy(float), kind_prior["alpha"].to_numpy(float)
+    )
+    res["prior_b10_hours"] = kind_prior["b10_hours"].to_numpy(float)
+    _, horizon_h = horizon_remaining_hours(res, pd.Timestamp(now))
+    expected = expected_overhauls(age, horizon_h, kinds, fleet_priors)
+    fleet_priors["expected_overhauls_in_horizon"] = expected.reindex(fleet_priors.index)
+    return fleet_priors
 
 
 def _data_note(res: pd.DataFrame, current_iv: pd.DataFrame, cur: pd.DataFrame, s: AnalysisSettings) -> np.ndarray:
