@@ -1,9 +1,12 @@
 """Engine and session factory from one SQLAlchemy URL (FLEET_DATABASE_URL, default a SQLite file here)."""
 
 import os
+import random
+import time
 from pathlib import Path
 
 from sqlalchemy import Engine, create_engine, event
+from sqlalchemy.exc import OperationalError
 from sqlalchemy.orm import Session, sessionmaker
 
 DEFAULT_SQLITE_FILE = "fleet.sqlite"
@@ -40,4 +43,35 @@ def make_engine(url: str | None = None, **kwargs) -> Engine:
 
 
 def make_session_factory(engine: Engine) -> sessionmaker[Session]:
+    from fleet.services import audit
+
+    audit.install()  # every edit or deletion of an audited row leaves an audit record (idempotent)
     return sessionmaker(bind=engine, expire_on_commit=False)
+
+
+# SQLite answers "database is locked" at once, without waiting out the busy timeout, when a transaction that has
+# read must become a writer after another writer committed (WAL snapshot conflict). The only cure is to run the
+# whole unit of work again from its start, on a fresh transaction.
+LOCK_RETRIES = 8
+_LOCK_BACKOFF_S = 0.05
+
+
+def is_lock_error(error: BaseException) -> bool:
+    return isinstance(error, OperationalError) and "database is locked" in str(error.orig).lower()
+
+
+def run_unit_of_work(sessions: sessionmaker[Session], work, attempts: int = LOCK_RETRIES):
+    """Run ``work(session)`` in one transaction and commit; on a SQLite lock error roll back and run it again.
+
+    ``work`` must do everything of the unit itself (it runs again from scratch), and returns its result.
+    """
+    if attempts < 1:
+        raise ValueError("attempts must be at least 1")
+    for attempt in range(1, attempts + 1):
+        try:
+            with sessions.begin() as session:
+                return work(session)
+        except Exception as error:
+            if attempt == attempts or not is_lock_error(error):
+                raise
+            time.sleep(_LOCK_BACKOFF_S * attempt * (0.5 + random.random()))

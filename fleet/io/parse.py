@@ -16,6 +16,11 @@ from fleet.physics.cleanliness import parse_code
 
 TRUE_WORDS = frozenset({"yes", "y", "true", "1", "x"})
 FALSE_WORDS = frozenset({"no", "n", "false", "0", ""})
+# No value fleet stores comes near this (10^12 h, bar, L/min, ...); larger ones only overflow the analysis.
+MAX_MAGNITUDE = 1e12
+# The longest text each column holds in the database (PostgreSQL refuses longer; SQLite would keep it silently).
+TEXT_LENGTHS = {"currency": 8, "note": None}
+DEFAULT_TEXT_LENGTH = 120
 
 
 @dataclass(frozen=True, order=True)
@@ -65,8 +70,9 @@ def parse_table(kind: str, table: pd.DataFrame) -> tuple[ParsedTable, list[Probl
     specs = {column.name: column for column in KINDS[kind]}
     problems: list[Problem] = []
     headers: dict[str, tuple[str, str | None]] = {}  # spec name -> (original header, unit)
+    positions: dict[str, int] = {}  # spec name -> column position (headers may repeat in a hand-made table)
     ignored: list[str] = []
-    for header in table.columns:
+    for position, header in enumerate(table.columns):
         try:
             name, unit = units.parse_header(str(header))
         except units.UnitError as exc:
@@ -89,14 +95,15 @@ def parse_table(kind: str, table: pd.DataFrame) -> tuple[ParsedTable, list[Probl
                 problems.append(Problem(1, str(header), str(exc)))
                 continue
         headers[name] = (str(header), unit)
+        positions[name] = position
     for spec in specs.values():
         if spec.required and spec.name not in headers and not any(p.column.startswith(spec.name) for p in problems):
             problems.append(Problem(1, spec.name, "required column is missing"))
 
     table = table.reset_index(drop=True)
     data = pd.DataFrame(index=table.index)
-    for name, (header, unit) in headers.items():
-        values, column_problems = _parse_column(specs[name], table[header], unit)
+    for name, (_header, unit) in headers.items():
+        values, column_problems = _parse_column(specs[name], table.iloc[:, positions[name]], unit)
         data[name] = values
         problems.extend(column_problems)
     parsed = ParsedTable(kind, data, set(headers), {k: u for k, (_, u) in headers.items()}, ignored)
@@ -115,12 +122,22 @@ def _parse_column(spec: Column, raw: pd.Series, unit: str | None) -> tuple[pd.Se
 
     if spec.required:
         flag(blank, lambda _cell: "a value is required")
+    # A NUL character is no part of any value (PostgreSQL refuses it in text, even in a query).
+    nul = cells.str.contains("\x00", regex=False).fillna(False).astype(bool)
+    flag(nul, lambda _cell: "contains a NUL character (0x00)")
+    cells, blank = cells.mask(nul), blank | nul
 
     if spec.type == "number":
         numbers = pd.to_numeric(cells, errors="coerce").astype(float)
         flag(~blank & numbers.isna(), lambda cell: f"'{cell}' is not a number")
-        values = pd.Series(units.to_canonical(numbers.to_numpy(), unit, spec.quantity), index=cells.index) \
-            if spec.quantity else numbers
+        # 'inf' and '1e999' parse as numbers; no reading or register value is infinite, or near it.
+        with np.errstate(over="ignore", invalid="ignore"):
+            values = pd.Series(units.to_canonical(numbers.to_numpy(), unit, spec.quantity), index=cells.index) \
+                if spec.quantity else numbers
+        huge = ~np.isfinite(values) | (values.abs() > MAX_MAGNITUDE)
+        flag(~blank & numbers.notna() & huge, lambda cell: f"{cell} is not a finite number of a sensible size "
+             f"(at most {MAX_MAGNITUDE:g} in canonical units)")
+        values = values.mask(huge)
         label = units.LABELS.get(spec.quantity or "", "")
         with np.errstate(invalid="ignore"):
             if spec.positive:
@@ -170,4 +187,7 @@ def _parse_column(spec: Column, raw: pd.Series, unit: str | None) -> tuple[pd.Se
                 codes.append(None)
         return pd.Series(codes, index=cells.index, dtype=object), problems
 
+    limit = TEXT_LENGTHS.get(spec.name, DEFAULT_TEXT_LENGTH)
+    if limit is not None:
+        flag(~blank & (cells.str.len() > limit), lambda cell: f"is {len(cell)} characters long; at most {limit} fit")
     return cells.astype(object).where(~blank, None), problems  # text
