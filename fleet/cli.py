@@ -204,7 +204,9 @@ def demo(db: Database, no_serve: bool, seed: int, rebuild: bool, host: str, port
 
 # Subcommands that live in their own modules (fleet/commands/*.py), each with ``register(group)``.
 COMMAND_MODULES: tuple[str, ...] = (
+    "fleet.commands.users",
     "fleet.commands.jobs",
+    "fleet.commands.backup",
 )
 for _module in COMMAND_MODULES:
     importlib.import_module(_module).register(main)

@@ -1,5 +1,6 @@
 """The invented demo plant: generated tables (seed_demo.plant) loaded through the same importer users use."""
 
+import secrets
 from collections.abc import Callable
 from datetime import timedelta
 
@@ -37,6 +38,20 @@ def _add_shutdown_windows(session: Session, end) -> None:
                                  "ends_at": (start + timedelta(days=days)).isoformat(), "note": note})
 
 
+# One invented user per role, so every part of the dashboard can be tried.
+DEMO_USERS = (("demo-engineer", "engineer"), ("demo-technician", "technician"), ("demo-viewer", "viewer"))
+
+
+def _add_demo_users(session: Session, echo: Callable[[str], None]) -> None:
+    """Each demo user gets a fresh random password, printed once here; the database keeps only its hash."""
+    from fleet.services.users import create_user
+
+    for name, role in DEMO_USERS:
+        password = secrets.token_urlsafe(12)
+        create_user(session, name, role, password)
+        echo(f"  demo user {name} ({role}): password {password}")
+
+
 def build_demo(session: Session, seed: int = 2026, end=None, echo: Callable[[str], None] = print) -> str:
     """Generate the invented plant and import it kind by kind, then analyse it; the caller commits."""
     from fleet.services.analysis import refresh_analysis
@@ -56,6 +71,7 @@ def build_demo(session: Session, seed: int = 2026, end=None, echo: Callable[[str
     result = import_table(session, "events", _as_text(earlier_overhauls(tables, seed)), source="import")
     echo(f"  earlier overhauls from the (invented) paper log: {result.summary()}")
     _add_shutdown_windows(session, end)
+    _add_demo_users(session, echo)
     # Replay the weekly analyses of the last weeks, each on what was known then, so the weekly review has a
     # history of status changes to show; the last analysis is of now.
     last = utcnow()

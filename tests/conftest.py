@@ -1,18 +1,23 @@
 """Shared fixtures: a real database per test (a SQLite file, or the PostgreSQL server CI starts)."""
 
+import itertools
 import os
+import re
 import shutil
 import threading
 from dataclasses import dataclass
 from pathlib import Path
 
 import pytest
-from sqlalchemy import Engine, text
+from sqlalchemy import Engine, select, text
+from sqlalchemy.engine import make_url
 from sqlalchemy.orm import Session, sessionmaker
+from sqlalchemy.pool import NullPool
 
 from fleet.db import migrate
 from fleet.db.engine import make_engine, make_session_factory
 from fleet.services.register import ensure_limit_defaults
+from fleet.services.users import ROLES, create_user
 
 DATA = Path(__file__).parent / "data"
 # Set by .ci/run for its second pass: the whole suite against a throw-away PostgreSQL server.
@@ -71,25 +76,79 @@ CHROMIUM = os.environ.get("CHROMIUM_PATH") or shutil.which("chromium") or "/usr/
 CHROMIUM_ARGS = ["--headless", "--no-sandbox", "--disable-gpu", "--disable-quic", "--no-first-run",
                  "--disable-background-networking", "--disable-component-update", "--disable-sync"]
 DEMO_SEED = 2026
+TEST_PASSWORD = "invented test password 1"  # of the test users the demo copy holds: test-viewer, -technician, -engineer
 
 
-@pytest.fixture(scope="session")
-def demo_file(tmp_path_factory) -> Path:
-    """The invented demo plant, built once per run into a SQLite file (tests copy it before changing it)."""
+def _build_demo_into(url: str) -> None:
     from seed_demo import build_demo
 
-    path = tmp_path_factory.mktemp("demo") / "demo.sqlite"
-    engine = make_engine(f"sqlite:///{path}")
+    engine = make_engine(url)
     migrate.upgrade(engine)
     with make_session_factory(engine).begin() as session:
         build_demo(session, seed=DEMO_SEED, echo=lambda _line: None)
-    engine.dispose()  # the last connection closing folds the WAL back into the file
-    return path
+        for role in ROLES:  # one test user per role, with a password the tests know
+            create_user(session, f"test-{role}", role, TEST_PASSWORD)
+    engine.dispose()  # SQLite: the last connection closing folds the WAL back into the file
+
+
+# --- PostgreSQL: whole databases made from a template, as cheap as copying a SQLite file -------------------
+
+def _server_admin() -> Engine:
+    """An AUTOCOMMIT engine on the server's maintenance database (CREATE DATABASE runs outside transactions)."""
+    return make_engine(make_url(SERVER_URL).set(database="postgres").render_as_string(hide_password=False),
+                       isolation_level="AUTOCOMMIT", poolclass=NullPool)
+
+
+def _server_database_url(name: str) -> str:
+    return make_url(SERVER_URL).set(database=name).render_as_string(hide_password=False)
+
+
+def _create_server_database(name: str, template: str | None = None) -> str:
+    admin = _server_admin()
+    with admin.connect() as connection:
+        connection.execute(text(f'DROP DATABASE IF EXISTS "{name}" WITH (FORCE)'))
+        connection.execute(text(f'CREATE DATABASE "{name}"' + (f' TEMPLATE "{template}"' if template else "")))
+    admin.dispose()
+    return _server_database_url(name)
+
+
+def _drop_server_database(name: str) -> None:
+    admin = _server_admin()
+    with admin.connect() as connection:
+        connection.execute(text(f'DROP DATABASE IF EXISTS "{name}" WITH (FORCE)'))
+    admin.dispose()
+
+
+_server_copies = itertools.count(1)
+
+
+@pytest.fixture(scope="session")
+def demo_file(tmp_path_factory) -> Path | str:
+    """The invented demo plant, built once per run: a SQLite file, or (with FLEET_TEST_DATABASE_URL) a template
+    database on the PostgreSQL server, named here. Tests change only copies of it (``demo_db``)."""
+    if SERVER_URL:
+        name = f"{make_url(SERVER_URL).database}_demo_template"
+        _build_demo_into(_create_server_database(name))
+        yield name
+        _drop_server_database(name)
+        return
+    path = tmp_path_factory.mktemp("demo") / "demo.sqlite"
+    _build_demo_into(f"sqlite:///{path}")
+    yield path
 
 
 @pytest.fixture
 def demo_db(demo_file, tmp_path) -> TestDatabase:
-    """A private copy of the demo plant for one test."""
+    """A private copy of the demo plant for one test: a copied SQLite file, or a server database made from the
+    template (CREATE DATABASE ... TEMPLATE), dropped afterwards."""
+    if SERVER_URL:
+        name = f"{demo_file.removesuffix('_template')}_{os.getpid()}_{next(_server_copies)}"
+        url = _create_server_database(name, template=demo_file)
+        engine = make_engine(url)
+        yield TestDatabase(url, engine, make_session_factory(engine))
+        engine.dispose()
+        _drop_server_database(name)
+        return
     path = tmp_path / "demo.sqlite"
     shutil.copyfile(demo_file, path)
     url = f"sqlite:///{path}"
@@ -151,12 +210,75 @@ def artifacts() -> Path:
     return ARTIFACTS
 
 
+def sign_in(client, role: str = "engineer", through_form: bool = False):
+    """Sign ``client`` in as the demo copy's test user of ``role`` and have it send the session's CSRF token
+    (as a page's script would, in the X-CSRFToken header) with every later request; returns the client.
+
+    By default the session is set as Flask-Login's own test client does (the password check costs 0.1 s);
+    ``through_form`` posts the sign-in form instead.
+    """
+    name = f"test-{role}"
+    if through_form:
+        form = client.get("/login")
+        response = client.post("/login", data={"name": name, "password": TEST_PASSWORD,
+                                                "csrf_token": csrf_token_of(form.get_data(as_text=True))})
+        assert response.status_code == 302, response.get_data(as_text=True)
+    else:
+        from fleet.db.models import User
+        from fleet.web.auth import SignedInUser
+
+        with client.application.extensions["fleet_db"]() as session:
+            user = SignedInUser.of(session.scalar(select(User).where(User.name == name)))
+        with client.session_transaction() as cookie:
+            cookie["_user_id"] = user.get_id()
+            cookie["_fresh"] = True
+    # A signed-in page carries the session's CSRF token in its sign-out form.
+    client.environ_base["HTTP_X_CSRFTOKEN"] = csrf_token_of(client.get("/login").get_data(as_text=True))
+    return client
+
+
+def csrf_token_of(html: str) -> str:
+    return re.search(r'name="csrf_token" value="([^"]+)"', html).group(1)
+
+
 @pytest.fixture
-def client(demo_db):
-    """A Flask test client over a fresh copy of the demo plant."""
+def login():
+    """``login(client, role)``: sign a test client in (see ``sign_in``)."""
+    return sign_in
+
+
+@pytest.fixture
+def web_app(demo_db):
+    """The dashboard app over a fresh copy of the demo plant."""
     from fleet.web import create_app
 
     app = create_app({"DATABASE_URL": demo_db.url, "TESTING": True, "SECRET_KEY": "test"})
-    with app.test_client() as test_client:
-        yield test_client
+    yield app
     app.extensions["fleet_engine"].dispose()
+
+
+@pytest.fixture
+def anonymous_client(web_app):
+    """A Flask test client over a fresh copy of the demo plant, signed in as no one."""
+    with web_app.test_client() as test_client:
+        yield test_client
+
+
+@pytest.fixture
+def client(anonymous_client):
+    """A Flask test client over a fresh copy of the demo plant, signed in as an engineer (who may do anything)."""
+    return sign_in(anonymous_client, "engineer")
+
+
+@pytest.fixture
+def browser_login(page, base_url, live_app):
+    """``browser_login(role)``: sign the browser in through the sign-in page as the test user of ``role``."""
+
+    def sign_in_browser(role: str = "engineer") -> None:
+        page.goto(base_url + "/login")
+        page.fill("#f-name", f"test-{role}")
+        page.fill("#f-password", TEST_PASSWORD)
+        page.click("button:has-text('Sign in')")
+        page.wait_for_selector("#signed-in-as")
+
+    return sign_in_browser

@@ -10,7 +10,8 @@ CALM, HOT = "EY-104", "EY-105"  # invented demo pumps: an internal gear and a va
 
 
 def test_a_hot_reading_on_the_round_is_a_new_reason_in_the_weekly_review(live_app, page, base_url, demo_db,
-                                                                         artifacts):
+                                                                         artifacts, browser_login):
+    browser_login("technician")
     before = _listed(page, base_url)
     assert not any("oil temperature" in r.lower() and "above" in r.lower() for r in before[HOT]["reasons"])
 

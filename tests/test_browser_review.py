@@ -10,12 +10,13 @@ def _no_sideways_scroll(page) -> bool:
     return page.evaluate("document.documentElement.scrollWidth <= window.innerWidth + 1")
 
 
-def test_weekly_review_desktop_and_phone(live_app, page, base_url, artifacts):
+def test_weekly_review_desktop_and_phone(live_app, page, base_url, artifacts, browser_login, login):
+    browser_login("viewer")
     page.set_viewport_size({"width": 1280, "height": 900})
     page.goto(base_url + "/review")
     assert page.locator("h1").inner_text() == "Weekly review"
     # One row per status change of the last replayed week of the demo (fleet.services.review counts them too).
-    changes = live_app.test_client().get("/review.json").get_json()["counts"]["status_change"]
+    changes = login(live_app.test_client(), "viewer").get("/review.json").get_json()["counts"]["status_change"]
     assert changes > 0 and page.locator("#s-status_change table tbody tr").count() == changes
     assert page.locator("#s-energy_loss table tbody tr").count() == 10
     page.screenshot(path=str(artifacts / "review.png"), full_page=True)
@@ -33,7 +34,8 @@ def test_weekly_review_desktop_and_phone(live_app, page, base_url, artifacts):
     assert page.locator("#s-energy_loss table").is_visible()
 
 
-def test_overhaul_plan_chart_draws(live_app, page, base_url, artifacts):
+def test_overhaul_plan_chart_draws(live_app, page, base_url, artifacts, browser_login):
+    browser_login("viewer")
     errors = []
     page.on("pageerror", lambda exc: errors.append(str(exc)))
     page.set_viewport_size({"width": 1280, "height": 900})

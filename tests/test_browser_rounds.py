@@ -37,7 +37,9 @@ def _fill_by_keyboard(page, values: dict) -> None:
     page.keyboard.press("Enter")
 
 
-def test_a_round_for_two_pumps_changes_the_service_list(live_app, page, base_url, demo_db, artifacts):
+def test_a_round_for_two_pumps_changes_the_service_list(live_app, page, base_url, demo_db, artifacts,
+                                                        browser_login):
+    browser_login("technician")
     before = _listed(page, base_url)
     page.goto(base_url + "/rounds")
     page.fill("#route-name", "Browser walk")
@@ -69,7 +71,8 @@ def test_a_round_for_two_pumps_changes_the_service_list(live_app, page, base_url
     page.screenshot(path=str(artifacts / "service-list-after-round.png"), full_page=True)
 
 
-def test_the_pump_page_draws_its_charts(live_app, page, base_url, artifacts):
+def test_the_pump_page_draws_its_charts(live_app, page, base_url, artifacts, browser_login):
+    browser_login("viewer")
     page.goto(base_url + f"/pumps/{FIRST}")
     page.wait_for_selector("#chart-efficiency .scatterlayer path.point")
     points = page.locator("#chart-efficiency .scatterlayer path.point").count()
@@ -79,7 +82,9 @@ def test_the_pump_page_draws_its_charts(live_app, page, base_url, artifacts):
     page.screenshot(path=str(artifacts / "pump-page.png"), full_page=True)
 
 
-def test_doubtful_values_are_shown_in_the_browser_before_saving(live_app, page, base_url, demo_db, artifacts):
+def test_doubtful_values_are_shown_in_the_browser_before_saving(live_app, page, base_url, demo_db, artifacts,
+                                                                browser_login):
+    browser_login("technician")
     page.goto(base_url + "/rounds")
     page.fill("#route-name", "Doubt walk")
     page.fill("#route-pumps", FIRST)

@@ -164,13 +164,19 @@ def _free_port() -> int:
 def test_fleet_serve_shows_the_demo_pumps(demo_db):
     port = _free_port()
     env = {**os.environ, "FLEET_DATABASE_URL": demo_db.url}
+    with demo_db.sessions.begin() as session:  # pages need a signed-in user: read as a viewer's API token
+        from fleet.services.users import create_token
+
+        token = create_token(session, "test-viewer", "serve test (invented)").secret
     server = subprocess.Popen([sys.executable, "-m", "fleet.cli", "serve", "--port", str(port)], env=env,
                               stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
     try:
         body = None
         for _ in range(100):  # up to 10 s for waitress to listen
             try:
-                with urllib.request.urlopen(f"http://127.0.0.1:{port}/", timeout=2) as response:
+                request = urllib.request.Request(f"http://127.0.0.1:{port}/",
+                                                 headers={"Authorization": f"Bearer {token}"})
+                with urllib.request.urlopen(request, timeout=2) as response:
                     body = response.read().decode()
                 break
             except OSError:

@@ -13,7 +13,7 @@ README = (Path(__file__).resolve().parents[1] / "README.md").read_text()
 
 def test_every_command_is_in_the_readme_table():
     commands = set(main.commands)
-    documented = set(re.findall(r"^\| `fleet (\w+)", README, flags=re.MULTILINE))
+    documented = set(re.findall(r"^\| `fleet ([\w-]+)", README, flags=re.MULTILINE))
     assert commands == documented
 
 

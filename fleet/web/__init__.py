@@ -19,6 +19,12 @@ def create_app(test_config: dict | None = None) -> Flask:
         SECRET_KEY=os.environ.get("FLEET_SECRET_KEY") or os.urandom(32),
         PAGE_SIZE=50,
         JSON_SORT_KEYS=False,
+        # The session cookie: never readable by scripts, not sent on cross-site posts, https-only when asked
+        # (FLEET_SECURE_COOKIES=1; a request that came over https gets a Secure cookie anyway, see fleet.web.auth).
+        SESSION_COOKIE_HTTPONLY=True,
+        SESSION_COOKIE_SAMESITE="Lax",
+        SESSION_COOKIE_SECURE=os.environ.get("FLEET_SECURE_COOKIES") == "1",
+        LOGIN_RATE_LIMIT=os.environ.get("FLEET_LOGIN_RATE_LIMIT") or "10 per minute",
     )
     if test_config:
         app.config.update(test_config)
@@ -26,9 +32,10 @@ def create_app(test_config: dict | None = None) -> Flask:
     app.extensions["fleet_db"] = make_session_factory(engine)
     app.extensions["fleet_engine"] = engine
 
-    from fleet.web import assets, db, filters, service_list
+    from fleet.web import assets, auth, db, filters, service_list
 
     db.init_app(app)
+    auth.init_app(app)  # first: its guard runs before every view
     filters.init_app(app)
     app.register_blueprint(assets.bp)
     app.register_blueprint(service_list.bp)
@@ -42,10 +49,15 @@ def create_app(test_config: dict | None = None) -> Flask:
     app.register_blueprint(register.bp)
     app.register_blueprint(review.bp)
     app.register_blueprint(plan.bp)
+    from fleet.web import trash
+
+    app.register_blueprint(trash.bp)
 
     @app.context_processor
     def navigation():
-        return {"nav_links": [(endpoint, label) for endpoint, label in NAV if endpoint in app.view_functions]}
+        user = auth.signed_in_user()
+        return {"nav_links": [(endpoint, label) for endpoint, label in NAV if endpoint in app.view_functions
+                              and (endpoint not in NAV_ROLES or (user is not None and user.can(NAV_ROLES[endpoint])))]}
 
     return app
 
@@ -57,4 +69,7 @@ NAV = (
     ("review.weekly", "Weekly review"),
     ("plan.overhaul", "Overhaul plan"),
     ("register.index", "Register"),
+    ("trash.index", "Trash"),
 )
+# Menu entries only some roles see (the page itself refuses everyone else too).
+NAV_ROLES = {"trash.index": "engineer"}

@@ -4,6 +4,9 @@ The body is one JSON object or a list of them, keyed by the readings CSV column 
 unit: ``"outlet_pressure": {"value": 3000, "unit": "psi"}``. All or nothing: 201 with the stored readings and
 each pump's refreshed status, or 422 with every problem and nothing written. Problem rows count the posted
 objects from 1 (row 0: the request as a whole).
+
+Posting needs a technician or engineer: an API token (``Authorization: Bearer fleet_...``, made by
+``fleet user token``) or a signed-in browser session that sends its CSRF token in an ``X-CSRFToken`` header.
 """
 
 import math
@@ -17,6 +20,8 @@ from fleet.db.models import AnalysisResult, Pump, Reading
 from fleet.io.columns import READINGS
 from fleet.io.parse import ImportRejected, Problem, parse_table
 from fleet.services.rounds import save_reading
+from fleet.services.users import mark_token_used
+from fleet.web.auth import requires, signed_in_user
 from fleet.web.db import session
 
 bp = Blueprint("api", __name__, url_prefix="/api")
@@ -125,6 +130,7 @@ def _to_canonical(text: str, unit: str | None, quantity: str | None) -> str:
 
 
 @bp.post("/readings")
+@requires("technician")
 def post_readings():
     body = request.get_json(silent=True)
     if body is None:
@@ -148,6 +154,8 @@ def post_readings():
                                    for p in rejected.problems])
     stored = _stored(db, table)
     statuses = _statuses(db, result.pump_ids)
+    if signed_in_user().token_id is not None:
+        mark_token_used(db, signed_in_user().token_id)
     db.commit()
     return jsonify({"created": result.created, "readings": stored, "pumps": statuses}), 201
 

@@ -5,6 +5,7 @@ from flask import Blueprint, abort, flash, jsonify, redirect, request, url_for
 from fleet.services.forms import FormRejected
 from fleet.services.plan import CSV_COLUMNS, DEFAULT_WEEKS, add_window, delete_window, overhaul_plan
 from fleet.services.plan_chart import timeline_html
+from fleet.web.auth import requires
 from fleet.web.db import session
 from fleet.web.respond import respond, twin_routes, wants_json
 
@@ -31,6 +32,7 @@ def overhaul(fmt):
 
 
 @bp.post("/plan/windows")
+@requires("engineer")
 def add(fmt=None):
     db = session()
     values = request.form.to_dict()
@@ -47,6 +49,7 @@ def add(fmt=None):
 
 
 @bp.post("/plan/windows/<int:window_id>/delete")
+@requires("engineer")
 def delete(window_id: int):
     db = session()
     if not delete_window(db, window_id):

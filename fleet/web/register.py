@@ -7,6 +7,7 @@ from fleet.services.forms import FormRejected
 from fleet.services.registry_forms import FORMS, NotFound, Saved
 from fleet.services.registry_pages import CSV_COLUMNS, FORM_COLUMNS, form_page, register_overview
 from fleet.services.uploads import PROBLEM_COLUMNS, upload_csv, upload_kinds
+from fleet.web.auth import requires
 from fleet.web.db import session
 from fleet.web.respond import respond, twin_routes, wants_json
 
@@ -18,12 +19,19 @@ def index(fmt):
     return respond(register_overview(session()), "register/index.html", fmt, "pumps", CSV_COLUMNS, "register")
 
 
+def _role_for(form: str, **_) -> str:
+    """Lab results are a technician's to enter; the register, limits and records are an engineer's."""
+    return "technician" if form == "sample" else "engineer"
+
+
 @twin_routes(bp, "/register/<form>/new", methods=["GET", "POST"])
+@requires(_role_for)
 def new(form, fmt):
     return _form(form, None, fmt)
 
 
-@twin_routes(bp, "/register/<form>/<key>/edit", methods=["GET", "POST"])
+@twin_routes(bp, "/register/<form>/<path:key>/edit", methods=["GET", "POST"])
+@requires(_role_for)
 def edit(form, key, fmt):
     return _form(form, key, fmt)
 
@@ -68,6 +76,7 @@ def _refresh(db, saved: Saved) -> None:
 
 
 @twin_routes(bp, "/register/upload", methods=["GET", "POST"])
+@requires("engineer")
 def upload(fmt):
     data = {"kinds": upload_kinds(), "kind": request.args.get("kind") or "readings", "outcome": None,
             "problems": []}

@@ -15,6 +15,7 @@ from fleet.db.models import Pump
 from fleet.io.parse import ImportRejected
 from fleet.services import rounds
 from fleet.timeutil import utcnow
+from fleet.web.auth import current_actor, requires
 from fleet.web.db import session
 from fleet.web.respond import respond, twin_routes, twin_urls, wants_json
 
@@ -36,6 +37,7 @@ def index(fmt):
 
 
 @bp.post("/rounds")
+@requires("technician")
 def create():
     form = request.form
     serials = rounds.parse_serials(form.get("pumps", ""))
@@ -71,6 +73,7 @@ def walk(route_id, fmt):
 
 
 @bp.post("/rounds/<int:route_id>/stops/<int:number>")
+@requires("technician")
 def reading(route_id, number):
     db = session()
     data = rounds.route_walk(db, route_id)
@@ -83,8 +86,9 @@ def reading(route_id, number):
     values = {f.name: form.get(f.name, "") for f in fields}
     values.update(taken_at=form.get("taken_at", ""), note=form.get("note", ""), taken_by=form.get("taken_by", ""))
     chosen = _chosen_units(form)
+    # A blank 'taken by' is the signed-in technician; a name typed in (a colleague's reading) is kept.
     table = rounds.reading_table(pump.serial, values["taken_at"], {f.name: values[f.name] for f in fields}, chosen,
-                                 values["note"], values["taken_by"])
+                                 values["note"], values["taken_by"].strip() or current_actor())
     action = form.get("action", "save")
     outcome = rounds.check_reading(db, pump, table)
     confirmed = set(filter(None, form.get("confirmed", "").split(",")))

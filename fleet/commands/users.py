@@ -1,0 +1,111 @@
+"""`fleet user`: add people who sign in to the dashboard, set their passwords, and issue or revoke API tokens."""
+
+import sys
+
+import click
+
+from fleet.services import users
+
+ROLE_HELP = "viewer (reads), technician (+ readings and lab results), engineer (+ register, limits, events, plan)"
+
+
+def _password(from_stdin: bool) -> str:
+    """The new password: the first line of standard input, or typed twice without echo."""
+    if from_stdin:
+        return sys.stdin.readline().rstrip("\r\n")
+    return click.prompt("Password", hide_input=True, confirmation_prompt="Repeat the password")
+
+
+def _when(value) -> str:
+    return value.strftime("%Y-%m-%d %H:%M") if value else "-"
+
+
+@click.group("user")
+def user_group() -> None:
+    """Manage who signs in (roles: viewer, technician, engineer) and the API tokens of data loggers."""
+
+
+@user_group.command("add")
+@click.argument("name")
+@click.option("--role", required=True, type=click.Choice(users.ROLES), help=ROLE_HELP)
+@click.option("--password-stdin", is_flag=True, help="read the password from the first line of standard input")
+@click.pass_obj
+def add(db, name: str, role: str, password_stdin: bool) -> None:
+    """Add user NAME with ROLE; the password is asked for twice (at least 10 characters)."""
+    db.require_current()
+    password = _password(password_stdin)
+    try:
+        with db.sessions.begin() as session:
+            user = users.create_user(session, name, role, password)
+            click.echo(f"user {user.name} added as {user.role}")
+    except users.UserError as error:
+        raise click.ClickException(str(error)) from error
+
+
+@user_group.command("password")
+@click.argument("name")
+@click.option("--password-stdin", is_flag=True, help="read the password from the first line of standard input")
+@click.pass_obj
+def password(db, name: str, password_stdin: bool) -> None:
+    """Set a new password for NAME; the user's open sessions end."""
+    db.require_current()
+    new_password = _password(password_stdin)
+    try:
+        with db.sessions.begin() as session:
+            users.set_password(session, name, new_password)
+    except users.UserError as error:
+        raise click.ClickException(str(error)) from error
+    click.echo(f"password of {name} changed")
+
+
+@user_group.command("list")
+@click.pass_obj
+def list_(db) -> None:
+    """List the users and the API tokens (never a password or a token itself)."""
+    db.require_current()
+    with db.sessions() as session:
+        people, tokens = users.list_users(session), users.list_tokens(session)
+    click.echo(f"{'user':<24} {'role':<11} {'active':<7} {'last sign-in':<17} tokens")
+    for p in people:
+        click.echo(f"{p['name']:<24} {p['role']:<11} {'yes' if p['active'] else 'no':<7} "
+                   f"{_when(p['last_login_at']):<17} {p['tokens']}")
+    if tokens:
+        click.echo(f"\n{'token id':>8}  {'user':<24} {'label':<30} {'created':<17} {'last used':<17} revoked")
+        for t in tokens:
+            click.echo(f"{t['id']:>8}  {t['user']:<24} {t['label'][:30]:<30} {_when(t['created_at']):<17} "
+                       f"{_when(t['last_used_at']):<17} {_when(t['revoked_at'])}")
+
+
+@user_group.command("token")
+@click.argument("name")
+@click.option("--label", required=True, help="what or who uses the token, e.g. 'press hall data logger'")
+@click.pass_obj
+def token(db, name: str, label: str) -> None:
+    """Issue an API token for NAME and print it once (send it as 'Authorization: Bearer TOKEN')."""
+    db.require_current()
+    try:
+        with db.sessions.begin() as session:
+            issued = users.create_token(session, name, label)
+    except users.UserError as error:
+        raise click.ClickException(str(error)) from error
+    click.echo(f"token {issued.id} for {issued.user} ('{issued.label}'); it is shown only now, keep it safe:",
+               err=True)
+    click.echo(issued.secret)
+
+
+@user_group.command("revoke")
+@click.argument("token_id", type=int)
+@click.pass_obj
+def revoke(db, token_id: int) -> None:
+    """Revoke API token TOKEN_ID (see 'fleet user list'); requests with it are refused from now on."""
+    db.require_current()
+    try:
+        with db.sessions.begin() as session:
+            revoked = users.revoke_token(session, token_id)
+            click.echo(f"token {revoked.id} ('{revoked.name}') revoked at {_when(revoked.revoked_at)}")
+    except users.UserError as error:
+        raise click.ClickException(str(error)) from error
+
+
+def register(group: click.Group) -> None:
+    group.add_command(user_group)

@@ -1,0 +1,170 @@
+"""People who sign in and the API tokens of their loggers: create, set passwords, verify, issue and revoke tokens.
+
+Passwords are hashed with Argon2id (argon2-cffi); only the hash is stored. An API token is a long random string
+shown once; only its SHA-256 is stored, which is enough for a secret of 256 random bits and lets a request find
+its token by an indexed lookup. Like every service, these functions take a session and never commit.
+"""
+
+import hashlib
+import re
+import secrets
+from dataclasses import dataclass
+
+from argon2 import PasswordHasher
+from argon2.exceptions import InvalidHashError, VerificationError
+from sqlalchemy import func, select
+from sqlalchemy.orm import Session
+
+from fleet.db.models import ApiToken, User
+from fleet.timeutil import utcnow
+
+# Each role can do everything the roles before it can.
+ROLES = ("viewer", "technician", "engineer")
+MIN_PASSWORD_LENGTH = 10
+TOKEN_PREFIX = "fleet_"
+NAME_PATTERN = re.compile(r"^[A-Za-z0-9][A-Za-z0-9._@-]{0,79}$")
+
+_hasher = PasswordHasher()  # argon2-cffi's defaults follow RFC 9106's low-memory recommendation (Argon2id)
+# Verified when a name is unknown, so a wrong name costs as long as a wrong password (no guessing names by time).
+_UNKNOWN_USER_HASH = _hasher.hash(secrets.token_hex(16))
+
+
+class UserError(ValueError):
+    """A user or token request that cannot be carried out; the message says why."""
+
+
+@dataclass(frozen=True)
+class IssuedToken:
+    """A new API token: ``secret`` is shown to the person once and never stored."""
+
+    id: int
+    user: str
+    label: str
+    secret: str
+
+
+def role_at_least(role: str, needed: str) -> bool:
+    """True when ``role`` may do what ``needed`` may (engineer > technician > viewer)."""
+    if role not in ROLES or needed not in ROLES:
+        return False
+    return ROLES.index(role) >= ROLES.index(needed)
+
+
+def find_user(session: Session, name: str) -> User | None:
+    return session.scalar(select(User).where(User.name == name))
+
+
+def _check_password(password: str) -> None:
+    if len(password) < MIN_PASSWORD_LENGTH:
+        raise UserError(f"the password must have at least {MIN_PASSWORD_LENGTH} characters")
+
+
+def create_user(session: Session, name: str, role: str, password: str) -> User:
+    """A new active user with ``password`` hashed."""
+    name = name.strip()
+    if not NAME_PATTERN.match(name):
+        raise UserError("a user name is 1 to 80 letters, digits or . _ @ -, starting with a letter or digit")
+    if role not in ROLES:
+        raise UserError(f"unknown role '{role}' (roles: {', '.join(ROLES)})")
+    if find_user(session, name) is not None:
+        raise UserError(f"there is already a user '{name}'")
+    _check_password(password)
+    user = User(name=name, role=role, password_hash=_hasher.hash(password), active=True, created_at=utcnow())
+    session.add(user)
+    session.flush()
+    return user
+
+
+def set_password(session: Session, name: str, password: str) -> User:
+    user = find_user(session, name)
+    if user is None:
+        raise UserError(f"no user '{name}'")
+    _check_password(password)
+    user.password_hash = _hasher.hash(password)
+    session.flush()
+    return user
+
+
+def verify_password(session: Session, name: str, password: str) -> User | None:
+    """The active user when ``password`` is theirs, else None. Records the login and upgrades an old hash."""
+    user = find_user(session, name)
+    stored = user.password_hash if user is not None else _UNKNOWN_USER_HASH
+    try:
+        _hasher.verify(stored, password)
+    except (VerificationError, InvalidHashError):
+        return None
+    if user is None or not user.active:
+        return None
+    if _hasher.check_needs_rehash(user.password_hash):
+        user.password_hash = _hasher.hash(password)
+    user.last_login_at = utcnow()
+    session.flush()
+    return user
+
+
+def list_users(session: Session) -> list[dict]:
+    """Every user with role, state and how many live tokens they hold; never a hash."""
+    users = session.scalars(select(User).order_by(User.name)).all()
+    live = dict(session.execute(select(ApiToken.user_id, func.count()).where(ApiToken.revoked_at.is_(None))
+                                .group_by(ApiToken.user_id)).all())
+    return [{"name": u.name, "role": u.role, "active": u.active, "created_at": u.created_at,
+             "last_login_at": u.last_login_at, "tokens": live.get(u.id, 0)} for u in users]
+
+
+# --- API tokens --------------------------------------------------------------------------------------------
+
+def token_hash(secret: str) -> str:
+    return hashlib.sha256(secret.encode("utf-8")).hexdigest()
+
+
+def create_token(session: Session, name: str, label: str) -> IssuedToken:
+    """A new token for user ``name``; the returned secret is the only copy."""
+    user = find_user(session, name)
+    if user is None:
+        raise UserError(f"no user '{name}'")
+    label = label.strip()
+    if not label or len(label) > 120:
+        raise UserError("give the token a label of 1 to 120 characters (what or who uses it)")
+    secret = TOKEN_PREFIX + secrets.token_urlsafe(32)
+    token = ApiToken(user_id=user.id, name=label, token_hash=token_hash(secret), created_at=utcnow())
+    session.add(token)
+    session.flush()
+    return IssuedToken(token.id, user.name, label, secret)
+
+
+def revoke_token(session: Session, token_id: int) -> ApiToken:
+    token = session.get(ApiToken, token_id)
+    if token is None:
+        raise UserError(f"no API token with id {token_id}")
+    if token.revoked_at is None:
+        token.revoked_at = utcnow()
+        session.flush()
+    return token
+
+
+def user_for_token(session: Session, secret: str) -> tuple[User, ApiToken] | None:
+    """The active user and live token that ``secret`` belongs to, else None (unknown, revoked, user disabled)."""
+    if not secret.startswith(TOKEN_PREFIX):
+        return None
+    row = session.execute(select(User, ApiToken).join(ApiToken, ApiToken.user_id == User.id)
+                          .where(ApiToken.token_hash == token_hash(secret))).first()
+    if row is None:
+        return None
+    user, token = row
+    if token.revoked_at is not None or not user.active:
+        return None
+    return user, token
+
+
+def mark_token_used(session: Session, token_id: int) -> None:
+    token = session.get(ApiToken, token_id)
+    if token is not None:
+        token.last_used_at = utcnow()
+
+
+def list_tokens(session: Session) -> list[dict]:
+    """Every API token (id, owner, label, dates), newest first; the secrets are not stored, so never shown."""
+    rows = session.execute(select(ApiToken, User.name).join(User, User.id == ApiToken.user_id)
+                           .order_by(ApiToken.id.desc()))
+    return [{"id": t.id, "user": name, "label": t.name, "created_at": t.created_at, "last_used_at": t.last_used_at,
+             "revoked_at": t.revoked_at} for t, name in rows]
