@@ -13,7 +13,7 @@ from sqlalchemy import delete, select, update
 from sqlalchemy.orm import Session
 
 from fleet.db.models import AnalysisResult, FleetPrior, Pump, StatusChange
-from fleet.services.fleetdata import json_ready, load_frames
+from fleet.services.fleetdata import FleetFrames, json_ready, load_frames
 from fleet.timeutil import utcnow
 from fleet.trend.engine import FleetAnalysis, analyze_fleet, apply_priors, fit_priors, results_to_records
 from fleet.trend.settings import AnalysisSettings
@@ -69,11 +69,18 @@ def stored_priors(session: Session) -> pd.DataFrame | None:
 def analyse(session: Session, pump_ids=None, now: datetime | None = None,
             settings: AnalysisSettings | None = None) -> FleetAnalysis:
     """Compute (without storing) the analysis of ``pump_ids`` (None: the fleet)."""
+    return analyse_with_frames(session, pump_ids, now, settings)[0]
+
+
+def analyse_with_frames(session: Session, pump_ids=None, now: datetime | None = None,
+                        settings: AnalysisSettings | None = None) -> tuple[FleetAnalysis, FleetFrames]:
+    """The analysis and the frames it was computed from (a page needs both; loading twice costs)."""
     now = now or utcnow()
     frames = load_frames(session, pump_ids, as_of=now)
     priors = None if pump_ids is None else stored_priors(session)
-    return analyze_fleet(frames.pumps, frames.readings, frames.events, frames.samples, frames.flow_points,
-                         now=now, settings=settings, priors=priors)
+    analysis = analyze_fleet(frames.pumps, frames.readings, frames.events, frames.samples, frames.flow_points,
+                             now=now, settings=settings, priors=priors)
+    return analysis, frames
 
 
 def analyse_results(session: Session, pump_ids=None, now: datetime | None = None,

@@ -82,16 +82,14 @@ def installation_history(session: Session, pump_ids=None) -> pd.DataFrame:
 
 def effective_limits(pumps: pd.DataFrame, defaults: pd.DataFrame) -> pd.DataFrame:
     """Per-pump limits: the pump's override where set, else its kind's stored default, else the built-in one."""
-    built_in = pd.DataFrame(
-        [{"kind": kind, **{f: getattr(lim, f) for f in LIMIT_FIELDS}} for kind, lim in DEFAULT_LIMITS.items()]
-    ).set_index("kind")
-    table = defaults.set_index("kind")[list(LIMIT_FIELDS)] if len(defaults) else built_in.iloc[0:0]
-    table = table.combine_first(built_in)
-    by_kind = table.reindex(pumps["kind"]).set_index(pumps.index)
+    stored = {row["kind"]: row for row in defaults.to_dict(orient="records")}
     out = pumps.copy()
     for name in LIMIT_FIELDS:
+        # Per kind: the stored default where set, else the built-in one (plain dicts: this runs per page load).
+        by_kind = {kind: (stored[kind][name] if kind in stored and pd.notna(stored[kind][name])
+                          else getattr(limits, name)) for kind, limits in DEFAULT_LIMITS.items()}
         override = out[name] if name in out else pd.Series(np.nan, index=out.index)
-        out[name] = override.where(override.notna(), by_kind[name])
+        out[name] = override.where(override.notna(), out["kind"].map(by_kind))
     # A variable piston pump without its own target, under a kind default that was never edited, wants the
     # cleaner code (common practice, no source).
     variable_piston = out["variable"].astype(bool) & out["kind"].isin(PISTON_KINDS)

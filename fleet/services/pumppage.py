@@ -27,8 +27,8 @@ from fleet.db.models import (
 from fleet.kinds import EVENT_KINDS, PUMP_KINDS
 from fleet.physics.cleanliness import Iso4406Code
 from fleet.physics.pump import theoretical_flow_lpm
-from fleet.services.analysis import analyse
-from fleet.services.fleetdata import json_ready, load_pumps
+from fleet.services.analysis import analyse_with_frames
+from fleet.services.fleetdata import json_ready
 from fleet.trend.remaining_life import trend_band
 
 # Columns of the readings table and of the page's CSV twin, in order: raw values, then referred ones.
@@ -71,9 +71,9 @@ def pump_page(session: Session, serial: str) -> dict | None:
     pump = find_pump(session, serial)
     if pump is None:
         return None
-    analysis = analyse(session, [pump.id])
+    analysis, frames = analyse_with_frames(session, [pump.id])
     referred = analysis.readings[analysis.readings["pump_id"] == pump.id].sort_values("taken_at", kind="stable")
-    limits = load_pumps(session, [pump.id]).iloc[0]
+    limits = frames.pumps.iloc[0]
     events = _events(session, pump.id)
     readings = _reading_rows(session, referred)
     current_fit = _current_fit(analysis, pump.id)
