@@ -118,7 +118,10 @@ def small_register(db):
     return db
 
 
-FUZZ_SETTINGS = dict(deadline=None, suppress_health_check=[HealthCheck.too_slow, HealthCheck.data_too_large])
+# derandomize: the same generated cases on every run and machine (CI sets Hypothesis's own CI profile), so the
+# counts below are a property of the test, not of luck.
+FUZZ_SETTINGS = dict(deadline=None, derandomize=True,
+                     suppress_health_check=[HealthCheck.too_slow, HealthCheck.data_too_large])
 
 
 def test_csv_import_of_any_table_rejects_cleanly_or_writes_it_whole(small_register):
@@ -198,7 +201,7 @@ def api_bodies(draw):
 def test_api_answers_every_body_without_a_server_error_and_all_or_nothing(api_client, demo_db):
     objects_fuzzed, accepted = [], []
 
-    @settings(max_examples=150, **FUZZ_SETTINGS)
+    @settings(max_examples=250, **FUZZ_SETTINGS)
     @given(items=api_bodies())
     def check(items):
         objects_fuzzed.append(len(items))
