@@ -82,7 +82,7 @@ def test_csv_twin_is_the_readings_table(client):
     rows = list(csv.reader(io.StringIO(response.get_data(as_text=True))))
     assert rows[0] == list(READING_COLUMNS)
     assert len(rows) - 1 == len(data["readings"]) > 10
-    assert rows[-1][0] == data["readings"][-1]["taken_at"]
+    assert rows[-1][1] == data["readings"][-1]["taken_at"]  # after the reading_id column
 
 
 def test_referred_efficiency_matches_the_handbook_referral(client):

@@ -33,9 +33,9 @@ from fleet.trend.remaining_life import trend_band
 
 # Columns of the readings table and of the page's CSV twin, in order: raw values, then referred ones.
 READING_COLUMNS = (
-    "taken_at", "hours", "interval_no", "outlet_pressure_bar", "speed_rpm", "outlet_flow_lpm", "case_drain_lpm",
-    "oil_temp_c", "stroke", "eta_v", "eta_v_ref", "case_drain_pct", "case_drain_ref_lpm", "case_drain_pct_ref",
-    "flag", "source", "taken_by",
+    "reading_id", "taken_at", "hours", "interval_no", "outlet_pressure_bar", "speed_rpm", "outlet_flow_lpm",
+    "case_drain_lpm", "oil_temp_c", "stroke", "eta_v", "eta_v_ref", "case_drain_pct", "case_drain_ref_lpm",
+    "case_drain_pct_ref", "flag", "source", "taken_by",
 )
 LIMIT_FIELDS = ("eta_v_limit", "drain_limit_pct", "oil_temp_min_c", "oil_temp_max_c", "cleanliness_target",
                 "reading_interval_days", "planning_horizon_weeks")
@@ -159,9 +159,11 @@ def _events(session: Session, pump_id: int) -> pd.DataFrame:
     rows = session.scalars(select(MaintenanceEvent).where(MaintenanceEvent.pump_id == pump_id)
                            .order_by(MaintenanceEvent.date)).all()
     return pd.DataFrame([{
-        "date": e.date, "hours": e.hours, "kind": e.kind, "kind_label": EVENT_KINDS.get(e.kind, e.kind),
+        "event_id": e.id, "date": e.date, "hours": e.hours, "kind": e.kind,
+        "kind_label": EVENT_KINDS.get(e.kind, e.kind),
         "cost": e.cost, "downtime_h": e.downtime_h, "failure_mode": e.failure_mode, "note": e.note,
-    } for e in rows], columns=["date", "hours", "kind", "kind_label", "cost", "downtime_h", "failure_mode", "note"])
+    } for e in rows], columns=["event_id", "date", "hours", "kind", "kind_label", "cost", "downtime_h", "failure_mode",
+                               "note"])
 
 
 def _place_events(events: pd.DataFrame, referred: pd.DataFrame) -> list[dict]:
@@ -189,6 +191,7 @@ def _reading_rows(session: Session, referred: pd.DataFrame) -> list[dict]:
     with np.errstate(invalid="ignore", divide="ignore"):
         drain_pct = 100.0 * r["drain_lpm"].to_numpy(float) / max_flow
     table = pd.DataFrame({
+        "reading_id": r["reading_id"],
         "taken_at": pd.to_datetime(r["taken_at"]).dt.strftime("%Y-%m-%d %H:%M"),
         "hours": r["hours"], "interval_no": r["interval_no"], "outlet_pressure_bar": r["pressure_bar"],
         "speed_rpm": r["speed_rpm"], "outlet_flow_lpm": r["flow_lpm"], "case_drain_lpm": r["drain_lpm"],
