@@ -62,7 +62,13 @@ def _checkpoint(path: Path) -> None:
 
 
 def _peak_mb() -> float:
-    return resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024.0  # Linux reports KiB
+    """This process's peak resident memory. VmHWM belongs to the process image; getrusage's ru_maxrss would
+    carry over the parent's peak through fork and exec, reporting the benchmark's own size instead."""
+    with open("/proc/self/status") as status:
+        for line in status:
+            if line.startswith("VmHWM:"):
+                return int(line.split()[1]) / 1024.0  # kB
+    return resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024.0  # not Linux: the best there is
 
 
 # --- the parts that run in their own process ---------------------------------------------------------------

@@ -28,7 +28,7 @@ CONTRACT_FIELDS = (
 _COLUMNS = CONTRACT_FIELDS[1:]  # 'pump' is the serial, kept on the pump row
 
 Progress = Callable[[int, int, str], None]
-CHUNK_PUMPS = 800  # pumps analysed at once in a full refresh: bounds its memory (measured in benchmarks/run.py)
+CHUNK_PUMPS = 400  # pumps analysed at once in a full refresh: bounds its memory (measured in benchmarks/run.py)
 
 
 @dataclass
