@@ -9,6 +9,7 @@ import pandas as pd
 import pytest
 import trend_synthetic as ts
 
+from fleet.frames import READING_COLUMNS
 from fleet.trend.engine import analyze_fleet, results_to_records
 from fleet.trend.weibull import mean_residual_life
 
@@ -224,22 +225,7 @@ def test_given_priors_are_used_as_is(fleet):
         },
         index=pd.Index(["axial_piston"], name="kind"),
     )
-    columns = [
-        "reading_id",
-        "pump_id",
-        "taken_at",
-        "hours",
-        "pressure_bar",
-        "speed_rpm",
-        "flow_lpm",
-        "drain_lpm",
-        "temp_c",
-        "stroke",
-        "nu40",
-        "nu100",
-        "density15",
-    ]
-    one = analysis.readings.loc[analysis.readings["pump_id"] == 1, columns]
+    one = analysis.readings.loc[analysis.readings["pump_id"] == 1, list(READING_COLUMNS)]
     pumps = ts.make_pumps(16, np.random.default_rng(2025))
     again = analyze_fleet(pumps[pumps["pump_id"] == 1], one, None, None, now=now, priors=priors)
     row = again.results.loc[1]

@@ -9,6 +9,7 @@ from dataclasses import dataclass, field
 import numpy as np
 import pandas as pd
 
+from fleet.frames import READING_COLUMNS
 from fleet.trend.degradation import fit_degradation, not_enough_reason, summarise_fits
 from fleet.trend.energy import leakage_energy, typical_pressure_bar
 from fleet.trend.intervals import assign_intervals, interval_lives
@@ -38,28 +39,9 @@ class FleetAnalysis:
 
 
 def _empty_readings() -> pd.DataFrame:
-    return pd.DataFrame(
-        {
-            "reading_id": pd.Series(dtype=np.int64),
-            "pump_id": pd.Series(dtype=np.int64),
-            "taken_at": pd.Series(dtype="datetime64[ns]"),
-            **{
-                c: pd.Series(dtype=float)
-                for c in [
-                    "hours",
-                    "pressure_bar",
-                    "speed_rpm",
-                    "flow_lpm",
-                    "drain_lpm",
-                    "temp_c",
-                    "stroke",
-                    "nu40",
-                    "nu100",
-                    "density15",
-                ]
-            },
-        }
-    )
+    """A readings frame with no rows and the columns of the contract (fleet.frames)."""
+    dtypes = {"reading_id": np.int64, "pump_id": np.int64, "taken_at": "datetime64[ns]"}
+    return pd.DataFrame({c: pd.Series(dtype=dtypes.get(c, float)) for c in READING_COLUMNS})
 
 
 def _pump_table(pumps: pd.DataFrame) -> pd.DataFrame:
