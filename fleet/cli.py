@@ -27,6 +27,14 @@ class Database:
             state = "is empty" if current is None else f"is at revision {current}, the newest is {head}"
             raise click.ClickException(f"the database {state}; run 'fleet init' first")
 
+    def require_up_to_date(self) -> None:
+        """As require_current, then bring every stale analysis up to date: a command that shows stored figures
+        never shows stale ones (a write whose process died before its refresh leaves them stale)."""
+        from fleet.services.analysis import bring_up_to_date
+
+        self.require_current()
+        bring_up_to_date(self.sessions)
+
 
 def _safe_url(url: str) -> str:
     """The URL without its password, for messages."""
@@ -64,7 +72,8 @@ def init(db: Database) -> None:
 @main.command("import")
 @click.argument("kind", type=click.Choice(list(KINDS)))
 @click.argument("file", type=click.Path(exists=True, dir_okay=False, path_type=Path))
-@click.option("--no-analysis", is_flag=True, help="do not refresh the analysis of the pumps touched")
+@click.option("--no-analysis", is_flag=True, help="leave the analysis of the pumps touched marked stale, for the next "
+              "read or 'fleet analyze' (a bulk load in several files)")
 @click.pass_obj
 def import_(db: Database, kind: str, file: Path, no_analysis: bool) -> None:
     """Import a CSV file of KIND, whole or not at all.
@@ -73,26 +82,21 @@ def import_(db: Database, kind: str, file: Path, no_analysis: bool) -> None:
     every problem is listed with its row (the header is row 1), column and reason.
     """
     from fleet.services.importing import import_file
+    from fleet.services.writes import perform
 
     db.require_current()
     try:
-        with db.sessions.begin() as session:
-            result = import_file(session, kind, file)
+        outcome = perform(db.sessions, lambda session: import_file(session, kind, file), refresh=not no_analysis)
     except ImportRejected as rejected:
         click.echo(f"{file}: {len(rejected.problems)} problem(s); nothing was imported.", err=True)
         click.echo(rejected.report(), err=True)
         sys.exit(1)
-    click.echo(result.summary())
-    if not no_analysis and result.pump_ids:
-        _refresh(db, result.pump_ids)
-
-
-def _refresh(db: Database, pump_ids) -> None:
-    from fleet.services.analysis import refresh_analysis
-
-    with db.sessions.begin() as session:
-        summary = refresh_analysis(session, pump_ids=pump_ids)
-    click.echo(summary.describe())
+    click.echo(outcome.value.summary())
+    if outcome.refresh:
+        click.echo(outcome.describe())
+    elif no_analysis and outcome.pumps:
+        click.echo(f"the analysis of {len(outcome.pumps)} pump(s) is marked stale; the next read or "
+                   "'fleet analyze' brings it up to date")
 
 
 @main.command("export")
@@ -120,15 +124,17 @@ def export(db: Database, kind: str, file: str) -> None:
 @click.pass_obj
 def analyze(db: Database, as_json: bool, pumps: tuple[str, ...], stored: bool) -> None:
     """Analyse the fleet (or some pumps), store the results and print them, most urgent first."""
-    from fleet.services.analysis import analysis_records, pump_ids_for, refresh_analysis
+    from fleet.services.analysis import analysis_records, bring_up_to_date, pump_ids_for, reanalyse
     from fleet.textreport import service_table
 
     db.require_current()
-    with db.sessions.begin() as session:
+    with db.sessions() as session:
         ids = pump_ids_for(session, pumps) if pumps else None
-        if not stored:
-            progress = None if as_json else _progress_bar()
-            refresh_analysis(session, pump_ids=ids, progress=progress)
+    if stored:
+        bring_up_to_date(db.sessions)  # what a write left stale is brought up to date, never shown stale
+    else:
+        reanalyse(db.sessions, pump_ids=ids, progress=None if as_json else _progress_bar())
+    with db.sessions() as session:
         records = analysis_records(session, pump_ids=ids)
     if as_json:
         click.echo(json.dumps(records, indent=2, ensure_ascii=False))
@@ -162,7 +168,7 @@ def _progress_bar():
 @click.pass_obj
 def serve(db: Database, host: str, port: int, threads: int) -> None:
     """Serve the dashboard with a production WSGI server (waitress)."""
-    db.require_current()
+    db.require_up_to_date()
     _serve(db, host, port, threads)
 
 

@@ -3,8 +3,8 @@
 import pytest
 from sqlalchemy import func, select
 
+from fleet.db import audit
 from fleet.db.models import AnalysisResult, AuditRecord, FlowTestPoint, MaintenanceEvent, OilSample, Pump, Reading
-from fleet.services import audit
 from fleet.timeutil import utcnow
 
 

@@ -117,8 +117,8 @@ def test_copy_to_an_empty_database_carries_every_row_and_new_rows_get_fresh_ids(
     result = _cli(demo_db.url, "copy", target_url)
     assert result.exit_code == 0, result.output
     assert f"copied {sum(counts.values())} rows of {len(counts)} tables" in result.output
+    from fleet.db.audit import column_values, row_values
     from fleet.db.engine import make_engine, make_session_factory
-    from fleet.services.audit import column_values, row_values
 
     target = make_engine(target_url)
     assert _table_counts(target) == counts

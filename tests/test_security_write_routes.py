@@ -12,6 +12,7 @@ from datetime import timedelta
 
 from sqlalchemy import func, select
 
+from fleet.db import audit
 from fleet.db.base import Base
 from fleet.db.models import (
     AuditRecord,
@@ -23,7 +24,6 @@ from fleet.db.models import (
     Pump,
     Reading,
 )
-from fleet.services import audit
 from fleet.services.plan import add_window
 from fleet.services.registry_forms import FORMS
 from fleet.services.rounds import create_route

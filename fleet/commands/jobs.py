@@ -43,7 +43,7 @@ def review(db, week_end, as_json: bool) -> None:
     """The weekly review: status changes, new reasons, limits crossed, rounds missed, late lab results, energy."""
     from fleet.services.review import weekly_review
 
-    db.require_current()
+    db.require_up_to_date()
     with db.sessions() as session:
         data = weekly_review(session, week_end.date() if week_end else None)
     click.echo(json.dumps(data, indent=2, ensure_ascii=False) if as_json else review_text(data))
@@ -91,7 +91,7 @@ def plan(db, weeks: int, as_json: bool) -> None:
     """The overhaul plan: forecast limit dates with bounds, shutdown windows, spares per pump kind, payback."""
     from fleet.services.plan import overhaul_plan
 
-    db.require_current()
+    db.require_up_to_date()
     with db.sessions() as session:
         data = overhaul_plan(session, weeks=weeks)
     click.echo(json.dumps(data, indent=2, ensure_ascii=False) if as_json else plan_text(data))
@@ -160,7 +160,7 @@ def round_(db, route: str, taken_by: str, units_given: tuple[str, ...]) -> None:
     need a yes. Each pump is saved (and re-analysed) as soon as it is confirmed, so nothing typed is lost.
     Press Enter on an optional field to leave it blank; type 'skip' at the running hours to pass a pump.
     """
-    from fleet.services.rounds import check_reading, fields_for, reading_table, save_reading
+    from fleet.services.rounds import check_reading, fields_for, reading_table, save_readings
     from fleet.timeutil import utcnow
 
     chosen = _parse_units(units_given)
@@ -194,13 +194,11 @@ def round_(db, route: str, taken_by: str, units_given: tuple[str, ...]) -> None:
                         break
                     continue
                 try:
-                    _, summary = save_reading(session, table)
+                    saved = save_readings(db.sessions, table)
                 except ImportRejected as rejected:  # stored by someone else meanwhile
-                    session.rollback()
                     click.echo(f"  not saved: {rejected.report()}")
                     break
-                session.commit()
-                click.echo(f"  saved; {summary.describe()}\n")
+                click.echo(f"  saved; {saved.describe()}\n")
                 break
     click.echo("Round complete.")
 

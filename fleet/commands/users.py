@@ -32,12 +32,13 @@ def user_group() -> None:
 @click.pass_obj
 def add(db, name: str, role: str, password_stdin: bool) -> None:
     """Add user NAME with ROLE; the password is asked for twice (at least 10 characters)."""
+    from fleet.services.writes import perform
+
     db.require_current()
     password = _password(password_stdin)
     try:
-        with db.sessions.begin() as session:
-            user = users.create_user(session, name, role, password)
-            click.echo(f"user {user.name} added as {user.role}")
+        user = perform(db.sessions, lambda session: users.create_user(session, name, role, password)).value
+        click.echo(f"user {user.name} added as {user.role}")
     except users.UserError as error:
         raise click.ClickException(str(error)) from error
 
@@ -48,11 +49,12 @@ def add(db, name: str, role: str, password_stdin: bool) -> None:
 @click.pass_obj
 def password(db, name: str, password_stdin: bool) -> None:
     """Set a new password for NAME; the user's open sessions end."""
+    from fleet.services.writes import perform
+
     db.require_current()
     new_password = _password(password_stdin)
     try:
-        with db.sessions.begin() as session:
-            users.set_password(session, name, new_password)
+        perform(db.sessions, lambda session: users.set_password(session, name, new_password))
     except users.UserError as error:
         raise click.ClickException(str(error)) from error
     click.echo(f"password of {name} changed")
@@ -82,10 +84,11 @@ def list_(db) -> None:
 @click.pass_obj
 def token(db, name: str, label: str) -> None:
     """Issue an API token for NAME and print it once (send it as 'Authorization: Bearer TOKEN')."""
+    from fleet.services.writes import perform
+
     db.require_current()
     try:
-        with db.sessions.begin() as session:
-            issued = users.create_token(session, name, label)
+        issued = perform(db.sessions, lambda session: users.create_token(session, name, label)).value
     except users.UserError as error:
         raise click.ClickException(str(error)) from error
     click.echo(f"token {issued.id} for {issued.user} ('{issued.label}'); it is shown only now, keep it safe:",
@@ -98,11 +101,12 @@ def token(db, name: str, label: str) -> None:
 @click.pass_obj
 def revoke(db, token_id: int) -> None:
     """Revoke API token TOKEN_ID (see 'fleet user list'); requests with it are refused from now on."""
+    from fleet.services.writes import perform
+
     db.require_current()
     try:
-        with db.sessions.begin() as session:
-            revoked = users.revoke_token(session, token_id)
-            click.echo(f"token {revoked.id} ('{revoked.name}') revoked at {_when(revoked.revoked_at)}")
+        revoked = perform(db.sessions, lambda session: users.revoke_token(session, token_id)).value
+        click.echo(f"token {revoked.id} ('{revoked.name}') revoked at {_when(revoked.revoked_at)}")
     except users.UserError as error:
         raise click.ClickException(str(error)) from error
 

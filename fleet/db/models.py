@@ -243,6 +243,34 @@ class AnalysisResult(Base):
     prior_hours_to_overhaul: Mapped[float | None] = mapped_column(Float)
     energy_cost_per_year: Mapped[float | None] = mapped_column(Float)
     detail: Mapped[dict[str, Any]] = mapped_column(JSON)  # every other figure of the analysis, JSON-ready
+    # The pump's data version (PumpDataVersion) these figures were computed from: older than the pump's means stale.
+    data_version: Mapped[int] = mapped_column(Integer, default=0, server_default="0")
+
+
+class PumpDataVersion(Base):
+    """A counter per pump that every write of what its analysis reads moves on, in the same transaction.
+
+    A stored analysis carries the version it was computed from, so a stale one is always known (never silently
+    stale), and a slow analysis never overwrites one computed from newer data.
+    """
+
+    __tablename__ = "pump_data_version"
+
+    pump_id: Mapped[int] = mapped_column(ForeignKey("pump.id", ondelete="CASCADE"), primary_key=True)
+    version: Mapped[int] = mapped_column(Integer, default=0)
+
+
+class ServiceLife(Base):
+    """Running hours each service interval of a pump lived (from its latest analysis): the fleet life figures of
+    a pump kind are refitted from these rows alone, without loading readings."""
+
+    __tablename__ = "service_life"
+
+    pump_id: Mapped[int] = mapped_column(ForeignKey("pump.id", ondelete="CASCADE"), primary_key=True)
+    interval_no: Mapped[int] = mapped_column(Integer, primary_key=True)
+    entry_hours: Mapped[float] = mapped_column(Float)
+    life_hours: Mapped[float] = mapped_column(Float)
+    failed: Mapped[bool] = mapped_column(Boolean)
 
 
 class FleetPrior(Base):

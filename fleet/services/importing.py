@@ -14,17 +14,17 @@ import pandas as pd
 from sqlalchemy import insert, select, tuple_
 from sqlalchemy.orm import Session
 
+from fleet.db import changes
 from fleet.db.models import (
     FlowTestPoint,
-    Installation,
     Machine,
     MaintenanceEvent,
     OilSample,
-    Position,
     Pump,
     Reading,
     Site,
 )
+from fleet.db.queries import pumps_on_machine
 from fleet.io.parse import ImportRejected, ParsedTable, Problem, parse_table, row_numbers
 from fleet.physics.cleanliness import code_from_counts
 from fleet.services import register
@@ -282,7 +282,9 @@ def _stored_keys(session: Session, model, time_column, pump_ids: np.ndarray, sta
     return pd.MultiIndex.from_arrays([pumps, times])
 
 
-def _import_readings(ctx: _Context, parsed: ParsedTable, result: ImportResult) -> list[Problem]:
+def _check_readings(ctx: _Context, parsed: ParsedTable) -> tuple[pd.DataFrame, list[Problem]]:
+    """The readings with their pump ids, and every problem the database shows (unknown pump, a reading of the
+    same pump and time already stored or twice in the file, a time in the future)."""
     problems: list[Problem] = []
     ids = _pump_ids(ctx.session, parsed, problems)
     _duplicates_in_file(parsed, ["pump", "taken_at"], problems, "pump and time")
@@ -297,6 +299,21 @@ def _import_readings(ctx: _Context, parsed: ParsedTable, result: ImportResult) -
         for index, serial, stamp in zip(clash.index, clash["pump"], clash["taken_at"], strict=True):
             problems.append(Problem(int(index) + 2, "taken_at", f"a reading of pump '{serial}' at "
                                     f"{stamp:%Y-%m-%d %H:%M} is already stored"))
+    return data, problems
+
+
+def check_readings(session: Session, table: pd.DataFrame, now: datetime | None = None) -> list[Problem]:
+    """Every problem an import of these readings would meet, without writing anything."""
+    parsed, problems = parse_table("readings", table)
+    if problems:
+        if "pump" in parsed.present:
+            _pump_ids(session, parsed, problems)
+        return sorted(problems)
+    return sorted(_check_readings(_Context(session, now or utcnow(), "form", None), parsed)[1])
+
+
+def _import_readings(ctx: _Context, parsed: ParsedTable, result: ImportResult) -> list[Problem]:
+    data, problems = _check_readings(ctx, parsed)
     if problems:
         return problems
     source = _column(parsed, "source").where(lambda s: s.notna(), ctx.source)
@@ -331,6 +348,7 @@ def _insert_frame(session: Session, model, frame: pd.DataFrame) -> None:
     """
     if len(frame) == 0:
         return
+    changes.note(session, model.__tablename__, "pump_id", {int(p) for p in frame["pump_id"].unique()})
     connection = session.connection()
     if connection.dialect.name != "sqlite":
         session.execute(insert(model), _records(frame))
@@ -407,6 +425,7 @@ def _import_flowtests(ctx: _Context, parsed: ParsedTable, result: ImportResult) 
     ]
     if records:
         ctx.session.execute(insert(FlowTestPoint), records)
+        changes.note(ctx.session, "flow_test_point", "reading_id", {r["reading_id"] for r in records})
     result.created = len(records)
     result.pump_ids.update(int(x) for x in known["pump_id"].unique())
     return problems
@@ -490,17 +509,8 @@ def _import_samples(ctx: _Context, parsed: ParsedTable, result: ImportResult) ->
         for size, count in zip((4, 6, 14), counts, strict=True):
             if count is not None:
                 setattr(sample, f"count_{size}", count)
-        result.pump_ids.update(_pumps_on_machine(ctx.session, machine.id))
+        result.pump_ids.update(pumps_on_machine(ctx.session, machine.id))
     return problems
-
-
-def _pumps_on_machine(session: Session, machine_id: int) -> set[int]:
-    rows = session.scalars(
-        select(Installation.pump_id).join(Position, Installation.position_id == Position.id).where(
-            Position.machine_id == machine_id, Installation.removed_at.is_(None)
-        )
-    )
-    return set(rows)
 
 
 # --- maintenance events ------------------------------------------------------------------------------------

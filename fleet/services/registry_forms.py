@@ -2,7 +2,8 @@
 
 Kinds the importer knows (sites, pumps, installations, events, samples) are saved through
 fleet.services.importing.import_table, so the checks are the CLI's; the rest (machines, positions, oils, limit
-defaults, removals) are checked here. Savers never commit; they say which pumps need a new analysis.
+defaults, removals) are checked here. Savers run inside a unit of work (fleet.services.writes.perform), which
+commits and re-analyses what the refresh policy says the write touched.
 """
 
 from collections.abc import Callable
@@ -14,7 +15,7 @@ from sqlalchemy.orm import Session
 
 from fleet.db.models import Installation, LimitDefault, Machine, Oil, Position, Pump, Site
 from fleet.io.parse import ImportRejected
-from fleet.kinds import EVENT_KINDS, FAILURE_MODES, PUMP_KINDS, RESETS_INTERVAL
+from fleet.kinds import EVENT_KINDS, FAILURE_MODES, PUMP_KINDS
 from fleet.physics.cleanliness import parse_code
 from fleet.services import register
 from fleet.services.forms import Collector, Field, FormRejected, one_row_table, problems_by_field
@@ -25,8 +26,6 @@ from fleet.timeutil import utcnow
 @dataclass
 class Saved:
     message: str
-    pump_ids: set[int] | None  # pumps whose analysis changes; None: the whole fleet (limits, fleet prior)
-    refresh: bool = True
 
 
 @dataclass(frozen=True)
@@ -99,20 +98,6 @@ def _fmt(value) -> str:
     return str(value)
 
 
-def _pumps_at(session: Session, *, site_id: int | None = None, machine_id: int | None = None,
-              oil_id: int | None = None) -> set[int]:
-    """Pumps installed now at a site, on a machine, or on machines filled with an oil."""
-    statement = (select(Installation.pump_id).join(Position, Position.id == Installation.position_id)
-                 .join(Machine, Machine.id == Position.machine_id).where(Installation.removed_at.is_(None)))
-    if site_id is not None:
-        statement = statement.where(Machine.site_id == site_id)
-    if machine_id is not None:
-        statement = statement.where(Machine.id == machine_id)
-    if oil_id is not None:
-        statement = statement.where(Machine.oil_id == oil_id)
-    return set(session.scalars(statement))
-
-
 def _import_one(session: Session, kind: str, values: dict, columns: list[str], quantities: dict | None = None):
     try:
         return import_table(session, kind, one_row_table(values, columns, quantities), source="form")
@@ -146,7 +131,7 @@ def _site_save(session: Session, key: str | None, values: dict) -> Saved:
     result = _import_one(session, "sites", values, ["site", "currency", "tariff_per_kwh", "motor_efficiency", "note"])
     site = session.scalar(select(Site).where(Site.name == values["site"].strip()))
     verb = "added" if result.created else "saved"
-    return Saved(f"Site {site.name} {verb}.", _pumps_at(session, site_id=site.id))
+    return Saved(f"Site {site.name} {verb}.")
 
 
 # --- machines --------------------------------------------------------------------------------------------------
@@ -186,7 +171,7 @@ def _machine_save(session: Session, key: str | None, values: dict) -> Saved:
     machine.site_id, machine.name, machine.note = int(site_id), name, note
     machine.oil_id = int(oil_id) if oil_id else None
     session.flush()
-    return Saved(f"Machine {name} saved.", _pumps_at(session, machine_id=machine.id))
+    return Saved(f"Machine {name} saved.")
 
 
 # --- positions -------------------------------------------------------------------------------------------------
@@ -220,7 +205,7 @@ def _position_save(session: Session, key: str | None, values: dict) -> Saved:
         session.add(position)
     position.machine_id, position.name = int(machine_id), name
     session.flush()
-    return Saved(f"Position {name} saved.", set(), refresh=False)
+    return Saved(f"Position {name} saved.")
 
 
 # --- oils ------------------------------------------------------------------------------------------------------
@@ -263,7 +248,7 @@ def _oil_save(session: Session, key: str | None, values: dict) -> Saved:
         oil.name = name
         session.flush()
     oil = register.set_oil(session, name, nu40, nu100, density, int(grade) if grade else None)
-    return Saved(f"Oil {name} saved.", _pumps_at(session, oil_id=oil.id))
+    return Saved(f"Oil {name} saved.")
 
 
 # --- pumps -----------------------------------------------------------------------------------------------------
@@ -353,7 +338,7 @@ def _pump_save(session: Session, key: str | None, values: dict) -> Saved:
                case_drain="yes" if values.get("case_drain") else "no")
     result = _import_one(session, "pumps", row, _PUMP_COLUMNS, _PUMP_NUMBERS)
     verb = "added" if result.created else "saved"
-    return Saved(f"Pump {serial} {verb}.", set(result.pump_ids))
+    return Saved(f"Pump {serial} {verb}.")
 
 
 # --- default limits per kind -----------------------------------------------------------------------------------
@@ -409,7 +394,7 @@ def _limit_save(session: Session, key: str | None, values: dict) -> Saved:
     row.cleanliness_target, row.source = code, source
     row.reading_interval_days, row.planning_horizon_weeks = int(interval), int(horizon)
     session.flush()
-    return Saved(f"Default limits of {PUMP_KINDS[key].lower()} pumps saved.", None)
+    return Saved(f"Default limits of {PUMP_KINDS[key].lower()} pumps saved.")
 
 
 # --- installations and removals --------------------------------------------------------------------------------
@@ -434,8 +419,7 @@ def _install_save(session: Session, key: str | None, values: dict) -> Saved:
                                                          "hours"], {"hours": "hours"})
     if not result.created:
         raise FormRejected({"installed_at": ["this installation is already recorded"]})
-    return Saved(f"Pump {values.get('pump')} recorded in {position.machine.name} / {position.name}.",
-                 set(result.pump_ids))
+    return Saved(f"Pump {values.get('pump')} recorded in {position.machine.name} / {position.name}.")
 
 
 def _removal_fields(session: Session, key: str | None) -> list[Field]:
@@ -461,7 +445,7 @@ def _removal_save(session: Session, key: str | None, values: dict) -> Saved:
     form.raise_if_any()
     current.removed_at, current.removed_hours = removed_at, hours
     session.flush()
-    return Saved(f"Pump {serial} recorded as removed.", {pump.id})
+    return Saved(f"Pump {serial} recorded as removed.")
 
 
 # --- maintenance events and lab results ------------------------------------------------------------------------
@@ -481,13 +465,10 @@ def _event_fields(session: Session, key: str | None) -> list[Field]:
 
 
 def _event_save(session: Session, key: str | None, values: dict) -> Saved:
-    result = _import_one(session, "events", values,
-                         ["pump", "date", "hours", "kind", "cost", "downtime", "failure_mode", "note"],
-                         {"hours": "hours", "downtime": "hours"})
-    # An overhaul or replacement ends a service interval: the fleet's life history (its prior) changes too.
-    resets = (values.get("kind") or "").strip().lower() in RESETS_INTERVAL
+    _import_one(session, "events", values, ["pump", "date", "hours", "kind", "cost", "downtime", "failure_mode",
+                                            "note"], {"hours": "hours", "downtime": "hours"})
     kind = EVENT_KINDS.get((values.get("kind") or "").strip().lower(), "Event")
-    return Saved(f"{kind} of pump {values.get('pump')} recorded.", None if resets else set(result.pump_ids))
+    return Saved(f"{kind} of pump {values.get('pump')} recorded.")
 
 
 def _sample_fields(session: Session, key: str | None) -> list[Field]:
@@ -509,10 +490,9 @@ def _sample_save(session: Session, key: str | None, values: dict) -> Saved:
     form.raise_if_any()
     machine = session.get(Machine, int(machine_id))
     row = {**values, "site": machine.site.name, "machine": machine.name}
-    result = _import_one(session, "samples", row, ["site", "machine", "sampled_at", "reported_at", "iso4406",
-                                                   "water", "viscosity_40", "lab_ref", "note"],
-                         {"viscosity_40": "viscosity"})
-    return Saved(f"Lab result for {machine.name} recorded.", set(result.pump_ids))
+    _import_one(session, "samples", row, ["site", "machine", "sampled_at", "reported_at", "iso4406", "water",
+                                          "viscosity_40", "lab_ref", "note"], {"viscosity_40": "viscosity"})
+    return Saved(f"Lab result for {machine.name} recorded.")
 
 
 def _no_initial(session: Session, key: str | None) -> dict:

@@ -1,7 +1,7 @@
 """Rounds: routes (ordered walks of pumps), the quick reading form's checks, and saving one reading.
 
-Every write goes through the same importer as a CSV file (source "form"), so a form, an upload and the API
-accept and refuse exactly the same readings. Functions never commit: the caller owns the transaction.
+Every reading goes through the same importer as a CSV file (source "form"), so a form, an upload and the API
+accept and refuse exactly the same readings, and is stored as one unit of work (fleet.services.writes).
 """
 
 from dataclasses import dataclass, field
@@ -10,16 +10,16 @@ from datetime import datetime
 import numpy as np
 import pandas as pd
 from sqlalchemy import func, select
-from sqlalchemy.orm import Session
+from sqlalchemy.orm import Session, sessionmaker
 
 from fleet import units
 from fleet.db.models import Installation, Machine, Position, Pump, Reading, Route, RouteStop, Site
-from fleet.io.parse import ImportRejected, Problem, parse_table
+from fleet.io.parse import Problem, parse_table
 from fleet.kinds import PUMP_KINDS
 from fleet.physics.pump import theoretical_flow_lpm
-from fleet.services.analysis import RefreshSummary, refresh_analysis
 from fleet.services.fleetdata import load_pumps
-from fleet.services.importing import ImportResult, import_table
+from fleet.services.importing import ImportResult, check_readings, import_table
+from fleet.services.writes import Outcome, perform
 from fleet.timeutil import utcnow
 
 
@@ -257,16 +257,11 @@ class CheckOutcome:
 
 
 def check_reading(session: Session, pump: Pump, table: pd.DataFrame, now: datetime | None = None) -> CheckOutcome:
-    """Run the importer on ``table`` without keeping anything (a savepoint rolled back), then the plausibility
-    checks. Leaves the session as it found it."""
+    """The importer's checks of ``table`` (nothing is written), then the plausibility checks."""
     now = now or utcnow()
-    nested = session.begin_nested()
-    try:
-        import_table(session, "readings", table, now=now, source="form")
-    except ImportRejected as rejected:
-        return CheckOutcome(problems=rejected.problems)
-    finally:
-        nested.rollback()
+    problems = check_readings(session, table, now)
+    if problems:
+        return CheckOutcome(problems=problems)
     parsed, _ = parse_table("readings", table)
     row = parsed.data.iloc[0]
     reading = {name: _plain(row.get(name)) for name in
@@ -285,12 +280,11 @@ def _plain(value):
     return None if isinstance(value, float) and not np.isfinite(value) else value
 
 
-def save_reading(session: Session, table: pd.DataFrame, now: datetime | None = None,
-                 source: str = "form") -> tuple[ImportResult, RefreshSummary]:
-    """Store the reading through the importer, then re-analyse that pump. Raises ImportRejected."""
-    result = import_table(session, "readings", table, now=now, source=source)
-    summary = refresh_analysis(session, pump_ids=sorted(result.pump_ids))
-    return result, summary
+def save_readings(sessions: sessionmaker[Session], table: pd.DataFrame, source: str = "form",
+                  now: datetime | None = None) -> Outcome[ImportResult]:
+    """Store readings through the importer as one unit of work (which re-analyses their pumps). Raises
+    ImportRejected, with nothing written."""
+    return perform(sessions, lambda session: import_table(session, "readings", table, source=source, now=now))
 
 
 def unit_choices() -> dict[str, tuple[str, ...]]:

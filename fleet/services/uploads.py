@@ -3,12 +3,12 @@
 import io
 
 import pandas as pd
-from sqlalchemy.orm import Session
+from sqlalchemy.orm import Session, sessionmaker
 
 from fleet.io.columns import KINDS
 from fleet.io.parse import ImportRejected
-from fleet.kinds import RESETS_INTERVAL
 from fleet.services.importing import import_table
+from fleet.services.writes import perform
 
 PROBLEM_COLUMNS = ("row", "column", "reason")
 
@@ -25,9 +25,9 @@ def read_upload(data: bytes) -> pd.DataFrame:
                        encoding="utf-8-sig")
 
 
-def upload_csv(session: Session, kind: str, data: bytes | None) -> dict:
-    """Import ``data`` as ``kind``. Returns the outcome; ``ok`` False means nothing was written (the caller rolls
-    back), with ``problems`` as rows and ``report`` as the CLI prints it."""
+def upload_file(sessions: sessionmaker[Session], kind: str, data: bytes | None) -> dict:
+    """Import ``data`` as ``kind`` in one unit of work. Returns the outcome; ``ok`` False means nothing was
+    written, with ``problems`` as rows and ``report`` as the CLI prints it."""
     if kind not in KINDS:
         return _rejected(kind, [{"row": 1, "column": "kind", "reason": f"'{kind}' is not an import kind"}],
                          f"row 1, column 'kind': '{kind}' is not an import kind")
@@ -40,22 +40,19 @@ def upload_csv(session: Session, kind: str, data: bytes | None) -> dict:
         reason = f"the file is not a readable CSV ({exc.__class__.__name__}: {str(exc).splitlines()[0]})"
         return _rejected(kind, [{"row": 1, "column": "", "reason": reason}], reason)
     try:
-        result = import_table(session, kind, table, source="import")
+        outcome = perform(sessions, lambda session: import_table(session, kind, table, source="import"))
     except ImportRejected as rejected:
         rows = [{"row": p.row, "column": p.column, "reason": p.reason} for p in rejected.problems]
         return _rejected(kind, rows, rejected.report())
-    resets = kind == "events" and bool(table.get("kind", pd.Series(dtype=str)).str.strip().str.lower()
-                                       .isin(RESETS_INTERVAL).any())
+    result = outcome.value
     return {
         "ok": True, "kind": kind, "summary": result.summary(), "problems": [], "report": "",
         "rows": result.rows, "created": result.created, "updated": result.updated, "skipped": result.skipped,
-        "pump_ids": sorted(result.pump_ids),
-        # Overhauls and replacements change the fleet's life history, so the whole fleet is re-analysed.
-        "refresh_all": resets,
+        "pump_ids": sorted(outcome.pumps), "analysis": outcome.describe(),
     }
 
 
 def _rejected(kind: str, problems: list[dict], report: str) -> dict:
     return {"ok": False, "kind": kind, "summary": f"{len(problems)} problem(s); nothing was imported",
             "problems": problems, "report": report, "rows": 0, "created": 0, "updated": 0, "skipped": 0,
-            "pump_ids": [], "refresh_all": False}
+            "pump_ids": [], "analysis": None}

@@ -86,7 +86,7 @@ def set_password(session: Session, name: str, password: str) -> User:
 
 
 def verify_password(session: Session, name: str, password: str) -> User | None:
-    """The active user when ``password`` is theirs, else None. Records the login and upgrades an old hash."""
+    """The active user when ``password`` is theirs, else None. Reads only (record_sign_in writes)."""
     user = find_user(session, name)
     stored = user.password_hash if user is not None else _UNKNOWN_USER_HASH
     try:
@@ -95,6 +95,12 @@ def verify_password(session: Session, name: str, password: str) -> User | None:
         return None
     if user is None or not user.active:
         return None
+    return user
+
+
+def record_sign_in(session: Session, user_id: int, password: str) -> User:
+    """Note the sign-in, and hash the password again where the hash's cost settings are out of date."""
+    user = session.get(User, user_id)
     if _hasher.check_needs_rehash(user.password_hash):
         user.password_hash = _hasher.hash(password)
     user.last_login_at = utcnow()

@@ -36,6 +36,7 @@ def create_app(test_config: dict | None = None) -> Flask:
 
     db.init_app(app)
     auth.init_app(app)  # first: its guard runs before every view
+    app.before_request(db.analysis_up_to_date)  # after the guard: only a signed-in read refreshes
     filters.init_app(app)
     app.register_blueprint(assets.bp)
     app.register_blueprint(service_list.bp)

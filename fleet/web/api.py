@@ -19,10 +19,11 @@ from fleet import units
 from fleet.db.models import AnalysisResult, Pump, Reading
 from fleet.io.columns import READINGS
 from fleet.io.parse import ImportRejected, Problem, parse_table
-from fleet.services.rounds import save_reading
+from fleet.services.importing import import_table
 from fleet.services.users import mark_token_used
+from fleet.services.writes import perform
 from fleet.web.auth import requires, signed_in_user
-from fleet.web.db import session
+from fleet.web.db import session, sessions
 
 bp = Blueprint("api", __name__, url_prefix="/api")
 
@@ -144,20 +145,24 @@ def post_readings():
     table, problems = readings_table(items)
     if problems:
         return _problems_response(problems)
-    db = session()
+    token_id = signed_in_user().token_id
+
+    def work(db):
+        result = import_table(db, "readings", table, source="api")
+        if token_id is not None:
+            mark_token_used(db, token_id)
+        return result
+
     try:
-        result, _summary = save_reading(db, table, source="api")
+        outcome = perform(sessions(), work)
     except ImportRejected as rejected:
-        db.rollback()
         # The importer counts rows as a spreadsheet does (header = row 1); here row 1 is the first object.
         return _problems_response([Problem(max(p.row - 1, 0), _field_name(p.column), p.reason)
                                    for p in rejected.problems])
-    stored = _stored(db, table)
-    statuses = _statuses(db, result.pump_ids)
-    if signed_in_user().token_id is not None:
-        mark_token_used(db, signed_in_user().token_id)
-    db.commit()
-    return jsonify({"created": result.created, "readings": stored, "pumps": statuses}), 201
+    db = session()
+    db.rollback()  # a fresh snapshot: this request's reads began before the write
+    return jsonify({"created": outcome.value.created, "readings": _stored(db, table),
+                    "pumps": _statuses(db, outcome.value.pump_ids)}), 201
 
 
 def _field_name(column: str) -> str:

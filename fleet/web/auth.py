@@ -40,9 +40,11 @@ from flask_limiter.util import get_remote_address
 from flask_login import LoginManager, current_user, login_user, logout_user
 from flask_wtf.csrf import CSRFError, CSRFProtect
 
+from fleet.db import audit
 from fleet.db.models import User
-from fleet.services import audit, users
-from fleet.web.db import session
+from fleet.services import users
+from fleet.services.writes import perform
+from fleet.web.db import session, sessions
 
 bp = Blueprint("auth", __name__)
 login_manager = LoginManager()
@@ -223,14 +225,13 @@ def login():
             return redirect(next_url)
         return render_template("auth/login.html", next=next_url, name="", error=None)
     name = request.form.get("name", "").strip()
-    db = session()
-    user = users.verify_password(db, name, request.form.get("password", ""))
+    password = request.form.get("password", "")
+    user = users.verify_password(session(), name, password)
     if user is None:
-        db.rollback()
         return render_template("auth/login.html", next=next_url, name=name,
                                error="That name and password do not match an active user."), 401
+    user = perform(sessions(), lambda db: users.record_sign_in(db, user.id, password)).value
     signed_in = SignedInUser.of(user)
-    db.commit()
     cookie_session.clear()  # a new session on sign-in: a cookie planted before cannot ride along
     cookie_session.permanent = True
     login_user(signed_in)

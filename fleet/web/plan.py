@@ -5,8 +5,9 @@ from flask import Blueprint, abort, flash, jsonify, redirect, request, url_for
 from fleet.services.forms import FormRejected
 from fleet.services.plan import CSV_COLUMNS, DEFAULT_WEEKS, add_window, delete_window, overhaul_plan
 from fleet.services.plan_chart import timeline_html
+from fleet.services.writes import perform
 from fleet.web.auth import requires
-from fleet.web.db import session
+from fleet.web.db import session, sessions
 from fleet.web.respond import respond, twin_routes, wants_json
 
 bp = Blueprint("plan", __name__)
@@ -34,13 +35,10 @@ def overhaul(fmt):
 @bp.post("/plan/windows")
 @requires("engineer")
 def add(fmt=None):
-    db = session()
     values = request.form.to_dict()
     try:
-        window = add_window(db, values)
-        db.commit()
+        window = perform(sessions(), lambda db: add_window(db, values)).value
     except FormRejected as rejected:
-        db.rollback()
         return _page(fmt, values, rejected.errors, status=400)
     if wants_json(fmt):
         return jsonify({"saved": window.id}), 201
@@ -51,9 +49,7 @@ def add(fmt=None):
 @bp.post("/plan/windows/<int:window_id>/delete")
 @requires("engineer")
 def delete(window_id: int):
-    db = session()
-    if not delete_window(db, window_id):
+    if not perform(sessions(), lambda db: delete_window(db, window_id)).value:
         abort(404)
-    db.commit()
     flash("Shutdown window removed.", "saved")
     return redirect(url_for("plan.overhaul", weeks=_weeks()))

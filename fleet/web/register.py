@@ -2,13 +2,13 @@
 
 from flask import Blueprint, abort, flash, jsonify, redirect, request, url_for
 
-from fleet.services.analysis import refresh_analysis
 from fleet.services.forms import FormRejected
-from fleet.services.registry_forms import FORMS, NotFound, Saved
+from fleet.services.registry_forms import FORMS, NotFound
 from fleet.services.registry_pages import CSV_COLUMNS, FORM_COLUMNS, form_page, register_overview
-from fleet.services.uploads import PROBLEM_COLUMNS, upload_csv, upload_kinds
+from fleet.services.uploads import PROBLEM_COLUMNS, upload_file, upload_kinds
+from fleet.services.writes import perform
 from fleet.web.auth import requires
-from fleet.web.db import session
+from fleet.web.db import session, sessions
 from fleet.web.respond import respond, twin_routes, wants_json
 
 bp = Blueprint("register", __name__)
@@ -44,14 +44,10 @@ def _form(form: str, key: str | None, fmt):
     if request.method == "POST":
         values = request.form.to_dict()
         try:
-            saved = spec.save(db, key, values)
-            _refresh(db, saved)
-            db.commit()
+            saved = perform(sessions(), lambda unit: spec.save(unit, key, values)).value
         except NotFound:
-            db.rollback()
             abort(404)
         except FormRejected as rejected:
-            db.rollback()
             data = form_page(db, form, key, values, rejected.errors)
             return respond(data, "register/form.html", fmt, "fields", FORM_COLUMNS, f"{form}-form", status=400)
         if wants_json(fmt):
@@ -65,16 +61,6 @@ def _form(form: str, key: str | None, fmt):
     return respond(data, "register/form.html", fmt, "fields", FORM_COLUMNS, f"{form}-form")
 
 
-def _refresh(db, saved: Saved) -> None:
-    """Re-analyse what the write changed: some pumps, or the whole fleet (limits, the fleet's life history)."""
-    if not saved.refresh:
-        return
-    if saved.pump_ids is None:
-        refresh_analysis(db)
-    elif saved.pump_ids:
-        refresh_analysis(db, pump_ids=sorted(saved.pump_ids))
-
-
 @twin_routes(bp, "/register/upload", methods=["GET", "POST"])
 @requires("engineer")
 def upload(fmt):
@@ -82,15 +68,9 @@ def upload(fmt):
             "problems": []}
     status = 200
     if request.method == "POST":
-        db = session()
         kind = request.form.get("kind", "")
         file = request.files.get("file")
-        outcome = upload_csv(db, kind, file.read() if file else None)
-        if outcome["ok"]:
-            _refresh(db, Saved(outcome["summary"], None if outcome["refresh_all"] else set(outcome["pump_ids"])))
-            db.commit()
-        else:
-            db.rollback()
-            status = 400
+        outcome = upload_file(sessions(), kind, file.read() if file else None)
+        status = 200 if outcome["ok"] else 400
         data.update(kind=kind, outcome=outcome, problems=outcome["problems"])
     return respond(data, "register/upload.html", fmt, "problems", PROBLEM_COLUMNS, "upload-report", status)

@@ -14,9 +14,10 @@ from fleet import units
 from fleet.db.models import Pump
 from fleet.io.parse import ImportRejected
 from fleet.services import rounds
+from fleet.services.writes import perform
 from fleet.timeutil import utcnow
 from fleet.web.auth import current_actor, requires
-from fleet.web.db import session
+from fleet.web.db import session, sessions
 from fleet.web.respond import respond, twin_routes, twin_urls, wants_json
 
 bp = Blueprint("rounds", __name__)
@@ -42,15 +43,14 @@ def create():
     form = request.form
     serials = rounds.parse_serials(form.get("pumps", ""))
     try:
-        route = rounds.create_route(session(), form.get("name", ""), serials, form.get("note"))
+        route = perform(sessions(), lambda db: rounds.create_route(db, form.get("name", ""), serials,
+                                                                     form.get("note"))).value
     except rounds.RouteError as error:
-        session().rollback()
         data = rounds.route_list(session())
         if wants_json(None):
             return {"problems": error.problems}, 422
         return render_template("rounds/index.html", twins=twin_urls_for_index(), errors=error.problems,
                                form=form, **data), 422
-    session().commit()
     flash(f"Route '{route.name}' saved with {len(route.stops)} pump(s).", "info")
     return redirect(url_for("rounds.walk", route_id=route.id))
 
@@ -99,15 +99,13 @@ def reading(route_id, number):
                             twins={fmt: url_for("rounds.walk", route_id=route_id, fmt=fmt) for fmt in ("json", "csv")})
         return _remember_units(page, chosen), status
     try:
-        result, summary = rounds.save_reading(db, table)
+        saved = rounds.save_readings(sessions(), table)
     except ImportRejected as rejected:  # stored by someone else between the check and the save
-        db.rollback()
         outcome = rounds.CheckOutcome(problems=rejected.problems)
         page = _render_walk(data, number, values=values, chosen=chosen, outcome=outcome, checked=True,
                             twins={fmt: url_for("rounds.walk", route_id=route_id, fmt=fmt) for fmt in ("json", "csv")})
         return _remember_units(page, chosen), 422
-    db.commit()
-    flash(f"Saved the reading of {pump.serial}; {summary.describe()}.", "info")
+    flash(f"Saved the reading of {pump.serial}; {saved.describe()}.", "info")
     after = number + 1 if number < len(data["stops"]) else None
     target = url_for("rounds.walk", route_id=route_id, stop=after) if after else \
         url_for("rounds.walk", route_id=route_id, stop=number, done=1)

@@ -193,18 +193,6 @@ def restore(session: Session, record_id: int) -> AuditRecord:
     return record
 
 
-def pump_id_of(session: Session, record: AuditRecord) -> int | None:
-    """The pump whose analysis a record's row feeds (None for an oil sample: it feeds its machine's pumps)."""
-    values = record.before or record.after or {}
-    if record.table_name == "pump":
-        return record.row_id
-    if "pump_id" in values:
-        return values["pump_id"]
-    if record.table_name == "flow_test_point":
-        return session.scalar(select(Reading.pump_id).where(Reading.id == values.get("reading_id")))
-    return None
-
-
 # --- the trash page's data ---------------------------------------------------------------------------------
 
 TRASH_COLUMNS = ("id", "what", "record", "deleted_by", "deleted_at", "row_id")
@@ -242,22 +230,3 @@ def trash_page(session: Session) -> dict:
              "deleted_by": r.actor, "deleted_at": r.at.isoformat(sep=" ", timespec="minutes"), "row_id": r.row_id}
             for r in records]
     return {"deleted": rows}
-
-
-def pumps_on_machine(session: Session, machine_id: int | None, ever: bool = False) -> list[int]:
-    """Pumps now on a machine (or, with ``ever``, every pump that has sat on it)."""
-    from fleet.db.models import Installation, Position
-
-    query = (select(Installation.pump_id).join(Position, Position.id == Installation.position_id)
-             .where(Position.machine_id == machine_id))
-    if not ever:
-        query = query.where(Installation.removed_at.is_(None))
-    return sorted(set(session.scalars(query)))
-
-
-def pumps_fed_by(session: Session, record: AuditRecord) -> list[int]:
-    """The pumps whose analysis a record's row feeds: its pump, or every pump now on a sample's machine."""
-    if record.table_name == "oil_sample":
-        return pumps_on_machine(session, (record.before or {}).get("machine_id"))
-    pump_id = pump_id_of(session, record)
-    return [] if pump_id is None else [pump_id]

@@ -1,0 +1,113 @@
+"""Run the trend engine on stored data: read only, nothing stored here (fleet.services.analysis.store does that)."""
+
+from collections.abc import Callable
+from dataclasses import dataclass
+from datetime import datetime
+
+import pandas as pd
+from sqlalchemy import select
+from sqlalchemy.orm import Session
+
+from fleet.db.models import FleetPrior, Pump, PumpDataVersion
+from fleet.services.fleetdata import FleetFrames, load_frames
+from fleet.timeutil import utcnow
+from fleet.trend.engine import FleetAnalysis, analyze_fleet, apply_priors, fit_priors
+from fleet.trend.intervals import interval_lives
+from fleet.trend.settings import AnalysisSettings
+from fleet.trend.status import service_rank
+
+Progress = Callable[[int, int, str], None]
+CHUNK_PUMPS = 400  # pumps analysed at once in a full refresh: bounds its memory (measured in benchmarks/run.py)
+
+
+@dataclass
+class Computed:
+    """An analysis ready to store: one row per pump, the service lives behind the fleet life figures, and the
+    data version of each pump it was computed from (read before the data, so never newer than what it saw)."""
+
+    results: pd.DataFrame
+    lives: pd.DataFrame
+    versions: dict[int, int]
+    computed_at: datetime
+    full: bool
+
+
+def data_versions(session: Session, pump_ids=None) -> dict[int, int]:
+    """pump_id -> data version (0 for a pump no write has counted yet)."""
+    statement = select(Pump.id, PumpDataVersion.version).outerjoin(PumpDataVersion, PumpDataVersion.pump_id == Pump.id)
+    if pump_ids is not None:
+        statement = statement.where(Pump.id.in_([int(p) for p in pump_ids]))
+    return {pump_id: version or 0 for pump_id, version in session.execute(statement)}
+
+
+def stored_priors(session: Session) -> pd.DataFrame | None:
+    rows = session.scalars(select(FleetPrior)).all()
+    if not rows:
+        return None
+    frame = pd.DataFrame([{**row.detail} for row in rows], index=pd.Index([r.kind for r in rows], name="kind"))
+    # JSON gives None for a kind without a fit; the engine wants NaN in float columns.
+    for column in frame.columns:
+        numbers = pd.to_numeric(frame[column], errors="coerce")
+        if numbers.notna().sum() == frame[column].notna().sum():
+            frame[column] = numbers.astype(float)
+    return frame
+
+
+def analyse(session: Session, pump_ids=None, now: datetime | None = None,
+            settings: AnalysisSettings | None = None) -> FleetAnalysis:
+    """Compute (without storing) the analysis of ``pump_ids`` (None: the fleet)."""
+    return analyse_with_frames(session, pump_ids, now, settings)[0]
+
+
+def analyse_with_frames(session: Session, pump_ids=None, now: datetime | None = None,
+                        settings: AnalysisSettings | None = None) -> tuple[FleetAnalysis, FleetFrames]:
+    """The analysis and the frames it was computed from (a page needs both; loading twice costs)."""
+    now = now or utcnow()
+    frames = load_frames(session, pump_ids, as_of=now)
+    priors = None if pump_ids is None else stored_priors(session)
+    analysis = analyze_fleet(frames.pumps, frames.readings, frames.events, frames.samples, frames.flow_points,
+                             now=now, settings=settings, priors=priors)
+    return analysis, frames
+
+
+def analyse_results(session: Session, pump_ids=None, now: datetime | None = None,
+                    settings: AnalysisSettings | None = None,
+                    chunk_pumps: int = CHUNK_PUMPS) -> tuple[pd.DataFrame, pd.DataFrame]:
+    """(results, service lives) of ``pump_ids`` (None: the fleet).
+
+    The fleet is analysed ``chunk_pumps`` pumps at a time, so memory stays bounded by one part. A pump's
+    figures depend only on its own data and the fleet priors; those are fitted once from every part's service
+    intervals and then given to every pump (fleet.trend.engine.apply_priors), so the results are the same as
+    one pass over the whole fleet.
+    """
+    now = now or utcnow()
+    settings = settings or AnalysisSettings()
+    ids = list(session.scalars(select(Pump.id).order_by(Pump.id))) if pump_ids is None else sorted(pump_ids)
+    if not ids:
+        frames = load_frames(session, [], as_of=now)
+        part = analyze_fleet(frames.pumps, frames.readings, frames.events, frames.samples, frames.flow_points,
+                             now=now, settings=settings)
+        return part.results, interval_lives(part.intervals)
+    parts, intervals, kinds = [], [], []
+    for first in range(0, len(ids), chunk_pumps):
+        part = analyse(session, ids[first:first + chunk_pumps], now, settings)
+        parts.append(part.results)
+        intervals.append(part.intervals)
+        kinds.append(part.results["kind"])
+    results = pd.concat(parts) if len(parts) > 1 else parts[0]
+    all_intervals = pd.concat(intervals, ignore_index=True)
+    if pump_ids is None:
+        if len(parts) > 1:  # each part ranked its own pumps: rank the fleet
+            results["rank"] = service_rank(results).to_numpy()
+        apply_priors(results, fit_priors(all_intervals, pd.concat(kinds), settings), now)
+    return results, interval_lives(all_intervals)
+
+
+def compute(session: Session, pump_ids=None, now: datetime | None = None,
+            settings: AnalysisSettings | None = None) -> Computed:
+    """Analyse ``pump_ids`` (None: the whole fleet) from what ``session`` sees; nothing is written."""
+    computed_at = now or utcnow()
+    versions = data_versions(session, pump_ids)  # first: the data read next is at least this new
+    ids = None if pump_ids is None else sorted(set(versions))
+    results, lives = analyse_results(session, ids, computed_at, settings)
+    return Computed(results, lives, versions, computed_at, full=pump_ids is None)

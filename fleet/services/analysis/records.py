@@ -1,0 +1,34 @@
+"""Stored analyses as the JSON contract of `fleet analyze --json` and the pages read them."""
+
+from collections.abc import Iterable
+
+from sqlalchemy import select
+from sqlalchemy.orm import Session
+
+from fleet.db.models import AnalysisResult, Pump
+from fleet.services.analysis.store import COLUMNS
+
+
+def pump_ids_for(session: Session, serials: Iterable[str]) -> list[int]:
+    serials = list(serials)
+    found = dict(session.execute(select(Pump.serial, Pump.id).where(Pump.serial.in_(serials))).all())
+    missing = [s for s in serials if s not in found]
+    if missing:
+        raise LookupError(f"no pump {', '.join(repr(s) for s in missing)} in the register")
+    return [found[s] for s in serials]
+
+
+def analysis_records(session: Session, pump_ids=None) -> list[dict]:
+    """Stored results, most urgent first, as JSON-ready dicts: the contract fields first, then the rest."""
+    statement = select(AnalysisResult, Pump.serial).join(Pump, Pump.id == AnalysisResult.pump_id)
+    if pump_ids is not None:
+        statement = statement.where(AnalysisResult.pump_id.in_(list(pump_ids)))
+    records = []
+    for row, serial in session.execute(statement.order_by(AnalysisResult.rank, Pump.serial)):
+        record = {"pump": serial}
+        record.update({k: getattr(row, k) for k in COLUMNS})
+        record["rank"] = row.rank
+        record["computed_at"] = row.computed_at.isoformat(timespec="seconds")
+        record.update({k: v for k, v in (row.detail or {}).items() if k not in record})
+        records.append(record)
+    return records

@@ -1,0 +1,80 @@
+"""Bring stored analyses up to date: after a write, on a page read, at start, or for a full `fleet analyze`.
+
+The engine runs in a read transaction, and only storing takes the write lock (fleet.db.transaction), so a long
+analysis never holds up a technician's save. Data written meanwhile is caught by the data versions: its pumps
+stay stale and are analysed again in the next round.
+"""
+
+from datetime import datetime
+
+from sqlalchemy import func, or_, select
+from sqlalchemy.orm import Session, sessionmaker
+
+from fleet.db.models import AnalysisResult, Pump, PumpDataVersion
+from fleet.db.transaction import run_write
+from fleet.services.analysis.compute import Progress, compute
+from fleet.services.analysis.store import RefreshSummary, store
+from fleet.trend.settings import AnalysisSettings
+
+# When at least this share of the fleet is stale, one full analysis is cheaper than pump by pump.
+FULL_SHARE = 0.5
+ROUNDS = 4  # rounds of "analyse what is stale" before giving up to the next read (writers keep coming)
+
+
+def _stale():
+    version = func.coalesce(PumpDataVersion.version, 0)
+    return (select(Pump.id).outerjoin(PumpDataVersion, PumpDataVersion.pump_id == Pump.id)
+            .outerjoin(AnalysisResult, AnalysisResult.pump_id == Pump.id)
+            .where(or_(AnalysisResult.pump_id.is_(None), AnalysisResult.data_version < version)))
+
+
+def stale_pumps(session: Session) -> set[int]:
+    """Pumps whose stored analysis is missing or older than their data."""
+    return set(session.scalars(_stale()))
+
+
+def any_stale(session: Session) -> bool:
+    return session.scalar(_stale().limit(1)) is not None
+
+
+def refresh_analysis(session: Session, pump_ids=None, now: datetime | None = None,
+                     settings: AnalysisSettings | None = None, progress: Progress | None = None) -> RefreshSummary:
+    """Analyse ``pump_ids`` (None: the whole fleet) and store the results in the caller's transaction."""
+    computed = compute(session, pump_ids, now, settings)
+    if progress:
+        progress(0, len(computed.results), "storing analysis")
+    summary = store(session, computed, settings)
+    if progress:
+        progress(len(computed.results), len(computed.results), "storing analysis")
+    return summary
+
+
+def reanalyse(sessions: sessionmaker[Session], pump_ids=None, now: datetime | None = None,
+              settings: AnalysisSettings | None = None, progress: Progress | None = None) -> RefreshSummary:
+    """Analyse ``pump_ids`` (None: the fleet) afresh, computing outside the write lock, then bring up to date
+    anything written meanwhile."""
+    with sessions() as session, session.begin():
+        computed = compute(session, pump_ids, now, settings)
+    if progress:
+        progress(0, len(computed.results), "storing analysis")
+    summary = run_write(sessions, lambda session: store(session, computed, settings))
+    if progress:
+        progress(len(computed.results), len(computed.results), "storing analysis")
+    bring_up_to_date(sessions, now, settings)
+    return summary
+
+
+def bring_up_to_date(sessions: sessionmaker[Session], now: datetime | None = None,
+                     settings: AnalysisSettings | None = None) -> RefreshSummary | None:
+    """Analyse every stale pump and store it; None when nothing was stale."""
+    summary = None
+    for _ in range(ROUNDS):
+        with sessions() as session, session.begin():
+            stale = stale_pumps(session) if any_stale(session) else set()
+            if not stale:
+                return summary
+            total = session.scalar(select(func.count(Pump.id))) or 0
+            full = len(stale) >= max(FULL_SHARE * total, 2)
+            computed = compute(session, None if full else sorted(stale), now, settings)
+        summary = run_write(sessions, lambda session, c=computed: store(session, c, settings))
+    return summary

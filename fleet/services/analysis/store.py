@@ -1,0 +1,222 @@
+"""Keep an analysis: each pump's figures, its service lives, its kind's fleet life figures, and the service order.
+
+Runs inside a write unit. A pump's figures are stored only when computed from data at least as new as those
+already stored (a slow analysis never overwrites a newer one). The fleet life figures (the Weibull of each pump
+kind) are refitted from the stored service lives whenever a pump of that kind is stored, and each pump of the
+kind then gets its prior figures again: this needs intervals, not readings, so it stays cheap.
+"""
+
+from dataclasses import dataclass
+from datetime import datetime
+
+import numpy as np
+import pandas as pd
+from sqlalchemy import delete, insert, select, update
+from sqlalchemy.orm import Session
+
+from fleet.db.models import AnalysisResult, FleetPrior, Pump, ServiceLife, StatusChange
+from fleet.services.analysis.compute import Computed
+from fleet.services.fleetdata import json_ready
+from fleet.trend.engine import apply_priors, results_to_records
+from fleet.trend.settings import AnalysisSettings
+from fleet.trend.status import service_rank
+from fleet.trend.weibull import fit_fleet_priors
+
+# The fields of the JSON contract (`fleet analyze --json`), each stored in its own column.
+CONTRACT_FIELDS = (
+    "pump", "status", "reasons", "eta_v_ref", "eta_v_decline_per_1000h", "drain_pct_ref", "hours_to_limit",
+    "hours_to_limit_low", "hours_to_limit_high", "limit_date", "governing_limit", "prior_hours_to_overhaul",
+    "energy_cost_per_year",
+)
+COLUMNS = CONTRACT_FIELDS[1:]  # 'pump' is the serial, kept on the pump row
+# A stored prior figure is rewritten when a refit moves it by more than this (relative). Far inside the promise
+# that stored figures match a full analysis to 1 part in 10,000, and compared with the stored value, so small
+# moves never add up unseen.
+PRIOR_TOLERANCE = 1e-6
+_IN_CHUNK = 5000  # ids per IN (...) list
+
+
+@dataclass
+class RefreshSummary:
+    pumps: int
+    by_status: dict[str, int]
+    full: bool
+    computed_at: datetime
+
+    def describe(self) -> str:
+        scope = "fleet" if self.full else f"{self.pumps} pump(s)"
+        counts = ", ".join(f"{n} {status.replace('_', ' ')}" for status, n in sorted(self.by_status.items()))
+        return f"analysis refreshed for the {scope}: {counts or 'no pumps'}"
+
+
+def _chunks(ids: list) -> list[list]:
+    return [ids[i:i + _IN_CHUNK] for i in range(0, len(ids), _IN_CHUNK)] or [[]]
+
+
+def store(session: Session, computed: Computed, settings: AnalysisSettings | None = None) -> RefreshSummary:
+    """Store ``computed`` where it is not older than what is stored; refit the kinds concerned; re-rank."""
+    settings = settings or AnalysisSettings()
+    results = computed.results
+    ids = [int(p) for p in results.index]
+    stored, kinds_before = {}, set()
+    for part in _chunks(ids):
+        for pump_id, version, kind in session.execute(
+                select(AnalysisResult.pump_id, AnalysisResult.data_version, AnalysisResult.detail["kind"].as_string())
+                .where(AnalysisResult.pump_id.in_(part))):
+            stored[pump_id], _ = version, kinds_before.add(kind)
+    existing = {p for part in _chunks(ids) for p in session.scalars(select(Pump.id).where(Pump.id.in_(part)))}
+    keep = [p for p in ids if p in existing and computed.versions.get(p, 0) >= stored.get(p, -1)]
+    kept = results.loc[keep]
+    records = results_to_records(kept)
+    _record_changes(session, records, computed.computed_at)
+    for part in _chunks(keep):
+        session.execute(delete(AnalysisResult).where(AnalysisResult.pump_id.in_(part)))
+        session.execute(delete(ServiceLife).where(ServiceLife.pump_id.in_(part)))
+    _insert_results(session, records, computed)
+    lives = computed.lives[computed.lives["pump_id"].isin(keep)]
+    if len(lives):
+        session.execute(insert(ServiceLife), [
+            {"pump_id": int(p), "interval_no": int(n), "entry_hours": float(e), "life_hours": float(h),
+             "failed": bool(f)}
+            for p, n, e, h, f in zip(lives["pump_id"], lives["interval_no"], lives["entry_hours"],
+                                     lives["life_hours"], lives["failed"], strict=True)])
+    kinds = set(kept["kind"].dropna()) | {k for k in kinds_before if k}
+    if computed.full:
+        kinds |= set(session.scalars(select(FleetPrior.kind)))
+    refit_kinds(session, kinds, computed.computed_at, settings)
+    rerank(session)
+    by_status = kept["status"].value_counts().to_dict()
+    return RefreshSummary(len(records), {str(k): int(v) for k, v in by_status.items()}, computed.full,
+                          computed.computed_at)
+
+
+def _insert_results(session: Session, records: list[dict], computed: Computed) -> None:
+    rows = []
+    for record in records:
+        detail = {k: v for k, v in record.items() if k not in COLUMNS and k not in ("pump_id", "rank")}
+        rows.append({
+            "pump_id": record["pump_id"], "computed_at": computed.computed_at, "rank": record.get("rank") or 0,
+            "detail": json_ready(detail), "data_version": computed.versions.get(record["pump_id"], 0),
+            **{k: record.get(k) for k in COLUMNS},
+        })
+    if rows:
+        session.execute(insert(AnalysisResult), rows)
+
+
+def _record_changes(session: Session, records: list[dict], computed_at: datetime) -> None:
+    """Append a StatusChange for every pump whose status or reasons differ from its stored analysis."""
+    ids = [record["pump_id"] for record in records]
+    previous = {}
+    for part in _chunks(ids):
+        statement = select(AnalysisResult.pump_id, AnalysisResult.status, AnalysisResult.reasons)
+        previous.update({p: (s, r) for p, s, r in session.execute(statement.where(AnalysisResult.pump_id.in_(part)))})
+    for record in records:
+        before_status, before_reasons = previous.get(record["pump_id"], (None, []))
+        reasons = record.get("reasons") or []
+        if record["status"] == before_status and _reason_keys(reasons) == _reason_keys(before_reasons):
+            continue
+        known = _reason_keys(before_reasons)
+        session.add(StatusChange(
+            pump_id=record["pump_id"], at=computed_at, status=record["status"], previous_status=before_status,
+            reasons=reasons, new_reasons=[r for r in reasons if _reason_key(r) not in known],
+            eta_v_ref=record.get("eta_v_ref"), hours_to_limit=record.get("hours_to_limit"),
+            limit_date=record.get("limit_date"),
+        ))
+    session.flush()
+
+
+def _reason_key(reason: str) -> str:
+    """A reason without its figures, so 'eta_v,ref 0.91' and 'eta_v,ref 0.90' count as the same reason."""
+    return "".join(ch for ch in reason if not ch.isdigit())
+
+
+def _reason_keys(reasons) -> set[str]:
+    return {_reason_key(r) for r in reasons or []}
+
+
+def refit_kinds(session: Session, kinds, now: datetime, settings: AnalysisSettings) -> None:
+    """Fit the fleet life figures of ``kinds`` again from the stored service lives, store them, and give every
+    stored analysis of those kinds its prior figures from them."""
+    kinds = sorted(k for k in kinds if k)
+    if not kinds:
+        return
+    kind_of = pd.Series(dict(session.execute(select(Pump.id, Pump.kind).where(Pump.kind.in_(kinds))).all()),
+                        dtype=object)
+    rows = session.execute(select(ServiceLife.pump_id, ServiceLife.entry_hours, ServiceLife.life_hours,
+                                  ServiceLife.failed).join(Pump, Pump.id == ServiceLife.pump_id)
+                           .where(Pump.kind.in_(kinds))).all()
+    lives = pd.DataFrame(rows, columns=["pump_id", "entry_hours", "life_hours", "failed"]).astype(
+        {"entry_hours": float, "life_hours": float, "failed": bool})
+    priors = fit_fleet_priors(lives, kind_of, settings.min_weibull_failures)
+    detail = AnalysisResult.detail
+    stored = pd.DataFrame(session.execute(
+        select(AnalysisResult.pump_id, Pump.kind, AnalysisResult.hours_to_limit,
+               AnalysisResult.prior_hours_to_overhaul, detail["prior_b10_hours"].as_float(),
+               detail["age_hours"].as_float(), detail["hours_per_day"].as_float(),
+               detail["planning_horizon_weeks"].as_float(), detail["last_reading_at"].as_string())
+        .join(Pump, Pump.id == AnalysisResult.pump_id).where(Pump.kind.in_(kinds))).all(),
+        columns=["pump_id", "kind", "hours_to_limit", "stored_prior_hours", "stored_b10", "age_hours",
+                 "hours_per_day", "planning_horizon_weeks", "last_reading_at"]).set_index("pump_id")
+    for column in ("hours_to_limit", "stored_prior_hours", "stored_b10", "age_hours", "hours_per_day",
+                   "planning_horizon_weeks"):
+        stored[column] = stored[column].astype(float)
+    stored["last_reading_at"] = pd.to_datetime(stored["last_reading_at"])
+    priors = apply_priors(stored, priors, now)
+    moved = _moved(stored["prior_hours_to_overhaul"], stored["stored_prior_hours"]) | \
+        _moved(stored["prior_b10_hours"], stored["stored_b10"])
+    if moved.any():
+        _rewrite_prior_figures(session, stored[moved])
+    session.execute(delete(FleetPrior).where(FleetPrior.kind.in_(kinds)))
+    if len(priors):
+        session.execute(insert(FleetPrior), [
+            {"kind": str(kind), "computed_at": now, "detail": json_ready(row.to_dict())}
+            for kind, row in priors.iterrows()])
+    session.flush()
+
+
+def _moved(new: pd.Series, old: pd.Series) -> pd.Series:
+    new, old = new.astype(float), old.astype(float)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        relative = (new - old).abs() / np.maximum(old.abs(), 1e-9)
+    return (new.isna() != old.isna()) | (relative > PRIOR_TOLERANCE).fillna(False)
+
+
+def _rewrite_prior_figures(session: Session, changed: pd.DataFrame) -> None:
+    ids = [int(p) for p in changed.index]
+    details = {}
+    for part in _chunks(ids):
+        details.update(dict(session.execute(select(AnalysisResult.pump_id, AnalysisResult.detail)
+                                            .where(AnalysisResult.pump_id.in_(part))).all()))
+    rows = []
+    for pump_id, row in changed.iterrows():
+        detail = dict(details[int(pump_id)] or {})
+        detail["prior_b10_hours"] = json_ready(row["prior_b10_hours"])
+        rows.append({"pump_id": int(pump_id), "prior_hours_to_overhaul": json_ready(row["prior_hours_to_overhaul"]),
+                     "detail": detail})
+    session.execute(update(AnalysisResult), rows)
+
+
+def rerank(session: Session) -> None:
+    """Order the whole stored service list again (a partial refresh moves some pumps).
+
+    Reads only the figures the order uses (status, hours to limit, and from each stored detail its margin past
+    the limit, lower-bound date and pump name, extracted by the database) and writes only the ranks that moved.
+    """
+    detail = AnalysisResult.detail
+    rows = session.execute(select(
+        AnalysisResult.pump_id, AnalysisResult.rank, AnalysisResult.status, AnalysisResult.hours_to_limit,
+        detail["past_margin"].as_float(), detail["limit_date_low"].as_string(), detail["pump"].as_string(),
+    )).all()
+    if not rows:
+        return
+    frame = pd.DataFrame(rows, columns=["pump_id", "rank", "status", "hours_to_limit", "past_margin",
+                                        "limit_date_low", "pump"]).set_index("pump_id")
+    frame["past_margin"] = frame["past_margin"].astype(float)
+    frame["hours_to_limit"] = frame["hours_to_limit"].astype(float)
+    frame["limit_date_low"] = pd.to_datetime(frame["limit_date_low"])
+    ranks = service_rank(frame)
+    moved = ranks[ranks != frame["rank"]]
+    if len(moved):
+        session.execute(update(AnalysisResult), [{"pump_id": int(pump_id), "rank": int(rank)}
+                                                 for pump_id, rank in moved.items()])
+    session.flush()
