@@ -22,17 +22,24 @@ ATTEMPTS = 8
 _BACKOFF_S = 0.05
 
 
-def begin_write(session: Session) -> None:
-    """Begin the session's transaction as a writer (SQLite: BEGIN IMMEDIATE; elsewhere a plain begin)."""
-    session.connection(execution_options={WRITE_OPTION: True})
+def begin_write(session: Session, exclusive: str | None = None) -> None:
+    """Begin the session's transaction as a writer (SQLite: BEGIN IMMEDIATE; elsewhere a plain begin).
+
+    ``exclusive`` names work that must not run twice at once on PostgreSQL either (storing analyses: two units
+    replacing the same pump's row would collide); it holds a transaction-level advisory lock of that name.
+    """
+    connection = session.connection(execution_options={WRITE_OPTION: True})
+    if exclusive and connection.dialect.name == "postgresql":
+        connection.exec_driver_sql("SELECT pg_advisory_xact_lock(hashtext(%(name)s))", {"name": exclusive})
 
 
 def run_write(sessions: sessionmaker[Session], work: Callable[[Session], T], attempts: int = ATTEMPTS,
-              prepare: Callable[[Session], None] | None = None) -> T:
+              prepare: Callable[[Session], None] | None = None, exclusive: str | None = None) -> T:
     """Run ``work(session)`` as one write transaction and commit it; return its result.
 
     ``work`` does everything of the unit itself, since it may run again from scratch. ``prepare`` runs on each
-    fresh session before the transaction begins (e.g. to start collecting what the unit changes). A unit
+    fresh session before the transaction begins (e.g. to start collecting what the unit changes); ``exclusive``
+    as in begin_write. A unit
     that raises anything else rolls back and the error propagates: nothing of it is written.
     """
     if attempts < 1:
@@ -43,7 +50,7 @@ def run_write(sessions: sessionmaker[Session], work: Callable[[Session], T], att
         try:
             if prepare is not None:
                 prepare(session)
-            begin_write(session)
+            begin_write(session, exclusive)
             result = work(session)
             session.commit()
             return result

@@ -18,6 +18,7 @@ from fleet.trend.settings import AnalysisSettings
 
 # When at least this share of the fleet is stale, one full analysis is cheaper than pump by pump.
 FULL_SHARE = 0.5
+STORE_LOCK = "fleet analysis store"  # one store at a time (PostgreSQL; SQLite has one writer anyway)
 ROUNDS = 4  # rounds of "analyse what is stale" before giving up to the next read (writers keep coming)
 
 
@@ -57,7 +58,7 @@ def reanalyse(sessions: sessionmaker[Session], pump_ids=None, now: datetime | No
         computed = compute(session, pump_ids, now, settings)
     if progress:
         progress(0, len(computed.results), "storing analysis")
-    summary = run_write(sessions, lambda session: store(session, computed, settings))
+    summary = run_write(sessions, lambda session: store(session, computed, settings), exclusive=STORE_LOCK)
     if progress:
         progress(len(computed.results), len(computed.results), "storing analysis")
     bring_up_to_date(sessions, now, settings)
@@ -76,5 +77,5 @@ def bring_up_to_date(sessions: sessionmaker[Session], now: datetime | None = Non
             total = session.scalar(select(func.count(Pump.id))) or 0
             full = len(stale) >= max(FULL_SHARE * total, 2)
             computed = compute(session, None if full else sorted(stale), now, settings)
-        summary = run_write(sessions, lambda session, c=computed: store(session, c, settings))
+        summary = run_write(sessions, lambda session, c=computed: store(session, c, settings), exclusive=STORE_LOCK)
     return summary
