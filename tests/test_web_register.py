@@ -172,7 +172,7 @@ def test_oil_form_refuses_a_thicker_hot_oil(client, demo_db):
     response = client.post("/register/oil/new", data={"name": "Backwards", "viscosity_40": "10",
                                                       "viscosity_100": "46"})
     assert response.status_code == 400
-    assert "must be below the viscosity at 40 °C" in response.get_data(as_text=True)
+    assert "must be below viscosity_40 (oil thins as it warms)" in response.get_data(as_text=True)
     assert 'value="Backwards"' in response.get_data(as_text=True)
     with demo_db.sessions() as s:
         assert s.scalar(select(Oil).where(Oil.name == "Backwards")) is None
@@ -196,7 +196,7 @@ def test_default_limits_edit_reanalyses_the_fleet(client, demo_db):
     response = client.post("/register/limits/axial_piston/edit", data=bad)
     assert response.status_code == 400
     html = response.get_data(as_text=True)
-    assert "must be below the upper limit" in html and 'value="12/16/18"' in html
+    assert "must be below oil_temp_max" in html and 'value="12/16/18"' in html
 
 
 def test_records_installation_removal_event_and_sample(client, demo_db):

@@ -17,10 +17,17 @@ class Column:
     positive: bool = False  # strictly above zero
     help: str = ""
     export_unit: str | None = None  # header unit written on export (defaults to the canonical label)
+    integer: bool = False  # a whole number (a count of days or weeks, a grade)
 
 
-def _num(name, quantity, help_, required=False, min_=None, max_=None, positive=False, export_unit=None):
-    return Column(name, "number", quantity, required, min_, max_, positive, help_, export_unit)
+def _num(name, quantity, help_, required=False, min_=None, max_=None, positive=False, export_unit=None,
+         integer=False):
+    return Column(name, "number", quantity, required, min_, max_, positive, help_, export_unit, integer)
+
+
+# Bounds shared by several kinds, so a form and a file refuse the same values.
+OIL_TEMP_C = {"min_": -40, "max_": 150}  # hydraulic oil in service, cold start to far past any limit
+ETA_V_LIMIT = {"min_": 0.3, "max_": 0.999}
 
 
 SITES = (
@@ -48,18 +55,18 @@ PUMPS = (
     _num("reference_temp", "temperature", "oil temperature readings are referred to (default 50 degC)",
          min_=0, max_=120),
     Column("oil", "text", required=True, help="oil name as filled in the machine's reservoir"),
-    _num("oil_grade", None, "ISO VG grade number", positive=True),
+    _num("oil_grade", None, "ISO VG grade number", positive=True, integer=True),
     _num("viscosity_40", "viscosity", "oil data sheet viscosity at 40 degC", True, positive=True),
     _num("viscosity_100", "viscosity", "oil data sheet viscosity at 100 degC", True, positive=True),
     _num("density_15", "density", "oil density at 15 degC (default 0.87 kg/L)", min_=0.6, max_=1.3),
-    _num("eta_v_limit", "fraction", "volumetric efficiency limit (fraction; blank = kind default)",
-         min_=0.3, max_=0.999),
+    _num("eta_v_limit", "fraction", "volumetric efficiency limit (fraction; blank = kind default)", **ETA_V_LIMIT),
     _num("drain_limit_pct", None, "case drain limit, % of max flow (blank = kind default)", min_=0, max_=100),
-    _num("oil_temp_max", "temperature", "oil temperature upper limit (blank = kind default)"),
-    _num("oil_temp_min", "temperature", "oil temperature lower limit (blank = kind default)"),
+    _num("oil_temp_max", "temperature", "oil temperature upper limit (blank = kind default)", **OIL_TEMP_C),
+    _num("oil_temp_min", "temperature", "oil temperature lower limit (blank = kind default)", **OIL_TEMP_C),
     Column("cleanliness_target", "iso4406", help="ISO 4406 target code, e.g. 18/16/13 (blank = kind default)"),
-    _num("reading_interval_days", None, "days between readings (blank = kind default)", positive=True),
-    _num("planning_horizon_weeks", None, "planning horizon (blank = kind default)", positive=True),
+    _num("reading_interval_days", None, "days between readings (blank = kind default)", positive=True,
+         integer=True),
+    _num("planning_horizon_weeks", None, "planning horizon (blank = kind default)", positive=True, integer=True),
     _num("overhaul_cost", None, "expected cost of an overhaul, site currency", min_=0),
     Column("installed_at", "datetime", help="when the pump went into this position (default: now)"),
     _num("installed_hours", "hours", "pump hour meter then", min_=0),
@@ -83,7 +90,7 @@ READINGS = (
     _num("speed", "speed", "shaft speed", True, positive=True),
     _num("outlet_flow", "flow", "outlet flow (blank if not measured)", min_=0),
     _num("case_drain_flow", "flow", "case drain flow (blank if not measured)", min_=0),
-    _num("oil_temp", "temperature", "oil temperature", True, min_=-40, max_=150),
+    _num("oil_temp", "temperature", "oil temperature", True, **OIL_TEMP_C),
     _num("stroke", "fraction", "displacement setting of a variable pump (default unit %; blank = full)",
          min_=0, max_=1.0, export_unit="%"),
     Column("taken_by", "text"),
@@ -135,5 +142,46 @@ KINDS: dict[str, tuple[Column, ...]] = {
     "samples": SAMPLES,
     "events": EVENTS,
 }
+# Records only forms write (no CSV kind of their own): declared alike, so the forms check them with the same
+# parser and the same words as a file.
+OILS = (
+    Column("name", "text", required=True, help="oil name as filled"),
+    _num("iso_vg", None, "ISO VG grade number", positive=True, integer=True),
+    _num("viscosity_40", "viscosity", "data sheet viscosity at 40 degC", True, positive=True),
+    _num("viscosity_100", "viscosity", "data sheet viscosity at 100 degC", True, positive=True),
+    _num("density_15", "density", "density at 15 degC (default 0.87 kg/L)", min_=0.6, max_=1.3),
+)
+
+LIMITS = (
+    _num("eta_v_limit", "fraction", "volumetric efficiency limit", True, **ETA_V_LIMIT),
+    _num("drain_limit_pct", None, "case drain limit, % of max flow (blank: none)", min_=0, max_=100),
+    _num("oil_temp_max", "temperature", "oil temperature upper limit", True, **OIL_TEMP_C),
+    _num("oil_temp_min", "temperature", "oil temperature lower limit", True, **OIL_TEMP_C),
+    Column("cleanliness_target", "iso4406", required=True, help="ISO 4406 target code"),
+    _num("reading_interval_days", None, "days between readings", True, positive=True, integer=True),
+    _num("planning_horizon_weeks", None, "planning horizon", True, positive=True, integer=True),
+    Column("source", "text", required=True, help="where these values come from"),
+)
+
+NAMED = (  # sites' machines and machines' positions
+    Column("name", "text", required=True),
+    Column("note", "text"),
+)
+
+REMOVALS = (
+    Column("removed_at", "datetime", required=True),
+    _num("hours", "hours", "pump hour meter at removal", min_=0),
+)
+
+WINDOWS = (
+    Column("starts_at", "datetime", required=True),
+    Column("ends_at", "datetime", required=True),
+    Column("note", "text"),
+)
+
+FORM_KINDS: dict[str, tuple[Column, ...]] = {
+    "oils": OILS, "limits": LIMITS, "named": NAMED, "removals": REMOVALS, "windows": WINDOWS,
+}
+
 # The order a whole plant is loaded in: each kind refers only to kinds before it.
 LOAD_ORDER = ("sites", "pumps", "installations", "readings", "flowtests", "samples", "events")

@@ -19,7 +19,7 @@ FALSE_WORDS = frozenset({"no", "n", "false", "0", ""})
 # No value fleet stores comes near this (10^12 h, bar, L/min, ...); larger ones only overflow the analysis.
 MAX_MAGNITUDE = 1e12
 # The longest text each column holds in the database (PostgreSQL refuses longer; SQLite would keep it silently).
-TEXT_LENGTHS = {"currency": 8, "note": None}
+TEXT_LENGTHS = {"currency": 8, "note": None, "source": None}
 DEFAULT_TEXT_LENGTH = 120
 
 
@@ -110,6 +110,17 @@ def parse_table(kind: str, table: pd.DataFrame) -> tuple[ParsedTable, list[Probl
     return parsed, problems
 
 
+def parse_cell(spec: Column, text, unit: str | None = None) -> tuple[object, list[str]]:
+    """One value (a form's field) parsed exactly as a cell of a file: (canonical value or None, reasons)."""
+    values, problems = _parse_column(spec, pd.Series(["" if text is None else str(text)], dtype=object), unit)
+    value = values.iloc[0]
+    if problems or value is None or value is pd.NaT or (isinstance(value, float) and np.isnan(value)):
+        return None, [p.reason for p in problems]
+    if isinstance(value, pd.Timestamp):
+        return value.to_pydatetime(), []
+    return (value.item() if isinstance(value, np.generic) else value), []
+
+
 def _parse_column(spec: Column, raw: pd.Series, unit: str | None) -> tuple[pd.Series, list[Problem]]:
     cells = _cells(raw)
     blank = cells.isna()
@@ -148,6 +159,8 @@ def _parse_column(spec: Column, raw: pd.Series, unit: str | None) -> tuple[pd.Se
             if spec.max is not None:
                 flag(values > spec.max + 1e-9, lambda cell: f"{cell} is above the highest allowed value "
                      f"({spec.max:g} {label})".rstrip())
+            if spec.integer:
+                flag(values.notna() & (values != values.round()), lambda cell: f"{cell} must be a whole number")
         return values, problems
 
     if spec.type == "datetime":

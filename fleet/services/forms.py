@@ -1,20 +1,20 @@
 """Form plumbing shared by the register and planning pages: typed fields, one-row import tables, problems by field.
 
-Forms that write a kind the importer knows build a one-row table (headers carry the chosen unit, e.g.
-``displacement [in3/rev]``) and go through fleet.services.importing, so a form and a CSV file are checked alike.
+One set of rules for every door: forms that write a kind the importer knows build a one-row table (headers carry
+the chosen unit, e.g. ``displacement [in3/rev]``) and go through fleet.services.importing; the others read each
+field with ``Collector``, which parses by the same column declarations, and apply the same cross-field rules
+(fleet.io.rules). So a form and a CSV file refuse the same values in the same words.
 """
 
 from dataclasses import dataclass, field
-from datetime import datetime, timedelta
 
 import pandas as pd
 
 from fleet import units
-from fleet.io.parse import ImportRejected
-from fleet.timeutil import utcnow
+from fleet.io.columns import FORM_KINDS, KINDS
+from fleet.io.parse import ImportRejected, parse_cell
 
 UNIT_SUFFIX = "__unit"  # form key of a field's unit choice: 'displacement__unit'
-FUTURE_TOLERANCE = timedelta(hours=1)  # same slack as the importer: handheld clocks drift
 
 
 class FormRejected(Exception):
@@ -53,10 +53,13 @@ class Field:
 
 
 class Collector:
-    """Gathers problems while a form's fields are read, so every problem is reported at once."""
+    """Reads a form's fields by the same column declarations and parser as a CSV file (fleet.io.columns,
+    fleet.io.parse), gathering every problem so all are reported at once, in the same words as an import."""
 
-    def __init__(self, values: dict):
+    def __init__(self, values: dict, kind: str):
         self.values = values
+        self.specs = {column.name: column for column in (KINDS.get(kind) or FORM_KINDS[kind])}
+        self.parsed: dict[str, object] = {}
         self.errors: dict[str, list[str]] = {}
 
     def add(self, name: str, reason: str) -> None:
@@ -66,59 +69,33 @@ class Collector:
         if self.errors:
             raise FormRejected(self.errors)
 
-    def text(self, name: str, required: bool = False) -> str | None:
-        value = str(self.values.get(name) or "").strip()
-        if not value:
+    def get(self, name: str):
+        """The field's value in canonical units (its unit chosen beside it), or None when blank or refused."""
+        spec = self.specs[name]
+        unit = (self.values.get(name + UNIT_SUFFIX) or None) if spec.quantity else None
+        value, reasons = parse_cell(spec, self.values.get(name), unit)
+        for reason in reasons:
+            self.add(name, reason)
+        self.parsed[name] = value
+        return value
+
+    def check(self, *rule_results) -> None:
+        """File the problems of cross-field rules (fleet.io.rules, applied to ``row()``) under their fields."""
+        for problems in rule_results:
+            for problem in problems:
+                self.add(problem.column, problem.reason)
+
+    def row(self) -> pd.DataFrame:
+        """The values read so far as a one-row table, for the rules (blank or refused values are left out)."""
+        return pd.DataFrame([{k: v for k, v in self.parsed.items() if v is not None}])
+
+    def choice(self, name: str, allowed, required: bool = False) -> str | None:
+        text = str(self.values.get(name) or "").strip()
+        if not text:
             if required:
                 self.add(name, "a value is required")
             return None
-        return value
-
-    def number(self, name: str, required: bool = False, quantity: str | None = None, low: float | None = None,
-               high: float | None = None, positive: bool = False, integer: bool = False) -> float | None:
-        text = self.text(name, required)
-        if text is None:
-            return None
-        try:
-            value = float(text)
-        except ValueError:
-            self.add(name, f"'{text}' is not a number")
-            return None
-        if quantity:
-            try:
-                value = units.convert_one(value, self.values.get(name + UNIT_SUFFIX) or None, quantity)
-            except units.UnitError as exc:
-                self.add(name, str(exc))
-                return None
-        if positive and value <= 0:
-            self.add(name, f"{text} must be above zero")
-        elif low is not None and value < low:
-            self.add(name, f"{text} is below the lowest allowed value ({low:g})")
-        elif high is not None and value > high:
-            self.add(name, f"{text} is above the highest allowed value ({high:g})")
-        elif integer and value != int(value):
-            self.add(name, f"{text} must be a whole number")
-        return value
-
-    def moment(self, name: str, required: bool = False, not_future: bool = False,
-               now: datetime | None = None) -> datetime | None:
-        text = self.text(name, required)
-        if text is None:
-            return None
-        try:
-            stamp = datetime.fromisoformat(text.replace(" ", "T") if len(text) > 10 else text)
-        except ValueError:
-            self.add(name, f"'{text}' is not a date (write YYYY-MM-DD or YYYY-MM-DD HH:MM)")
-            return None
-        if stamp.tzinfo is not None:
-            stamp = stamp.astimezone(tz=None).replace(tzinfo=None)
-        if not_future and stamp > (now or utcnow()) + FUTURE_TOLERANCE:
-            self.add(name, f"{stamp:%Y-%m-%d %H:%M} is in the future")
-        return stamp
-
-    def choice(self, name: str, allowed, required: bool = False) -> str | None:
-        text = self.text(name, required)
-        if text is not None and text not in allowed:
+        if text not in allowed:
             self.add(name, f"'{text}' is not one of the choices")
             return None
         return text

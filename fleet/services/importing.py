@@ -6,7 +6,7 @@ one (row, column, reason) and writes nothing. It never commits: the caller owns 
 
 import itertools
 from dataclasses import dataclass, field
-from datetime import datetime, timedelta
+from datetime import datetime
 from pathlib import Path
 
 import numpy as np
@@ -25,13 +25,13 @@ from fleet.db.models import (
     Site,
 )
 from fleet.db.queries import pumps_on_machine
+from fleet.io import rules
 from fleet.io.parse import ImportRejected, ParsedTable, Problem, parse_table, row_numbers
 from fleet.physics.cleanliness import code_from_counts
 from fleet.services import register
 from fleet.timeutil import utcnow
 
 SQLITE_DATETIME_FORMAT = "%Y-%m-%d %H:%M:%S.%f"  # how SQLAlchemy stores a DateTime in SQLite
-FUTURE_TOLERANCE = timedelta(hours=1)  # clocks on handhelds drift; an hour ahead is still "now"
 
 
 @dataclass
@@ -64,14 +64,16 @@ def import_file(session: Session, kind: str, path: str | Path, **kwargs) -> Impo
 
 def import_table(session: Session, kind: str, table: pd.DataFrame, *, now: datetime | None = None,
                  source: str = "import", taken_by: str | None = None) -> ImportResult:
+    now = now or utcnow()
     parsed, problems = parse_table(kind, table)
+    problems += rules.table_rules(kind, parsed.data, now)  # every problem at once, not cell problems first
     if problems:
         if "pump" in parsed.present and kind != "pumps":
             _pump_ids(session, parsed, problems)  # name unknown pumps in the same report
         raise ImportRejected(problems)
     handler = _HANDLERS[kind]
     result = ImportResult(kind, len(parsed.data), ignored_columns=parsed.ignored)
-    context = _Context(session, now or utcnow(), source, taken_by)
+    context = _Context(session, now, source, taken_by)
     problems = handler(context, parsed, result)
     if problems:
         raise ImportRejected(problems)
@@ -122,13 +124,6 @@ def _duplicates_in_file(parsed: ParsedTable, keys: list[str], problems: list[Pro
         problems.append(Problem(int(row), keys[-1], f"the same {what} appears earlier in the file"))
 
 
-def _not_in_future(ctx: _Context, parsed: ParsedTable, column: str, problems: list[Problem]) -> None:
-    stamps = parsed.data[column]
-    late = stamps > pd.Timestamp(ctx.now + FUTURE_TOLERANCE)
-    for row, stamp in zip(row_numbers(parsed.data.index[late]), stamps[late], strict=True):
-        problems.append(Problem(int(row), column, f"{stamp:%Y-%m-%d %H:%M} is in the future"))
-
-
 # --- sites -------------------------------------------------------------------------------------------------
 
 def _import_sites(ctx: _Context, parsed: ParsedTable, result: ImportResult) -> list[Problem]:
@@ -170,9 +165,6 @@ _PUMP_FIELDS = {  # csv column -> Pump attribute, for optional values that simpl
 def _check_pumps(parsed: ParsedTable, problems: list[Problem]) -> None:
     data = parsed.data
     _duplicates_in_file(parsed, ["pump"], problems, "pump")
-    thinner = data["viscosity_100"] >= data["viscosity_40"]
-    for row in row_numbers(data.index[thinner]):
-        problems.append(Problem(int(row), "viscosity_100", "must be below viscosity_40 (oil thins as it warms)"))
     # One machine has one reservoir: every row of a machine must name the same oil.
     oil_cols = [c for c in ("oil", "viscosity_40", "viscosity_100", "density_15") if c in data]
     for (_, _), group in data.groupby(["site", "machine"], sort=False):
@@ -191,10 +183,6 @@ def _check_pumps(parsed: ParsedTable, problems: list[Problem]) -> None:
             if group[column].nunique() > 1:
                 problems.append(Problem(int(group.index[-1]) + 2, column, f"oil '{oil}' is given different "
                                         f"{column} values in this file"))
-    if {"oil_temp_min", "oil_temp_max"} <= parsed.present:
-        inverted = data["oil_temp_min"] >= data["oil_temp_max"]
-        for row in row_numbers(data.index[inverted]):
-            problems.append(Problem(int(row), "oil_temp_min", "must be below oil_temp_max"))
 
 
 def _import_pumps(ctx: _Context, parsed: ParsedTable, result: ImportResult) -> list[Problem]:
@@ -250,7 +238,6 @@ def _import_installations(ctx: _Context, parsed: ParsedTable, result: ImportResu
     problems: list[Problem] = []
     ids = _pump_ids(ctx.session, parsed, problems)
     _duplicates_in_file(parsed, ["pump", "installed_at"], problems, "pump and time")
-    _not_in_future(ctx, parsed, "installed_at", problems)
     if problems:
         return problems
     data = parsed.data.assign(pump_id=ids).sort_values("installed_at", kind="stable")
@@ -288,7 +275,6 @@ def _check_readings(ctx: _Context, parsed: ParsedTable) -> tuple[pd.DataFrame, l
     problems: list[Problem] = []
     ids = _pump_ids(ctx.session, parsed, problems)
     _duplicates_in_file(parsed, ["pump", "taken_at"], problems, "pump and time")
-    _not_in_future(ctx, parsed, "taken_at", problems)
     data = parsed.data.assign(pump_id=ids)
     known = data[ids.notna()]
     stored = _stored_keys(ctx.session, Reading, Reading.taken_at, known["pump_id"].to_numpy(), known["taken_at"])
@@ -304,12 +290,14 @@ def _check_readings(ctx: _Context, parsed: ParsedTable) -> tuple[pd.DataFrame, l
 
 def check_readings(session: Session, table: pd.DataFrame, now: datetime | None = None) -> list[Problem]:
     """Every problem an import of these readings would meet, without writing anything."""
+    now = now or utcnow()
     parsed, problems = parse_table("readings", table)
+    problems += rules.table_rules("readings", parsed.data, now)
     if problems:
         if "pump" in parsed.present:
             _pump_ids(session, parsed, problems)
         return sorted(problems)
-    return sorted(_check_readings(_Context(session, now or utcnow(), "form", None), parsed)[1])
+    return sorted(_check_readings(_Context(session, now, "form", None), parsed)[1])
 
 
 def _import_readings(ctx: _Context, parsed: ParsedTable, result: ImportResult) -> list[Problem]:
@@ -446,7 +434,6 @@ def _import_samples(ctx: _Context, parsed: ParsedTable, result: ImportResult) ->
         by_name.setdefault(name, []).append(machine)
     _duplicates_in_file(parsed, [c for c in ("site", "machine", "sampled_at") if c in parsed.present], problems,
                         "machine and sampling time")
-    _not_in_future(ctx, parsed, "sampled_at", problems)
     rows = []
     for index, row in parsed.data.iterrows():
         number = int(index) + 2
@@ -465,9 +452,6 @@ def _import_samples(ctx: _Context, parsed: ParsedTable, result: ImportResult) ->
                 continue
             machine = candidates[0]
         reported = _value(row, "reported_at")
-        if reported is not None and reported < _value(row, "sampled_at"):
-            problems.append(Problem(number, "reported_at", "is before sampled_at"))
-            continue
         code = _value(row, "iso4406")
         counts = [_value(row, f"count_{size}") for size in (4, 6, 14)]
         if code is None and counts[1] is not None and counts[2] is not None:
@@ -519,7 +503,6 @@ def _import_events(ctx: _Context, parsed: ParsedTable, result: ImportResult) -> 
     problems: list[Problem] = []
     ids = _pump_ids(ctx.session, parsed, problems)
     _duplicates_in_file(parsed, ["pump", "date", "kind"], problems, "pump, date and kind")
-    _not_in_future(ctx, parsed, "date", problems)
     data = parsed.data.assign(pump_id=ids)
     known = data[ids.notna()]
     if len(known):

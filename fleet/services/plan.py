@@ -9,6 +9,7 @@ from sqlalchemy import select
 from sqlalchemy.orm import Session
 
 from fleet.db.models import AnalysisResult, FleetPrior, Machine, ShutdownWindow, Site
+from fleet.io import rules
 from fleet.kinds import PUMP_KINDS
 from fleet.services.fleetdata import load_pumps
 from fleet.services.forms import Collector
@@ -197,14 +198,14 @@ def add_window(session: Session, values: dict) -> ShutdownWindow:
 
     Raises fleet.services.forms.FormRejected naming each problem; never commits.
     """
-    form = Collector(values)
+    form = Collector(values, "windows")
     allowed = {value for value, _ in _scope_options(session)}
     scope = form.choice("scope", allowed, required=True)
-    starts = form.moment("starts_at", required=True)
-    ends = form.moment("ends_at", required=True)
-    if starts and ends and ends.date() < starts.date():
-        form.add("ends_at", "is before the start")
-    note = form.text("note")
+    starts, ends, note = form.get("starts_at"), form.get("ends_at"), form.get("note")
+    row = form.row()
+    if {"starts_at", "ends_at"} <= set(row.columns):  # whole days: a window may start and end on one day
+        row = row.assign(starts_at=row["starts_at"].dt.normalize(), ends_at=row["ends_at"].dt.normalize())
+    form.check(rules.not_before(row, "ends_at", "starts_at", "is before the start"))
     form.raise_if_any()
     if ends == ends.replace(hour=0, minute=0):
         ends = ends + timedelta(days=1) - timedelta(minutes=1)  # a date-only end means the end of that day

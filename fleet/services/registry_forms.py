@@ -14,9 +14,9 @@ from sqlalchemy import select
 from sqlalchemy.orm import Session
 
 from fleet.db.models import Installation, LimitDefault, Machine, Oil, Position, Pump, Site
+from fleet.io import rules
 from fleet.io.parse import ImportRejected
 from fleet.kinds import EVENT_KINDS, FAILURE_MODES, PUMP_KINDS
-from fleet.physics.cleanliness import parse_code
 from fleet.services import register
 from fleet.services.forms import Collector, Field, FormRejected, one_row_table, problems_by_field
 from fleet.services.importing import import_table
@@ -154,11 +154,11 @@ def _machine_initial(session: Session, key: str | None) -> dict:
 
 
 def _machine_save(session: Session, key: str | None, values: dict) -> Saved:
-    form = Collector(values)
+    form = Collector(values, "named")
     site_id = form.choice("site_id", {v for v, _ in _site_options(session)}, required=True)
-    name = form.text("name", required=True)
+    name = form.get("name")
     oil_id = form.choice("oil_id", {v for v, _ in _oil_options(session)})
-    note = form.text("note")
+    note = form.get("note")
     machine = None if key is None else _get(session, Machine, key)
     if site_id and name:
         clash = session.scalar(select(Machine).where(Machine.site_id == int(site_id), Machine.name == name))
@@ -191,9 +191,9 @@ def _position_initial(session: Session, key: str | None) -> dict:
 
 
 def _position_save(session: Session, key: str | None, values: dict) -> Saved:
-    form = Collector(values)
+    form = Collector(values, "named")
     machine_id = form.choice("machine_id", {v for v, _ in _machine_options(session)}, required=True)
-    name = form.text("name", required=True)
+    name = form.get("name")
     position = None if key is None else _get(session, Position, key)
     if machine_id and name:
         clash = session.scalar(select(Position).where(Position.machine_id == int(machine_id), Position.name == name))
@@ -230,14 +230,10 @@ def _oil_initial(session: Session, key: str | None) -> dict:
 
 
 def _oil_save(session: Session, key: str | None, values: dict) -> Saved:
-    form = Collector(values)
-    name = form.text("name", required=True)
-    grade = form.number("iso_vg", positive=True, integer=True)
-    nu40 = form.number("viscosity_40", required=True, quantity="viscosity", positive=True)
-    nu100 = form.number("viscosity_100", required=True, quantity="viscosity", positive=True)
-    density = form.number("density_15", quantity="density", low=0.6, high=1.3)
-    if nu40 and nu100 and nu100 >= nu40:
-        form.add("viscosity_100", "must be below the viscosity at 40 °C (oil thins as it warms)")
+    form = Collector(values, "oils")
+    name, grade = form.get("name"), form.get("iso_vg")
+    nu40, nu100, density = form.get("viscosity_40"), form.get("viscosity_100"), form.get("density_15")
+    form.check(rules.oil_thins_when_hot(form.row()))
     oil = None if key is None else _get(session, Oil, key)
     if name:
         clash = session.scalar(select(Oil).where(Oil.name == name))
@@ -317,9 +313,9 @@ def _pump_initial(session: Session, key: str | None) -> dict:
 
 
 def _pump_save(session: Session, key: str | None, values: dict) -> Saved:
-    form = Collector(values)
+    form = Collector(values, "pumps")
     position_id = form.choice("position_id", {v for v, _ in _position_options(session)}, required=True)
-    serial = key if key is not None else form.text("pump", required=True)
+    serial = key if key is not None else form.get("pump")
     if key is None and serial and session.scalar(select(Pump.id).where(Pump.serial == serial)) is not None:
         form.add("pump", f"a pump '{serial}' is already registered: edit it instead")
     oil = None
@@ -373,25 +369,15 @@ def _limit_initial(session: Session, key: str | None) -> dict:
 
 def _limit_save(session: Session, key: str | None, values: dict) -> Saved:
     row = _limit_row(session, key)
-    form = Collector(values)
-    eta = form.number("eta_v_limit", required=True, low=0.3, high=0.999)
-    drain = form.number("drain_limit_pct", low=0, high=100)
-    t_max = form.number("oil_temp_max", required=True, quantity="temperature", low=-40, high=150)
-    t_min = form.number("oil_temp_min", required=True, quantity="temperature", low=-40, high=150)
-    if t_max is not None and t_min is not None and t_min >= t_max:
-        form.add("oil_temp_min", "must be below the upper limit")
-    code = form.text("cleanliness_target", required=True)
-    if code is not None:
-        try:
-            code = str(parse_code(code))
-        except ValueError as exc:
-            form.add("cleanliness_target", str(exc))
-    interval = form.number("reading_interval_days", required=True, positive=True, integer=True)
-    horizon = form.number("planning_horizon_weeks", required=True, positive=True, integer=True)
-    source = form.text("source", required=True)
+    form = Collector(values, "limits")
+    eta, drain = form.get("eta_v_limit"), form.get("drain_limit_pct")
+    t_max, t_min = form.get("oil_temp_max"), form.get("oil_temp_min")
+    code, source = form.get("cleanliness_target"), form.get("source")
+    interval, horizon = form.get("reading_interval_days"), form.get("planning_horizon_weeks")
+    form.check(rules.low_below_high(form.row(), "oil_temp_min", "oil_temp_max"))
     form.raise_if_any()
     row.eta_v_limit, row.drain_limit_pct, row.oil_temp_max_c, row.oil_temp_min_c = eta, drain, t_max, t_min
-    row.cleanliness_target, row.source = code, source
+    row.cleanliness_target, row.source = str(code), source
     row.reading_interval_days, row.planning_horizon_weeks = int(interval), int(horizon)
     session.flush()
     return Saved(f"Default limits of {PUMP_KINDS[key].lower()} pumps saved.")
@@ -409,7 +395,7 @@ def _install_fields(session: Session, key: str | None) -> list[Field]:
 
 
 def _install_save(session: Session, key: str | None, values: dict) -> Saved:
-    form = Collector(values)
+    form = Collector(values, "installations")
     position_id = form.choice("position_id", {v for v, _ in _position_options(session)}, required=True)
     form.raise_if_any()
     position = session.get(Position, int(position_id))
@@ -431,10 +417,10 @@ def _removal_fields(session: Session, key: str | None) -> list[Field]:
 
 
 def _removal_save(session: Session, key: str | None, values: dict) -> Saved:
-    form = Collector(values)
+    form = Collector(values, "removals")
     serial = form.choice("pump", {v for v, _ in _pump_options(session, installed_only=True)}, required=True)
-    removed_at = form.moment("removed_at", required=True, not_future=True)
-    hours = form.number("hours", quantity="hours", low=0)
+    removed_at, hours = form.get("removed_at"), form.get("hours")
+    form.check(rules.not_in_future(form.row(), "removed_at", utcnow()))
     form.raise_if_any()
     pump = session.scalar(select(Pump).where(Pump.serial == serial))
     current = register.current_installation(pump)
@@ -485,7 +471,7 @@ def _sample_fields(session: Session, key: str | None) -> list[Field]:
 
 
 def _sample_save(session: Session, key: str | None, values: dict) -> Saved:
-    form = Collector(values)
+    form = Collector(values, "samples")
     machine_id = form.choice("machine_id", {v for v, _ in _machine_options(session)}, required=True)
     form.raise_if_any()
     machine = session.get(Machine, int(machine_id))
