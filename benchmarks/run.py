@@ -128,7 +128,7 @@ def _in_child(name: str, argument: str) -> dict:
 
 def _import(sessions, kind: str, path: Path) -> int:
     """One file through the code path of `fleet import KIND FILE --no-analysis` (one transaction)."""
-    from fleet.services.importing import import_file
+    from fleet.services.transfer.importing import import_file
 
     with sessions.begin() as session:
         return import_file(session, kind, path).created
@@ -232,7 +232,7 @@ def _reading_visible(url: str, serials: list[str], after: pd.Timestamp) -> dict:
 def _partial_refreshes(sessions, serials: list[str], machine: tuple[str, str], day: pd.Timestamp) -> dict:
     """An overhaul (resets an interval) and an oil sample, each imported and its pumps' analysis refreshed."""
     from fleet.services.analysis import refresh_analysis
-    from fleet.services.importing import import_table
+    from fleet.services.transfer.importing import import_table
 
     def timed(kind: str, table: pd.DataFrame) -> float:
         started = time.perf_counter()
@@ -250,7 +250,7 @@ def _partial_refreshes(sessions, serials: list[str], machine: tuple[str, str], d
 def run(size_name: str, work: Path) -> dict:
     from fleet.db import migrate
     from fleet.db.engine import make_engine, make_session_factory
-    from fleet.services.register import ensure_limit_defaults
+    from fleet.services.register.records import ensure_limit_defaults
 
     size = SIZES[size_name]
     figures: dict = {"size": size_name, "pumps": size.pumps, "readings_per_pump": size.readings_per_pump}

@@ -56,7 +56,7 @@ def main(ctx: click.Context, url: str | None) -> None:
 @click.pass_obj
 def init(db: Database) -> None:
     """Create or upgrade the database to the newest migration."""
-    from fleet.services.register import ensure_limit_defaults
+    from fleet.services.register.records import ensure_limit_defaults
 
     before = migrate.current_revision(db.engine)
     migrate.upgrade(db.engine)
@@ -81,7 +81,7 @@ def import_(db: Database, kind: str, file: Path, no_analysis: bool) -> None:
     Headers may carry a unit in brackets, e.g. 'outlet_flow [gal/min]'. On any bad row nothing is written and
     every problem is listed with its row (the header is row 1), column and reason.
     """
-    from fleet.services.importing import import_file
+    from fleet.services.transfer.importing import import_file
     from fleet.services.writes import perform
 
     db.require_current()
@@ -105,7 +105,7 @@ def import_(db: Database, kind: str, file: Path, no_analysis: bool) -> None:
 @click.pass_obj
 def export(db: Database, kind: str, file: str) -> None:
     """Write KIND as CSV (canonical units in the headers) to FILE, or '-' for standard output."""
-    from fleet.services.exporting import export_table
+    from fleet.services.transfer.exporting import export_table
 
     db.require_current()
     with db.sessions() as session:

@@ -27,7 +27,7 @@ def _as_text(table: pd.DataFrame) -> pd.DataFrame:
 def _add_shutdown_windows(session: Session, end) -> None:
     """Two planned stops for the planner to fit overhauls into (invented), entered as the plan page does."""
     from fleet.db.models import Site
-    from fleet.services.plan import add_window
+    from fleet.services.pages.plan import add_window
 
     sites = dict(session.execute(select(Site.name, Site.id)).all())
     for site, weeks, days, note in (("East Yard", 3, 2, "invented: winter maintenance stop"),
@@ -55,8 +55,8 @@ def _add_demo_users(session: Session, echo: Callable[[str], None]) -> None:
 def build_demo(session: Session, seed: int = 2026, end=None, echo: Callable[[str], None] = print) -> str:
     """Generate the invented plant and import it kind by kind, then analyse it; the caller commits."""
     from fleet.services.analysis import refresh_analysis
-    from fleet.services.importing import import_table
-    from fleet.services.register import ensure_limit_defaults
+    from fleet.services.register.records import ensure_limit_defaults
+    from fleet.services.transfer.importing import import_table
     from seed_demo.history import earlier_overhauls
     from seed_demo.plant import generate
 

@@ -6,6 +6,7 @@ import numpy as np
 import pandas as pd
 
 from fleet.kinds import PISTON_KINDS
+from fleet.physics.pump import theoretical_flow_lpm
 from seed_demo.layout import ETA_V_LIMIT_OVERRIDES, MACHINES, SLOTS, SWAP_PUMP, SWAP_REPLACES
 
 # Per kind: displacement steps [cm3/rev], rated speeds [rpm], rated pressures [bar], new eta_v range at rated
@@ -76,5 +77,5 @@ def draw_pump_specs(rng: np.random.Generator, end: dt.date) -> pd.DataFrame:
     # The pump moved onto press-2 is the same size as the one it replaces, so it fits that position.
     same_size = ["displacement_cc", "rated_speed_rpm", "rated_pressure_bar"]
     specs.loc[specs["pump"] == SWAP_PUMP, same_size] = specs.loc[specs["pump"] == SWAP_REPLACES, same_size].values
-    specs["max_flow_lpm"] = specs["displacement_cc"] * specs["rated_speed_rpm"] / 1000.0
+    specs["max_flow_lpm"] = theoretical_flow_lpm(specs["displacement_cc"], specs["rated_speed_rpm"])
     return specs

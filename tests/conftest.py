@@ -16,7 +16,7 @@ from sqlalchemy.pool import NullPool
 
 from fleet.db import migrate
 from fleet.db.engine import make_engine, make_session_factory
-from fleet.services.register import ensure_limit_defaults
+from fleet.services.register.records import ensure_limit_defaults
 from fleet.services.users import ROLES, create_user
 
 DATA = Path(__file__).parent / "data"

@@ -5,6 +5,7 @@ from sqlalchemy import func, select
 
 from fleet.db import audit
 from fleet.db.models import AnalysisResult, AuditRecord, FlowTestPoint, MaintenanceEvent, OilSample, Pump, Reading
+from fleet.services.pages.trash import TRASH_COLUMNS
 from fleet.timeutil import utcnow
 
 
@@ -165,7 +166,7 @@ def test_an_engineer_deletes_a_reading_sees_it_in_the_trash_and_restores_it(clie
     html = client.get("/trash").get_data(as_text=True)
     assert f"reading #{reading_id}" in html and "pump EY-101, taken" in html
     assert 'href="/trash"' in html  # the menu shows Trash to an engineer
-    assert client.get("/trash.csv").get_data(as_text=True).splitlines()[0] == ",".join(audit.TRASH_COLUMNS)
+    assert client.get("/trash.csv").get_data(as_text=True).splitlines()[0] == ",".join(TRASH_COLUMNS)
 
     with demo_db.sessions() as session:
         analysed_before = session.get(AnalysisResult, record.before["pump_id"]).computed_at

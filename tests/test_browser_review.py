@@ -15,7 +15,7 @@ def test_weekly_review_desktop_and_phone(live_app, page, base_url, artifacts, br
     page.set_viewport_size({"width": 1280, "height": 900})
     page.goto(base_url + "/review")
     assert page.locator("h1").inner_text() == "Weekly review"
-    # One row per status change of the last replayed week of the demo (fleet.services.review counts them too).
+    # One row per status change of the last replayed week of the demo (fleet.services.pages.review counts them too).
     changes = login(live_app.test_client(), "viewer").get("/review.json").get_json()["counts"]["status_change"]
     assert changes > 0 and page.locator("#s-status_change table tbody tr").count() == changes
     assert page.locator("#s-energy_loss table tbody tr").count() == 10

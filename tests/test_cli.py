@@ -20,8 +20,8 @@ from fleet.db import migrate
 from fleet.db.engine import make_engine, make_session_factory
 from fleet.io.columns import LOAD_ORDER
 from fleet.services.analysis import analysis_records, refresh_analysis
-from fleet.services.exporting import export_table
-from fleet.services.importing import import_table
+from fleet.services.transfer.exporting import export_table
+from fleet.services.transfer.importing import import_table
 from seed_demo import _as_text, build_demo
 from seed_demo.plant import generate
 

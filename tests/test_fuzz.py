@@ -18,7 +18,7 @@ from fleet.db import models
 from fleet.io.columns import KINDS
 from fleet.io.parse import ImportRejected
 from fleet.services.analysis import refresh_analysis
-from fleet.services.importing import import_file, import_table
+from fleet.services.transfer.importing import import_file, import_table
 
 DATA = Path(__file__).parent / "data"
 SERIALS = ("T-101", "T-102", "T-103")  # invented test pumps of tests/data/pumps_small.csv

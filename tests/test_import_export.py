@@ -10,8 +10,8 @@ from sqlalchemy import func, select
 from fleet.cli import main
 from fleet.db.models import FlowTestPoint, Installation, MaintenanceEvent, OilSample, Pump, Reading
 from fleet.io.parse import ImportRejected
-from fleet.services.exporting import export_table
-from fleet.services.importing import import_file, import_table
+from fleet.services.transfer.exporting import export_table
+from fleet.services.transfer.importing import import_file, import_table
 from tests.conftest import DATA
 
 ureg = pint.UnitRegistry()

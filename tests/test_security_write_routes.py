@@ -24,8 +24,8 @@ from fleet.db.models import (
     Pump,
     Reading,
 )
-from fleet.services.plan import add_window
-from fleet.services.registry_forms import FORMS
+from fleet.services.pages.plan import add_window
+from fleet.services.register.forms import FORMS
 from fleet.services.rounds import create_route
 from fleet.timeutil import utcnow
 

@@ -11,9 +11,9 @@ from scipy import stats
 from sqlalchemy import select
 
 from fleet.db.models import AnalysisResult, FleetPrior, Machine, Pump, ShutdownWindow
-from fleet.services.overhaul_windows import match_windows
-from fleet.services.plan import CSV_COLUMNS, overhaul_chances
-from fleet.services.spares import demand_distribution, spares_to_hold
+from fleet.planning.spares import demand_distribution, spares_to_hold
+from fleet.planning.windows import match_windows
+from fleet.services.pages.plan import CSV_COLUMNS, overhaul_chances
 
 KEYS = {"weeks", "today", "horizon_end", "pumps", "windows", "fit_words", "at_risk", "kinds", "spares_cover",
         "totals", "scopes", "window_form", "window_errors"}

@@ -8,8 +8,8 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from fleet import charts
-from fleet.services.pumppage import READING_COLUMNS, baseline_flow_lpm
+from fleet.charts import pump as charts
+from fleet.services.pages.pump import READING_COLUMNS, baseline_flow_lpm
 
 FIXED_PUMP = "EY-104"  # invented demo plant: an internal gear pump (fixed displacement, no case drain)
 PISTON_PUMP = "EY-101"  # invented demo plant: a variable axial piston pump with a case drain

@@ -22,7 +22,7 @@ from fleet.db.models import (
     Site,
     StatusChange,
 )
-from fleet.services.registry_pages import CSV_COLUMNS, FORM_COLUMNS
+from fleet.services.pages.register import CSV_COLUMNS, FORM_COLUMNS
 
 
 def _rows(response) -> list[dict]:

@@ -8,7 +8,7 @@ from pathlib import Path
 from sqlalchemy import delete, func, select
 
 from fleet.db.models import Machine, Pump, Reading, StatusChange
-from fleet.services.review import CSV_COLUMNS, SECTIONS
+from fleet.services.pages.review import CSV_COLUMNS, SECTIONS
 from fleet.timeutil import utcnow
 
 KEYS = {"week_start", "week_end", "week", "previous_week", "next_week", "lab_late_days", "counts",

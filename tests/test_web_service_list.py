@@ -3,7 +3,7 @@
 import csv
 import io
 
-from fleet.services.servicelist import CSV_COLUMNS
+from fleet.services.pages.service_list import CSV_COLUMNS
 
 ROW_KEYS = {"pump", "kind", "kind_label", "site", "machine", "position", "rank", "status", "reasons", "eta_v_ref",
             "eta_v_decline_per_1000h", "drain_pct_ref", "hours_to_limit", "hours_to_limit_low", "hours_to_limit_high",

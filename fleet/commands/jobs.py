@@ -5,9 +5,7 @@ import json
 import textwrap
 
 import click
-from sqlalchemy import select
 
-from fleet.db.models import Pump, Route
 from fleet.io.parse import ImportRejected
 from fleet.safety import CAUTION_TITLE, CAUTIONS
 from fleet.status_words import STATUS_LABELS
@@ -41,7 +39,7 @@ def _cautions() -> str:
 @click.pass_obj
 def review(db, week_end, as_json: bool) -> None:
     """The weekly review: status changes, new reasons, limits crossed, rounds missed, late lab results, energy."""
-    from fleet.services.review import weekly_review
+    from fleet.services.pages.review import weekly_review
 
     db.require_up_to_date()
     with db.sessions() as session:
@@ -89,7 +87,7 @@ def review_text(data: dict) -> str:
 @click.pass_obj
 def plan(db, weeks: int, as_json: bool) -> None:
     """The overhaul plan: forecast limit dates with bounds, shutdown windows, spares per pump kind, payback."""
-    from fleet.services.plan import overhaul_plan
+    from fleet.services.pages.plan import overhaul_plan
 
     db.require_up_to_date()
     with db.sessions() as session:
@@ -134,17 +132,13 @@ def plan_text(data: dict) -> str:
 # --- round -------------------------------------------------------------------------------------------------
 
 def _route_pumps(session, name: str) -> tuple[str, list[str]]:
-    from fleet.services.rounds import route_list
+    from fleet.services.rounds import route_names, route_pumps
 
-    routes = session.scalars(select(Route)).all()
-    for route in routes:
-        if route.name == name or str(route.id) == name:
-            return route.name, [stop.pump.serial for stop in route.stops]
-    for suggestion in route_list(session)["suggested"]:
-        if name in (suggestion["name"], suggestion["name"].split(" · ")[-1]):
-            return suggestion["name"], suggestion["pumps"]
-    known = [r.name for r in routes] + [s["name"] for s in route_list(session)["suggested"]]
-    raise click.BadParameter(f"no route or machine {name!r}; one of: {', '.join(known)}", param_hint="ROUTE")
+    found = route_pumps(session, name)
+    if found is None:
+        raise click.BadParameter(f"no route or machine {name!r}; one of: {', '.join(route_names(session))}",
+                                 param_hint="ROUTE")
+    return found
 
 
 @click.command("round")
@@ -160,6 +154,7 @@ def round_(db, route: str, taken_by: str, units_given: tuple[str, ...]) -> None:
     need a yes. Each pump is saved (and re-analysed) as soon as it is confirmed, so nothing typed is lost.
     Press Enter on an optional field to leave it blank; type 'skip' at the running hours to pass a pump.
     """
+    from fleet.db.queries import pump_by_serial
     from fleet.services.rounds import check_reading, fields_for, reading_table, save_readings
     from fleet.timeutil import utcnow
 
@@ -170,7 +165,7 @@ def round_(db, route: str, taken_by: str, units_given: tuple[str, ...]) -> None:
     click.echo(f"Round '{name}': {len(serials)} pump(s).\n\n{_cautions()}\n")
     for number, serial in enumerate(serials, start=1):
         with db.sessions() as session:
-            pump = session.scalar(select(Pump).where(Pump.serial == serial))
+            pump = pump_by_serial(session, serial)
             click.echo(f"[{number}/{len(serials)}] {serial} ({pump.kind.replace('_', ' ')})")
             values = _ask_values(fields_for(pump), chosen)
             if values is None:

@@ -12,6 +12,7 @@ from sqlalchemy import JSON, Boolean, DateTime, Float, ForeignKey, Integer, Stri
 from sqlalchemy.orm import Mapped, mapped_column, relationship
 
 from fleet.db.base import Base
+from fleet.physics.pump import theoretical_flow_lpm
 from fleet.timeutil import utcnow
 
 
@@ -107,7 +108,7 @@ class Pump(Base):
         """Given maximum flow, else derived from displacement and rated speed."""
         if self.max_flow_lpm is not None:
             return self.max_flow_lpm
-        return self.displacement_cc * self.rated_speed_rpm / 1000.0
+        return theoretical_flow_lpm(self.displacement_cc, self.rated_speed_rpm)
 
 
 class Installation(Base):

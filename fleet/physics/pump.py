@@ -73,3 +73,15 @@ def gear_displacement_cc(tip_diameter_cm, root_diameter_cm, width_cm):
     area_cm2 = np.pi / 4.0 * (d_tip**2 - d_root**2)
     valid = (d_tip > d_root) & (d_root >= 0.0)
     return scalar_or_array(np.where(valid, area_cm2 * np.asarray(width_cm, dtype=float), np.nan))
+
+
+def baseline_flow_lpm(displacement_cc, speed_rpm, slip_at_rated_lpm, rated_pressure_bar, pressure_bar,
+                      viscosity_ratio=1.0):
+    """Outlet flow a pump with a known slip should give: theoretical flow minus slip growing with pressure.
+
+    Laminar slip is proportional to pressure and inversely to viscosity (Wilson's model); viscosity_ratio is
+    mu_ref / mu at the test's oil temperature (1.0 at the reference temperature).
+    """
+    pressure = np.asarray(pressure_bar, dtype=float)
+    slip = np.asarray(slip_at_rated_lpm, dtype=float) * pressure / float(rated_pressure_bar) * viscosity_ratio
+    return np.asarray(theoretical_flow_lpm(displacement_cc, speed_rpm), dtype=float) - slip

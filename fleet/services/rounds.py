@@ -9,16 +9,17 @@ from datetime import datetime
 
 import numpy as np
 import pandas as pd
-from sqlalchemy import func, select
+from sqlalchemy import func, select, tuple_
 from sqlalchemy.orm import Session, sessionmaker
 
 from fleet import units
 from fleet.db.models import Installation, Machine, Position, Pump, Reading, Route, RouteStop, Site
 from fleet.io.parse import Problem, parse_table
+from fleet.jsonvalues import plain
 from fleet.kinds import PUMP_KINDS
 from fleet.physics.pump import theoretical_flow_lpm
-from fleet.services.fleetdata import load_pumps
-from fleet.services.importing import ImportResult, check_readings, import_table
+from fleet.services.analysis.frames import load_pumps
+from fleet.services.transfer.importing import ImportResult, check_readings, import_table
 from fleet.services.writes import Outcome, perform
 from fleet.timeutil import utcnow
 
@@ -264,20 +265,10 @@ def check_reading(session: Session, pump: Pump, table: pd.DataFrame, now: dateti
         return CheckOutcome(problems=problems)
     parsed, _ = parse_table("readings", table)
     row = parsed.data.iloc[0]
-    reading = {name: _plain(row.get(name)) for name in
+    reading = {name: plain(row.get(name)) for name in
                ("taken_at", "hours", "outlet_pressure", "speed", "outlet_flow", "oil_temp", "stroke")}
     facts = pump_facts(session, pump, before=reading["taken_at"])
     return CheckOutcome(warnings=plausibility_warnings(facts, reading, now))
-
-
-def _plain(value):
-    if value is None or value is pd.NaT:
-        return None
-    if isinstance(value, pd.Timestamp):
-        return value.to_pydatetime()
-    if isinstance(value, np.generic):
-        value = value.item()
-    return None if isinstance(value, float) and not np.isfinite(value) else value
 
 
 def save_readings(sessions: sessionmaker[Session], table: pd.DataFrame, source: str = "form",
@@ -290,3 +281,31 @@ def save_readings(sessions: sessionmaker[Session], table: pd.DataFrame, source: 
 def unit_choices() -> dict[str, tuple[str, ...]]:
     """Units the form offers per field (canonical first)."""
     return {f.name: units.CHOICES[f.quantity] for f in FORM_FIELDS if f.quantity}
+
+
+def stored_readings(session: Session, table: pd.DataFrame) -> list[dict]:
+    """id, pump and time of the stored readings a table of new readings names (after it was saved)."""
+    parsed, _ = parse_table("readings", table)
+    keys = [(serial, stamp.to_pydatetime()) for serial, stamp in zip(parsed.data["pump"], parsed.data["taken_at"],
+                                                                       strict=True)]
+    rows = session.execute(select(Reading.id, Pump.serial, Reading.taken_at).join(Pump, Pump.id == Reading.pump_id)
+                           .where(tuple_(Pump.serial, Reading.taken_at).in_(keys)))
+    found = {(serial, at): rid for rid, serial, at in rows}
+    return [{"id": found.get(key), "pump": key[0], "taken_at": key[1].isoformat(timespec="minutes")} for key in keys]
+
+
+def route_pumps(session: Session, name: str) -> tuple[str, list[str]] | None:
+    """(name, serials) of the saved route (by name or id) or the machine named ``name``; None if there is none."""
+    routes = session.scalars(select(Route)).all()
+    for route in routes:
+        if route.name == name or str(route.id) == name:
+            return route.name, [stop.pump.serial for stop in route.stops]
+    for suggestion in suggested_routes(session):
+        if name in (suggestion["name"], suggestion["name"].split(" · ")[-1]):
+            return suggestion["name"], suggestion["pumps"]
+    return None
+
+
+def route_names(session: Session) -> list[str]:
+    return [r.name for r in session.scalars(select(Route).order_by(Route.name))] + \
+        [s["name"] for s in suggested_routes(session)]

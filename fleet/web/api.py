@@ -13,13 +13,13 @@ import math
 
 import pandas as pd
 from flask import Blueprint, jsonify, request
-from sqlalchemy import select, tuple_
 
 from fleet import units
-from fleet.db.models import AnalysisResult, Pump, Reading
 from fleet.io.columns import READINGS
-from fleet.io.parse import ImportRejected, Problem, parse_table
-from fleet.services.importing import import_table
+from fleet.io.parse import ImportRejected, Problem
+from fleet.services.analysis import statuses
+from fleet.services.rounds import stored_readings
+from fleet.services.transfer.importing import import_table
 from fleet.services.users import mark_token_used
 from fleet.services.writes import perform
 from fleet.web.auth import requires, signed_in_user
@@ -161,8 +161,8 @@ def post_readings():
                                    for p in rejected.problems])
     db = session()
     db.rollback()  # a fresh snapshot: this request's reads began before the write
-    return jsonify({"created": outcome.value.created, "readings": _stored(db, table),
-                    "pumps": _statuses(db, outcome.value.pump_ids)}), 201
+    return jsonify({"created": outcome.value.created, "readings": stored_readings(db, table),
+                    "pumps": statuses(db, outcome.value.pump_ids)}), 201
 
 
 def _field_name(column: str) -> str:
@@ -170,20 +170,3 @@ def _field_name(column: str) -> str:
         return units.parse_header(column)[0]
     except units.UnitError:
         return column
-
-
-def _stored(db, table: pd.DataFrame) -> list[dict]:
-    parsed, _ = parse_table("readings", table)
-    keys = [(serial, stamp.to_pydatetime()) for serial, stamp in zip(parsed.data["pump"], parsed.data["taken_at"],
-                                                                       strict=True)]
-    rows = db.execute(select(Reading.id, Pump.serial, Reading.taken_at).join(Pump, Pump.id == Reading.pump_id)
-                      .where(tuple_(Pump.serial, Reading.taken_at).in_(keys)))
-    found = {(serial, at): rid for rid, serial, at in rows}
-    return [{"id": found.get(key), "pump": key[0], "taken_at": key[1].isoformat(timespec="minutes")} for key in keys]
-
-
-def _statuses(db, pump_ids) -> list[dict]:
-    rows = db.execute(select(Pump.serial, AnalysisResult).join(AnalysisResult, AnalysisResult.pump_id == Pump.id)
-                      .where(Pump.id.in_(list(pump_ids))).order_by(Pump.serial))
-    return [{"pump": serial, "status": r.status, "reasons": r.reasons, "eta_v_ref": r.eta_v_ref,
-             "hours_to_limit": r.hours_to_limit, "limit_date": r.limit_date} for serial, r in rows]

@@ -2,10 +2,10 @@
 
 from flask import Blueprint, abort, flash, jsonify, redirect, request, url_for
 
-from fleet.services.forms import FormRejected
-from fleet.services.plan import CSV_COLUMNS, DEFAULT_WEEKS, add_window, delete_window, overhaul_plan
-from fleet.services.plan_chart import timeline_html
+from fleet.charts.plan import timeline_html
+from fleet.services.pages.plan import CSV_COLUMNS, DEFAULT_WEEKS, add_window, delete_window, overhaul_plan
 from fleet.services.writes import perform
+from fleet.services.writes.forms import FormRejected
 from fleet.web.auth import requires
 from fleet.web.db import session, sessions
 from fleet.web.respond import respond, twin_routes, wants_json

@@ -2,11 +2,11 @@
 
 from flask import Blueprint, abort, flash, jsonify, redirect, request, url_for
 
-from fleet.services.forms import FormRejected
-from fleet.services.registry_forms import FORMS, NotFound
-from fleet.services.registry_pages import CSV_COLUMNS, FORM_COLUMNS, form_page, register_overview
-from fleet.services.uploads import PROBLEM_COLUMNS, upload_file, upload_kinds
+from fleet.services.pages.register import CSV_COLUMNS, FORM_COLUMNS, form_page, register_overview
+from fleet.services.register.forms import FORMS, NotFound
+from fleet.services.transfer.uploads import PROBLEM_COLUMNS, upload_file, upload_kinds
 from fleet.services.writes import perform
+from fleet.services.writes.forms import FormRejected
 from fleet.web.auth import requires
 from fleet.web.db import session, sessions
 from fleet.web.respond import respond, twin_routes, wants_json

@@ -4,7 +4,7 @@ from datetime import date
 
 from flask import Blueprint, abort, request
 
-from fleet.services.review import CSV_COLUMNS, weekly_review
+from fleet.services.pages.review import CSV_COLUMNS, weekly_review
 from fleet.web.db import session
 from fleet.web.respond import respond, twin_routes
 

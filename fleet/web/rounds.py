@@ -8,16 +8,15 @@ back with every typed value kept. The unit chosen for each field is remembered i
 from urllib.parse import parse_qsl, urlencode
 
 from flask import Blueprint, abort, flash, make_response, redirect, render_template, request, url_for
-from sqlalchemy import select
 
 from fleet import units
-from fleet.db.models import Pump
 from fleet.io.parse import ImportRejected
 from fleet.services import rounds
 from fleet.services.writes import perform
 from fleet.timeutil import utcnow
 from fleet.web.auth import current_actor, requires
 from fleet.web.db import session, sessions
+from fleet.web.lookup import pump_or_404
 from fleet.web.respond import respond, twin_routes, twin_urls, wants_json
 
 bp = Blueprint("rounds", __name__)
@@ -80,7 +79,7 @@ def reading(route_id, number):
     if data is None or not 1 <= number <= len(data["stops"]):
         abort(404, description="No such stop on this route.")
     stop = data["stops"][number - 1]
-    pump = db.scalar(select(Pump).where(Pump.serial == stop["pump"]))
+    pump = pump_or_404(stop["pump"])
     form = request.form
     fields = rounds.fields_for(pump)
     values = {f.name: form.get(f.name, "") for f in fields}
@@ -120,7 +119,7 @@ def _render_walk(data: dict, number: int, values: dict, chosen: dict, twins: dic
                  checked: bool = False) -> str:
     number = min(max(number, 1), len(data["stops"])) if data["stops"] else 0
     stop = data["stops"][number - 1] if number else None
-    pump = session().scalar(select(Pump).where(Pump.serial == stop["pump"])) if stop else None
+    pump = pump_or_404(stop["pump"]) if stop else None
     errors: dict[str, list[str]] = {}
     for problem in (outcome.problems if outcome else []):
         errors.setdefault(_field_of(problem.column), []).append(problem.reason)

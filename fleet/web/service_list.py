@@ -2,7 +2,7 @@
 
 from flask import Blueprint, current_app, request
 
-from fleet.services.servicelist import CSV_COLUMNS, ListQuery, service_list
+from fleet.services.pages.service_list import CSV_COLUMNS, ListQuery, service_list
 from fleet.web.db import session
 from fleet.web.respond import respond, twin_routes
 

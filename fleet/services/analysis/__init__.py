@@ -12,12 +12,12 @@ from fleet.services.analysis.compute import (
     analyse_with_frames,
     stored_priors,
 )
-from fleet.services.analysis.records import analysis_records, pump_ids_for
+from fleet.services.analysis.records import analysis_records, pump_ids_for, statuses
 from fleet.services.analysis.refresh import any_stale, bring_up_to_date, reanalyse, refresh_analysis, stale_pumps
 from fleet.services.analysis.store import CONTRACT_FIELDS, RefreshSummary
 
 __all__ = [
     "CHUNK_PUMPS", "any_stale", "CONTRACT_FIELDS", "Computed", "RefreshSummary", "analyse", "analyse_results",
     "analyse_with_frames", "analysis_records", "bring_up_to_date", "pump_ids_for", "reanalyse", "refresh_analysis",
-    "stale_pumps", "stored_priors",
+    "stale_pumps", "statuses", "stored_priors",
 ]

@@ -9,7 +9,7 @@ from sqlalchemy import select
 from sqlalchemy.orm import Session
 
 from fleet.db.models import FleetPrior, Pump, PumpDataVersion
-from fleet.services.fleetdata import FleetFrames, load_frames
+from fleet.services.analysis.frames import FleetFrames, load_frames
 from fleet.timeutil import utcnow
 from fleet.trend.engine import FleetAnalysis, analyze_fleet, apply_priors, fit_priors
 from fleet.trend.intervals import interval_lives

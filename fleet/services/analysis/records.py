@@ -32,3 +32,11 @@ def analysis_records(session: Session, pump_ids=None) -> list[dict]:
         record.update({k: v for k, v in (row.detail or {}).items() if k not in record})
         records.append(record)
     return records
+
+
+def statuses(session: Session, pump_ids) -> list[dict]:
+    """The headline of each pump's stored analysis (what the readings API answers after a post)."""
+    rows = session.execute(select(Pump.serial, AnalysisResult).join(AnalysisResult, AnalysisResult.pump_id == Pump.id)
+                           .where(Pump.id.in_(list(pump_ids))).order_by(Pump.serial))
+    return [{"pump": serial, "status": r.status, "reasons": r.reasons, "eta_v_ref": r.eta_v_ref,
+             "hours_to_limit": r.hours_to_limit, "limit_date": r.limit_date} for serial, r in rows]

@@ -15,8 +15,8 @@ from sqlalchemy import delete, insert, select, update
 from sqlalchemy.orm import Session
 
 from fleet.db.models import AnalysisResult, FleetPrior, Pump, ServiceLife, StatusChange
+from fleet.jsonvalues import json_ready
 from fleet.services.analysis.compute import Computed
-from fleet.services.fleetdata import json_ready
 from fleet.trend.engine import apply_priors, results_to_records
 from fleet.trend.settings import AnalysisSettings
 from fleet.trend.status import service_rank

@@ -1,7 +1,7 @@
 """The register's forms: what each asks, what it shows when editing, and how it saves.
 
 Kinds the importer knows (sites, pumps, installations, events, samples) are saved through
-fleet.services.importing.import_table, so the checks are the CLI's; the rest (machines, positions, oils, limit
+fleet.services.transfer.importing.import_table, so the checks are the CLI's; the rest (machines, positions, oils, limit
 defaults, removals) are checked here. Savers run inside a unit of work (fleet.services.writes.perform), which
 commits and re-analyses what the refresh policy says the write touched.
 """
@@ -17,9 +17,9 @@ from fleet.db.models import Installation, LimitDefault, Machine, Oil, Position, 
 from fleet.io import rules
 from fleet.io.parse import ImportRejected
 from fleet.kinds import EVENT_KINDS, FAILURE_MODES, PUMP_KINDS
-from fleet.services import register
-from fleet.services.forms import Collector, Field, FormRejected, one_row_table, problems_by_field
-from fleet.services.importing import import_table
+from fleet.services.register import records as register
+from fleet.services.transfer.importing import import_table
+from fleet.services.writes.forms import Collector, Field, FormRejected, one_row_table, problems_by_field
 from fleet.timeutil import utcnow
 
 

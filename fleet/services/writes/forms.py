@@ -1,7 +1,7 @@
 """Form plumbing shared by the register and planning pages: typed fields, one-row import tables, problems by field.
 
 One set of rules for every door: forms that write a kind the importer knows build a one-row table (headers carry
-the chosen unit, e.g. ``displacement [in3/rev]``) and go through fleet.services.importing; the others read each
+the chosen unit, e.g. ``displacement [in3/rev]``) and go through fleet.services.transfer.importing; the others read each
 field with ``Collector``, which parses by the same column declarations, and apply the same cross-field rules
 (fleet.io.rules). So a form and a CSV file refuse the same values in the same words.
 """

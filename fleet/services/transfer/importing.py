@@ -28,7 +28,7 @@ from fleet.db.queries import pumps_on_machine
 from fleet.io import rules
 from fleet.io.parse import ImportRejected, ParsedTable, Problem, parse_table, row_numbers
 from fleet.physics.cleanliness import code_from_counts
-from fleet.services import register
+from fleet.services.register import records as register
 from fleet.timeutil import utcnow
 
 SQLITE_DATETIME_FORMAT = "%Y-%m-%d %H:%M:%S.%f"  # how SQLAlchemy stores a DateTime in SQLite

@@ -24,11 +24,12 @@ from fleet.db.models import (
     Reading,
     Site,
 )
+from fleet.db.queries import pump_by_serial
+from fleet.jsonvalues import json_ready
 from fleet.kinds import EVENT_KINDS, PUMP_KINDS
 from fleet.physics.cleanliness import Iso4406Code
-from fleet.physics.pump import theoretical_flow_lpm
+from fleet.physics.pump import baseline_flow_lpm, theoretical_flow_lpm
 from fleet.services.analysis import analyse_with_frames
-from fleet.services.fleetdata import json_ready
 from fleet.trend.remaining_life import trend_band
 
 # Columns of the readings table and of the page's CSV twin, in order: raw values, then referred ones.
@@ -50,25 +51,9 @@ BAND_POINTS = 60
 FORECAST_MIN_HOURS = 2000.0
 
 
-def baseline_flow_lpm(displacement_cc, speed_rpm, slip_at_rated_lpm, rated_pressure_bar, pressure_bar,
-                      viscosity_ratio=1.0):
-    """Outlet flow a pump with a known slip should give: theoretical flow minus slip growing with pressure.
-
-    Laminar slip is proportional to pressure and inversely to viscosity (Wilson's model); viscosity_ratio is
-    mu_ref / mu at the test's oil temperature (1.0 at the reference temperature).
-    """
-    pressure = np.asarray(pressure_bar, dtype=float)
-    slip = np.asarray(slip_at_rated_lpm, dtype=float) * pressure / float(rated_pressure_bar) * viscosity_ratio
-    return np.asarray(theoretical_flow_lpm(displacement_cc, speed_rpm), dtype=float) - slip
-
-
-def find_pump(session: Session, serial: str) -> Pump | None:
-    return session.scalar(select(Pump).where(Pump.serial == serial))
-
-
 def pump_page(session: Session, serial: str) -> dict | None:
     """The pump page's data; None when no pump has that serial."""
-    pump = find_pump(session, serial)
+    pump = pump_by_serial(session, serial)
     if pump is None:
         return None
     analysis, frames = analyse_with_frames(session, [pump.id])
@@ -97,8 +82,9 @@ def _rated(pump: Pump) -> dict:
     return {
         "serial": pump.serial, "kind": pump.kind, "kind_label": PUMP_KINDS.get(pump.kind, pump.kind),
         "variable": pump.variable, "displacement_cc": pump.displacement_cc, "rated_speed_rpm": pump.rated_speed_rpm,
-        "rated_pressure_bar": pump.rated_pressure_bar, "rated_flow_lpm": pump.displacement_cc *
-        pump.rated_speed_rpm / 1000.0, "max_flow_lpm": pump.max_flow, "case_drain": pump.case_drain,
+        "rated_pressure_bar": pump.rated_pressure_bar,
+        "rated_flow_lpm": theoretical_flow_lpm(pump.displacement_cc, pump.rated_speed_rpm),
+        "max_flow_lpm": pump.max_flow, "case_drain": pump.case_drain,
         "reference_temp_c": pump.reference_temp_c, "overhaul_cost": pump.overhaul_cost, "note": pump.note,
     }
 
@@ -227,7 +213,7 @@ def _trend(fit: pd.Series | None, pump: Pump, confidence: float) -> dict | None:
     end_h = crossing if np.isfinite(crossing) and crossing > now_h else now_h + max(FORECAST_MIN_HOURS, now_h)
     end_h = min(end_h, now_h + 4 * max(now_h, FORECAST_MIN_HOURS))  # a flat trend would run off to infinity
     grid = np.unique(np.concatenate([np.linspace(0.0, end_h, BAND_POINTS), [now_h]]))
-    band = trend_band(fit, grid, pump.displacement_cc * pump.rated_speed_rpm / 1000.0, confidence, "slip")
+    band = trend_band(fit, grid, theoretical_flow_lpm(pump.displacement_cc, pump.rated_speed_rpm), confidence, "slip")
     start_h = float(fit["start_hours"]) if np.isfinite(float(fit["start_hours"])) else 0.0
     band = band.assign(hours=band["hours"] + start_h, forecast=grid > now_h)
     return {"interval_no": int(fit["interval_no"]), "interval_start_hours": start_h, "now_hours": now_h + start_h,
@@ -290,7 +276,7 @@ def _baseline_slip(pump: Pump, fit: pd.Series | None) -> tuple[float, str]:
     """Referred slip at rated pressure the baseline assumes, and where it comes from."""
     if fit is not None and bool(fit["slip_enough_data"]) and np.isfinite(float(fit["slip_a"])):
         return float(np.exp(float(fit["slip_a"]))), "the start of this service interval's fitted trend"
-    theoretical = pump.displacement_cc * pump.rated_speed_rpm / 1000.0
+    theoretical = theoretical_flow_lpm(pump.displacement_cc, pump.rated_speed_rpm)
     if pump.max_flow_lpm is not None and pump.max_flow_lpm < theoretical:
         return theoretical - pump.max_flow_lpm, "the rated maximum flow"
     return 0.0, "theoretical flow only (no trend yet and no rated maximum flow below it)"

@@ -11,7 +11,7 @@ from sqlalchemy import func, select
 from sqlalchemy.orm import Session
 
 from fleet.db.models import AnalysisResult, Machine, OilSample, Pump, Reading, Site, StatusChange
-from fleet.services.fleetdata import installation_history, load_pumps
+from fleet.services.analysis.frames import installation_history, load_pumps
 from fleet.timeutil import utcnow
 from fleet.trend.settings import AnalysisSettings
 from fleet.trend.status import STATUS_ORDER

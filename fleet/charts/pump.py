@@ -7,6 +7,8 @@ legend entry, so nothing rests on colour alone.
 import pandas as pd
 import plotly.graph_objects as go
 
+from fleet.physics.cleanliness import parse_code
+
 INK = "#1e2529"
 MUTED = "#5d676d"
 ACCENT = "#24525e"
@@ -141,3 +143,42 @@ def figure_html(fig: go.Figure, div_id: str) -> str:
     """The figure as a <div> and its script; plotly.js itself is loaded once by the page."""
     return fig.to_html(full_html=False, include_plotlyjs=False, div_id=div_id,
                        config={"displaylogo": False, "responsive": True})
+
+
+def page_charts(data: dict) -> dict[str, str]:
+    """The pump page's figures as HTML snippets, built from the same data its JSON twin carries
+    (fleet.services.pages.pump)."""
+    out = {}
+    readings = pd.DataFrame(data["readings"])
+    events = pd.DataFrame(data["events"], columns=["date", "chart_hours", "kind_label"])
+    limits = data["limits"]
+    if len(readings):
+        readings = readings.astype({c: float for c in ("hours", "eta_v", "eta_v_ref", "case_drain_pct",
+                                                       "case_drain_pct_ref", "oil_temp_c")})
+        band = pd.DataFrame(data["trend"]["points"]) if data["trend"] else None
+        out["efficiency"] = figure_html(
+            efficiency_figure(readings, band, limits["eta_v_limit"], events), "chart-efficiency")
+        if data["pump"]["case_drain"]:
+            out["drain"] = figure_html(
+                drain_figure(readings, limits["drain_limit_pct"], events), "chart-drain")
+        out["temperature"] = figure_html(
+            temperature_figure(readings, limits["oil_temp_min_c"], limits["oil_temp_max_c"], events),
+            "chart-temperature")
+    if data["samples"]:
+        samples = pd.DataFrame(data["samples"]).astype({"code_4": float, "code_6": float, "code_14": float})
+        out["cleanliness"] = figure_html(
+            cleanliness_figure(samples, _target(limits["cleanliness_target"])), "chart-cleanliness")
+    if data["flow_test"]:
+        test = data["flow_test"]
+        out["flow_test"] = figure_html(
+            flow_test_figure(pd.DataFrame(test["points"]), pd.DataFrame(test["baseline"])), "chart-flowtest")
+    return out
+
+
+def _target(code: str | None):
+    if not code:
+        return None
+    try:
+        return parse_code(code).channels()
+    except ValueError:
+        return None

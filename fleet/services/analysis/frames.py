@@ -4,7 +4,6 @@ Set-based: one query per table, joined in pandas, never a query per pump.
 """
 
 from dataclasses import dataclass
-from typing import Any
 
 import numpy as np
 import pandas as pd
@@ -27,6 +26,7 @@ from fleet.db.models import (
 from fleet.frames import EVENT_COLUMNS, FLOW_POINT_COLUMNS, PUMP_COLUMNS, READING_COLUMNS, SAMPLE_COLUMNS
 from fleet.kinds import PISTON_KINDS
 from fleet.limits import DEFAULT_LIMITS, VARIABLE_PISTON_TARGET
+from fleet.physics.pump import theoretical_flow_lpm
 
 LIMIT_FIELDS = ("eta_v_limit", "drain_limit_pct", "oil_temp_max_c", "oil_temp_min_c", "cleanliness_target",
                 "reading_interval_days", "planning_horizon_weeks")
@@ -113,7 +113,7 @@ def load_pumps(session: Session, pump_ids=None) -> pd.DataFrame:
     for column in ("tariff_per_kwh", "motor_efficiency", "currency"):
         pumps[column] = pumps["site_id"].map(sites[column]) if len(sites) else None
     pumps["max_flow_lpm"] = pumps["max_flow_lpm"].where(
-        pumps["max_flow_lpm"].notna(), pumps["displacement_cc"] * pumps["rated_speed_rpm"] / 1000.0
+        pumps["max_flow_lpm"].notna(), theoretical_flow_lpm(pumps["displacement_cc"], pumps["rated_speed_rpm"])
     )
     defaults = _query(session, select(LimitDefault.__table__))
     pumps = effective_limits(pumps, defaults)
@@ -217,20 +217,3 @@ def known_by(frames: FleetFrames, moment: pd.Timestamp) -> FleetFrames:
         events=frames.events[frames.events["date"] <= moment],
         samples=samples,
     )
-
-
-def json_ready(value: Any) -> Any:
-    """NaN -> None, numpy scalars -> Python, timestamps -> ISO text: values safe for a JSON column."""
-    if isinstance(value, dict):
-        return {str(k): json_ready(v) for k, v in value.items()}
-    if isinstance(value, list | tuple | np.ndarray):
-        return [json_ready(v) for v in value]
-    if value is None or value is pd.NaT:
-        return None
-    if isinstance(value, pd.Timestamp):
-        return value.isoformat()
-    if isinstance(value, np.generic):
-        value = value.item()
-    if isinstance(value, float) and not np.isfinite(value):
-        return None
-    return value

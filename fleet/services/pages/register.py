@@ -6,7 +6,7 @@ from sqlalchemy.orm import Session, aliased
 
 from fleet.db.models import Installation, LimitDefault, Machine, Oil, Position, Pump, Site
 from fleet.kinds import PUMP_KINDS
-from fleet.services.registry_forms import FORMS
+from fleet.services.register.forms import FORMS
 
 # Columns of the register's CSV twin: one row per pump.
 CSV_COLUMNS = ("pump", "kind", "variable", "site", "machine", "position", "displacement_cc", "rated_speed_rpm",

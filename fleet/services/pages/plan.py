@@ -10,13 +10,14 @@ from sqlalchemy.orm import Session
 
 from fleet.db.models import AnalysisResult, FleetPrior, Machine, ShutdownWindow, Site
 from fleet.io import rules
+from fleet.jsonvalues import plain
 from fleet.kinds import PUMP_KINDS
-from fleet.services.fleetdata import load_pumps
-from fleet.services.forms import Collector
-from fleet.services.overhaul_windows import FIT_WORDS, match_windows
-from fleet.services.spares import DEFAULT_COVER, spares_to_hold
+from fleet.planning.outlook import overhaul_chances, plan_totals
+from fleet.planning.spares import DEFAULT_COVER, spares_to_hold
+from fleet.planning.windows import FIT_WORDS, match_windows
+from fleet.services.analysis.frames import load_pumps
+from fleet.services.writes.forms import Collector
 from fleet.timeutil import utcnow
-from fleet.trend.weibull import conditional_failure_probability
 
 DEFAULT_WEEKS = 26
 MAX_WEEKS = 520
@@ -47,13 +48,14 @@ def overhaul_plan(session: Session, weeks: int = DEFAULT_WEEKS, now: datetime | 
             "site": pump["site"], "machine": pump["machine"], "position": pump["position"],
             "status": pump["status"], "governing_limit": pump["governing_limit"],
             "limit_date": pump["limit_date"], "limit_date_low": pump["limit_date_low"],
-            "limit_date_high": pump["limit_date_high"], "hours_to_limit": _num(pump["hours_to_limit"]),
+            "limit_date_high": pump["limit_date_high"], "hours_to_limit": _number(pump["hours_to_limit"]),
             "fit": fit["fit"] if fit is not None else "no_forecast",
             "window": window_id, "window_label": None if window is None else window["label"],
             "window_starts": None if window is None else window["starts_at"].strftime("%Y-%m-%d"),
-            "overhaul_cost": _num(pump["overhaul_cost"]), "energy_cost_per_year": _num(pump["energy_cost_per_year"]),
-            "overhaul_saving_per_year": _num(pump["overhaul_saving_per_year"]),
-            "overhaul_payback_years": _num(pump["overhaul_payback_years"]), "currency": pump["currency"],
+            "overhaul_cost": _number(pump["overhaul_cost"]),
+            "energy_cost_per_year": _number(pump["energy_cost_per_year"]),
+            "overhaul_saving_per_year": _number(pump["overhaul_saving_per_year"]),
+            "overhaul_payback_years": _number(pump["overhaul_payback_years"]), "currency": pump["currency"],
         })
     rows.sort(key=lambda r: (r["limit_date_low"] or r["limit_date"] or "9999", r["pump"]))
     return {
@@ -66,16 +68,9 @@ def overhaul_plan(session: Session, weeks: int = DEFAULT_WEEKS, now: datetime | 
         "at_risk": [r["pump"] for r in rows if r["fit"] in ("at_risk", "past_limit")],
         "kinds": _kind_outlook(session, pumps, weeks),
         "spares_cover": DEFAULT_COVER,
-        "totals": _totals(rows),
+        "totals": plan_totals(rows),
         "scopes": _scope_options(session),
     }
-
-
-def _num(value):
-    if value is None:
-        return None
-    value = float(value)
-    return value if np.isfinite(value) else None
 
 
 def _pump_frame(session: Session) -> pd.DataFrame:
@@ -158,32 +153,6 @@ def _kind_outlook(session: Session, pumps: pd.DataFrame, weeks: int) -> list[dic
     return out
 
 
-def overhaul_chances(age_hours, hours_per_day, weeks: int, beta: float, alpha: float) -> np.ndarray:
-    """Each pump's probability of reaching an overhaul within ``weeks`` of running at its own hours per day."""
-    age = pd.to_numeric(pd.Series(age_hours, dtype=object), errors="coerce").to_numpy(float)
-    per_day = pd.to_numeric(pd.Series(hours_per_day, dtype=object), errors="coerce").to_numpy(float)
-    horizon_hours = per_day * 7.0 * weeks
-    return np.asarray(conditional_failure_probability(age, horizon_hours, beta, alpha), dtype=float)
-
-
-def _totals(rows: list[dict]) -> list[dict]:
-    """Overhaul cost, yearly saving and payback of the plan, per currency."""
-    totals: dict[str, dict] = {}
-    for r in rows:
-        t = totals.setdefault(r["currency"] or "", {"currency": r["currency"], "pumps": 0, "overhaul_cost": 0.0,
-                                                    "overhaul_saving_per_year": 0.0, "uncosted": 0})
-        t["pumps"] += 1
-        if r["overhaul_cost"] is None:
-            t["uncosted"] += 1
-        else:
-            t["overhaul_cost"] += r["overhaul_cost"]
-            t["overhaul_saving_per_year"] += r["overhaul_saving_per_year"] or 0.0
-    for t in totals.values():
-        saving = t["overhaul_saving_per_year"]
-        t["payback_years"] = t["overhaul_cost"] / saving if saving > 0 else None
-    return list(totals.values())
-
-
 def _scope_options(session: Session) -> list[list[str]]:
     sites = [[f"site:{i}", f"{n} (whole site)"] for i, n in session.execute(select(Site.id, Site.name)
                                                                               .order_by(Site.name))]
@@ -196,7 +165,7 @@ def _scope_options(session: Session) -> list[list[str]]:
 def add_window(session: Session, values: dict) -> ShutdownWindow:
     """Store a shutdown window from form values (scope 'site:ID' or 'machine:ID', starts_at, ends_at, note).
 
-    Raises fleet.services.forms.FormRejected naming each problem; never commits.
+    Raises fleet.services.writes.forms.FormRejected naming each problem; never commits.
     """
     form = Collector(values, "windows")
     allowed = {value for value, _ in _scope_options(session)}
@@ -225,3 +194,8 @@ def delete_window(session: Session, window_id: int) -> bool:
     session.delete(window)
     session.flush()
     return True
+
+
+def _number(value) -> float | None:
+    value = plain(value)
+    return None if value is None else float(value)

@@ -7,7 +7,7 @@ from sqlalchemy.orm import Session, sessionmaker
 
 from fleet.io.columns import KINDS
 from fleet.io.parse import ImportRejected
-from fleet.services.importing import import_table
+from fleet.services.transfer.importing import import_table
 from fleet.services.writes import perform
 
 PROBLEM_COLUMNS = ("row", "column", "reason")

@@ -1,0 +1,1 @@
+"""Every plotly figure of the dashboard, built from plain data; pages load plotly's JavaScript themselves."""
