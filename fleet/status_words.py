@@ -15,11 +15,4 @@ STATUS_METER = {
     "watch": "●○○",
     "healthy": "○○○",
 }
-STATUS_MEANING = {
-    "past_limit": "a limit is crossed now",
-    "due_soon": "a limit is expected inside the planning horizon (the pump's own trend)",
-    "watch": "something needs a look: fast decline, a jump in case drain, hot or dirty oil, an overdue reading, "
-             "a late lab result, or too little data",
-    "healthy": "no limit expected inside the planning horizon",
-}
 assert tuple(STATUS_LABELS) == STATUS_ORDER

@@ -29,7 +29,6 @@ ABOVE_SCALE = MAX_SCALE_NUMBER + 1  # 29, written ">28"
 # (from memory of ISO 4406; the count is too small to place the scale number firmly).
 MIN_PARTICLES_COUNTED = 20
 
-CHANNELS_UM = (4, 6, 14)
 LOW_MARK = "≥"
 
 

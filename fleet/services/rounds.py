@@ -14,6 +14,7 @@ from sqlalchemy.orm import Session, sessionmaker
 
 from fleet import units
 from fleet.db.models import Installation, Machine, Position, Pump, Reading, Route, RouteStop, Site
+from fleet.db.queries import current_places
 from fleet.io.parse import Problem, parse_table
 from fleet.jsonvalues import plain
 from fleet.kinds import PUMP_KINDS
@@ -55,12 +56,8 @@ class RouteError(ValueError):
 # --- routes ------------------------------------------------------------------------------------------------
 
 def _current_places(session: Session) -> dict[int, dict]:
-    rows = session.execute(
-        select(Installation.pump_id, Site.name, Machine.name, Position.name)
-        .join(Position, Position.id == Installation.position_id).join(Machine, Machine.id == Position.machine_id)
-        .join(Site, Site.id == Machine.site_id).where(Installation.removed_at.is_(None))
-    )
-    return {pump_id: {"site": s, "machine": m, "position": p} for pump_id, s, m, p in rows}
+    return {pump_id: {"site": p.site, "machine": p.machine, "position": p.position}
+            for pump_id, p in current_places(session).items()}
 
 
 def _last_readings(session: Session, pump_ids) -> dict[int, tuple[datetime, float]]:
@@ -251,10 +248,6 @@ def _blank(value) -> bool:
 class CheckOutcome:
     problems: list[Problem] = field(default_factory=list)  # hard errors: the importer refuses the row
     warnings: list[Doubt] = field(default_factory=list)  # plausibility: the technician may confirm
-
-    @property
-    def clean(self) -> bool:
-        return not self.problems and not self.warnings
 
 
 def check_reading(session: Session, pump: Pump, table: pd.DataFrame, now: datetime | None = None) -> CheckOutcome:

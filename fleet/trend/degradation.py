@@ -12,7 +12,6 @@ from fleet.trend.linear import LineFit, grouped_wls, inverse_design
 from fleet.trend.settings import AnalysisSettings
 
 QUANTITIES = ("slip", "drain")
-FIT_FIELDS = ("n_points", "span_hours", "a", "b", "var_a", "var_b", "cov_ab", "scale", "dof", "current_lpm")
 
 
 def _robust_scale(group: np.ndarray, z: np.ndarray, n_groups: int) -> np.ndarray:

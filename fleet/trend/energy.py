@@ -13,16 +13,6 @@ from fleet.physics.leakage import leakage_power_kw
 
 HOURS_PER_YEAR_DAYS = 365.0
 
-ENERGY_COLUMNS = [
-    "typical_pressure_bar",
-    "leakage_kw",
-    "energy_cost_per_year",
-    "energy_cost_new_per_year",
-    "overhaul_saving_per_year",
-    "overhaul_payback_years",
-]
-
-
 def typical_pressure_bar(referred: pd.DataFrame, window_days: float) -> pd.Series:
     """Median working pressure of the usable readings of the last `window_days` of each pump interval."""
     r = referred.loc[referred["flag"].isna(), ["pump_id", "interval_no", "taken_at", "pressure_bar"]]

@@ -18,6 +18,7 @@ from collections.abc import Callable
 from dataclasses import dataclass
 from datetime import timedelta
 from functools import wraps
+from typing import TYPE_CHECKING
 from urllib.parse import urlsplit
 
 from flask import (
@@ -41,10 +42,12 @@ from flask_login import LoginManager, current_user, login_user, logout_user
 from flask_wtf.csrf import CSRFError, CSRFProtect
 
 from fleet.db import audit
-from fleet.db.models import User
 from fleet.services import users
 from fleet.services.writes import perform
 from fleet.web.db import session, sessions
+
+if TYPE_CHECKING:
+    from fleet.db.models import User
 
 bp = Blueprint("auth", __name__)
 login_manager = LoginManager()
@@ -77,7 +80,7 @@ class SignedInUser:
         return users.role_at_least(self.role, role)
 
     @classmethod
-    def of(cls, user: User, token_id: int | None = None) -> "SignedInUser":
+    def of(cls, user: "User", token_id: int | None = None) -> "SignedInUser":
         fingerprint = hashlib.sha256(user.password_hash.encode("utf-8")).hexdigest()[:16]
         return cls(user.id, user.name, user.role, fingerprint, token_id)
 
@@ -87,8 +90,8 @@ def _load_user(user_id: str) -> SignedInUser | None:
     number, _, fingerprint = user_id.partition(".")
     if not number.isdigit():
         return None
-    user = session().get(User, int(number))
-    if user is None or not user.active:
+    user = users.active_user(session(), int(number))
+    if user is None:
         return None
     signed_in = SignedInUser.of(user)
     return signed_in if signed_in.fingerprint == fingerprint else None

@@ -24,7 +24,7 @@ from fleet.db.models import (
     Reading,
     Site,
 )
-from fleet.db.queries import pump_by_serial
+from fleet.db.queries import current_places, pump_by_serial
 from fleet.jsonvalues import json_ready
 from fleet.kinds import EVENT_KINDS, PUMP_KINDS
 from fleet.physics.cleanliness import Iso4406Code
@@ -90,22 +90,13 @@ def _rated(pump: Pump) -> dict:
 
 
 def _where(session: Session, pump_id: int) -> dict | None:
-    row = session.execute(
-        select(Site.name, Machine.name, Position.name)
-        .select_from(Installation).join(Position, Position.id == Installation.position_id)
-        .join(Machine, Machine.id == Position.machine_id).join(Site, Site.id == Machine.site_id)
-        .where(Installation.pump_id == pump_id, Installation.removed_at.is_(None))
-        .order_by(Installation.installed_at.desc()).limit(1)
-    ).first()
-    return None if row is None else {"site": row[0], "machine": row[1], "position": row[2]}
+    place = current_places(session, [pump_id]).get(pump_id)
+    return None if place is None else {"site": place.site, "machine": place.machine, "position": place.position}
 
 
 def _current_machine_id(session: Session, pump_id: int) -> int | None:
-    return session.scalar(
-        select(Position.machine_id).select_from(Installation).join(Position, Position.id == Installation.position_id)
-        .where(Installation.pump_id == pump_id, Installation.removed_at.is_(None))
-        .order_by(Installation.installed_at.desc()).limit(1)
-    )
+    place = current_places(session, [pump_id]).get(pump_id)
+    return None if place is None else place.machine_id
 
 
 def _oil(session: Session, pump_id: int) -> dict | None:

@@ -13,7 +13,8 @@ from datetime import datetime
 from sqlalchemy import select
 from sqlalchemy.orm import Session
 
-from fleet.db.models import Installation, LimitDefault, Machine, Oil, Position, Pump, Site
+from fleet.db.models import LimitDefault, Machine, Oil, Position, Pump, Site
+from fleet.db.queries import current_installations
 from fleet.io import rules
 from fleet.io.parse import ImportRejected
 from fleet.kinds import EVENT_KINDS, FAILURE_MODES, PUMP_KINDS
@@ -68,7 +69,7 @@ def _oil_options(session: Session) -> tuple:
 def _pump_options(session: Session, installed_only: bool = False) -> tuple:
     statement = select(Pump.serial, Pump.kind).order_by(Pump.serial)
     if installed_only:
-        statement = statement.where(Pump.id.in_(select(Installation.pump_id).where(Installation.removed_at.is_(None))))
+        statement = statement.where(Pump.id.in_(current_installations()))
     return tuple((s, f"{s} ({PUMP_KINDS.get(k, k)})") for s, k in session.execute(statement))
 
 

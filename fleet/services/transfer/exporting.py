@@ -1,6 +1,5 @@
 """Export each kind as the importer reads it, canonical units written into the headers, so files round-trip."""
 
-from pathlib import Path
 
 import pandas as pd
 from sqlalchemy import select
@@ -48,12 +47,6 @@ def export_table(session: Session, kind: str) -> pd.DataFrame:
                                index=frame.index)
         out[header(column)] = values
     return out
-
-
-def export_file(session: Session, kind: str, path: str | Path) -> int:
-    table = export_table(session, kind)
-    table.to_csv(path, index=False)
-    return len(table)
 
 
 def _frame(session: Session, statement, columns: list[str]) -> pd.DataFrame:

@@ -24,10 +24,6 @@ class FormRejected(Exception):
         self.errors = {name: list(reasons) for name, reasons in errors.items() if reasons}
         super().__init__(f"{sum(len(v) for v in self.errors.values())} problem(s); nothing was saved")
 
-    def messages(self) -> list[str]:
-        return [f"{name}: {reason}" if name else reason for name, reasons in self.errors.items()
-                for reason in reasons]
-
 
 @dataclass(frozen=True)
 class Field:
