@@ -56,17 +56,21 @@ def main(ctx: click.Context, url: str | None) -> None:
 @click.pass_obj
 def init(db: Database) -> None:
     """Create or upgrade the database to the newest migration."""
+    from fleet.services.analysis import bring_up_to_date
     from fleet.services.register.records import ensure_limit_defaults
+    from fleet.services.writes import perform
 
     before = migrate.current_revision(db.engine)
     migrate.upgrade(db.engine)
-    with db.sessions.begin() as session:
-        added = ensure_limit_defaults(session)
+    added = perform(db.sessions, ensure_limit_defaults).value
     after = migrate.current_revision(db.engine)
     verb = "created" if before is None else ("upgraded" if before != after else "already current")
     click.echo(f"database {verb} at revision {after}: {_safe_url(db.url)}")
     if added:
         click.echo(f"stored default limits for {added} pump kinds")
+    summary = bring_up_to_date(db.sessions)  # an upgrade can leave stored analyses older than their data
+    if summary:
+        click.echo(summary.describe())
 
 
 @main.command("import")
