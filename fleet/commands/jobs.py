@@ -5,13 +5,8 @@ import json
 import textwrap
 
 import click
-from sqlalchemy import select
 
-from fleet.db.models import Pump, Route
-from fleet.io.parse import ImportRejected
 from fleet.safety import CAUTION_TITLE, CAUTIONS
-from fleet.status_words import STATUS_LABELS
-from fleet.units import CHOICES
 
 WIDTH = 100
 
@@ -21,6 +16,8 @@ def _wrap(text: str, indent: str = "      ") -> str:
 
 
 def _label(status: str | None) -> str:
+    from fleet.status_words import STATUS_LABELS
+
     return STATUS_LABELS.get(status, status or "-")
 
 
@@ -134,6 +131,9 @@ def plan_text(data: dict) -> str:
 # --- round -------------------------------------------------------------------------------------------------
 
 def _route_pumps(session, name: str) -> tuple[str, list[str]]:
+    from sqlalchemy import select
+
+    from fleet.db.models import Route
     from fleet.services.rounds import route_list
 
     routes = session.scalars(select(Route)).all()
@@ -160,6 +160,10 @@ def round_(db, route: str, taken_by: str, units_given: tuple[str, ...]) -> None:
     need a yes. Each pump is saved (and re-analysed) as soon as it is confirmed, so nothing typed is lost.
     Press Enter on an optional field to leave it blank; type 'skip' at the running hours to pass a pump.
     """
+    from sqlalchemy import select
+
+    from fleet.db.models import Pump
+    from fleet.io.parse import ImportRejected
     from fleet.services.rounds import check_reading, fields_for, reading_table, save_reading
     from fleet.timeutil import utcnow
 
@@ -207,6 +211,7 @@ def round_(db, route: str, taken_by: str, units_given: tuple[str, ...]) -> None:
 
 def _parse_units(given: tuple[str, ...]) -> dict[str, str]:
     from fleet.services.rounds import FORM_FIELDS
+    from fleet.units import CHOICES
 
     quantities = {f.name: f.quantity for f in FORM_FIELDS if f.quantity}
     chosen = {name: CHOICES[q][0] for name, q in quantities.items()}
