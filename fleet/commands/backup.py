@@ -104,7 +104,7 @@ def register(group: click.Group) -> None:
 
         target = sqlite_path(db.url)
         revision = check_fleet_file(file)
-        db.engine.dispose()  # our own pooled connections must not hold the old pages
+        db.close()  # our own pooled connections, if any, must not hold the old pages
         kept = None
         if target.exists():
             kept = target.with_name(f"{target.stem}.before-restore-{utcnow():%Y%m%d-%H%M%S}{target.suffix}")
