@@ -1,27 +1,50 @@
 """The fleet command: set up the database, move CSV files in and out, analyse, serve the dashboard."""
 
+# Only click and light fleet modules load here: `fleet --help` must start at once. Each command imports the
+# heavy layers it needs (SQLAlchemy, Alembic, pandas, the services) in its own body; a test checks this.
 import importlib
 import json
 import sys
+from functools import cached_property
 from pathlib import Path
 
 import click
 
-from fleet.db import migrate
-from fleet.db.engine import database_url, make_engine, make_session_factory
 from fleet.io.columns import KINDS
-from fleet.io.parse import ImportRejected
 
 
 class Database:
-    """The engine and session factory of the URL in use, opened once per command."""
+    """The URL in use; its engine and session factory open the first time a command asks for them."""
 
     def __init__(self, url: str | None = None):
-        self.url = database_url(url)
-        self.engine = make_engine(self.url)
-        self.sessions = make_session_factory(self.engine)
+        self.given_url = url
+
+    @cached_property
+    def url(self) -> str:
+        from fleet.db.engine import database_url
+
+        return database_url(self.given_url)
+
+    @cached_property
+    def engine(self):
+        from fleet.db.engine import make_engine
+
+        return make_engine(self.url)
+
+    @cached_property
+    def sessions(self):
+        from fleet.db.engine import make_session_factory
+
+        return make_session_factory(self.engine)
+
+    def close(self) -> None:
+        """Close pooled connections, if the command opened any."""
+        if "engine" in self.__dict__:
+            self.engine.dispose()
 
     def require_current(self) -> None:
+        from fleet.db import migrate
+
         current, head = migrate.current_revision(self.engine), migrate.head_revision()
         if current != head:
             state = "is empty" if current is None else f"is at revision {current}, the newest is {head}"
@@ -49,13 +72,14 @@ def _safe_url(url: str) -> str:
 @click.pass_context
 def main(ctx: click.Context, url: str | None) -> None:
     ctx.obj = Database(url)
-    ctx.call_on_close(ctx.obj.engine.dispose)  # close pooled connections when the command ends
+    ctx.call_on_close(ctx.obj.close)  # close pooled connections when the command ends
 
 
 @main.command()
 @click.pass_obj
 def init(db: Database) -> None:
     """Create or upgrade the database to the newest migration."""
+    from fleet.db import migrate
     from fleet.services.analysis import bring_up_to_date
     from fleet.services.register.records import ensure_limit_defaults
     from fleet.services.writes import perform
@@ -85,6 +109,7 @@ def import_(db: Database, kind: str, file: Path, no_analysis: bool) -> None:
     Headers may carry a unit in brackets, e.g. 'outlet_flow [gal/min]'. On any bad row nothing is written and
     every problem is listed with its row (the header is row 1), column and reason.
     """
+    from fleet.io.parse import ImportRejected
     from fleet.services.transfer.importing import import_file
     from fleet.services.writes import perform
 
@@ -195,6 +220,7 @@ def _serve(db: Database, host: str, port: int, threads: int) -> None:
 @click.pass_obj
 def demo(db: Database, no_serve: bool, seed: int, rebuild: bool, host: str, port: int) -> None:
     """Build an invented demo plant in the database and serve the dashboard."""
+    from fleet.db import migrate
     from seed_demo import build_demo, demo_present
 
     if rebuild:

@@ -1,5 +1,8 @@
 """Pump kinds, maintenance event kinds and other closed vocabularies shared by every layer."""
 
+# Roles of people who sign in, least to most trusted; each may do what the ones before it may.
+ROLES = ("viewer", "technician", "engineer")
+
 PUMP_KINDS: dict[str, str] = {
     "external_gear": "External gear",
     "internal_gear": "Internal gear",

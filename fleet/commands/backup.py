@@ -10,10 +10,7 @@ import sqlite3
 from pathlib import Path
 
 import click
-from alembic.script import ScriptDirectory
-from sqlalchemy.engine import make_url
 
-from fleet.db import migrate
 from fleet.timeutil import utcnow
 
 POSTGRESQL_POINTER = ("this database is not SQLite; back it up with PostgreSQL's own tools, e.g. "
@@ -27,6 +24,8 @@ class NotAFleetDatabase(click.ClickException):
 
 def sqlite_path(url: str) -> Path:
     """The file of a SQLite URL; refuses any other database with a pointer to pg_dump."""
+    from sqlalchemy.engine import make_url
+
     parsed = make_url(url)
     if parsed.get_backend_name() != "sqlite":
         raise click.ClickException(POSTGRESQL_POINTER)
@@ -44,6 +43,10 @@ def copy_database(source: Path, target: Path) -> None:
 
 
 def known_revisions() -> set[str]:
+    from alembic.script import ScriptDirectory
+
+    from fleet.db import migrate
+
     return {script.revision for script in ScriptDirectory.from_config(migrate.alembic_config()).walk_revisions()}
 
 
@@ -97,9 +100,11 @@ def register(group: click.Group) -> None:
     @click.pass_obj
     def restore(db, file: Path) -> None:
         """Replace the SQLite database with the backup FILE, keeping a copy of the current one beside it."""
+        from fleet.db import migrate
+
         target = sqlite_path(db.url)
         revision = check_fleet_file(file)
-        db.engine.dispose()  # our own pooled connections must not hold the old pages
+        db.close()  # our own pooled connections, if any, must not hold the old pages
         kept = None
         if target.exists():
             kept = target.with_name(f"{target.stem}.before-restore-{utcnow():%Y%m%d-%H%M%S}{target.suffix}")
@@ -148,6 +153,9 @@ def register_copy(group: click.Group) -> None:
     @click.pass_obj
     def copy(db, target_url: str) -> None:
         """Copy every row of this database into the empty database at URL (e.g. to move to PostgreSQL)."""
+        from sqlalchemy.engine import make_url
+
+        from fleet.db import migrate
         from fleet.db.engine import make_engine
 
         db.require_current()

@@ -6,10 +6,7 @@ import textwrap
 
 import click
 
-from fleet.io.parse import ImportRejected
 from fleet.safety import CAUTION_TITLE, CAUTIONS
-from fleet.status_words import STATUS_LABELS
-from fleet.units import CHOICES
 
 WIDTH = 100
 
@@ -19,6 +16,8 @@ def _wrap(text: str, indent: str = "      ") -> str:
 
 
 def _label(status: str | None) -> str:
+    from fleet.status_words import STATUS_LABELS
+
     return STATUS_LABELS.get(status, status or "-")
 
 
@@ -155,6 +154,7 @@ def round_(db, route: str, taken_by: str, units_given: tuple[str, ...]) -> None:
     Press Enter on an optional field to leave it blank; type 'skip' at the running hours to pass a pump.
     """
     from fleet.db.queries import pump_by_serial
+    from fleet.io.parse import ImportRejected
     from fleet.services.rounds import check_reading, fields_for, reading_table, save_readings
     from fleet.timeutil import utcnow
 
@@ -200,6 +200,7 @@ def round_(db, route: str, taken_by: str, units_given: tuple[str, ...]) -> None:
 
 def _parse_units(given: tuple[str, ...]) -> dict[str, str]:
     from fleet.services.rounds import FORM_FIELDS
+    from fleet.units import CHOICES
 
     quantities = {f.name: f.quantity for f in FORM_FIELDS if f.quantity}
     chosen = {name: CHOICES[q][0] for name, q in quantities.items()}

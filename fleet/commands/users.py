@@ -4,7 +4,7 @@ import sys
 
 import click
 
-from fleet.services import users
+from fleet.kinds import ROLES
 
 ROLE_HELP = "viewer (reads), technician (+ readings and lab results), engineer (+ register, limits, events, plan)"
 
@@ -27,11 +27,12 @@ def user_group() -> None:
 
 @user_group.command("add")
 @click.argument("name")
-@click.option("--role", required=True, type=click.Choice(users.ROLES), help=ROLE_HELP)
+@click.option("--role", required=True, type=click.Choice(ROLES), help=ROLE_HELP)
 @click.option("--password-stdin", is_flag=True, help="read the password from the first line of standard input")
 @click.pass_obj
 def add(db, name: str, role: str, password_stdin: bool) -> None:
     """Add user NAME with ROLE; the password is asked for twice (at least 10 characters)."""
+    from fleet.services import users
     from fleet.services.writes import perform
 
     db.require_current()
@@ -49,6 +50,7 @@ def add(db, name: str, role: str, password_stdin: bool) -> None:
 @click.pass_obj
 def password(db, name: str, password_stdin: bool) -> None:
     """Set a new password for NAME; the user's open sessions end."""
+    from fleet.services import users
     from fleet.services.writes import perform
 
     db.require_current()
@@ -64,6 +66,8 @@ def password(db, name: str, password_stdin: bool) -> None:
 @click.pass_obj
 def list_(db) -> None:
     """List the users and the API tokens (never a password or a token itself)."""
+    from fleet.services import users
+
     db.require_current()
     with db.sessions() as session:
         people, tokens = users.list_users(session), users.list_tokens(session)
@@ -84,6 +88,7 @@ def list_(db) -> None:
 @click.pass_obj
 def token(db, name: str, label: str) -> None:
     """Issue an API token for NAME and print it once (send it as 'Authorization: Bearer TOKEN')."""
+    from fleet.services import users
     from fleet.services.writes import perform
 
     db.require_current()
@@ -101,6 +106,7 @@ def token(db, name: str, label: str) -> None:
 @click.pass_obj
 def revoke(db, token_id: int) -> None:
     """Revoke API token TOKEN_ID (see 'fleet user list'); requests with it are refused from now on."""
+    from fleet.services import users
     from fleet.services.writes import perform
 
     db.require_current()

@@ -1,15 +1,14 @@
 """Alembic from code: the only way a fleet schema comes to exist."""
 
-from pathlib import Path
-
 from alembic import command
 from alembic.config import Config
 from alembic.runtime.migration import MigrationContext
 from alembic.script import ScriptDirectory
 from sqlalchemy import Engine
 
-# fleet runs from a checkout (pip install -e .): migrations/ sits beside the package.
-MIGRATIONS_DIR = Path(__file__).resolve().parents[2] / "migrations"
+from fleet.resources import folder
+
+MIGRATIONS_DIR = folder("migrations")
 
 
 def alembic_config(connection=None) -> Config:

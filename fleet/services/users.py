@@ -16,10 +16,9 @@ from sqlalchemy import func, select
 from sqlalchemy.orm import Session
 
 from fleet.db.models import ApiToken, User
+from fleet.kinds import ROLES  # each role can do everything the roles before it can
 from fleet.timeutil import utcnow
 
-# Each role can do everything the roles before it can.
-ROLES = ("viewer", "technician", "engineer")
 MIN_PASSWORD_LENGTH = 10
 TOKEN_PREFIX = "fleet_"
 NAME_PATTERN = re.compile(r"^[A-Za-z0-9][A-Za-z0-9._@-]{0,79}$")

@@ -1,14 +1,13 @@
 """The dashboard: a small Flask app over the same services the CLI uses."""
 
 import os
-from pathlib import Path
 
 from flask import Flask
 
 from fleet.db.engine import database_url, make_engine, make_session_factory
+from fleet.resources import folder
 
-# fleet runs from a checkout: the page templates live at the top level beside the package.
-TEMPLATES = Path(__file__).resolve().parents[2] / "templates"
+TEMPLATES = folder("templates")
 
 
 def create_app(test_config: dict | None = None) -> Flask:
