@@ -69,7 +69,7 @@ def test_units_doubts_and_errors_at_the_terminal(demo_db):
     lines = bad + fixed + ["y"] + ["skip"] * len(others)
     result = _run(demo_db, "round", ROUTE, "--unit", "outlet_pressure=psi", input="\n".join(lines) + "\n")
     assert result.exit_code == 0, result.output
-    assert "problem: speed: -5 must be above zero" in result.output
+    assert "problem: speed: -5 is below the lowest allowed value (10 rpm)" in result.output
     assert "check: Oil temperature 95.0 °C is outside" in result.output
     with demo_db.sessions() as session:
         stored = session.scalars(select(Reading).join(Pump).where(Pump.serial == first)

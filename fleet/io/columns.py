@@ -18,16 +18,24 @@ class Column:
     help: str = ""
     export_unit: str | None = None  # header unit written on export (defaults to the canonical label)
     integer: bool = False  # a whole number (a count of days or weeks, a grade)
+    default_unit: str | None = None  # the unit of a bare number when it is not the canonical one (stroke: %)
 
 
 def _num(name, quantity, help_, required=False, min_=None, max_=None, positive=False, export_unit=None,
-         integer=False):
-    return Column(name, "number", quantity, required, min_, max_, positive, help_, export_unit, integer)
+         integer=False, default_unit=None):
+    return Column(name, "number", quantity, required, min_, max_, positive, help_, export_unit, integer,
+                  default_unit)
 
 
 # Bounds shared by several kinds, so a form and a file refuse the same values.
 OIL_TEMP_C = {"min_": -40, "max_": 150}  # hydraulic oil in service, cold start to far past any limit
 ETA_V_LIMIT = {"min_": 0.3, "max_": 0.999}
+ISO_VG_MAX = 3200  # the thickest ISO 3448 grade
+DAYS_MAX, WEEKS_MAX = 3650, 520  # ten years between readings, ten years of planning
+# A reading is of a running pump under load: below these the referral to rated pressure and speed would multiply
+# gauge and tachometer error by hundreds (slip scales with p_rated / p). Our choice, stated in README.
+READING_PRESSURE_MIN_BAR = 1.0
+READING_SPEED_MIN_RPM = 10.0
 
 
 SITES = (
@@ -55,7 +63,7 @@ PUMPS = (
     _num("reference_temp", "temperature", "oil temperature readings are referred to (default 50 degC)",
          min_=0, max_=120),
     Column("oil", "text", required=True, help="oil name as filled in the machine's reservoir"),
-    _num("oil_grade", None, "ISO VG grade number", positive=True, integer=True),
+    _num("oil_grade", None, "ISO VG grade number", positive=True, integer=True, max_=ISO_VG_MAX),
     _num("viscosity_40", "viscosity", "oil data sheet viscosity at 40 degC", True, positive=True),
     _num("viscosity_100", "viscosity", "oil data sheet viscosity at 100 degC", True, positive=True),
     _num("density_15", "density", "oil density at 15 degC (default 0.87 kg/L)", min_=0.6, max_=1.3),
@@ -65,8 +73,9 @@ PUMPS = (
     _num("oil_temp_min", "temperature", "oil temperature lower limit (blank = kind default)", **OIL_TEMP_C),
     Column("cleanliness_target", "iso4406", help="ISO 4406 target code, e.g. 18/16/13 (blank = kind default)"),
     _num("reading_interval_days", None, "days between readings (blank = kind default)", positive=True,
-         integer=True),
-    _num("planning_horizon_weeks", None, "planning horizon (blank = kind default)", positive=True, integer=True),
+         integer=True, max_=DAYS_MAX),
+    _num("planning_horizon_weeks", None, "planning horizon (blank = kind default)", positive=True, integer=True,
+         max_=WEEKS_MAX),
     _num("overhaul_cost", None, "expected cost of an overhaul, site currency", min_=0),
     Column("installed_at", "datetime", help="when the pump went into this position (default: now)"),
     _num("installed_hours", "hours", "pump hour meter then", min_=0),
@@ -86,13 +95,14 @@ READINGS = (
     Column("pump", "text", required=True),
     Column("taken_at", "datetime", required=True),
     _num("hours", "hours", "pump running hours (hour meter)", True, min_=0),
-    _num("outlet_pressure", "pressure", "outlet pressure (gauge)", True, min_=0),
-    _num("speed", "speed", "shaft speed", True, positive=True),
+    _num("outlet_pressure", "pressure", "outlet pressure (gauge) of the running pump", True,
+         min_=READING_PRESSURE_MIN_BAR),
+    _num("speed", "speed", "shaft speed of the running pump", True, min_=READING_SPEED_MIN_RPM),
     _num("outlet_flow", "flow", "outlet flow (blank if not measured)", min_=0),
     _num("case_drain_flow", "flow", "case drain flow (blank if not measured)", min_=0),
     _num("oil_temp", "temperature", "oil temperature", True, **OIL_TEMP_C),
-    _num("stroke", "fraction", "displacement setting of a variable pump (default unit %; blank = full)",
-         min_=0, max_=1.0, export_unit="%"),
+    _num("stroke", "fraction", "displacement setting of a variable pump, in % unless the header says otherwise "
+         "(10 to 100; blank = full)", min_=0.1, max_=1.0, export_unit="%", default_unit="%"),
     Column("taken_by", "text"),
     Column("note", "text"),
     Column("source", "source", help="form, import or api (default import)"),
@@ -146,7 +156,7 @@ KINDS: dict[str, tuple[Column, ...]] = {
 # parser and the same words as a file.
 OILS = (
     Column("name", "text", required=True, help="oil name as filled"),
-    _num("iso_vg", None, "ISO VG grade number", positive=True, integer=True),
+    _num("iso_vg", None, "ISO VG grade number", positive=True, integer=True, max_=ISO_VG_MAX),
     _num("viscosity_40", "viscosity", "data sheet viscosity at 40 degC", True, positive=True),
     _num("viscosity_100", "viscosity", "data sheet viscosity at 100 degC", True, positive=True),
     _num("density_15", "density", "density at 15 degC (default 0.87 kg/L)", min_=0.6, max_=1.3),
@@ -158,8 +168,8 @@ LIMITS = (
     _num("oil_temp_max", "temperature", "oil temperature upper limit", True, **OIL_TEMP_C),
     _num("oil_temp_min", "temperature", "oil temperature lower limit", True, **OIL_TEMP_C),
     Column("cleanliness_target", "iso4406", required=True, help="ISO 4406 target code"),
-    _num("reading_interval_days", None, "days between readings", True, positive=True, integer=True),
-    _num("planning_horizon_weeks", None, "planning horizon", True, positive=True, integer=True),
+    _num("reading_interval_days", None, "days between readings", True, positive=True, integer=True, max_=DAYS_MAX),
+    _num("planning_horizon_weeks", None, "planning horizon", True, positive=True, integer=True, max_=WEEKS_MAX),
     Column("source", "text", required=True, help="where these values come from"),
 )
 

@@ -21,6 +21,11 @@ MAX_MAGNITUDE = 1e12
 # The longest text each column holds in the database (PostgreSQL refuses longer; SQLite would keep it silently).
 TEXT_LENGTHS = {"currency": 8, "note": None, "source": None}
 DEFAULT_TEXT_LENGTH = 120
+# The dates fleet keeps: nothing in a plant's records is older than 1970 or planned past 2100. A moment that must
+# have happened already (a reading, an installation, a sample, a maintenance event) is also no later than now
+# (fleet.io.rules.not_in_future).
+EARLIEST, LATEST = pd.Timestamp("1970-01-01"), pd.Timestamp("2100-12-31 23:59:59")
+ISO_TIME = r"\d{4}-\d{2}-\d{2}(?:[T ]\d{2}:\d{2}(?::\d{2}(?:\.\d{1,9})?)?)?(?:Z|[+-]\d{2}:?\d{2})?"
 
 
 @dataclass(frozen=True, order=True)
@@ -121,6 +126,82 @@ def parse_cell(spec: Column, text, unit: str | None = None) -> tuple[object, lis
     return (value.item() if isinstance(value, np.generic) else value), []
 
 
+def _shown(cell) -> str:
+    """A cell as an error message quotes it: cut short, so a 400-digit number does not fill the report."""
+    text = str(cell)
+    return text if len(text) <= 40 else text[:37] + "..."
+
+
+def _not_utf8(cell: str) -> bool:
+    try:
+        cell.encode("utf-8")
+    except UnicodeEncodeError:
+        return True
+    return False
+
+
+def _parse_numbers(spec: Column, cells: pd.Series, blank: pd.Series, unit: str | None, flag) -> pd.Series:
+    # Cell by cell to float: a 400-digit integer becomes inf (refused below), never an OverflowError.
+    numbers = pd.Series([_to_float(c) for c in cells], index=cells.index, dtype=float)
+    flag(~blank & numbers.isna(), lambda cell: f"'{cell}' is not a number")
+    unit = unit if unit is not None else spec.default_unit
+    # 'inf' and '1e999' parse as numbers; no reading or register value is infinite, or near it.
+    with np.errstate(over="ignore", invalid="ignore"):
+        values = pd.Series(units.to_canonical(numbers.to_numpy(), unit, spec.quantity), index=cells.index) \
+            if spec.quantity else numbers
+    huge = ~np.isfinite(values) | (values.abs() > MAX_MAGNITUDE)
+    flag(~blank & numbers.notna() & huge, lambda cell: f"{cell} is not a finite number of a sensible size "
+         f"(at most {MAX_MAGNITUDE:g} in canonical units)")
+    values = values.mask(huge)
+
+    def bound(value: float) -> str:
+        """A bound in the unit the number was given in (a stroke typed in % is told its bounds in %)."""
+        if spec.quantity and unit and not units.is_canonical(unit, spec.quantity):
+            return f"{float(units.from_canonical([value], spec.quantity, unit)[0]):g} {unit}"
+        return f"{value:g} {units.LABELS.get(spec.quantity or '', '')}".rstrip()
+
+    with np.errstate(invalid="ignore"):
+        if spec.positive:
+            flag(values <= 0, lambda cell: f"{cell} must be above zero")
+        if spec.min is not None:
+            flag(values < spec.min - 1e-9, lambda cell: f"{cell} is below the lowest allowed value "
+                 f"({bound(spec.min)})")
+        if spec.max is not None:
+            flag(values > spec.max + 1e-9, lambda cell: f"{cell} is above the highest allowed value "
+                 f"({bound(spec.max)})")
+        if spec.integer:
+            flag(values.notna() & (values != values.round()), lambda cell: f"{cell} must be a whole number")
+    return values
+
+
+def _to_float(cell) -> float:
+    if cell is None or cell is pd.NA:
+        return np.nan
+    try:
+        return float(cell)
+    except (TypeError, ValueError):
+        return np.nan
+    except OverflowError:
+        return np.inf
+
+
+def _parse_times(cells: pd.Series, blank: pd.Series, flag) -> pd.Series:
+    """ISO 8601 text only ('now' or '20260101' are not dates here), with an offset converted to UTC, to the
+    microsecond the database keeps, between EARLIEST and LATEST."""
+    iso = cells.str.fullmatch(ISO_TIME).fillna(False).astype(bool)
+    flag(~blank & ~iso, lambda cell: f"'{cell}' is not a date (write YYYY-MM-DD or YYYY-MM-DD HH:MM)")
+    # Years far outside the window are refused before pandas, whose times end in 1677 and 2262.
+    far = iso & ~cells.str[:4].between(f"{EARLIEST.year - 1}", f"{LATEST.year + 1}").fillna(False).astype(bool)
+    text = cells.where(iso & ~far)
+    stamps = pd.to_datetime(text, errors="coerce", format="ISO8601", utc=True)
+    flag(~blank & iso & ~far & stamps.isna(), lambda cell: f"'{cell}' is not a date (write YYYY-MM-DD or "
+         "YYYY-MM-DD HH:MM)")
+    stamps = stamps.dt.tz_localize(None).dt.floor("us")
+    outside = far | (stamps < EARLIEST) | (stamps > LATEST)
+    flag(outside, lambda cell: f"{cell} is outside the dates fleet keeps ({EARLIEST:%Y-%m-%d} to {LATEST:%Y-%m-%d})")
+    return stamps.mask(outside)
+
+
 def _parse_column(spec: Column, raw: pd.Series, unit: str | None) -> tuple[pd.Series, list[Problem]]:
     cells = _cells(raw)
     blank = cells.isna()
@@ -129,45 +210,23 @@ def _parse_column(spec: Column, raw: pd.Series, unit: str | None) -> tuple[pd.Se
 
     def flag(mask, reason_for):
         for position in np.flatnonzero(np.asarray(mask)):
-            problems.append(Problem(int(rows[position]), spec.name, reason_for(cells.iloc[position])))
+            problems.append(Problem(int(rows[position]), spec.name, reason_for(_shown(cells.iloc[position]))))
 
     if spec.required:
         flag(blank, lambda _cell: "a value is required")
-    # A NUL character is no part of any value (PostgreSQL refuses it in text, even in a query).
+    # A NUL character is no part of any value (PostgreSQL refuses it in text, even in a query), and text that
+    # cannot be written as UTF-8 (an unpaired surrogate from a broken client) cannot be stored or shown.
     nul = cells.str.contains("\x00", regex=False).fillna(False).astype(bool)
     flag(nul, lambda _cell: "contains a NUL character (0x00)")
-    cells, blank = cells.mask(nul), blank | nul
+    broken = cells.map(_not_utf8, na_action="ignore").fillna(False).astype(bool) & ~nul
+    flag(broken, lambda _cell: "contains characters that cannot be stored (not valid Unicode text)")
+    cells, blank = cells.mask(nul | broken), blank | nul | broken
 
     if spec.type == "number":
-        numbers = pd.to_numeric(cells, errors="coerce").astype(float)
-        flag(~blank & numbers.isna(), lambda cell: f"'{cell}' is not a number")
-        # 'inf' and '1e999' parse as numbers; no reading or register value is infinite, or near it.
-        with np.errstate(over="ignore", invalid="ignore"):
-            values = pd.Series(units.to_canonical(numbers.to_numpy(), unit, spec.quantity), index=cells.index) \
-                if spec.quantity else numbers
-        huge = ~np.isfinite(values) | (values.abs() > MAX_MAGNITUDE)
-        flag(~blank & numbers.notna() & huge, lambda cell: f"{cell} is not a finite number of a sensible size "
-             f"(at most {MAX_MAGNITUDE:g} in canonical units)")
-        values = values.mask(huge)
-        label = units.LABELS.get(spec.quantity or "", "")
-        with np.errstate(invalid="ignore"):
-            if spec.positive:
-                flag(values <= 0, lambda cell: f"{cell} must be above zero")
-            if spec.min is not None:
-                flag(values < spec.min - 1e-9, lambda cell: f"{cell} is below the lowest allowed value "
-                     f"({spec.min:g} {label})".rstrip())
-            if spec.max is not None:
-                flag(values > spec.max + 1e-9, lambda cell: f"{cell} is above the highest allowed value "
-                     f"({spec.max:g} {label})".rstrip())
-            if spec.integer:
-                flag(values.notna() & (values != values.round()), lambda cell: f"{cell} must be a whole number")
-        return values, problems
+        return _parse_numbers(spec, cells, blank, unit, flag), problems
 
     if spec.type == "datetime":
-        stamps = pd.to_datetime(cells, errors="coerce", format="ISO8601", utc=True)
-        flag(~blank & stamps.isna(), lambda cell: f"'{cell}' is not a date (write YYYY-MM-DD or "
-             "YYYY-MM-DD HH:MM)")
-        return stamps.dt.tz_localize(None), problems
+        return _parse_times(cells, blank, flag), problems
 
     if spec.type == "bool":
         lowered = cells.str.lower()

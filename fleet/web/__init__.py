@@ -31,8 +31,9 @@ def create_app(test_config: dict | None = None) -> Flask:
     app.extensions["fleet_db"] = make_session_factory(engine)
     app.extensions["fleet_engine"] = engine
 
-    from fleet.web import assets, auth, db, filters, service_list
+    from fleet.web import assets, auth, db, edge, filters, service_list
 
+    edge.init_app(app)  # first of all: the size limit runs before anything reads the body
     db.init_app(app)
     auth.init_app(app)  # first: its guard runs before every view
     app.before_request(db.analysis_up_to_date)  # after the guard: only a signed-in read refreshes

@@ -9,6 +9,7 @@ Posting needs a technician or engineer: an API token (``Authorization: Bearer fl
 ``fleet user token``) or a signed-in browser session that sends its CSRF token in an ``X-CSRFToken`` header.
 """
 
+import json
 import math
 
 import pandas as pd
@@ -16,7 +17,7 @@ from flask import Blueprint, jsonify, request
 
 from fleet import units
 from fleet.io.columns import READINGS
-from fleet.io.parse import ImportRejected, Problem
+from fleet.io.parse import MAX_MAGNITUDE, ImportRejected, Problem
 from fleet.services.analysis import statuses
 from fleet.services.rounds import stored_readings
 from fleet.services.transfer.importing import import_table
@@ -30,6 +31,7 @@ bp = Blueprint("api", __name__, url_prefix="/api")
 # 'source' is the server's to set: everything posted here is an API reading.
 FIELDS = {column.name: column for column in READINGS if column.name != "source"}
 MAX_ITEMS = 5000
+MAX_DEPTH = 4  # a list of reading objects, a value with its unit, the number: 4 levels
 
 
 def _problems_response(problems: list[Problem], status: int = 422):
@@ -43,6 +45,10 @@ def _cell(value, item_no: int, name: str, problems: list[Problem]) -> str:
         return ""
     if isinstance(value, bool):
         problems.append(Problem(item_no, name, "true/false is not a value of this field"))
+        return ""
+    if isinstance(value, int) and abs(value) > MAX_MAGNITUDE:  # 10**400 has no float; name it, don't overflow
+        problems.append(Problem(item_no, name, f"a number of {len(str(abs(value)))} digits is not a finite number "
+                                f"of a sensible size (at most {MAX_MAGNITUDE:g} in canonical units)"))
         return ""
     if isinstance(value, int | float):
         if not math.isfinite(value):
@@ -76,7 +82,8 @@ def readings_table(items: list) -> tuple[pd.DataFrame, list[Problem]]:
         else:
             for name, value in item.items():
                 if name not in FIELDS:
-                    problems.append(Problem(item_no, str(name), f"not a readings field (fields: {', '.join(FIELDS)})"))
+                    shown = str(name).encode("utf-8", "backslashreplace").decode("utf-8")[:40]
+                    problems.append(Problem(item_no, shown, f"not a readings field (fields: {', '.join(FIELDS)})"))
                     continue
                 unit = None
                 if isinstance(value, dict):
@@ -130,13 +137,36 @@ def _to_canonical(text: str, unit: str | None, quantity: str | None) -> str:
         return text  # not a number: the importer names it
 
 
+def _json_body():
+    """(the posted JSON, None) or (None, why it is refused): not JSON, not UTF-8, or nested deeper than a list of
+    readings can be (Python's parser gives up on very deep nesting with a RecursionError)."""
+    if not request.content_length and not request.get_data(cache=True):
+        return None, "the body is empty: send one reading object or a list of them as JSON"
+    try:
+        body = json.loads(request.get_data(cache=True).decode("utf-8"))
+    except RecursionError:
+        return None, "the JSON is nested too deeply: send one reading object or a list of them"
+    except (ValueError, UnicodeDecodeError):
+        return None, "the body must be JSON (UTF-8): one reading object or a list of them"
+    if _depth(body) > MAX_DEPTH:
+        return None, f"the JSON is nested deeper than a list of readings ({MAX_DEPTH} levels) can be"
+    return body, None
+
+
+def _depth(value, level: int = 1) -> int:
+    if isinstance(value, dict):
+        return max((_depth(v, level + 1) for v in value.values()), default=level)
+    if isinstance(value, list):
+        return max((_depth(v, level + 1) for v in value[:MAX_ITEMS + 1]), default=level)
+    return level
+
+
 @bp.post("/readings")
 @requires("technician")
 def post_readings():
-    body = request.get_json(silent=True)
-    if body is None:
-        return _problems_response([Problem(0, "", "the body must be JSON: one reading object or a list of them")],
-                                  400)
+    body, problem = _json_body()
+    if problem:
+        return _problems_response([Problem(0, "", problem)], 400)
     items = body if isinstance(body, list) else [body]
     if not items:
         return _problems_response([Problem(0, "", "the list holds no readings")])
