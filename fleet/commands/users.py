@@ -62,6 +62,34 @@ def password(db, name: str, password_stdin: bool) -> None:
     click.echo(f"password of {name} changed")
 
 
+@user_group.command("disable")
+@click.argument("name")
+@click.pass_obj
+def disable(db, name: str) -> None:
+    """Disable NAME: their open sessions end now and their API tokens stop working (kept for the record)."""
+    _set_active(db, name, False)
+
+
+@user_group.command("enable")
+@click.argument("name")
+@click.pass_obj
+def enable(db, name: str) -> None:
+    """Let a disabled NAME sign in again (with the password they had)."""
+    _set_active(db, name, True)
+
+
+def _set_active(db, name: str, active: bool) -> None:
+    from fleet.services import users
+    from fleet.services.writes import perform
+
+    db.require_current()
+    try:
+        perform(db.sessions, lambda session: users.set_active(session, name, active))
+    except users.UserError as error:
+        raise click.ClickException(str(error)) from error
+    click.echo(f"user {name} {'enabled' if active else 'disabled; their sessions ended'}")
+
+
 @user_group.command("list")
 @click.pass_obj
 def list_(db) -> None:

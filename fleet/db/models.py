@@ -370,6 +370,19 @@ class ApiToken(Base):
     revoked_at: Mapped[datetime | None] = mapped_column(DateTime)
 
 
+class UserSession(Base):
+    """One signed-in browser: its cookie carries the key, the database its hash. Ending the row (sign-out, a new
+    password, a disabled user) ends the session on the server, whatever copy of the cookie exists."""
+
+    __tablename__ = "user_session"
+
+    id: Mapped[int] = mapped_column(primary_key=True)
+    user_id: Mapped[int] = mapped_column(ForeignKey("app_user.id", ondelete="CASCADE"), index=True)
+    key_hash: Mapped[str] = mapped_column(String(64), unique=True)
+    started_at: Mapped[datetime] = mapped_column(DateTime)
+    ended_at: Mapped[datetime | None] = mapped_column(DateTime)
+
+
 class AuditRecord(Base):
     """The previous values of a record that was edited or deleted, who did it and when; a deleted record
     can be restored from here."""

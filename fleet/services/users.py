@@ -9,17 +9,22 @@ import hashlib
 import re
 import secrets
 from dataclasses import dataclass
+from datetime import datetime, timedelta
 
 from argon2 import PasswordHasher
 from argon2.exceptions import InvalidHashError, VerificationError
-from sqlalchemy import func, select
+from sqlalchemy import func, select, update
 from sqlalchemy.orm import Session
 
-from fleet.db.models import ApiToken, User
+from fleet.db.models import ApiToken, AuditRecord, User, UserSession
 from fleet.kinds import ROLES  # each role can do everything the roles before it can
 from fleet.timeutil import utcnow
 
 MIN_PASSWORD_LENGTH = 10
+SESSION_HOURS = 12  # a shift; a session older than this is over whatever its cookie says
+# Wrong passwords for one name: the first few cost nothing, then each attempt waits twice as long as the one
+# before, up to a minute. A delay, not a lock-out: no one can shut a colleague out for longer than that.
+FREE_FAILURES, MAX_WAIT_S, FAILURE_WINDOW = 3, 60.0, timedelta(minutes=15)
 TOKEN_PREFIX = "fleet_"
 NAME_PATTERN = re.compile(r"^[A-Za-z0-9][A-Za-z0-9._@-]{0,79}$")
 
@@ -81,13 +86,95 @@ def create_user(session: Session, name: str, role: str, password: str) -> User:
 
 
 def set_password(session: Session, name: str, password: str) -> User:
+    """A new password; every session signed in with the old one ends."""
     user = find_user(session, name)
     if user is None:
         raise UserError(f"no user '{name}'")
     _check_password(password)
     user.password_hash = _hasher.hash(password)
+    end_sessions(session, user.id)
     session.flush()
     return user
+
+
+def set_active(session: Session, name: str, active: bool) -> User:
+    """Enable or disable a user; disabling ends their sessions, and their API tokens stop working."""
+    user = find_user(session, name)
+    if user is None:
+        raise UserError(f"no user '{name}'")
+    user.active = active
+    if not active:
+        end_sessions(session, user.id)
+    session.flush()
+    return user
+
+
+# --- sessions ------------------------------------------------------------------------------------------------
+
+def start_session(session: Session, user_id: int) -> str:
+    """A new signed-in session of the user; returns its key, which only the browser's cookie keeps."""
+    key = secrets.token_urlsafe(32)
+    session.add(UserSession(user_id=user_id, key_hash=token_hash(key), started_at=utcnow()))
+    session.flush()
+    return key
+
+
+def session_user(session: Session, user_id: int, key: str, now: datetime | None = None) -> User | None:
+    """The active user whose live session ``key`` is, else None (ended, expired, another user's, or unknown)."""
+    now = now or utcnow()
+    row = session.execute(select(UserSession, User).join(User, User.id == UserSession.user_id)
+                          .where(UserSession.key_hash == token_hash(key))).first()
+    if row is None:
+        return None
+    stay, user = row
+    if stay.user_id != user_id or stay.ended_at is not None or not user.active or \
+            stay.started_at < now - timedelta(hours=SESSION_HOURS):
+        return None
+    return user
+
+
+def end_session(session: Session, key: str) -> None:
+    session.execute(update(UserSession).where(UserSession.key_hash == token_hash(key),
+                                              UserSession.ended_at.is_(None)).values(ended_at=utcnow()))
+
+
+def end_sessions(session: Session, user_id: int) -> None:
+    session.execute(update(UserSession).where(UserSession.user_id == user_id, UserSession.ended_at.is_(None))
+                    .values(ended_at=utcnow()))
+
+
+# --- failed sign-ins -----------------------------------------------------------------------------------------
+
+FAILED = "sign_in_failed"
+
+
+def record_failure(session: Session, name: str, address: str | None) -> None:
+    """Keep a failed sign-in in the audit trail: the name tried, from where (never the password)."""
+    user = find_user(session, name)
+    session.add(AuditRecord(at=utcnow(), actor=f"sign-in from {address or 'unknown address'}"[:120], action=FAILED,
+                            table_name=User.__tablename__, row_id=user.id if user else 0, before=None,
+                            after={"name": name[:80]}))
+    session.flush()
+
+
+def sign_in_wait_s(session: Session, name: str, now: datetime | None = None) -> float:
+    """Seconds before the next sign-in attempt for ``name`` may be tried (0: now).
+
+    Counts the failures for the name in the last quarter hour since its last successful sign-in."""
+    now = now or utcnow()
+    since = now - FAILURE_WINDOW
+    user = find_user(session, name)
+    if user is not None and user.last_login_at is not None:
+        since = max(since, user.last_login_at)
+    failures = session.execute(
+        select(func.count(), func.max(AuditRecord.at)).where(
+            AuditRecord.action == FAILED, AuditRecord.table_name == User.__tablename__,
+            AuditRecord.after["name"].as_string() == name[:80], AuditRecord.at > since)).one()
+    count, last = failures
+    if count < FREE_FAILURES or last is None:
+        return 0.0
+    wait = min(2.0 ** (count - FREE_FAILURES + 1), MAX_WAIT_S)
+    return max(0.0, wait - (now - last).total_seconds())
 
 
 def verify_password(session: Session, name: str, password: str) -> User | None:

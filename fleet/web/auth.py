@@ -13,7 +13,7 @@ Views then say which role they need with ``@requires(role)``. A refused request 
 signed in (a page a browser asked for redirects to /login?next=...), 403 for the wrong role or a bad CSRF token.
 """
 
-import hashlib
+import math
 from collections.abc import Callable
 from dataclasses import dataclass
 from datetime import timedelta
@@ -27,6 +27,7 @@ from flask import (
     current_app,
     g,
     jsonify,
+    make_response,
     redirect,
     render_template,
     request,
@@ -66,7 +67,7 @@ class SignedInUser:
     user_id: int
     name: str
     role: str
-    fingerprint: str  # of the password hash: a new password ends the sessions signed in with the old one
+    session_key: str | None = None  # of a signed-in browser (fleet.services.users.start_session)
     token_id: int | None = None  # set when the request signed in by API token
 
     is_authenticated = True
@@ -74,27 +75,25 @@ class SignedInUser:
     is_anonymous = False
 
     def get_id(self) -> str:
-        return f"{self.user_id}.{self.fingerprint}"
+        return f"{self.user_id}.{self.session_key}"
 
     def can(self, role: str) -> bool:
         return users.role_at_least(self.role, role)
 
     @classmethod
-    def of(cls, user: "User", token_id: int | None = None) -> "SignedInUser":
-        fingerprint = hashlib.sha256(user.password_hash.encode("utf-8")).hexdigest()[:16]
-        return cls(user.id, user.name, user.role, fingerprint, token_id)
+    def of(cls, user: "User", session_key: str | None = None, token_id: int | None = None) -> "SignedInUser":
+        return cls(user.id, user.name, user.role, session_key, token_id)
 
 
 @login_manager.user_loader
 def _load_user(user_id: str) -> SignedInUser | None:
-    number, _, fingerprint = user_id.partition(".")
-    if not number.isdigit():
+    # Checked against the database on every request: sign-out, a new password or a disabled user ends the
+    # session on the server, and a copied cookie stops working with it.
+    number, _, key = user_id.partition(".")
+    if not number.isdigit() or not key:
         return None
-    user = users.active_user(session(), int(number))
-    if user is None:
-        return None
-    signed_in = SignedInUser.of(user)
-    return signed_in if signed_in.fingerprint == fingerprint else None
+    user = users.session_user(session(), int(number), key)
+    return None if user is None else SignedInUser.of(user, session_key=key)
 
 
 def signed_in_user() -> SignedInUser | None:
@@ -229,12 +228,24 @@ def login():
         return render_template("auth/login.html", next=next_url, name="", error=None)
     name = request.form.get("name", "").strip()
     password = request.form.get("password", "")
-    user = users.verify_password(session(), name, password)
-    if user is None:
+    wait = users.sign_in_wait_s(session(), name)
+    if wait > 0:  # no password is checked while a name waits: its delay gives nothing away
+        response = make_response(render_template(
+            "auth/login.html", next=next_url, name=name,
+            error=f"Too many wrong passwords for this name: try again in {math.ceil(wait)} s."), 429)
+        response.headers["Retry-After"] = str(math.ceil(wait))
+        return response
+    account = users.verify_password(session(), name, password)
+    if account is None:
+        perform(sessions(), lambda db: users.record_failure(db, name, request.remote_addr))
         return render_template("auth/login.html", next=next_url, name=name,
                                error="That name and password do not match an active user."), 401
-    user = perform(sessions(), lambda db: users.record_sign_in(db, user.id, password)).value
-    signed_in = SignedInUser.of(user)
+
+    def sign_in(db):
+        return users.record_sign_in(db, account.id, password), users.start_session(db, account.id)
+
+    user, key = perform(sessions(), sign_in).value
+    signed_in = SignedInUser.of(user, session_key=key)
     cookie_session.clear()  # a new session on sign-in: a cookie planted before cannot ride along
     cookie_session.permanent = True
     login_user(signed_in)
@@ -243,6 +254,9 @@ def login():
 
 @bp.post("/logout")
 def logout():
+    user = signed_in_user()
+    if user is not None and user.session_key:
+        perform(sessions(), lambda db: users.end_session(db, user.session_key))
     logout_user()
     cookie_session.clear()
     return redirect(url_for("auth.login"))
