@@ -1,0 +1,253 @@
+"""Wear laws: the shapes leakage growth may take within a service interval, fitted for every interval at once
+and weighed against each other by small-sample AIC (AICc).
+
+- exponential: ln q = a + b h. Leakage grows with the cube of the gap, so wear that opens the gap in
+  proportion to itself grows it exponentially; the physics default.
+- linear: q = a + b h. Steady abrasive wear (dirty oil) opens the gap at a constant rate.
+- power: q = a + b (h / H)^p, H the interval's latest hours. p > 1 accelerates (a damaged part), p < 1
+  decelerates (run-in after an overhaul). p is not solved for: each exponent of a fixed grid is a member of
+  its own, a straight line in (h / H)^p, so the spread over p carries the exponent's uncertainty into the
+  forecast and every member is fitted by the same grouped robust line fit.
+
+q is a referred flow (slip or case drain, L/min) and h the running hours in the interval. Weights: each law's
+fit is scored on the same data scale (q, residuals divided by the error model's sigma, Huber-clipped at a
+common robust scale so one outlier does not decide the law), AICc = n ln(D / n) + 2K + 2K(K + 1) / (n - K - 1)
+with K counting the scale too (Burnham & Anderson 2002, sec. 2.4), weights exp(-delta / 2) normalised. Within
+the power law its exponents are weighed by their likelihood alone (same K). A law needs n > K + 1 readings
+to be scored; with fewer than that for every law, the exponential law stands alone.
+"""
+
+from dataclasses import dataclass, field
+
+import numpy as np
+import pandas as pd
+from scipy import special
+
+from fleet.trend.linear import t_quantile
+from fleet.trend.robust import fit_reweighted, robust_scale
+from fleet.trend.settings import AnalysisSettings
+
+LAWS = ("exponential", "linear", "power")
+LAW_PARAMS = {"exponential": 3, "linear": 3, "power": 4}  # a, b, scale (+ the exponent p)
+# 0.35 .. 4 in even steps on a log scale; p = 1 is the linear law itself.
+POWER_EXPONENTS = tuple(2.0 ** (k / 2.0) for k in (-3, -2, -1, 1, 2, 3, 4))
+
+
+@dataclass(frozen=True)
+class Member:
+    """One fitted line of the model set: a law, and for the power law one exponent."""
+
+    name: str
+    law: str
+    log_space: bool  # the line is fitted to ln q (else to q)
+    power: float  # the line's x is (h / H)^power for the power law; plain hours otherwise
+    n_params: int
+
+
+MEMBERS = (
+    Member("exponential", "exponential", True, 1.0, 2),
+    Member("linear", "linear", False, 1.0, 2),
+    *(Member(f"power_p{round(100 * p):03d}", "power", False, p, 3) for p in POWER_EXPONENTS),
+)
+FIELDS = ("a", "b", "var_a", "var_b", "cov_ab", "dof", "weight")
+
+
+@dataclass
+class LawFits:
+    """Per group (rows) and member (columns of MEMBERS) the line parameters and the model weight."""
+
+    a: np.ndarray
+    b: np.ndarray
+    var_a: np.ndarray
+    var_b: np.ndarray
+    cov_ab: np.ndarray
+    dof: np.ndarray
+    weight: np.ndarray  # sums to 1 over the members of a fitted group; 0 where a member is not usable
+    hours_scale: np.ndarray  # H of the power law, per group
+    scale: np.ndarray | None = None  # robust residual scale per group and member (kept in memory only)
+    n_points: np.ndarray | None = None  # readings fitted per group
+    law_score: np.ndarray | None = None  # AICc per group and law (columns as LAWS), NaN where not scored
+    power_score: np.ndarray | None = None  # n ln(D / n) per group and power exponent, NaN where not scored
+    usable: np.ndarray | None = None  # per group and member: the line could be fitted
+    _t_ratio: dict = field(default_factory=dict, repr=False)
+
+    def t_ratio(self, confidence: float) -> np.ndarray:
+        """z / t per group and member at the two-sided level: Phi(T z / t) then has the member's t quantiles
+        there (computed once; t quantiles are slow)."""
+        if confidence not in self._t_ratio:
+            self._t_ratio[confidence] = special.ndtri(0.5 + confidence / 2.0) / t_quantile(confidence, self.dof)
+        return self._t_ratio[confidence]
+
+    def weigh(self, law_score: np.ndarray, power_score: np.ndarray) -> None:
+        """Set the member weights from scores per group: AICc per law, and the fit term n ln(D / n) per power
+        exponent (same K, so the likelihood alone weighs them); this trend's own, or summed with another's."""
+        law_w = akaike_weights(law_score)
+        within_power = akaike_weights(power_score)
+        is_power = np.array([m.law == "power" for m in MEMBERS])
+        weight = np.zeros(self.a.shape)
+        weight[:, 0], weight[:, 1] = law_w[:, 0], law_w[:, 1]
+        weight[:, is_power] = law_w[:, [2]] * within_power
+        weight = np.where(self.usable, weight, 0.0)
+        total = weight.sum(axis=1, keepdims=True)
+        with np.errstate(invalid="ignore", divide="ignore"):
+            fitted = self.usable.any(axis=1, keepdims=True) & (total > 0)
+            self.weight = np.where(fitted, weight / np.where(total > 0, total, 1.0), 0.0)
+
+    def __len__(self) -> int:
+        return len(self.hours_scale)
+
+    def law_weights(self) -> dict[str, np.ndarray]:
+        return {law: self.weight[:, [m.law == law for m in MEMBERS]].sum(axis=1) for law in LAWS}
+
+    def to_columns(self, prefix: str) -> dict[str, np.ndarray]:
+        cols = {f"{prefix}_hours_scale": self.hours_scale}
+        for j, m in enumerate(MEMBERS):
+            for f in FIELDS:
+                cols[f"{prefix}_{m.name}_{f}"] = getattr(self, f)[:, j]
+        return cols
+
+    @classmethod
+    def from_columns(cls, frame, prefix: str) -> "LawFits":
+        """Back from to_columns; `frame` may be a DataFrame (many groups) or one row (a Series or dict)."""
+
+        def col(name):
+            return np.atleast_1d(np.asarray(frame[f"{prefix}_{name}"], dtype=float))
+
+        parts = {f: np.column_stack([col(f"{m.name}_{f}") for m in MEMBERS]) for f in FIELDS}
+        return cls(**parts, hours_scale=col("hours_scale"))
+
+
+def member_x(member: Member, hours, hours_scale) -> np.ndarray:
+    """The line's x of a member at interval hours (hours_scale broadcast against hours)."""
+    h = np.asarray(hours, dtype=float)
+    if member.law != "power":
+        return h
+    with np.errstate(invalid="ignore", divide="ignore"):
+        return np.maximum(h / hours_scale, 0.0) ** member.power
+
+
+def aicc(n, n_params, deviance) -> np.ndarray:
+    """Small-sample AIC of a least-squares fit: n ln(D / n) + 2K + 2K(K + 1) / (n - K - 1); NaN if n <= K + 1."""
+    n = np.asarray(n, dtype=float)
+    k = float(n_params)
+    ok = (n - k - 1.0 > 0) & np.isfinite(deviance) & (np.asarray(deviance) > 0)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        value = n * np.log(np.asarray(deviance, dtype=float) / n) + 2 * k + 2 * k * (k + 1) / (n - k - 1)
+    return np.where(ok, value, np.nan)
+
+
+def akaike_weights(criterion: np.ndarray) -> np.ndarray:
+    """exp(-delta / 2) / sum, delta from the row's smallest criterion; NaN entries get weight 0.
+
+    A row with no finite entry gets all its weight on the first column (the exponential law)."""
+    c = np.atleast_2d(np.asarray(criterion, dtype=float))
+    finite = np.isfinite(c)
+    best = np.min(np.where(finite, c, np.inf), axis=1, keepdims=True)
+    with np.errstate(invalid="ignore", over="ignore"):
+        raw = np.where(finite, np.exp(-0.5 * (c - np.where(np.isfinite(best), best, 0.0))), 0.0)
+    total = raw.sum(axis=1, keepdims=True)
+    fallback = np.zeros_like(c)
+    fallback[:, 0] = 1.0
+    with np.errstate(invalid="ignore", divide="ignore"):
+        return np.where(total > 0, raw / np.where(total > 0, total, 1.0), fallback)
+
+
+def fit_wear_laws(
+    group: np.ndarray,
+    hours: np.ndarray,
+    value: np.ndarray,
+    sigma_of,
+    floor: np.ndarray,
+    n_groups: int,
+    settings: AnalysisSettings,
+) -> LawFits:
+    """Fit every member for every group and weigh them.
+
+    value: referred flow q per reading (already floored at `floor`, a small positive flow). sigma_of(q_fitted
+    or None) gives each reading's standard deviation of q under the error model (None: at the readings).
+    """
+    q = np.maximum(value, floor)
+    log_q = np.log(q)
+    count = np.bincount(group, minlength=n_groups).astype(float)
+    hmax = pd.Series(hours).groupby(group).max().reindex(range(n_groups)).to_numpy(dtype=float)
+    hours_scale = np.where(hmax > 0, hmax, np.nan)
+
+    def log_variance(fitted_log):
+        if fitted_log is None:
+            return (sigma_of(None) / q) ** 2
+        with np.errstate(over="ignore"):
+            q_fit = np.maximum(np.exp(fitted_log), floor)
+        return (sigma_of(q_fit) / q_fit) ** 2
+
+    def lin_variance(fitted):
+        return sigma_of(None if fitted is None else np.maximum(fitted, floor)) ** 2
+
+    shape = (n_groups, len(MEMBERS))
+    out = {f: np.full(shape, np.nan) for f in (*FIELDS, "scale")}
+    fitted_q = np.full((len(q), len(MEMBERS)), np.nan)
+    huber = {}
+    for j, m in enumerate(MEMBERS):
+        x = member_x(m, hours, hours_scale[group])
+        if m.law == "power":
+            # A reading is an outlier when both the exponential and the linear law find it far off; the
+            # power law's lines take those weights in one pass (its exponents are many, the outliers the same).
+            variance_at = fitted_q[:, 1]
+            fit, _ = fit_reweighted(
+                group, x, q, lambda _f, v=variance_at: lin_variance(v), n_groups, settings,
+                n_params=m.n_params, robust_w=np.fmax(huber["exponential"], huber["linear"]),
+            )
+        else:
+            fit, huber[m.law] = fit_reweighted(
+                group, x, log_q if m.log_space else q, log_variance if m.log_space else lin_variance,
+                n_groups, settings, m.log_space, m.n_params,
+            )
+        for f in (*FIELDS[:-1], "scale"):
+            out[f][:, j] = getattr(fit, f)
+        line = fit.a[group] + fit.b[group] * x
+        with np.errstate(over="ignore"):
+            fitted_q[:, j] = np.exp(line) if m.log_space else line
+
+    # Scores on the common scale: q residuals over the error model's sigma at the default law's fit.
+    sigma = sigma_of(np.maximum(np.nan_to_num(fitted_q[:, 0], nan=1.0), floor))
+    z = (q[:, None] - fitted_q) / sigma[:, None]
+    clip = settings.huber_k * np.fmin(robust_scale(group, z[:, 0], n_groups), robust_scale(group, z[:, 1], n_groups))
+    clipped = np.minimum(z**2, clip[group, None] ** 2)
+    deviance = np.column_stack([np.bincount(group, clipped[:, j], minlength=n_groups) for j in range(len(MEMBERS))])
+    usable = np.isfinite(out["a"]) & np.isfinite(out["b"]) & np.isfinite(out["var_b"]) & np.isfinite(deviance)
+    deviance = np.where(usable, np.maximum(deviance, 1e-12 * count[:, None]), np.nan)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        fit_term = count[:, None] * np.log(deviance / count[:, None])
+    is_power = np.array([m.law == "power" for m in MEMBERS])
+    best_power = np.min(np.where(np.isfinite(fit_term[:, is_power]), deviance[:, is_power], np.inf), axis=1)
+    law_score = np.column_stack(
+        [
+            aicc(count, LAW_PARAMS["exponential"], deviance[:, 0]),
+            aicc(count, LAW_PARAMS["linear"], deviance[:, 1]),
+            aicc(count, LAW_PARAMS["power"], np.where(np.isfinite(best_power), best_power, np.nan)),
+        ]
+    )
+    out["weight"] = np.zeros(shape)
+    laws = LawFits(
+        **out,
+        hours_scale=hours_scale,
+        n_points=count,
+        law_score=law_score,
+        power_score=fit_term[:, is_power],
+        usable=usable,
+    )
+    laws.weigh(law_score, laws.power_score)
+    return laws
+
+
+def joint_score(*scores: np.ndarray) -> np.ndarray:
+    """AICc of "every trend follows the same law": the sum over the trends that could be scored.
+
+    Slip and case drain come through the same clearances, so they wear by one law; the better-measured
+    trend then tells the other its shape. A law that could not be scored on a trend that scored others
+    stays unscored (NaN).
+    """
+    stack = np.stack(scores)
+    scored = np.isfinite(stack).any(axis=2, keepdims=True)  # the trend scored some law
+    missing = scored & ~np.isfinite(stack)
+    total = np.where(scored, np.nan_to_num(stack, nan=0.0), 0.0).sum(axis=0)
+    return np.where(missing.any(axis=0) | ~scored.any(axis=0), np.nan, total)
