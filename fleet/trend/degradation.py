@@ -68,7 +68,7 @@ def fit_degradation(referred: pd.DataFrame, settings: AnalysisSettings | None = 
     - q_current_lpm, q_start_lpm: the averaged trend (median of the model mixture) at current_hours and at 0;
     - q_slope_lpm_per_h: the model-weighted growth rate at current_hours;
     - q_wear_law (the law with the most weight, None if unfitted) and q_weight_<law> for each of LAWS;
-    - q_hours_scale and q_<member>_<a|b|var_a|var_b|cov_ab|dof|weight> for every member of the model set
+    - q_hours_scale, q_hours_offset and q_<member>_<a|b|var_a|var_b|cov_ab|dof|weight> for every member of the model set
       (LawFits.from_columns(fits, q) rebuilds it, e.g. for a chart's band).
     Derived eta_v_ref figures are added by `summarise_fits`.
     """
@@ -87,6 +87,11 @@ def fit_degradation(referred: pd.DataFrame, settings: AnalysisSettings | None = 
     good = referred["flag"].isna().to_numpy() & valid_hours
 
     frames = [keys.assign(current_hours=current_hours)]
+    # Hours run before the interval's hours count: the first interval's hour meter counts from new.
+    start_meter = pd.to_numeric(referred["interval_start_hours"], errors="coerce").to_numpy(dtype=float)
+    first_interval = referred["interval_no"].to_numpy() == 0
+    offset = pd.Series(np.where(first_interval, start_meter, 0.0)).groupby(group_all).first()
+    offset = np.maximum(offset.reindex(range(n_groups)).fillna(0.0).to_numpy(dtype=float), 0.0)
 
     # Slip: error model from the flow meter.
     rated = referred["rated_flow_lpm"].to_numpy(dtype=float)
@@ -104,7 +109,7 @@ def fit_degradation(referred: pd.DataFrame, settings: AnalysisSettings | None = 
     def slip_sigma(_fitted):
         return sigma_q * factor_u  # the flow meter's noise, referred like the slip
 
-    slip_laws = fit_wear_laws(g, h, q_slip, slip_sigma, floor_u * factor_u, n_groups, s)
+    slip_laws = fit_wear_laws(g, h, q_slip, slip_sigma, floor_u * factor_u, n_groups, s, offset)
 
     # Case drain: measured directly, constant relative noise.
     drain_ref = referred["drain_ref_lpm"].to_numpy(dtype=float)
@@ -116,7 +121,7 @@ def fit_degradation(referred: pd.DataFrame, settings: AnalysisSettings | None = 
     def drain_sigma(fitted):
         return s.drain_noise_fraction * (q_drain if fitted is None else fitted)
 
-    drain_laws = fit_wear_laws(gd, hd, q_drain, drain_sigma, drain_floor, n_groups, s)
+    drain_laws = fit_wear_laws(gd, hd, q_drain, drain_sigma, drain_floor, n_groups, s, offset)
 
     # One law of wear for both trends of an interval (they leak through the same clearances).
     joint = joint_score(slip_laws.law_score, drain_laws.law_score)

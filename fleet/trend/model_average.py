@@ -20,7 +20,7 @@ from fleet.trend.wear_laws import MEMBERS, LawFits, member_x
 _GRID_PAST = np.linspace(0.0, 1.0, 21)
 _GRID_AHEAD = 1.0 + np.logspace(-3.0, 6.0, 91)
 CROSSING_GRID = np.concatenate([_GRID_PAST, _GRID_AHEAD])
-_BISECTIONS = 40
+_BISECTIONS = 32
 
 
 def _moments(fits: LawFits, j: int, hours: np.ndarray):
@@ -28,10 +28,11 @@ def _moments(fits: LawFits, j: int, hours: np.ndarray):
     hours = np.asarray(hours, dtype=float)
     expand = (slice(None), None) if hours.ndim == 2 else (slice(None),)
     m = MEMBERS[j]
-    x = member_x(m, hours, fits.hours_scale[expand])
+    x = member_x(m, hours, fits.hours_scale[expand], fits.hours_offset[expand])
     a, b = fits.a[:, j][expand], fits.b[:, j][expand]
-    var = fits.var_a[:, j][expand] + 2.0 * x * fits.cov_ab[:, j][expand] + x * x * fits.var_b[:, j][expand]
-    return a + b * x, np.sqrt(np.maximum(var, 0.0))
+    with np.errstate(invalid="ignore", over="ignore"):  # an unfitted group's NaN stays NaN (it has no weight)
+        var = fits.var_a[:, j][expand] + 2.0 * x * fits.cov_ab[:, j][expand] + x * x * fits.var_b[:, j][expand]
+        return a + b * x, np.sqrt(np.maximum(var, 0.0))
 
 
 def _cdf_terms(fits: LawFits, hours, value, confidence: float):
@@ -79,7 +80,7 @@ def value_quantile(fits: LawFits, hours, level: float, confidence: float) -> np.
         hi = np.where(used & np.isfinite(high), np.maximum(hi, high), hi)
     fitted = np.isfinite(lo) & np.isfinite(hi)
     lo, hi = np.where(fitted, lo, 0.0), np.where(fitted, hi, 1.0)
-    for _ in range(60):
+    for _ in range(44):  # the bracket shrinks to 1e-13 of its width
         mid = 0.5 * (lo + hi)
         below = value_cdf(fits, hours, mid, confidence) < level
         lo, hi = np.where(below, mid, lo), np.where(below, hi, mid)
@@ -96,7 +97,8 @@ def averaged_slope(fits: LawFits, hours) -> np.ndarray:
             if m.log_space:
                 rate = b * np.exp(a + b * h)
             elif m.law == "power":
-                rate = b * m.power * np.maximum(h / fits.hours_scale, 0.0) ** (m.power - 1.0) / fits.hours_scale
+                u = np.maximum((h + fits.hours_offset) / fits.hours_scale, 0.0)
+                rate = b * m.power * u ** (m.power - 1.0) / fits.hours_scale
             else:
                 rate = b
         total = total + np.where(w > 0, w * np.nan_to_num(rate, nan=0.0, posinf=0.0, neginf=0.0), 0.0)

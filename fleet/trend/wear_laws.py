@@ -4,7 +4,9 @@ and weighed against each other by small-sample AIC (AICc).
 - exponential: ln q = a + b h. Leakage grows with the cube of the gap, so wear that opens the gap in
   proportion to itself grows it exponentially; the physics default.
 - linear: q = a + b h. Steady abrasive wear (dirty oil) opens the gap at a constant rate.
-- power: q = a + b (h / H)^p, H the interval's latest hours. p > 1 accelerates (a damaged part), p < 1
+- power: q = a + b ((h + h0) / H)^p, H = h0 + the interval's latest hours, h0 the hours the pump had run
+  before the interval's hours begin to count (0 after an overhaul; for the first interval the hour meter at
+  the first reading, the meter counting from new). p > 1 accelerates (a damaged part), p < 1
   decelerates (run-in after an overhaul). p is not solved for: each exponent of a fixed grid is a member of
   its own, a straight line in (h / H)^p, so the spread over p carries the exponent's uncertainty into the
   forecast and every member is fitted by the same grouped robust line fit.
@@ -30,7 +32,7 @@ from fleet.trend.settings import AnalysisSettings
 LAWS = ("exponential", "linear", "power")
 LAW_PARAMS = {"exponential": 3, "linear": 3, "power": 4}  # a, b, scale (+ the exponent p)
 # 0.35 .. 4 in even steps on a log scale; p = 1 is the linear law itself.
-POWER_EXPONENTS = tuple(2.0 ** (k / 2.0) for k in (-3, -2, -1, 1, 2, 3, 4))
+POWER_EXPONENTS = tuple(2.0 ** (k / 4.0) for k in (*range(-6, 0), *range(1, 9)))
 
 
 @dataclass(frozen=True)
@@ -64,6 +66,7 @@ class LawFits:
     dof: np.ndarray
     weight: np.ndarray  # sums to 1 over the members of a fitted group; 0 where a member is not usable
     hours_scale: np.ndarray  # H of the power law, per group
+    hours_offset: np.ndarray  # h0 of the power law, per group
     scale: np.ndarray | None = None  # robust residual scale per group and member (kept in memory only)
     n_points: np.ndarray | None = None  # readings fitted per group
     law_score: np.ndarray | None = None  # AICc per group and law (columns as LAWS), NaN where not scored
@@ -100,7 +103,10 @@ class LawFits:
         return {law: self.weight[:, [m.law == law for m in MEMBERS]].sum(axis=1) for law in LAWS}
 
     def to_columns(self, prefix: str) -> dict[str, np.ndarray]:
-        cols = {f"{prefix}_hours_scale": self.hours_scale}
+        cols = {
+            f"{prefix}_hours_scale": self.hours_scale,
+            f"{prefix}_hours_offset": self.hours_offset,
+        }
         for j, m in enumerate(MEMBERS):
             for f in FIELDS:
                 cols[f"{prefix}_{m.name}_{f}"] = getattr(self, f)[:, j]
@@ -114,16 +120,62 @@ class LawFits:
             return np.atleast_1d(np.asarray(frame[f"{prefix}_{name}"], dtype=float))
 
         parts = {f: np.column_stack([col(f"{m.name}_{f}") for m in MEMBERS]) for f in FIELDS}
-        return cls(**parts, hours_scale=col("hours_scale"))
+        return cls(
+            **parts,
+            hours_scale=col("hours_scale"),
+            hours_offset=col("hours_offset"),
+        )
 
 
-def member_x(member: Member, hours, hours_scale) -> np.ndarray:
-    """The line's x of a member at interval hours (hours_scale broadcast against hours)."""
+def member_x(member: Member, hours, hours_scale, hours_offset) -> np.ndarray:
+    """The line's x of a member at interval hours (scale and offset broadcast against hours)."""
     h = np.asarray(hours, dtype=float)
     if member.law != "power":
         return h
     with np.errstate(invalid="ignore", divide="ignore"):
-        return np.maximum(h / hours_scale, 0.0) ** member.power
+        return np.maximum((h + hours_offset) / hours_scale, 0.0) ** member.power
+
+
+def _fit_power_members(group, hours, q, sigma, robust_w, clip, hours_scale, offset, n_groups, out, deviance):
+    """Fill the power members' columns of `out` and `deviance`: one weighted least-squares pass per exponent
+    with fixed weights (error model x Huber), from grouped sums; Huber's sandwich covariance as in
+    fleet.trend.robust.fit_reweighted, clipped at the common robust scale `clip`."""
+    model_w = 1.0 / sigma**2
+    w = model_w * robust_w
+    count = np.bincount(group, minlength=n_groups).astype(float)
+    s0 = np.bincount(group, w, minlength=n_groups)
+    sy = np.bincount(group, w * q, minlength=n_groups)
+    m0 = np.bincount(group, model_w, minlength=n_groups)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        log_u = np.log(np.maximum((hours + offset[group]) / hours_scale[group], 1e-300))
+    clip2 = clip[group] ** 2
+    for j, m in enumerate(MEMBERS):
+        if m.law != "power":
+            continue
+        x = np.exp(m.power * log_u)
+        sx = np.bincount(group, w * x, minlength=n_groups)
+        with np.errstate(invalid="ignore", divide="ignore"):
+            x_mean, y_mean = sx / s0, sy / s0
+            dx = x - x_mean[group]
+            sxx = np.bincount(group, w * dx * dx, minlength=n_groups)
+            spread = sxx > 1e-12 * s0  # x = (h / H)^p lies in [0, 1]: no spread means one hour value
+            b = np.where(spread, np.bincount(group, w * dx * (q - y_mean[group]), minlength=n_groups) / sxx, np.nan)
+            a = y_mean - b * x_mean
+            z2 = (q - a[group] - b[group] * x) ** 2 * model_w
+            psi2 = np.bincount(group, np.minimum(z2, clip2), minlength=n_groups)
+            inside = np.bincount(group, (z2 <= clip2).astype(float), minlength=n_groups)
+            dof = count - m.n_params
+            scale2 = np.where(dof > 0, psi2 / np.where(dof > 0, dof, 1.0), np.nan) / (inside / count) ** 2
+            mx = np.bincount(group, model_w * x, minlength=n_groups) / m0
+            mdx = x - mx[group]
+            msxx = np.bincount(group, model_w * mdx * mdx, minlength=n_groups)
+            inv_sxx = np.where(msxx > 1e-12 * m0, 1.0 / msxx, np.nan)
+        out["a"][:, j], out["b"][:, j] = a, b
+        out["var_b"][:, j] = scale2 * inv_sxx
+        out["var_a"][:, j] = scale2 * (1.0 / m0 + mx**2 * inv_sxx)
+        out["cov_ab"][:, j] = -scale2 * mx * inv_sxx
+        out["dof"][:, j], out["scale"][:, j] = dof, np.sqrt(scale2)
+        deviance[:, j] = psi2
 
 
 def aicc(n, n_params, deviance) -> np.ndarray:
@@ -160,17 +212,22 @@ def fit_wear_laws(
     floor: np.ndarray,
     n_groups: int,
     settings: AnalysisSettings,
+    hours_offset: np.ndarray | None = None,
 ) -> LawFits:
     """Fit every member for every group and weigh them.
 
     value: referred flow q per reading (already floored at `floor`, a small positive flow). sigma_of(q_fitted
     or None) gives each reading's standard deviation of q under the error model (None: at the readings).
+    hours_offset: h0 per group (default 0).
     """
     q = np.maximum(value, floor)
     log_q = np.log(q)
     count = np.bincount(group, minlength=n_groups).astype(float)
-    hmax = pd.Series(hours).groupby(group).max().reindex(range(n_groups)).to_numpy(dtype=float)
-    hours_scale = np.where(hmax > 0, hmax, np.nan)
+    offset = np.zeros(n_groups) if hours_offset is None else np.nan_to_num(np.asarray(hours_offset, float))
+    by_group = pd.Series(hours).groupby(group)
+    last = by_group.max().reindex(range(n_groups)).to_numpy(dtype=float)
+    first = by_group.min().reindex(range(n_groups)).to_numpy(dtype=float)
+    hours_scale = np.where(last + offset > 0, last + offset, np.nan)
 
     def log_variance(fitted_log):
         if fitted_log is None:
@@ -184,35 +241,30 @@ def fit_wear_laws(
 
     shape = (n_groups, len(MEMBERS))
     out = {f: np.full(shape, np.nan) for f in (*FIELDS, "scale")}
-    fitted_q = np.full((len(q), len(MEMBERS)), np.nan)
+    fitted_q = np.full((len(q), 2), np.nan)
     huber = {}
-    for j, m in enumerate(MEMBERS):
-        x = member_x(m, hours, hours_scale[group])
-        if m.law == "power":
-            # A reading is an outlier when both the exponential and the linear law find it far off; the
-            # power law's lines take those weights in one pass (its exponents are many, the outliers the same).
-            variance_at = fitted_q[:, 1]
-            fit, _ = fit_reweighted(
-                group, x, q, lambda _f, v=variance_at: lin_variance(v), n_groups, settings,
-                n_params=m.n_params, robust_w=np.fmax(huber["exponential"], huber["linear"]),
-            )
-        else:
-            fit, huber[m.law] = fit_reweighted(
-                group, x, log_q if m.log_space else q, log_variance if m.log_space else lin_variance,
-                n_groups, settings, m.log_space, m.n_params,
-            )
+    for j, m in enumerate(MEMBERS[:2]):  # the exponential and the linear law, each reweighted on its own
+        fit, huber[m.law] = fit_reweighted(
+            group, hours, log_q if m.log_space else q, log_variance if m.log_space else lin_variance,
+            n_groups, settings, m.log_space, m.n_params,
+        )
         for f in (*FIELDS[:-1], "scale"):
             out[f][:, j] = getattr(fit, f)
-        line = fit.a[group] + fit.b[group] * x
+        line = fit.a[group] + fit.b[group] * hours
         with np.errstate(over="ignore"):
             fitted_q[:, j] = np.exp(line) if m.log_space else line
 
     # Scores on the common scale: q residuals over the error model's sigma at the default law's fit.
     sigma = sigma_of(np.maximum(np.nan_to_num(fitted_q[:, 0], nan=1.0), floor))
-    z = (q[:, None] - fitted_q) / sigma[:, None]
+    z = (q[:, None] - fitted_q[:, :2]) / sigma[:, None]
     clip = settings.huber_k * np.fmin(robust_scale(group, z[:, 0], n_groups), robust_scale(group, z[:, 1], n_groups))
-    clipped = np.minimum(z**2, clip[group, None] ** 2)
-    deviance = np.column_stack([np.bincount(group, clipped[:, j], minlength=n_groups) for j in range(len(MEMBERS))])
+    deviance = np.full(shape, np.nan)
+    for j in range(2):
+        deviance[:, j] = np.bincount(group, np.minimum(z[:, j] ** 2, clip[group] ** 2), minlength=n_groups)
+    # A reading is an outlier when both the exponential and the linear law find it far off; the power law's
+    # lines take those Huber weights in one weighted pass each (its exponents are many, the outliers the same).
+    robust_w = np.fmax(huber["exponential"], huber["linear"])
+    _fit_power_members(group, hours, q, sigma, robust_w, clip, hours_scale, offset, n_groups, out, deviance)
     usable = np.isfinite(out["a"]) & np.isfinite(out["b"]) & np.isfinite(out["var_b"]) & np.isfinite(deviance)
     deviance = np.where(usable, np.maximum(deviance, 1e-12 * count[:, None]), np.nan)
     with np.errstate(invalid="ignore", divide="ignore"):
@@ -226,17 +278,69 @@ def fit_wear_laws(
             aicc(count, LAW_PARAMS["power"], np.where(np.isfinite(best_power), best_power, np.nan)),
         ]
     )
+    power_score = fit_term[:, is_power]
+    if settings.law_weighting == "held_back":
+        held = _held_back_scores(
+            group, hours, q, log_q, sigma, np.fmax(huber["exponential"], huber["linear"]), fitted_q, floor,
+            hours_scale, offset, first, last, clip, n_groups, settings,
+        )
+        if held is not None:
+            scored = np.isfinite(held).all(axis=1, keepdims=True)
+            member_crit = -2.0 * held
+            with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
+                pw = member_crit[:, is_power]
+                top = np.nanmin(pw, axis=1, keepdims=True)
+                family = top - 2.0 * np.log(np.nanmean(np.exp(-0.5 * (pw - top)), axis=1, keepdims=True))
+            held_law = np.column_stack([member_crit[:, 0], member_crit[:, 1], family[:, 0]])
+            law_score = np.where(scored, held_law, law_score)
+            power_score = np.where(scored, pw, power_score)
     out["weight"] = np.zeros(shape)
     laws = LawFits(
         **out,
         hours_scale=hours_scale,
+        hours_offset=offset,
         n_points=count,
         law_score=law_score,
-        power_score=fit_term[:, is_power],
+        power_score=power_score,
         usable=usable,
     )
     laws.weigh(law_score, laws.power_score)
     return laws
+
+
+def _held_back_scores(group, hours, q, log_q, sigma, robust_w, fitted_q, floor, hours_scale, offset, first, last,
+                      clip, n_groups, settings):
+    """Log predictive density of the last readings (the final `law_held_back` share of the hours spanned) under
+    each member fitted to the earlier ones, Huber-clipped like the in-sample scores. NaN where a group has
+    fewer than 4 earlier or 2 later readings."""
+    cut = first + (1.0 - settings.law_held_back) * (last - first)
+    train = hours <= cut[group]
+    n_train = np.bincount(group[train], minlength=n_groups)
+    n_test = np.bincount(group[~train], minlength=n_groups)
+    ok = (n_train >= 4) & (n_test >= 2)
+    if not ok.any():
+        return None
+    g, test = group[train], ~train
+    q_exp = np.maximum(np.nan_to_num(fitted_q[:, 0], nan=1.0), floor)
+    scores = np.full((n_groups, len(MEMBERS)), np.nan)
+    for j, m in enumerate(MEMBERS):
+        x = member_x(m, hours, hours_scale[group], offset[group])
+        y = log_q if m.log_space else q
+        model_var = (sigma / q_exp) ** 2 if m.log_space else sigma**2
+        fit, _ = fit_reweighted(g, x[train], y[train], lambda _f, v=model_var[train]: v, n_groups, settings,
+                                m.log_space, m.n_params, robust_w=robust_w[train])
+        gt, xt = group[test], x[test]
+        line = fit.a[gt] + fit.b[gt] * xt
+        var_line = fit.var_a[gt] + 2 * xt * fit.cov_ab[gt] + xt * xt * fit.var_b[gt]
+        with np.errstate(over="ignore", invalid="ignore"):
+            mean = np.exp(line) if m.log_space else line
+            var = (mean * mean * var_line if m.log_space else var_line) + sigma[test] ** 2
+            z2 = np.minimum((q[test] - mean) ** 2 / var, clip[gt] ** 2)
+            logdens = -0.5 * (z2 + np.log(var / sigma[test] ** 2))
+        total = np.bincount(gt, np.nan_to_num(logdens, nan=-1e6), minlength=n_groups)
+        bad = np.bincount(gt, ~np.isfinite(logdens), minlength=n_groups) > 0
+        scores[:, j] = np.where(ok & ~bad, total, np.nan)
+    return scores
 
 
 def joint_score(*scores: np.ndarray) -> np.ndarray:
