@@ -178,6 +178,22 @@ def _fit_power_members(group, hours, q, sigma, robust_w, clip, hours_scale, offs
         deviance[:, j] = psi2
 
 
+def _best_power_huber(group, hours, q, sigma, out, deviance, hours_scale, offset, n_groups, settings):
+    """Huber weights of each reading about its group's best-fitting power line (smallest deviance)."""
+    is_power = np.array([m.law == "power" for m in MEMBERS])
+    power_dev = np.where(np.isfinite(deviance[:, is_power]), deviance[:, is_power], np.inf)
+    best = np.flatnonzero(is_power)[np.argmin(power_dev, axis=1)]
+    p = np.array([m.power for m in MEMBERS])[best][group]
+    with np.errstate(invalid="ignore", divide="ignore"):
+        x = np.maximum((hours + offset[group]) / hours_scale[group], 0.0) ** p
+    rows = np.arange(n_groups)
+    fitted = out["a"][rows, best][group] + out["b"][rows, best][group] * x
+    z = (q - fitted) / sigma
+    u = np.abs(z) / robust_scale(group, z, n_groups)[group]
+    with np.errstate(invalid="ignore", divide="ignore"):
+        return np.where(u > settings.huber_k, settings.huber_k / u, 1.0)
+
+
 def aicc(n, n_params, deviance) -> np.ndarray:
     """Small-sample AIC of a least-squares fit: n ln(D / n) + 2K + 2K(K + 1) / (n - K - 1); NaN if n <= K + 1."""
     n = np.asarray(n, dtype=float)
@@ -261,9 +277,14 @@ def fit_wear_laws(
     deviance = np.full(shape, np.nan)
     for j in range(2):
         deviance[:, j] = np.bincount(group, np.minimum(z[:, j] ** 2, clip[group] ** 2), minlength=n_groups)
-    # A reading is an outlier when both the exponential and the linear law find it far off; the power law's
-    # lines take those Huber weights in one weighted pass each (its exponents are many, the outliers the same).
+    # The power law's lines take shared Huber weights, one weighted pass each (its exponents are many, the
+    # outliers the same): a reading is an outlier when the exponential law, the linear law and the best power
+    # line all find it far off (a first pass finds that line; without it, readings that only the exponential
+    # and linear laws miss, as on an accelerating pump, would lose their weight).
     robust_w = np.fmax(huber["exponential"], huber["linear"])
+    _fit_power_members(group, hours, q, sigma, robust_w, clip, hours_scale, offset, n_groups, out, deviance)
+    robust_w = np.fmax(robust_w, _best_power_huber(group, hours, q, sigma, out, deviance, hours_scale, offset,
+                                                   n_groups, settings))
     _fit_power_members(group, hours, q, sigma, robust_w, clip, hours_scale, offset, n_groups, out, deviance)
     usable = np.isfinite(out["a"]) & np.isfinite(out["b"]) & np.isfinite(out["var_b"]) & np.isfinite(deviance)
     deviance = np.where(usable, np.maximum(deviance, 1e-12 * count[:, None]), np.nan)
