@@ -26,7 +26,7 @@ from fleet.trend.remaining_life import (
 )
 from fleet.trend.settings import AnalysisSettings
 from fleet.trend.status import assess_status, horizon_remaining_hours
-from fleet.trend.wear_laws import LAWS
+from fleet.trend.wear_laws import LAWS, MEMBERS
 from fleet.trend.weibull import expected_overhauls, fit_fleet_priors, mean_residual_life
 
 KEYS = ["pump_id", "interval_no"]
@@ -101,9 +101,10 @@ def _past_margin(fits: pd.DataFrame, limits: dict[str, np.ndarray], last: pd.Dat
 
 
 def _wear_law(cur: pd.DataFrame) -> pd.DataFrame:
-    """wear_law (the law with the most weight) and wear_law_weights ({law: weight}) of each pump's current
-    interval. Slip and case drain are weighed jointly, so both trends carry the same weights; the slip's are
-    read, the drain's where only the drain has a trend. None without a trend."""
+    """wear_law (the law with the most weight), wear_law_weights ({law: weight}) and wear_power (the power law's
+    exponent, averaged over its members by weight) of each pump's current interval. Slip and case drain are
+    weighed jointly, so both trends carry the same weights; the slip's are read, the drain's where only the
+    drain has a trend. None (NaN) without a trend."""
     slip_ok = cur["slip_enough_data"].to_numpy(bool)
     drain_ok = cur["drain_enough_data"].to_numpy(bool)
     source = np.where(slip_ok, "slip", "drain")
@@ -117,7 +118,16 @@ def _wear_law(cur: pd.DataFrame) -> pd.DataFrame:
         {name: float(weights[name][i]) for name in LAWS} if known[i] and law[i] is not None else None
         for i in range(len(cur))
     ]
-    return pd.DataFrame({"wear_law": law, "wear_law_weights": as_dicts}, index=cur.index)
+    # The power law's exponent, weighted over its members: above 1 accelerating, below 1 slowing down.
+    power = np.zeros(len(cur))
+    total = np.zeros(len(cur))
+    for m in MEMBERS:
+        if m.law == "power":
+            w = np.where(source == "slip", cur[f"slip_{m.name}_weight"], cur[f"drain_{m.name}_weight"]).astype(float)
+            power, total = power + np.nan_to_num(w) * m.power, total + np.nan_to_num(w)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        wear_power = np.where(known & (total > 0), power / total, np.nan)
+    return pd.DataFrame({"wear_law": law, "wear_law_weights": as_dicts, "wear_power": wear_power}, index=cur.index)
 
 
 def _crossing_passed(cur: pd.DataFrame, current_iv: pd.DataFrame, referred: pd.DataFrame) -> pd.DataFrame:

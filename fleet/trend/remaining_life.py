@@ -12,7 +12,7 @@ import pandas as pd
 
 from fleet.trend.degradation import QUANTITIES, not_enough_reason
 from fleet.trend.linear import LineFit, line_variance, t_quantile
-from fleet.trend.model_average import crossing_quantiles
+from fleet.trend.model_average import crossing_quantiles, value_quantile
 from fleet.trend.settings import AnalysisSettings
 from fleet.trend.wear_laws import LawFits
 
@@ -214,3 +214,22 @@ def dates_at_hours(readings: pd.DataFrame, keys: pd.DataFrame, interval_hours, p
         behind = m["t_f"] - pd.to_timedelta(((m["h_f"] - m["h"]) / m["rate"]).where(m["rate"] > 0), unit="D")
     date = inside.where(m["t_b"].notna() & m["t_f"].notna(), ahead.where(m["t_b"].notna(), behind))
     return date.reindex(range(len(keys))).dt.normalize().reset_index(drop=True)
+
+
+def averaged_band(fit, hours_grid, qmax, confidence: float = 0.90, quantity: str = "slip") -> pd.DataFrame:
+    """The model-averaged forecast of eta_v,ref (or case drain % for quantity="drain") on a grid of interval
+    hours, with its band: what a chart of the pump's current interval draws.
+
+    fit: one row of FleetAnalysis.fits. qmax: the rated flow for eta_v,ref or the max flow for drain %.
+    Returns hours, mean (the mixture's median), low, high; the band meets the limit exactly at the hours
+    bounds of hours_to_limits (both come from the same mixture).
+    """
+    laws = LawFits.from_columns(fit, quantity)
+    h = np.asarray(hours_grid, dtype=float)[None, :]
+    alpha = 1.0 - confidence
+    lo, mid, hi = (value_quantile(laws, h, level, confidence)[0] for level in (alpha / 2, 0.5, 1 - alpha / 2))
+    if quantity == "slip":
+        mean, low, high = 1.0 - mid / qmax, 1.0 - hi / qmax, 1.0 - lo / qmax
+    else:
+        mean, low, high = 100.0 * mid / qmax, 100.0 * lo / qmax, 100.0 * hi / qmax
+    return pd.DataFrame({"hours": h[0], "mean": mean, "low": low, "high": high})
