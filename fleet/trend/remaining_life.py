@@ -156,10 +156,14 @@ def limit_dates(last_reading_at: pd.Series, remaining_hours, per_day) -> pd.Seri
 def trend_band(fit, hours_grid, qmax, confidence: float = 0.90, quantity: str = "slip") -> pd.DataFrame:
     """Fitted eta_v,ref (or case drain % for quantity="drain") on a grid of interval hours, with its band.
 
-    fit: one row of FleetAnalysis.fits (a mapping with slip_a, slip_b, slip_var_a, ...). qmax: the rated
-    flow for eta_v,ref (V_g n_r / 1000) or the max flow for drain %. Returns hours, mean, low, high where
-    low/high bound the fitted mean line at the confidence level.
+    fit: one row of FleetAnalysis.fits. Such a row carries the wear laws, and the band is then the
+    model-averaged one (averaged_band), which meets the limit where hours_to_limits says. A mapping with only
+    an exponential line (slip_a, slip_b, slip_var_a, ...) gives that line's band. qmax: the rated flow for
+    eta_v,ref (V_g n_r / 1000) or the max flow for drain %. Returns hours, mean, low, high where low/high bound
+    the fitted mean line at the confidence level.
     """
+    if f"{quantity}_hours_scale" in fit:
+        return averaged_band(fit, hours_grid, qmax, confidence, quantity)
     h = np.asarray(hours_grid, dtype=float)
     get = lambda name: np.asarray([float(fit[f"{quantity}_{name}"])])  # noqa: E731
     line = LineFit(

@@ -170,9 +170,9 @@ def _fit_power_members(group, hours, q, sigma, robust_w, clip, hours_scale, offs
             mdx = x - mx[group]
             msxx = np.bincount(group, model_w * mdx * mdx, minlength=n_groups)
             inv_sxx = np.where(msxx > 1e-12 * m0, 1.0 / msxx, np.nan)
+            out["var_a"][:, j] = scale2 * (1.0 / m0 + mx**2 * inv_sxx)  # NaN for a group without readings
         out["a"][:, j], out["b"][:, j] = a, b
         out["var_b"][:, j] = scale2 * inv_sxx
-        out["var_a"][:, j] = scale2 * (1.0 / m0 + mx**2 * inv_sxx)
         out["cov_ab"][:, j] = -scale2 * mx * inv_sxx
         out["dof"][:, j], out["scale"][:, j] = dof, np.sqrt(scale2)
         deviance[:, j] = psi2
