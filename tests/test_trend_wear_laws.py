@@ -16,7 +16,7 @@ from fleet.trend.robust import fit_reweighted
 from fleet.trend.settings import AnalysisSettings
 from fleet.trend.wear_laws import MEMBERS, LawFits, aicc, akaike_weights, fit_wear_laws, joint_score
 
-CONVERGED = AnalysisSettings(irls_iterations=200)
+CONVERGED = AnalysisSettings(irls_iterations=200, irls_tolerance=1e-13)
 NAMES = [m.name for m in MEMBERS]
 
 

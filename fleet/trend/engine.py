@@ -149,11 +149,12 @@ def _crossing_passed(cur: pd.DataFrame, current_iv: pd.DataFrame, referred: pd.D
     keys = pd.DataFrame({"pump_id": cur.index.to_numpy(), "interval_no": current_iv["interval_no"].to_numpy()})
     per_day = cur["hours_per_day"].to_numpy(float)
     out = pd.DataFrame({"crossed_limit": np.where(past, names[first], None)}, index=cur.index)
+    near = referred[referred["pump_id"].isin(cur.index[past])]  # only past pumps' readings date a crossing
     for suffix, field_ in (("", "crossing_hours"), ("_low", "crossing_low"), ("_high", "crossing_high")):
         h = np.column_stack([cur[f"{q}_{field_}"].to_numpy(float) for q in QUANTITIES])[rows, first]
         h = np.where(past, h, np.nan)
         out[f"crossed_at_hours{suffix}"] = start + h
-        out[f"crossed_date{suffix}"] = dates_at_hours(referred, keys, h, per_day).to_numpy()
+        out[f"crossed_date{suffix}"] = dates_at_hours(near, keys, h, per_day).to_numpy()
     return out
 
 

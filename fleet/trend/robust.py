@@ -59,7 +59,8 @@ def fit_reweighted(
         for _ in range(settings.irls_iterations):
             fitted = a[group] + b[group] * x
             ok = np.isfinite(fitted)
-            if previous is not None and np.all(np.abs(fitted - previous)[ok] <= 1e-9 * (1.0 + np.abs(fitted[ok]))):
+            tolerance = settings.irls_tolerance * (1.0 + np.abs(fitted[ok]))
+            if previous is not None and np.all(np.abs(fitted - previous)[ok] <= tolerance):
                 break  # converged: further passes would change nothing that shows
             previous = fitted
             variance = np.where(ok, variance_of_fit(np.where(ok, fitted, y)), variance)

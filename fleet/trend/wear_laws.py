@@ -136,10 +136,17 @@ def member_x(member: Member, hours, hours_scale, hours_offset) -> np.ndarray:
         return np.maximum((h + hours_offset) / hours_scale, 0.0) ** member.power
 
 
-def _fit_power_members(group, hours, q, sigma, robust_w, clip, hours_scale, offset, n_groups, out, deviance):
+def _fit_power_members(group, hours, q, sigma, robust_w, clip, hours_scale, offset, n_groups, out, deviance,
+                       only=None):
     """Fill the power members' columns of `out` and `deviance`: one weighted least-squares pass per exponent
     with fixed weights (error model x Huber), from grouped sums; Huber's sandwich covariance as in
-    fleet.trend.robust.fit_reweighted, clipped at the common robust scale `clip`."""
+    fleet.trend.robust.fit_reweighted, clipped at the common robust scale `clip`. only: refit just these
+    groups (a mask over groups), leaving the others' figures as they are."""
+    rows = slice(None)
+    if only is not None:
+        keep = only[group]
+        group, hours, q, sigma, robust_w = group[keep], hours[keep], q[keep], sigma[keep], robust_w[keep]
+        rows = only
     model_w = 1.0 / sigma**2
     w = model_w * robust_w
     count = np.bincount(group, minlength=n_groups).astype(float)
@@ -153,29 +160,32 @@ def _fit_power_members(group, hours, q, sigma, robust_w, clip, hours_scale, offs
         if m.law != "power":
             continue
         x = np.exp(m.power * log_u)
-        sx = np.bincount(group, w * x, minlength=n_groups)
+        # Raw sums are safe here: x = ((h + h0) / H)^p lies in [0, 1].
+        wx = w * x
+        sx = np.bincount(group, wx, minlength=n_groups)
+        sxx = np.bincount(group, wx * x, minlength=n_groups)
+        sxy = np.bincount(group, wx * q, minlength=n_groups)
+        mx_sum = np.bincount(group, model_w * x, minlength=n_groups)
+        mxx_sum = np.bincount(group, model_w * x * x, minlength=n_groups)
         with np.errstate(invalid="ignore", divide="ignore"):
             x_mean, y_mean = sx / s0, sy / s0
-            dx = x - x_mean[group]
-            sxx = np.bincount(group, w * dx * dx, minlength=n_groups)
-            spread = sxx > 1e-12 * s0  # x = (h / H)^p lies in [0, 1]: no spread means one hour value
-            b = np.where(spread, np.bincount(group, w * dx * (q - y_mean[group]), minlength=n_groups) / sxx, np.nan)
+            spread = sxx - sx * x_mean
+            b = np.where(spread > 1e-12 * s0, (sxy - sx * y_mean) / spread, np.nan)  # no spread: one hour value
             a = y_mean - b * x_mean
             z2 = (q - a[group] - b[group] * x) ** 2 * model_w
             psi2 = np.bincount(group, np.minimum(z2, clip2), minlength=n_groups)
-            inside = np.bincount(group, (z2 <= clip2).astype(float), minlength=n_groups)
+            inside = np.bincount(group, z2 <= clip2, minlength=n_groups)
             dof = count - m.n_params
             scale2 = np.where(dof > 0, psi2 / np.where(dof > 0, dof, 1.0), np.nan) / (inside / count) ** 2
-            mx = np.bincount(group, model_w * x, minlength=n_groups) / m0
-            mdx = x - mx[group]
-            msxx = np.bincount(group, model_w * mdx * mdx, minlength=n_groups)
+            mx = mx_sum / m0
+            msxx = mxx_sum - mx_sum * mx
             inv_sxx = np.where(msxx > 1e-12 * m0, 1.0 / msxx, np.nan)
-            out["var_a"][:, j] = scale2 * (1.0 / m0 + mx**2 * inv_sxx)  # NaN for a group without readings
-        out["a"][:, j], out["b"][:, j] = a, b
-        out["var_b"][:, j] = scale2 * inv_sxx
-        out["cov_ab"][:, j] = -scale2 * mx * inv_sxx
-        out["dof"][:, j], out["scale"][:, j] = dof, np.sqrt(scale2)
-        deviance[:, j] = psi2
+            var_a = scale2 * (1.0 / m0 + mx**2 * inv_sxx)  # NaN for a group without readings
+        values = {"a": a, "b": b, "var_a": var_a, "var_b": scale2 * inv_sxx, "cov_ab": -scale2 * mx * inv_sxx,
+                  "dof": dof, "scale": np.sqrt(scale2)}
+        for name, value in values.items():
+            out[name][rows, j] = value[rows]
+        deviance[rows, j] = psi2[rows]
 
 
 def _best_power_huber(group, hours, q, sigma, out, deviance, hours_scale, offset, n_groups, settings):
@@ -278,14 +288,19 @@ def fit_wear_laws(
     for j in range(2):
         deviance[:, j] = np.bincount(group, np.minimum(z[:, j] ** 2, clip[group] ** 2), minlength=n_groups)
     # The power law's lines take shared Huber weights, one weighted pass each (its exponents are many, the
-    # outliers the same): a reading is an outlier when the exponential law, the linear law and the best power
-    # line all find it far off (a first pass finds that line; without it, readings that only the exponential
-    # and linear laws miss, as on an accelerating pump, would lose their weight).
+    # outliers the same): a reading is an outlier when the exponential law and the linear law find it far off
+    # and, where a power line fits best of all, that line too (a first pass finds it; without it, readings
+    # that only the exponential and linear laws miss, as on an accelerating pump, would lose their weight).
     robust_w = np.fmax(huber["exponential"], huber["linear"])
     _fit_power_members(group, hours, q, sigma, robust_w, clip, hours_scale, offset, n_groups, out, deviance)
-    robust_w = np.fmax(robust_w, _best_power_huber(group, hours, q, sigma, out, deviance, hours_scale, offset,
-                                                   n_groups, settings))
-    _fit_power_members(group, hours, q, sigma, robust_w, clip, hours_scale, offset, n_groups, out, deviance)
+    spared = np.fmax(robust_w, _best_power_huber(group, hours, q, sigma, out, deviance, hours_scale, offset,
+                                                 n_groups, settings))
+    is_power = np.array([m.law == "power" for m in MEMBERS])
+    power_best = np.nanmin(deviance[:, is_power], axis=1) < np.fmin(deviance[:, 0], deviance[:, 1])
+    changed = power_best & (np.bincount(group, spared != robust_w, minlength=n_groups) > 0)
+    if changed.any():
+        _fit_power_members(group, hours, q, sigma, spared, clip, hours_scale, offset, n_groups, out, deviance,
+                           only=changed)
     usable = np.isfinite(out["a"]) & np.isfinite(out["b"]) & np.isfinite(out["var_b"]) & np.isfinite(deviance)
     deviance = np.where(usable, np.maximum(deviance, 1e-12 * count[:, None]), np.nan)
     with np.errstate(invalid="ignore", divide="ignore"):
