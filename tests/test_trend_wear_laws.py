@@ -187,3 +187,17 @@ def test_averaged_crossing_solves_the_mixture_found_by_scipy_brentq():
         ref = optimize.brentq(lambda x, lv=level: crossed(x) - lv, now, 1e6)
         assert got[0] == pytest.approx(ref, rel=1e-6)
     assert 1.0 - value_cdf(laws, mid, [limit], 0.90)[0] == pytest.approx(0.5, abs=1e-6)
+
+
+def test_held_back_weighting_scores_forecasts_of_the_last_readings():
+    rng = np.random.default_rng(21)
+    h = np.linspace(0.0, 6000.0, 30)
+    sigma = np.full(h.size, 0.2)
+    q = 5.0 + 2e-3 * h + sigma * rng.standard_normal(h.size)  # steady wear
+    held = _laws(h, q, sigma, settings=AnalysisSettings(law_weighting="held_back"))
+    in_sample = _laws(h, q, sigma, settings=AnalysisSettings())
+    assert held.weight.sum() == pytest.approx(1.0)
+    # Same fitted lines, other weights: the linear law forecast the last readings best.
+    assert held.a == pytest.approx(in_sample.a, nan_ok=True)
+    assert held.law_weights()["linear"][0] > 0.5
+    assert not np.allclose(held.weight, in_sample.weight)
