@@ -94,3 +94,15 @@ def test_chart_band_meets_the_limit_at_the_forecast_hours():
     assert band["low"].iloc[0] == pytest.approx(ts.ETA_LIMIT, abs=1e-6)
     assert band["high"].iloc[2] == pytest.approx(ts.ETA_LIMIT, abs=1e-6)
     assert (band["low"] <= band["mean"]).all() and (band["mean"] <= band["high"]).all()
+
+
+def test_a_pump_gets_the_same_figures_whichever_pumps_are_analysed_with_it():
+    pumps, readings, now, _ = _fleet(41, "accelerating", covered=0.8)
+    full = analyze_fleet(pumps, readings, None, None, now=now).results
+    some = [3, 8, 21]
+    part = analyze_fleet(pumps[pumps["pump_id"].isin(some)], readings[readings["pump_id"].isin(some)], None, None,
+                         now=now).results
+    for column in ("eta_v_ref", "eta_v_decline_per_1000h", "hours_to_limit", "hours_to_limit_low",
+                   "hours_to_limit_high", "wear_power"):
+        assert np.allclose(part[column], full.loc[some, column], rtol=1e-12, equal_nan=True), column
+    assert part["wear_law_weights"].tolist() == full.loc[some, "wear_law_weights"].tolist()

@@ -56,12 +56,17 @@ def fit_reweighted(
     if not fixed:
         robust_w = np.ones_like(y)
         previous = None
+        done = np.zeros(n_groups, dtype=bool)
         for _ in range(settings.irls_iterations):
             fitted = a[group] + b[group] * x
             ok = np.isfinite(fitted)
-            tolerance = settings.irls_tolerance * (1.0 + np.abs(fitted[ok]))
-            if previous is not None and np.all(np.abs(fitted - previous)[ok] <= tolerance):
-                break  # converged: further passes would change nothing that shows
+            if previous is not None:
+                # A group whose fitted values moved less than the tolerance keeps its line from now on; each
+                # group's result depends on its own readings only, whichever pumps are analysed with it.
+                moved = ok & (np.abs(fitted - previous) > settings.irls_tolerance * (1.0 + np.abs(fitted)))
+                done |= np.bincount(group, moved, minlength=n_groups) == 0
+                if done.all():
+                    break
             previous = fitted
             variance = np.where(ok, variance_of_fit(np.where(ok, fitted, y)), variance)
             model_w = 1.0 / variance
@@ -70,7 +75,19 @@ def fit_reweighted(
             u = np.abs(z) / robust_scale(group, z, n_groups)[group]
             with np.errstate(divide="ignore", invalid="ignore"):
                 robust_w = np.where(u > k, k / u, 1.0)
-            a, b, x_mean = grouped_line(group, x, y_used, model_w * robust_w, n_groups)
+            a_new, b_new, x_mean_new = grouped_line(group, x, y_used, model_w * robust_w, n_groups)
+            a, b, x_mean = np.where(done, a, a_new), np.where(done, b, b_new), np.where(done, x_mean, x_mean_new)
+        # The error model and the Huber weights at the final line, so that they depend on it alone (not on
+        # whether the passes stopped because this group or the last one had converged).
+        fitted = a[group] + b[group] * x
+        ok = np.isfinite(fitted)
+        variance = np.where(ok, variance_of_fit(np.where(ok, fitted, y)), variance)
+        model_w = 1.0 / variance
+        y_used = y + bias * variance
+        z = (y_used - np.where(ok, fitted, y_used)) * np.sqrt(model_w)
+        u = np.abs(z) / robust_scale(group, z, n_groups)[group]
+        with np.errstate(divide="ignore", invalid="ignore"):
+            robust_w = np.where(u > k, k / u, 1.0)
 
     z = (y_used - (a[group] + b[group] * x)) * np.sqrt(model_w)
     clip_at = k * robust_scale(group, z, n_groups)[group]

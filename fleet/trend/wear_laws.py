@@ -296,7 +296,8 @@ def fit_wear_laws(
     spared = np.fmax(robust_w, _best_power_huber(group, hours, q, sigma, out, deviance, hours_scale, offset,
                                                  n_groups, settings))
     is_power = np.array([m.law == "power" for m in MEMBERS])
-    power_best = np.nanmin(deviance[:, is_power], axis=1) < np.fmin(deviance[:, 0], deviance[:, 1])
+    best_power_dev = np.min(np.where(np.isfinite(deviance[:, is_power]), deviance[:, is_power], np.inf), axis=1)
+    power_best = best_power_dev < np.fmin(deviance[:, 0], deviance[:, 1])
     changed = power_best & (np.bincount(group, spared != robust_w, minlength=n_groups) > 0)
     if changed.any():
         _fit_power_members(group, hours, q, sigma, spared, clip, hours_scale, offset, n_groups, out, deviance,
