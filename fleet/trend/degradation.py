@@ -1,82 +1,20 @@
-"""Wear trends: log-linear growth of the referred leakage with running hours, per pump interval.
+"""Wear trends: growth of the referred leakage with running hours, per pump interval, under several wear laws.
 
-Wear opens the clearances and laminar leakage grows with the cube of the gap, so the referred slip (and
-the referred case drain) grows roughly exponentially: ln(q_ref) = a + b h, h = hours in the interval.
-All pump intervals are fitted at once (grouped sums, a few reweighting passes), never one solver call per pump.
+Wear opens the clearances and laminar leakage grows with the cube of the gap, so the referred slip (and the
+referred case drain) often grows exponentially; abrasive wear grows it about linearly, a damaged part faster
+and faster, run-in slower and slower. Each law is fitted and weighed (fleet.trend.wear_laws); the figures
+people read come from their weighted mixture (fleet.trend.model_average). All pump intervals are fitted at
+once (grouped sums, a few reweighting passes), never one solver call per pump.
 """
 
 import numpy as np
 import pandas as pd
 
-from fleet.trend.linear import LineFit, grouped_wls, inverse_design
+from fleet.trend.model_average import averaged_slope, value_quantile
 from fleet.trend.settings import AnalysisSettings
+from fleet.trend.wear_laws import LAWS, LawFits, fit_wear_laws, joint_score
 
 QUANTITIES = ("slip", "drain")
-
-
-def _robust_scale(group: np.ndarray, z: np.ndarray, n_groups: int) -> np.ndarray:
-    """Per group 1.4826 x median |z| (MAD about the line), never below 1: the error model's own scatter."""
-    mad = pd.Series(np.abs(z)).groupby(group).median().reindex(range(n_groups)).to_numpy()
-    return np.maximum(1.4826 * np.nan_to_num(mad, nan=1.0), 1.0)
-
-
-def _fit_reweighted(
-    group: np.ndarray,
-    hours: np.ndarray,
-    log_value: np.ndarray,
-    variance_of_fit,
-    n_groups: int,
-    settings: AnalysisSettings,
-) -> LineFit:
-    """Robust weighted line fit of log_value on hours per group (IRLS with Huber weights).
-
-    variance_of_fit(fitted_log or None) gives each point's variance under the error model; it is
-    re-evaluated at the fitted line so that a single noisy point does not set its own weight. Huber
-    weights downweight outliers; the robust scale never drops below 1, the scatter the error model
-    itself explains, so ordinary noise is never treated as an outlier. The covariance is Huber's
-    sandwich, scale^2 = sum psi^2 / (n - 2) / mean(psi')^2 times (X'WX)^-1 of the error-model weights,
-    which stays honest when ordinary tails get clipped (a plain weighted residual sum would shrink).
-    """
-    k = settings.huber_k
-    variance = variance_of_fit(None)
-    model_w = 1.0 / variance
-    robust_w = np.ones_like(hours)
-    # The log of a noisy flow is biased low by about half its variance (second-order Taylor term); put
-    # it back, or low-slip (early, cold, low-pressure) readings would tilt the slope.
-    y = log_value + 0.5 * variance
-    fit = grouped_wls(group, hours, y, model_w, n_groups)
-    for _ in range(settings.irls_iterations):
-        fitted = fit.a[group] + fit.b[group] * hours
-        ok = np.isfinite(fitted)
-        variance = np.where(ok, variance_of_fit(np.where(ok, fitted, log_value)), variance)
-        model_w = 1.0 / variance
-        y = log_value + 0.5 * variance
-        z = (y - np.where(ok, fitted, y)) * np.sqrt(model_w)
-        u = np.abs(z) / _robust_scale(group, z, n_groups)[group]
-        with np.errstate(divide="ignore", invalid="ignore"):
-            robust_w = np.where(u > k, k / u, 1.0)
-        fit = grouped_wls(group, hours, y, model_w * robust_w, n_groups)
-
-    z = (y - (fit.a[group] + fit.b[group] * hours)) * np.sqrt(model_w)
-    clip_at = k * _robust_scale(group, z, n_groups)[group]
-    count = np.bincount(group, minlength=n_groups).astype(float)
-    psi2 = np.bincount(group, np.minimum(z * z, clip_at * clip_at), minlength=n_groups)
-    inside = np.bincount(group, (np.abs(z) <= clip_at).astype(float), minlength=n_groups)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        dof = count - 2.0
-        scale2 = np.where(dof > 0, psi2 / np.where(dof > 0, dof, 1.0), np.nan) / (inside / count) ** 2
-    v_aa, v_ab, v_bb = inverse_design(group, hours, model_w, n_groups)
-    return LineFit(
-        a=fit.a,
-        b=fit.b,
-        var_a=scale2 * v_aa,
-        var_b=scale2 * v_bb,
-        cov_ab=scale2 * v_ab,
-        scale=np.sqrt(scale2),
-        dof=dof,
-        n_points=count,
-        x_mean=fit.x_mean,
-    )
 
 
 def _span(group: np.ndarray, hours: np.ndarray, n_groups: int) -> np.ndarray:
@@ -85,22 +23,32 @@ def _span(group: np.ndarray, hours: np.ndarray, n_groups: int) -> np.ndarray:
     return span.to_numpy(dtype=float)
 
 
-def _as_frame(fit: LineFit, span: np.ndarray, current_hours: np.ndarray, prefix: str) -> pd.DataFrame:
-    with np.errstate(over="ignore"):
-        current = np.exp(fit.a + fit.b * current_hours)
+def _as_frame(laws: LawFits, span: np.ndarray, current_hours: np.ndarray, prefix: str, settings) -> pd.DataFrame:
+    """The exponential member's line under the historical names (q_a, q_b, ...), the averaged figures, the laws."""
+    exp = 0  # MEMBERS[0] is the exponential law
+    weights = laws.law_weights()
+    stacked = np.column_stack([weights[law] for law in LAWS])
+    fitted = laws.weight.sum(axis=1) > 0
+    wear_law = np.where(fitted, np.array(LAWS, dtype=object)[np.argmax(stacked, axis=1)], None)
     cols = {
-        "n_points": fit.n_points.astype(np.int64),
+        "n_points": laws.n_points.astype(np.int64),
         "span_hours": span,
-        "a": fit.a,
-        "b": fit.b,
-        "var_a": fit.var_a,
-        "var_b": fit.var_b,
-        "cov_ab": fit.cov_ab,
-        "scale": fit.scale,
-        "dof": fit.dof,
-        "current_lpm": current,
+        "a": laws.a[:, exp],
+        "b": laws.b[:, exp],
+        "var_a": laws.var_a[:, exp],
+        "var_b": laws.var_b[:, exp],
+        "cov_ab": laws.cov_ab[:, exp],
+        "scale": laws.scale[:, exp],
+        "dof": laws.dof[:, exp],
+        "current_lpm": value_quantile(laws, current_hours, 0.5, settings.confidence),
+        "start_lpm": value_quantile(laws, np.zeros_like(current_hours), 0.5, settings.confidence),
+        "slope_lpm_per_h": averaged_slope(laws, current_hours),
+        "wear_law": wear_law,
+        **{f"weight_{law}": np.where(fitted, weights[law], np.nan) for law in LAWS},
     }
-    return pd.DataFrame({f"{prefix}_{k}": v for k, v in cols.items()})
+    out = {f"{prefix}_{k}": v for k, v in cols.items()}
+    out.update(laws.to_columns(prefix))
+    return pd.DataFrame(out)
 
 
 def fit_degradation(referred: pd.DataFrame, settings: AnalysisSettings | None = None) -> pd.DataFrame:
@@ -114,9 +62,15 @@ def fit_degradation(referred: pd.DataFrame, settings: AnalysisSettings | None = 
     the log. The case drain is measured directly, with a constant relative noise.
 
     Returns one row per pump interval: pump_id, interval_no, current_hours (latest hours in the interval),
-    and per quantity q in (slip, drain): q_n_points, q_span_hours, q_a, q_b, q_var_a, q_var_b, q_cov_ab,
-    q_scale, q_dof, q_current_lpm (fitted value at current_hours). Derived eta_v_ref figures are added by
-    `summarise_fits`.
+    and per quantity q in (slip, drain):
+    - q_n_points, q_span_hours: the readings fitted;
+    - q_a, q_b, q_var_a, q_var_b, q_cov_ab, q_scale, q_dof: the exponential law's line ln q = a + b h;
+    - q_current_lpm, q_start_lpm: the averaged trend (median of the model mixture) at current_hours and at 0;
+    - q_slope_lpm_per_h: the model-weighted growth rate at current_hours;
+    - q_wear_law (the law with the most weight, None if unfitted) and q_weight_<law> for each of LAWS;
+    - q_hours_scale, q_hours_offset and q_<member>_<a|b|var_a|var_b|cov_ab|dof|weight> for every member of the model set
+      (LawFits.from_columns(fits, q) rebuilds it, e.g. for a chart's band).
+    Derived eta_v_ref figures are added by `summarise_fits`.
     """
     s = settings or AnalysisSettings()
     keys = referred[["pump_id", "interval_no"]].drop_duplicates().sort_values(["pump_id", "interval_no"])
@@ -133,6 +87,11 @@ def fit_degradation(referred: pd.DataFrame, settings: AnalysisSettings | None = 
     good = referred["flag"].isna().to_numpy() & valid_hours
 
     frames = [keys.assign(current_hours=current_hours)]
+    # Hours run before the interval's hours count: the first interval's hour meter counts from new.
+    start_meter = pd.to_numeric(referred["interval_start_hours"], errors="coerce").to_numpy(dtype=float)
+    first_interval = referred["interval_no"].to_numpy() == 0
+    offset = pd.Series(np.where(first_interval, start_meter, 0.0)).groupby(group_all).first()
+    offset = np.maximum(offset.reindex(range(n_groups)).fillna(0.0).to_numpy(dtype=float), 0.0)
 
     # Slip: error model from the flow meter.
     rated = referred["rated_flow_lpm"].to_numpy(dtype=float)
@@ -145,30 +104,32 @@ def fit_degradation(referred: pd.DataFrame, settings: AnalysisSettings | None = 
     floor_u, factor_u = floor[use], factor[use]
     sigma_q = s.flow_noise_fraction * np.abs(flow[use])
     sigma_q = np.maximum(sigma_q, 1e-6 * rated[use])  # a zero flow reading still has meter noise
-    with np.errstate(divide="ignore", invalid="ignore"):
-        log_slip_ref = np.log(np.maximum(slip_raw[use], floor_u) * factor_u)
+    q_slip = np.maximum(slip_raw[use], floor_u) * factor_u
 
-    def slip_variance(fitted_log):
-        if fitted_log is None:
-            raw = np.maximum(slip_raw[use], floor_u)
-        else:
-            with np.errstate(over="ignore"):
-                raw = np.maximum(np.exp(fitted_log) / factor_u, floor_u)
-        return (sigma_q / raw) ** 2
+    def slip_sigma(_fitted):
+        return sigma_q * factor_u  # the flow meter's noise, referred like the slip
 
-    slip_fit = _fit_reweighted(g, h, log_slip_ref, slip_variance, n_groups, s)
-    frames.append(_as_frame(slip_fit, _span(g, h, n_groups), current_hours, "slip"))
+    slip_laws = fit_wear_laws(g, h, q_slip, slip_sigma, floor_u * factor_u, n_groups, s, offset)
 
-    # Case drain: measured directly, constant relative noise -> constant variance in log space.
+    # Case drain: measured directly, constant relative noise.
     drain_ref = referred["drain_ref_lpm"].to_numpy(dtype=float)
     use_d = good & np.isfinite(drain_ref) & (floor > 0)
     gd, hd = group_all[use_d], hours[use_d]
-    with np.errstate(divide="ignore", invalid="ignore"):
-        drain_floor = floor[use_d] * factor[use_d]
-        log_drain = np.log(np.maximum(drain_ref[use_d], drain_floor))
-    unit_variance = np.full(len(gd), s.drain_noise_fraction**2)
-    drain_fit = _fit_reweighted(gd, hd, log_drain, lambda _fitted: unit_variance, n_groups, s)
-    frames.append(_as_frame(drain_fit, _span(gd, hd, n_groups), current_hours, "drain"))
+    drain_floor = floor[use_d] * factor[use_d]
+    q_drain = np.maximum(drain_ref[use_d], drain_floor)
+
+    def drain_sigma(fitted):
+        return s.drain_noise_fraction * (q_drain if fitted is None else fitted)
+
+    drain_laws = fit_wear_laws(gd, hd, q_drain, drain_sigma, drain_floor, n_groups, s, offset)
+
+    # One law of wear for both trends of an interval (they leak through the same clearances).
+    joint = joint_score(slip_laws.law_score, drain_laws.law_score)
+    joint_power = joint_score(slip_laws.power_score, drain_laws.power_score)
+    slip_laws.weigh(joint, joint_power)
+    drain_laws.weigh(joint, joint_power)
+    frames.append(_as_frame(slip_laws, _span(g, h, n_groups), current_hours, "slip", s))
+    frames.append(_as_frame(drain_laws, _span(gd, hd, n_groups), current_hours, "drain", s))
     return pd.concat(frames, axis=1)
 
 
@@ -197,19 +158,22 @@ def not_enough_reason(n_points: np.ndarray, span_hours: np.ndarray, settings: An
 def summarise_fits(fits: pd.DataFrame, rated_flow_lpm: np.ndarray, max_flow_lpm: np.ndarray, settings) -> pd.DataFrame:
     """Add the figures people read: eta_v,ref now, its decline per 1000 h, drain % now, data sufficiency.
 
-    eta_v,ref = 1 - slip_ref / rated flow, so d(eta)/dh = -b slip_ref(h) / rated flow; the decline is
-    reported positive when the pump is losing efficiency (fraction per 1000 h).
+    eta_v,ref = 1 - slip_ref / rated flow, so d(eta)/dh = -d(slip_ref)/dh / rated flow, the growth rate being
+    the model-weighted one; the decline is reported positive when the pump is losing efficiency (fraction per
+    1000 h).
     """
     out = fits.copy()
     rated = np.asarray(rated_flow_lpm, dtype=float)
     max_flow = np.asarray(max_flow_lpm, dtype=float)
     with np.errstate(invalid="ignore", divide="ignore"):
         out["eta_v_ref"] = 1.0 - out["slip_current_lpm"].to_numpy() / rated
-        out["eta_v_decline_per_1000h"] = 1000.0 * out["slip_b"].to_numpy() * out["slip_current_lpm"].to_numpy() / rated
+        out["eta_v_decline_per_1000h"] = 1000.0 * out["slip_slope_lpm_per_h"].to_numpy() / rated
         out["drain_pct_ref"] = 100.0 * out["drain_current_lpm"].to_numpy() / max_flow
     for q in QUANTITIES:
         ok = enough_data(out[f"{q}_n_points"], out[f"{q}_span_hours"], settings)
         out[f"{q}_enough_data"] = ok
     out.loc[~out["slip_enough_data"], ["eta_v_ref", "eta_v_decline_per_1000h"]] = np.nan
     out.loc[~out["drain_enough_data"], "drain_pct_ref"] = np.nan
+    for q in QUANTITIES:  # a law is named only where there is a trend
+        out[f"{q}_wear_law"] = out[f"{q}_wear_law"].where(out[f"{q}_enough_data"], None)
     return out

@@ -10,15 +10,23 @@ import numpy as np
 import pandas as pd
 
 from fleet.frames import READING_COLUMNS
-from fleet.trend.degradation import fit_degradation, not_enough_reason, summarise_fits
+from fleet.trend.degradation import QUANTITIES, fit_degradation, not_enough_reason, summarise_fits
 from fleet.trend.energy import leakage_energy, typical_pressure_bar
 from fleet.trend.intervals import assign_intervals, interval_lives
 from fleet.trend.linear import t_quantile
 from fleet.trend.oil_condition import OIL_COLUMNS, oil_condition
 from fleet.trend.referral import refer_readings
-from fleet.trend.remaining_life import hours_per_day, hours_to_limits, limit_dates, limit_flows_lpm
+from fleet.trend.remaining_life import (
+    LIMIT_NAMES,
+    dates_at_hours,
+    hours_per_day,
+    hours_to_limits,
+    limit_dates,
+    limit_flows_lpm,
+)
 from fleet.trend.settings import AnalysisSettings
 from fleet.trend.status import assess_status, horizon_remaining_hours
+from fleet.trend.wear_laws import LAWS, MEMBERS
 from fleet.trend.weibull import expected_overhauls, fit_fleet_priors, mean_residual_life
 
 KEYS = ["pump_id", "interval_no"]
@@ -90,6 +98,64 @@ def _past_margin(fits: pd.DataFrame, limits: dict[str, np.ndarray], last: pd.Dat
     slip = np.where(fits["slip_enough_data"].to_numpy(bool), slip, raw_slip)
     drain = np.where(fits["drain_enough_data"].to_numpy(bool), drain, raw_drain)
     return np.fmax(slip, drain)
+
+
+def _wear_law(cur: pd.DataFrame) -> pd.DataFrame:
+    """wear_law (the law with the most weight), wear_law_weights ({law: weight}) and wear_power (the power law's
+    exponent, averaged over its members by weight) of each pump's current interval. Slip and case drain are
+    weighed jointly, so both trends carry the same weights; the slip's are read, the drain's where only the
+    drain has a trend. None (NaN) without a trend."""
+    slip_ok = cur["slip_enough_data"].to_numpy(bool)
+    drain_ok = cur["drain_enough_data"].to_numpy(bool)
+    source = np.where(slip_ok, "slip", "drain")
+    known = slip_ok | drain_ok
+    law = np.where(slip_ok, cur["slip_wear_law"], np.where(drain_ok, cur["drain_wear_law"], None))
+    weights = {
+        name: np.where(source == "slip", cur[f"slip_weight_{name}"], cur[f"drain_weight_{name}"]).astype(float)
+        for name in LAWS
+    }
+    as_dicts = [
+        {name: float(weights[name][i]) for name in LAWS} if known[i] and law[i] is not None else None
+        for i in range(len(cur))
+    ]
+    # The power law's exponent, weighted over its members: above 1 accelerating, below 1 slowing down.
+    power = np.zeros(len(cur))
+    total = np.zeros(len(cur))
+    for m in MEMBERS:
+        if m.law == "power":
+            w = np.where(source == "slip", cur[f"slip_{m.name}_weight"], cur[f"drain_{m.name}_weight"]).astype(float)
+            power, total = power + np.nan_to_num(w) * m.power, total + np.nan_to_num(w)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        wear_power = np.where(known & (total > 0), power / total, np.nan)
+    return pd.DataFrame({"wear_law": law, "wear_law_weights": as_dicts, "wear_power": wear_power}, index=cur.index)
+
+
+def _crossing_passed(cur: pd.DataFrame, current_iv: pd.DataFrame, referred: pd.DataFrame) -> pd.DataFrame:
+    """For a pump whose trend is already past a limit: when its trend crossed it, estimated from its readings.
+
+    crossed_limit names the limit crossed first; crossed_at_hours (hour meter) with _low/_high bounds at the
+    analysis confidence, and crossed_date with crossed_date_low/_high (dates interpolated between the
+    readings' hour-meter values). NaN/NaT/None for pumps not past a limit, and for an open bound.
+    """
+    names = np.array([LIMIT_NAMES[q] for q in QUANTITIES], dtype=object)
+    stacked = np.column_stack(
+        [np.where(cur[f"{q}_past"].to_numpy(bool), cur[f"{q}_crossing_hours"].to_numpy(float), np.inf)
+         for q in QUANTITIES]
+    )
+    past = np.isfinite(stacked).any(axis=1)
+    first = np.argmin(stacked, axis=1)
+    rows = np.arange(len(cur))
+    start = current_iv["start_hours"].to_numpy(float)
+    keys = pd.DataFrame({"pump_id": cur.index.to_numpy(), "interval_no": current_iv["interval_no"].to_numpy()})
+    per_day = cur["hours_per_day"].to_numpy(float)
+    out = pd.DataFrame({"crossed_limit": np.where(past, names[first], None)}, index=cur.index)
+    near = referred[referred["pump_id"].isin(cur.index[past])]  # only past pumps' readings date a crossing
+    for suffix, field_ in (("", "crossing_hours"), ("_low", "crossing_low"), ("_high", "crossing_high")):
+        h = np.column_stack([cur[f"{q}_{field_}"].to_numpy(float) for q in QUANTITIES])[rows, first]
+        h = np.where(past, h, np.nan)
+        out[f"crossed_at_hours{suffix}"] = start + h
+        out[f"crossed_date{suffix}"] = dates_at_hours(near, keys, h, per_day).to_numpy()
+    return out
 
 
 def analyze_fleet(
@@ -220,6 +286,8 @@ def analyze_fleet(
     ):
         res[dst] = limit_dates(res["last_reading_at"], res[src], res["hours_per_day"]).to_numpy()
 
+    res = res.join(_wear_law(cur))
+    res = res.join(_crossing_passed(cur, current_iv, referred))
     res["past_margin"] = _past_margin(cur, cur_limits, last, pump_tab)
     res["data_note"] = _data_note(res, current_iv, cur, s)
 
@@ -230,8 +298,7 @@ def analyze_fleet(
         ]
     )
     res["cleanliness_target"] = pump_tab["cleanliness_target"]
-    with np.errstate(over="ignore"):
-        slip_start = np.exp(cur["slip_a"].to_numpy(float))
+    slip_start = cur["slip_start_lpm"].to_numpy(float)
     slip_now = np.where(cur["slip_enough_data"], cur["slip_current_lpm"], np.nan)
     energy = leakage_energy(
         slip_now,

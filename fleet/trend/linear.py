@@ -50,6 +50,22 @@ def inverse_design(group: np.ndarray, x: np.ndarray, w: np.ndarray, n_groups: in
     return _safe_div(1.0, s0) + x_mean**2 * inv_sxx, -x_mean * inv_sxx, inv_sxx
 
 
+def grouped_line(group: np.ndarray, x: np.ndarray, y: np.ndarray, w: np.ndarray, n_groups: int):
+    """Only the weighted least-squares line (a, b) per group, as grouped_wls but without its error terms
+    (the reweighting passes of a robust fit need nothing else). Points with w <= 0 or non-finite values
+    are ignored; NaN where a group's x do not spread."""
+    use = np.isfinite(x) & np.isfinite(y) & np.isfinite(w) & (w > 0)
+    if not use.all():
+        group, x, y, w = group[use], x[use], y[use], w[use]
+    s0 = np.bincount(group, w, minlength=n_groups)
+    x_mean = _safe_div(np.bincount(group, w * x, minlength=n_groups), s0)
+    y_mean = _safe_div(np.bincount(group, w * y, minlength=n_groups), s0)
+    dx = x - x_mean[group]
+    sxx = _spread(group, x, w, dx, n_groups)
+    b = _safe_div(np.bincount(group, w * dx * (y - y_mean[group]), minlength=n_groups), sxx)
+    return y_mean - b * x_mean, b, x_mean
+
+
 def grouped_wls(
     group: np.ndarray, x: np.ndarray, y: np.ndarray, w: np.ndarray, n_groups: int, dof_points=None
 ) -> LineFit:

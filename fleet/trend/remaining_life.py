@@ -1,18 +1,20 @@
 """Hours and calendar dates until each limit, from a pump's own trend, with honest bounds.
 
 The limit on eta_v,ref becomes a limit on the referred slip, (1 - eta_limit) x rated flow; the case drain
-limit is pct / 100 x max flow. On the log scale the fitted line ln q = a + b h reaches ln(limit) at
-h* = (ln limit - a) / b. The bounds are a Fieller (inverse prediction) interval of that crossing for the
-fitted mean line, t distribution with n - 2 degrees of freedom (ISO 13381-1 asks a prognosis to name its
-limit and carry a confidence figure).
+limit is pct / 100 x max flow. The forecast is where the model-averaged trend of the wear laws reaches it;
+the bounds are the quantiles of that crossing under the mixture of the laws' fitted mean lines, which for
+a single law is the Fieller (inverse prediction) interval (ISO 13381-1 asks a prognosis to name its limit
+and carry a confidence figure).
 """
 
 import numpy as np
 import pandas as pd
 
 from fleet.trend.degradation import QUANTITIES, not_enough_reason
-from fleet.trend.linear import LineFit, fieller_crossing, line_variance, t_quantile
+from fleet.trend.linear import LineFit, line_variance, t_quantile
+from fleet.trend.model_average import crossing_quantiles, value_quantile
 from fleet.trend.settings import AnalysisSettings
+from fleet.trend.wear_laws import LawFits
 
 LIMIT_NAMES = {"slip": "eta_v", "drain": "case_drain"}
 
@@ -43,35 +45,40 @@ def limit_flows_lpm(eta_v_limit, drain_limit_pct, rated_flow_lpm, max_flow_lpm) 
 def hours_to_limits(fits: pd.DataFrame, limits_lpm: dict[str, np.ndarray], settings: AnalysisSettings) -> pd.DataFrame:
     """Remaining hours to each limit and to the governing one, for every fitted pump interval.
 
-    Per limit q (slip -> eta_v, drain -> case_drain): q_crossing_hours (interval hours at the crossing),
-    q_hours_to_limit, q_hours_low, q_hours_high (remaining hours, 0 once past), q_upper_open (no finite
-    upper bound: slope not significantly positive), q_past (the fitted value is beyond the limit now) and
-    q_note (a sentence when no figure can be given). Then governing_limit, hours_to_limit,
-    hours_to_limit_low, hours_to_limit_high, upper_bound_open for the limit reached first.
+    The crossing is that of the model-averaged trend (fleet.trend.model_average): its median is the forecast,
+    its (1 - confidence) / 2 and (1 + confidence) / 2 quantiles the bounds. Per limit q (slip -> eta_v,
+    drain -> case_drain): q_crossing_hours, q_crossing_low, q_crossing_high (interval hours at the crossing
+    and its bounds, also for a limit already passed; NaN where open), q_hours_to_limit, q_hours_low,
+    q_hours_high (remaining hours, 0 once past), q_upper_open (no finite upper bound: the trend may stay
+    below the limit), q_past (the averaged trend is beyond the limit now) and q_note (a sentence when no
+    figure can be given). Then governing_limit, hours_to_limit, hours_to_limit_low, hours_to_limit_high,
+    upper_bound_open for the limit reached first.
     """
     out = pd.DataFrame(index=fits.index)
     now_h = fits["current_hours"].to_numpy(dtype=float)
+    alpha = 1.0 - settings.confidence
     for q in QUANTITIES:
-        fit = _line_fit(fits, q)
+        laws = LawFits.from_columns(fits, q)
         limit = np.asarray(limits_lpm[q], dtype=float)
-        with np.errstate(divide="ignore", invalid="ignore"):
-            log_limit = np.where(limit > 0, np.log(np.where(limit > 0, limit, 1.0)), np.nan)
-        x_hat, x_low, x_high, _ = fieller_crossing(fit, log_limit, settings.confidence)
         enough = fits[f"{q}_enough_data"].to_numpy(dtype=bool)
-        has_limit = np.isfinite(log_limit)
-        current = fits[f"{q}_current_lpm"].to_numpy(dtype=float)
-        past = enough & has_limit & (current >= limit)
+        has_limit = np.isfinite(limit) & (limit > 0)
         usable = enough & has_limit
+        x_low, x_hat, x_high = crossing_quantiles(
+            laws, np.where(usable, limit, np.nan), now_h, (alpha / 2, 0.5, 1 - alpha / 2), settings.confidence
+        )
+        current = fits[f"{q}_current_lpm"].to_numpy(dtype=float)
+        past = usable & (current >= limit)
 
         with np.errstate(invalid="ignore"):
             remaining = np.where(past, 0.0, np.maximum(x_hat - now_h, 0.0))
-            low = np.maximum(np.where(np.isneginf(x_low), now_h, x_low) - now_h, 0.0)
-            high = np.where(np.isposinf(x_high), np.nan, np.maximum(x_high - now_h, 0.0))
-        upper_open = usable & np.isposinf(x_high)
-        no_crossing = usable & ~past & ~(fit.b > 0)
-        low = np.where(np.isposinf(x_low), np.nan, low)  # a significant improvement: never reached
+            low = np.maximum(x_low - now_h, 0.0)
+            high = np.maximum(x_high - now_h, 0.0)
+        upper_open = usable & np.isnan(x_high)
+        no_crossing = usable & ~past & np.isnan(x_hat)
 
         out[f"{q}_crossing_hours"] = np.where(usable, x_hat, np.nan)
+        out[f"{q}_crossing_low"] = np.where(usable, x_low, np.nan)
+        out[f"{q}_crossing_high"] = np.where(usable, x_high, np.nan)
         out[f"{q}_hours_to_limit"] = np.where(usable, remaining, np.nan)
         out[f"{q}_hours_low"] = np.where(usable, low, np.nan)
         out[f"{q}_hours_high"] = np.where(usable, high, np.nan)
@@ -149,10 +156,14 @@ def limit_dates(last_reading_at: pd.Series, remaining_hours, per_day) -> pd.Seri
 def trend_band(fit, hours_grid, qmax, confidence: float = 0.90, quantity: str = "slip") -> pd.DataFrame:
     """Fitted eta_v,ref (or case drain % for quantity="drain") on a grid of interval hours, with its band.
 
-    fit: one row of FleetAnalysis.fits (a mapping with slip_a, slip_b, slip_var_a, ...). qmax: the rated
-    flow for eta_v,ref (V_g n_r / 1000) or the max flow for drain %. Returns hours, mean, low, high where
-    low/high bound the fitted mean line at the confidence level.
+    fit: one row of FleetAnalysis.fits. Such a row carries the wear laws, and the band is then the
+    model-averaged one (averaged_band), which meets the limit where hours_to_limits says. A mapping with only
+    an exponential line (slip_a, slip_b, slip_var_a, ...) gives that line's band. qmax: the rated flow for
+    eta_v,ref (V_g n_r / 1000) or the max flow for drain %. Returns hours, mean, low, high where low/high bound
+    the fitted mean line at the confidence level.
     """
+    if f"{quantity}_hours_scale" in fit:
+        return averaged_band(fit, hours_grid, qmax, confidence, quantity)
     h = np.asarray(hours_grid, dtype=float)
     get = lambda name: np.asarray([float(fit[f"{quantity}_{name}"])])  # noqa: E731
     line = LineFit(
@@ -175,3 +186,54 @@ def trend_band(fit, hours_grid, qmax, confidence: float = 0.90, quantity: str = 
     else:
         mean, low, high = 100.0 * mid_flow / qmax, 100.0 * lo_flow / qmax, 100.0 * hi_flow / qmax
     return pd.DataFrame({"hours": h, "mean": mean, "low": low, "high": high})
+
+
+def dates_at_hours(readings: pd.DataFrame, keys: pd.DataFrame, interval_hours, per_day) -> pd.Series:
+    """Calendar date at which each pump interval's hour meter showed `interval_hours` (hours in the interval).
+
+    Between two readings the date is interpolated from their hour-meter values; before the first or after the
+    last reading it is extrapolated at the interval's hours per day. keys: pump_id, interval_no per target
+    (same length as interval_hours and per_day). NaT where a figure is missing.
+    """
+    target = keys[["pump_id", "interval_no"]].reset_index(drop=True).assign(
+        h=np.asarray(interval_hours, dtype=float), rate=np.asarray(per_day, dtype=float), row=np.arange(len(keys))
+    )
+    r = readings.loc[
+        np.isfinite(pd.to_numeric(readings["interval_hours"], errors="coerce")) & readings["taken_at"].notna(),
+        ["pump_id", "interval_no", "interval_hours", "taken_at"],
+    ].rename(columns={"interval_hours": "h"})
+    r = r.assign(h=r["h"].astype(float)).sort_values("h", kind="stable")
+    known = target[np.isfinite(target["h"])].sort_values("h", kind="stable")
+    by = ["pump_id", "interval_no"]
+    before = pd.merge_asof(known, r.rename(columns={"h": "h_b", "taken_at": "t_b"}), left_on="h", right_on="h_b",
+                           by=by, direction="backward")
+    after = pd.merge_asof(known, r.rename(columns={"h": "h_f", "taken_at": "t_f"}), left_on="h", right_on="h_f",
+                          by=by, direction="forward")
+    m = before.set_index("row")[["h", "rate", "h_b", "t_b"]].join(after.set_index("row")[["h_f", "t_f"]])
+    span_days = (m["t_f"] - m["t_b"]).dt.total_seconds() / 86400.0
+    with np.errstate(invalid="ignore", divide="ignore"):
+        share = ((m["h"] - m["h_b"]) / (m["h_f"] - m["h_b"])).where(m["h_f"] > m["h_b"], 0.0)
+        inside = m["t_b"] + pd.to_timedelta(share * span_days.fillna(0.0), unit="D")
+        ahead = m["t_b"] + pd.to_timedelta(((m["h"] - m["h_b"]) / m["rate"]).where(m["rate"] > 0), unit="D")
+        behind = m["t_f"] - pd.to_timedelta(((m["h_f"] - m["h"]) / m["rate"]).where(m["rate"] > 0), unit="D")
+    date = inside.where(m["t_b"].notna() & m["t_f"].notna(), ahead.where(m["t_b"].notna(), behind))
+    return date.reindex(range(len(keys))).dt.normalize().reset_index(drop=True)
+
+
+def averaged_band(fit, hours_grid, qmax, confidence: float = 0.90, quantity: str = "slip") -> pd.DataFrame:
+    """The model-averaged forecast of eta_v,ref (or case drain % for quantity="drain") on a grid of interval
+    hours, with its band: what a chart of the pump's current interval draws.
+
+    fit: one row of FleetAnalysis.fits. qmax: the rated flow for eta_v,ref or the max flow for drain %.
+    Returns hours, mean (the mixture's median), low, high; the band meets the limit exactly at the hours
+    bounds of hours_to_limits (both come from the same mixture).
+    """
+    laws = LawFits.from_columns(fit, quantity)
+    h = np.asarray(hours_grid, dtype=float)[None, :]
+    alpha = 1.0 - confidence
+    lo, mid, hi = (value_quantile(laws, h, level, confidence)[0] for level in (alpha / 2, 0.5, 1 - alpha / 2))
+    if quantity == "slip":
+        mean, low, high = 1.0 - mid / qmax, 1.0 - hi / qmax, 1.0 - lo / qmax
+    else:
+        mean, low, high = 100.0 * mid / qmax, 100.0 * lo / qmax, 100.0 * hi / qmax
+    return pd.DataFrame({"hours": h[0], "mean": mean, "low": low, "high": high})

@@ -37,6 +37,23 @@ def _sentences(mask: np.ndarray, make, *columns) -> list:
     return [make(*vals) if m else None for m, *vals in zip(mask, *columns, strict=True)]
 
 
+def wear_shape_sentence(law: str, weights: dict | None, power: float) -> str:
+    """The shape the wear takes, in words, and how much of the weight among the laws compared that shape has."""
+    share = (weights or {}).get(law, np.nan)
+    how_sure = f" (weight {share:.0%} among the wear laws compared)" if np.isfinite(share) else ""
+    if law == "exponential":
+        shape = "The wear is growing exponentially, faster as the clearances open"
+    elif law == "linear":
+        shape = "The wear is steady, in proportion to the running hours"
+    elif np.isfinite(power) and power > 1:
+        shape = f"The wear is accelerating, like a power {power:.1f} of the running hours"
+    elif np.isfinite(power):
+        shape = f"The wear is slowing down, as after run-in, like a power {power:.1f} of the running hours"
+    else:
+        shape = "The wear follows a power of the running hours"
+    return shape + how_sure + "."
+
+
 def horizon_remaining_hours(results: pd.DataFrame, now) -> tuple[np.ndarray, np.ndarray]:
     """(hours left from now to the governing limit, hours in the planning horizon) per pump."""
     per_day = _num(results, "hours_per_day")
@@ -232,7 +249,34 @@ def assess_status(results: pd.DataFrame, now, settings: AnalysisSettings) -> pd.
             _num(r, "planning_horizon_weeks"),
         )
     ]
-    all_reasons = reasons_past + reasons_due + reasons_watch + reasons_healthy
+    crossed = past & _col(r, "crossed_limit", None).map(lambda v: isinstance(v, str)).to_numpy(dtype=bool)
+    reasons_crossed = [
+        _sentences(
+            crossed,
+            lambda g, h, d, dl, dh: (
+                f"By its trend the {LIMIT_WORDS.get(g, g)} limit was crossed at about {h:,.0f} h on the hour "
+                f"meter, around {_date(d)} ({settings.confidence:.0%} bounds {_date(dl)} to "
+                f"{'open' if pd.isna(dh) else _date(dh)})."
+            ),
+            _col(r, "crossed_limit", None),
+            _num(r, "crossed_at_hours"),
+            _col(r, "crossed_date", pd.NaT),
+            _col(r, "crossed_date_low", pd.NaT),
+            _col(r, "crossed_date_high", pd.NaT),
+        )
+    ]
+    law = _col(r, "wear_law", None).to_numpy(dtype=object)
+    shaped = (past | due) & np.array([isinstance(v, str) for v in law], dtype=bool)
+    reasons_shape = [
+        _sentences(
+            shaped,
+            lambda name, weights, p: wear_shape_sentence(name, weights, p),
+            law,
+            _col(r, "wear_law_weights", None),
+            _num(r, "wear_power"),
+        )
+    ]
+    all_reasons = reasons_past + reasons_crossed + reasons_due + reasons_shape + reasons_watch + reasons_healthy
     reasons = [[s for s in row if s is not None] for row in zip(*all_reasons, strict=True)] if len(r) else []
 
     rank = service_rank(

@@ -1,0 +1,112 @@
+"""Robust weighted straight-line fits y = a + b x for many groups at once (IRLS with Huber weights).
+
+Every wear law is a straight line in its own coordinates (log slip against hours, slip against hours, slip
+against a power of hours), so one fitter serves them all: grouped sums, a few reweighting passes, never one
+solver call per pump.
+"""
+
+import numpy as np
+import pandas as pd
+
+from fleet.trend.linear import LineFit, grouped_line, inverse_design
+from fleet.trend.settings import AnalysisSettings
+
+
+def robust_scale(group: np.ndarray, z: np.ndarray, n_groups: int) -> np.ndarray:
+    """Per group 1.4826 x median |z| (MAD about the line), never below 1: the error model's own scatter."""
+    mad = pd.Series(np.abs(z)).groupby(group).median().reindex(range(n_groups)).to_numpy()
+    return np.maximum(1.4826 * np.nan_to_num(mad, nan=1.0), 1.0)
+
+
+def fit_reweighted(
+    group: np.ndarray,
+    x: np.ndarray,
+    y: np.ndarray,
+    variance_of_fit,
+    n_groups: int,
+    settings: AnalysisSettings,
+    log_scale: bool = False,
+    n_params: int = 2,
+    robust_w: np.ndarray | None = None,
+) -> tuple[LineFit, np.ndarray]:
+    """Robust weighted line fit of y on x per group (IRLS with Huber weights); returns the fit and the Huber
+    weights of its last pass.
+
+    variance_of_fit(fitted_y or None) gives each point's variance under the error model; it is re-evaluated
+    at the fitted line so that a single noisy point does not set its own weight. Huber weights downweight
+    outliers; the robust scale never drops below 1, the scatter the error model itself explains, so ordinary
+    noise is never treated as an outlier. The covariance is Huber's sandwich, scale^2 = sum psi^2 / (n - p)
+    / mean(psi')^2 times (X'WX)^-1 of the error-model weights, which stays honest when ordinary tails get
+    clipped (a plain weighted residual sum would shrink). n_params counts every fitted parameter of the law
+    (a power law's exponent too), for the degrees of freedom.
+
+    robust_w: Huber weights found elsewhere (by other laws on the same readings); then there is a single
+    weighted pass with them instead of the reweighting passes.
+
+    log_scale: y is the log of a noisy flow, biased low by about half its variance (second-order Taylor
+    term); that is put back, or low-slip (early, cold, low-pressure) readings would tilt the slope.
+    """
+    k = settings.huber_k
+    variance = variance_of_fit(None)
+    model_w = 1.0 / variance
+    bias = 0.5 if log_scale else 0.0
+    y_used = y + bias * variance
+    fixed = robust_w is not None
+    a, b, x_mean = grouped_line(group, x, y_used, model_w * (robust_w if fixed else 1.0), n_groups)
+    if not fixed:
+        robust_w = np.ones_like(y)
+        previous = None
+        done = np.zeros(n_groups, dtype=bool)
+        for _ in range(settings.irls_iterations):
+            fitted = a[group] + b[group] * x
+            ok = np.isfinite(fitted)
+            if previous is not None:
+                # A group whose fitted values moved less than the tolerance keeps its line from now on; each
+                # group's result depends on its own readings only, whichever pumps are analysed with it.
+                moved = ok & (np.abs(fitted - previous) > settings.irls_tolerance * (1.0 + np.abs(fitted)))
+                done |= np.bincount(group, moved, minlength=n_groups) == 0
+                if done.all():
+                    break
+            previous = fitted
+            variance = np.where(ok, variance_of_fit(np.where(ok, fitted, y)), variance)
+            model_w = 1.0 / variance
+            y_used = y + bias * variance
+            z = (y_used - np.where(ok, fitted, y_used)) * np.sqrt(model_w)
+            u = np.abs(z) / robust_scale(group, z, n_groups)[group]
+            with np.errstate(divide="ignore", invalid="ignore"):
+                robust_w = np.where(u > k, k / u, 1.0)
+            a_new, b_new, x_mean_new = grouped_line(group, x, y_used, model_w * robust_w, n_groups)
+            a, b, x_mean = np.where(done, a, a_new), np.where(done, b, b_new), np.where(done, x_mean, x_mean_new)
+        # The error model and the Huber weights at the final line, so that they depend on it alone (not on
+        # whether the passes stopped because this group or the last one had converged).
+        fitted = a[group] + b[group] * x
+        ok = np.isfinite(fitted)
+        variance = np.where(ok, variance_of_fit(np.where(ok, fitted, y)), variance)
+        model_w = 1.0 / variance
+        y_used = y + bias * variance
+        z = (y_used - np.where(ok, fitted, y_used)) * np.sqrt(model_w)
+        u = np.abs(z) / robust_scale(group, z, n_groups)[group]
+        with np.errstate(divide="ignore", invalid="ignore"):
+            robust_w = np.where(u > k, k / u, 1.0)
+
+    z = (y_used - (a[group] + b[group] * x)) * np.sqrt(model_w)
+    clip_at = k * robust_scale(group, z, n_groups)[group]
+    count = np.bincount(group, minlength=n_groups).astype(float)
+    psi2 = np.bincount(group, np.minimum(z * z, clip_at * clip_at), minlength=n_groups)
+    inside = np.bincount(group, (np.abs(z) <= clip_at).astype(float), minlength=n_groups)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        dof = count - float(n_params)
+        scale2 = np.where(dof > 0, psi2 / np.where(dof > 0, dof, 1.0), np.nan) / (inside / count) ** 2
+    v_aa, v_ab, v_bb = inverse_design(group, x, model_w, n_groups)
+    line = LineFit(
+        a=a,
+        b=b,
+        var_a=scale2 * v_aa,
+        var_b=scale2 * v_bb,
+        cov_ab=scale2 * v_ab,
+        scale=np.sqrt(scale2),
+        dof=dof,
+        n_points=count,
+        x_mean=x_mean,
+    )
+    return line, robust_w

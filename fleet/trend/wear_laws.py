@@ -1,0 +1,394 @@
+"""Wear laws: the shapes leakage growth may take within a service interval, fitted for every interval at once
+and weighed against each other by small-sample AIC (AICc).
+
+- exponential: ln q = a + b h. Leakage grows with the cube of the gap, so wear that opens the gap in
+  proportion to itself grows it exponentially; the physics default.
+- linear: q = a + b h. Steady abrasive wear (dirty oil) opens the gap at a constant rate.
+- power: q = a + b ((h + h0) / H)^p, H = h0 + the interval's latest hours, h0 the hours the pump had run
+  before the interval's hours begin to count (0 after an overhaul; for the first interval the hour meter at
+  the first reading, the meter counting from new). p > 1 accelerates (a damaged part), p < 1
+  decelerates (run-in after an overhaul). p is not solved for: each exponent of a fixed grid is a member of
+  its own, a straight line in (h / H)^p, so the spread over p carries the exponent's uncertainty into the
+  forecast and every member is fitted by the same grouped robust line fit.
+
+q is a referred flow (slip or case drain, L/min) and h the running hours in the interval. Weights: each law's
+fit is scored on the same data scale (q, residuals divided by the error model's sigma, Huber-clipped at a
+common robust scale so one outlier does not decide the law), AICc = n ln(D / n) + 2K + 2K(K + 1) / (n - K - 1)
+with K counting the scale too (Burnham & Anderson 2002, sec. 2.4), weights exp(-delta / 2) normalised. Within
+the power law its exponents are weighed by their likelihood alone (same K). A law needs n > K + 1 readings
+to be scored; with fewer than that for every law, the exponential law stands alone.
+"""
+
+from dataclasses import dataclass, field
+
+import numpy as np
+import pandas as pd
+from scipy import special
+
+from fleet.trend.linear import t_quantile
+from fleet.trend.robust import fit_reweighted, robust_scale
+from fleet.trend.settings import AnalysisSettings
+
+LAWS = ("exponential", "linear", "power")
+LAW_PARAMS = {"exponential": 3, "linear": 3, "power": 4}  # a, b, scale (+ the exponent p)
+# 0.35 .. 4 in even steps on a log scale; p = 1 is the linear law itself.
+POWER_EXPONENTS = tuple(2.0 ** (k / 4.0) for k in (*range(-6, 0), *range(1, 9)))
+
+
+@dataclass(frozen=True)
+class Member:
+    """One fitted line of the model set: a law, and for the power law one exponent."""
+
+    name: str
+    law: str
+    log_space: bool  # the line is fitted to ln q (else to q)
+    power: float  # the line's x is (h / H)^power for the power law; plain hours otherwise
+    n_params: int
+
+
+MEMBERS = (
+    Member("exponential", "exponential", True, 1.0, 2),
+    Member("linear", "linear", False, 1.0, 2),
+    *(Member(f"power_p{round(100 * p):03d}", "power", False, p, 3) for p in POWER_EXPONENTS),
+)
+FIELDS = ("a", "b", "var_a", "var_b", "cov_ab", "dof", "weight")
+
+
+@dataclass
+class LawFits:
+    """Per group (rows) and member (columns of MEMBERS) the line parameters and the model weight."""
+
+    a: np.ndarray
+    b: np.ndarray
+    var_a: np.ndarray
+    var_b: np.ndarray
+    cov_ab: np.ndarray
+    dof: np.ndarray
+    weight: np.ndarray  # sums to 1 over the members of a fitted group; 0 where a member is not usable
+    hours_scale: np.ndarray  # H of the power law, per group
+    hours_offset: np.ndarray  # h0 of the power law, per group
+    scale: np.ndarray | None = None  # robust residual scale per group and member (kept in memory only)
+    n_points: np.ndarray | None = None  # readings fitted per group
+    law_score: np.ndarray | None = None  # AICc per group and law (columns as LAWS), NaN where not scored
+    power_score: np.ndarray | None = None  # n ln(D / n) per group and power exponent, NaN where not scored
+    usable: np.ndarray | None = None  # per group and member: the line could be fitted
+    _t_ratio: dict = field(default_factory=dict, repr=False)
+
+    def t_ratio(self, confidence: float) -> np.ndarray:
+        """z / t per group and member at the two-sided level: Phi(T z / t) then has the member's t quantiles
+        there (computed once; t quantiles are slow)."""
+        if confidence not in self._t_ratio:
+            self._t_ratio[confidence] = special.ndtri(0.5 + confidence / 2.0) / t_quantile(confidence, self.dof)
+        return self._t_ratio[confidence]
+
+    def weigh(self, law_score: np.ndarray, power_score: np.ndarray) -> None:
+        """Set the member weights from scores per group: AICc per law, and the fit term n ln(D / n) per power
+        exponent (same K, so the likelihood alone weighs them); this trend's own, or summed with another's."""
+        law_w = akaike_weights(law_score)
+        within_power = akaike_weights(power_score)
+        is_power = np.array([m.law == "power" for m in MEMBERS])
+        weight = np.zeros(self.a.shape)
+        weight[:, 0], weight[:, 1] = law_w[:, 0], law_w[:, 1]
+        weight[:, is_power] = law_w[:, [2]] * within_power
+        weight = np.where(self.usable, weight, 0.0)
+        total = weight.sum(axis=1, keepdims=True)
+        with np.errstate(invalid="ignore", divide="ignore"):
+            fitted = self.usable.any(axis=1, keepdims=True) & (total > 0)
+            self.weight = np.where(fitted, weight / np.where(total > 0, total, 1.0), 0.0)
+
+    def __len__(self) -> int:
+        return len(self.hours_scale)
+
+    def law_weights(self) -> dict[str, np.ndarray]:
+        return {law: self.weight[:, [m.law == law for m in MEMBERS]].sum(axis=1) for law in LAWS}
+
+    def to_columns(self, prefix: str) -> dict[str, np.ndarray]:
+        cols = {
+            f"{prefix}_hours_scale": self.hours_scale,
+            f"{prefix}_hours_offset": self.hours_offset,
+        }
+        for j, m in enumerate(MEMBERS):
+            for f in FIELDS:
+                cols[f"{prefix}_{m.name}_{f}"] = getattr(self, f)[:, j]
+        return cols
+
+    @classmethod
+    def from_columns(cls, frame, prefix: str) -> "LawFits":
+        """Back from to_columns; `frame` may be a DataFrame (many groups) or one row (a Series or dict)."""
+
+        def col(name):
+            return np.atleast_1d(np.asarray(frame[f"{prefix}_{name}"], dtype=float))
+
+        parts = {f: np.column_stack([col(f"{m.name}_{f}") for m in MEMBERS]) for f in FIELDS}
+        return cls(
+            **parts,
+            hours_scale=col("hours_scale"),
+            hours_offset=col("hours_offset"),
+        )
+
+
+def member_x(member: Member, hours, hours_scale, hours_offset) -> np.ndarray:
+    """The line's x of a member at interval hours (scale and offset broadcast against hours)."""
+    h = np.asarray(hours, dtype=float)
+    if member.law != "power":
+        return h
+    with np.errstate(invalid="ignore", divide="ignore"):
+        return np.maximum((h + hours_offset) / hours_scale, 0.0) ** member.power
+
+
+def _fit_power_members(group, hours, q, sigma, robust_w, clip, hours_scale, offset, n_groups, out, deviance,
+                       only=None):
+    """Fill the power members' columns of `out` and `deviance`: one weighted least-squares pass per exponent
+    with fixed weights (error model x Huber), from grouped sums; Huber's sandwich covariance as in
+    fleet.trend.robust.fit_reweighted, clipped at the common robust scale `clip`. only: refit just these
+    groups (a mask over groups), leaving the others' figures as they are."""
+    rows = slice(None)
+    if only is not None:
+        keep = only[group]
+        group, hours, q, sigma, robust_w = group[keep], hours[keep], q[keep], sigma[keep], robust_w[keep]
+        rows = only
+    model_w = 1.0 / sigma**2
+    w = model_w * robust_w
+    count = np.bincount(group, minlength=n_groups).astype(float)
+    s0 = np.bincount(group, w, minlength=n_groups)
+    sy = np.bincount(group, w * q, minlength=n_groups)
+    m0 = np.bincount(group, model_w, minlength=n_groups)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        log_u = np.log(np.maximum((hours + offset[group]) / hours_scale[group], 1e-300))
+    clip2 = clip[group] ** 2
+    for j, m in enumerate(MEMBERS):
+        if m.law != "power":
+            continue
+        x = np.exp(m.power * log_u)
+        # Raw sums are safe here: x = ((h + h0) / H)^p lies in [0, 1].
+        wx = w * x
+        sx = np.bincount(group, wx, minlength=n_groups)
+        sxx = np.bincount(group, wx * x, minlength=n_groups)
+        sxy = np.bincount(group, wx * q, minlength=n_groups)
+        mx_sum = np.bincount(group, model_w * x, minlength=n_groups)
+        mxx_sum = np.bincount(group, model_w * x * x, minlength=n_groups)
+        with np.errstate(invalid="ignore", divide="ignore"):
+            x_mean, y_mean = sx / s0, sy / s0
+            spread = sxx - sx * x_mean
+            b = np.where(spread > 1e-12 * s0, (sxy - sx * y_mean) / spread, np.nan)  # no spread: one hour value
+            a = y_mean - b * x_mean
+            z2 = (q - a[group] - b[group] * x) ** 2 * model_w
+            psi2 = np.bincount(group, np.minimum(z2, clip2), minlength=n_groups)
+            inside = np.bincount(group, z2 <= clip2, minlength=n_groups)
+            dof = count - m.n_params
+            scale2 = np.where(dof > 0, psi2 / np.where(dof > 0, dof, 1.0), np.nan) / (inside / count) ** 2
+            mx = mx_sum / m0
+            msxx = mxx_sum - mx_sum * mx
+            inv_sxx = np.where(msxx > 1e-12 * m0, 1.0 / msxx, np.nan)
+            var_a = scale2 * (1.0 / m0 + mx**2 * inv_sxx)  # NaN for a group without readings
+        values = {"a": a, "b": b, "var_a": var_a, "var_b": scale2 * inv_sxx, "cov_ab": -scale2 * mx * inv_sxx,
+                  "dof": dof, "scale": np.sqrt(scale2)}
+        for name, value in values.items():
+            out[name][rows, j] = value[rows]
+        deviance[rows, j] = psi2[rows]
+
+
+def _best_power_huber(group, hours, q, sigma, out, deviance, hours_scale, offset, n_groups, settings):
+    """Huber weights of each reading about its group's best-fitting power line (smallest deviance)."""
+    is_power = np.array([m.law == "power" for m in MEMBERS])
+    power_dev = np.where(np.isfinite(deviance[:, is_power]), deviance[:, is_power], np.inf)
+    best = np.flatnonzero(is_power)[np.argmin(power_dev, axis=1)]
+    p = np.array([m.power for m in MEMBERS])[best][group]
+    with np.errstate(invalid="ignore", divide="ignore"):
+        x = np.maximum((hours + offset[group]) / hours_scale[group], 0.0) ** p
+    rows = np.arange(n_groups)
+    fitted = out["a"][rows, best][group] + out["b"][rows, best][group] * x
+    z = (q - fitted) / sigma
+    u = np.abs(z) / robust_scale(group, z, n_groups)[group]
+    with np.errstate(invalid="ignore", divide="ignore"):
+        return np.where(u > settings.huber_k, settings.huber_k / u, 1.0)
+
+
+def aicc(n, n_params, deviance) -> np.ndarray:
+    """Small-sample AIC of a least-squares fit: n ln(D / n) + 2K + 2K(K + 1) / (n - K - 1); NaN if n <= K + 1."""
+    n = np.asarray(n, dtype=float)
+    k = float(n_params)
+    ok = (n - k - 1.0 > 0) & np.isfinite(deviance) & (np.asarray(deviance) > 0)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        value = n * np.log(np.asarray(deviance, dtype=float) / n) + 2 * k + 2 * k * (k + 1) / (n - k - 1)
+    return np.where(ok, value, np.nan)
+
+
+def akaike_weights(criterion: np.ndarray) -> np.ndarray:
+    """exp(-delta / 2) / sum, delta from the row's smallest criterion; NaN entries get weight 0.
+
+    A row with no finite entry gets all its weight on the first column (the exponential law)."""
+    c = np.atleast_2d(np.asarray(criterion, dtype=float))
+    finite = np.isfinite(c)
+    best = np.min(np.where(finite, c, np.inf), axis=1, keepdims=True)
+    with np.errstate(invalid="ignore", over="ignore"):
+        raw = np.where(finite, np.exp(-0.5 * (c - np.where(np.isfinite(best), best, 0.0))), 0.0)
+    total = raw.sum(axis=1, keepdims=True)
+    fallback = np.zeros_like(c)
+    fallback[:, 0] = 1.0
+    with np.errstate(invalid="ignore", divide="ignore"):
+        return np.where(total > 0, raw / np.where(total > 0, total, 1.0), fallback)
+
+
+def fit_wear_laws(
+    group: np.ndarray,
+    hours: np.ndarray,
+    value: np.ndarray,
+    sigma_of,
+    floor: np.ndarray,
+    n_groups: int,
+    settings: AnalysisSettings,
+    hours_offset: np.ndarray | None = None,
+) -> LawFits:
+    """Fit every member for every group and weigh them.
+
+    value: referred flow q per reading (already floored at `floor`, a small positive flow). sigma_of(q_fitted
+    or None) gives each reading's standard deviation of q under the error model (None: at the readings).
+    hours_offset: h0 per group (default 0).
+    """
+    q = np.maximum(value, floor)
+    log_q = np.log(q)
+    count = np.bincount(group, minlength=n_groups).astype(float)
+    offset = np.zeros(n_groups) if hours_offset is None else np.nan_to_num(np.asarray(hours_offset, float))
+    by_group = pd.Series(hours).groupby(group)
+    last = by_group.max().reindex(range(n_groups)).to_numpy(dtype=float)
+    first = by_group.min().reindex(range(n_groups)).to_numpy(dtype=float)
+    hours_scale = np.where(last + offset > 0, last + offset, np.nan)
+
+    def log_variance(fitted_log):
+        if fitted_log is None:
+            return (sigma_of(None) / q) ** 2
+        with np.errstate(over="ignore"):
+            q_fit = np.maximum(np.exp(fitted_log), floor)
+        return (sigma_of(q_fit) / q_fit) ** 2
+
+    def lin_variance(fitted):
+        return sigma_of(None if fitted is None else np.maximum(fitted, floor)) ** 2
+
+    shape = (n_groups, len(MEMBERS))
+    out = {f: np.full(shape, np.nan) for f in (*FIELDS, "scale")}
+    fitted_q = np.full((len(q), 2), np.nan)
+    huber = {}
+    for j, m in enumerate(MEMBERS[:2]):  # the exponential and the linear law, each reweighted on its own
+        fit, huber[m.law] = fit_reweighted(
+            group, hours, log_q if m.log_space else q, log_variance if m.log_space else lin_variance,
+            n_groups, settings, m.log_space, m.n_params,
+        )
+        for f in (*FIELDS[:-1], "scale"):
+            out[f][:, j] = getattr(fit, f)
+        line = fit.a[group] + fit.b[group] * hours
+        with np.errstate(over="ignore"):
+            fitted_q[:, j] = np.exp(line) if m.log_space else line
+
+    # Scores on the common scale: q residuals over the error model's sigma at the default law's fit.
+    sigma = sigma_of(np.maximum(np.nan_to_num(fitted_q[:, 0], nan=1.0), floor))
+    z = (q[:, None] - fitted_q[:, :2]) / sigma[:, None]
+    clip = settings.huber_k * np.fmin(robust_scale(group, z[:, 0], n_groups), robust_scale(group, z[:, 1], n_groups))
+    deviance = np.full(shape, np.nan)
+    for j in range(2):
+        deviance[:, j] = np.bincount(group, np.minimum(z[:, j] ** 2, clip[group] ** 2), minlength=n_groups)
+    # The power law's lines take shared Huber weights, one weighted pass each (its exponents are many, the
+    # outliers the same): a reading is an outlier when the exponential law and the linear law find it far off
+    # and, where a power line fits best of all, that line too (a first pass finds it; without it, readings
+    # that only the exponential and linear laws miss, as on an accelerating pump, would lose their weight).
+    robust_w = np.fmax(huber["exponential"], huber["linear"])
+    _fit_power_members(group, hours, q, sigma, robust_w, clip, hours_scale, offset, n_groups, out, deviance)
+    spared = np.fmax(robust_w, _best_power_huber(group, hours, q, sigma, out, deviance, hours_scale, offset,
+                                                 n_groups, settings))
+    is_power = np.array([m.law == "power" for m in MEMBERS])
+    best_power_dev = np.min(np.where(np.isfinite(deviance[:, is_power]), deviance[:, is_power], np.inf), axis=1)
+    power_best = best_power_dev < np.fmin(deviance[:, 0], deviance[:, 1])
+    changed = power_best & (np.bincount(group, spared != robust_w, minlength=n_groups) > 0)
+    if changed.any():
+        _fit_power_members(group, hours, q, sigma, spared, clip, hours_scale, offset, n_groups, out, deviance,
+                           only=changed)
+    usable = np.isfinite(out["a"]) & np.isfinite(out["b"]) & np.isfinite(out["var_b"]) & np.isfinite(deviance)
+    deviance = np.where(usable, np.maximum(deviance, 1e-12 * count[:, None]), np.nan)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        fit_term = count[:, None] * np.log(deviance / count[:, None])
+    is_power = np.array([m.law == "power" for m in MEMBERS])
+    best_power = np.min(np.where(np.isfinite(fit_term[:, is_power]), deviance[:, is_power], np.inf), axis=1)
+    law_score = np.column_stack(
+        [
+            aicc(count, LAW_PARAMS["exponential"], deviance[:, 0]),
+            aicc(count, LAW_PARAMS["linear"], deviance[:, 1]),
+            aicc(count, LAW_PARAMS["power"], np.where(np.isfinite(best_power), best_power, np.nan)),
+        ]
+    )
+    power_score = fit_term[:, is_power]
+    if settings.law_weighting == "held_back":
+        held = _held_back_scores(
+            group, hours, q, log_q, sigma, np.fmax(huber["exponential"], huber["linear"]), fitted_q, floor,
+            hours_scale, offset, first, last, clip, n_groups, settings,
+        )
+        if held is not None:
+            scored = np.isfinite(held).all(axis=1, keepdims=True)
+            member_crit = -2.0 * held
+            with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
+                pw = member_crit[:, is_power]
+                top = np.nanmin(pw, axis=1, keepdims=True)
+                family = top - 2.0 * np.log(np.nanmean(np.exp(-0.5 * (pw - top)), axis=1, keepdims=True))
+            held_law = np.column_stack([member_crit[:, 0], member_crit[:, 1], family[:, 0]])
+            law_score = np.where(scored, held_law, law_score)
+            power_score = np.where(scored, pw, power_score)
+    out["weight"] = np.zeros(shape)
+    laws = LawFits(
+        **out,
+        hours_scale=hours_scale,
+        hours_offset=offset,
+        n_points=count,
+        law_score=law_score,
+        power_score=power_score,
+        usable=usable,
+    )
+    laws.weigh(law_score, laws.power_score)
+    return laws
+
+
+def _held_back_scores(group, hours, q, log_q, sigma, robust_w, fitted_q, floor, hours_scale, offset, first, last,
+                      clip, n_groups, settings):
+    """Log predictive density of the last readings (the final `law_held_back` share of the hours spanned) under
+    each member fitted to the earlier ones, Huber-clipped like the in-sample scores. NaN where a group has
+    fewer than 4 earlier or 2 later readings."""
+    cut = first + (1.0 - settings.law_held_back) * (last - first)
+    train = hours <= cut[group]
+    n_train = np.bincount(group[train], minlength=n_groups)
+    n_test = np.bincount(group[~train], minlength=n_groups)
+    ok = (n_train >= 4) & (n_test >= 2)
+    if not ok.any():
+        return None
+    g, test = group[train], ~train
+    q_exp = np.maximum(np.nan_to_num(fitted_q[:, 0], nan=1.0), floor)
+    scores = np.full((n_groups, len(MEMBERS)), np.nan)
+    for j, m in enumerate(MEMBERS):
+        x = member_x(m, hours, hours_scale[group], offset[group])
+        y = log_q if m.log_space else q
+        model_var = (sigma / q_exp) ** 2 if m.log_space else sigma**2
+        fit, _ = fit_reweighted(g, x[train], y[train], lambda _f, v=model_var[train]: v, n_groups, settings,
+                                m.log_space, m.n_params, robust_w=robust_w[train])
+        gt, xt = group[test], x[test]
+        line = fit.a[gt] + fit.b[gt] * xt
+        var_line = fit.var_a[gt] + 2 * xt * fit.cov_ab[gt] + xt * xt * fit.var_b[gt]
+        with np.errstate(over="ignore", invalid="ignore"):
+            mean = np.exp(line) if m.log_space else line
+            var = (mean * mean * var_line if m.log_space else var_line) + sigma[test] ** 2
+            z2 = np.minimum((q[test] - mean) ** 2 / var, clip[gt] ** 2)
+            logdens = -0.5 * (z2 + np.log(var / sigma[test] ** 2))
+        total = np.bincount(gt, np.nan_to_num(logdens, nan=-1e6), minlength=n_groups)
+        bad = np.bincount(gt, ~np.isfinite(logdens), minlength=n_groups) > 0
+        scores[:, j] = np.where(ok & ~bad, total, np.nan)
+    return scores
+
+
+def joint_score(*scores: np.ndarray) -> np.ndarray:
+    """AICc of "every trend follows the same law": the sum over the trends that could be scored.
+
+    Slip and case drain come through the same clearances, so they wear by one law; the better-measured
+    trend then tells the other its shape. A law that could not be scored on a trend that scored others
+    stays unscored (NaN).
+    """
+    stack = np.stack(scores)
+    scored = np.isfinite(stack).any(axis=2, keepdims=True)  # the trend scored some law
+    missing = scored & ~np.isfinite(stack)
+    total = np.where(scored, np.nan_to_num(stack, nan=0.0), 0.0).sum(axis=0)
+    return np.where(missing.any(axis=0) | ~scored.any(axis=0), np.nan, total)
