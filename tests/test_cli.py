@@ -172,7 +172,7 @@ def test_fleet_serve_shows_the_demo_pumps(demo_db):
                               stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
     try:
         body = None
-        for _ in range(100):  # up to 10 s for waitress to listen
+        for _ in range(600):  # up to 60 s for the server to start (imports, stale analyses) and listen
             try:
                 request = urllib.request.Request(f"http://127.0.0.1:{port}/",
                                                  headers={"Authorization": f"Bearer {token}"})

@@ -19,21 +19,6 @@ from fleet.trend.wear_laws import LawFits
 LIMIT_NAMES = {"slip": "eta_v", "drain": "case_drain"}
 
 
-def _line_fit(fits: pd.DataFrame, q: str) -> LineFit:
-    col = lambda name: fits[f"{q}_{name}"].to_numpy(dtype=float)  # noqa: E731
-    return LineFit(
-        a=col("a"),
-        b=col("b"),
-        var_a=col("var_a"),
-        var_b=col("var_b"),
-        cov_ab=col("cov_ab"),
-        scale=col("scale"),
-        dof=col("dof"),
-        n_points=col("n_points"),
-        x_mean=np.full(len(fits), np.nan),
-    )
-
-
 def limit_flows_lpm(eta_v_limit, drain_limit_pct, rated_flow_lpm, max_flow_lpm) -> dict[str, np.ndarray]:
     """Referred slip and case drain (L/min) at which each limit is reached."""
     return {
