@@ -165,7 +165,7 @@ def _sign_in(app, client) -> dict:
     from sqlalchemy import select
 
     from fleet.db.models import User
-    from fleet.services.users import create_token, create_user
+    from fleet.services.users import create_token, create_user, start_session
     from fleet.web.auth import SignedInUser
 
     with app.extensions["fleet_db"].begin() as session:
@@ -173,7 +173,7 @@ def _sign_in(app, client) -> dict:
         if user is None:
             user = create_user(session, "bench-engineer", "engineer", "invented bench password")
         token = create_token(session, "bench-engineer", "benchmark")
-        signed_in = SignedInUser.of(user)
+        signed_in = SignedInUser.of(user, session_key=start_session(session, user.id))
     with client.session_transaction() as cookie:
         cookie["_user_id"] = signed_in.get_id()
         cookie["_fresh"] = True
