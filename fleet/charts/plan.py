@@ -5,6 +5,8 @@ from datetime import date, timedelta
 
 import plotly.graph_objects as go
 
+from fleet.charts import chart_html
+
 CHART_ID = "plan-chart"
 _INK, _ACCENT, _PAST, _WINDOW = "#1e2529", "#24525e", "#8c2f1c", "rgba(63, 95, 53, 0.18)"
 
@@ -53,6 +55,5 @@ def timeline_figure(plan: dict) -> go.Figure:
 
 
 def timeline_html(plan: dict) -> str:
-    """The chart as a div and its script; the page loads plotly.js itself from this server."""
-    return timeline_figure(plan).to_html(full_html=False, include_plotlyjs=False, div_id=CHART_ID,
-                                         config={"displaylogo": False, "responsive": True})
+    """The chart as a div and its data; the page loads plotly.js and charts.js itself from this server."""
+    return chart_html(timeline_figure(plan), CHART_ID)

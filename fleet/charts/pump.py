@@ -7,6 +7,7 @@ legend entry, so nothing rests on colour alone.
 import pandas as pd
 import plotly.graph_objects as go
 
+from fleet.charts import chart_html
 from fleet.physics.cleanliness import parse_code
 
 INK = "#1e2529"
@@ -140,9 +141,8 @@ def flow_test_figure(points: pd.DataFrame, baseline: pd.DataFrame) -> go.Figure:
 
 
 def figure_html(fig: go.Figure, div_id: str) -> str:
-    """The figure as a <div> and its script; plotly.js itself is loaded once by the page."""
-    return fig.to_html(full_html=False, include_plotlyjs=False, div_id=div_id,
-                       config={"displaylogo": False, "responsive": True})
+    """The figure as a <div> and its data; plotly.js and charts.js are loaded once by the page."""
+    return chart_html(fig, div_id)
 
 
 def page_charts(data: dict) -> dict[str, str]:
