@@ -221,7 +221,7 @@ def _serve(db: Database, host: str, port: int, threads: int) -> None:
 def demo(db: Database, no_serve: bool, seed: int, rebuild: bool, host: str, port: int) -> None:
     """Build an invented demo plant in the database and serve the dashboard."""
     from fleet.db import migrate
-    from seed_demo import build_demo, demo_present
+    from seed_demo import build_demo, demo_present, password_box
 
     if rebuild:
         migrate.downgrade_to_empty(db.engine)
@@ -232,8 +232,9 @@ def demo(db: Database, no_serve: bool, seed: int, rebuild: bool, host: str, port
         click.echo("the database already holds data; serving it as it is (use --rebuild to start again)")
     else:
         with db.sessions.begin() as session:
-            summary = build_demo(session, seed=seed, echo=click.echo)
-        click.echo(summary)
+            built = build_demo(session, seed=seed, echo=click.echo)
+        # Printed once the users are committed, in a box of their own below the import lines.
+        click.echo(f"{built.summary}\n\n{password_box(built.users, None if no_serve else f'http://{host}:{port}/')}\n")
     if not no_serve:
         _serve(db, host, port, threads=8)
 

@@ -2,11 +2,22 @@
 
 import textwrap
 
+from fleet.safety import CHECK_NOW_CAUTION, calls_for_work
 from fleet.status_words import STATUS_LABELS
 
 
 def _num(value, fmt: str, empty: str = "-") -> str:
     return empty if value is None else format(value, fmt)
+
+
+def efficiency(value, empty: str = "-") -> str:
+    """Volumetric efficiency (a fraction in the data) as every report writes it: '78.0 %'."""
+    return empty if value is None else f"{100 * value:.1f} %"
+
+
+def percent_points(value, empty: str = "-") -> str:
+    """A fraction lost, in percent with two decimals: '0.91 %'."""
+    return empty if value is None else f"{100 * value:.2f} %"
 
 
 def _hours(record: dict) -> str:
@@ -21,26 +32,32 @@ def _hours(record: dict) -> str:
 
 def service_table(records: list[dict], width: int = 110) -> str:
     """One line per pump, most urgent first, with its first reason wrapped beneath."""
-    header = f"{'#':>3}  {'pump':<14} {'status':<11} {'eta_v,ref':>9} {'-/1000h':>7} {'drain%':>6} " \
+    header = f"{'#':>3}  {'pump':<14} {'status':<11} {'η_v,ref':>8} {'lost/1000h':>10} {'drain%':>6} " \
              f"{'hours to limit (bounds)':<26} {'date':<10} {'limit':<10}"
     lines = [header, "-" * len(header)]
     for record in records:
         lines.append(
             f"{record.get('rank', 0):>3}  {str(record['pump'])[:14]:<14} "
             f"{STATUS_LABELS.get(record['status'], record['status']):<11} "
-            f"{_num(record.get('eta_v_ref'), '.3f'):>9} {_num(record.get('eta_v_decline_per_1000h'), '.4f'):>7} "
+            f"{efficiency(record.get('eta_v_ref')):>8} {percent_points(record.get('eta_v_decline_per_1000h')):>10} "
             f"{_num(record.get('drain_pct_ref'), '.1f'):>6} {_hours(record):<26} "
             f"{record.get('limit_date') or '-':<10} {record.get('governing_limit') or '-':<10}"
         )
         for reason in record.get("reasons") or []:
             lines.extend(textwrap.wrap(reason, width=width, initial_indent="       - ",
                                        subsequent_indent="         "))
+        if calls_for_work(record.get("reasons")):
+            lines.extend(textwrap.wrap(f"! {CHECK_NOW_CAUTION}", width=width, initial_indent="         ",
+                                       subsequent_indent="           "))
     counts: dict[str, int] = {}
     for record in records:
         counts[record["status"]] = counts.get(record["status"], 0) + 1
     summary = ", ".join(f"{n} {STATUS_LABELS.get(s, s).lower()}" for s, n in counts.items())
-    lines.append(f"\n{len(records)} pump(s): {summary}. Bounds are {_confidence(records)} intervals; "
-                 "hours are running hours.")
+    lines.append("")
+    lines.extend(textwrap.wrap(
+        f"{len(records)} pump(s): {summary}. η_v,ref: volumetric efficiency at reference conditions; lost/1000h: "
+        f"its loss per 1000 running hours; drain%: case drain, % of max flow. Bounds are {_confidence(records)} "
+        "intervals; hours are running hours.", width=width))
     return "\n".join(lines)
 
 

@@ -2,6 +2,7 @@
 
 import secrets
 from collections.abc import Callable
+from dataclasses import dataclass
 from datetime import timedelta
 
 import pandas as pd
@@ -42,18 +43,40 @@ def _add_shutdown_windows(session: Session, end) -> None:
 DEMO_USERS = (("demo-engineer", "engineer"), ("demo-technician", "technician"), ("demo-viewer", "viewer"))
 
 
-def _add_demo_users(session: Session, echo: Callable[[str], None]) -> None:
-    """Each demo user gets a fresh random password, printed once here; the database keeps only its hash."""
+@dataclass(frozen=True)
+class DemoBuilt:
+    summary: str
+    users: tuple[tuple[str, str, str], ...]  # (name, role, password): for printing once; only hashes are stored
+
+
+def _add_demo_users(session: Session) -> tuple[tuple[str, str, str], ...]:
+    """Each demo user gets a fresh random password, returned for printing once; the database keeps its hash."""
     from fleet.services.users import create_user
 
+    users = []
     for name, role in DEMO_USERS:
         password = secrets.token_urlsafe(12)
         create_user(session, name, role, password)
-        echo(f"  demo user {name} ({role}): password {password}")
+        users.append((name, role, password))
+    return tuple(users)
 
 
-def build_demo(session: Session, seed: int = 2026, end=None, echo: Callable[[str], None] = print) -> str:
-    """Generate the invented plant and import it kind by kind, then analyse it; the caller commits."""
+def password_box(users, address: str | None = None) -> str:
+    """The demo sign-ins in a box of their own, apart from the import lines (every line with a password says
+    'password', so a log filter can drop them)."""
+    where = f"Sign in at {address} as one of these invented users." if address else \
+        "Sign in as one of these invented users."
+    rows = [where, "The passwords are shown only now; the database keeps their hashes.", ""]
+    rows += [f"{name:<16} {role:<11} password: {password}" for name, role, password in users]
+    rows += ["", "Lost one? fleet user password NAME sets a new one."]
+    width = max(len(row) for row in rows)
+    rule = "+" + "-" * (width + 2) + "+"
+    return "\n".join([rule, *(f"| {row:<{width}} |" for row in rows), rule])
+
+
+def build_demo(session: Session, seed: int = 2026, end=None, echo: Callable[[str], None] = print) -> DemoBuilt:
+    """Generate the invented plant and import it kind by kind, then analyse it; the caller commits, then prints
+    the demo users' passwords (``password_box``)."""
     from fleet.services.analysis import refresh_analysis
     from fleet.services.register.records import ensure_limit_defaults
     from fleet.services.transfer.importing import import_table
@@ -71,11 +94,11 @@ def build_demo(session: Session, seed: int = 2026, end=None, echo: Callable[[str
     result = import_table(session, "events", _as_text(earlier_overhauls(tables, seed)), source="import")
     echo(f"  earlier overhauls from the (invented) paper log: {result.summary()}")
     _add_shutdown_windows(session, end)
-    _add_demo_users(session, echo)
+    users = _add_demo_users(session)
     # Replay the weekly analyses of the last weeks, each on what was known then, so the weekly review has a
     # history of status changes to show; the last analysis is of now.
     last = utcnow()
     for weeks_ago in range(HISTORY_WEEKS, 0, -1):
         refresh_analysis(session, now=last - timedelta(weeks=weeks_ago))
     summary = refresh_analysis(session, now=last)
-    return f"invented demo plant built (seed {seed}); {summary.describe()}"
+    return DemoBuilt(f"invented demo plant built (seed {seed}); {summary.describe()}", users)

@@ -183,7 +183,7 @@ def test_pages_carry_no_inline_script(client):
 
 def test_the_charts_offer_no_online_action(client):
     html = client.get(f"/pumps/{FIXED}").get_data(as_text=True)
-    config = json.loads(html.split("data-config='")[1].split("'")[0])
+    config = json.loads(html.split('class="fleet-chart-spec"')[1].split(">", 1)[1].split("</script>")[0])["config"]
     assert config["showSendToCloud"] is False and config["showLink"] is False and config["displaylogo"] is False
     assert "sendDataToCloud" in config["modeBarButtonsToRemove"]
 

@@ -13,7 +13,7 @@ from fleet.db import migrate
 from fleet.db.engine import make_engine, make_session_factory
 from fleet.db.models import User
 from fleet.services import users
-from seed_demo import DEMO_USERS, build_demo
+from seed_demo import DEMO_USERS, build_demo, password_box
 
 # The PHC string format argon2-cffi writes (RFC 9106 names Argon2id the primary variant; v=19 is version 1.3).
 ARGON2ID = re.compile(r"^\$argon2id\$v=19\$m=\d+,t=\d+,p=\d+\$[A-Za-z0-9+/]{22}\$[A-Za-z0-9+/]{43}$")
@@ -60,12 +60,15 @@ def test_the_demo_prints_each_password_once_and_stores_only_hashes(tmp_path):
     migrate.upgrade(engine)
     printed = []
     with make_session_factory(engine).begin() as s:
-        build_demo(s, seed=7, echo=printed.append)
+        built = build_demo(s, seed=7, echo=printed.append)
+    assert not any("password" in line for line in printed)  # the import lines carry none
+    box = password_box(built.users)
     passwords = {}
-    for line in printed:
-        found = re.fullmatch(r"  demo user (\S+) \((\w+)\): password (\S+)", line)
+    for line in box.splitlines():
+        found = re.fullmatch(r"\| (\S+) +(\w+) +password: (\S+) +\|", line)
         if found:
             passwords[found[1]] = (found[2], found[3])
+    assert all(box.count(password) == 1 for _, password in passwords.values())
     assert {name: role for name, (role, _) in passwords.items()} == dict(DEMO_USERS)
     assert len({password for _, password in passwords.values()}) == 3  # generated, not one shared word
     with make_session_factory(engine).begin() as s:

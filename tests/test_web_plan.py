@@ -25,7 +25,7 @@ def test_plan_page_chart_table_caution_and_twins(client):
     html = page.get_data(as_text=True)
     assert "Before you work on a pump" in html
     assert 'id="plan-chart"' in html
-    assert '<script src="/assets/plotly.min.js" defer></script>' in html and "cdn.plot.ly" not in html
+    assert '<script src="/assets/plotly.min.js"></script>' in html and "cdn.plot.ly" not in html
     assert 'href="/plan.json?' not in html and 'href="/plan.json"' in html and 'href="/plan.csv"' in html
 
     data = client.get("/plan.json").get_json()

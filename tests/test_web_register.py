@@ -45,6 +45,7 @@ def test_index_lists_the_register_and_its_twins(client, demo_db):
     data = client.get("/register.json").get_json()
     assert set(data) == {"sites", "machines", "positions", "pumps", "oils", "limits", "kinds"}
     assert set(data["pumps"][0]) == {"pump", "kind", "kind_label", "variable", "site", "machine", "position",
+                                     "currency",
                                      *CSV_COLUMNS[6:]}
     assert set(data["sites"][0]) == {"id", "site", "currency", "tariff_per_kwh", "motor_efficiency", "machines",
                                      "note"}

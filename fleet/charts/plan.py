@@ -5,7 +5,7 @@ from datetime import date, timedelta
 
 import plotly.graph_objects as go
 
-from fleet.charts.render import figure_html
+from fleet.charts import chart_html
 
 CHART_ID = "plan-chart"
 _INK, _ACCENT, _PAST, _WINDOW = "#1e2529", "#24525e", "#8c2f1c", "rgba(63, 95, 53, 0.18)"
@@ -55,5 +55,5 @@ def timeline_figure(plan: dict) -> go.Figure:
 
 
 def timeline_html(plan: dict) -> str:
-    """The chart as a div and its script; the page loads plotly.js itself from this server."""
-    return figure_html(timeline_figure(plan), CHART_ID)
+    """The chart as a div and its data; the page loads plotly.js and charts.js itself from this server."""
+    return chart_html(timeline_figure(plan), CHART_ID)

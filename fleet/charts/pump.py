@@ -7,7 +7,7 @@ legend entry, so nothing rests on colour alone.
 import pandas as pd
 import plotly.graph_objects as go
 
-from fleet.charts.render import figure_html
+from fleet.charts import chart_html
 from fleet.physics.cleanliness import parse_code
 
 INK = "#1e2529"
@@ -138,6 +138,11 @@ def flow_test_figure(points: pd.DataFrame, baseline: pd.DataFrame) -> go.Figure:
                              name="this test", marker={"color": ACCENT, "symbol": "circle", "size": 9},
                              line={"color": ACCENT, "width": 1}))
     return _layout(fig, "outlet pressure (bar)", "outlet flow (L/min)")
+
+
+def figure_html(fig: go.Figure, div_id: str) -> str:
+    """The figure as a <div> and its data; plotly.js and charts.js are loaded once by the page."""
+    return chart_html(fig, div_id)
 
 
 def page_charts(data: dict) -> dict[str, str]:

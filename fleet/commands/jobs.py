@@ -6,7 +6,7 @@ import textwrap
 
 import click
 
-from fleet.safety import CAUTION_TITLE, CAUTIONS
+from fleet.safety import CHECK_NOW_CAUTION, RUNNING_CAUTIONS, RUNNING_TITLE, calls_for_work, caution_text
 
 WIDTH = 100
 
@@ -23,10 +23,6 @@ def _label(status: str | None) -> str:
 
 def _num(value, fmt: str = ",.0f", empty: str = "-") -> str:
     return empty if value is None else format(value, fmt)
-
-
-def _cautions() -> str:
-    return "\n".join([f"{CAUTION_TITLE}:"] + [f"  ! {line}" for line in CAUTIONS])
 
 
 # --- review ------------------------------------------------------------------------------------------------
@@ -47,6 +43,8 @@ def review(db, week_end, as_json: bool) -> None:
 
 
 def review_text(data: dict) -> str:
+    from fleet.textreport import efficiency
+
     counts, lines = data["counts"], []
     lines.append(f"Weekly review {data['week_start'].replace('T', ' ')} to {data['week_end'].replace('T', ' ')} (UTC)")
     lines.append("  " + " · ".join(f"{data['sections'][k]} {n}" for k, n in counts.items()))
@@ -57,9 +55,11 @@ def review_text(data: dict) -> str:
     lines.append(f"\nStatus changes ({counts['status_change']})")
     for item in data["status_changes"]:
         lines.append(f"  {item['pump']:<12} {_label(item['previous_status']):>10} -> {_label(item['status']):<10} "
-                     f"{item['at'][:16].replace('T', ' ')}  η_v,ref {_num(item.get('eta_v_ref'), '.3f')}")
+                     f"{item['at'][:16].replace('T', ' ')}  η_v,ref {efficiency(item.get('eta_v_ref'))}")
         for reason in item.get("new_reasons") or []:
             lines.append(_wrap(f"+ {reason}"))
+        if calls_for_work(item.get("new_reasons")):
+            lines.append(_wrap(f"! {CHECK_NOW_CAUTION}", indent="        "))
     lines.append(f"\nRounds missed ({counts['round_missed']})")
     for item in data["rounds_missed"]:
         lines.append(f"  {item['pump']:<12} last reading {str(item['last_reading_at'])[:10]}, due "
@@ -96,7 +96,7 @@ def plan(db, weeks: int, as_json: bool) -> None:
 
 def plan_text(data: dict) -> str:
     lines = [f"Overhaul plan: the next {data['weeks']} weeks, {data['today']} to {data['horizon_end']}", "",
-             _cautions(), ""]
+             caution_text(), ""]
     if data["at_risk"]:
         lines.append(_wrap(f"At risk before the next window: {', '.join(data['at_risk'])}.", indent=""))
     lines.append(f"\nPumps inside the horizon ({len(data['pumps'])}); dates are expected (early - late bound)")
@@ -162,7 +162,8 @@ def round_(db, route: str, taken_by: str, units_given: tuple[str, ...]) -> None:
     db.require_current()
     with db.sessions() as session:
         name, serials = _route_pumps(session, route)
-    click.echo(f"Round '{name}': {len(serials)} pump(s).\n\n{_cautions()}\n")
+    click.echo(f"Round '{name}': {len(serials)} pump(s).\n\n{caution_text(RUNNING_TITLE, RUNNING_CAUTIONS)}\n\n"
+               f"{caution_text()}\n")
     for number, serial in enumerate(serials, start=1):
         with db.sessions() as session:
             pump = pump_by_serial(session, serial)
@@ -183,6 +184,8 @@ def round_(db, route: str, taken_by: str, units_given: tuple[str, ...]) -> None:
                     continue
                 for doubt in outcome.warnings:
                     click.echo(f"  check: {doubt.message}")
+                    if doubt.caution:
+                        click.echo(_wrap(f"! {doubt.caution}", indent="  "))
                 if outcome.warnings and not click.confirm("  Save as typed?", default=False):
                     values = _ask_values(fields_for(pump), chosen, values)
                     if values is None:

@@ -19,6 +19,7 @@ from fleet.io.parse import Problem, parse_table
 from fleet.jsonvalues import plain
 from fleet.kinds import PUMP_KINDS
 from fleet.physics.pump import theoretical_flow_lpm
+from fleet.safety import HOT_OIL_CAUTION
 from fleet.services.analysis.frames import load_pumps
 from fleet.services.transfer.importing import ImportResult, check_readings, import_table
 from fleet.services.writes import Outcome, perform
@@ -202,6 +203,7 @@ class Doubt:
     code: str
     field: str
     message: str
+    caution: str | None = None  # a safety caution shown with the doubt (fleet.safety)
 
 
 def plausibility_warnings(facts: PumpFacts, reading: dict, now: datetime) -> list[Doubt]:
@@ -227,7 +229,8 @@ def plausibility_warnings(facts: PumpFacts, reading: dict, now: datetime) -> lis
     if not facts.oil_temp_min_c <= temp <= facts.oil_temp_max_c:
         warnings.append(Doubt("temperature_outside_limits", "oil_temp",
                                  f"Oil temperature {temp:.1f} °C is outside this pump's limits "
-                                 f"({facts.oil_temp_min_c:.0f}–{facts.oil_temp_max_c:.0f} °C)."))
+                                 f"({facts.oil_temp_min_c:.0f}–{facts.oil_temp_max_c:.0f} °C).",
+                              HOT_OIL_CAUTION if temp > facts.oil_temp_max_c else None))
     if facts.last_hours is not None and reading["hours"] < facts.last_hours:
         warnings.append(Doubt("hours_backwards", "hours",
                                  f"Running hours {reading['hours']:.0f} h are below the last reading's "

@@ -4,7 +4,7 @@ from datetime import datetime
 
 from flask import Flask
 
-from fleet.safety import CAUTION_TITLE, CAUTIONS
+from fleet import safety
 from fleet.status_words import STATUS_LABELS, STATUS_METER
 from fleet.timeutil import utcnow
 
@@ -17,6 +17,26 @@ def number(value, digits: int = 1, empty: str = "–") -> str:
 
 def percent(value, digits: int = 1, empty: str = "–") -> str:
     return empty if value is None else f"{100 * value:.{digits}f} %"
+
+
+def efficiency(value, empty: str = "–") -> str:
+    """Volumetric efficiency (a fraction in the data) as every page writes it: a percentage, one decimal."""
+    return percent(value, 1, empty)
+
+
+def money(value, currency: str | None, digits: int = 0, empty: str = "–") -> str:
+    """A cost with its site's currency: '12,400 EUR'; a cost of no known site shows the number alone."""
+    if value is None:
+        return empty
+    return f"{number(value, digits)} {currency}" if currency else number(value, digits)
+
+
+LIMIT_NAMES = {"eta_v": "η_v", "case_drain": "case drain"}
+
+
+def limit_name(value, empty: str = "–") -> str:
+    """The governing limit as pages name it: 'η_v' or 'case drain'."""
+    return LIMIT_NAMES.get(value, value) if value else empty
 
 
 def age(value, now: datetime | None = None) -> str:
@@ -34,7 +54,15 @@ def init_app(app: Flask) -> None:
     app.add_template_filter(number)
     app.add_template_filter(percent)
     app.add_template_filter(age)
+    app.add_template_filter(efficiency)
+    app.add_template_filter(money)
+    app.add_template_filter(limit_name)
     app.add_template_global(STATUS_LABELS, "STATUS_LABELS")
     app.add_template_global(STATUS_METER, "STATUS_METER")
-    app.add_template_global(CAUTIONS, "CAUTIONS")
-    app.add_template_global(CAUTION_TITLE, "CAUTION_TITLE")
+    cautions = {"CAUTION_TITLE": safety.CAUTION_TITLE, "CAUTIONS": safety.CAUTIONS,
+                "RUNNING_TITLE": safety.RUNNING_TITLE, "RUNNING_CAUTIONS": safety.RUNNING_CAUTIONS,
+                "RUNNING_REMINDER": safety.RUNNING_REMINDER,
+                "SAMPLING_CAUTIONS": safety.SAMPLING_CAUTIONS, "CHECK_NOW_CAUTION": safety.CHECK_NOW_CAUTION}
+    for name, text in cautions.items():
+        app.add_template_global(text, name)
+    app.add_template_global(safety.calls_for_work, "calls_for_work")

@@ -91,7 +91,10 @@ def _rated(pump: Pump) -> dict:
 
 def _where(session: Session, pump_id: int) -> dict | None:
     place = current_places(session, [pump_id]).get(pump_id)
-    return None if place is None else {"site": place.site, "machine": place.machine, "position": place.position}
+    if place is None:
+        return None
+    return {"site": place.site, "machine": place.machine, "position": place.position,
+            "currency": session.get(Site, place.site_id).currency}
 
 
 def _current_machine_id(session: Session, pump_id: int) -> int | None:

@@ -56,7 +56,7 @@ def _positions(session: Session) -> list[dict]:
 def _pumps(session: Session) -> list[dict]:
     current = aliased(Installation)
     rows = session.execute(
-        select(Pump, Site.name, Machine.name, Position.name)
+        select(Pump, Site.name, Machine.name, Position.name, Site.currency)
         .outerjoin(current, (current.pump_id == Pump.id) & current.removed_at.is_(None))
         .outerjoin(Position, Position.id == current.position_id)
         .outerjoin(Machine, Machine.id == Position.machine_id)
@@ -64,10 +64,10 @@ def _pumps(session: Session) -> list[dict]:
         .order_by(Pump.serial)
     )
     out = []
-    for pump, site, machine, position in rows:
+    for pump, site, machine, position, currency in rows:
         out.append({
             "pump": pump.serial, "kind": pump.kind, "kind_label": PUMP_KINDS.get(pump.kind, pump.kind),
-            "variable": pump.variable, "site": site, "machine": machine, "position": position,
+            "variable": pump.variable, "site": site, "machine": machine, "position": position, "currency": currency,
             **{name: getattr(pump, name) for name in CSV_COLUMNS[6:]},
         })
     return out
