@@ -30,7 +30,7 @@ def test_plan_page_chart_table_caution_and_twins(client):
 
     data = client.get("/plan.json").get_json()
     assert set(data) == KEYS and data["weeks"] == 26
-    assert set(data["pumps"][0]) == {*CSV_COLUMNS, "kind_label", "window_label"}
+    assert set(data["pumps"][0]) == {*CSV_COLUMNS, "kind_label", "window_label"} - {"window_name"}
     horizon = data["horizon_end"]
     for row in data["pumps"]:
         assert row["status"] == "past_limit" or min(row["limit_date"], row["limit_date_low"] or "9") <= horizon
@@ -43,6 +43,19 @@ def test_plan_page_chart_table_caution_and_twins(client):
     text = twin.get_data(as_text=True)
     assert text.splitlines()[0] == ",".join(CSV_COLUMNS)
     assert [r["pump"] for r in csv.DictReader(io.StringIO(text))] == [r["pump"] for r in data["pumps"]]
+
+
+def test_the_plan_csv_rounds_its_figures_and_names_its_windows(client):
+    data = client.get("/plan.json?weeks=520").get_json()
+    rows = list(csv.DictReader(io.StringIO(client.get("/plan.csv?weeks=520").get_data(as_text=True))))
+    assert len(rows) == len(data["pumps"])
+    for row, full in zip(rows, data["pumps"], strict=True):
+        for column in ("hours_to_limit", "overhaul_cost", "energy_cost_per_year", "overhaul_saving_per_year"):
+            assert row[column] == ("" if full[column] is None else str(int(round(full[column])))), column
+        payback = full["overhaul_payback_years"]
+        assert row["overhaul_payback_years"] == ("" if payback is None else str(round(payback, 1)))
+        assert row["window_name"] == (full["window_label"] or "")
+    assert any(r["window_name"] for r in rows)  # the invented demo has shutdown windows ahead
 
 
 def test_a_longer_horizon_holds_at_least_the_same_pumps(client):

@@ -3,7 +3,14 @@
 from flask import Blueprint, abort, flash, jsonify, redirect, request, url_for
 
 from fleet.charts.plan import timeline_html
-from fleet.services.pages.plan import CSV_COLUMNS, DEFAULT_WEEKS, add_window, delete_window, overhaul_plan
+from fleet.services.pages.plan import (
+    CSV_COLUMNS,
+    DEFAULT_WEEKS,
+    add_window,
+    csv_rows,
+    delete_window,
+    overhaul_plan,
+)
 from fleet.services.writes import perform
 from fleet.services.writes.forms import FormRejected
 from fleet.web.auth import requires
@@ -24,6 +31,8 @@ def _page(fmt, window_form: dict | None = None, window_errors: dict | None = Non
     extra = {}
     if fmt is None and not wants_json(fmt):
         extra["chart_html"] = timeline_html(data)  # HTML only: the twins carry the data, not the drawing
+    if fmt == "csv":
+        extra["pumps"] = csv_rows(data["pumps"])  # rounded and with window names; the JSON keeps every digit
     return respond({**data, **extra}, "plan/overhaul.html", fmt, "pumps", CSV_COLUMNS, "overhaul-plan", status)
 
 

@@ -23,9 +23,24 @@ DEFAULT_WEEKS = 26
 MAX_WEEKS = 520
 # Columns of the CSV twin: one row per pump on the plan.
 CSV_COLUMNS = ("pump", "kind", "site", "machine", "position", "status", "governing_limit", "limit_date",
-               "limit_date_low", "limit_date_high", "hours_to_limit", "fit", "window", "window_starts",
+               "limit_date_low", "limit_date_high", "hours_to_limit", "fit", "window", "window_name", "window_starts",
                "overhaul_cost", "energy_cost_per_year", "overhaul_saving_per_year", "overhaul_payback_years",
                "currency")
+# Digits a planner's spreadsheet needs: whole hours and money, a tenth of a year of payback.
+CSV_DIGITS = {"hours_to_limit": 0, "overhaul_cost": 0, "energy_cost_per_year": 0, "overhaul_saving_per_year": 0,
+              "overhaul_payback_years": 1}
+
+
+def csv_rows(rows: list[dict]) -> list[dict]:
+    """The plan's rows as its CSV twin gives them: figures rounded to CSV_DIGITS, each window named."""
+    out = []
+    for row in rows:
+        row = {**row, "window_name": row.get("window_label")}
+        for key, digits in CSV_DIGITS.items():
+            if row.get(key) is not None:
+                row[key] = round(row[key], digits) if digits else int(round(row[key]))
+        out.append(row)
+    return out
 
 
 def overhaul_plan(session: Session, weeks: int = DEFAULT_WEEKS, now: datetime | None = None) -> dict:
