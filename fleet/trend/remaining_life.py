@@ -180,16 +180,18 @@ def dates_at_hours(readings: pd.DataFrame, keys: pd.DataFrame, interval_hours, p
     last reading it is extrapolated at the interval's hours per day. keys: pump_id, interval_no per target
     (same length as interval_hours and per_day). NaT where a figure is missing.
     """
-    target = keys[["pump_id", "interval_no"]].reset_index(drop=True).assign(
+    by = ["pump_id", "interval_no"]
+    # One key type on both sides (an empty frame comes as object): merge_asof refuses to match mixed types.
+    target = keys[by].reset_index(drop=True).astype(np.int64).assign(
         h=np.asarray(interval_hours, dtype=float), rate=np.asarray(per_day, dtype=float), row=np.arange(len(keys))
     )
     r = readings.loc[
         np.isfinite(pd.to_numeric(readings["interval_hours"], errors="coerce")) & readings["taken_at"].notna(),
         ["pump_id", "interval_no", "interval_hours", "taken_at"],
     ].rename(columns={"interval_hours": "h"})
-    r = r.assign(h=r["h"].astype(float)).sort_values("h", kind="stable")
+    r = r.astype({"pump_id": np.int64, "interval_no": np.int64})
+    r = r.assign(h=r["h"].astype(float), taken_at=pd.to_datetime(r["taken_at"])).sort_values("h", kind="stable")
     known = target[np.isfinite(target["h"])].sort_values("h", kind="stable")
-    by = ["pump_id", "interval_no"]
     before = pd.merge_asof(known, r.rename(columns={"h": "h_b", "taken_at": "t_b"}), left_on="h", right_on="h_b",
                            by=by, direction="backward")
     after = pd.merge_asof(known, r.rename(columns={"h": "h_f", "taken_at": "t_f"}), left_on="h", right_on="h_f",
