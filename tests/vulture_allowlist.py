@@ -30,3 +30,5 @@ get_cookie_secure
 session_interface
 status_code
 temp_offset_c  # read by name: seed_demo.measurements.machine_column(visits["machine"], "temp_offset_c")
+freeze_panes  # openpyxl reads these attributes of a sheet and a cell when it saves the workbook
+number_format
