@@ -104,10 +104,11 @@ def init(db: Database) -> None:
               "read or 'fleet analyze' (a bulk load in several files)")
 @click.pass_obj
 def import_(db: Database, kind: str, file: Path, no_analysis: bool) -> None:
-    """Import a CSV file of KIND, whole or not at all.
+    """Import a CSV or .xlsx file of KIND, whole or not at all.
 
-    Headers may carry a unit in brackets, e.g. 'outlet_flow [gal/min]'. On any bad row nothing is written and
-    every problem is listed with its row (the header is row 1), column and reason.
+    Headers may carry a unit in brackets, e.g. 'outlet_flow [gal/min]'. A FILE ending in .xlsx is read as a
+    spreadsheet (its first sheet, the same headers). On any bad row nothing is written and every problem is listed
+    with its row (the header is row 1), column and reason, and in a spreadsheet its cell (e.g. B7).
     """
     from fleet.io.parse import ImportRejected
     from fleet.services.transfer.importing import import_file
@@ -133,17 +134,23 @@ def import_(db: Database, kind: str, file: Path, no_analysis: bool) -> None:
 @click.argument("file", type=click.Path(dir_okay=False, allow_dash=True))
 @click.pass_obj
 def export(db: Database, kind: str, file: str) -> None:
-    """Write KIND as CSV (canonical units in the headers) to FILE, or '-' for standard output."""
-    from fleet.services.transfer.exporting import export_table
+    """Write KIND to FILE as CSV (canonical units in the headers), as an .xlsx spreadsheet when FILE ends in .xlsx,
+    or as CSV to standard output for '-'. Text that a spreadsheet would run as a formula gets a leading quote."""
+    from fleet.io.files import is_xlsx_path
+    from fleet.services.transfer.exporting import export_csv, export_xlsx
 
     db.require_current()
     with db.sessions() as session:
-        table = export_table(session, kind)
+        if file != "-" and is_xlsx_path(file):
+            content, rows = export_xlsx(session, kind)
+        else:
+            content, rows = export_csv(session, kind)
     if file == "-":
-        table.to_csv(sys.stdout, index=False)
-    else:
-        table.to_csv(file, index=False)
-        click.echo(f"{kind}: {len(table)} row(s) written to {file}")
+        click.echo(content, nl=False)
+        return
+    with open(file, "wb") as out:
+        out.write(content if isinstance(content, bytes) else content.encode("utf-8"))
+    click.echo(f"{kind}: {rows} row(s) written to {file}")
 
 
 @main.command()

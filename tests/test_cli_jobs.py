@@ -87,12 +87,17 @@ def test_unknown_route_names_the_choices(demo_db):
 def test_review_at_the_terminal_and_as_json(demo_db):
     text = _run(demo_db, "review")
     assert text.exit_code == 0, text.output
-    for heading in ("Weekly review", "Limits crossed", "Status changes", "Rounds missed", "Lab results late",
-                    "Largest energy losses"):
+    for heading in ("Weekly review", "Limits crossed", "Still past their limit", "Status changes", "New reasons",
+                    "Maintenance done", "Pumps installed or removed", "Readings corrected", "Rounds missed",
+                    "Lab results late", "Largest energy losses"):
         assert heading in text.output
     data = json.loads(_run(demo_db, "review", "--json").output)
-    assert set(data["counts"]) == {"status_change", "new_reason", "limit_crossed", "round_missed", "lab_late",
+    assert set(data["counts"]) == {"status_change", "new_reason", "limit_crossed", "still_past_limit",
+                                   "maintenance", "installation", "reading_corrected", "round_missed", "lab_late",
                                    "energy_loss"}
+    for late in data["lab_late"]:  # the sentence and the table state the same whole days
+        assert f"waiting {late['days_waiting']} days" in text.output
+        assert f"has waited {late['days_waiting']} days" in late["sentence"]
     assert f"Status changes ({data['counts']['status_change']})" in text.output
 
 

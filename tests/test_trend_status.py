@@ -150,7 +150,8 @@ def test_due_soon_ordered_by_lower_bound_date(fleet):
         (9, "Oil at 86 degC on the last reading, above the 80 degC limit."),
         (10, "The latest oil sample, 20/18/15, is 2 steps dirtier than the 18/16/13 target."),
         (11, "Water in the oil is 800 ppm, above 500 ppm."),
-        (12, "has no lab result after 14 days"),
+        # Sampled 20 days before the analysis (the fixture above); late after the default 14.
+        (12, "has waited 20 days for its lab result (late after 14 days)."),
         (13, "readings are due every 14 days"),
         (14, "The last reading could not be referred: no working pressure recorded."),
         (15, "Volumetric efficiency is falling fast"),

@@ -294,7 +294,8 @@ def test_upload_with_problems_shows_the_cli_report_and_writes_nothing(client, de
     body = twin.get_json()
     assert body["outcome"]["report"].splitlines() == cli_report
     assert [p["row"] for p in body["problems"]] == [3, 4, 4]
-    assert set(body["problems"][0]) == {"row", "column", "reason"}
+    assert set(body["problems"][0]) == {"row", "column", "reason", "cell"}  # cell: only a spreadsheet has one
+    assert body["problems"][0]["cell"] is None
     for line in cli_report:
         assert line.replace("'", "&#39;") in html
 

@@ -2,9 +2,10 @@
 
 import csv
 import io
-from datetime import date, timedelta
+from datetime import date, datetime, timedelta
 from pathlib import Path
 
+import pytest
 from sqlalchemy import delete, func, select
 
 from fleet.db.models import Machine, Pump, Reading, StatusChange
@@ -13,13 +14,19 @@ from fleet.timeutil import utcnow
 
 KEYS = {"week_start", "week_end", "week", "previous_week", "next_week", "lab_late_days", "counts",
         "status_changes", "new_reasons", "limits_crossed", "rounds_missed", "lab_late", "energy_losses", "sections",
-        "items"}
+        "items",
+        # added with the counts that count right: kept apart, so the keys above keep their meaning
+        "reason_changes", "still_past_limit", "maintenance", "maintenance_totals", "installations",
+        "readings_corrected"}
 
 
 def _changes_this_week(demo_db) -> int:
+    """Status change rows of the last 7 days whose status really changed (a first analysis counts)."""
     since = utcnow() - timedelta(days=7)
     with demo_db.sessions() as session:
-        return session.scalar(select(func.count()).select_from(StatusChange).where(StatusChange.at >= since))
+        rows = session.execute(select(StatusChange.status, StatusChange.previous_status)
+                               .where(StatusChange.at >= since)).all()
+    return sum(1 for status, previous in rows if status != previous)
 
 
 def test_review_page_sections_and_twins(client, demo_db):
@@ -126,3 +133,112 @@ def test_print_stylesheet_hides_navigation_and_forms():
     print_rules = css[css.index("@media print"):]
     for selector in (".masthead", ".no-print", ".foot", "form.record", "button"):
         assert selector in print_rules.split("display: none")[0]
+
+
+# --- counting right: every figure derived again here from the stored rows of the week ---------------------------
+
+def _week_rows(demo_db, start, end):
+    """The rows the review counts, read plainly from the tables, with the rules README states."""
+    from fleet.db.models import AnalysisResult, AuditRecord, Installation, MaintenanceEvent
+
+    with demo_db.sessions() as s:
+        serial = dict(s.execute(select(Pump.id, Pump.serial)).all())
+        changes = s.execute(select(StatusChange.pump_id, StatusChange.status, StatusChange.previous_status,
+                                   StatusChange.new_reasons).where(StatusChange.at >= start, StatusChange.at < end)
+                            ).all()
+        events = s.execute(select(MaintenanceEvent.pump_id, MaintenanceEvent.cost, MaintenanceEvent.downtime_h)
+                           .where(MaintenanceEvent.date >= start, MaintenanceEvent.date < end)).all()
+        stays = s.execute(select(Installation.installed_at, Installation.removed_at)).all()
+        corrected = s.scalar(select(func.count()).select_from(AuditRecord).where(
+            AuditRecord.action == "update", AuditRecord.table_name == "reading", AuditRecord.at >= start,
+            AuditRecord.at < end))
+        past_now = {serial[p] for p in s.scalars(select(AnalysisResult.pump_id)
+                                                 .where(AnalysisResult.status == "past_limit"))}
+    crossed = {serial[p] for p, status, previous, _ in changes if status == "past_limit" and previous != "past_limit"}
+    moves = sum(start <= at < end for stay in stays for at in stay if at is not None)
+    return {
+        "status_change": sum(1 for _, status, previous, _ in changes if status != previous),
+        "new_reason": sum(len(new or []) for *_, new in changes),
+        "limit_crossed": len(crossed),
+        "still_past_limit": len(past_now - crossed),
+        "maintenance": len(events),
+        "installation": moves,
+        "reading_corrected": corrected,
+    }, crossed, past_now, events
+
+
+def test_the_review_counts_what_happened_in_the_week(client, demo_db):
+    from fleet.db.models import Installation, MaintenanceEvent, Position
+
+    now = utcnow()
+    day = now - timedelta(days=1)
+    with demo_db.sessions.begin() as s:
+        ids = dict(s.execute(select(Pump.serial, Pump.id)).all())
+        # Invented happenings of the week: a reasons-only row of a pump past its limit, a pump that crosses its
+        # limit, an overhaul, a filter change and a seal repair, one pump moved, one reading corrected.
+        s.add(StatusChange(pump_id=ids["EY-203"], at=day, status="past_limit", previous_status="past_limit",
+                           reasons=["invented reason"], new_reasons=["invented reason"]))
+        s.add(StatusChange(pump_id=ids["EY-102"], at=day, status="past_limit", previous_status="watch",
+                           reasons=["invented crossing"], new_reasons=["invented crossing"]))
+        s.add(MaintenanceEvent(pump_id=ids["RS-501"], date=day, kind="overhaul", cost=4200.0, downtime_h=16.0,
+                               failure_mode="internal_leakage", note="invented"))
+        s.add(MaintenanceEvent(pump_id=ids["RS-502"], date=day, kind="filter_change", cost=80.0, downtime_h=0.5))
+        s.add(MaintenanceEvent(pump_id=ids["EY-101"], date=day, kind="seal_repair", cost=None, downtime_h=3.0))
+        stay = s.scalar(select(Installation).where(Installation.pump_id == ids["RS-803"],
+                                                   Installation.removed_at.is_(None)))
+        stay.removed_at, stay.removed_hours = day, 100.0
+        spare = s.scalar(select(Position).where(Position.id != stay.position_id).limit(1))
+        s.add(Installation(pump_id=ids["RS-803"], position_id=spare.id, installed_at=day + timedelta(hours=2)))
+        reading = s.scalar(select(Reading).where(Reading.pump_id == ids["EY-101"]).order_by(Reading.taken_at.desc())
+                           .limit(1))
+        reading.temp_c = reading.temp_c + 1.0
+    data = client.get(f"/review.json?week={now.date().isoformat()}").get_json()
+    start, end = datetime.fromisoformat(data["week_start"]), datetime.fromisoformat(data["week_end"])
+    expected, crossed, past_now, events = _week_rows(demo_db, start, end)
+    assert {k: data["counts"][k] for k in expected} == expected
+    # What the rows above make of it, by hand: EY-102 crossed; EY-203's row changed reasons, not status.
+    assert {c["pump"] for c in data["limits_crossed"]} == crossed and "EY-102" in crossed
+    assert "EY-203" not in {c["pump"] for c in data["status_changes"]}
+    assert "EY-203" in {c["pump"] for c in data["reason_changes"]}
+    assert "invented reason" in {r["reason"] for r in data["new_reasons"] if r["pump"] == "EY-203"}
+    assert all(c["status"] != c["previous_status"] for c in data["status_changes"])
+    # No pump past its limit is left out: crossed this week or still past it.
+    shown = crossed | {p["pump"] for p in data["still_past_limit"]}
+    assert shown >= past_now and len(past_now) >= 5
+    assert {(e["pump"], e["kind"]) for e in data["maintenance"]} >= {("RS-501", "overhaul"),
+                                                                      ("RS-502", "filter_change"),
+                                                                      ("EY-101", "seal_repair")}
+    totals = data["maintenance_totals"]
+    assert totals["events"] == len(events)
+    assert sum(totals["cost"].values()) == pytest.approx(sum(c for _, c, _ in events if c is not None))
+    assert totals["downtime_h"] == pytest.approx(sum(d for *_, d in events if d is not None))
+    assert {(m["pump"], m["what"]) for m in data["installations"]} == {("RS-803", "removed"), ("RS-803", "installed")}
+    (fix,) = data["readings_corrected"]
+    assert fix["pump"] == "EY-101" and [c["field"] for c in fix["changes"]] == ["oil temperature"]
+    assert fix["changes"][0]["after"] == pytest.approx(fix["changes"][0]["before"] + 1.0)
+    # The CSV twin holds one row per finding, the page shows every section.
+    assert len(data["items"]) == sum(data["counts"].values())
+    html = client.get(f"/review?week={now.date().isoformat()}").get_data(as_text=True)
+    for label in SECTIONS.values():
+        assert label in html
+    assert "RS-501" in html and "overhaul" in html and "oil temperature" in html
+
+
+def test_lab_days_waiting_agree_between_sentence_and_table(client, demo_db):
+    with demo_db.sessions() as s:
+        machine = s.scalar(select(Machine).where(Machine.name == "press-2"))
+    sampled = utcnow() - timedelta(days=17, hours=3)
+    assert client.post("/register/sample/new", data={"machine_id": str(machine.id),
+                                                     "sampled_at": sampled.strftime("%Y-%m-%dT%H:%M"),
+                                                     "lab_ref": "invented-078"}).status_code == 302
+    data = client.get("/review.json").get_json()
+    (late,) = [s for s in data["lab_late"] if s["lab_ref"] == "invented-078"]
+    # 17 days and 3 hours before now: 17 whole days, in the table and in the sentence alike.
+    assert late["days_waiting"] == 17
+    assert "has waited 17 days for its lab result (late after 14 days)." in late["sentence"]
+    html = client.get("/review").get_data(as_text=True)
+    assert late["sentence"] in html
+    # The analysis of the pumps on press-2 says the same.
+    reasons = [r for p in late["pumps"] for c in data["status_changes"] + data["reason_changes"] if c["pump"] == p
+               for r in c["reasons"] if "invented" not in r and "has waited" in r]
+    assert reasons and all("has waited 17 days" in r for r in reasons)

@@ -47,19 +47,46 @@ def review_text(data: dict) -> str:
 
     counts, lines = data["counts"], []
     lines.append(f"Weekly review {data['week_start'].replace('T', ' ')} to {data['week_end'].replace('T', ' ')} (UTC)")
-    lines.append("  " + " · ".join(f"{data['sections'][k]} {n}" for k, n in counts.items()))
-    lines.append(f"\nLimits crossed ({counts['limit_crossed']})")
+    lines.append(_wrap(" · ".join(f"{data['sections'][k]} {n}" for k, n in counts.items()), indent="  "))
+    lines.append(f"\nLimits crossed this week ({counts['limit_crossed']})")
     for item in data["limits_crossed"]:
         place = f"{item.get('site')} / {item.get('machine')}"
-        lines.append(f"  {item['pump']:<12} now {_label(item.get('status'))}  {place}")
+        lines.append(f"  {item['pump']:<12} {_label(item['previous_status']):>10} -> {_label(item['status'])}  "
+                     f"{item['at'][:16].replace('T', ' ')}  {place}")
+    lines.append(f"\nStill past their limit ({counts['still_past_limit']})")
+    for item in data["still_past_limit"]:
+        since = (item.get("past_limit_since") or "before the records")[:16].replace("T", " ")
+        lines.append(f"  {item['pump']:<12} since {since}  η_v,ref {efficiency(item.get('eta_v_ref'))}  "
+                     f"({item.get('site')} / {item.get('machine')})")
     lines.append(f"\nStatus changes ({counts['status_change']})")
     for item in data["status_changes"]:
         lines.append(f"  {item['pump']:<12} {_label(item['previous_status']):>10} -> {_label(item['status']):<10} "
                      f"{item['at'][:16].replace('T', ' ')}  η_v,ref {efficiency(item.get('eta_v_ref'))}")
-        for reason in item.get("new_reasons") or []:
-            lines.append(_wrap(f"+ {reason}"))
-        if calls_for_work(item.get("new_reasons")):
+    lines.append(f"\nNew reasons ({counts['new_reason']})")
+    for item in data["new_reasons"]:
+        lines.append(f"  {item['pump']:<12} {_label(item['status']):<10} {item['at'][:16].replace('T', ' ')}")
+        lines.append(_wrap(f"+ {item['reason']}"))
+        if calls_for_work([item["reason"]]):
             lines.append(_wrap(f"! {CHECK_NOW_CAUTION}", indent="        "))
+    totals = data["maintenance_totals"]
+    cost = ", ".join(f"{_num(v)} {k}" for k, v in sorted(totals["cost"].items())) or "no cost recorded"
+    lines.append(f"\nMaintenance done ({counts['maintenance']}): {cost}; {_num(totals['downtime_h'], '.1f')} h down")
+    for item in data["maintenance"]:
+        extra = "".join([f", {item['failure_mode']}" if item.get("failure_mode") else "",
+                         f", {_num(item['cost'])} {item.get('currency') or ''}".rstrip() if item.get("cost") is not None
+                         else "",
+                         f", {_num(item['downtime_h'], '.1f')} h down" if item.get("downtime_h") is not None else ""])
+        lines.append(f"  {item['pump']:<12} {item['date'][:10]} {item['kind']}{extra}")
+    lines.append(f"\nPumps installed or removed ({counts['installation']})")
+    for item in data["installations"]:
+        lines.append(f"  {item['pump']:<12} {item['what']:<9} {item['at'][:16].replace('T', ' ')}  "
+                     f"{item['site']} / {item['machine']} / {item['position']}")
+    lines.append(f"\nReadings corrected ({counts['reading_corrected']})")
+    for item in data["readings_corrected"]:
+        changed = "; ".join(f"{c['field']} {c['before']} -> {c['after']}" for c in item["changes"])
+        when = item["at"][:16].replace("T", " ")
+        lines.append(_wrap(f"{item['pump']:<12} reading of {item['taken_at']}, corrected {when} by {item['by']}: "
+                           f"{changed}", indent="  "))
     lines.append(f"\nRounds missed ({counts['round_missed']})")
     for item in data["rounds_missed"]:
         lines.append(f"  {item['pump']:<12} last reading {str(item['last_reading_at'])[:10]}, due "
@@ -68,7 +95,7 @@ def review_text(data: dict) -> str:
     lines.append(f"\nLab results late ({counts['lab_late']})")
     for item in data["lab_late"]:
         lines.append(f"  {item.get('site')} / {item.get('machine')}: sampled {str(item['sampled_at'])[:10]}, "
-                     f"waiting {_num(item['days_waiting'])} d; pumps {', '.join(item.get('pumps') or [])}")
+                     f"waiting {item['days_waiting']} days; pumps {', '.join(item.get('pumps') or [])}")
     lines.append(f"\nLargest energy losses ({counts['energy_loss']})")
     for item in data["energy_losses"]:
         payback = item.get("overhaul_payback_years")

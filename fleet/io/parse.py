@@ -33,9 +33,11 @@ class Problem:
     row: int
     column: str
     reason: str
+    cell: str | None = field(default=None, compare=False)  # a spreadsheet's cell reference, e.g. B7
 
     def __str__(self) -> str:
-        return f"row {self.row}, column '{self.column}': {self.reason}"
+        where = f" (cell {self.cell})" if self.cell else ""
+        return f"row {self.row}, column '{self.column}'{where}: {self.reason}"
 
 
 class ImportRejected(Exception):

@@ -9,6 +9,18 @@ from fleet.physics.cleanliness import Iso4406Code, parse_code, steps_over_channe
 from fleet.physics.oil import kinematic_viscosity_cst, oil_life_factor, viscosity_window_flag
 from fleet.trend.settings import AnalysisSettings
 
+
+def lab_days_waiting(sampled_at, at) -> int:
+    """Whole days a sample has waited for its lab result at ``at`` (days begun are not counted). The one figure
+    both the analysis's sentence and the weekly review's table state."""
+    return int((pd.Timestamp(at) - pd.Timestamp(sampled_at)) // pd.Timedelta(days=1))
+
+
+def lab_late_sentence(sampled_at, days: int, late_days: float) -> str:
+    return (f"The oil sample taken {pd.Timestamp(sampled_at):%Y-%m-%d} has waited {days} day{'s' if days != 1 else ''}"
+            f" for its lab result (late after {late_days:.0f} days).")
+
+
 OIL_COLUMNS = [
     "sample_sampled_at",
     "sample_reported_at",

@@ -8,6 +8,7 @@ little data). healthy: none of these, said with the figures that show it.
 import numpy as np
 import pandas as pd
 
+from fleet.trend.oil_condition import lab_days_waiting, lab_late_sentence
 from fleet.trend.referral import NO_LEAKAGE_MEASURED
 from fleet.trend.settings import AnalysisSettings
 
@@ -207,7 +208,7 @@ def assess_status(results: pd.DataFrame, now, settings: AnalysisSettings) -> pd.
         ),
         _sentences(
             lab_late,
-            lambda d: f"The oil sample taken {_date(d)} has no lab result after {settings.lab_late_days:.0f} days.",
+            lambda d: lab_late_sentence(d, lab_days_waiting(d, now), settings.lab_late_days),
             _col(r, "lab_pending_since", pd.NaT),
         ),
         _sentences(

@@ -112,7 +112,7 @@ def current_actor() -> str:
 # --- refusals ----------------------------------------------------------------------------------------------
 
 def _wants_json() -> bool:
-    if request.blueprint == "api" or request.path.endswith((".json", ".csv")):
+    if request.blueprint == "api" or request.path.endswith((".json", ".csv", ".xlsx")):
         return True
     best = request.accept_mimetypes.best_match(["text/html", "application/json"])
     return best == "application/json" and request.accept_mimetypes["application/json"] > \

@@ -24,7 +24,7 @@ HSTS = "max-age=31536000"
 
 def _too_large(_error=None):
     reason = f"the request is larger than {MAX_REQUEST_BYTES // (1024 * 1024)} MB; nothing was read or stored"
-    if request.blueprint == "api" or request.path.endswith((".json", ".csv")) or request.is_json:
+    if request.blueprint == "api" or request.path.endswith((".json", ".csv", ".xlsx")) or request.is_json:
         return jsonify({"problems": [{"row": 0, "column": "", "reason": reason}]}), 413
     return render_template("auth/refused.html", status=413, reason=reason, sign_in=None), 413
 

@@ -8,7 +8,7 @@ from fleet.charts.pump import page_charts
 from fleet.services.pages.pump import READING_COLUMNS, pump_page
 from fleet.web.db import session
 from fleet.web.lookup import pump_or_404
-from fleet.web.respond import respond, twin_routes, twin_urls, wants_json
+from fleet.web.respond import is_table_format, respond, twin_routes, twin_urls, wants_json
 
 bp = Blueprint("pumps", __name__)
 
@@ -17,7 +17,7 @@ bp = Blueprint("pumps", __name__)
 def page(serial, fmt):
     pump_or_404(serial, fmt)
     data = pump_page(session(), serial)
-    if wants_json(fmt) or fmt == "csv":
+    if wants_json(fmt) or is_table_format(fmt):
         return respond(data, "pumps/page.html", fmt, "readings", READING_COLUMNS, _filename(serial))
     return render_template("pumps/page.html", twins=twin_urls(), charts=page_charts(data), **data)
 

@@ -70,7 +70,7 @@ def upload(fmt):
     if request.method == "POST":
         kind = request.form.get("kind", "")
         file = request.files.get("file")
-        outcome = upload_file(sessions(), kind, file.read() if file else None)
+        outcome = upload_file(sessions(), kind, file.read() if file else None, file.filename if file else None)
         status = 200 if outcome["ok"] else 400
         data.update(kind=kind, outcome=outcome, problems=outcome["problems"])
     return respond(data, "register/upload.html", fmt, "problems", PROBLEM_COLUMNS, "upload-report", status)

@@ -17,7 +17,7 @@ from fleet.timeutil import utcnow
 from fleet.web.auth import current_actor, requires
 from fleet.web.db import session, sessions
 from fleet.web.lookup import pump_or_404
-from fleet.web.respond import respond, twin_routes, twin_urls, wants_json
+from fleet.web.respond import TWIN_FORMATS, is_table_format, respond, twin_routes, twin_urls, wants_json
 
 bp = Blueprint("rounds", __name__)
 
@@ -55,7 +55,7 @@ def create():
 
 
 def twin_urls_for_index() -> dict[str, str]:
-    return {fmt: url_for("rounds.index", fmt=fmt) for fmt in ("json", "csv")}
+    return {fmt: url_for("rounds.index", fmt=fmt) for fmt in TWIN_FORMATS}
 
 
 # --- walking a route ---------------------------------------------------------------------------------------
@@ -65,7 +65,7 @@ def walk(route_id, fmt):
     data = rounds.route_walk(session(), route_id)
     if data is None:
         abort(404, description="No such route.")
-    if wants_json(fmt) or fmt == "csv":
+    if wants_json(fmt) or is_table_format(fmt):
         return respond(data, "rounds/walk.html", fmt, "stops", STOP_COLUMNS, f"route-{route_id}")
     number = request.args.get("stop", type=int) or _first_unread(data["stops"])
     return _render_walk(data, number, values={}, chosen=_remembered_units(), twins=twin_urls())
@@ -95,14 +95,14 @@ def reading(route_id, number):
     if outcome.problems or action == "check" or (doubts and not (action == "confirm" and doubts <= confirmed)):
         status = 422 if outcome.problems else 200
         page = _render_walk(data, number, values=values, chosen=chosen, outcome=outcome, checked=True,
-                            twins={fmt: url_for("rounds.walk", route_id=route_id, fmt=fmt) for fmt in ("json", "csv")})
+                            twins={fmt: url_for("rounds.walk", route_id=route_id, fmt=fmt) for fmt in TWIN_FORMATS})
         return _remember_units(page, chosen), status
     try:
         saved = rounds.save_readings(sessions(), table)
     except ImportRejected as rejected:  # stored by someone else between the check and the save
         outcome = rounds.CheckOutcome(problems=rejected.problems)
         page = _render_walk(data, number, values=values, chosen=chosen, outcome=outcome, checked=True,
-                            twins={fmt: url_for("rounds.walk", route_id=route_id, fmt=fmt) for fmt in ("json", "csv")})
+                            twins={fmt: url_for("rounds.walk", route_id=route_id, fmt=fmt) for fmt in TWIN_FORMATS})
         return _remember_units(page, chosen), 422
     flash(f"Saved the reading of {pump.serial}; {saved.describe()}.", "info")
     after = number + 1 if number < len(data["stops"]) else None

@@ -1,5 +1,7 @@
-"""Export each kind as the importer reads it, canonical units written into the headers, so files round-trip."""
+"""Export each kind as the importer reads it, canonical units written into the headers, so files round-trip.
 
+CSV and .xlsx carry the same columns; every text cell passes the formula guard (``fleet.io.formulas``).
+"""
 
 import pandas as pd
 from sqlalchemy import select
@@ -19,6 +21,8 @@ from fleet.db.models import (
     Site,
 )
 from fleet.io.columns import KINDS, Column
+from fleet.io.formulas import guard
+from fleet.io.spreadsheet import frame_to_xlsx
 from fleet.physics.cleanliness import Iso4406Code
 
 TIME_FORMAT = "%Y-%m-%d %H:%M:%S"
@@ -31,7 +35,30 @@ def header(column: Column) -> str:
     return f"{column.name} [{label}]" if label else column.name
 
 
-def export_table(session: Session, kind: str) -> pd.DataFrame:
+def export_csv(session: Session, kind: str) -> tuple[str, int]:
+    """``kind`` as CSV text, and its number of rows."""
+    table = export_table(session, kind)
+    return _guarded(table).to_csv(index=False, lineterminator="\n"), len(table)
+
+
+def export_xlsx(session: Session, kind: str) -> tuple[bytes, int]:
+    """``kind`` as an .xlsx workbook (numbers as numbers, times as Excel dates), and its number of rows."""
+    table = export_table(session, kind, text_times=False)
+    return frame_to_xlsx(table, title=kind), len(table)
+
+
+def _guarded(table: pd.DataFrame) -> pd.DataFrame:
+    """Text cells through the formula guard; numbers and times untouched."""
+    out = table.copy()
+    for name in out.columns:
+        series = out[name]
+        if not (pd.api.types.is_numeric_dtype(series) or pd.api.types.is_datetime64_any_dtype(series)):
+            out[name] = series.astype(object).map(guard)
+    return out
+
+
+def export_table(session: Session, kind: str, text_times: bool = True) -> pd.DataFrame:
+    """The rows of ``kind`` with the importer's headers; times as text unless ``text_times`` is False."""
     frame = _QUERIES[kind](session)
     specs = KINDS[kind]
     out = pd.DataFrame(index=frame.index)
@@ -39,7 +66,8 @@ def export_table(session: Session, kind: str) -> pd.DataFrame:
         values = frame[column.name] if column.name in frame else pd.Series([None] * len(frame), dtype=object)
         if column.type == "datetime":
             stamps = pd.to_datetime(values)
-            values = stamps.dt.strftime(TIME_FORMAT).where(stamps.notna(), "")
+            values = stamps.dt.strftime(TIME_FORMAT).where(stamps.notna(), "") if text_times \
+                else stamps.dt.floor("s").astype(object).where(stamps.notna(), None)
         elif column.type == "bool":
             values = values.map(lambda v: "" if v is None else ("yes" if v else "no"))
         elif column.quantity is not None and column.export_unit:

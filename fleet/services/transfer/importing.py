@@ -26,7 +26,9 @@ from fleet.db.models import (
 )
 from fleet.db.queries import pumps_on_machine
 from fleet.io import rules
+from fleet.io.files import read_file
 from fleet.io.parse import ImportRejected, ParsedTable, Problem, parse_table, row_numbers
+from fleet.io.spreadsheet import SpreadsheetError
 from fleet.physics.cleanliness import code_from_counts
 from fleet.services.register import records as register
 from fleet.timeutil import utcnow
@@ -53,13 +55,25 @@ class ImportResult:
         return text
 
 
-def read_csv(path: str | Path) -> pd.DataFrame:
-    """Read a CSV as text cells (types are decided by the column specs, not guessed)."""
-    return pd.read_csv(path, dtype=str, keep_default_na=False, skipinitialspace=True, encoding="utf-8-sig")
-
-
 def import_file(session: Session, kind: str, path: str | Path, **kwargs) -> ImportResult:
-    return import_table(session, kind, read_csv(path), **kwargs)
+    """Import a CSV file, or an .xlsx workbook when its name ends in .xlsx (problems then name their cells)."""
+    table, sheet = read_readable(path)
+    try:
+        return import_table(session, kind, table, **kwargs)
+    except ImportRejected as rejected:
+        if sheet is None:
+            raise
+        raise sheet.locate(rejected) from None
+
+
+def read_readable(source: str | Path | bytes, filename: str | None = None):
+    """``fleet.io.files.read_file``, with a file that cannot be read at all as a problem of row 1."""
+    try:
+        return read_file(source, filename)
+    except ValueError as exc:  # a broken workbook, a CSV that is no CSV, bytes that are no UTF-8
+        kind = "an .xlsx workbook" if isinstance(exc, SpreadsheetError) else "a CSV file"
+        detail = str(exc).splitlines()[0] if str(exc) else exc.__class__.__name__
+        raise ImportRejected([Problem(1, "", f"the file is not readable as {kind} ({detail})")]) from None
 
 
 def import_table(session: Session, kind: str, table: pd.DataFrame, *, now: datetime | None = None,

@@ -1,16 +1,13 @@
-"""A CSV file uploaded on the register page: imported whole or not at all, with the CLI's row-numbered report."""
+"""A CSV or .xlsx file uploaded on the register page: imported whole or not at all, with the CLI's report."""
 
-import io
-
-import pandas as pd
 from sqlalchemy.orm import Session, sessionmaker
 
 from fleet.io.columns import KINDS
 from fleet.io.parse import ImportRejected
-from fleet.services.transfer.importing import import_table
+from fleet.services.transfer.importing import import_table, read_readable
 from fleet.services.writes import perform
 
-PROBLEM_COLUMNS = ("row", "column", "reason")
+PROBLEM_COLUMNS = ("row", "column", "reason", "cell")  # cell: a spreadsheet's reference, e.g. B7
 
 
 def upload_kinds() -> dict:
@@ -19,30 +16,27 @@ def upload_kinds() -> dict:
             for kind, columns in KINDS.items()}
 
 
-def read_upload(data: bytes) -> pd.DataFrame:
-    """Text cells of an uploaded CSV, read exactly as the CLI reads a file."""
-    return pd.read_csv(io.BytesIO(data), dtype=str, keep_default_na=False, skipinitialspace=True,
-                       encoding="utf-8-sig")
-
-
-def upload_file(sessions: sessionmaker[Session], kind: str, data: bytes | None) -> dict:
-    """Import ``data`` as ``kind`` in one unit of work. Returns the outcome; ``ok`` False means nothing was
-    written, with ``problems`` as rows and ``report`` as the CLI prints it."""
+def upload_file(sessions: sessionmaker[Session], kind: str, data: bytes | None, filename: str | None = None) -> dict:
+    """Import ``data`` (CSV, or an .xlsx workbook by its content or ``filename``) as ``kind`` in one unit of work.
+    Returns the outcome; ``ok`` False means nothing was written, with ``problems`` as rows (a workbook's with
+    their cell) and ``report`` as the CLI prints it."""
     if kind not in KINDS:
-        return _rejected(kind, [{"row": 1, "column": "kind", "reason": f"'{kind}' is not an import kind"}],
-                         f"row 1, column 'kind': '{kind}' is not an import kind")
+        reason = f"'{kind}' is not an import kind"
+        return _rejected(kind, [{"row": 1, "column": "kind", "cell": None, "reason": reason}],
+                         f"row 1, column 'kind': {reason}")
     if not data:
-        return _rejected(kind, [{"row": 1, "column": "", "reason": "no file chosen, or the file is empty"}],
-                         "no file chosen, or the file is empty")
+        reason = "no file chosen, or the file is empty"
+        return _rejected(kind, [{"row": 1, "column": "", "cell": None, "reason": reason}], reason)
     try:
-        table = read_upload(data)
-    except (ValueError, UnicodeDecodeError, pd.errors.ParserError) as exc:
-        reason = f"the file is not a readable CSV ({exc.__class__.__name__}: {str(exc).splitlines()[0]})"
-        return _rejected(kind, [{"row": 1, "column": "", "reason": reason}], reason)
-    try:
-        outcome = perform(sessions, lambda session: import_table(session, kind, table, source="import"))
+        table, sheet = read_readable(data, filename)
+        try:
+            outcome = perform(sessions, lambda session: import_table(session, kind, table, source="import"))
+        except ImportRejected as rejected:
+            if sheet is None:
+                raise
+            raise sheet.locate(rejected) from None
     except ImportRejected as rejected:
-        rows = [{"row": p.row, "column": p.column, "reason": p.reason} for p in rejected.problems]
+        rows = [{"row": p.row, "column": p.column, "reason": p.reason, "cell": p.cell} for p in rejected.problems]
         return _rejected(kind, rows, rejected.report())
     result = outcome.value
     return {
