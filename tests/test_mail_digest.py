@@ -79,3 +79,25 @@ def test_without_a_server_the_digest_is_refused_and_with_one_down_it_waits(demo_
         [waiting] = session.scalars(select(OutboxMail)).all()
     assert waiting.kind == "digest" and waiting.to_address == ENGINEER and waiting.sent_at is None
     assert waiting.attempts == 1 and "could not reach" in waiting.last_error
+
+
+def test_addresses_at_the_command_line(cli_env, db):
+    added = CliRunner().invoke(main, ["user", "add", "m.reader", "--role", "viewer", "--email",
+                                      "reader@plant.example.invalid", "--password-stdin"],
+                               input="an invented password\n")
+    assert added.exit_code == 0 and "mail to reader@plant.example.invalid" in added.output
+    listing = CliRunner().invoke(main, ["user", "list"]).output
+    assert "reader@plant.example.invalid" in listing
+    bad = CliRunner().invoke(main, ["user", "email", "m.reader", "reader@plant.example.invalid\nBcc: x@y.invalid"])
+    assert bad.exit_code == 1 and "not a plain mail address" in bad.output
+    assert CliRunner().invoke(main, ["user", "email", "nobody", "a@plant.example.invalid"]).exit_code == 1
+    refused = CliRunner().invoke(main, ["user", "add", "m.two", "--role", "viewer", "--email", "not an address",
+                                        "--password-stdin"], input="an invented password\n")
+    assert refused.exit_code == 1
+    changed = CliRunner().invoke(main, ["user", "email", "m.reader", "other@plant.example.invalid"])
+    assert changed.exit_code == 0 and "goes to other@plant.example.invalid" in changed.output
+    cleared = CliRunner().invoke(main, ["user", "email", "m.reader", ""])
+    assert cleared.exit_code == 0 and "gets no mail" in cleared.output
+    with db.sessions() as session:
+        assert session.scalar(select(User.email).where(User.name == "m.reader")) is None
+        assert session.scalar(select(User).where(User.name == "m.two")) is None
