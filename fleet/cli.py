@@ -203,9 +203,22 @@ def _progress_bar():
 @click.option("--threads", default=8, show_default=True, type=int)
 @click.pass_obj
 def serve(db: Database, host: str, port: int, threads: int) -> None:
-    """Serve the dashboard with a production WSGI server (waitress)."""
+    """Serve the dashboard with a production WSGI server (waitress); first send what waits in the outbox."""
     db.require_up_to_date()
+    _send_waiting_mail(db)
     _serve(db, host, port, threads)
+
+
+def _send_waiting_mail(db: Database) -> None:
+    """Mail left in the outbox by a failed send goes now (through the unit of work, which sends after it)."""
+    from fleet.services.mail.outbox import make_due
+    from fleet.services.mail.settings import mail_on
+    from fleet.services.writes import perform
+
+    if mail_on():
+        delivery = perform(db.sessions, make_due).mail
+        if delivery:
+            click.echo(f"outbox: {delivery.describe()}")
 
 
 def _serve(db: Database, host: str, port: int, threads: int) -> None:
@@ -251,6 +264,7 @@ COMMAND_MODULES: tuple[str, ...] = (
     "fleet.commands.users",
     "fleet.commands.jobs",
     "fleet.commands.backup",
+    "fleet.commands.mail",
 )
 for _module in COMMAND_MODULES:
     importlib.import_module(_module).register(main)

@@ -288,3 +288,80 @@ def browser_login(page, base_url, live_app):
         page.wait_for_selector("#signed-in-as")
 
     return sign_in_browser
+
+
+# --- a real SMTP server on this machine (aiosmtpd), for the mail tests ------------------------------------
+
+@dataclass
+class Received:
+    """One mail as the SMTP server got it: the envelope and the parsed message."""
+
+    sender: str
+    recipients: list[str]
+    message: object  # email.message.EmailMessage
+
+
+class _Mailbox:
+    """aiosmtpd's handler: keeps every message it accepts."""
+
+    def __init__(self):
+        self.received: list[Received] = []
+        self.lock = threading.Lock()
+
+    async def handle_DATA(self, server, session, envelope):  # noqa: N802 (aiosmtpd's name)
+        from email import message_from_bytes, policy
+
+        with self.lock:
+            self.received.append(Received(envelope.mail_from, list(envelope.rcpt_tos),
+                                          message_from_bytes(envelope.original_content, policy=policy.default)))
+        return "250 Message accepted for delivery"
+
+
+def free_port() -> int:
+    import socket
+
+    with socket.socket() as probe:
+        probe.bind(("127.0.0.1", 0))
+        return probe.getsockname()[1]
+
+
+@dataclass
+class SmtpServer:
+    """A running SMTP server on 127.0.0.1 (aiosmtpd): ``received`` holds what it got; ``url`` for FLEET_SMTP_URL."""
+
+    port: int
+    mailbox: _Mailbox
+    controller: object
+
+    @property
+    def url(self) -> str:
+        return f"smtp://127.0.0.1:{self.port}"
+
+    @property
+    def received(self) -> list[Received]:
+        with self.mailbox.lock:
+            return list(self.mailbox.received)
+
+    def to(self, address: str) -> list[Received]:
+        return [r for r in self.received if address in r.recipients]
+
+
+def start_smtp_server(port: int | None = None, **options) -> SmtpServer:
+    from aiosmtpd.controller import Controller
+
+    mailbox = _Mailbox()
+    port = port or free_port()
+    controller = Controller(mailbox, hostname="127.0.0.1", port=port, **options)
+    controller.start()
+    return SmtpServer(port, mailbox, controller)
+
+
+@pytest.fixture
+def smtp_server(monkeypatch):
+    """A real SMTP server on 127.0.0.1, named by FLEET_SMTP_URL for this test; stopped at the end."""
+    server = start_smtp_server()
+    monkeypatch.setenv("FLEET_SMTP_URL", server.url)
+    monkeypatch.setenv("FLEET_MAIL_FROM", "fleet@plant.example.invalid")
+    monkeypatch.setenv("FLEET_BASE_URL", "https://fleet.plant.example.invalid")
+    yield server
+    server.controller.stop()

@@ -16,13 +16,16 @@ from fleet.db import audit
 from fleet.db.base import Base
 from fleet.db.models import (
     AuditRecord,
+    Follow,
     Installation,
     Machine,
     MaintenanceEvent,
     OilSample,
+    OutboxMail,
     Position,
     Pump,
     Reading,
+    User,
 )
 from fleet.services.pages.plan import add_window
 from fleet.services.register.forms import FORMS
@@ -72,6 +75,16 @@ def write_table(demo_db) -> list[Write]:
             s.flush()
         record_id = s.scalar(select(AuditRecord.id).where(AuditRecord.table_name == "reading",
                                                           AuditRecord.row_id == reading_ids[1]))
+        # The viewer's follow of a machine, to stop; a mail that failed and waits for its retry, to send now.
+        viewer_id = s.scalar(select(User.id).where(User.name == "test-viewer"))
+        follow = Follow(user_id=viewer_id, machine_id=machine_id)
+        s.add(follow)
+        s.add(OutboxMail(kind="alert", user_id=viewer_id, to_address="viewer@plant.example.invalid",
+                         subject="an invented alert", text_body="invented", html_body="<p>invented</p>",
+                         message_id="<invented@plant.example.invalid>", created_at=utcnow(), attempts=1,
+                         next_attempt_at=utcnow() + timedelta(minutes=30), last_error="invented: server down"))
+        s.flush()
+        follow_id = follow.id
         round_form = {"taken_at": (utcnow() - timedelta(minutes=20)).strftime("%Y-%m-%dT%H:%M"),
                       "hours": f"{last['EY-105'] + 12:.1f}", "outlet_pressure": f"{0.8 * vane.rated_pressure_bar:.1f}",
                       "speed": f"{vane.rated_speed_rpm:.0f}",
@@ -120,6 +133,14 @@ def write_table(demo_db) -> list[Write]:
         Write("a lab result's deletion", "trash.delete_sample", "engineer",
               f"/pumps/EY-101/samples/{sample_id}/delete", lambda: {}, 302),
         Write("a restore from the trash", "trash.restore", "engineer", f"/trash/{record_id}/restore",
+              lambda: {}, 302),
+        Write("the outbox sent now", "outbox.retry", "engineer", "/outbox/retry", lambda: {}, 302),
+        # Everyone's own mail settings: the user is the one signed in (test-viewer, for the lowest role).
+        Write("one's own address and digest", "account.save", "viewer", "/account",
+              lambda: {"data": {"email": "viewer@plant.example.invalid", "digest": "on"}}, 302),
+        Write("a follow of one's own", "account.follow", "viewer", "/account/follows",
+              lambda: {"data": {"scope": "everything"}}, 302),
+        Write("one's own follow stopped", "account.unfollow", "viewer", f"/account/follows/{follow_id}/delete",
               lambda: {}, 302),
     ]
 

@@ -31,15 +31,36 @@ def _num(value, fmt: str = ",.0f", empty: str = "-") -> str:
 @click.option("--week", "week_end", type=click.DateTime(["%Y-%m-%d"]), help="the week ending on this day "
               "(default: the last 7 days)")
 @click.option("--json", "as_json", is_flag=True, help="print the review as JSON (the same data as /review.json)")
+@click.option("--send", is_flag=True, help="also mail it to every user with an address who has not opted out")
 @click.pass_obj
-def review(db, week_end, as_json: bool) -> None:
+def review(db, week_end, as_json: bool, send: bool) -> None:
     """The weekly review: status changes, new reasons, limits crossed, rounds missed, late lab results, energy."""
     from fleet.services.pages.review import weekly_review
 
     db.require_up_to_date()
     with db.sessions() as session:
         data = weekly_review(session, week_end.date() if week_end else None)
-    click.echo(json.dumps(data, indent=2, ensure_ascii=False) if as_json else review_text(data))
+    text = review_text(data)
+    click.echo(json.dumps(data, indent=2, ensure_ascii=False) if as_json else text)
+    if send:
+        _send_review(db, data, text)
+
+
+def _send_review(db, data: dict, text: str) -> None:
+    """Queue the review for every digest reader in one unit of work; it is sent after the commit."""
+    from fleet.services.mail.outbox import queue_digest
+    from fleet.services.mail.settings import mail_on
+    from fleet.services.writes import perform
+
+    if not mail_on():
+        raise click.ClickException("mail is off: set FLEET_SMTP_URL to the plant's SMTP server")
+    outcome = perform(db.sessions, lambda session: queue_digest(session, data, text))
+    readers = outcome.value
+    click.echo(f"weekly review queued for {len(readers)} reader(s): {', '.join(readers) or 'no one'}", err=True)
+    if outcome.mail:
+        click.echo(outcome.mail.describe(), err=True)
+    if outcome.mail and outcome.mail.failed:
+        raise click.ClickException("some mail was not sent; it stays in the outbox ('fleet mail send' retries)")
 
 
 def review_text(data: dict) -> str:

@@ -28,9 +28,10 @@ def user_group() -> None:
 @user_group.command("add")
 @click.argument("name")
 @click.option("--role", required=True, type=click.Choice(ROLES), help=ROLE_HELP)
+@click.option("--email", "address", metavar="ADDRESS", help="where their alerts and weekly digest go")
 @click.option("--password-stdin", is_flag=True, help="read the password from the first line of standard input")
 @click.pass_obj
-def add(db, name: str, role: str, password_stdin: bool) -> None:
+def add(db, name: str, role: str, address: str | None, password_stdin: bool) -> None:
     """Add user NAME with ROLE; the password is asked for twice (at least 10 characters)."""
     from fleet.services import users
     from fleet.services.writes import perform
@@ -38,8 +39,8 @@ def add(db, name: str, role: str, password_stdin: bool) -> None:
     db.require_current()
     password = _password(password_stdin)
     try:
-        user = perform(db.sessions, lambda session: users.create_user(session, name, role, password)).value
-        click.echo(f"user {user.name} added as {user.role}")
+        user = perform(db.sessions, lambda session: users.create_user(session, name, role, password, address)).value
+        click.echo(f"user {user.name} added as {user.role}" + (f", mail to {user.email}" if user.email else ""))
     except users.UserError as error:
         raise click.ClickException(str(error)) from error
 
@@ -60,6 +61,23 @@ def password(db, name: str, password_stdin: bool) -> None:
     except users.UserError as error:
         raise click.ClickException(str(error)) from error
     click.echo(f"password of {name} changed")
+
+
+@user_group.command("email")
+@click.argument("name")
+@click.argument("address")
+@click.pass_obj
+def email(db, name: str, address: str) -> None:
+    """Send NAME's alerts and weekly digest to ADDRESS ('' removes the address: no mail)."""
+    from fleet.services import users
+    from fleet.services.writes import perform
+
+    db.require_current()
+    try:
+        user = perform(db.sessions, lambda session: users.set_email(session, name, address)).value
+    except users.UserError as error:
+        raise click.ClickException(str(error)) from error
+    click.echo(f"mail for {user.name} goes to {user.email}" if user.email else f"{user.name} gets no mail")
 
 
 @user_group.command("disable")
@@ -99,10 +117,11 @@ def list_(db) -> None:
     db.require_current()
     with db.sessions() as session:
         people, tokens = users.list_users(session), users.list_tokens(session)
-    click.echo(f"{'user':<24} {'role':<11} {'active':<7} {'last sign-in':<17} tokens")
+    click.echo(f"{'user':<24} {'role':<11} {'active':<7} {'last sign-in':<17} {'tokens':<7} mail")
     for p in people:
+        mail = (p["email"] + ("" if p["digest"] else " (no digest)")) if p["email"] else "-"
         click.echo(f"{p['name']:<24} {p['role']:<11} {'yes' if p['active'] else 'no':<7} "
-                   f"{_when(p['last_login_at']):<17} {p['tokens']}")
+                   f"{_when(p['last_login_at']):<17} {p['tokens']:<7} {mail}")
     if tokens:
         click.echo(f"\n{'token id':>8}  {'user':<24} {'label':<30} {'created':<17} {'last used':<17} revoked")
         for t in tokens:

@@ -354,6 +354,8 @@ class User(Base):
     active: Mapped[bool] = mapped_column(Boolean, default=True)
     created_at: Mapped[datetime] = mapped_column(DateTime, default=utcnow)
     last_login_at: Mapped[datetime | None] = mapped_column(DateTime)
+    email: Mapped[str | None] = mapped_column(String(254))  # where alerts and the weekly digest go; NULL: no mail
+    digest: Mapped[bool] = mapped_column(Boolean, default=True, server_default="1")  # False: opted out of the digest
 
 
 class ApiToken(Base):
@@ -399,3 +401,42 @@ class AuditRecord(Base):
     after: Mapped[dict[str, Any] | None] = mapped_column(JSON)
     restored_at: Mapped[datetime | None] = mapped_column(DateTime)
     restored_by: Mapped[str | None] = mapped_column(String(120))
+
+
+class Follow(Base):
+    """Pumps a user follows: a site, a machine, or (both NULL) every pump. A followed pump that gets worse sends
+    the user one alert."""
+
+    __tablename__ = "follow"
+    __table_args__ = (UniqueConstraint("user_id", "site_id", "machine_id"),)
+
+    id: Mapped[int] = mapped_column(primary_key=True)
+    user_id: Mapped[int] = mapped_column(ForeignKey("app_user.id", ondelete="CASCADE"), index=True)
+    site_id: Mapped[int | None] = mapped_column(ForeignKey("site.id", ondelete="CASCADE"))
+    machine_id: Mapped[int | None] = mapped_column(ForeignKey("machine.id", ondelete="CASCADE"))
+
+
+class OutboxMail(Base):
+    """One mail to one address: queued in the transaction that decided it (an alert with the analysis it follows
+    from, a digest with its command), sent after the commit, kept with its attempts and last error until sent."""
+
+    __tablename__ = "outbox_mail"
+    __table_args__ = (UniqueConstraint("status_change_id", "user_id"),)  # one alert per worsening per person
+
+    id: Mapped[int] = mapped_column(primary_key=True)
+    kind: Mapped[str] = mapped_column(String(16))  # alert | digest
+    user_id: Mapped[int | None] = mapped_column(ForeignKey("app_user.id", ondelete="SET NULL"), index=True)
+    to_address: Mapped[str] = mapped_column(String(254))
+    subject: Mapped[str] = mapped_column(String(300))
+    text_body: Mapped[str] = mapped_column(Text)
+    html_body: Mapped[str] = mapped_column(Text)
+    message_id: Mapped[str] = mapped_column(String(255))  # kept, so a retry carries the same Message-ID
+    pump_id: Mapped[int | None] = mapped_column(ForeignKey("pump.id", ondelete="SET NULL"))
+    status_change_id: Mapped[int | None] = mapped_column(ForeignKey("status_change.id", ondelete="SET NULL"))
+    created_at: Mapped[datetime] = mapped_column(DateTime, index=True)
+    next_attempt_at: Mapped[datetime] = mapped_column(DateTime)
+    claim: Mapped[str | None] = mapped_column(String(32))  # the sender that took the mail, while it sends
+    claimed_at: Mapped[datetime | None] = mapped_column(DateTime)
+    attempts: Mapped[int] = mapped_column(Integer, default=0)
+    last_error: Mapped[str | None] = mapped_column(Text)
+    sent_at: Mapped[datetime | None] = mapped_column(DateTime, index=True)

@@ -18,6 +18,7 @@ from sqlalchemy.orm import Session
 
 from fleet.db.models import ApiToken, AuditRecord, User, UserSession
 from fleet.kinds import ROLES  # each role can do everything the roles before it can
+from fleet.services.mail.addresses import AddressError, check_address
 from fleet.timeutil import utcnow
 
 MIN_PASSWORD_LENGTH = 10
@@ -63,8 +64,8 @@ def _check_password(password: str) -> None:
         raise UserError(f"the password must have at least {MIN_PASSWORD_LENGTH} characters")
 
 
-def create_user(session: Session, name: str, role: str, password: str) -> User:
-    """A new active user with ``password`` hashed."""
+def create_user(session: Session, name: str, role: str, password: str, email: str | None = None) -> User:
+    """A new active user with ``password`` hashed (and a mail address, if given)."""
     name = name.strip()
     if not NAME_PATTERN.match(name):
         raise UserError("a user name is 1 to 80 letters, digits or . _ @ -, starting with a letter or digit")
@@ -73,7 +74,9 @@ def create_user(session: Session, name: str, role: str, password: str) -> User:
     if find_user(session, name) is not None:
         raise UserError(f"there is already a user '{name}'")
     _check_password(password)
-    user = User(name=name, role=role, password_hash=_hasher.hash(password), active=True, created_at=utcnow())
+    address = _address(email) if email else None
+    user = User(name=name, role=role, password_hash=_hasher.hash(password), active=True, created_at=utcnow(),
+                email=address)
     session.add(user)
     session.flush()
     return user
@@ -99,6 +102,36 @@ def set_active(session: Session, name: str, active: bool) -> User:
     user.active = active
     if not active:
         end_sessions(session, user.id)
+    session.flush()
+    return user
+
+
+def _address(email: str | None) -> str | None:
+    """A checked address, or None for a blank one (no mail)."""
+    if email is None or not email.strip():
+        return None
+    try:
+        return check_address(email)
+    except AddressError as error:
+        raise UserError(str(error)) from error
+
+
+def set_email(session: Session, name: str, email: str | None) -> User:
+    """Give NAME a mail address for alerts and the weekly digest; a blank address removes it."""
+    user = find_user(session, name)
+    if user is None:
+        raise UserError(f"no user '{name}'")
+    user.email = _address(email)
+    session.flush()
+    return user
+
+
+def update_account(session: Session, user_id: int, email: str | None, digest: bool) -> User:
+    """What a user sets on their own page: their address (blank: none) and whether the weekly digest comes."""
+    user = active_user(session, user_id)
+    if user is None:
+        raise UserError("no such active user")
+    user.email, user.digest = _address(email), bool(digest)
     session.flush()
     return user
 
@@ -200,7 +233,8 @@ def list_users(session: Session) -> list[dict]:
     live = dict(session.execute(select(ApiToken.user_id, func.count()).where(ApiToken.revoked_at.is_(None))
                                 .group_by(ApiToken.user_id)).all())
     return [{"name": u.name, "role": u.role, "active": u.active, "created_at": u.created_at,
-             "last_login_at": u.last_login_at, "tokens": live.get(u.id, 0)} for u in users]
+             "last_login_at": u.last_login_at, "tokens": live.get(u.id, 0), "email": u.email, "digest": u.digest}
+            for u in users]
 
 
 # --- API tokens --------------------------------------------------------------------------------------------

@@ -53,6 +53,10 @@ def create_app(test_config: dict | None = None) -> Flask:
     from fleet.web import trash
 
     app.register_blueprint(trash.bp)
+    from fleet.web import account, outbox
+
+    app.register_blueprint(account.bp)
+    app.register_blueprint(outbox.bp)
 
     @app.context_processor
     def navigation():
@@ -71,6 +75,8 @@ NAV = (
     ("plan.overhaul", "Overhaul plan"),
     ("register.index", "Register"),
     ("trash.index", "Trash"),
+    ("outbox.index", "Outbox"),
+    ("account.page", "Your mail"),
 )
 # Menu entries only some roles see (the page itself refuses everyone else too).
-NAV_ROLES = {"trash.index": "engineer"}
+NAV_ROLES = {"trash.index": "engineer", "outbox.index": "engineer"}

@@ -217,6 +217,20 @@ def requires(role: str | Callable[..., str]):
     return decorator
 
 
+def browser_only(view: Callable) -> Callable:
+    """Refuse a request signed in by API token (a data logger's): a person's own settings, such as where their
+    mail goes, change only in a browser signed in with their password."""
+
+    @wraps(view)
+    def guarded(*args, **kwargs):
+        user = signed_in_user()
+        if user is not None and user.token_id is not None:
+            return _refuse(403, "this is changed only when signed in with a password, not with an API token")
+        return view(*args, **kwargs)
+
+    return guarded
+
+
 # --- sign in and out ---------------------------------------------------------------------------------------
 
 @bp.route("/login", methods=["GET", "POST"])

@@ -14,6 +14,7 @@ from fleet.db.models import AnalysisResult, Pump, PumpDataVersion
 from fleet.db.transaction import run_write
 from fleet.services.analysis.compute import Progress, compute
 from fleet.services.analysis.store import RefreshSummary, store
+from fleet.services.mail.send import deliver_due
 from fleet.trend.settings import AnalysisSettings
 
 # When at least this share of the fleet is stale, one full analysis is cheaper than pump by pump.
@@ -62,20 +63,27 @@ def reanalyse(sessions: sessionmaker[Session], pump_ids=None, now: datetime | No
     if progress:
         progress(len(computed.results), len(computed.results), "storing analysis")
     bring_up_to_date(sessions, now, settings)
+    if summary.alerts:
+        deliver_due(sessions)
     return summary
 
 
 def bring_up_to_date(sessions: sessionmaker[Session], now: datetime | None = None,
-                     settings: AnalysisSettings | None = None) -> RefreshSummary | None:
-    """Analyse every stale pump and store it; None when nothing was stale."""
-    summary = None
+                     settings: AnalysisSettings | None = None, deliver: bool = True) -> RefreshSummary | None:
+    """Analyse every stale pump and store it, then send the alerts the stores queued (after their commit, outside
+    the lock: fleet.services.mail.send; ``deliver=False`` leaves that to the caller, as ``perform`` does);
+    None when nothing was stale."""
+    summary, alerts = None, 0
     for _ in range(ROUNDS):
         with sessions() as session, session.begin():
             stale = stale_pumps(session) if any_stale(session) else set()
             if not stale:
-                return summary
+                break
             total = session.scalar(select(func.count(Pump.id))) or 0
             full = len(stale) >= max(FULL_SHARE * total, 2)
             computed = compute(session, None if full else sorted(stale), now, settings)
         summary = run_write(sessions, lambda session, c=computed: store(session, c, settings), exclusive=STORE_LOCK)
+        alerts += summary.alerts
+    if alerts and deliver:
+        deliver_due(sessions)
     return summary

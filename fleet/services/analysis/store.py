@@ -17,6 +17,7 @@ from sqlalchemy.orm import Session
 from fleet.db.models import AnalysisResult, FleetPrior, Pump, ServiceLife, StatusChange
 from fleet.jsonvalues import json_ready
 from fleet.services.analysis.compute import Computed
+from fleet.services.mail.outbox import queue_alerts
 from fleet.trend.engine import apply_priors, results_to_records
 from fleet.trend.settings import AnalysisSettings
 from fleet.trend.status import service_rank
@@ -42,6 +43,7 @@ class RefreshSummary:
     by_status: dict[str, int]
     full: bool
     computed_at: datetime
+    alerts: int = 0  # mails queued because a followed pump got worse (fleet.services.mail)
 
     def describe(self) -> str:
         scope = "fleet" if self.full else f"{self.pumps} pump(s)"
@@ -68,7 +70,8 @@ def store(session: Session, computed: Computed, settings: AnalysisSettings | Non
     keep = [p for p in ids if p in existing and computed.versions.get(p, 0) >= stored.get(p, -1)]
     kept = results.loc[keep]
     records = results_to_records(kept)
-    _record_changes(session, records, computed.computed_at)
+    changes = _record_changes(session, records, computed.computed_at)
+    alerts = queue_alerts(session, changes)  # in this transaction: stored with the analysis they follow from
     for part in _chunks(keep):
         session.execute(delete(AnalysisResult).where(AnalysisResult.pump_id.in_(part)))
         session.execute(delete(ServiceLife).where(ServiceLife.pump_id.in_(part)))
@@ -87,7 +90,7 @@ def store(session: Session, computed: Computed, settings: AnalysisSettings | Non
     rerank(session)
     by_status = kept["status"].value_counts().to_dict()
     return RefreshSummary(len(records), {str(k): int(v) for k, v in by_status.items()}, computed.full,
-                          computed.computed_at)
+                          computed.computed_at, alerts)
 
 
 def _insert_results(session: Session, records: list[dict], computed: Computed) -> None:
@@ -103,26 +106,30 @@ def _insert_results(session: Session, records: list[dict], computed: Computed) -
         session.execute(insert(AnalysisResult), rows)
 
 
-def _record_changes(session: Session, records: list[dict], computed_at: datetime) -> None:
-    """Append a StatusChange for every pump whose status or reasons differ from its stored analysis."""
+def _record_changes(session: Session, records: list[dict], computed_at: datetime) -> list[StatusChange]:
+    """Append a StatusChange for every pump whose status or reasons differ from its stored analysis; returns
+    them."""
     ids = [record["pump_id"] for record in records]
     previous = {}
     for part in _chunks(ids):
         statement = select(AnalysisResult.pump_id, AnalysisResult.status, AnalysisResult.reasons)
         previous.update({p: (s, r) for p, s, r in session.execute(statement.where(AnalysisResult.pump_id.in_(part)))})
+    added = []
     for record in records:
         before_status, before_reasons = previous.get(record["pump_id"], (None, []))
         reasons = record.get("reasons") or []
         if record["status"] == before_status and _reason_keys(reasons) == _reason_keys(before_reasons):
             continue
         known = _reason_keys(before_reasons)
-        session.add(StatusChange(
+        added.append(StatusChange(
             pump_id=record["pump_id"], at=computed_at, status=record["status"], previous_status=before_status,
             reasons=reasons, new_reasons=[r for r in reasons if _reason_key(r) not in known],
             eta_v_ref=record.get("eta_v_ref"), hours_to_limit=record.get("hours_to_limit"),
             limit_date=record.get("limit_date"),
         ))
+    session.add_all(added)
     session.flush()
+    return added
 
 
 def _reason_key(reason: str) -> str:

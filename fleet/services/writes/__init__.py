@@ -14,6 +14,9 @@ written) or returning its result. Around it, ``perform``:
 4. brings every stale analysis up to date (fleet.services.analysis.bring_up_to_date), computing outside the
    write lock. Should the process die before that, the versions say which analyses are stale, and the next start
    or read brings them up to date: never silently stale.
+5. sends the mail the unit or its refresh queued (an alert when a followed pump got worse, a digest), and any
+   left from an earlier failure whose wait is over, after the commit and outside the lock
+   (fleet.services.mail.send). A failed send keeps the mail in the outbox and never undoes the write.
 """
 
 from collections.abc import Callable
@@ -25,6 +28,7 @@ from sqlalchemy.orm import Session, sessionmaker
 from fleet.db import changes
 from fleet.db.transaction import run_write
 from fleet.services.analysis import RefreshSummary, bring_up_to_date
+from fleet.services.mail.send import Delivery, deliver_due
 from fleet.services.writes.policy import bump_versions, touched_pumps
 
 T = TypeVar("T")
@@ -32,11 +36,13 @@ T = TypeVar("T")
 
 @dataclass
 class Outcome(Generic[T]):
-    """What a write returned, the pumps it touched, and the refresh that followed (None: nothing was stale)."""
+    """What a write returned, the pumps it touched, the refresh that followed (None: nothing was stale) and the
+    mail sent after it (None: none was due, or mail is off)."""
 
     value: T
     pumps: set[int]
     refresh: RefreshSummary | None
+    mail: Delivery | None = None
 
     def describe(self) -> str:
         return self.refresh.describe() if self.refresh else "no analysis changed"
@@ -56,5 +62,5 @@ def perform(sessions: sessionmaker[Session], work: Callable[[Session], T], *, re
         return value
 
     value = run_write(sessions, unit, prepare=changes.collect)
-    summary = bring_up_to_date(sessions) if refresh and touched else None
-    return Outcome(value, set(touched), summary)
+    summary = bring_up_to_date(sessions, deliver=False) if refresh and touched else None
+    return Outcome(value, set(touched), summary, deliver_due(sessions))
