@@ -55,6 +55,12 @@ def role_at_least(role: str, needed: str) -> bool:
     return ROLES.index(role) >= ROLES.index(needed)
 
 
+def active_user(session: Session, user_id: int) -> User | None:
+    """The user with this id while the account is active, else None."""
+    user = session.get(User, user_id)
+    return user if user is not None and user.active else None
+
+
 def find_user(session: Session, name: str) -> User | None:
     return session.scalar(select(User).where(User.name == name))
 
