@@ -9,15 +9,16 @@ from click.testing import CliRunner
 from sqlalchemy import select
 
 from fleet.cli import main
-from fleet.db.models import Machine, OutboxMail, Site, StatusChange
+from fleet.db.models import Machine, OutboxMail, Pump, Site, StatusChange
 from fleet.services import users
+from fleet.services.analysis import statuses
 from fleet.services.mail.follows import add_follow
 from fleet.services.mail.outbox import worse
 from fleet.services.writes import perform
 from tests.conftest import free_port, start_smtp_server
 from tests.test_api_readings import _reading
 
-WORSENS = "EY-105"  # invented demo vane pump on East Yard / power-unit-1; healthy until a reading of 10 L/min
+WORSENS = "EY-105"  # invented demo vane pump on East Yard / power-unit-1, healthy in the demo
 ADDRESS = "engineer@plant.example.invalid"
 _calls = itertools.count()  # each reading a minute later than the one before
 
@@ -41,11 +42,21 @@ def follow(demo_db, name: str, address: str | None, *places: str) -> None:
 
 
 def worsen(client, demo_db, serial: str = WORSENS, **changes):
-    """Post a reading of ``serial`` by the API (by default one of 10 L/min, far below its rated flow)."""
+    """Post a reading of ``serial`` by the API (by default one of 10 L/min, far below its rated flow). For WORSENS
+    an engineer then sets its volumetric efficiency limit to 0.999, which no pump meets: the wear trend is robust
+    to one bad reading, so the limit is what takes the pump past it, deterministically."""
     changes = {"outlet_flow": 10.0, "minutes_ago": 30 - next(_calls) % 30} | changes
     response = client.post("/api/readings", json=_reading(demo_db, serial, **changes))
     assert response.status_code == 201, response.get_json()
-    return response.get_json()["pumps"][0]
+    if serial != WORSENS:
+        return response.get_json()["pumps"][0]
+
+    def strict_limit(session):
+        session.scalar(select(Pump).where(Pump.serial == serial)).eta_v_limit = 0.999
+
+    perform(demo_db.sessions, strict_limit)
+    with demo_db.sessions() as session:
+        return statuses(session, [session.scalar(select(Pump.id).where(Pump.serial == serial))])[0]
 
 
 def parts(message: EmailMessage) -> tuple[str, str]:
@@ -83,7 +94,7 @@ def test_a_reading_that_worsens_a_followed_pump_sends_one_alert(client, demo_db,
     link = "https://fleet.plant.example.invalid/pumps/EY-105"
     for part in (text, html):
         assert "EY-105" in part and link in part and "East Yard / power-unit-1" in part
-        assert "Volumetric efficiency at reference is 0.365" in part  # the reason, as the analysis gave it
+        assert "Volumetric efficiency at reference is" in part and "limit 1.00" in part  # the reason, as given
         assert "Before you work on a pump" in part
     assert "because you follow Machine East Yard / power-unit-1" in text
     assert "<img" not in html.lower() and "src=" not in html.lower()
