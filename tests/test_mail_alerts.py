@@ -94,7 +94,7 @@ def test_a_reading_that_worsens_a_followed_pump_sends_one_alert(client, demo_db,
     link = "https://fleet.plant.example.invalid/pumps/EY-105"
     for part in (text, html):
         assert "EY-105" in part and link in part and "East Yard / power-unit-1" in part
-        assert "Volumetric efficiency at reference is" in part and "limit 1.00" in part  # the reason, as given
+        assert "Volumetric efficiency at reference is" in part and "limit 99.9 %" in part  # the reason, as given
         assert "Before you work on a pump" in part
     assert "because you follow Machine East Yard / power-unit-1" in text
     assert "<img" not in html.lower() and "src=" not in html.lower()

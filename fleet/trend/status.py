@@ -85,7 +85,8 @@ def assess_status(results: pd.DataFrame, now, settings: AnalysisSettings) -> pd.
         _sentences(
             slip_past,
             lambda e, lim: (
-                f"Volumetric efficiency at reference is {e:.3f} by its trend, at or below its limit {lim:.2f}."
+                f"Volumetric efficiency at reference is {100 * e:.1f} % by its trend, at or below its limit "
+                f"{100 * lim:.1f} %."
             ),
             eta,
             eta_lim,
@@ -102,7 +103,7 @@ def assess_status(results: pd.DataFrame, now, settings: AnalysisSettings) -> pd.
             raw_slip_past,
             lambda e, lim: (
                 f"The last usable reading gives a volumetric efficiency at reference "
-                f"of {e:.3f}, at or below the limit {lim:.2f} (too few readings for a trend)."
+                f"of {100 * e:.1f} %, at or below the limit {100 * lim:.1f} % (too few readings for a trend)."
             ),
             last_eta,
             eta_lim,
@@ -236,7 +237,7 @@ def assess_status(results: pd.DataFrame, now, settings: AnalysisSettings) -> pd.
         _sentences(
             healthy,
             lambda e, g, h, w: (
-                (f"Volumetric efficiency at reference {e:.2f}; n" if np.isfinite(e) else "N")
+                (f"Volumetric efficiency at reference {100 * e:.1f} %; n" if np.isfinite(e) else "N")
                 + (
                     f"o limit expected within {w:.0f} weeks (the {LIMIT_WORDS.get(g, g)} limit in about "
                     f"{h:,.0f} running hours)."
