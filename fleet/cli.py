@@ -243,6 +243,7 @@ COMMAND_MODULES: tuple[str, ...] = (
     "fleet.commands.users",
     "fleet.commands.jobs",
     "fleet.commands.backup",
+    "fleet.commands.forecasts",
 )
 for _module in COMMAND_MODULES:
     importlib.import_module(_module).register(main)
