@@ -265,6 +265,7 @@ COMMAND_MODULES: tuple[str, ...] = (
     "fleet.commands.jobs",
     "fleet.commands.backup",
     "fleet.commands.mail",
+    "fleet.commands.forecasts",
 )
 for _module in COMMAND_MODULES:
     importlib.import_module(_module).register(main)

@@ -2,6 +2,7 @@
 
 import textwrap
 
+from fleet.horizon import USEFUL_YEARS, date_text, hours_text
 from fleet.safety import CHECK_NOW_CAUTION, calls_for_work
 from fleet.status_words import STATUS_LABELS
 
@@ -21,19 +22,29 @@ def percent_points(value, empty: str = "-") -> str:
 
 
 def _hours(record: dict) -> str:
-    if record.get("hours_to_limit") is None:
-        return "-"
+    """Hours to the limit with bounds, or 'beyond 10 years' (fleet.horizon) for a forecast that far ahead."""
+    if record.get("crossed_date"):
+        return "past (crossed ~date)"
+    hours = record.get("hours_to_limit")
+    text = hours_text(hours, record.get("limit_date"), empty="-", unit="")
+    if hours is None or not text[:1].isdigit():
+        return text
     low, high = record.get("hours_to_limit_low"), record.get("hours_to_limit_high")
-    text = f"{record['hours_to_limit']:,.0f}"
     if low is not None:
         text += f" ({low:,.0f}-{'open' if high is None else format(high, ',.0f')})"
     return text
 
 
+def _date(record: dict) -> str:
+    """The limit date; for a pump past its limit, when its trend crossed it (its last reading's date says little)."""
+    crossed = record.get("crossed_date")
+    return f"~{crossed}" if crossed else date_text(record.get("limit_date"), empty="-")
+
+
 def service_table(records: list[dict], width: int = 110) -> str:
     """One line per pump, most urgent first, with its first reason wrapped beneath."""
     header = f"{'#':>3}  {'pump':<14} {'status':<11} {'η_v,ref':>8} {'lost/1000h':>10} {'drain%':>6} " \
-             f"{'hours to limit (bounds)':<26} {'date':<10} {'limit':<10}"
+             f"{'hours to limit (bounds)':<26} {'date':<15} {'limit':<10}"
     lines = [header, "-" * len(header)]
     for record in records:
         lines.append(
@@ -41,7 +52,7 @@ def service_table(records: list[dict], width: int = 110) -> str:
             f"{STATUS_LABELS.get(record['status'], record['status']):<11} "
             f"{efficiency(record.get('eta_v_ref')):>8} {percent_points(record.get('eta_v_decline_per_1000h')):>10} "
             f"{_num(record.get('drain_pct_ref'), '.1f'):>6} {_hours(record):<26} "
-            f"{record.get('limit_date') or '-':<10} {record.get('governing_limit') or '-':<10}"
+            f"{_date(record):<15} {record.get('governing_limit') or '-':<10}"
         )
         for reason in record.get("reasons") or []:
             lines.extend(textwrap.wrap(reason, width=width, initial_indent="       - ",
@@ -57,7 +68,8 @@ def service_table(records: list[dict], width: int = 110) -> str:
     lines.extend(textwrap.wrap(
         f"{len(records)} pump(s): {summary}. η_v,ref: volumetric efficiency at reference conditions; lost/1000h: "
         f"its loss per 1000 running hours; drain%: case drain, % of max flow. Bounds are {_confidence(records)} "
-        "intervals; hours are running hours.", width=width))
+        f"intervals; hours are running hours; a forecast more than {USEFUL_YEARS} years ahead is shown as such "
+        "(--json keeps its figures).", width=width))
     return "\n".join(lines)
 
 

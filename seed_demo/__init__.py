@@ -14,6 +14,11 @@ from fleet.io.columns import LOAD_ORDER
 from fleet.timeutil import utcnow
 
 HISTORY_WEEKS = 6
+# Before those weeks, one analysis every REPLAY_EVERY_WEEKS back to REPLAY_FROM_WEEKS ago (the readings begin about
+# 130 weeks before the end), so the forecast record has the forecasts of 3, 6 and 12 months before the demo's
+# overhauls and limit crossings to score.
+REPLAY_EVERY_WEEKS = 4
+REPLAY_FROM_WEEKS = 122
 
 
 def demo_present(session: Session) -> bool:
@@ -61,6 +66,12 @@ def _add_demo_users(session: Session) -> tuple[tuple[str, str, str], ...]:
     return tuple(users)
 
 
+def replay_weeks() -> list[int]:
+    """How many weeks before now each replayed analysis of the demo is made, oldest first."""
+    monthly = range(REPLAY_FROM_WEEKS, HISTORY_WEEKS, -REPLAY_EVERY_WEEKS)
+    return [*monthly, *range(HISTORY_WEEKS, 0, -1)]
+
+
 def password_box(users, address: str | None = None) -> str:
     """The demo sign-ins in a box of their own, apart from the import lines (every line with a password says
     'password', so a log filter can drop them)."""
@@ -95,10 +106,11 @@ def build_demo(session: Session, seed: int = 2026, end=None, echo: Callable[[str
     echo(f"  earlier overhauls from the (invented) paper log: {result.summary()}")
     _add_shutdown_windows(session, end)
     users = _add_demo_users(session)
-    # Replay the weekly analyses of the last weeks, each on what was known then, so the weekly review has a
-    # history of status changes to show; the last analysis is of now.
+    # Replay past analyses, each on what was known then: monthly over the demo's history, so the forecast record
+    # has forecasts to score, then weekly over the last weeks, so the weekly review has a history of status
+    # changes to show; the last analysis is of now.
     last = utcnow()
-    for weeks_ago in range(HISTORY_WEEKS, 0, -1):
+    for weeks_ago in replay_weeks():
         refresh_analysis(session, now=last - timedelta(weeks=weeks_ago))
     summary = refresh_analysis(session, now=last)
     return DemoBuilt(f"invented demo plant built (seed {seed}); {summary.describe()}", users)

@@ -189,3 +189,19 @@ def test_fleet_serve_shows_the_demo_pumps(demo_db):
     finally:
         server.terminate()
         server.wait(timeout=10)
+
+
+def test_analyze_json_names_the_wear_law_of_every_pump(demo_db, monkeypatch):
+    """Issue 11: `fleet analyze --json` adds wear_law and wear_law_weights (weights of the laws, summing to 1)."""
+    monkeypatch.setenv("FLEET_DATABASE_URL", demo_db.url)
+    result = CliRunner().invoke(main, ["analyze", "--json", "--stored"])
+    assert result.exit_code == 0, result.output
+    records = json.loads(result.output)
+    assert len(records) == 41
+    for record in records:
+        assert "wear_law" in record and "wear_law_weights" in record
+        if record["wear_law"] is not None:
+            weights = record["wear_law_weights"]
+            assert set(weights) == {"exponential", "linear", "power"}
+            assert sum(weights.values()) == pytest.approx(1.0) and max(weights, key=weights.get) == record["wear_law"]
+    assert sum(r["wear_law"] is not None for r in records) >= 35  # the invented demo's pumps nearly all have a trend

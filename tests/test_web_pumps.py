@@ -21,7 +21,9 @@ HEADLINE_KEYS = {"status", "reasons", "rank", "eta_v_ref", "eta_v_decline_per_10
                  "prior_hours_to_overhaul", "energy_cost_per_year", "limit_date_low", "limit_date_high",
                  "confidence", "upper_bound_open", "currency", "leakage_kw", "overhaul_saving_per_year",
                  "overhaul_payback_years", "prior_b10_hours", "data_note", "last_reading_at", "hours_per_day",
-                 "cleanliness_code", "computed_at"}
+                 "cleanliness_code", "computed_at", "wear_law", "wear_law_weights", "wear_power", "wear_shape",
+                 "crossed_limit", "crossed_at_hours", "crossed_at_hours_low", "crossed_at_hours_high", "crossed_date",
+                 "crossed_date_low", "crossed_date_high", "beyond_horizon"}
 
 
 def _walther_cst(temp_c, nu40, nu100):
@@ -178,3 +180,65 @@ def test_efficiency_figure_carries_points_band_limit_and_events():
     assert any(s.x0 == 700.0 and s.x1 == 700.0 for s in shapes)  # the event marker
     html = charts.figure_html(fig, "chart-x")
     assert 'id="chart-x"' in html and "<script" in html and "plotly.min.js" not in html
+
+
+PAST_PUMP = "EY-401"  # invented demo plant: an axial piston pump worn past its limit
+FAR_PUMP = "EY-105"  # invented demo plant: a vane pump whose slow trend puts its limit decades away
+
+
+def test_wear_shape_is_said_in_words_with_its_weight(client):
+    data = client.get(f"/pumps/{PISTON_PUMP}.json").get_json()
+    head = data["headline"]
+    assert head["wear_law"] in head["wear_law_weights"]
+    assert sum(head["wear_law_weights"].values()) == pytest.approx(1.0)
+    share = head["wear_law_weights"][head["wear_law"]]
+    assert head["wear_shape"].endswith(f"(weight {share:.0%} among the wear laws compared).")
+    html = client.get(f"/pumps/{PISTON_PUMP}").get_data(as_text=True)
+    assert head["wear_shape"] in html
+
+
+def test_efficiency_band_is_the_model_averaged_one(client, demo_db):
+    """The chart's band is the averaged band of the wear laws, which meets the limit at the analysis' own bounds
+    (fleet.trend.remaining_life.averaged_band; both come from the same mixture)."""
+    from fleet.services.analysis import analyse
+    from fleet.trend.remaining_life import averaged_band
+
+    data = client.get(f"/pumps/{PISTON_PUMP}.json").get_json()
+    with demo_db.sessions() as session:
+        analysis = analyse(session, None)
+    pump_id = int(analysis.results.index[analysis.results["pump"] == PISTON_PUMP][0])
+    current = analysis.results.loc[pump_id, "interval_no"]
+    fit = analysis.fits[(analysis.fits["pump_id"] == pump_id) & (analysis.fits["interval_no"] == current)].iloc[0]
+    points = pd.DataFrame(data["trend"]["points"])
+    grid = points["hours"].to_numpy() - data["trend"]["interval_start_hours"]
+    expected = averaged_band(fit, grid, data["pump"]["rated_flow_lpm"], data["trend"]["confidence"], "slip")
+    assert points["low"].to_numpy() == pytest.approx(expected["low"].to_numpy(), rel=1e-6)
+    assert points["high"].to_numpy() == pytest.approx(expected["high"].to_numpy(), rel=1e-6)
+    assert data["headline"]["wear_law_weights"]["exponential"] < 1.0  # more than one law in the band
+
+
+def test_pump_past_its_limit_says_when_it_crossed_with_bounds(client):
+    data = client.get(f"/pumps/{PAST_PUMP}.json").get_json()
+    head = data["headline"]
+    assert head["status"] == "past_limit"
+    assert head["crossed_date_low"] <= head["crossed_date"] <= head["crossed_date_high"] < head["last_reading_at"]
+    html = client.get(f"/pumps/{PAST_PUMP}").get_data(as_text=True)
+    assert "Limit crossed (own trend)" in html
+    assert f"around {head['crossed_date']}" in html
+    assert f"between {head['crossed_date_low']} and {head['crossed_date_high']}" in html
+
+
+def test_forecast_beyond_ten_years_is_words_on_the_page_and_numbers_in_json(client):
+    from fleet.horizon import horizon_end
+
+    data = client.get(f"/pumps/{FAR_PUMP}.json").get_json()
+    head = data["headline"]
+    assert head["limit_date"] > horizon_end().isoformat() and head["beyond_horizon"]
+    assert head["hours_to_limit"] > 50_000  # the JSON keeps the figure (contract)
+    html = client.get(f"/pumps/{FAR_PUMP}").get_data(as_text=True)
+    assert "beyond 10 years" in html
+    assert head["limit_date"] not in html and f"{head['hours_to_limit']:,.0f}" not in html
+    listing = client.get("/?page_size=500").get_data(as_text=True)
+    row = listing[listing.index(f'href="/pumps/{FAR_PUMP}"'):]
+    row = row[:row.index("</tr>")]
+    assert "beyond 10 years" in row and head["limit_date"] not in row

@@ -8,7 +8,8 @@ from fleet.services.pages.service_list import CSV_COLUMNS
 ROW_KEYS = {"pump", "kind", "kind_label", "site", "machine", "position", "rank", "status", "reasons", "eta_v_ref",
             "eta_v_decline_per_1000h", "drain_pct_ref", "hours_to_limit", "hours_to_limit_low", "hours_to_limit_high",
             "limit_date", "governing_limit", "prior_hours_to_overhaul", "energy_cost_per_year", "limit_date_low",
-            "limit_date_high", "confidence", "last_reading_at", "cleanliness_code", "currency", "computed_at"}
+            "limit_date_high", "confidence", "last_reading_at", "cleanliness_code", "currency", "computed_at",
+            "crossed_date"}
 
 
 def test_service_list_page_lists_pumps_most_urgent_first(client):
@@ -70,3 +71,14 @@ def test_a_pump_without_a_stored_analysis_is_analysed_when_the_list_is_read(clie
     assert set(row) == ROW_KEYS and row["status"] in ("healthy", "watch", "due_soon", "past_limit")
     with demo_db.sessions() as session:
         assert session.get(AnalysisResult, pump_id) is not None
+
+
+def test_a_pump_past_its_limit_is_listed_with_when_it_crossed(client):
+    """The list says when a pump's trend crossed its limit (the engine's crossed_date), not its last reading's date."""
+    data = client.get("/index.json?status=past_limit").get_json()
+    html = client.get("/?status=past_limit").get_data(as_text=True)
+    crossed = [p for p in data["pumps"] if p["crossed_date"]]
+    assert crossed
+    for pump in crossed:
+        assert pump["crossed_date"] < pump["last_reading_at"][:10]
+        assert f"crossed around {pump['crossed_date']}" in html

@@ -32,7 +32,5 @@ status_code
 temp_offset_c  # read by name: seed_demo.measurements.machine_column(visits["machine"], "temp_offset_c")
 grouped_wls  # the closed-form weighted line per group, checked against statsmodels (tests/test_trend_linear.py);
 fieller_crossing  # the wear-law tests take both as the reference of the exponential law's fit and crossing
-forecast_record  # the forecast record's arithmetic (tests/test_trend_forecast_record.py); its page is the next step
-OUTCOME_COLUMNS
 freeze_panes  # openpyxl reads these attributes of a sheet and a cell when it saves the workbook
 number_format

@@ -6,6 +6,7 @@ from datetime import date, timedelta
 import plotly.graph_objects as go
 
 from fleet.charts import chart_html
+from fleet.horizon import date_text
 
 CHART_ID = "plan-chart"
 _INK, _ACCENT, _PAST, _WINDOW = "#1e2529", "#24525e", "#8c2f1c", "rgba(63, 95, 53, 0.18)"
@@ -28,8 +29,9 @@ def timeline_figure(plan: dict) -> go.Figure:
         marker={"symbol": ["x" if r["status"] == "past_limit" else "diamond" for r in rows], "size": 12,
                 "color": [_PAST if r["fit"] in ("at_risk", "past_limit") else _INK for r in rows],
                 "line": {"color": "#ffffff", "width": 1}},
-        text=[f"{r['pump']}: {r['governing_limit'] or 'limit'} on {r['limit_date']} "
-              f"({r['limit_date_low'] or '?'} to {r['limit_date_high'] or 'open'}); {plan['fit_words'][r['fit']]}"
+        text=[f"{r['pump']}: {r['governing_limit'] or 'limit'} on {date_text(r['limit_date'], plan['today'])} "
+              f"({date_text(r['limit_date_low'], plan['today'], '?')} to "
+              f"{date_text(r['limit_date_high'], plan['today'], 'open')}); {plan['fit_words'][r['fit']]}"
               for r in rows],
         hovertemplate="%{text}<extra></extra>",
     ))

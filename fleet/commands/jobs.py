@@ -147,13 +147,16 @@ def plan_text(data: dict) -> str:
              caution_text(), ""]
     if data["at_risk"]:
         lines.append(_wrap(f"At risk before the next window: {', '.join(data['at_risk'])}.", indent=""))
+    from fleet.horizon import date_text
+
     lines.append(f"\nPumps inside the horizon ({len(data['pumps'])}); dates are expected (early - late bound)")
     for item in data["pumps"]:
         cost = item.get("overhaul_cost")
         payback = item.get("overhaul_payback_years")
         lines.append(f"  {item['pump']:<10} {_label(item['status']):<11} {str(item.get('governing_limit') or '-'):<11}"
-                     f"{item.get('limit_date') or '-'} ({item.get('limit_date_low') or '-'} - "
-                     f"{item.get('limit_date_high') or 'open'})")
+                     f"{date_text(item.get('limit_date'), data['today'], '-')} "
+                     f"({date_text(item.get('limit_date_low'), data['today'], '-')} - "
+                     f"{date_text(item.get('limit_date_high'), data['today'], 'open')})")
         extra = [item.get("window_label") or data["fit_words"].get(item.get("fit"), item.get("fit") or "")]
         if cost is not None:
             extra.append(f"overhaul {cost:,.0f} {item.get('currency') or ''}".rstrip())

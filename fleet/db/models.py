@@ -8,7 +8,7 @@ then reports as a change against the migrations.
 from datetime import datetime
 from typing import Any
 
-from sqlalchemy import JSON, Boolean, DateTime, Float, ForeignKey, Integer, String, Text, UniqueConstraint
+from sqlalchemy import JSON, Boolean, DateTime, Float, ForeignKey, Index, Integer, String, Text, UniqueConstraint
 from sqlalchemy.orm import Mapped, mapped_column, relationship
 
 from fleet.db.base import Base
@@ -272,6 +272,33 @@ class ServiceLife(Base):
     entry_hours: Mapped[float] = mapped_column(Float)
     life_hours: Mapped[float] = mapped_column(Float)
     failed: Mapped[bool] = mapped_column(Boolean)
+
+
+class ForecastSnapshot(Base):
+    """What the analysis forecast for one pump at one moment: the raw material of the forecast record.
+
+    Written by the analysis store (fleet.services.analysis.snapshots) only when the pump's forecast moved since
+    its latest snapshot; a forecast that moves again on the same (UTC) day replaces that day's row, so a pump has
+    at most one a day. A forecast stands until the next snapshot says otherwise. For a pump past its limit the
+    dates are when its trend crossed the limit, with bounds.
+    """
+
+    __tablename__ = "forecast_snapshot"
+    __table_args__ = (Index("ix_forecast_snapshot_pump_made", "pump_id", "made_at"),)
+
+    id: Mapped[int] = mapped_column(primary_key=True)
+    pump_id: Mapped[int] = mapped_column(ForeignKey("pump.id", ondelete="CASCADE"))
+    made_at: Mapped[datetime] = mapped_column(DateTime)
+    interval_no: Mapped[int] = mapped_column(Integer)
+    trend: Mapped[bool] = mapped_column(Boolean)  # False: too little data for a forecast at all
+    past_limit: Mapped[bool] = mapped_column(Boolean)
+    governing_limit: Mapped[str | None] = mapped_column(String(16))
+    hours_to_limit: Mapped[float | None] = mapped_column(Float)
+    hours_to_limit_low: Mapped[float | None] = mapped_column(Float)
+    hours_to_limit_high: Mapped[float | None] = mapped_column(Float)
+    limit_date: Mapped[str | None] = mapped_column(String(10))
+    limit_date_low: Mapped[str | None] = mapped_column(String(10))
+    limit_date_high: Mapped[str | None] = mapped_column(String(10))
 
 
 class FleetPrior(Base):

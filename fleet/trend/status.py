@@ -8,6 +8,7 @@ little data). healthy: none of these, said with the figures that show it.
 import numpy as np
 import pandas as pd
 
+from fleet.horizon import BEYOND_WORDS, is_beyond
 from fleet.trend.oil_condition import lab_days_waiting, lab_late_sentence
 from fleet.trend.referral import NO_LEAKAGE_MEASURED
 from fleet.trend.settings import AnalysisSettings
@@ -236,11 +237,11 @@ def assess_status(results: pd.DataFrame, now, settings: AnalysisSettings) -> pd.
     reasons_healthy = [
         _sentences(
             healthy,
-            lambda e, g, h, w: (
+            lambda e, g, h, d, w: (
                 (f"Volumetric efficiency at reference {100 * e:.1f} %; n" if np.isfinite(e) else "N")
                 + (
-                    f"o limit expected within {w:.0f} weeks (the {LIMIT_WORDS.get(g, g)} limit in about "
-                    f"{h:,.0f} running hours)."
+                    f"o limit expected within {w:.0f} weeks (the {LIMIT_WORDS.get(g, g)} limit "
+                    + (f"{BEYOND_WORDS} ahead)." if is_beyond(d, h, now) else f"in about {h:,.0f} running hours).")
                     if isinstance(g, str)
                     else f"o limit expected within {w:.0f} weeks: the trend shows no decline."
                 )
@@ -248,6 +249,7 @@ def assess_status(results: pd.DataFrame, now, settings: AnalysisSettings) -> pd.
             eta,
             governing,
             _num(r, "hours_to_limit"),
+            _col(r, "limit_date", pd.NaT),
             _num(r, "planning_horizon_weeks"),
         )
     ]

@@ -50,13 +50,14 @@ def create_app(test_config: dict | None = None) -> Flask:
     app.register_blueprint(register.bp)
     app.register_blueprint(review.bp)
     app.register_blueprint(plan.bp)
-    from fleet.web import trash
+    from fleet.web import forecasts, trash
 
     app.register_blueprint(trash.bp)
     from fleet.web import account, outbox
 
     app.register_blueprint(account.bp)
     app.register_blueprint(outbox.bp)
+    app.register_blueprint(forecasts.bp)
 
     @app.context_processor
     def navigation():
@@ -73,6 +74,7 @@ NAV = (
     ("rounds.index", "Rounds"),
     ("review.weekly", "Weekly review"),
     ("plan.overhaul", "Overhaul plan"),
+    ("forecasts.index", "Forecast record"),
     ("register.index", "Register"),
     ("trash.index", "Trash"),
     ("outbox.index", "Outbox"),

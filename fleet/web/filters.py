@@ -5,6 +5,7 @@ from datetime import datetime
 from flask import Flask
 
 from fleet import safety
+from fleet.horizon import USEFUL_YEARS, date_text, hours_text, is_beyond
 from fleet.status_words import STATUS_LABELS, STATUS_METER
 from fleet.timeutil import utcnow
 
@@ -50,8 +51,27 @@ def age(value, now: datetime | None = None) -> str:
     return f"{days:.0f} d ago"
 
 
+def forecast_date(value, empty: str = "–") -> str:
+    """A forecast date, or 'beyond 10 years' (fleet.horizon)."""
+    return date_text(value, empty=empty)
+
+
+def forecast_hours(value, when=None, empty: str = "–") -> str:
+    """Running hours to a limit, or 'beyond 10 years' when `when` (their date) lies that far (fleet.horizon)."""
+    return hours_text(value, when, empty=empty)
+
+
+def beyond(value, hours=None) -> bool:
+    """Jinja test: a forecast date (or, without one, its hours) beyond the useful horizon (fleet.horizon)."""
+    return is_beyond(value, hours)
+
+
 def init_app(app: Flask) -> None:
     app.add_template_filter(number)
+    app.add_template_filter(forecast_date)
+    app.add_template_filter(forecast_hours)
+    app.add_template_test(beyond)
+    app.add_template_global(USEFUL_YEARS, "USEFUL_YEARS")
     app.add_template_filter(percent)
     app.add_template_filter(age)
     app.add_template_filter(efficiency)

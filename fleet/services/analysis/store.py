@@ -1,9 +1,10 @@
 """Keep an analysis: each pump's figures, its service lives, its kind's fleet life figures, and the service order.
 
-Runs inside a write unit. A pump's figures are stored only when computed from data at least as new as those
-already stored (a slow analysis never overwrites a newer one). The fleet life figures (the Weibull of each pump
-kind) are refitted from the stored service lives whenever a pump of that kind is stored, and each pump of the
-kind then gets its prior figures again: this needs intervals, not readings, so it stays cheap.
+Runs inside a write unit. A pump's figures are stored only when computed from data at least as new as those already
+stored (a slow analysis never overwrites a newer one). The fleet life figures (the Weibull of each pump kind) are
+refitted from the stored service lives whenever a pump of that kind is stored, and each pump of the kind then gets
+its prior figures again: this needs intervals, not readings, so it stays cheap. Each stored pump's forecast is also
+kept in the forecast record when it moved (fleet.services.analysis.snapshots states the rule).
 """
 
 from dataclasses import dataclass
@@ -17,6 +18,7 @@ from sqlalchemy.orm import Session
 from fleet.db.models import AnalysisResult, FleetPrior, Pump, ServiceLife, StatusChange
 from fleet.jsonvalues import json_ready
 from fleet.services.analysis.compute import Computed
+from fleet.services.analysis.snapshots import keep_forecasts
 from fleet.services.mail.outbox import queue_alerts
 from fleet.trend.engine import apply_priors, results_to_records
 from fleet.trend.settings import AnalysisSettings
@@ -76,6 +78,7 @@ def store(session: Session, computed: Computed, settings: AnalysisSettings | Non
         session.execute(delete(AnalysisResult).where(AnalysisResult.pump_id.in_(part)))
         session.execute(delete(ServiceLife).where(ServiceLife.pump_id.in_(part)))
     _insert_results(session, records, computed)
+    keep_forecasts(session, records, computed.computed_at)
     lives = computed.lives[computed.lives["pump_id"].isin(keep)]
     if len(lives):
         session.execute(insert(ServiceLife), [

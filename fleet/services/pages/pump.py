@@ -25,12 +25,14 @@ from fleet.db.models import (
     Site,
 )
 from fleet.db.queries import current_places, pump_by_serial
+from fleet.horizon import is_beyond
 from fleet.jsonvalues import json_ready
 from fleet.kinds import EVENT_KINDS, PUMP_KINDS
 from fleet.physics.cleanliness import Iso4406Code
 from fleet.physics.pump import baseline_flow_lpm, theoretical_flow_lpm
 from fleet.services.analysis import analyse_with_frames
 from fleet.trend.remaining_life import trend_band
+from fleet.trend.status import wear_shape_sentence
 
 # Columns of the readings table and of the page's CSV twin, in order: raw values, then referred ones.
 READING_COLUMNS = (
@@ -45,7 +47,9 @@ HEADLINE_FIELDS = ("status", "reasons", "rank", "eta_v_ref", "eta_v_decline_per_
                    "prior_hours_to_overhaul", "energy_cost_per_year")
 DETAIL_FIELDS = ("limit_date_low", "limit_date_high", "confidence", "upper_bound_open", "currency", "leakage_kw",
                  "overhaul_saving_per_year", "overhaul_payback_years", "prior_b10_hours", "data_note",
-                 "last_reading_at", "hours_per_day", "cleanliness_code")
+                 "last_reading_at", "hours_per_day", "cleanliness_code", "wear_law", "wear_law_weights", "wear_power",
+                 "crossed_limit", "crossed_at_hours", "crossed_at_hours_low", "crossed_at_hours_high", "crossed_date",
+                 "crossed_date_low", "crossed_date_high")
 BAND_POINTS = 60
 # How far past the last reading the forecast is drawn when the trend never reaches its limit (our choice).
 FORECAST_MIN_HOURS = 2000.0
@@ -119,6 +123,11 @@ def _headline(session: Session, pump_id: int) -> dict | None:
     detail = result.detail or {}
     headline = {name: getattr(result, name) for name in HEADLINE_FIELDS}
     headline.update({name: detail.get(name) for name in DETAIL_FIELDS})
+    law = headline["wear_law"]
+    power = headline["wear_power"]
+    headline["wear_shape"] = None if law is None else wear_shape_sentence(
+        law, headline["wear_law_weights"], float("nan") if power is None else power)
+    headline["beyond_horizon"] = is_beyond(headline["limit_date"], headline["hours_to_limit"])
     headline["computed_at"] = result.computed_at.isoformat(timespec="seconds")
     return headline
 

@@ -27,7 +27,7 @@ CSV_COLUMNS = ("rank", "pump", "status", "site", "machine", "position", "kind", 
 ROW_FIELDS = ("rank", "status", "reasons", "eta_v_ref", "eta_v_decline_per_1000h", "drain_pct_ref", "hours_to_limit",
               "hours_to_limit_low", "hours_to_limit_high", "limit_date", "governing_limit", "prior_hours_to_overhaul",
               "energy_cost_per_year", "limit_date_low", "limit_date_high", "confidence", "last_reading_at",
-              "cleanliness_code", "currency", "computed_at")
+              "cleanliness_code", "currency", "computed_at", "crossed_date")
 
 
 @dataclass
@@ -98,7 +98,7 @@ def _row(pump: Pump, result: AnalysisResult | None, site, machine, position) -> 
         "limit_date_low": detail.get("limit_date_low"), "limit_date_high": detail.get("limit_date_high"),
         "confidence": detail.get("confidence"), "last_reading_at": detail.get("last_reading_at"),
         "cleanliness_code": detail.get("cleanliness_code"), "currency": detail.get("currency"),
-        "computed_at": result.computed_at.isoformat(timespec="seconds"),
+        "computed_at": result.computed_at.isoformat(timespec="seconds"), "crossed_date": detail.get("crossed_date"),
     })
     return row
 
