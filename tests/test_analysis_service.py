@@ -50,7 +50,7 @@ def test_a_status_change_is_recorded_with_its_new_reason(demo_db):
         change = session.scalars(select(StatusChange).where(StatusChange.pump_id == pump.id)
                                  .order_by(StatusChange.id.desc())).first()
     assert (change.previous_status, change.status) == (before, "past_limit")
-    assert any("limit 0.99" in reason for reason in change.new_reasons)
+    assert any("limit 99.0 %" in reason for reason in change.new_reasons)
 
 
 def test_analysis_of_a_past_moment_uses_only_what_was_known(demo_db):

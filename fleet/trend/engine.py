@@ -10,6 +10,7 @@ import numpy as np
 import pandas as pd
 
 from fleet.frames import READING_COLUMNS
+from fleet.physics.pump import theoretical_flow_lpm
 from fleet.trend.degradation import QUANTITIES, fit_degradation, not_enough_reason, summarise_fits
 from fleet.trend.energy import leakage_energy, typical_pressure_bar
 from fleet.trend.intervals import assign_intervals, interval_lives
@@ -54,11 +55,8 @@ def _empty_readings() -> pd.DataFrame:
 
 def _pump_table(pumps: pd.DataFrame) -> pd.DataFrame:
     p = pumps.set_index("pump_id", drop=False)
-    rated_flow = (
-        pd.to_numeric(p["displacement_cc"], errors="coerce")
-        * pd.to_numeric(p["rated_speed_rpm"], errors="coerce")
-        / 1000.0
-    )
+    rated_flow = pd.Series(theoretical_flow_lpm(pd.to_numeric(p["displacement_cc"], errors="coerce"),
+                                                pd.to_numeric(p["rated_speed_rpm"], errors="coerce")), index=p.index)
     p = p.assign(rated_flow_lpm=rated_flow)
     given = pd.to_numeric(p.get("max_flow_lpm"), errors="coerce") if "max_flow_lpm" in p else rated_flow * np.nan
     p["max_flow_lpm"] = given.where(given.notna(), rated_flow)

@@ -41,7 +41,7 @@ def _pump_fields(pumps: pd.DataFrame) -> pd.DataFrame:
     p = pumps.reindex(columns=_PUMP_FIELDS).copy()
     p["variable"] = p["variable"].fillna(False).astype(bool)
     p["case_drain"] = p["case_drain"].fillna(False).astype(bool)
-    rated_theoretical = _num(p, "displacement_cc") * _num(p, "rated_speed_rpm") / 1000.0
+    rated_theoretical = np.asarray(theoretical_flow_lpm(_num(p, "displacement_cc"), _num(p, "rated_speed_rpm")))
     p["max_flow_lpm"] = np.where(np.isfinite(_num(p, "max_flow_lpm")), _num(p, "max_flow_lpm"), rated_theoretical)
     ref = _num(p, "reference_temp_c")
     p["reference_temp_c"] = np.where(np.isfinite(ref), ref, DEFAULT_REFERENCE_TEMP_C)
