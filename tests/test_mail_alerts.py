@@ -180,9 +180,10 @@ def test_fleet_serve_sends_what_waits_before_it_starts(client, demo_db, monkeypa
     follow(demo_db, "test-engineer", ADDRESS, "everything")
     worsen(client, demo_db)
     assert outbox(demo_db)[0].sent_at is None
-    server = start_smtp_server(port)
+    server, db = start_smtp_server(port), Database(demo_db.url)
     try:
-        _send_waiting_mail(Database(demo_db.url))  # what `fleet serve` does before it listens
+        _send_waiting_mail(db)  # what `fleet serve` does before it listens
         assert len(server.to(ADDRESS)) == 1 and outbox(demo_db)[0].sent_at is not None
     finally:
+        db.close()  # its pooled connection, left open, would be collected during a later test
         server.controller.stop()
