@@ -175,7 +175,13 @@ def test_averaged_crossing_solves_the_mixture_found_by_scipy_brentq():
     def crossed(x):  # P(averaged trend at x >= limit), written out member by member with scipy.stats
         total = 0.0
         for j, m in enumerate(MEMBERS):
-            u = x if m.law != "power" else ((x + laws.hours_offset[0]) / laws.hours_scale[0]) ** m.power
+            r = (x + laws.hours_offset[0]) / laws.hours_scale[0]
+            if m.law == "power":
+                u = r**m.power
+            elif m.law == "run_in":  # the run-in member's x, written out
+                u = m.share * (1 - np.exp(-r / m.tau)) / (1 - np.exp(-1 / m.tau)) + (1 - m.share) * r
+            else:
+                u = x
             mean = laws.a[0, j] + laws.b[0, j] * u
             sd = np.sqrt(laws.var_a[0, j] + 2 * u * laws.cov_ab[0, j] + u * u * laws.var_b[0, j])
             level = np.log(limit) if m.log_space else limit

@@ -13,7 +13,7 @@ Where the mixture never reaches a level (the trend may stay flat), that bound st
 import numpy as np
 from scipy import special
 
-from fleet.trend.wear_laws import MEMBERS, LawFits, member_x
+from fleet.trend.wear_laws import MEMBERS, LawFits, member_x, run_in_dx_du
 
 # Hours grid (in units of the interval's current hours) on which the crossing is first bracketed: the readings'
 # span, then geometric steps out to a million times it (no plan looks further).
@@ -99,6 +99,9 @@ def averaged_slope(fits: LawFits, hours) -> np.ndarray:
             elif m.law == "power":
                 u = np.maximum((h + fits.hours_offset) / fits.hours_scale, 0.0)
                 rate = b * m.power * u ** (m.power - 1.0) / fits.hours_scale
+            elif m.law == "run_in":
+                u = np.maximum((h + fits.hours_offset) / fits.hours_scale, 0.0)
+                rate = b * run_in_dx_du(u, m.tau, m.share) / fits.hours_scale
             else:
                 rate = b
         total = total + np.where(w > 0, w * np.nan_to_num(rate, nan=0.0, posinf=0.0, neginf=0.0), 0.0)
