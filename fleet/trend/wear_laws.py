@@ -113,6 +113,9 @@ class LawFits:
             within = akaike_weights(member_score[:, of_law]) if law in FAMILIES else 1.0
             weight[:, of_law] = law_w[:, [k]] * within
         weight = np.where(self.usable, weight, 0.0)
+        # A member with under a millionth of the heaviest one's weight moves no forecast (all of them together
+        # hold under 1e-4 of the probability); dropping them spares the forecasts their evaluation.
+        weight = np.where(weight >= 1e-6 * weight.max(axis=1, keepdims=True, initial=0.0), weight, 0.0)
         total = weight.sum(axis=1, keepdims=True)
         with np.errstate(invalid="ignore", divide="ignore"):
             fitted = self.usable.any(axis=1, keepdims=True) & (total > 0)
