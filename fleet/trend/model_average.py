@@ -76,7 +76,10 @@ def _pairs_cdf(pairs: dict, hours: np.ndarray, value: np.ndarray) -> np.ndarray:
     return np.nan_to_num(special.ndtr(t * pairs["ratio"][col]), nan=0.5)
 
 
-def _mixture_cdf(pairs: dict, hours, value) -> np.ndarray:
+def value_cdf(fits: LawFits, hours, value, confidence: float, pairs: dict | None = None) -> np.ndarray:
+    """P(averaged trend at `hours` <= `value`), per group (broadcast over a (G, K) grid of hours). pairs: the
+    weighed pairs of `fits` at `confidence` when already gathered (a search calls this many times)."""
+    pairs = _weighed_pairs(fits, confidence) if pairs is None else pairs
     hours = np.asarray(hours, dtype=float)
     value = np.broadcast_to(np.asarray(value, dtype=float), hours.shape)
     total = np.zeros(hours.shape)
@@ -86,11 +89,6 @@ def _mixture_cdf(pairs: dict, hours, value) -> np.ndarray:
         p = _pairs_cdf(pairs, hours[rows], value[rows])
         total[rows[pairs["starts"]]] = np.add.reduceat(pairs["weight"][col] * p, pairs["starts"], axis=0)
     return total
-
-
-def value_cdf(fits: LawFits, hours, value, confidence: float) -> np.ndarray:
-    """P(averaged trend at `hours` <= `value`), per group (broadcast over a (G, K) grid of hours)."""
-    return _mixture_cdf(_weighed_pairs(fits, confidence), hours, value)
 
 
 def value_quantile(fits: LawFits, hours, level: float, confidence: float) -> np.ndarray:
@@ -113,7 +111,7 @@ def value_quantile(fits: LawFits, hours, level: float, confidence: float) -> np.
     pairs = _weighed_pairs(fits, confidence)
     for _ in range(44):  # the bracket shrinks to 1e-13 of its width
         mid = 0.5 * (lo + hi)
-        below = _mixture_cdf(pairs, hours, mid) < level
+        below = value_cdf(fits, hours, mid, confidence, pairs) < level
         lo, hi = np.where(below, mid, lo), np.where(below, hi, mid)
     return np.where(fitted, 0.5 * (lo + hi), np.nan)
 
@@ -156,7 +154,7 @@ def crossing_quantiles(fits: LawFits, limit, now_hours, levels, confidence: floa
     pairs = _weighed_pairs(fits, confidence)
 
     def crossed(hours):
-        return 1.0 - _mixture_cdf(pairs, hours, limit_g[:, None] if np.ndim(hours) == 2 else limit_g)
+        return 1.0 - value_cdf(fits, hours, limit_g[:, None] if np.ndim(hours) == 2 else limit_g, confidence, pairs)
 
     on_grid = crossed(grid)
     rows = np.arange(len(now))
