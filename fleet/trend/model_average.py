@@ -13,7 +13,7 @@ Where the mixture never reaches a level (the trend may stay flat), that bound st
 import numpy as np
 from scipy import special
 
-from fleet.trend.wear_laws import MEMBERS, LawFits, member_x
+from fleet.trend.wear_laws import MEMBERS, LawFits, member_x, run_in_dx_du, run_in_x
 
 # Hours grid (in units of the interval's current hours) on which the crossing is first bracketed: the readings'
 # span, then geometric steps out to a million times it (no plan looks further).
@@ -23,44 +23,72 @@ CROSSING_GRID = np.concatenate([_GRID_PAST, _GRID_AHEAD])
 _BISECTIONS = 32
 
 
-def _moments(fits: LawFits, j: int, hours: np.ndarray):
-    """Mean and standard deviation of member j's fitted line at hours (shape (G,) or (G, K)), its own space."""
+def _moments(fits: LawFits, j: int, hours: np.ndarray, rows=slice(None)):
+    """Mean and standard deviation of member j's fitted line at hours (shape (G,) or (G, K), G the groups picked
+    by `rows`), its own space."""
     hours = np.asarray(hours, dtype=float)
     expand = (slice(None), None) if hours.ndim == 2 else (slice(None),)
     m = MEMBERS[j]
-    x = member_x(m, hours, fits.hours_scale[expand], fits.hours_offset[expand])
-    a, b = fits.a[:, j][expand], fits.b[:, j][expand]
+    x = member_x(m, hours, fits.hours_scale[rows][expand], fits.hours_offset[rows][expand])
+    a, b = fits.a[rows, j][expand], fits.b[rows, j][expand]
     with np.errstate(invalid="ignore", over="ignore"):  # an unfitted group's NaN stays NaN (it has no weight)
-        var = fits.var_a[:, j][expand] + 2.0 * x * fits.cov_ab[:, j][expand] + x * x * fits.var_b[:, j][expand]
+        var = (fits.var_a[rows, j][expand] + 2.0 * x * fits.cov_ab[rows, j][expand]
+               + x * x * fits.var_b[rows, j][expand])
         return a + b * x, np.sqrt(np.maximum(var, 0.0))
 
 
-def _cdf_terms(fits: LawFits, hours, value, confidence: float):
-    """Yield (weight, P(member's line at hours <= value)) for each member with some weight."""
+_KIND = np.array([("power", "run_in").index(m.law) + 1 if m.law in ("power", "run_in") else 0 for m in MEMBERS])
+_LOG = np.array([m.log_space for m in MEMBERS])
+_POWER = np.array([m.power for m in MEMBERS])
+_TAU = np.array([m.tau for m in MEMBERS])
+_SHARE = np.array([m.share for m in MEMBERS])
+
+
+def _weighed_pairs(fits: LawFits, confidence: float) -> dict:
+    """Every (group, member) pair with some weight, as flat arrays (groups in order): the mixture is then
+    evaluated for all of them at once, however many members the laws have (most weigh in for few pumps)."""
+    rows, cols = np.nonzero(fits.weight > 0)
+    pairs = {name: getattr(fits, name)[rows, cols] for name in ("weight", "a", "b", "var_a", "cov_ab", "var_b")}
+    pairs.update(rows=rows, ratio=fits.t_ratio(confidence)[rows, cols], log=_LOG[cols], kind=_KIND[cols],
+                 power=_POWER[cols], tau=_TAU[cols], share=_SHARE[cols], scale=fits.hours_scale[rows],
+                 offset=fits.hours_offset[rows])
+    pairs["starts"] = np.flatnonzero(np.r_[True, rows[1:] != rows[:-1]]) if rows.size else rows
+    return pairs
+
+
+def _pairs_cdf(pairs: dict, hours: np.ndarray, value: np.ndarray) -> np.ndarray:
+    """P(member's line at hours <= value) for every weighed pair; hours and value already picked per pair."""
+    col = (slice(None), None) if hours.ndim == 2 else (slice(None),)
+    x = hours.copy()
+    with np.errstate(invalid="ignore", divide="ignore", over="ignore"):
+        u = np.maximum((hours + pairs["offset"][col]) / pairs["scale"][col], 0.0)
+        power, run_in = pairs["kind"] == 1, pairs["kind"] == 2
+        x[power] = u[power] ** pairs["power"][power][col]
+        x[run_in] = run_in_x(u[run_in], pairs["tau"][run_in][col], pairs["share"][run_in][col])
+        mean = pairs["a"][col] + pairs["b"][col] * x
+        var = pairs["var_a"][col] + 2.0 * x * pairs["cov_ab"][col] + x * x * pairs["var_b"][col]
+        sd = np.sqrt(np.maximum(var, 0.0))
+        log = np.broadcast_to(pairs["log"][col], hours.shape)
+        level = np.where(log, np.log(np.where(value > 0, value, np.nan)), value)
+        t = (level - mean) / sd
+    t = np.where(sd > 0, t, np.where(level >= mean, np.inf, -np.inf))
+    t = np.where(log & ~(value > 0), -np.inf, t)  # a log member never goes below zero flow
+    return np.nan_to_num(special.ndtr(t * pairs["ratio"][col]), nan=0.5)
+
+
+def value_cdf(fits: LawFits, hours, value, confidence: float, pairs: dict | None = None) -> np.ndarray:
+    """P(averaged trend at `hours` <= `value`), per group (broadcast over a (G, K) grid of hours). pairs: the
+    weighed pairs of `fits` at `confidence` when already gathered (a search calls this many times)."""
+    pairs = _weighed_pairs(fits, confidence) if pairs is None else pairs
     hours = np.asarray(hours, dtype=float)
-    expand = (slice(None), None) if hours.ndim == 2 else (slice(None),)
-    value = np.asarray(value, dtype=float)
-    for j, m in enumerate(MEMBERS):
-        w = fits.weight[:, j]
-        if not np.any(w > 0):
-            continue
-        mean, sd = _moments(fits, j, hours)
-        with np.errstate(invalid="ignore", divide="ignore"):
-            level = np.log(np.where(value > 0, value, np.nan)) if m.log_space else value
-            t = (level - mean) / sd
-        t = np.where(sd > 0, t, np.where(level >= mean, np.inf, -np.inf))
-        if m.log_space:
-            t = np.where(value > 0, t, -np.inf)  # a log member never goes below zero flow
-        p = special.ndtr(t * fits.t_ratio(confidence)[:, j][expand])
-        yield w[expand], np.where(w[expand] > 0, np.nan_to_num(p, nan=0.5), 0.0)
-
-
-def value_cdf(fits: LawFits, hours, value, confidence: float) -> np.ndarray:
-    """P(averaged trend at `hours` <= `value`), per group (broadcast over a (G, K) grid of hours)."""
-    total = 0.0
-    for w, p in _cdf_terms(fits, hours, value, confidence):
-        total = total + w * p
-    return np.asarray(total, dtype=float) * np.ones(np.shape(hours))
+    value = np.broadcast_to(np.asarray(value, dtype=float), hours.shape)
+    total = np.zeros(hours.shape)
+    rows = pairs["rows"]
+    if rows.size:
+        col = (slice(None), None) if hours.ndim == 2 else (slice(None),)
+        p = _pairs_cdf(pairs, hours[rows], value[rows])
+        total[rows[pairs["starts"]]] = np.add.reduceat(pairs["weight"][col] * p, pairs["starts"], axis=0)
+    return total
 
 
 def value_quantile(fits: LawFits, hours, level: float, confidence: float) -> np.ndarray:
@@ -80,9 +108,10 @@ def value_quantile(fits: LawFits, hours, level: float, confidence: float) -> np.
         hi = np.where(used & np.isfinite(high), np.maximum(hi, high), hi)
     fitted = np.isfinite(lo) & np.isfinite(hi)
     lo, hi = np.where(fitted, lo, 0.0), np.where(fitted, hi, 1.0)
+    pairs = _weighed_pairs(fits, confidence)
     for _ in range(44):  # the bracket shrinks to 1e-13 of its width
         mid = 0.5 * (lo + hi)
-        below = value_cdf(fits, hours, mid, confidence) < level
+        below = value_cdf(fits, hours, mid, confidence, pairs) < level
         lo, hi = np.where(below, mid, lo), np.where(below, hi, mid)
     return np.where(fitted, 0.5 * (lo + hi), np.nan)
 
@@ -99,6 +128,9 @@ def averaged_slope(fits: LawFits, hours) -> np.ndarray:
             elif m.law == "power":
                 u = np.maximum((h + fits.hours_offset) / fits.hours_scale, 0.0)
                 rate = b * m.power * u ** (m.power - 1.0) / fits.hours_scale
+            elif m.law == "run_in":
+                u = np.maximum((h + fits.hours_offset) / fits.hours_scale, 0.0)
+                rate = b * run_in_dx_du(u, m.tau, m.share) / fits.hours_scale
             else:
                 rate = b
         total = total + np.where(w > 0, w * np.nan_to_num(rate, nan=0.0, posinf=0.0, neginf=0.0), 0.0)
@@ -119,8 +151,10 @@ def crossing_quantiles(fits: LawFits, limit, now_hours, levels, confidence: floa
     grid = span[:, None] * CROSSING_GRID[None, :]
     limit_g = np.where(ok, limit, 1.0)
 
+    pairs = _weighed_pairs(fits, confidence)
+
     def crossed(hours):
-        return 1.0 - value_cdf(fits, hours, limit_g[:, None] if np.ndim(hours) == 2 else limit_g, confidence)
+        return 1.0 - value_cdf(fits, hours, limit_g[:, None] if np.ndim(hours) == 2 else limit_g, confidence, pairs)
 
     on_grid = crossed(grid)
     rows = np.arange(len(now))
