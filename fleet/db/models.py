@@ -148,6 +148,8 @@ class Reading(Base):
     note: Mapped[str | None] = mapped_column(Text)
     source: Mapped[str] = mapped_column(String(16), default="form")
     created_at: Mapped[datetime] = mapped_column(DateTime, default=utcnow)
+    # The id a device gave the reading before sending it (POST /api/readings): a resend finds it, never a twin.
+    client_id: Mapped[str | None] = mapped_column(String(64), unique=True)
 
     flow_points: Mapped[list["FlowTestPoint"]] = relationship(
         back_populates="reading", cascade="all, delete-orphan", order_by="FlowTestPoint.pressure_bar"

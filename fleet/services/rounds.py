@@ -9,7 +9,7 @@ from datetime import datetime
 
 import numpy as np
 import pandas as pd
-from sqlalchemy import func, select, tuple_
+from sqlalchemy import func, select
 from sqlalchemy.orm import Session, sessionmaker
 
 from fleet import units
@@ -277,17 +277,6 @@ def save_readings(sessions: sessionmaker[Session], table: pd.DataFrame, source: 
 def unit_choices() -> dict[str, tuple[str, ...]]:
     """Units the form offers per field (canonical first)."""
     return {f.name: units.CHOICES[f.quantity] for f in FORM_FIELDS if f.quantity}
-
-
-def stored_readings(session: Session, table: pd.DataFrame) -> list[dict]:
-    """id, pump and time of the stored readings a table of new readings names (after it was saved)."""
-    parsed, _ = parse_table("readings", table)
-    keys = [(serial, stamp.to_pydatetime()) for serial, stamp in zip(parsed.data["pump"], parsed.data["taken_at"],
-                                                                       strict=True)]
-    rows = session.execute(select(Reading.id, Pump.serial, Reading.taken_at).join(Pump, Pump.id == Reading.pump_id)
-                           .where(tuple_(Pump.serial, Reading.taken_at).in_(keys)))
-    found = {(serial, at): rid for rid, serial, at in rows}
-    return [{"id": found.get(key), "pump": key[0], "taken_at": key[1].isoformat(timespec="minutes")} for key in keys]
 
 
 def route_pumps(session: Session, name: str) -> tuple[str, list[str]] | None:
