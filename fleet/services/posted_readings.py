@@ -87,7 +87,12 @@ def store_posted(session: Session, table: pd.DataFrame, client_ids: list[str | N
     if fresh:
         try:
             result = import_table(session, "readings", table.iloc[fresh].reset_index(drop=True), source=source)
-        except ImportRejected as rejected:  # its rows count the fresh ones: name them as posted
+        except ImportRejected as rejected:
+            if _stored_by_client_id(session, [client_ids[i] for i in fresh if client_ids[i]]):
+                # Another send of the same id committed after this unit looked (PostgreSQL reads each statement
+                # afresh): look again, and those rows are now repeats or conflicts.
+                return store_posted(session, table, client_ids, places, source)
+            # Its rows count the fresh ones: name them as posted.
             raise ImportRejected([Problem(fresh[p.row - 2] + 2 if p.row >= 2 else p.row, p.column, p.reason)
                                   for p in rejected.problems]) from None
         created, pump_ids = result.created, result.pump_ids
