@@ -5,10 +5,12 @@ checks first; doubtful values come back with the reasons and a "Save as typed" b
 back with every typed value kept. The unit chosen for each field is remembered in a cookie.
 """
 
+from pathlib import Path
 from urllib.parse import parse_qsl, urlencode
 
 from flask import (
     Blueprint,
+    Response,
     abort,
     current_app,
     flash,
@@ -17,7 +19,6 @@ from flask import (
     redirect,
     render_template,
     request,
-    send_from_directory,
     url_for,
 )
 from flask_wtf.csrf import generate_csrf
@@ -173,10 +174,9 @@ def _field_of(column: str) -> str:
 def worker():
     """The service worker, served from the site's root so that its scope may cover /rounds (a worker's scope
     cannot reach above its own path). Public: a browser fetches it to update it, signed in or not."""
-    response = send_from_directory(current_app.static_folder, "rounds-worker.js", mimetype="text/javascript",
-                                   max_age=0)
-    response.headers["Cache-Control"] = "no-cache"  # a new worker reaches phones on their next visit
-    return response
+    script = Path(current_app.static_folder, "rounds-worker.js").read_text(encoding="utf-8")
+    # no-cache: a new worker reaches phones on their next visit.
+    return Response(script, mimetype="text/javascript", headers={"Cache-Control": "no-cache"})
 
 
 @bp.get("/rounds/<int:route_id>/rules.json")
