@@ -170,7 +170,7 @@ def _field_of(column: str) -> str:
 
 # --- the round form offline: its service worker, its rules as data, a fresh token ----------------------------
 
-@bp.get("/rounds-worker.js")
+@bp.route("/rounds-worker.js")
 def worker():
     """The service worker, served from the site's root so that its scope may cover /rounds (a worker's scope
     cannot reach above its own path). Public: a browser fetches it to update it, signed in or not."""
@@ -179,7 +179,7 @@ def worker():
     return Response(script, mimetype="text/javascript", headers={"Cache-Control": "no-cache"})
 
 
-@bp.get("/rounds/<int:route_id>/rules.json")
+@bp.route("/rounds/<int:route_id>/rules.json")
 def rules(route_id):
     data = rounds.device_rules(session(), route_id)
     if data is None:
@@ -187,7 +187,7 @@ def rules(route_id):
     return jsonify(data)
 
 
-@bp.get("/rounds/session.json")
+@bp.route("/rounds/session.json")
 def session_state():
     """A fresh CSRF token for readings kept on a device: the token in a page cached hours ago may have expired."""
     user = signed_in_user()
