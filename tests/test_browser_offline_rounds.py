@@ -101,3 +101,25 @@ def test_two_readings_taken_with_no_signal_are_stored_once_when_it_returns(live_
     }""")
     assert statuses == [200, 200]  # answered as repeats
     assert len(_stored(demo_db, FIRST, first["hours"])) == 1 and len(_stored(demo_db, SECOND, second["hours"])) == 1
+
+
+def test_the_device_reads_a_decimal_comma_only_where_the_form_allows_it(live_app, page, context, base_url, demo_db,
+                                                                        browser_login):
+    browser_login("technician")
+    page.goto(base_url + "/rounds")
+    page.fill("#route-name", "Comma walk")
+    page.fill("#route-pumps", FIRST)
+    page.click("text=Save route")
+    page.wait_for_selector("#device-kept:has-text('kept on this device')", timeout=20000)
+    context.set_offline(True)
+    values = _facts(demo_db, FIRST)
+    _fill(page, {**values, "oil_temp": "48,5"})
+    page.click("button[value=check]")
+    page.wait_for_selector("#device-errors")
+    assert "oil temp: '48,5' is not a number" in page.inner_text("#device-errors")  # the default: no comma
+    page.evaluate("() => document.querySelector('form.reading-form').setAttribute('data-decimal-comma', '')")
+    page.click("button[value=check]")
+    page.wait_for_selector("text=All values look plausible. Nothing kept yet.")
+    assert page.locator("#device-errors").count() == 0
+    assert _stored(demo_db, FIRST, values["hours"]) == []  # 'Check only' keeps nothing, here or on the server
+    assert page.locator("#device-queue li").count() == 0
