@@ -4,7 +4,7 @@ device, survives a reload, and once the connection is back each reading is store
 import pytest
 from sqlalchemy import func, select
 
-from fleet.db.models import Pump, Reading
+from fleet.db.models import Installation, Position, Pump, Reading
 
 pytestmark = pytest.mark.browser
 
@@ -123,3 +123,30 @@ def test_the_device_reads_a_decimal_comma_only_where_the_form_allows_it(live_app
     assert page.locator("#device-errors").count() == 0
     assert _stored(demo_db, FIRST, values["hours"]) == []  # 'Check only' keeps nothing, here or on the server
     assert page.locator("#device-queue li").count() == 0
+
+
+def test_the_servers_verdict_on_a_kept_reading_is_shown(live_app, page, context, base_url, demo_db, browser_login):
+    """A reading kept with no signal of a pump that the register moved meanwhile is refused, and the device says
+    why and keeps it listed."""
+    browser_login("technician")
+    page.goto(base_url + "/rounds")
+    page.fill("#route-name", "Verdict walk")
+    page.fill("#route-pumps", FIRST)
+    page.click("text=Save route")
+    page.wait_for_selector("#device-kept:has-text('kept on this device')", timeout=20000)
+    context.set_offline(True)
+    values = _facts(demo_db, FIRST)
+    _fill(page, values)
+    page.click("button[value=save]")
+    page.wait_for_selector("#device-queue li[data-state=waiting]")
+    with demo_db.sessions() as session, session.begin():  # meanwhile the pump goes to another position
+        installation = session.scalar(select(Installation).join(Pump, Pump.id == Installation.pump_id)
+                                      .where(Pump.serial == FIRST, Installation.removed_at.is_(None)))
+        installation.position_id = session.scalar(select(Position.id).where(Position.id != installation.position_id)
+                                                  .limit(1))
+    context.set_offline(False)
+    page.wait_for_selector("#device-queue li[data-state=refused]", timeout=30000)
+    verdict = page.inner_text("#device-queue li[data-state=refused]")
+    assert "not stored" in verdict and f"pump {FIRST} was moved" in verdict
+    assert page.is_visible("#device-queue li[data-state=refused] button:has-text('Remove from this list')")
+    assert _stored(demo_db, FIRST, values["hours"]) == []
