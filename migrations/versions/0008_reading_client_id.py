@@ -1,5 +1,8 @@
 """reading client id: the id a device gives a reading, so a resend stores nothing twice
 
+Plain ALTER TABLE and a unique index, not batch mode: on SQLite a batch copy of 'reading' would drop the old table,
+and with foreign keys on that deletes every flow test point referring to a reading.
+
 Revision ID: 0008
 Revises: 0007
 Create Date: 2026-12-03 03:27:03.844056
@@ -17,12 +20,10 @@ depends_on: str | Sequence[str] | None = None
 
 
 def upgrade() -> None:
-    with op.batch_alter_table("reading", schema=None) as batch_op:
-        batch_op.add_column(sa.Column("client_id", sa.String(length=64), nullable=True))
-        batch_op.create_unique_constraint(batch_op.f("uq_reading_client_id"), ["client_id"])
+    op.add_column("reading", sa.Column("client_id", sa.String(length=64), nullable=True))
+    op.create_index(op.f("ix_reading_client_id"), "reading", ["client_id"], unique=True)
 
 
 def downgrade() -> None:
-    with op.batch_alter_table("reading", schema=None) as batch_op:
-        batch_op.drop_constraint(batch_op.f("uq_reading_client_id"), type_="unique")
-        batch_op.drop_column("client_id")
+    op.drop_index(op.f("ix_reading_client_id"), table_name="reading")
+    op.drop_column("reading", "client_id")  # SQLite 3.35+ drops a column in place
