@@ -227,13 +227,20 @@
         "the route once with signal"}], doubts: []}, action);
       return;
     }
-    const values = typedValues(pumpRules);
-    const outcome = check(values, pumpRules);
-    showOutcome(outcome, action);
-    if (action === "check" || outcome.problems.length || (outcome.doubts.length && action !== "confirm")) return;
-    const record = {client_id: newId(), route: rules.route, stop: Number(form.dataset.stop), pump: form.dataset.pump,
-      state: "waiting", verdict: "", kept_at: new Date().toISOString(), body: postedBody(values, pumpRules)};
-    keep(record).then(() => { window.location.href = form.dataset.nextUrl; });
+    // A reading of this pump still waiting here is its latest: the hour meter is compared with it too.
+    allKept().then((records) => {
+      const latest = {...pumpRules};
+      records.filter((r) => r.pump === form.dataset.pump && r.state === "waiting" && r.body.hours
+                     && r.body.hours.unit === "h" && (latest.last_hours === null || r.body.hours.value > latest.last_hours))
+        .forEach((r) => { latest.last_hours = r.body.hours.value; latest.last_taken_at = r.body.taken_at; });
+      const values = typedValues(pumpRules);
+      const outcome = check(values, latest);
+      showOutcome(outcome, action);
+      if (action === "check" || outcome.problems.length || (outcome.doubts.length && action !== "confirm")) return null;
+      const record = {client_id: newId(), route: rules.route, stop: Number(form.dataset.stop), pump: form.dataset.pump,
+        state: "waiting", verdict: "", kept_at: new Date().toISOString(), body: postedBody(values, pumpRules)};
+      return keep(record).then(() => { window.location.href = form.dataset.nextUrl; });
+    });
   }
 
   // --- sending what waits ---------------------------------------------------------------------------------
