@@ -8,8 +8,9 @@ Packages are discovered rather than listed, so a new subpackage ships without to
 from setuptools import find_namespace_packages, setup
 
 DATA_FOLDERS = {"fleet._migrations": "migrations", "fleet._templates": "templates"}
-# Files besides Python modules that fleet reads at run time: page templates, styles, Alembic's revision template.
-DATA_PATTERNS = ["*.html", "*.css", "*.js", "*.mako"]
+# Files besides Python modules that fleet reads at run time: page templates, styles, scripts, the rounds app's
+# manifest and icon, Alembic's revision template.
+DATA_PATTERNS = ["*.html", "*.css", "*.js", "*.mako", "*.webmanifest", "*.svg"]
 
 
 def packages() -> list[str]:

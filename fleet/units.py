@@ -172,3 +172,10 @@ CHOICES: dict[str, tuple[str, ...]] = {
     "density": ("kg/L",),
     "power": ("kW", "hp"),
 }
+
+
+def linear_form(unit_text: str | None, quantity: str) -> tuple[float, float]:
+    """``(factor, offset)`` with canonical = factor * value + offset: every unit fleet offers is linear (degF is
+    affine), so a device can convert typed numbers with these two figures, computed here by pint."""
+    offset, one = to_canonical([0.0, 1.0], unit_text, quantity)
+    return float(one - offset), float(offset)

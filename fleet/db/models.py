@@ -148,6 +148,10 @@ class Reading(Base):
     note: Mapped[str | None] = mapped_column(Text)
     source: Mapped[str] = mapped_column(String(16), default="form")
     created_at: Mapped[datetime] = mapped_column(DateTime, default=utcnow)
+    # The id a device gave the reading before sending it (POST /api/readings): a resend finds it, never a twin.
+    # A unique index, not a constraint: SQLite adds it without copying the table (a copy would cascade-delete the
+    # flow test points that refer to each reading).
+    client_id: Mapped[str | None] = mapped_column(String(64), unique=True, index=True)
 
     flow_points: Mapped[list["FlowTestPoint"]] = relationship(
         back_populates="reading", cascade="all, delete-orphan", order_by="FlowTestPoint.pressure_bar"

@@ -9,13 +9,15 @@ from datetime import datetime
 
 import numpy as np
 import pandas as pd
-from sqlalchemy import func, select, tuple_
+from sqlalchemy import func, select
 from sqlalchemy.orm import Session, sessionmaker
 
 from fleet import units
 from fleet.db.models import Installation, Machine, Position, Pump, Reading, Route, RouteStop, Site
 from fleet.db.queries import current_places
+from fleet.io.columns import READINGS
 from fleet.io.parse import Problem, parse_table
+from fleet.io.rules import FUTURE_TOLERANCE
 from fleet.jsonvalues import plain
 from fleet.kinds import PUMP_KINDS
 from fleet.physics.pump import theoretical_flow_lpm
@@ -213,38 +215,41 @@ def plausibility_warnings(facts: PumpFacts, reading: dict, now: datetime) -> lis
     oil_temp (degC), stroke (fraction; None = full).
     """
     warnings = []
+    known = {name: not _blank(reading.get(name)) for name in
+             ("taken_at", "hours", "outlet_pressure", "speed", "outlet_flow", "oil_temp")}
     stroke = reading.get("stroke")
-    theoretical = float(theoretical_flow_lpm(facts.displacement_cc, reading["speed"], 1.0 if _blank(stroke)
-                                             else stroke))
     flow = reading.get("outlet_flow")
-    if not _blank(flow) and flow > theoretical:
-        warnings.append(Doubt("flow_above_theoretical", "outlet_flow",
-                                 f"Outlet flow {flow:.1f} L/min is above the theoretical {theoretical:.1f} L/min at "
-                                 f"{reading['speed']:.0f} rpm: a pump cannot deliver more than its displacement."))
-    if reading["outlet_pressure"] > facts.rated_pressure_bar:
+    if known["speed"] and known["outlet_flow"]:
+        theoretical = float(theoretical_flow_lpm(facts.displacement_cc, reading["speed"],
+                                                 1.0 if _blank(stroke) else stroke))
+        if flow > theoretical:
+            warnings.append(Doubt("flow_above_theoretical", "outlet_flow",
+                                  f"Outlet flow {flow:.1f} L/min is above the theoretical {theoretical:.1f} L/min "
+                                  f"at {reading['speed']:.0f} rpm: a pump cannot deliver more than its displacement."))
+    if known["outlet_pressure"] and reading["outlet_pressure"] > facts.rated_pressure_bar:
         warnings.append(Doubt("pressure_above_rated", "outlet_pressure",
-                                 f"Outlet pressure {reading['outlet_pressure']:.1f} bar is above the rated "
-                                 f"{facts.rated_pressure_bar:.0f} bar."))
-    temp = reading["oil_temp"]
-    if not facts.oil_temp_min_c <= temp <= facts.oil_temp_max_c:
+                              f"Outlet pressure {reading['outlet_pressure']:.1f} bar is above the rated "
+                              f"{facts.rated_pressure_bar:.0f} bar."))
+    temp = reading.get("oil_temp")
+    if known["oil_temp"] and not facts.oil_temp_min_c <= temp <= facts.oil_temp_max_c:
         warnings.append(Doubt("temperature_outside_limits", "oil_temp",
-                                 f"Oil temperature {temp:.1f} °C is outside this pump's limits "
-                                 f"({facts.oil_temp_min_c:.0f}–{facts.oil_temp_max_c:.0f} °C).",
+                              f"Oil temperature {temp:.1f} °C is outside this pump's limits "
+                              f"({facts.oil_temp_min_c:.0f}–{facts.oil_temp_max_c:.0f} °C).",
                               HOT_OIL_CAUTION if temp > facts.oil_temp_max_c else None))
-    if facts.last_hours is not None and reading["hours"] < facts.last_hours:
+    if known["hours"] and facts.last_hours is not None and reading["hours"] < facts.last_hours:
         warnings.append(Doubt("hours_backwards", "hours",
-                                 f"Running hours {reading['hours']:.0f} h are below the last reading's "
-                                 f"{facts.last_hours:.0f} h ({facts.last_taken_at:%Y-%m-%d}): is it the right pump "
-                                 "or a new hour meter?"))
-    if reading["taken_at"] > now:
+                              f"Running hours {reading['hours']:.0f} h are below the last reading's "
+                              f"{facts.last_hours:.0f} h ({facts.last_taken_at:%Y-%m-%d}): is it the right pump "
+                              "or a new hour meter?"))
+    if known["taken_at"] and reading["taken_at"] > now:
         warnings.append(Doubt("time_in_future", "taken_at",
-                                 f"The time {reading['taken_at']:%Y-%m-%d %H:%M} is later than now "
-                                 f"({now:%Y-%m-%d %H:%M} UTC)."))
+                              f"The time {reading['taken_at']:%Y-%m-%d %H:%M} is later than now "
+                              f"({now:%Y-%m-%d %H:%M} UTC)."))
     return warnings
 
 
 def _blank(value) -> bool:
-    return value is None or (isinstance(value, float) and not np.isfinite(value))
+    return value is None or value is pd.NaT or (isinstance(value, float) and not np.isfinite(value))
 
 
 @dataclass
@@ -254,17 +259,17 @@ class CheckOutcome:
 
 
 def check_reading(session: Session, pump: Pump, table: pd.DataFrame, now: datetime | None = None) -> CheckOutcome:
-    """The importer's checks of ``table`` (nothing is written), then the plausibility checks."""
+    """The importer's checks of ``table`` (nothing is written) and the plausibility checks of the values that
+    passed them: everything the technician should look at, all at once."""
     now = now or utcnow()
     problems = check_readings(session, table, now)
-    if problems:
-        return CheckOutcome(problems=problems)
     parsed, _ = parse_table("readings", table)
     row = parsed.data.iloc[0]
-    reading = {name: plain(row.get(name)) for name in
+    refused = {units.parse_header(p.column)[0] for p in problems if p.column}
+    reading = {name: None if name in refused else plain(row.get(name)) for name in
                ("taken_at", "hours", "outlet_pressure", "speed", "outlet_flow", "oil_temp", "stroke")}
-    facts = pump_facts(session, pump, before=reading["taken_at"])
-    return CheckOutcome(warnings=plausibility_warnings(facts, reading, now))
+    facts = pump_facts(session, pump, before=None if _blank(reading["taken_at"]) else reading["taken_at"])
+    return CheckOutcome(problems=problems, warnings=plausibility_warnings(facts, reading, now))
 
 
 def save_readings(sessions: sessionmaker[Session], table: pd.DataFrame, source: str = "form",
@@ -274,20 +279,45 @@ def save_readings(sessions: sessionmaker[Session], table: pd.DataFrame, source: 
     return perform(sessions, lambda session: import_table(session, "readings", table, source=source, now=now))
 
 
+def device_rules(session: Session, route_id: int, now: datetime | None = None) -> dict | None:
+    """The checks a device can run on a reading of this route's pumps, as data (for the offline round form).
+
+    Bounds come from the readings columns (fleet.io.columns), unit conversions from fleet.units, the doubts'
+    figures from ``pump_facts`` and fleet.physics: the same sources the server's own checks read.
+    """
+    walk = route_walk(session, route_id, now)
+    if walk is None:
+        return None
+    columns = {column.name: column for column in READINGS}
+    fields = {}
+    for spec in FORM_FIELDS:
+        column = columns[spec.name]
+        offered = (STROKE_UNIT,) if spec.name == "stroke" else units.CHOICES[spec.quantity]
+        fields[spec.name] = {
+            "label": spec.label, "required": column.required, "min": column.min, "max": column.max,
+            "positive": column.positive, "canonical_unit": units.LABELS.get(column.quantity or "", ""),
+            "units": {unit: units.linear_form(unit, column.quantity) for unit in offered},
+        }
+    pumps = {}
+    serials = [stop["pump"] for stop in walk["stops"]]
+    for pump in session.scalars(select(Pump).where(Pump.serial.in_(serials))):
+        facts = pump_facts(session, pump)
+        pumps[pump.serial] = {
+            "flow_per_rpm_lpm": float(theoretical_flow_lpm(pump.displacement_cc, 1.0)),
+            "rated_pressure_bar": facts.rated_pressure_bar,
+            "oil_temp_min_c": facts.oil_temp_min_c, "oil_temp_max_c": facts.oil_temp_max_c,
+            "last_hours": facts.last_hours,
+            "last_taken_at": facts.last_taken_at.isoformat(timespec="minutes") if facts.last_taken_at else None,
+            "fields": [f.name for f in fields_for(pump)],
+        }
+    return {"route": walk["route"]["id"], "fields": fields, "pumps": pumps,
+            "future_tolerance_s": FUTURE_TOLERANCE.total_seconds(),
+            "hot_oil_caution": HOT_OIL_CAUTION, "made_at": (now or utcnow()).isoformat(timespec="seconds")}
+
+
 def unit_choices() -> dict[str, tuple[str, ...]]:
     """Units the form offers per field (canonical first)."""
     return {f.name: units.CHOICES[f.quantity] for f in FORM_FIELDS if f.quantity}
-
-
-def stored_readings(session: Session, table: pd.DataFrame) -> list[dict]:
-    """id, pump and time of the stored readings a table of new readings names (after it was saved)."""
-    parsed, _ = parse_table("readings", table)
-    keys = [(serial, stamp.to_pydatetime()) for serial, stamp in zip(parsed.data["pump"], parsed.data["taken_at"],
-                                                                       strict=True)]
-    rows = session.execute(select(Reading.id, Pump.serial, Reading.taken_at).join(Pump, Pump.id == Reading.pump_id)
-                           .where(tuple_(Pump.serial, Reading.taken_at).in_(keys)))
-    found = {(serial, at): rid for rid, serial, at in rows}
-    return [{"id": found.get(key), "pump": key[0], "taken_at": key[1].isoformat(timespec="minutes")} for key in keys]
 
 
 def route_pumps(session: Session, name: str) -> tuple[str, list[str]] | None:

@@ -5,6 +5,11 @@ unit: ``"outlet_pressure": {"value": 3000, "unit": "psi"}``. All or nothing: 201
 each pump's refreshed status, or 422 with every problem and nothing written. Problem rows count the posted
 objects from 1 (row 0: the request as a whole).
 
+Two optional keys are not readings columns (fleet.services.posted_readings): ``client_id``, the id the device
+gave the reading (text, at most 64 characters), so that sending again is safe: a repeat with the same values
+answers 200 with the stored reading and ``"repeat": true``, the same id with other values 409; and ``place``,
+``{"site": ..., "machine": ..., "position": ...}`` where the pump sat when it was read: 422 if it was moved since.
+
 Posting needs a technician or engineer: an API token (``Authorization: Bearer fleet_...``, made by
 ``fleet user token``) or a signed-in browser session that sends its CSRF token in an ``X-CSRFToken`` header.
 """
@@ -19,8 +24,7 @@ from fleet import units
 from fleet.io.columns import READINGS
 from fleet.io.parse import MAX_MAGNITUDE, ImportRejected, Problem
 from fleet.services.analysis import statuses
-from fleet.services.rounds import stored_readings
-from fleet.services.transfer.importing import import_table
+from fleet.services.posted_readings import ClientIdConflict, client_id_problem, place_problem, store_posted
 from fleet.services.users import mark_token_used
 from fleet.services.writes import perform
 from fleet.web.auth import requires, signed_in_user
@@ -172,27 +176,65 @@ def post_readings():
         return _problems_response([Problem(0, "", "the list holds no readings")])
     if len(items) > MAX_ITEMS:
         return _problems_response([Problem(0, "", f"at most {MAX_ITEMS} readings per request")], 413)
+    client_ids, places, problems = _device_keys(items)
+    if problems:
+        return _problems_response(problems, 400)
+    if repeated := _repeated_ids(client_ids):
+        return _problems_response(repeated)
     table, problems = readings_table(items)
     if problems:
         return _problems_response(problems)
     token_id = signed_in_user().token_id
 
     def work(db):
-        result = import_table(db, "readings", table, source="api")
+        result = store_posted(db, table, client_ids, places)
         if token_id is not None:
             mark_token_used(db, token_id)
         return result
 
     try:
         outcome = perform(sessions(), work)
-    except ImportRejected as rejected:
+    except (ImportRejected, ClientIdConflict) as rejected:
         # The importer counts rows as a spreadsheet does (header = row 1); here row 1 is the first object.
         return _problems_response([Problem(max(p.row - 1, 0), _field_name(p.column), p.reason)
-                                   for p in rejected.problems])
+                                   for p in rejected.problems], 409 if isinstance(rejected, ClientIdConflict) else 422)
     db = session()
     db.rollback()  # a fresh snapshot: this request's reads began before the write
-    return jsonify({"created": outcome.value.created, "readings": stored_readings(db, table),
-                    "pumps": statuses(db, outcome.value.pump_ids)}), 201
+    repeat = outcome.value.created == 0
+    return jsonify({"created": outcome.value.created, "repeat": repeat, "readings": outcome.value.readings,
+                    "pumps": statuses(db, outcome.value.pump_ids)}), 200 if repeat else 201
+
+
+def _device_keys(items: list) -> tuple[list, list, list[Problem]]:
+    """Take ``client_id`` and ``place`` out of each posted object (they are not readings columns)."""
+    client_ids, places, problems = [], [], []
+    for item_no, item in enumerate(items, start=1):
+        client_id = place = None
+        if isinstance(item, dict):
+            if "client_id" in item:
+                client_id = item.pop("client_id")
+                if reason := client_id_problem(client_id):
+                    problems.append(Problem(item_no, "client_id", reason))
+            if "place" in item:
+                place = item.pop("place")
+                if reason := place_problem(place):
+                    problems.append(Problem(item_no, "place", reason))
+        client_ids.append(client_id)
+        places.append(place)
+    return client_ids, places, problems
+
+
+def _repeated_ids(client_ids: list) -> list[Problem]:
+    first: dict[str, int] = {}
+    problems = []
+    for item_no, client_id in enumerate(client_ids, start=1):
+        if client_id is None:
+            continue
+        if client_id in first:
+            problems.append(Problem(item_no, "client_id", f"'{client_id}' is also the client_id of reading "
+                                    f"{first[client_id]} of this list: each reading needs its own"))
+        first.setdefault(client_id, item_no)
+    return problems
 
 
 def _field_name(column: str) -> str:

@@ -55,7 +55,7 @@ login_manager = LoginManager()
 csrf = CSRFProtect()
 
 # Reachable without signing in: the sign-in page itself and files every page loads.
-PUBLIC_ENDPOINTS = frozenset({"auth.login", "static", "assets.plotly_js"})
+PUBLIC_ENDPOINTS = frozenset({"auth.login", "static", "assets.plotly_js", "rounds.worker"})
 SAFE_METHODS = frozenset({"GET", "HEAD", "OPTIONS"})
 ROLE_WORDS = {"viewer": "a viewer", "technician": "a technician", "engineer": "an engineer"}
 

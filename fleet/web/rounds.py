@@ -5,16 +5,31 @@ checks first; doubtful values come back with the reasons and a "Save as typed" b
 back with every typed value kept. The unit chosen for each field is remembered in a cookie.
 """
 
+from pathlib import Path
 from urllib.parse import parse_qsl, urlencode
 
-from flask import Blueprint, abort, flash, make_response, redirect, render_template, request, url_for
+from flask import (
+    Blueprint,
+    Response,
+    abort,
+    current_app,
+    flash,
+    jsonify,
+    make_response,
+    redirect,
+    render_template,
+    request,
+    url_for,
+)
+from flask_wtf.csrf import generate_csrf
 
 from fleet import units
 from fleet.io.parse import ImportRejected
 from fleet.services import rounds
+from fleet.services.posted_readings import PLACE_PARTS
 from fleet.services.writes import perform
 from fleet.timeutil import utcnow
-from fleet.web.auth import current_actor, requires
+from fleet.web.auth import current_actor, requires, signed_in_user
 from fleet.web.db import session, sessions
 from fleet.web.lookup import pump_or_404
 from fleet.web.respond import TWIN_FORMATS, is_table_format, respond, twin_routes, twin_urls, wants_json
@@ -33,7 +48,10 @@ STOP_COLUMNS = ("number", "pump", "kind_label", "site", "machine", "position", "
 @twin_routes(bp, "/rounds")
 def index(fmt):
     data = rounds.route_list(session())
-    return respond(data, "rounds/index.html", fmt, "rows", ROUTE_COLUMNS, "routes")
+    if wants_json(fmt) or is_table_format(fmt):
+        return respond(data, "rounds/index.html", fmt, "rows", ROUTE_COLUMNS, "routes")
+    return render_template("rounds/index.html", twins=twin_urls_for_index(), keep_urls=[url_for("rounds.index")],
+                           rules_url=None, **data)
 
 
 @bp.post("/rounds")
@@ -49,7 +67,7 @@ def create():
         if wants_json(None):
             return {"problems": error.problems}, 422
         return render_template("rounds/index.html", twins=twin_urls_for_index(), errors=error.problems,
-                               form=form, **data), 422
+                               form=form, keep_urls=[], rules_url=None, **data), 422
     flash(f"Route '{route.name}' saved with {len(route.stops)} pump(s).", "info")
     return redirect(url_for("rounds.walk", route_id=route.id))
 
@@ -126,8 +144,18 @@ def _render_walk(data: dict, number: int, values: dict, chosen: dict, twins: dic
     doubts: dict[str, list[str]] = {}
     for doubt in (outcome.warnings if outcome else []):
         doubts.setdefault(doubt.field, []).append(doubt.message)
+    route_id = data["route"]["id"]
+    done_url = url_for("rounds.walk", route_id=route_id, stop=len(data["stops"]), done=1)
+    # What a device keeps for walking this route with no signal: every stop's page, the end, the rules.
+    keep_urls = [url_for("rounds.index")] + \
+        [url_for("rounds.walk", route_id=route_id, stop=s["number"]) for s in data["stops"]] + \
+        [done_url, url_for("rounds.rules", route_id=route_id)]
     return render_template(
-        "rounds/walk.html", twins=twins, **data, number=number, stop=stop, pump=pump,
+        "rounds/walk.html", twins=twins, **data, number=number, stop=stop, pump=pump, keep_urls=keep_urls,
+        rules_url=url_for("rounds.rules", route_id=route_id),
+        next_url=url_for("rounds.walk", route_id=route_id, stop=number + 1) if number < len(data["stops"])
+        else done_url,
+        place={part: stop[part] for part in PLACE_PARTS} if stop else None,
         fields=rounds.fields_for(pump) if pump else [], choices=units.CHOICES, stroke_unit=rounds.STROKE_UNIT,
         values=values, chosen=chosen, default_time=utcnow().strftime("%Y-%m-%dT%H:%M"), outcome=outcome,
         errors=errors, doubts=doubts, checked=checked, done=request.args.get("done") == "1",
@@ -138,6 +166,34 @@ def _render_walk(data: dict, number: int, values: dict, chosen: dict, twins: dic
 def _field_of(column: str) -> str:
     """The form field a problem's column names ('outlet_flow [gal/min]' -> 'outlet_flow')."""
     return units.parse_header(column)[0] if column else ""
+
+
+# --- the round form offline: its service worker, its rules as data, a fresh token ----------------------------
+
+@bp.route("/rounds-worker.js")
+def worker():
+    """The service worker, served from the site's root so that its scope may cover /rounds (a worker's scope
+    cannot reach above its own path). Public: a browser fetches it to update it, signed in or not."""
+    script = Path(current_app.static_folder, "rounds-worker.js").read_text(encoding="utf-8")
+    # no-cache: a new worker reaches phones on their next visit.
+    return Response(script, mimetype="text/javascript", headers={"Cache-Control": "no-cache"})
+
+
+@bp.route("/rounds/<int:route_id>/rules.json")
+def rules(route_id):
+    data = rounds.device_rules(session(), route_id)
+    if data is None:
+        abort(404, description="No such route.")
+    return jsonify(data)
+
+
+@bp.route("/rounds/session.json")
+def session_state():
+    """A fresh CSRF token for readings kept on a device: the token in a page cached hours ago may have expired."""
+    user = signed_in_user()
+    response = jsonify({"csrf_token": generate_csrf(), "user": user.name, "role": user.role})
+    response.headers["Cache-Control"] = "no-store"
+    return response
 
 
 # --- units remembered per browser --------------------------------------------------------------------------

@@ -1,0 +1,355 @@
+/* The round form with no signal.
+
+   With signal the form posts to the server as it does without script. With none, the checks that can run here
+   do (from the server's own rules, fetched as data from /rounds/<id>/rules.json), and the reading waits on this
+   device (IndexedDB) under an id made here. When the connection is back each waiting reading is sent to
+   POST /api/readings with that id as client_id, so sending twice never stores twice; the server's answer is
+   shown beside it. */
+(function () {
+  "use strict";
+
+  const app = document.getElementById("rounds-app");
+  if (!app) return;
+  const DB_NAME = "fleet-rounds";
+  const STORE = "readings";
+  const form = document.querySelector("form.reading-form");
+  let rules = null;
+  let sending = false;
+
+  // --- the one reader of typed numbers --------------------------------------------------------------------
+  // null for a blank cell, NaN for text that is not a number. A decimal comma ("120,5") is read only where the
+  // form says so (data-decimal-comma), so a change of convention is made here and nowhere else.
+  function readNumber(text, owner) {
+    let cell = String(text == null ? "" : text).trim();
+    if (cell === "") return null;
+    const comma = owner && owner.hasAttribute("data-decimal-comma")
+      && owner.getAttribute("data-decimal-comma") !== "false";
+    if (comma && cell.indexOf(",") >= 0 && cell.indexOf(".") < 0) cell = cell.replace(",", ".");
+    return /^[+-]?(\d+\.?\d*|\.\d+)([eE][+-]?\d+)?$/.test(cell) ? Number(cell) : NaN;
+  }
+
+  // --- the device's store ---------------------------------------------------------------------------------
+  function openStore() {
+    return new Promise((resolve, reject) => {
+      const request = indexedDB.open(DB_NAME, 1);
+      request.onupgradeneeded = () => request.result.createObjectStore(STORE, {keyPath: "client_id"});
+      request.onsuccess = () => resolve(request.result);
+      request.onerror = () => reject(request.error);
+    });
+  }
+
+  function withStore(mode, use) {
+    return openStore().then((db) => new Promise((resolve, reject) => {
+      const transaction = db.transaction(STORE, mode);
+      const result = use(transaction.objectStore(STORE));
+      transaction.oncomplete = () => { db.close(); resolve(result && "result" in result ? result.result : result); };
+      transaction.onerror = () => { db.close(); reject(transaction.error); };
+    }));
+  }
+
+  const allKept = () => withStore("readonly", (store) => store.getAll());
+  const keep = (record) => withStore("readwrite", (store) => store.put(record));
+  const forget = (clientId) => withStore("readwrite", (store) => store.delete(clientId));
+
+  function newId() {
+    if (crypto.randomUUID) return crypto.randomUUID();
+    const bytes = crypto.getRandomValues(new Uint8Array(16));
+    bytes[6] = (bytes[6] & 0x0f) | 0x40;
+    bytes[8] = (bytes[8] & 0x3f) | 0x80;
+    const hex = Array.from(bytes, (b) => b.toString(16).padStart(2, "0")).join("");
+    return `${hex.slice(0, 8)}-${hex.slice(8, 12)}-${hex.slice(12, 16)}-${hex.slice(16, 20)}-${hex.slice(20)}`;
+  }
+
+  // --- the checks that run here ---------------------------------------------------------------------------
+  function shown(value) {
+    return Number.isInteger(value) ? String(value) : String(Number(value.toPrecision(6)));
+  }
+
+  function utcOf(text) {  // the form's "YYYY-MM-DDTHH:MM", read as UTC like the server does
+    return /^\d{4}-\d{2}-\d{2}T\d{2}:\d{2}$/.test(text) ? new Date(text + ":00Z") : null;
+  }
+
+  function pad(n) { return String(n).padStart(2, "0"); }
+
+  function stamp(date) {
+    return `${date.getUTCFullYear()}-${pad(date.getUTCMonth() + 1)}-${pad(date.getUTCDate())} ` +
+      `${pad(date.getUTCHours())}:${pad(date.getUTCMinutes())}`;
+  }
+
+  function check(values, pumpRules) {
+    const problems = [];
+    const doubts = [];
+    const canonical = {};
+    const now = new Date();
+    const at = utcOf(values.taken_at);
+    if (!values.taken_at) problems.push({field: "taken_at", reason: "a value is required"});
+    else if (!at) problems.push({field: "taken_at", reason: `'${values.taken_at}' is not a date`});
+    else if (at - now > rules.future_tolerance_s * 1000) {
+      problems.push({field: "taken_at", reason: `${stamp(at)} is in the future`});
+    }
+    for (const name of pumpRules.fields) {
+      const spec = rules.fields[name];
+      const typed = values[name];
+      const number = readNumber(typed.text, form);
+      if (number === null) {
+        if (spec.required) problems.push({field: name, reason: "a value is required"});
+        continue;
+      }
+      if (Number.isNaN(number)) {
+        problems.push({field: name, reason: `'${typed.text.trim()}' is not a number`});
+        continue;
+      }
+      const [factor, offset] = spec.units[typed.unit] || [1, 0];
+      const value = factor * number + offset;
+      const bound = (limit) => (factor === 1 && offset === 0) ? `${shown(limit)} ${spec.canonical_unit}`.trim()
+        : `${shown((limit - offset) / factor)} ${typed.unit}`;
+      let ok = true;
+      if (spec.positive && value <= 0) { problems.push({field: name, reason: `${typed.text.trim()} must be above zero`}); ok = false; }
+      if (spec.min !== null && value < spec.min - 1e-9) {
+        problems.push({field: name, reason: `${typed.text.trim()} is below the lowest allowed value (${bound(spec.min)})`});
+        ok = false;
+      }
+      if (spec.max !== null && value > spec.max + 1e-9) {
+        problems.push({field: name, reason: `${typed.text.trim()} is above the highest allowed value (${bound(spec.max)})`});
+        ok = false;
+      }
+      if (ok) canonical[name] = value;
+    }
+    // The doubts of fleet.services.rounds.plausibility_warnings, on the values that passed.
+    if ("speed" in canonical && "outlet_flow" in canonical) {
+      const theoretical = pumpRules.flow_per_rpm_lpm * canonical.speed * ("stroke" in canonical ? canonical.stroke : 1);
+      if (canonical.outlet_flow > theoretical) {
+        doubts.push({field: "outlet_flow", message: `Outlet flow ${canonical.outlet_flow.toFixed(1)} L/min is above the ` +
+          `theoretical ${theoretical.toFixed(1)} L/min at ${canonical.speed.toFixed(0)} rpm: a pump cannot deliver ` +
+          "more than its displacement."});
+      }
+    }
+    if ("outlet_pressure" in canonical && canonical.outlet_pressure > pumpRules.rated_pressure_bar) {
+      doubts.push({field: "outlet_pressure", message: `Outlet pressure ${canonical.outlet_pressure.toFixed(1)} bar is ` +
+        `above the rated ${pumpRules.rated_pressure_bar.toFixed(0)} bar.`});
+    }
+    if ("oil_temp" in canonical) {
+      const t = canonical.oil_temp;
+      if (t < pumpRules.oil_temp_min_c || t > pumpRules.oil_temp_max_c) {
+        doubts.push({field: "oil_temp", message: `Oil temperature ${t.toFixed(1)} °C is outside this pump's limits ` +
+          `(${pumpRules.oil_temp_min_c.toFixed(0)}–${pumpRules.oil_temp_max_c.toFixed(0)} °C).`,
+        caution: t > pumpRules.oil_temp_max_c ? rules.hot_oil_caution : null});
+      }
+    }
+    if ("hours" in canonical && pumpRules.last_hours !== null && canonical.hours < pumpRules.last_hours) {
+      doubts.push({field: "hours", message: `Running hours ${canonical.hours.toFixed(0)} h are below the last ` +
+        `reading's ${pumpRules.last_hours.toFixed(0)} h (${(pumpRules.last_taken_at || "").slice(0, 10)}): is it ` +
+        "the right pump or a new hour meter?"});
+    }
+    if (at && at > now) {
+      doubts.push({field: "taken_at", message: `The time ${stamp(at)} is later than now (${stamp(now)} UTC).`});
+    }
+    return {problems, doubts};
+  }
+
+  // --- showing a check's outcome, every problem at once ----------------------------------------------------
+  function element(tag, text, attributes) {
+    const node = document.createElement(tag);
+    if (text) node.textContent = text;
+    Object.entries(attributes || {}).forEach(([key, value]) => node.setAttribute(key, value));
+    return node;
+  }
+
+  function showOutcome(outcome, action) {
+    const box = document.getElementById("device-check");
+    box.replaceChildren();
+    form.querySelectorAll(".device-note").forEach((note) => note.remove());
+    form.querySelectorAll(".field").forEach((f) => f.classList.remove("has-error", "has-doubt"));
+    const mark = (field, text, kind) => {
+      const input = document.getElementById(`f-${field}`);
+      if (!input) return;
+      const holder = input.closest(".field");
+      holder.classList.add(kind);
+      holder.appendChild(element("p", text, {class: "field-note device-note"}));
+    };
+    if (outcome.problems.length) {
+      const notice = element("div", null, {class: "notice notice-error", role: "alert", id: "device-errors"});
+      notice.appendChild(element("p", "Not kept. Please correct:"));
+      const list = element("ul");
+      outcome.problems.forEach((p) => {
+        list.appendChild(element("li", `${p.field.replace(/_/g, " ")}: ${p.reason}`));
+        mark(p.field, p.reason, "has-error");
+      });
+      notice.appendChild(list);
+      box.appendChild(notice);
+    }
+    if (outcome.doubts.length) {
+      const notice = element("div", null, {class: "notice notice-doubt", role: "alert", id: "device-doubts"});
+      notice.appendChild(element("p", "Please look again before saving. These values are possible but unusual:"));
+      const list = element("ul");
+      outcome.doubts.forEach((d) => { list.appendChild(element("li", d.message)); mark(d.field, d.message, "has-doubt"); });
+      notice.appendChild(list);
+      new Set(outcome.doubts.map((d) => d.caution).filter(Boolean)).forEach((caution) => {
+        notice.appendChild(element("p", `Caution: ${caution}`, {class: "caution-line", role: "note"}));
+      });
+      box.appendChild(notice);
+    }
+    if (!outcome.problems.length && !outcome.doubts.length && action === "check") {
+      box.appendChild(element("p", "All values look plausible. Nothing kept yet.", {class: "notice", role: "status"}));
+    }
+    const confirm = form.querySelector("[data-offline-confirm]");
+    if (confirm) confirm.hidden = !(outcome.doubts.length && !outcome.problems.length);
+  }
+
+  // --- keeping a reading here -----------------------------------------------------------------------------
+  function typedValues(pumpRules) {
+    const values = {taken_at: form.elements.taken_at.value.trim()};
+    for (const name of pumpRules.fields) {
+      const unitInput = form.elements[`${name}_unit`];
+      values[name] = {text: form.elements[name].value, unit: unitInput ? unitInput.value : "%"};
+    }
+    return values;
+  }
+
+  function postedBody(values, pumpRules) {
+    const body = {pump: form.dataset.pump, taken_at: values.taken_at.replace("T", " "),
+      place: JSON.parse(form.dataset.place)};
+    for (const name of pumpRules.fields) {
+      const number = readNumber(values[name].text, form);
+      if (number !== null) body[name] = {value: number, unit: values[name].unit};
+    }
+    const note = form.elements.note.value.trim();
+    const takenBy = form.elements.taken_by.value.trim();
+    if (note) body.note = note;
+    if (takenBy) body.taken_by = takenBy;
+    return body;
+  }
+
+  function keepOffline(action) {
+    const pumpRules = rules && rules.pumps[form.dataset.pump];
+    if (!pumpRules) {
+      showOutcome({problems: [{field: "taken_at", reason: "this route's rules are not kept on this device: open " +
+        "the route once with signal"}], doubts: []}, action);
+      return;
+    }
+    // A reading of this pump still waiting here is its latest: the hour meter is compared with it too.
+    allKept().then((records) => {
+      const latest = {...pumpRules};
+      records.filter((r) => r.pump === form.dataset.pump && r.state === "waiting" && r.body.hours
+                     && r.body.hours.unit === "h" && (latest.last_hours === null || r.body.hours.value > latest.last_hours))
+        .forEach((r) => { latest.last_hours = r.body.hours.value; latest.last_taken_at = r.body.taken_at; });
+      const values = typedValues(pumpRules);
+      const outcome = check(values, latest);
+      showOutcome(outcome, action);
+      if (action === "check" || outcome.problems.length || (outcome.doubts.length && action !== "confirm")) return null;
+      const record = {client_id: newId(), route: rules.route, stop: Number(form.dataset.stop), pump: form.dataset.pump,
+        state: "waiting", verdict: "", kept_at: new Date().toISOString(), body: postedBody(values, pumpRules)};
+      return keep(record).then(() => { window.location.href = form.dataset.nextUrl; });
+    });
+  }
+
+  // --- sending what waits ---------------------------------------------------------------------------------
+  function verdictOf(status, data) {
+    if (status === 201) return ["stored", "stored"];
+    if (status === 200 && data.repeat) return ["stored", "stored (it had reached the server before)"];
+    const reasons = (data.problems || []).map((p) => (p.column ? `${p.column.replace(/_/g, " ")}: ` : "") + p.reason);
+    return ["refused", `refused by the server: ${reasons.join("; ") || `answer ${status}`}`];
+  }
+
+  async function sendWaiting() {
+    if (sending || !navigator.onLine) return;
+    sending = true;
+    try {
+      const waiting = (await allKept()).filter((r) => r.state === "waiting");
+      if (!waiting.length) return;
+      const answer = await fetch(app.dataset.sessionUrl, {credentials: "same-origin", cache: "no-store"});
+      if (!answer.ok || answer.redirected) {
+        showQueueNote("Sign in again to send the readings waiting here; they stay on this device.");
+        return;
+      }
+      const who = await answer.json();
+      for (const record of waiting) {
+        const body = {...record.body, client_id: record.client_id};
+        if (!body.taken_by) body.taken_by = who.user;
+        let response;
+        try {
+          response = await fetch(app.dataset.apiUrl, {method: "POST", credentials: "same-origin",
+            headers: {"Content-Type": "application/json", "X-CSRFToken": who.csrf_token}, body: JSON.stringify(body)});
+        } catch (lost) {
+          break;  // the signal went again: the rest wait for the next try
+        }
+        if (response.status === 401 || response.status === 403 || response.status >= 500) {
+          showQueueNote(`The server did not take the readings (answer ${response.status}); they wait here.`);
+          break;
+        }
+        const [state, verdict] = verdictOf(response.status, await response.json().catch(() => ({})));
+        await keep({...record, state, verdict, sent_at: new Date().toISOString()});
+        await showQueue();
+      }
+    } finally {
+      sending = false;
+      await showQueue();
+    }
+  }
+
+  function showQueueNote(text) {
+    const note = document.getElementById("device-queue-note");
+    if (note) note.textContent = text;
+  }
+
+  const STATE_WORDS = {waiting: "waiting to send", stored: "sent", refused: "not stored"};
+
+  async function showQueue() {
+    const section = document.getElementById("device-queue");
+    if (!section) return;
+    const records = (await allKept()).filter((r) => !rules || r.route === rules.route || !rules.route)
+      .sort((a, b) => a.kept_at.localeCompare(b.kept_at));
+    const list = section.querySelector("ol");
+    list.replaceChildren();
+    for (const record of records) {
+      const item = element("li", null, {"data-state": record.state, "data-client-id": record.client_id});
+      item.appendChild(element("strong", `${record.pump} · ${record.body.taken_at}`));
+      item.appendChild(element("span", ` · ${STATE_WORDS[record.state]}`, {class: "queue-state"}));
+      if (record.verdict && record.verdict !== "stored") item.appendChild(element("span", ` · ${record.verdict}`));
+      if (record.state !== "waiting") {
+        const drop = element("button", "Remove from this list", {type: "button", class: "quiet"});
+        drop.addEventListener("click", () => forget(record.client_id).then(showQueue));
+        item.appendChild(drop);
+      }
+      list.appendChild(item);
+    }
+    section.hidden = records.length === 0;
+  }
+
+  // --- keeping this route's pages while there is signal ---------------------------------------------------
+  function keepPages() {
+    if (!("serviceWorker" in navigator)) return;
+    navigator.serviceWorker.register(app.dataset.workerUrl, {scope: app.dataset.scope}).catch(() => null);
+    if (!navigator.onLine) return;
+    const urls = JSON.parse(app.dataset.keep || "[]");
+    navigator.serviceWorker.ready.then((registration) => {
+      const channel = new MessageChannel();
+      channel.port1.onmessage = (event) => {
+        app.dataset.kept = String(event.data.kept);
+        const status = document.getElementById("device-kept");
+        if (status && event.data.kept === event.data.asked) {
+          status.textContent = "This route is kept on this device: it opens, and takes readings, with no signal.";
+        }
+      };
+      registration.active.postMessage({keep: urls}, [channel.port2]);
+    });
+  }
+
+  // --- start ------------------------------------------------------------------------------------------------
+  keepPages();
+  if (app.dataset.rulesUrl) {
+    fetch(app.dataset.rulesUrl, {credentials: "same-origin"}).then((r) => (r.ok && !r.redirected ? r.json() : null))
+      .then((data) => { rules = data; return showQueue(); }).then(sendWaiting).catch(() => showQueue());
+  } else {
+    showQueue().then(sendWaiting);
+  }
+  if (form) {
+    form.addEventListener("submit", (event) => {
+      if (navigator.onLine) return;  // with signal the server checks and saves, as without script
+      event.preventDefault();
+      keepOffline(event.submitter ? event.submitter.value : "save");
+    });
+  }
+  window.addEventListener("online", sendWaiting);
+  window.setInterval(sendWaiting, 30000);
+}());

@@ -1,0 +1,152 @@
+"""In headless Chromium with no signal: a route opened before still opens, takes two readings that wait on the
+device, survives a reload, and once the connection is back each reading is stored exactly once."""
+
+import pytest
+from sqlalchemy import func, select
+
+from fleet.db.models import Installation, Position, Pump, Reading
+
+pytestmark = pytest.mark.browser
+
+FIRST, SECOND = "EY-104", "EY-105"  # invented demo plant: an internal gear and a vane pump
+
+
+def _facts(demo_db, serial, extra_hours=9):
+    with demo_db.sessions() as session:
+        pump = session.scalar(select(Pump).where(Pump.serial == serial))
+        hours = session.scalar(select(func.max(Reading.hours)).where(Reading.pump_id == pump.id))
+        return {"hours": f"{hours + extra_hours:.1f}", "outlet_pressure": f"{0.8 * pump.rated_pressure_bar:.1f}",
+                "speed": f"{pump.rated_speed_rpm:.0f}",
+                "outlet_flow": f"{0.9 * pump.displacement_cc * pump.rated_speed_rpm / 1000:.2f}", "oil_temp": "48"}
+
+
+def _stored(demo_db, serial, hours: str) -> list[tuple]:
+    with demo_db.sessions() as session:
+        return session.execute(select(Reading.client_id, Reading.source).join(Pump, Pump.id == Reading.pump_id)
+                               .where(Pump.serial == serial, Reading.hours == float(hours))).all()
+
+
+def _fill(page, values: dict) -> None:
+    for name, value in values.items():
+        page.fill(f"#f-{name}", value)
+
+
+def test_two_readings_taken_with_no_signal_are_stored_once_when_it_returns(live_app, page, context, base_url,
+                                                                            demo_db, artifacts, browser_login):
+    browser_login("technician")
+    page.goto(base_url + "/rounds")
+    page.fill("#route-name", "Walk with no signal")
+    page.fill("#route-pumps", f"{FIRST}\n{SECOND}")
+    page.click("text=Save route")
+    page.wait_for_selector(f"text=Stop 1 of 2: pump {FIRST}")
+    # The worker has kept every page of the route on the device.
+    page.wait_for_selector("#device-kept:has-text('kept on this device')", timeout=20000)
+    walk_url = page.url.split("?")[0]
+
+    context.set_offline(True)
+    # Proof the worker's own fetches are cut too: a page never opened answers from the device, not the server.
+    page.goto(base_url + "/rounds/999999")
+    assert page.is_visible("text=No signal, and this page was not opened here before")
+    page.goto(walk_url + "?stop=1")
+    page.wait_for_selector(f"text=Stop 1 of 2: pump {FIRST}")
+
+    # Two problems at once, checked on the device from the server's rules: nothing kept.
+    first = _facts(demo_db, FIRST)
+    _fill(page, {**first, "speed": "abc", "oil_temp": "400"})
+    page.click("button[value=save]")
+    page.wait_for_selector("#device-errors")
+    errors = page.inner_text("#device-errors")
+    assert "'abc' is not a number" in errors and "400 is above the highest allowed value (150 degC)" in errors
+    page.screenshot(path=str(artifacts / "offline-round-problems.png"), full_page=True)
+
+    _fill(page, first)
+    page.click("button[value=save]")
+    page.wait_for_selector(f"text=Stop 2 of 2: pump {SECOND}")
+    page.wait_for_selector("#device-queue li[data-state=waiting]")
+
+    second = _facts(demo_db, SECOND, extra_hours=11)
+    _fill(page, second)
+    page.click("button[value=save]")
+    page.wait_for_selector("#complete-title")
+    assert page.locator("form.reading-form").count() == 0  # 'Round complete' replaces the form
+
+    page.reload()  # still no signal: the page and its waiting readings come from the device
+    page.wait_for_selector("#device-queue li[data-state=waiting] >> nth=1")
+    assert page.locator("#device-queue li[data-state=waiting]").count() == 2
+    assert "waiting to send" in page.inner_text("#device-queue")
+    assert _stored(demo_db, FIRST, first["hours"]) == [] and _stored(demo_db, SECOND, second["hours"]) == []
+    page.screenshot(path=str(artifacts / "offline-round-waiting.png"), full_page=True)
+
+    context.set_offline(False)
+    page.wait_for_selector("#device-queue li[data-state=stored] >> nth=1", timeout=30000)
+    assert page.locator("#device-queue li[data-state=waiting]").count() == 0
+    page.screenshot(path=str(artifacts / "offline-round-sent.png"), full_page=True)
+    one, two = _stored(demo_db, FIRST, first["hours"]), _stored(demo_db, SECOND, second["hours"])
+    assert len(one) == 1 and len(two) == 1
+    assert one[0].client_id and two[0].client_id and one[0].client_id != two[0].client_id
+    assert one[0].source == "api"
+
+    # A second page sending again (another tab, a reload mid-send) stores nothing twice.
+    statuses = page.evaluate("""async () => {
+      const token = (await (await fetch('/rounds/session.json')).json()).csrf_token;
+      const kept = await new Promise((resolve) => {
+        const open = indexedDB.open('fleet-rounds', 1);
+        open.onsuccess = () => { const get = open.result.transaction('readings').objectStore('readings').getAll();
+                                 get.onsuccess = () => resolve(get.result); };
+      });
+      return Promise.all(kept.map((r) => fetch('/api/readings', {method: 'POST',
+        headers: {'Content-Type': 'application/json', 'X-CSRFToken': token},
+        body: JSON.stringify({...r.body, client_id: r.client_id, taken_by: 'test-technician'})})
+        .then((response) => response.status)));
+    }""")
+    assert statuses == [200, 200]  # answered as repeats
+    assert len(_stored(demo_db, FIRST, first["hours"])) == 1 and len(_stored(demo_db, SECOND, second["hours"])) == 1
+
+
+def test_the_device_reads_a_decimal_comma_only_where_the_form_allows_it(live_app, page, context, base_url, demo_db,
+                                                                        browser_login):
+    browser_login("technician")
+    page.goto(base_url + "/rounds")
+    page.fill("#route-name", "Comma walk")
+    page.fill("#route-pumps", FIRST)
+    page.click("text=Save route")
+    page.wait_for_selector("#device-kept:has-text('kept on this device')", timeout=20000)
+    context.set_offline(True)
+    values = _facts(demo_db, FIRST)
+    _fill(page, {**values, "oil_temp": "48,5"})
+    page.click("button[value=check]")
+    page.wait_for_selector("#device-errors")
+    assert "oil temp: '48,5' is not a number" in page.inner_text("#device-errors")  # the default: no comma
+    page.evaluate("() => document.querySelector('form.reading-form').setAttribute('data-decimal-comma', '')")
+    page.click("button[value=check]")
+    page.wait_for_selector("text=All values look plausible. Nothing kept yet.")
+    assert page.locator("#device-errors").count() == 0
+    assert _stored(demo_db, FIRST, values["hours"]) == []  # 'Check only' keeps nothing, here or on the server
+    assert page.locator("#device-queue li").count() == 0
+
+
+def test_the_servers_verdict_on_a_kept_reading_is_shown(live_app, page, context, base_url, demo_db, browser_login):
+    """A reading kept with no signal of a pump that the register moved meanwhile is refused, and the device says
+    why and keeps it listed."""
+    browser_login("technician")
+    page.goto(base_url + "/rounds")
+    page.fill("#route-name", "Verdict walk")
+    page.fill("#route-pumps", FIRST)
+    page.click("text=Save route")
+    page.wait_for_selector("#device-kept:has-text('kept on this device')", timeout=20000)
+    context.set_offline(True)
+    values = _facts(demo_db, FIRST)
+    _fill(page, values)
+    page.click("button[value=save]")
+    page.wait_for_selector("#device-queue li[data-state=waiting]")
+    with demo_db.sessions() as session, session.begin():  # meanwhile the pump goes to another position
+        installation = session.scalar(select(Installation).join(Pump, Pump.id == Installation.pump_id)
+                                      .where(Pump.serial == FIRST, Installation.removed_at.is_(None)))
+        installation.position_id = session.scalar(select(Position.id).where(Position.id != installation.position_id)
+                                                  .limit(1))
+    context.set_offline(False)
+    page.wait_for_selector("#device-queue li[data-state=refused]", timeout=30000)
+    verdict = page.inner_text("#device-queue li[data-state=refused]")
+    assert "not stored" in verdict and f"pump {FIRST} was moved" in verdict
+    assert page.is_visible("#device-queue li[data-state=refused] button:has-text('Remove from this list')")
+    assert _stored(demo_db, FIRST, values["hours"]) == []
