@@ -122,6 +122,8 @@ def import_(db: Database, kind: str, file: Path, no_analysis: bool) -> None:
         click.echo(rejected.report(), err=True)
         sys.exit(1)
     click.echo(outcome.value.summary())
+    for line in outcome.value.doubt_lines():
+        click.echo(line)
     if outcome.refresh:
         click.echo(outcome.describe())
     elif no_analysis and outcome.pumps:

@@ -2,8 +2,9 @@
 
 The body is one JSON object or a list of them, keyed by the readings CSV column names. A number may carry its
 unit: ``"outlet_pressure": {"value": 3000, "unit": "psi"}``. All or nothing: 201 with the stored readings and
-each pump's refreshed status, or 422 with every problem and nothing written. Problem rows count the posted
-objects from 1 (row 0: the request as a whole).
+each pump's refreshed status and the doubts worth a second look (an hour meter gone backwards or faster than
+the clock: ``{"row", "field", "code", "message"}``), or 422 with every problem and nothing written. Problem rows
+count the posted objects from 1 (row 0: the request as a whole).
 
 Posting needs a technician or engineer: an API token (``Authorization: Bearer fleet_...``, made by
 ``fleet user token``) or a signed-in browser session that sends its CSRF token in an ``X-CSRFToken`` header.
@@ -191,8 +192,10 @@ def post_readings():
                                    for p in rejected.problems])
     db = session()
     db.rollback()  # a fresh snapshot: this request's reads began before the write
+    # Doubts (fleet.io.meter) are stored readings worth a second look; rows count the posted objects from 1.
+    doubts = [{**doubt, "row": doubt["row"] - 1} for doubt in outcome.value.doubts]
     return jsonify({"created": outcome.value.created, "readings": stored_readings(db, table),
-                    "pumps": statuses(db, outcome.value.pump_ids)}), 201
+                    "pumps": statuses(db, outcome.value.pump_ids), "doubts": doubts}), 201
 
 
 def _field_name(column: str) -> str:
