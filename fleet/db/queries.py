@@ -2,7 +2,7 @@
 
 from dataclasses import dataclass
 
-from sqlalchemy import Select, select
+from sqlalchemy import Select, func, select
 from sqlalchemy.orm import Session
 
 from fleet.db.models import Installation, Machine, Position, Pump, Site
@@ -53,3 +53,9 @@ def pumps_on_machine(session: Session, machine_id: int | None, ever: bool = Fals
     if not ever:
         statement = statement.where(Installation.removed_at.is_(None))
     return sorted(set(session.scalars(statement)))
+
+
+def serials_any_case(session: Session, serial: str) -> list[str]:
+    """Serials equal to ``serial`` but for letter case (a URL typed in lower case), in order."""
+    return list(session.scalars(select(Pump.serial).where(func.lower(Pump.serial) == serial.lower())
+                                .order_by(Pump.serial)))

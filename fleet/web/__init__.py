@@ -58,6 +58,9 @@ def create_app(test_config: dict | None = None) -> Flask:
     app.register_blueprint(account.bp)
     app.register_blueprint(outbox.bp)
     app.register_blueprint(forecasts.bp)
+    from fleet.web import find
+
+    app.register_blueprint(find.bp)
 
     @app.context_processor
     def navigation():
