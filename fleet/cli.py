@@ -268,6 +268,7 @@ COMMAND_MODULES: tuple[str, ...] = (
     "fleet.commands.backup",
     "fleet.commands.mail",
     "fleet.commands.forecasts",
+    "fleet.commands.readings",
 )
 for _module in COMMAND_MODULES:
     importlib.import_module(_module).register(main)
