@@ -49,6 +49,7 @@ def reading_page(session: Session, serial: str, reading_id: int, role: str, name
         "pump": serial, "reading_id": reading.id, "taken_at": reading.taken_at.isoformat(sep=" ", timespec="minutes"),
         "taken_by": reading.taken_by, "source": reading.source, "fields": fields,
         "corrections": corrections_of(session, reading.id), "may_correct": refusal is None, "why_not": refusal,
+        "labels": _LABELS,
     })
 
 
