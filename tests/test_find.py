@@ -95,6 +95,9 @@ def test_serials_in_urls_match_regardless_of_case(client):
     twin = client.get("/pumps/ey-104.json")
     assert twin.status_code == 301 and twin.headers["Location"].endswith("/pumps/EY-104.json")
     assert client.get("/pumps/EY-104").status_code == 200
+    reading = client.get("/pumps/EY-104.json").get_json()["readings"][0]["reading_id"]
+    deep = client.get(f"/pumps/ey-104/readings/{reading}")
+    assert deep.status_code == 301 and deep.headers["Location"].endswith(f"/pumps/EY-104/readings/{reading}")
     assert client.get("/pumps/no-such-pump").status_code == 404
 
 

@@ -6,6 +6,7 @@ corrections, so an untouched field never counts as one.
 
 from flask import Blueprint, abort, flash, redirect, render_template, request, url_for
 
+from fleet.db.queries import serials_any_case
 from fleet.services.corrections import CORRECTABLE, CorrectionRefused, correct_reading
 from fleet.services.pages.reading import CORRECTION_COLUMNS, reading_page
 from fleet.services.writes import perform
@@ -27,6 +28,10 @@ def _page_data(serial: str, reading_id: int) -> dict:
 
 @twin_routes(bp, "/pumps/<path:serial>/readings/<int:reading_id>")
 def page(serial, reading_id, fmt):
+    canonical = serials_any_case(session(), serial)
+    if serial not in canonical and len(canonical) == 1:  # the serial in any letter case, as the pump page
+        args = {"fmt": fmt} if fmt else {}
+        return redirect(url_for("corrections.page", serial=canonical[0], reading_id=reading_id, **args), 301)
     data = _page_data(serial, reading_id)
     return respond(data, "pumps/reading.html", fmt, "corrections", CORRECTION_COLUMNS, f"reading-{reading_id}")
 
