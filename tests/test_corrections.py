@@ -6,6 +6,8 @@ from datetime import timedelta
 
 import pytest
 from click.testing import CliRunner
+from hypothesis import HealthCheck, given, settings
+from hypothesis import strategies as st
 from sqlalchemy import select
 
 from fleet.cli import main
@@ -189,3 +191,21 @@ def test_the_weekly_review_lists_the_corrections_with_reasons(client, demo_db):
     assert corrected[0]["changes"] == [{"field": "hours", "before": hours, "after": hours + 3}]
     html = client.get("/review").get_data(as_text=True)
     assert "meter re-read" in html and f"{hours} → {hours + 3}" in html
+
+
+_json_values = st.recursive(
+    st.none() | st.booleans() | st.integers(-10**30, 10**30) | st.floats(allow_nan=True) | st.text(max_size=12),
+    lambda inner: st.lists(inner, max_size=3) | st.dictionaries(st.text(max_size=6), inner, max_size=3),
+    max_leaves=6,
+)
+_fields = st.sampled_from(["hours", "outlet_pressure", "speed", "outlet_flow", "case_drain_flow", "oil_temp",
+                           "stroke", "note", "reason", "pump", "taken_at", "id", "unit", "value"])
+
+
+@settings(max_examples=40, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
+@given(body=st.dictionaries(_fields, _json_values, max_size=6) | _json_values)
+def test_hostile_correction_bodies_never_cause_a_server_error(client, demo_db, body):
+    response = client.patch("/api/readings/1", json=body)
+    assert response.status_code in (200, 400, 403, 404, 422) and response.is_json
+    if response.status_code != 200:
+        assert response.get_json()["problems"]
