@@ -122,6 +122,8 @@ def import_(db: Database, kind: str, file: Path, no_analysis: bool) -> None:
         click.echo(rejected.report(), err=True)
         sys.exit(1)
     click.echo(outcome.value.summary())
+    for line in outcome.value.doubt_lines():
+        click.echo(line)
     if outcome.refresh:
         click.echo(outcome.describe())
     elif no_analysis and outcome.pumps:
@@ -266,6 +268,7 @@ COMMAND_MODULES: tuple[str, ...] = (
     "fleet.commands.backup",
     "fleet.commands.mail",
     "fleet.commands.forecasts",
+    "fleet.commands.readings",
 )
 for _module in COMMAND_MODULES:
     importlib.import_module(_module).register(main)

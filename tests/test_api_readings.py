@@ -39,8 +39,8 @@ def test_one_reading_with_units_is_stored_and_the_pump_reanalysed(client, demo_d
     response = client.post("/api/readings", json=body)
     assert response.status_code == 201
     data = response.get_json()
-    assert set(data) == {"created", "repeat", "readings", "pumps"} and data["created"] == 1
-    assert data["repeat"] is False
+    assert set(data) == {"created", "repeat", "readings", "pumps", "doubts"} and data["created"] == 1
+    assert data["repeat"] is False and data["doubts"] == []
     assert set(data["readings"][0]) == {"id", "pump", "taken_at", "client_id", "repeat"}
     assert set(data["pumps"][0]) == {"pump", "status", "reasons", "eta_v_ref", "hours_to_limit", "limit_date"}
     assert data["pumps"][0]["pump"] == FIXED and data["pumps"][0]["status"] in {"past_limit", "due_soon", "watch",

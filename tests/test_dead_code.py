@@ -6,7 +6,7 @@ from pathlib import Path
 
 ROOT = Path(__file__).resolve().parents[1]
 FRAMEWORK_DECORATORS = ("@bp.route,@bp.post,@twin_routes,@click.command,@main.command,@user_group.command,"
-                        "@group.command,@login_manager.user_loader,@app.context_processor,@requires")
+                        "@group.command,@reading.command,@login_manager.user_loader,@app.context_processor,@requires")
 
 
 def test_vulture_finds_no_unused_code():

@@ -44,9 +44,10 @@ class Write:
     path: str
     body: Callable[[], dict]  # keyword arguments of client.post; a function, since a file can be read only once
     succeeds_with: int
+    method: str = "POST"
 
     def send(self, client, **extra):
-        return client.post(self.path, **self.body(), **extra)
+        return client.open(self.path, method=self.method, **self.body(), **extra)
 
 
 def write_table(demo_db) -> list[Write]:
@@ -85,6 +86,13 @@ def write_table(demo_db) -> list[Write]:
                          next_attempt_at=utcnow() + timedelta(minutes=30), last_error="invented: server down"))
         s.flush()
         follow_id = follow.id
+        # A reading the technician took an hour ago, which they may still correct.
+        own = Reading(pump_id=gear.id, taken_at=(utcnow() - timedelta(hours=1)).replace(microsecond=0),
+                      hours=last["EY-101"] + 1, pressure_bar=0.8 * gear.rated_pressure_bar,
+                      speed_rpm=gear.rated_speed_rpm, temp_c=50.0, taken_by="test-technician", source="form")
+        s.add(own)
+        s.flush()
+        own_id, own_hours = own.id, own.hours
         round_form = {"taken_at": (utcnow() - timedelta(minutes=20)).strftime("%Y-%m-%dT%H:%M"),
                       "hours": f"{last['EY-105'] + 12:.1f}", "outlet_pressure": f"{0.8 * vane.rated_pressure_bar:.1f}",
                       "speed": f"{vane.rated_speed_rpm:.0f}",
@@ -105,6 +113,10 @@ def write_table(demo_db) -> list[Write]:
               lambda: {"data": round_form}, 302),
         Write("a reading by the API", "api.post_readings", "technician", "/api/readings",
               lambda: {"json": api_reading}, 201),
+        Write("a reading's correction", "corrections.correct", "technician", f"/pumps/EY-101/readings/{own_id}",
+              lambda: {"data": {"hours": f"{own_hours + 0.5}", "reason": "one digit typed wrong (invented)"}}, 302),
+        Write("a reading's correction by the API", "api.correct_reading_api", "technician", f"/api/readings/{own_id}",
+              lambda: {"json": {"oil_temp": 51, "reason": "gauge read again (invented)"}}, 200, "PATCH"),
         Write("a lab result", "register.new", "technician", "/register/sample/new",
               lambda: {"data": {"machine_id": str(machine_id), "sampled_at": moment, "iso4406": "18/16/13"}}, 302),
         Write("a maintenance event", "register.new", "engineer", "/register/event/new",

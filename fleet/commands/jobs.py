@@ -106,8 +106,9 @@ def review_text(data: dict) -> str:
     for item in data["readings_corrected"]:
         changed = "; ".join(f"{c['field']} {c['before']} -> {c['after']}" for c in item["changes"])
         when = item["at"][:16].replace("T", " ")
+        why = f"; reason: {item['reason']}" if item["reason"] else ""
         lines.append(_wrap(f"{item['pump']:<12} reading of {item['taken_at']}, corrected {when} by {item['by']}: "
-                           f"{changed}", indent="  "))
+                           f"{changed}{why}", indent="  "))
     lines.append(f"\nRounds missed ({counts['round_missed']})")
     for item in data["rounds_missed"]:
         lines.append(f"  {item['pump']:<12} last reading {str(item['last_reading_at'])[:10]}, due "

@@ -31,6 +31,8 @@ WHAT = {"reading": "reading", "maintenance_event": "maintenance event", "oil_sam
         "pump": "pump", "flow_test_point": "flow-test point"}
 
 _actor: contextvars.ContextVar[str | None] = contextvars.ContextVar("fleet_actor", default=None)
+# Why the records flushed now are changed (a correction must say why); kept in each record of the flush.
+_reason: contextvars.ContextVar[str | None] = contextvars.ContextVar("fleet_audit_reason", default=None)
 
 
 def _os_user() -> str:
@@ -61,6 +63,16 @@ def acting_as(name: str) -> Iterator[None]:
         yield
     finally:
         _actor.reset(token)
+
+
+@contextlib.contextmanager
+def because(reason: str) -> Iterator[None]:
+    """Record ``reason`` with every change flushed inside the block."""
+    token = _reason.set(reason)
+    try:
+        yield
+    finally:
+        _reason.reset(token)
 
 
 # --- values as JSON and back -------------------------------------------------------------------------------
@@ -131,7 +143,7 @@ def _before_flush(session: Session, _flush_context, _instances) -> None:
         if before == after:
             continue
         session.add(AuditRecord(at=now, actor=actor, action="update", table_name=obj.__tablename__,
-                                row_id=before["id"], before=before, after=after))
+                                row_id=before["id"], before=before, after=after, reason=_reason.get()))
 
 
 def install() -> None:

@@ -432,6 +432,7 @@ class AuditRecord(Base):
     after: Mapped[dict[str, Any] | None] = mapped_column(JSON)
     restored_at: Mapped[datetime | None] = mapped_column(DateTime)
     restored_by: Mapped[str | None] = mapped_column(String(120))
+    reason: Mapped[str | None] = mapped_column(Text)  # why a correction was made (required of a reading's)
 
 
 class Follow(Base):

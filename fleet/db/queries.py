@@ -2,10 +2,10 @@
 
 from dataclasses import dataclass
 
-from sqlalchemy import Select, select
+from sqlalchemy import Select, func, select
 from sqlalchemy.orm import Session
 
-from fleet.db.models import Installation, Machine, Position, Pump, Site
+from fleet.db.models import AuditRecord, Installation, Machine, Position, Pump, Site
 
 
 def pump_by_serial(session: Session, serial: str) -> Pump | None:
@@ -53,3 +53,18 @@ def pumps_on_machine(session: Session, machine_id: int | None, ever: bool = Fals
     if not ever:
         statement = statement.where(Installation.removed_at.is_(None))
     return sorted(set(session.scalars(statement)))
+
+
+def serials_any_case(session: Session, serial: str) -> list[str]:
+    """Serials equal to ``serial`` but for letter case (a URL typed in lower case), in order."""
+    return list(session.scalars(select(Pump.serial).where(func.lower(Pump.serial) == serial.lower())
+                                .order_by(Pump.serial)))
+
+
+def corrected_readings(session: Session, reading_ids) -> set[int]:
+    """Which of these readings were corrected (an update of the reading is in the audit trail)."""
+    ids = [int(i) for i in reading_ids]
+    if not ids:
+        return set()
+    return set(session.scalars(select(AuditRecord.row_id).where(
+        AuditRecord.action == "update", AuditRecord.table_name == "reading", AuditRecord.row_id.in_(ids))))

@@ -39,6 +39,7 @@ class PostedOutcome:
     created: int
     readings: list[dict]  # per posted row: id, pump, taken_at, client_id, repeat
     pump_ids: set[int] = field(default_factory=set)
+    doubts: list[dict] = field(default_factory=list)  # hour-meter doubts, rows counted as posted (header = row 1)
 
 
 def client_id_problem(value) -> str | None:
@@ -83,7 +84,7 @@ def store_posted(session: Session, table: pd.DataFrame, client_ids: list[str | N
         raise ClientIdConflict(conflicts)
     fresh = [i for i in range(len(client_ids)) if i not in repeats]
     _check_places(session, data, places, fresh)
-    created, pump_ids = 0, set()
+    created, pump_ids, doubts = 0, set(), []
     if fresh:
         try:
             result = import_table(session, "readings", table.iloc[fresh].reset_index(drop=True), source=source)
@@ -96,8 +97,9 @@ def store_posted(session: Session, table: pd.DataFrame, client_ids: list[str | N
             raise ImportRejected([Problem(fresh[p.row - 2] + 2 if p.row >= 2 else p.row, p.column, p.reason)
                                   for p in rejected.problems]) from None
         created, pump_ids = result.created, result.pump_ids
+        doubts = [{**doubt, "row": fresh[doubt["row"] - 2] + 2} for doubt in result.doubts]
         _keep_client_ids(session, data, client_ids, fresh)
-    return PostedOutcome(created, _described(session, data, client_ids, repeats), pump_ids)
+    return PostedOutcome(created, _described(session, data, client_ids, repeats), pump_ids, doubts)
 
 
 def _stored_by_client_id(session: Session, client_ids: list[str]) -> dict[str, tuple[Reading, str]]:

@@ -16,6 +16,7 @@ from fleet import units
 from fleet.db.models import Installation, Machine, Position, Pump, Reading, Route, RouteStop, Site
 from fleet.db.queries import current_places
 from fleet.io.columns import READINGS
+from fleet.io.meter import meter_doubt
 from fleet.io.parse import Problem, parse_table
 from fleet.io.rules import FUTURE_TOLERANCE
 from fleet.jsonvalues import plain
@@ -236,11 +237,10 @@ def plausibility_warnings(facts: PumpFacts, reading: dict, now: datetime) -> lis
                               f"Oil temperature {temp:.1f} °C is outside this pump's limits "
                               f"({facts.oil_temp_min_c:.0f}–{facts.oil_temp_max_c:.0f} °C).",
                               HOT_OIL_CAUTION if temp > facts.oil_temp_max_c else None))
-    if known["hours"] and facts.last_hours is not None and reading["hours"] < facts.last_hours:
-        warnings.append(Doubt("hours_backwards", "hours",
-                              f"Running hours {reading['hours']:.0f} h are below the last reading's "
-                              f"{facts.last_hours:.0f} h ({facts.last_taken_at:%Y-%m-%d}): is it the right pump "
-                              "or a new hour meter?"))
+    if known["hours"] and known["taken_at"]:
+        meter = meter_doubt(facts.last_taken_at, facts.last_hours, reading["taken_at"], reading["hours"])
+        if meter:
+            warnings.append(Doubt(meter.code, "hours", meter.message))
     if known["taken_at"] and reading["taken_at"] > now:
         warnings.append(Doubt("time_in_future", "taken_at",
                               f"The time {reading['taken_at']:%Y-%m-%d %H:%M} is later than now "

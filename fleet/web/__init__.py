@@ -58,6 +58,10 @@ def create_app(test_config: dict | None = None) -> Flask:
     app.register_blueprint(account.bp)
     app.register_blueprint(outbox.bp)
     app.register_blueprint(forecasts.bp)
+    from fleet.web import corrections, find
+
+    app.register_blueprint(find.bp)
+    app.register_blueprint(corrections.bp)
 
     @app.context_processor
     def navigation():

@@ -1,9 +1,11 @@
 """POST /api/readings: readings from data loggers and handhelds, checked by the same importer as a CSV file.
+PATCH /api/readings/<id>: a correction of one reading's values, with a reason (fleet.services.corrections).
 
 The body is one JSON object or a list of them, keyed by the readings CSV column names. A number may carry its
 unit: ``"outlet_pressure": {"value": 3000, "unit": "psi"}``. All or nothing: 201 with the stored readings and
-each pump's refreshed status, or 422 with every problem and nothing written. Problem rows count the posted
-objects from 1 (row 0: the request as a whole).
+each pump's refreshed status and the doubts worth a second look (an hour meter gone backwards or faster than
+the clock: ``{"row", "field", "code", "message"}``), or 422 with every problem and nothing written. Problem rows
+count the posted objects from 1 (row 0: the request as a whole).
 
 Two optional keys are not readings columns (fleet.services.posted_readings): ``client_id``, the id the device
 gave the reading (text, at most 64 characters), so that sending again is safe: a repeat with the same values
@@ -24,6 +26,7 @@ from fleet import units
 from fleet.io.columns import READINGS
 from fleet.io.parse import MAX_MAGNITUDE, ImportRejected, Problem
 from fleet.services.analysis import statuses
+from fleet.services.corrections import CORRECTABLE, CorrectionRefused, correct_reading
 from fleet.services.posted_readings import ClientIdConflict, client_id_problem, place_problem, store_posted
 from fleet.services.users import mark_token_used
 from fleet.services.writes import perform
@@ -201,8 +204,10 @@ def post_readings():
     db = session()
     db.rollback()  # a fresh snapshot: this request's reads began before the write
     repeat = outcome.value.created == 0
+    # Doubts (fleet.io.meter) are stored readings worth a second look; rows count the posted objects from 1.
+    doubts = [{**doubt, "row": doubt["row"] - 1} for doubt in outcome.value.doubts]
     return jsonify({"created": outcome.value.created, "repeat": repeat, "readings": outcome.value.readings,
-                    "pumps": statuses(db, outcome.value.pump_ids)}), 200 if repeat else 201
+                    "pumps": statuses(db, outcome.value.pump_ids), "doubts": doubts}), 200 if repeat else 201
 
 
 def _device_keys(items: list) -> tuple[list, list, list[Problem]]:
@@ -242,3 +247,49 @@ def _field_name(column: str) -> str:
         return units.parse_header(column)[0]
     except units.UnitError:
         return column
+
+
+@bp.patch("/readings/<int:reading_id>")
+@requires("technician")
+def correct_reading_api(reading_id: int):
+    """Correct a stored reading: ``{"hours": 1234.5, "outlet_pressure": {"value": 3000, "unit": "psi"},
+    "reason": "..."}``. 200 with what changed (old and new values in canonical units), the doubts the new values
+    raise and the pump's refreshed status; 404, 403 or 422 with every problem and nothing changed."""
+    body, problem = _json_body()
+    if problem or not isinstance(body, dict):
+        return jsonify({"problems": [{"field": "", "reason": problem or "send one JSON object of the values to "
+                                                                        "correct and a 'reason'"}]}), 400
+    reason = body.pop("reason", None)
+    values, chosen, problems = {}, {}, []
+    for name, value in body.items():
+        if name not in CORRECTABLE:
+            values[str(name)[:40]] = ""  # the service names it as no correctable value
+            continue
+        unit = None
+        if isinstance(value, dict):
+            unit, value = _split_unit(value, 1, name, problems)
+        values[name] = _cell(value, 1, name, problems)
+        if unit:
+            chosen[name] = unit
+    if problems:
+        return jsonify({"problems": [{"field": p.column, "reason": p.reason} for p in problems]}), 422
+    if not isinstance(reason, str):
+        reason = ""
+    user = signed_in_user()
+    token_id = user.token_id
+
+    def work(db):
+        done = correct_reading(db, reading_id, values, reason, user.name, chosen)
+        if token_id is not None:
+            mark_token_used(db, token_id)
+        return done
+
+    try:
+        outcome = perform(sessions(), work)
+    except CorrectionRefused as refused:
+        return jsonify({"problems": refused.problems}), refused.status
+    db = session()
+    db.rollback()  # a fresh snapshot: this request's reads began before the write
+    done = outcome.value
+    return jsonify({"reading": done.reading_id, "pump": done.pump, "changes": done.changes, "doubts": done.doubts,
+                    "pumps": statuses(db, outcome.pumps)}), 200

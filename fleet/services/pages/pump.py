@@ -24,7 +24,7 @@ from fleet.db.models import (
     Reading,
     Site,
 )
-from fleet.db.queries import current_places, pump_by_serial
+from fleet.db.queries import corrected_readings, current_places, pump_by_serial
 from fleet.horizon import is_beyond
 from fleet.jsonvalues import json_ready
 from fleet.kinds import EVENT_KINDS, PUMP_KINDS
@@ -38,7 +38,7 @@ from fleet.trend.status import wear_shape_sentence
 READING_COLUMNS = (
     "reading_id", "taken_at", "hours", "interval_no", "outlet_pressure_bar", "speed_rpm", "outlet_flow_lpm",
     "case_drain_lpm", "oil_temp_c", "stroke", "eta_v", "eta_v_ref", "case_drain_pct", "case_drain_ref_lpm",
-    "case_drain_pct_ref", "flag", "source", "taken_by",
+    "case_drain_pct_ref", "flag", "source", "taken_by", "corrected",
 )
 LIMIT_FIELDS = ("eta_v_limit", "drain_limit_pct", "oil_temp_min_c", "oil_temp_max_c", "cleanliness_target",
                 "reading_interval_days", "planning_horizon_weeks")
@@ -187,6 +187,7 @@ def _reading_rows(session: Session, referred: pd.DataFrame) -> list[dict]:
         "oil_temp_c": r["temp_c"], "stroke": r["stroke"], "eta_v": r["eta_v"], "eta_v_ref": r["eta_v_ref"],
         "case_drain_pct": drain_pct, "case_drain_ref_lpm": r["drain_ref_lpm"], "case_drain_pct_ref": r["drain_pct_ref"],
         "flag": r["flag"], "source": r["source"], "taken_by": r["taken_by"],
+        "corrected": r["reading_id"].isin(list(corrected_readings(session, r["reading_id"]))),
     })
     return json_ready(table[list(READING_COLUMNS)].astype(object).to_dict(orient="records"))
 

@@ -16,7 +16,8 @@ How it counts (each from the stored rows of the week, [start, end)):
   analysis's sentence uses, and each row carries that sentence.
 - **Maintenance done**: maintenance events dated in the week, with cost (per site currency) and downtime totals.
 - **Pumps installed or removed**: installation rows that began or ended in the week.
-- **Readings corrected**: audit records of an update to a reading made in the week, with the fields changed.
+- **Readings corrected**: audit records of an update to a reading made in the week, with the fields changed
+  (old -> new) and the reason given.
 """
 
 from datetime import date, datetime, time, timedelta
@@ -271,7 +272,7 @@ def _readings_corrected(session: Session, start: datetime, end: datetime, where:
         serial, site, machine = where.get(pump_id, (None, None, None))
         changed = [key for key in after if key != "id" and before.get(key) != after.get(key)]
         out.append({"pump": serial, "site": site, "machine": machine, "at": record.at.isoformat(timespec="minutes"),
-                    "by": record.actor, "reading_id": record.row_id,
+                    "by": record.actor, "reading_id": record.row_id, "reason": record.reason,
                     "taken_at": str(before.get("taken_at") or after.get("taken_at") or "")[:16].replace("T", " "),
                     "changes": [{"field": READING_FIELDS.get(key, key), "before": before.get(key),
                                  "after": after.get(key)} for key in changed]})
@@ -396,7 +397,8 @@ def _items(data: dict) -> list[dict]:
     for c in data["readings_corrected"]:
         what = "; ".join(f"{x['field']} {x['before']} -> {x['after']}" for x in c["changes"])
         items.append({"section": "reading_corrected", "pump": c["pump"], "site": c["site"], "machine": c["machine"],
-                      "at": c["at"], "what": f"reading of {c['taken_at']} by {c['by']}: {what}"})
+                      "at": c["at"], "what": f"reading of {c['taken_at']} by {c['by']}: {what}"
+                                             + (f" (reason: {c['reason']})" if c["reason"] else "")})
     for m in data["rounds_missed"]:
         items.append({"section": "round_missed", "pump": m["pump"], "site": m["site"], "machine": m["machine"],
                       "at": m["due_at"], "what": f"last reading {m['last_reading_at'] or 'never'}",

@@ -27,6 +27,7 @@ from fleet.db.models import (
 from fleet.db.queries import pumps_on_machine
 from fleet.io import rules
 from fleet.io.files import read_file
+from fleet.io.meter import meter_doubts
 from fleet.io.parse import ImportRejected, ParsedTable, Problem, parse_table, row_numbers
 from fleet.io.spreadsheet import SpreadsheetError
 from fleet.physics.cleanliness import code_from_counts
@@ -45,6 +46,8 @@ class ImportResult:
     skipped: int = 0  # rows already stored exactly so
     pump_ids: set[int] = field(default_factory=set)  # pumps whose analysis the import changes
     ignored_columns: list[str] = field(default_factory=list)
+    # Stored, but worth a second look (fleet.io.meter): {"row", "field", "code", "message"}, rows as in problems.
+    doubts: list[dict] = field(default_factory=list)
 
     def summary(self) -> str:
         text = f"{self.kind}: {self.rows} row(s): {self.created} new, {self.updated} updated"
@@ -53,6 +56,9 @@ class ImportResult:
         if self.ignored_columns:
             text += f"; columns not used: {', '.join(self.ignored_columns)}"
         return text
+
+    def doubt_lines(self) -> list[str]:
+        return [f"row {d['row']}, column '{d['field']}': stored; look again: {d['message']}" for d in self.doubts]
 
 
 def import_file(session: Session, kind: str, path: str | Path, **kwargs) -> ImportResult:
@@ -335,10 +341,23 @@ def _import_readings(ctx: _Context, parsed: ParsedTable, result: ImportResult) -
         "source": source,
     })
     frame["created_at"] = pd.Timestamp(utcnow())
+    result.doubts = _meter_doubts(ctx.session, frame)
     _insert_frame(ctx.session, Reading, frame)
     result.created = len(frame)
     result.pump_ids.update(int(x) for x in frame["pump_id"].unique())
     return problems
+
+
+def _meter_doubts(session: Session, frame: pd.DataFrame) -> list[dict]:
+    """The hour-meter doubts of new readings against the reading before each, stored or in the same table."""
+    pump_ids = [int(x) for x in frame["pump_id"].unique()]
+    rows = session.execute(select(Reading.pump_id, Reading.taken_at, Reading.hours).where(
+        Reading.pump_id.in_(pump_ids), Reading.taken_at <= frame["taken_at"].max().to_pydatetime())).all()
+    stored = pd.DataFrame(rows, columns=["pump_id", "taken_at", "hours"])
+    found = sorted(meter_doubts(frame, stored), key=lambda pair: pair[0])
+    rows = row_numbers(pd.Index([index for index, _ in found]))
+    return [{"row": int(row), "field": "hours", "code": doubt.code, "message": doubt.message}
+            for row, (_, doubt) in zip(rows, found, strict=True)]
 
 
 def _insert_frame(session: Session, model, frame: pd.DataFrame) -> None:

@@ -42,11 +42,11 @@ def upload_file(sessions: sessionmaker[Session], kind: str, data: bytes | None, 
     return {
         "ok": True, "kind": kind, "summary": result.summary(), "problems": [], "report": "",
         "rows": result.rows, "created": result.created, "updated": result.updated, "skipped": result.skipped,
-        "pump_ids": sorted(outcome.pumps), "analysis": outcome.describe(),
+        "pump_ids": sorted(outcome.pumps), "analysis": outcome.describe(), "doubts": result.doubts,
     }
 
 
 def _rejected(kind: str, problems: list[dict], report: str) -> dict:
     return {"ok": False, "kind": kind, "summary": f"{len(problems)} problem(s); nothing was imported",
             "problems": problems, "report": report, "rows": 0, "created": 0, "updated": 0, "skipped": 0,
-            "pump_ids": [], "analysis": None}
+            "pump_ids": [], "analysis": None, "doubts": []}
