@@ -21,6 +21,7 @@ from fleet.kinds import PUMP_KINDS
 from fleet.physics.pump import theoretical_flow_lpm
 from fleet.safety import HOT_OIL_CAUTION
 from fleet.services.analysis.frames import load_pumps
+from fleet.services.sitelocal import row_conventions
 from fleet.services.transfer.importing import ImportResult, check_readings, import_table
 from fleet.services.writes import Outcome, perform
 from fleet.timeutil import utcnow
@@ -259,7 +260,7 @@ def check_reading(session: Session, pump: Pump, table: pd.DataFrame, now: dateti
     problems = check_readings(session, table, now)
     if problems:
         return CheckOutcome(problems=problems)
-    parsed, _ = parse_table("readings", table)
+    parsed, _ = parse_table("readings", table, row_conventions(session, "readings", table))
     row = parsed.data.iloc[0]
     reading = {name: plain(row.get(name)) for name in
                ("taken_at", "hours", "outlet_pressure", "speed", "outlet_flow", "oil_temp", "stroke")}
@@ -281,7 +282,7 @@ def unit_choices() -> dict[str, tuple[str, ...]]:
 
 def stored_readings(session: Session, table: pd.DataFrame) -> list[dict]:
     """id, pump and time of the stored readings a table of new readings names (after it was saved)."""
-    parsed, _ = parse_table("readings", table)
+    parsed, _ = parse_table("readings", table, row_conventions(session, "readings", table))
     keys = [(serial, stamp.to_pydatetime()) for serial, stamp in zip(parsed.data["pump"], parsed.data["taken_at"],
                                                                        strict=True)]
     rows = session.execute(select(Reading.id, Pump.serial, Reading.taken_at).join(Pump, Pump.id == Reading.pump_id)
