@@ -15,13 +15,14 @@ from sqlalchemy.orm import Session, sessionmaker
 from fleet import units
 from fleet.db.models import Installation, Machine, Position, Pump, Reading, Route, RouteStop, Site
 from fleet.db.queries import current_places
+from fleet.io.localtime import iso_local, offset_text, to_local
 from fleet.io.parse import Problem, parse_table
 from fleet.jsonvalues import plain
 from fleet.kinds import PUMP_KINDS
 from fleet.physics.pump import theoretical_flow_lpm
 from fleet.safety import HOT_OIL_CAUTION
 from fleet.services.analysis.frames import load_pumps
-from fleet.services.sitelocal import row_conventions
+from fleet.services.sitelocal import of_pump, of_site, pump_sites, row_conventions
 from fleet.services.transfer.importing import ImportResult, check_readings, import_table
 from fleet.services.writes import Outcome, perform
 from fleet.timeutil import utcnow
@@ -142,15 +143,18 @@ def route_walk(session: Session, route_id: int, now: datetime | None = None) -> 
     now = now or utcnow()
     places = _current_places(session)
     last = _last_readings(session, [stop.pump_id for stop in route.stops])
+    sites = pump_sites(session, [stop.pump.serial for stop in route.stops])
     stops = []
     for number, stop in enumerate(route.stops, start=1):
         pump = stop.pump
         at, hours = last.get(pump.id, (None, None))
+        zone_text = of_site(sites.get(pump.serial)).time_zone
         stops.append({
             "number": number, "pump": pump.serial, "kind_label": PUMP_KINDS.get(pump.kind, pump.kind),
             **{k: None for k in ("site", "machine", "position")}, **places.get(pump.id, {}),
-            "last_reading_at": at.isoformat(sep=" ", timespec="minutes") if at else None, "last_hours": hours,
-            "read_today": bool(at and at.date() == now.date()),
+            "last_reading_at": iso_local(at, zone_text, "minutes"), "last_hours": hours,
+            # 'today' as the site's clocks count it
+            "read_today": bool(at and to_local(at, zone_text).date() == to_local(now, zone_text).date()),
         })
     return {"route": {"id": route.id, "name": route.name, "note": route.note}, "stops": stops}
 
@@ -207,11 +211,12 @@ class Doubt:
     caution: str | None = None  # a safety caution shown with the doubt (fleet.safety)
 
 
-def plausibility_warnings(facts: PumpFacts, reading: dict, now: datetime) -> list[Doubt]:
+def plausibility_warnings(facts: PumpFacts, reading: dict, now: datetime, zone_text: str | None = None
+                          ) -> list[Doubt]:
     """Readings that can be right but often are a slip of the finger: shown before saving, never refused.
 
     ``reading`` holds canonical values: taken_at, hours, outlet_pressure (bar), speed (rpm), outlet_flow (L/min),
-    oil_temp (degC), stroke (fraction; None = full).
+    oil_temp (degC), stroke (fraction; None = full). Times are told in ``zone_text``, the pump's site's zone.
     """
     warnings = []
     stroke = reading.get("stroke")
@@ -235,12 +240,14 @@ def plausibility_warnings(facts: PumpFacts, reading: dict, now: datetime) -> lis
     if facts.last_hours is not None and reading["hours"] < facts.last_hours:
         warnings.append(Doubt("hours_backwards", "hours",
                                  f"Running hours {reading['hours']:.0f} h are below the last reading's "
-                                 f"{facts.last_hours:.0f} h ({facts.last_taken_at:%Y-%m-%d}): is it the right pump "
+                                 f"{facts.last_hours:.0f} h ({to_local(facts.last_taken_at, zone_text):%Y-%m-%d}): "
+                                 "is it the right pump "
                                  "or a new hour meter?"))
     if reading["taken_at"] > now:
+        taken, clock = to_local(reading["taken_at"], zone_text), to_local(now, zone_text)
         warnings.append(Doubt("time_in_future", "taken_at",
-                                 f"The time {reading['taken_at']:%Y-%m-%d %H:%M} is later than now "
-                                 f"({now:%Y-%m-%d %H:%M} UTC)."))
+                                 f"The time {taken:%Y-%m-%d %H:%M} is later than now "
+                                 f"({clock:%Y-%m-%d %H:%M}, UTC{offset_text(clock.utcoffset())})."))
     return warnings
 
 
@@ -265,7 +272,7 @@ def check_reading(session: Session, pump: Pump, table: pd.DataFrame, now: dateti
     reading = {name: plain(row.get(name)) for name in
                ("taken_at", "hours", "outlet_pressure", "speed", "outlet_flow", "oil_temp", "stroke")}
     facts = pump_facts(session, pump, before=reading["taken_at"])
-    return CheckOutcome(warnings=plausibility_warnings(facts, reading, now))
+    return CheckOutcome(warnings=plausibility_warnings(facts, reading, now, of_pump(session, pump).time_zone))
 
 
 def save_readings(sessions: sessionmaker[Session], table: pd.DataFrame, source: str = "form",

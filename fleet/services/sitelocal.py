@@ -13,8 +13,9 @@ from sqlalchemy.orm import Session
 
 from fleet import units
 from fleet.db.models import Installation, Machine, Position, Pump, Site
-from fleet.io.localtime import DEFAULT_ZONE
+from fleet.io.localtime import DEFAULT_ZONE, offset_text, to_local
 from fleet.io.parse import RowConventions
+from fleet.timeutil import utcnow
 
 
 @dataclass(frozen=True)
@@ -24,15 +25,12 @@ class Conventions:
     flow_unit: str = "L/min"
     temperature_unit: str = "degC"
     decimal_comma: bool = False
+    site: str | None = None  # the site's name (None: the pump sits at no site)
 
     def unit_of(self, quantity: str | None) -> str | None:
         """The site's unit of a quantity (pressure, flow, temperature), None for any other."""
         return {"pressure": self.pressure_unit, "flow": self.flow_unit,
                 "temperature": self.temperature_unit}.get(quantity or "")
-
-    def as_dict(self) -> dict:
-        return {"time_zone": self.time_zone, "pressure_unit": self.pressure_unit, "flow_unit": self.flow_unit,
-                "temperature_unit": self.temperature_unit, "decimal_comma": self.decimal_comma}
 
 
 UTC_CANONICAL = Conventions()
@@ -42,7 +40,7 @@ def of_site(site: Site | None) -> Conventions:
     if site is None:
         return UTC_CANONICAL
     return Conventions(site.time_zone or DEFAULT_ZONE, site.pressure_unit or "bar", site.flow_unit or "L/min",
-                       site.temperature_unit or "degC", bool(site.decimal_comma))
+                       site.temperature_unit or "degC", bool(site.decimal_comma), site.name)
 
 
 def pump_sites(session: Session, serials) -> dict[str, Site]:
@@ -105,3 +103,9 @@ def row_conventions(session: Session, kind: str, table: pd.DataFrame) -> RowConv
     found = [of_site(site) for site in row_sites(session, kind, table)]
     return RowConventions(pd.Series([c.time_zone for c in found], dtype=object),
                           pd.Series([c.decimal_comma for c in found], dtype=bool))
+
+
+def zone_label(conventions: Conventions, now=None) -> str:
+    """How a form names the zone its times are read in: 'America/Chicago, UTC−06:00 now'."""
+    local = to_local(now or utcnow(), conventions.time_zone)
+    return f"{conventions.time_zone}, UTC{offset_text(local.utcoffset()).replace('-', '−')} now"

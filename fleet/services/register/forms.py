@@ -13,6 +13,7 @@ from datetime import datetime
 from sqlalchemy import select
 from sqlalchemy.orm import Session
 
+from fleet import units
 from fleet.db.models import LimitDefault, Machine, Oil, Position, Pump, Site
 from fleet.db.queries import current_installations
 from fleet.io import rules
@@ -115,21 +116,40 @@ def _site_fields(session: Session, key: str | None) -> list[Field]:
         Field("tariff_per_kwh", "Electricity price per kWh", "number", help="in the site currency"),
         Field("motor_efficiency", "Drive motor efficiency", "number", help="fraction, e.g. 0.93"),
         Field("note", "Note", "textarea"),
+        Field("time_zone", "Time zone",
+              help="IANA name of the site's clocks, e.g. Europe/Berlin or America/Chicago; times typed without an "
+                   "offset are read in it (blank: UTC)"),
+        *[Field(column, label, "select", required=True, options=_unit_options(units.SITE_QUANTITIES[column]),
+                help="shown on this site's pages and offered first on its forms")
+          for column, label in (("pressure_unit", "Pressure shown in"), ("flow_unit", "Flow shown in"),
+                                ("temperature_unit", "Temperature shown in"))],
+        Field("decimal_comma", "Accept a decimal comma (120,5) in this site's forms and files", "checkbox"),
     ]
+
+
+def _unit_options(quantity: str) -> tuple:
+    return tuple((u, units.shown(u)) for u in units.SITE_UNITS[quantity])
 
 
 def _site_initial(session: Session, key: str | None) -> dict:
     if key is None:
-        return {"currency": "EUR", "tariff_per_kwh": "0.15", "motor_efficiency": "0.93"}
+        return {"currency": "EUR", "tariff_per_kwh": "0.15", "motor_efficiency": "0.93", "time_zone": "UTC",
+                "pressure_unit": "bar", "flow_unit": "L/min", "temperature_unit": "degC"}
     site = _get(session, Site, key)
     return {"site": site.name, "currency": site.currency, "tariff_per_kwh": _fmt(site.tariff_per_kwh),
-            "motor_efficiency": _fmt(site.motor_efficiency), "note": _fmt(site.note)}
+            "motor_efficiency": _fmt(site.motor_efficiency), "note": _fmt(site.note), "time_zone": site.time_zone,
+            "pressure_unit": site.pressure_unit, "flow_unit": site.flow_unit,
+            "temperature_unit": site.temperature_unit, "decimal_comma": _fmt(site.decimal_comma)}
 
 
 def _site_save(session: Session, key: str | None, values: dict) -> Saved:
     if key is not None:
         values = {**values, "site": _get(session, Site, key).name}  # the name keys the import; it is not edited
-    result = _import_one(session, "sites", values, ["site", "currency", "tariff_per_kwh", "motor_efficiency", "note"])
+    # An unticked box sends nothing; here that means 'no', not 'leave as it was'.
+    values = {**values, "decimal_comma": "yes" if values.get("decimal_comma") else "no"}
+    result = _import_one(session, "sites", values, ["site", "currency", "tariff_per_kwh", "motor_efficiency", "note",
+                                                    "time_zone", "pressure_unit", "flow_unit", "temperature_unit",
+                                                    "decimal_comma"])
     site = session.scalar(select(Site).where(Site.name == values["site"].strip()))
     verb = "added" if result.created else "saved"
     return Saved(f"Site {site.name} {verb}.")
