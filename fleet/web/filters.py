@@ -72,6 +72,13 @@ def unit(value) -> str:
     return units.shown(value)
 
 
+def in_unit(value, quantity: str, unit_text: str, digits: int = 1, empty: str = "–") -> str:
+    """A canonical value shown in a site's unit, the number only: 3000 psi for 206.8 bar (fleet.units, pint)."""
+    if value is None:
+        return empty
+    return number(float(units.from_canonical([value], quantity, unit_text)[0]), digits, empty)
+
+
 def local_time(value, empty: str = "") -> str:
     """An ISO 8601 time with its offset ('2026-01-15T08:00-06:00') as pages write it: '2026-01-15 08:00 −06:00'."""
     if not value:
@@ -84,6 +91,7 @@ def local_time(value, empty: str = "") -> str:
 
 def init_app(app: Flask) -> None:
     app.add_template_filter(local_time)
+    app.add_template_filter(in_unit)
     app.add_template_filter(unit)
     app.add_template_filter(number)
     app.add_template_filter(forecast_date)
