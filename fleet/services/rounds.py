@@ -22,7 +22,7 @@ from fleet.kinds import PUMP_KINDS
 from fleet.physics.pump import theoretical_flow_lpm
 from fleet.safety import HOT_OIL_CAUTION
 from fleet.services.analysis.frames import load_pumps
-from fleet.services.sitelocal import of_pump, of_site, pump_sites, row_conventions
+from fleet.services.sitelocal import UTC_CANONICAL, Conventions, of_pump, of_site, pump_sites, row_conventions
 from fleet.services.transfer.importing import ImportResult, check_readings, import_table
 from fleet.services.writes import Outcome, perform
 from fleet.timeutil import utcnow
@@ -211,13 +211,20 @@ class Doubt:
     caution: str | None = None  # a safety caution shown with the doubt (fleet.safety)
 
 
-def plausibility_warnings(facts: PumpFacts, reading: dict, now: datetime, zone_text: str | None = None
+def _in(value: float, quantity: str, unit_text: str | None, digits: int) -> str:
+    """A canonical value in the site's unit with that unit, as the technician typed it: '2200.0 psi'."""
+    unit_text = unit_text or units.CANONICAL[quantity]
+    return f"{float(units.from_canonical([value], quantity, unit_text)[0]):.{digits}f} {units.shown(unit_text)}"
+
+
+def plausibility_warnings(facts: PumpFacts, reading: dict, now: datetime, site: Conventions = UTC_CANONICAL
                           ) -> list[Doubt]:
     """Readings that can be right but often are a slip of the finger: shown before saving, never refused.
 
     ``reading`` holds canonical values: taken_at, hours, outlet_pressure (bar), speed (rpm), outlet_flow (L/min),
-    oil_temp (degC), stroke (fraction; None = full). Times are told in ``zone_text``, the pump's site's zone.
+    oil_temp (degC), stroke (fraction; None = full). The messages speak the pump's site's zone and units.
     """
+    zone_text = site.time_zone
     warnings = []
     stroke = reading.get("stroke")
     theoretical = float(theoretical_flow_lpm(facts.displacement_cc, reading["speed"], 1.0 if _blank(stroke)
@@ -225,17 +232,21 @@ def plausibility_warnings(facts: PumpFacts, reading: dict, now: datetime, zone_t
     flow = reading.get("outlet_flow")
     if not _blank(flow) and flow > theoretical:
         warnings.append(Doubt("flow_above_theoretical", "outlet_flow",
-                                 f"Outlet flow {flow:.1f} L/min is above the theoretical {theoretical:.1f} L/min at "
+                                 f"Outlet flow {_in(flow, 'flow', site.flow_unit, 1)} is above the theoretical "
+                                 f"{_in(theoretical, 'flow', site.flow_unit, 1)} at "
                                  f"{reading['speed']:.0f} rpm: a pump cannot deliver more than its displacement."))
+    pressure, rated = (_in(v, "pressure", site.pressure_unit, d) for v, d in
+                       ((reading["outlet_pressure"], 1), (facts.rated_pressure_bar, 0)))
     if reading["outlet_pressure"] > facts.rated_pressure_bar:
         warnings.append(Doubt("pressure_above_rated", "outlet_pressure",
-                                 f"Outlet pressure {reading['outlet_pressure']:.1f} bar is above the rated "
-                                 f"{facts.rated_pressure_bar:.0f} bar."))
+                              f"Outlet pressure {pressure} is above the rated {rated}."))
     temp = reading["oil_temp"]
+    shown_temp, low, high = (_in(v, "temperature", site.temperature_unit, d) for v, d in
+                             ((temp, 1), (facts.oil_temp_min_c, 0), (facts.oil_temp_max_c, 0)))
     if not facts.oil_temp_min_c <= temp <= facts.oil_temp_max_c:
         warnings.append(Doubt("temperature_outside_limits", "oil_temp",
-                                 f"Oil temperature {temp:.1f} °C is outside this pump's limits "
-                                 f"({facts.oil_temp_min_c:.0f}–{facts.oil_temp_max_c:.0f} °C).",
+                              f"Oil temperature {shown_temp} is outside this pump's limits "
+                              f"({low.split()[0]}–{high}).",
                               HOT_OIL_CAUTION if temp > facts.oil_temp_max_c else None))
     if facts.last_hours is not None and reading["hours"] < facts.last_hours:
         warnings.append(Doubt("hours_backwards", "hours",
@@ -272,7 +283,7 @@ def check_reading(session: Session, pump: Pump, table: pd.DataFrame, now: dateti
     reading = {name: plain(row.get(name)) for name in
                ("taken_at", "hours", "outlet_pressure", "speed", "outlet_flow", "oil_temp", "stroke")}
     facts = pump_facts(session, pump, before=reading["taken_at"])
-    return CheckOutcome(warnings=plausibility_warnings(facts, reading, now, of_pump(session, pump).time_zone))
+    return CheckOutcome(warnings=plausibility_warnings(facts, reading, now, of_pump(session, pump)))
 
 
 def save_readings(sessions: sessionmaker[Session], table: pd.DataFrame, source: str = "form",
