@@ -63,12 +63,6 @@ def iso_local(stored: datetime | None, zone_text: str | None, timespec: str = "s
     return None if local is None else local.isoformat(timespec=timespec)
 
 
-def shown_local(stored: datetime | None, zone_text: str | None) -> str:
-    """How a page shows a time: '2026-01-15 08:00 −06:00' in the site's zone."""
-    local = to_local(stored, zone_text)
-    return "" if local is None else f"{local:%Y-%m-%d %H:%M} {offset_text(local.utcoffset()).replace('-', '−')}"
-
-
 def form_value(stored: datetime | None, zone_text: str | None) -> str:
     """A stored time as an <input type=datetime-local> value in the zone (no offset: the label names the zone)."""
     local = to_local(stored, zone_text)

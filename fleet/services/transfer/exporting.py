@@ -123,7 +123,8 @@ def _site_units(session: Session, kind: str, frame: pd.DataFrame) -> dict[str, s
     chosen = {}
     for quantity, by_unit in found.items():
         if len(by_unit) > 1:
-            named = ", ".join(f"{name} in {units.shown(unit)}" for unit, name in sorted(by_unit.items(), key=lambda pair: pair[1]))
+            named = ", ".join(f"{name} in {units.shown(unit)}"
+                              for unit, name in sorted(by_unit.items(), key=lambda pair: pair[1]))
             raise ExportError(f"the rows' sites show {quantity} in different units ({named}): export one site "
                               "or canonical units")
         chosen[quantity] = next(iter(by_unit))
