@@ -43,9 +43,20 @@ def of_site(site: Site | None) -> Conventions:
                        site.temperature_unit or "degC", bool(site.decimal_comma), site.name)
 
 
+def _queryable(text) -> bool:
+    """Text a database can be asked about: valid Unicode without NUL (the parser reports the others)."""
+    if not isinstance(text, str) or "\x00" in text:
+        return False
+    try:
+        text.encode("utf-8")
+    except UnicodeEncodeError:
+        return False
+    return True
+
+
 def pump_sites(session: Session, serials) -> dict[str, Site]:
     """serial -> the site of the pump's latest installation."""
-    serials = [s for s in set(serials) if isinstance(s, str)]
+    serials = [s for s in set(serials) if _queryable(s)]
     if not serials:
         return {}
     latest = (select(Installation.pump_id, func.max(Installation.installed_at).label("at"))

@@ -19,6 +19,7 @@ from fleet.db.queries import current_installations
 from fleet.io import rules
 from fleet.io.parse import ImportRejected
 from fleet.kinds import EVENT_KINDS, FAILURE_MODES, PUMP_KINDS
+from fleet.services import sitelocal
 from fleet.services.register import records as register
 from fleet.services.transfer.importing import import_table
 from fleet.services.writes.forms import Collector, Field, FormRejected, one_row_table, problems_by_field
@@ -404,13 +405,16 @@ def _limit_save(session: Session, key: str | None, values: dict) -> Saved:
     return Saved(f"Default limits of {PUMP_KINDS[key].lower()} pumps saved.")
 
 
+SITE_TIME = "local time of the pump's site (its time zone in the register)"
+
+
 # --- installations and removals --------------------------------------------------------------------------------
 
 def _install_fields(session: Session, key: str | None) -> list[Field]:
     return [
         Field("pump", "Pump", "select", required=True, options=_pump_options(session)),
         Field("position_id", "Into position", "select", required=True, options=_position_options(session)),
-        Field("installed_at", "Installed on", "datetime", required=True),
+        Field("installed_at", "Installed on", "datetime", required=True, help=SITE_TIME),
         Field("hours", "Pump hour meter then", "number", quantity="hours"),
     ]
 
@@ -432,7 +436,7 @@ def _install_save(session: Session, key: str | None, values: dict) -> Saved:
 def _removal_fields(session: Session, key: str | None) -> list[Field]:
     return [
         Field("pump", "Pump", "select", required=True, options=_pump_options(session, installed_only=True)),
-        Field("removed_at", "Removed on", "datetime", required=True),
+        Field("removed_at", "Removed on", "datetime", required=True, help=SITE_TIME),
         Field("hours", "Pump hour meter then", "number", quantity="hours"),
     ]
 
@@ -440,6 +444,9 @@ def _removal_fields(session: Session, key: str | None) -> list[Field]:
 def _removal_save(session: Session, key: str | None, values: dict) -> Saved:
     form = Collector(values, "removals")
     serial = form.choice("pump", {v for v, _ in _pump_options(session, installed_only=True)}, required=True)
+    if serial is not None:  # its time is read in the pump's site's zone, its number with that site's decimal mark
+        site = sitelocal.of_pump(session, serial)
+        form.zone, form.decimal_comma = site.time_zone, site.decimal_comma
     removed_at, hours = form.get("removed_at"), form.get("hours")
     form.check(rules.not_in_future(form.row(), "removed_at", utcnow()))
     form.raise_if_any()
@@ -460,7 +467,7 @@ def _removal_save(session: Session, key: str | None, values: dict) -> Saved:
 def _event_fields(session: Session, key: str | None) -> list[Field]:
     return [
         Field("pump", "Pump", "select", required=True, options=_pump_options(session)),
-        Field("date", "Date", "datetime", required=True),
+        Field("date", "Date", "datetime", required=True, help=SITE_TIME),
         Field("kind", "Work done", "select", required=True, options=tuple(EVENT_KINDS.items())),
         Field("hours", "Pump hour meter", "number", quantity="hours"),
         Field("cost", "Cost", "number", help="site currency"),
@@ -481,7 +488,7 @@ def _event_save(session: Session, key: str | None, values: dict) -> Saved:
 def _sample_fields(session: Session, key: str | None) -> list[Field]:
     return [
         Field("machine_id", "Machine (reservoir)", "select", required=True, options=_machine_options(session)),
-        Field("sampled_at", "Sampled on", "datetime", required=True),
+        Field("sampled_at", "Sampled on", "datetime", required=True, help=SITE_TIME),
         Field("reported_at", "Reported on", "datetime", help="blank: still at the lab"),
         Field("iso4406", "ISO 4406 code", help="e.g. 18/16/13 or -/16/13"),
         Field("water", "Water", "number", help="ppm"),
