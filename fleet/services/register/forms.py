@@ -17,6 +17,7 @@ from fleet import units
 from fleet.db.models import LimitDefault, Machine, Oil, Position, Pump, Site
 from fleet.db.queries import current_installations
 from fleet.io import rules
+from fleet.io.localtime import form_value
 from fleet.io.parse import ImportRejected
 from fleet.kinds import EVENT_KINDS, FAILURE_MODES, PUMP_KINDS
 from fleet.services import sitelocal
@@ -514,7 +515,12 @@ def _no_initial(session: Session, key: str | None) -> dict:
 
 
 def _now_initial(name: str) -> Callable[[Session, str | None], dict]:
-    return lambda session, key: {name: utcnow().strftime("%Y-%m-%dT%H:%M")}
+    """Now as the form's default: the sites' local time when they share one zone. The pump (so its site) is chosen
+    in the same form, so with sites in different zones the time is left for the user to type."""
+    def initial(session: Session, key: str | None) -> dict:
+        zones = set(session.scalars(select(Site.time_zone))) or {"UTC"}
+        return {name: form_value(utcnow(), zones.pop()) if len(zones) == 1 else ""}
+    return initial
 
 
 NEW_ONLY, EDIT_ONLY = frozenset({"new"}), frozenset({"edit"})
