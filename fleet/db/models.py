@@ -8,7 +8,7 @@ then reports as a change against the migrations.
 from datetime import datetime
 from typing import Any
 
-from sqlalchemy import JSON, Boolean, DateTime, Float, ForeignKey, Index, Integer, String, Text, UniqueConstraint, false
+from sqlalchemy import JSON, Boolean, DateTime, Float, ForeignKey, Index, Integer, String, Text, UniqueConstraint
 from sqlalchemy.orm import Mapped, mapped_column, relationship
 
 from fleet.db.base import Base
@@ -31,7 +31,7 @@ class Site(Base):
     pressure_unit: Mapped[str] = mapped_column(String(16), default="bar", server_default="bar")
     flow_unit: Mapped[str] = mapped_column(String(16), default="L/min", server_default="L/min")
     temperature_unit: Mapped[str] = mapped_column(String(16), default="degC", server_default="degC")
-    decimal_comma: Mapped[bool] = mapped_column(Boolean, default=False, server_default=false())
+    decimal_comma: Mapped[bool] = mapped_column(Boolean, default=False, server_default="0")
 
     machines: Mapped[list["Machine"]] = relationship(back_populates="site", order_by="Machine.name")
 

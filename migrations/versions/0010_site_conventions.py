@@ -22,7 +22,7 @@ def upgrade() -> None:
         batch_op.add_column(sa.Column("flow_unit", sa.String(length=16), server_default="L/min", nullable=False))
         batch_op.add_column(sa.Column("temperature_unit", sa.String(length=16), server_default="degC",
                                       nullable=False))
-        batch_op.add_column(sa.Column("decimal_comma", sa.Boolean(), server_default=sa.false(), nullable=False))
+        batch_op.add_column(sa.Column("decimal_comma", sa.Boolean(), server_default="0", nullable=False))
 
 
 def downgrade() -> None:
