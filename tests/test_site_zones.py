@@ -13,7 +13,7 @@ from click.testing import CliRunner
 from sqlalchemy import func, select
 
 from fleet.cli import main
-from fleet.db.models import Pump, Reading, Site
+from fleet.db.models import Installation, Pump, Reading, Site
 from fleet.io.localtime import iso_local, localize, zone_name
 from fleet.io.parse import ImportRejected, parse_table
 from fleet.services.sitelocal import row_conventions
@@ -269,3 +269,13 @@ def test_rounds_form_without_comma_says_so_and_keeps_the_values(client, demo_db)
     page = response.get_data(as_text=True)
     assert response.status_code == 422
     assert "this site writes decimals with a point" in page and 'value="100,5"' in page
+
+
+def test_a_register_form_reads_its_time_in_the_pumps_site_zone(client, demo_db):
+    _set_site(demo_db, time_zone="Asia/Kolkata")  # UTC+05:30 all year (IANA data; no daylight saving)
+    local = (datetime.now(ZoneInfo("Asia/Kolkata")) - timedelta(hours=2)).replace(second=0, microsecond=0)
+    response = client.post("/register/removal/new", data={"pump": PUMP, "removed_at": f"{local:%Y-%m-%dT%H:%M}"})
+    assert response.status_code == 302, response.get_data(as_text=True)
+    with demo_db.sessions() as session:
+        removed = session.scalar(select(func.max(Installation.removed_at)).join(Pump).where(Pump.serial == PUMP))
+    assert removed == local.astimezone(UTC).replace(tzinfo=None)
