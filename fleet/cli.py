@@ -134,19 +134,26 @@ def import_(db: Database, kind: str, file: Path, no_analysis: bool) -> None:
 @main.command("export")
 @click.argument("kind", type=click.Choice(list(KINDS)))
 @click.argument("file", type=click.Path(dir_okay=False, allow_dash=True))
+@click.option("--units", "unit_mode", type=click.Choice(["canonical", "site"]), default="canonical",
+              show_default=True, help="'site': pressure, flow and temperature in the units of the rows' site")
+@click.option("--site", default=None, help="only the rows of this site")
 @click.pass_obj
-def export(db: Database, kind: str, file: str) -> None:
-    """Write KIND to FILE as CSV (canonical units in the headers), as an .xlsx spreadsheet when FILE ends in .xlsx,
-    or as CSV to standard output for '-'. Text that a spreadsheet would run as a formula gets a leading quote."""
+def export(db: Database, kind: str, file: str, unit_mode: str, site: str | None) -> None:
+    """Write KIND to FILE as CSV (canonical units in the headers unless --units site; times in each row's site's
+    local time with the offset), as an .xlsx spreadsheet when FILE ends in .xlsx, or as CSV to standard output for
+    '-'. Text that a spreadsheet would run as a formula gets a leading quote."""
     from fleet.io.files import is_xlsx_path
-    from fleet.services.transfer.exporting import export_csv, export_xlsx
+    from fleet.services.transfer.exporting import ExportError, export_csv, export_xlsx
 
     db.require_current()
     with db.sessions() as session:
-        if file != "-" and is_xlsx_path(file):
-            content, rows = export_xlsx(session, kind)
-        else:
-            content, rows = export_csv(session, kind)
+        try:
+            if file != "-" and is_xlsx_path(file):
+                content, rows = export_xlsx(session, kind, unit_mode, site)
+            else:
+                content, rows = export_csv(session, kind, unit_mode, site)
+        except ExportError as error:
+            raise click.ClickException(str(error)) from None
     if file == "-":
         click.echo(content, nl=False)
         return

@@ -46,6 +46,28 @@ LABELS: dict[str, str] = {
 }
 
 # Units people write that pint does not know, or would read in a way the trade does not mean.
+# How a unit is written for people (pages, forms, chart axes, messages); files keep pint's spelling.
+_SHOWN: dict[str, str] = {
+    "degC": "°C",
+    "degF": "°F",
+    "gal/min": "US gal/min",
+    "m**3/h": "m³/h",
+    "cm**3": "cm³",
+    "cm3/rev": "cm³/rev",
+    "in3/rev": "in³/rev",
+    "mm2/s": "mm²/s",
+    "mm**2/s": "mm²/s",
+}
+
+
+def shown(unit_text: str | None) -> str:
+    """A unit as a page shows it: '°C' for degC, 'US gal/min' for gal/min, 'm³/h' for m**3/h."""
+    text = unit_text or ""
+    return _SHOWN.get(text, text.replace("**3", "³").replace("**2", "²"))
+
+
+SHOWN_LABELS: dict[str, str] = {quantity: shown(label) for quantity, label in LABELS.items()}
+
 _ALIASES: dict[str, str] = {
     "gpm": "gal/min",
     "usgpm": "gal/min",
@@ -127,7 +149,7 @@ def resolve(unit_text: str | None, quantity: str) -> tuple[float, pint.Unit]:
         raise UnitError(f"unit {unit_text!r} is not a unit fleet knows") from exc
     if not isinstance(parsed, pint.Quantity) or parsed.dimensionality != canonical.dimensionality:
         raise UnitError(f"unit {unit_text!r} is not a unit of {quantity} (expected something like "
-                        f"{LABELS[quantity] or 'a plain number or %'})")
+                        f"{SHOWN_LABELS[quantity] or 'a plain number or %'})")
     return float(parsed.magnitude), parsed.units
 
 
@@ -179,3 +201,26 @@ def linear_form(unit_text: str | None, quantity: str) -> tuple[float, float]:
     affine), so a device can convert typed numbers with these two figures, computed here by pint."""
     offset, one = to_canonical([0.0, 1.0], unit_text, quantity)
     return float(one - offset), float(offset)
+
+
+# The units a site may choose for its pages and forms (fleet.db.models.Site): canonical first.
+SITE_QUANTITIES: dict[str, str] = {"pressure_unit": "pressure", "flow_unit": "flow", "temperature_unit": "temperature"}
+SITE_UNITS: dict[str, tuple[str, ...]] = {
+    "pressure": ("bar", "psi", "kPa", "MPa"),
+    "flow": ("L/min", "gal/min", "m**3/h"),
+    "temperature": ("degC", "degF"),
+}
+
+
+def site_unit(unit_text: str | None, quantity: str) -> str:
+    """The site's display unit for ``quantity`` as fleet spells it, checked by pint; UnitError when it is not one
+    of the site choices (a site picks from a short list, so every page can label it)."""
+    text = (unit_text or "").strip()
+    if not text:
+        return SITE_UNITS[quantity][0]
+    resolve(text, quantity)  # pint knows it, and it measures the quantity
+    for choice in SITE_UNITS[quantity]:
+        if choice.lower() == text.lower() or shown(choice).lower() == text.lower():
+            return choice
+    offered = ", ".join(shown(c) for c in SITE_UNITS[quantity])
+    raise UnitError(f"unit {text!r} is not offered for a site's {quantity} (one of {offered})")

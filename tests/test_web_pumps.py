@@ -15,7 +15,7 @@ FIXED_PUMP = "EY-104"  # invented demo plant: an internal gear pump (fixed displ
 PISTON_PUMP = "EY-101"  # invented demo plant: a variable axial piston pump with a case drain
 
 PAGE_KEYS = {"pump", "where", "oil", "limits", "headline", "installations", "events", "readings", "trend",
-             "samples", "flow_test"}
+             "samples", "flow_test", "site_units"}
 HEADLINE_KEYS = {"status", "reasons", "rank", "eta_v_ref", "eta_v_decline_per_1000h", "drain_pct_ref",
                  "hours_to_limit", "hours_to_limit_low", "hours_to_limit_high", "limit_date", "governing_limit",
                  "prior_hours_to_overhaul", "energy_cost_per_year", "limit_date_low", "limit_date_high",

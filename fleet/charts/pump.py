@@ -4,9 +4,11 @@ Colours follow the dashboard's palette; every series is also told apart by marke
 legend entry, so nothing rests on colour alone.
 """
 
+import numpy as np
 import pandas as pd
 import plotly.graph_objects as go
 
+from fleet import units
 from fleet.charts import chart_html
 from fleet.physics.cleanliness import parse_code
 
@@ -92,19 +94,25 @@ def drain_figure(readings: pd.DataFrame, limit_pct, events: pd.DataFrame | None 
     return _layout(fig, "running hours (h)", "case drain, % of max flow")
 
 
-def temperature_figure(readings: pd.DataFrame, min_c, max_c, events: pd.DataFrame | None = None) -> go.Figure:
-    """Oil temperature at each reading against time, with the pump's lower and upper limits.
+def temperature_figure(readings: pd.DataFrame, min_c, max_c, events: pd.DataFrame | None = None,
+                       unit: str = "degC") -> go.Figure:
+    """Oil temperature at each reading against the site's local time, in ``unit``, with the pump's limits.
 
-    readings: taken_at, oil_temp_c. events: date, kind_label.
+    readings: taken_at (ISO 8601 with offset), oil_temp_c. events: date, kind_label.
     """
+    def shown(values):
+        return units.from_canonical(np.asarray(values, dtype=float), "temperature", unit)
+
+    min_c, max_c = (None if v is None else float(shown([v])[0]) for v in (min_c, max_c))
     fig = go.Figure()
-    fig.add_trace(go.Scatter(x=readings["taken_at"], y=readings["oil_temp_c"], mode="lines+markers",
+    # plotly draws wall-clock times: the local time without its offset (the page names the zone)
+    fig.add_trace(go.Scatter(x=readings["taken_at"].str[:16], y=shown(readings["oil_temp_c"]), mode="lines+markers",
                              name="oil temperature", marker={"color": ACCENT, "symbol": "square", "size": 6},
                              line={"color": ACCENT, "width": 1}))
     _limit_line(fig, max_c, "upper limit")
     _limit_line(fig, min_c, "lower limit")
     _event_lines(fig, events, "date")
-    return _layout(fig, "date", "oil temperature (°C)")
+    return _layout(fig, "date (site time)", f"oil temperature ({units.shown(unit)})")
 
 
 def cleanliness_figure(samples: pd.DataFrame, target: tuple | None) -> go.Figure:
@@ -126,18 +134,27 @@ def cleanliness_figure(samples: pd.DataFrame, target: tuple | None) -> go.Figure
     return _layout(fig, "sampled", "ISO 4406 scale number")
 
 
-def flow_test_figure(points: pd.DataFrame, baseline: pd.DataFrame) -> go.Figure:
-    """A multi-point flow test's flow against pressure, beside the line the pump's baseline slip gives.
+def flow_test_figure(points: pd.DataFrame, baseline: pd.DataFrame, pressure_unit: str = "bar",
+                     flow_unit: str = "L/min") -> go.Figure:
+    """A multi-point flow test's flow against pressure, beside the line the pump's baseline slip gives, in the
+    site's units.
 
     points, baseline: pressure_bar, flow_lpm.
     """
+    def p(frame):
+        return units.from_canonical(frame["pressure_bar"].to_numpy(float), "pressure", pressure_unit)
+
+    def q(frame):
+        return units.from_canonical(frame["flow_lpm"].to_numpy(float), "flow", flow_unit)
+
     fig = go.Figure()
-    fig.add_trace(go.Scatter(x=baseline["pressure_bar"], y=baseline["flow_lpm"], mode="lines", name="baseline",
+    fig.add_trace(go.Scatter(x=p(baseline), y=q(baseline), mode="lines", name="baseline",
                              line={"color": MUTED, "dash": "dash", "width": 2}))
-    fig.add_trace(go.Scatter(x=points["pressure_bar"], y=points["flow_lpm"], mode="lines+markers",
+    fig.add_trace(go.Scatter(x=p(points), y=q(points), mode="lines+markers",
                              name="this test", marker={"color": ACCENT, "symbol": "circle", "size": 9},
                              line={"color": ACCENT, "width": 1}))
-    return _layout(fig, "outlet pressure (bar)", "outlet flow (L/min)")
+    return _layout(fig, f"outlet pressure ({units.shown(pressure_unit)})",
+                   f"outlet flow ({units.shown(flow_unit)})")
 
 
 def figure_html(fig: go.Figure, div_id: str) -> str:
@@ -152,6 +169,7 @@ def page_charts(data: dict) -> dict[str, str]:
     readings = pd.DataFrame(data["readings"])
     events = pd.DataFrame(data["events"], columns=["date", "chart_hours", "kind_label"])
     limits = data["limits"]
+    site_units = data["site_units"]
     if len(readings):
         readings = readings.astype({c: float for c in ("hours", "eta_v", "eta_v_ref", "case_drain_pct",
                                                        "case_drain_pct_ref", "oil_temp_c")})
@@ -162,7 +180,8 @@ def page_charts(data: dict) -> dict[str, str]:
             out["drain"] = figure_html(
                 drain_figure(readings, limits["drain_limit_pct"], events), "chart-drain")
         out["temperature"] = figure_html(
-            temperature_figure(readings, limits["oil_temp_min_c"], limits["oil_temp_max_c"], events),
+            temperature_figure(readings, limits["oil_temp_min_c"], limits["oil_temp_max_c"], events,
+                               site_units["temperature"]),
             "chart-temperature")
     if data["samples"]:
         samples = pd.DataFrame(data["samples"]).astype({"code_4": float, "code_6": float, "code_14": float})
@@ -171,7 +190,8 @@ def page_charts(data: dict) -> dict[str, str]:
     if data["flow_test"]:
         test = data["flow_test"]
         out["flow_test"] = figure_html(
-            flow_test_figure(pd.DataFrame(test["points"]), pd.DataFrame(test["baseline"])), "chart-flowtest")
+            flow_test_figure(pd.DataFrame(test["points"]), pd.DataFrame(test["baseline"]), site_units["pressure"],
+                             site_units["flow"]), "chart-flowtest")
     return out
 
 

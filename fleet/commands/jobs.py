@@ -208,9 +208,10 @@ def round_(db, route: str, taken_by: str, units_given: tuple[str, ...]) -> None:
     from fleet.db.queries import pump_by_serial
     from fleet.io.parse import ImportRejected
     from fleet.services.rounds import check_reading, fields_for, reading_table, save_readings
+    from fleet.services.sitelocal import of_pump
     from fleet.timeutil import utcnow
 
-    chosen = _parse_units(units_given)
+    given = _parse_units(units_given)
     db.require_current()
     with db.sessions() as session:
         name, serials = _route_pumps(session, route)
@@ -220,12 +221,17 @@ def round_(db, route: str, taken_by: str, units_given: tuple[str, ...]) -> None:
         with db.sessions() as session:
             pump = pump_by_serial(session, serial)
             click.echo(f"[{number}/{len(serials)}] {serial} ({pump.kind.replace('_', ' ')})")
+            # The pump's site's units unless --unit says otherwise; its decimal comma applies too.
+            site = of_pump(session, pump)
+            chosen = {**_site_defaults(site), **given}
             values = _ask_values(fields_for(pump), chosen)
             if values is None:
                 click.echo("  skipped\n")
                 continue
             while True:
-                table = reading_table(serial, utcnow().strftime("%Y-%m-%d %H:%M"), values, chosen, taken_by=taken_by)
+                # now, with its offset: a time without one would be read in the site's zone
+                table = reading_table(serial, utcnow().strftime("%Y-%m-%dT%H:%M:%S+00:00"), values, chosen,
+                                      taken_by=taken_by)
                 outcome = check_reading(session, pump, table)
                 if outcome.problems:
                     for problem in outcome.problems:
@@ -255,10 +261,9 @@ def round_(db, route: str, taken_by: str, units_given: tuple[str, ...]) -> None:
 
 def _parse_units(given: tuple[str, ...]) -> dict[str, str]:
     from fleet.services.rounds import FORM_FIELDS
-    from fleet.units import CHOICES
 
     quantities = {f.name: f.quantity for f in FORM_FIELDS if f.quantity}
-    chosen = {name: CHOICES[q][0] for name, q in quantities.items()}
+    chosen = {}
     for item in given:
         field, _, unit = item.partition("=")
         if field not in quantities or not unit:
@@ -268,11 +273,21 @@ def _parse_units(given: tuple[str, ...]) -> dict[str, str]:
     return chosen
 
 
+def _site_defaults(site) -> dict[str, str]:
+    """Each form field's unit: the site's for pressure, flow and temperature, canonical for the rest."""
+    from fleet.services.rounds import FORM_FIELDS
+    from fleet.units import CHOICES
+
+    return {f.name: site.unit_of(f.quantity) or CHOICES[f.quantity][0] for f in FORM_FIELDS if f.quantity}
+
+
 def _ask_values(fields, chosen: dict[str, str], before: dict | None = None) -> dict[str, str] | None:
+    from fleet.units import shown
+
     values: dict[str, str] = {}
     for spec in fields:
         unit = "%" if spec.name == "stroke" else chosen.get(spec.name, "")
-        prompt = f"  {spec.label}" + (f" [{unit}]" if unit and spec.name != "stroke" else "") + \
+        prompt = f"  {spec.label}" + (f" [{shown(unit)}]" if unit and spec.name != "stroke" else "") + \
                  ("" if spec.required else " (optional)")
         default = (before or {}).get(spec.name, "")
         # A required field without an earlier answer has no default, so click asks until it gets one.

@@ -25,6 +25,13 @@ class Site(Base):
     tariff_per_kwh: Mapped[float] = mapped_column(Float, default=0.15)
     motor_efficiency: Mapped[float] = mapped_column(Float, default=0.93)
     note: Mapped[str | None] = mapped_column(Text)
+    # How the site's people write times and numbers (fleet.sitelocal): an IANA zone, display units as
+    # fleet.units spells them, and whether a comma may be the decimal mark. Storage stays UTC and canonical.
+    time_zone: Mapped[str] = mapped_column(String(64), default="UTC", server_default="UTC")
+    pressure_unit: Mapped[str] = mapped_column(String(16), default="bar", server_default="bar")
+    flow_unit: Mapped[str] = mapped_column(String(16), default="L/min", server_default="L/min")
+    temperature_unit: Mapped[str] = mapped_column(String(16), default="degC", server_default="degC")
+    decimal_comma: Mapped[bool] = mapped_column(Boolean, default=False, server_default="0")
 
     machines: Mapped[list["Machine"]] = relationship(back_populates="site", order_by="Machine.name")
 

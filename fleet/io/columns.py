@@ -45,6 +45,11 @@ SITES = (
     _num("motor_efficiency", "fraction", "drive motor efficiency (fraction, or tag the header [%])",
          min_=0.3, max_=1.0),
     Column("note", "text"),
+    Column("time_zone", "text", help="IANA time zone of the site's clocks, e.g. America/Chicago (default UTC)"),
+    Column("pressure_unit", "text", help="pressure shown on pages and typed in forms: bar, psi, kPa or MPa"),
+    Column("flow_unit", "text", help="flow shown and typed: L/min, gal/min (US) or m**3/h"),
+    Column("temperature_unit", "text", help="temperature shown and typed: degC or degF"),
+    Column("decimal_comma", "bool", help="accept a decimal comma (120,5) in this site's forms and files (yes/no)"),
 )
 
 PUMPS = (

@@ -11,6 +11,7 @@ import pandas as pd
 
 from fleet import units
 from fleet.io.columns import KINDS, Column
+from fleet.io.localtime import localize
 from fleet.kinds import EVENT_KINDS, FAILURE_MODES, PUMP_KINDS, READING_SOURCES, normalise_kind
 from fleet.physics.cleanliness import parse_code
 
@@ -25,6 +26,11 @@ DEFAULT_TEXT_LENGTH = 120
 # have happened already (a reading, an installation, a sample, a maintenance event) is also no later than now
 # (fleet.io.rules.not_in_future).
 EARLIEST, LATEST = pd.Timestamp("1970-01-01"), pd.Timestamp("2100-12-31 23:59:59")
+OFFSET = r"(?:Z|[+-]\d{2}:?\d{2})$"
+# A decimal comma, where a site allows one: digits, one comma, digits. A cell that could also be read with the comma
+# as a thousands separator ('12,500': 12.5 or 12500?) is refused, as is any cell with both a comma and a point.
+COMMA_DECIMAL = r"[+-]?\d+,\d+"
+THOUSANDS_LIKE = r"[+-]?[1-9]\d{0,2},\d{3}"
 ISO_TIME = r"\d{4}-\d{2}-\d{2}(?:[T ]\d{2}:\d{2}(?::\d{2}(?:\.\d{1,9})?)?)?(?:Z|[+-]\d{2}:?\d{2})?"
 
 
@@ -51,6 +57,20 @@ class ImportRejected(Exception):
         return "\n".join(str(p) for p in self.problems)
 
 
+@dataclass(frozen=True)
+class RowConventions:
+    """How each row's site writes (the caller knows each row's site): an IANA zone for times without an offset,
+    and whether a comma may be the decimal mark. Both indexed like the table's rows; None means UTC / no comma."""
+
+    zones: pd.Series | None = None
+    decimal_comma: pd.Series | None = None
+
+    def aligned(self, index: pd.Index) -> "RowConventions":
+        zones = None if self.zones is None else pd.Series(self.zones.to_numpy(), index=index)
+        comma = None if self.decimal_comma is None else pd.Series(self.decimal_comma.to_numpy(), index=index)
+        return RowConventions(zones, comma)
+
+
 @dataclass
 class ParsedTable:
     kind: str
@@ -70,8 +90,10 @@ def _cells(series: pd.Series) -> pd.Series:
     return text.mask(text == "")
 
 
-def parse_table(kind: str, table: pd.DataFrame) -> tuple[ParsedTable, list[Problem]]:
-    """Parse ``table`` (any cells; read CSVs with dtype=str) as an import of ``kind``."""
+def parse_table(kind: str, table: pd.DataFrame, conventions: RowConventions | None = None
+                ) -> tuple[ParsedTable, list[Problem]]:
+    """Parse ``table`` (any cells; read CSVs with dtype=str) as an import of ``kind``, each row by its site's
+    ``conventions`` (default: UTC, decimal point)."""
     if kind not in KINDS:
         raise KeyError(f"unknown kind {kind!r}; one of {', '.join(KINDS)}")
     specs = {column.name: column for column in KINDS[kind]}
@@ -108,18 +130,23 @@ def parse_table(kind: str, table: pd.DataFrame) -> tuple[ParsedTable, list[Probl
             problems.append(Problem(1, spec.name, "required column is missing"))
 
     table = table.reset_index(drop=True)
+    conventions = (conventions or RowConventions()).aligned(table.index)
     data = pd.DataFrame(index=table.index)
     for name, (_header, unit) in headers.items():
-        values, column_problems = _parse_column(specs[name], table.iloc[:, positions[name]], unit)
+        values, column_problems = _parse_column(specs[name], table.iloc[:, positions[name]], unit, conventions)
         data[name] = values
         problems.extend(column_problems)
     parsed = ParsedTable(kind, data, set(headers), {k: u for k, (_, u) in headers.items()}, ignored)
     return parsed, problems
 
 
-def parse_cell(spec: Column, text, unit: str | None = None) -> tuple[object, list[str]]:
-    """One value (a form's field) parsed exactly as a cell of a file: (canonical value or None, reasons)."""
-    values, problems = _parse_column(spec, pd.Series(["" if text is None else str(text)], dtype=object), unit)
+def parse_cell(spec: Column, text, unit: str | None = None, zone: str | None = None,
+               decimal_comma: bool = False) -> tuple[object, list[str]]:
+    """One value (a form's field) parsed exactly as a cell of a file of the same site: (canonical value or None,
+    reasons)."""
+    conventions = RowConventions(pd.Series([zone]), pd.Series([decimal_comma]))
+    values, problems = _parse_column(spec, pd.Series(["" if text is None else str(text)], dtype=object), unit,
+                                     conventions)
     value = values.iloc[0]
     if problems or value is None or value is pd.NaT or (isinstance(value, float) and np.isnan(value)):
         return None, [p.reason for p in problems]
@@ -142,7 +169,31 @@ def _not_utf8(cell: str) -> bool:
     return False
 
 
-def _parse_numbers(spec: Column, cells: pd.Series, blank: pd.Series, unit: str | None, flag) -> pd.Series:
+def _decimal_commas(cells: pd.Series, blank: pd.Series, allowed: pd.Series | None, flag) -> pd.Series:
+    """Cells with a decimal comma rewritten with a point where the row's site allows it; the others flagged."""
+    comma = ~blank & cells.str.contains(",", regex=False).fillna(False).astype(bool)
+    if not comma.any():
+        return cells
+    allowed = pd.Series(False, index=cells.index) if allowed is None else allowed.fillna(False).astype(bool)
+    shaped = cells.str.fullmatch(COMMA_DECIMAL).fillna(False).astype(bool)
+    doubtful = cells.str.fullmatch(THOUSANDS_LIKE).fillna(False).astype(bool)
+    flag(comma & ~allowed, lambda cell: f"'{cell}' is not a number: this site writes decimals with a point "
+         "(its decimal comma setting is off), and thousands are written without separators")
+    flag(comma & allowed & ~shaped, lambda cell: f"'{cell}' is not a number: write one decimal comma and no "
+         "thousands separators (e.g. 1250,5)")
+    flag(comma & allowed & shaped & doubtful, lambda cell: f"'{cell}' could be a decimal or a thousands "
+         f"separator; write {cell.replace(',', '')} for thousands or drop the trailing zeros for a decimal")
+    readable = comma & allowed & shaped & ~doubtful
+    return cells.mask(comma & ~readable, "").where(~readable, cells.str.replace(",", ".", regex=False))
+
+
+def _parse_numbers(spec: Column, cells: pd.Series, blank: pd.Series, unit: str | None, flag,
+                   decimal_comma: pd.Series | None = None) -> pd.Series:
+    refused_before = len(flag.problems)
+    cells = _decimal_commas(cells, blank, decimal_comma, flag)
+    already = pd.Series(False, index=cells.index)
+    already.iloc[[flag.positions[i] for i in range(refused_before, len(flag.problems))]] = True
+    blank = blank | already
     # Cell by cell to float: a 400-digit integer becomes inf (refused below), never an OverflowError.
     numbers = pd.Series([_to_float(c) for c in cells], index=cells.index, dtype=float)
     flag(~blank & numbers.isna(), lambda cell: f"'{cell}' is not a number")
@@ -159,8 +210,8 @@ def _parse_numbers(spec: Column, cells: pd.Series, blank: pd.Series, unit: str |
     def bound(value: float) -> str:
         """A bound in the unit the number was given in (a stroke typed in % is told its bounds in %)."""
         if spec.quantity and unit and not units.is_canonical(unit, spec.quantity):
-            return f"{float(units.from_canonical([value], spec.quantity, unit)[0]):g} {unit}"
-        return f"{value:g} {units.LABELS.get(spec.quantity or '', '')}".rstrip()
+            return f"{float(units.from_canonical([value], spec.quantity, unit)[0]):g} {units.shown(unit)}"
+        return f"{value:g} {units.SHOWN_LABELS.get(spec.quantity or '', '')}".rstrip()
 
     with np.errstate(invalid="ignore"):
         if spec.positive:
@@ -187,32 +238,54 @@ def _to_float(cell) -> float:
         return np.inf
 
 
-def _parse_times(cells: pd.Series, blank: pd.Series, flag) -> pd.Series:
-    """ISO 8601 text only ('now' or '20260101' are not dates here), with an offset converted to UTC, to the
-    microsecond the database keeps, between EARLIEST and LATEST."""
+def _parse_times(cells: pd.Series, blank: pd.Series, flag, zones: pd.Series | None = None) -> pd.Series:
+    """ISO 8601 text only ('now' or '20260101' are not dates here), with an offset converted to UTC, without one
+    read in the row's zone (fleet.io.localtime), to the microsecond the database keeps, between EARLIEST and
+    LATEST."""
     iso = cells.str.fullmatch(ISO_TIME).fillna(False).astype(bool)
     flag(~blank & ~iso, lambda cell: f"'{cell}' is not a date (write YYYY-MM-DD or YYYY-MM-DD HH:MM)")
     # Years far outside the window are refused before pandas, whose times end in 1677 and 2262.
     far = iso & ~cells.str[:4].between(f"{EARLIEST.year - 1}", f"{LATEST.year + 1}").fillna(False).astype(bool)
     text = cells.where(iso & ~far)
-    stamps = pd.to_datetime(text, errors="coerce", format="ISO8601", utc=True)
-    flag(~blank & iso & ~far & stamps.isna(), lambda cell: f"'{cell}' is not a date (write YYYY-MM-DD or "
-         "YYYY-MM-DD HH:MM)")
-    stamps = stamps.dt.tz_localize(None).dt.floor("us")
+    offset = text.str.contains(OFFSET).fillna(False).astype(bool)
+    stamps = pd.to_datetime(text.where(offset), errors="coerce", format="ISO8601", utc=True).dt.tz_localize(None)
+    wall = pd.to_datetime(text.where(~offset), errors="coerce", format="ISO8601")
+    unreadable = ~blank & iso & ~far & stamps.isna() & wall.isna()
+    flag(unreadable, lambda cell: f"'{cell}' is not a date (write YYYY-MM-DD or YYYY-MM-DD HH:MM)")
+    zones = pd.Series("UTC", index=cells.index) if zones is None else zones
+    local, reasons = localize(wall, zones)
+    for position, reason in reasons.items():
+        flag.at(position, reason)
+    stamps = stamps.where(offset, local).astype("datetime64[ns]").dt.floor("us")
     outside = far | (stamps < EARLIEST) | (stamps > LATEST)
     flag(outside, lambda cell: f"{cell} is outside the dates fleet keeps ({EARLIEST:%Y-%m-%d} to {LATEST:%Y-%m-%d})")
     return stamps.mask(outside)
 
 
-def _parse_column(spec: Column, raw: pd.Series, unit: str | None) -> tuple[pd.Series, list[Problem]]:
+class _Flagger:
+    """Files a Problem for every flagged cell of one column, and remembers which cells were flagged."""
+
+    def __init__(self, spec: Column, cells: pd.Series):
+        self.spec, self.cells, self.rows = spec, cells, row_numbers(cells.index)
+        self.problems: list[Problem] = []
+        self.positions: list[int] = []
+
+    def __call__(self, mask, reason_for) -> None:
+        for position in np.flatnonzero(np.asarray(mask)):
+            self.at(int(position), reason_for(_shown(self.cells.iloc[position])))
+
+    def at(self, position: int, reason: str) -> None:
+        self.problems.append(Problem(int(self.rows[position]), self.spec.name, reason))
+        self.positions.append(position)
+
+
+def _parse_column(spec: Column, raw: pd.Series, unit: str | None,
+                  conventions: RowConventions | None = None) -> tuple[pd.Series, list[Problem]]:
     cells = _cells(raw)
     blank = cells.isna()
-    problems: list[Problem] = []
-    rows = row_numbers(cells.index)
-
-    def flag(mask, reason_for):
-        for position in np.flatnonzero(np.asarray(mask)):
-            problems.append(Problem(int(rows[position]), spec.name, reason_for(_shown(cells.iloc[position]))))
+    flag = _Flagger(spec, cells)
+    problems = flag.problems
+    conventions = (conventions or RowConventions()).aligned(cells.index)
 
     if spec.required:
         flag(blank, lambda _cell: "a value is required")
@@ -225,10 +298,10 @@ def _parse_column(spec: Column, raw: pd.Series, unit: str | None) -> tuple[pd.Se
     cells, blank = cells.mask(nul | broken), blank | nul | broken
 
     if spec.type == "number":
-        return _parse_numbers(spec, cells, blank, unit, flag), problems
+        return _parse_numbers(spec, cells, blank, unit, flag, conventions.decimal_comma), problems
 
     if spec.type == "datetime":
-        return _parse_times(cells, blank, flag), problems
+        return _parse_times(cells, blank, flag, conventions.zones), problems
 
     if spec.type == "bool":
         lowered = cells.str.lower()
@@ -257,7 +330,7 @@ def _parse_column(spec: Column, raw: pd.Series, unit: str | None) -> tuple[pd.Se
             try:
                 codes.append(parse_code(cell))
             except ValueError as exc:
-                problems.append(Problem(int(rows[position]), spec.name, str(exc)))
+                flag.at(position, str(exc))
                 codes.append(None)
         return pd.Series(codes, index=cells.index, dtype=object), problems
 

@@ -16,6 +16,7 @@ from fleet import units
 from fleet.db.models import Installation, Machine, Position, Pump, Reading, Route, RouteStop, Site
 from fleet.db.queries import current_places
 from fleet.io.columns import READINGS
+from fleet.io.localtime import iso_local, offset_text, to_local
 from fleet.io.meter import meter_doubt
 from fleet.io.parse import Problem, parse_table
 from fleet.io.rules import FUTURE_TOLERANCE
@@ -24,6 +25,7 @@ from fleet.kinds import PUMP_KINDS
 from fleet.physics.pump import theoretical_flow_lpm
 from fleet.safety import HOT_OIL_CAUTION
 from fleet.services.analysis.frames import load_pumps
+from fleet.services.sitelocal import UTC_CANONICAL, Conventions, of_pump, of_site, pump_sites, row_conventions
 from fleet.services.transfer.importing import ImportResult, check_readings, import_table
 from fleet.services.writes import Outcome, perform
 from fleet.timeutil import utcnow
@@ -144,15 +146,18 @@ def route_walk(session: Session, route_id: int, now: datetime | None = None) -> 
     now = now or utcnow()
     places = _current_places(session)
     last = _last_readings(session, [stop.pump_id for stop in route.stops])
+    sites = pump_sites(session, [stop.pump.serial for stop in route.stops])
     stops = []
     for number, stop in enumerate(route.stops, start=1):
         pump = stop.pump
         at, hours = last.get(pump.id, (None, None))
+        zone_text = of_site(sites.get(pump.serial)).time_zone
         stops.append({
             "number": number, "pump": pump.serial, "kind_label": PUMP_KINDS.get(pump.kind, pump.kind),
             **{k: None for k in ("site", "machine", "position")}, **places.get(pump.id, {}),
-            "last_reading_at": at.isoformat(sep=" ", timespec="minutes") if at else None, "last_hours": hours,
-            "read_today": bool(at and at.date() == now.date()),
+            "last_reading_at": iso_local(at, zone_text, "minutes"), "last_hours": hours,
+            # 'today' as the site's clocks count it
+            "read_today": bool(at and to_local(at, zone_text).date() == to_local(now, zone_text).date()),
         })
     return {"route": {"id": route.id, "name": route.name, "note": route.note}, "stops": stops}
 
@@ -209,12 +214,20 @@ class Doubt:
     caution: str | None = None  # a safety caution shown with the doubt (fleet.safety)
 
 
-def plausibility_warnings(facts: PumpFacts, reading: dict, now: datetime) -> list[Doubt]:
+def _in(value: float, quantity: str, unit_text: str | None, digits: int) -> str:
+    """A canonical value in the site's unit with that unit, as the technician typed it: '2200.0 psi'."""
+    unit_text = unit_text or units.CANONICAL[quantity]
+    return f"{float(units.from_canonical([value], quantity, unit_text)[0]):.{digits}f} {units.shown(unit_text)}"
+
+
+def plausibility_warnings(facts: PumpFacts, reading: dict, now: datetime, site: Conventions = UTC_CANONICAL
+                          ) -> list[Doubt]:
     """Readings that can be right but often are a slip of the finger: shown before saving, never refused.
 
     ``reading`` holds canonical values: taken_at, hours, outlet_pressure (bar), speed (rpm), outlet_flow (L/min),
-    oil_temp (degC), stroke (fraction; None = full).
+    oil_temp (degC), stroke (fraction; None = full). The messages speak the pump's site's zone and units.
     """
+    zone_text = site.time_zone
     warnings = []
     known = {name: not _blank(reading.get(name)) for name in
              ("taken_at", "hours", "outlet_pressure", "speed", "outlet_flow", "oil_temp")}
@@ -225,26 +238,33 @@ def plausibility_warnings(facts: PumpFacts, reading: dict, now: datetime) -> lis
                                                  1.0 if _blank(stroke) else stroke))
         if flow > theoretical:
             warnings.append(Doubt("flow_above_theoretical", "outlet_flow",
-                                  f"Outlet flow {flow:.1f} L/min is above the theoretical {theoretical:.1f} L/min "
-                                  f"at {reading['speed']:.0f} rpm: a pump cannot deliver more than its displacement."))
+                                  f"Outlet flow {_in(flow, 'flow', site.flow_unit, 1)} is above the theoretical "
+                                  f"{_in(theoretical, 'flow', site.flow_unit, 1)} at {reading['speed']:.0f} rpm: "
+                                  "a pump cannot deliver more than its displacement."))
     if known["outlet_pressure"] and reading["outlet_pressure"] > facts.rated_pressure_bar:
+        pressure, rated = (_in(v, "pressure", site.pressure_unit, d) for v, d in
+                           ((reading["outlet_pressure"], 1), (facts.rated_pressure_bar, 0)))
         warnings.append(Doubt("pressure_above_rated", "outlet_pressure",
-                              f"Outlet pressure {reading['outlet_pressure']:.1f} bar is above the rated "
-                              f"{facts.rated_pressure_bar:.0f} bar."))
+                              f"Outlet pressure {pressure} is above the rated {rated}."))
     temp = reading.get("oil_temp")
     if known["oil_temp"] and not facts.oil_temp_min_c <= temp <= facts.oil_temp_max_c:
+        shown_temp, low, high = (_in(v, "temperature", site.temperature_unit, d) for v, d in
+                                 ((temp, 1), (facts.oil_temp_min_c, 0), (facts.oil_temp_max_c, 0)))
         warnings.append(Doubt("temperature_outside_limits", "oil_temp",
-                              f"Oil temperature {temp:.1f} °C is outside this pump's limits "
-                              f"({facts.oil_temp_min_c:.0f}–{facts.oil_temp_max_c:.0f} °C).",
+                              f"Oil temperature {shown_temp} is outside this pump's limits "
+                              f"({low.split()[0]}–{high}).",
                               HOT_OIL_CAUTION if temp > facts.oil_temp_max_c else None))
-    if known["hours"] and known["taken_at"]:
-        meter = meter_doubt(facts.last_taken_at, facts.last_hours, reading["taken_at"], reading["hours"])
+    if known["hours"] and known["taken_at"] and facts.last_taken_at is not None:
+        # Local times on both sides, so the message names the last reading's date as the site's clock had it.
+        meter = meter_doubt(to_local(facts.last_taken_at, zone_text), facts.last_hours,
+                            to_local(reading["taken_at"], zone_text), reading["hours"])
         if meter:
             warnings.append(Doubt(meter.code, "hours", meter.message))
     if known["taken_at"] and reading["taken_at"] > now:
+        taken, clock = to_local(reading["taken_at"], zone_text), to_local(now, zone_text)
         warnings.append(Doubt("time_in_future", "taken_at",
-                              f"The time {reading['taken_at']:%Y-%m-%d %H:%M} is later than now "
-                              f"({now:%Y-%m-%d %H:%M} UTC)."))
+                              f"The time {taken:%Y-%m-%d %H:%M} is later than now "
+                              f"({clock:%Y-%m-%d %H:%M}, UTC{offset_text(clock.utcoffset())})."))
     return warnings
 
 
@@ -263,13 +283,13 @@ def check_reading(session: Session, pump: Pump, table: pd.DataFrame, now: dateti
     passed them: everything the technician should look at, all at once."""
     now = now or utcnow()
     problems = check_readings(session, table, now)
-    parsed, _ = parse_table("readings", table)
+    parsed, _ = parse_table("readings", table, row_conventions(session, "readings", table))
     row = parsed.data.iloc[0]
     refused = {units.parse_header(p.column)[0] for p in problems if p.column}
     reading = {name: None if name in refused else plain(row.get(name)) for name in
                ("taken_at", "hours", "outlet_pressure", "speed", "outlet_flow", "oil_temp", "stroke")}
     facts = pump_facts(session, pump, before=None if _blank(reading["taken_at"]) else reading["taken_at"])
-    return CheckOutcome(problems=problems, warnings=plausibility_warnings(facts, reading, now))
+    return CheckOutcome(problems=problems, warnings=plausibility_warnings(facts, reading, now, of_pump(session, pump)))
 
 
 def save_readings(sessions: sessionmaker[Session], table: pd.DataFrame, source: str = "form",

@@ -4,8 +4,9 @@ from datetime import datetime
 
 from flask import Flask
 
-from fleet import safety
+from fleet import safety, units
 from fleet.horizon import USEFUL_YEARS, date_text, hours_text, is_beyond
+from fleet.io.localtime import offset_text
 from fleet.status_words import STATUS_LABELS, STATUS_METER
 from fleet.timeutil import utcnow
 
@@ -66,7 +67,32 @@ def beyond(value, hours=None) -> bool:
     return is_beyond(value, hours)
 
 
+def unit(value) -> str:
+    """A unit as people write it: '°C' for degC, 'US gal/min' for gal/min (fleet.units.shown)."""
+    return units.shown(value)
+
+
+def in_unit(value, quantity: str, unit_text: str, digits: int = 1, empty: str = "–") -> str:
+    """A canonical value shown in a site's unit, the number only: 3000 psi for 206.8 bar (fleet.units, pint)."""
+    if value is None:
+        return empty
+    return number(float(units.from_canonical([value], quantity, unit_text)[0]), digits, empty)
+
+
+def local_time(value, empty: str = "") -> str:
+    """An ISO 8601 time with its offset ('2026-01-15T08:00-06:00') as pages write it: '2026-01-15 08:00 −06:00'."""
+    if not value:
+        return empty
+    moment = datetime.fromisoformat(value) if isinstance(value, str) else value
+    if moment.tzinfo is None:
+        return f"{moment:%Y-%m-%d %H:%M} UTC"
+    return f"{moment:%Y-%m-%d %H:%M} {offset_text(moment.utcoffset()).replace('-', '−')}"
+
+
 def init_app(app: Flask) -> None:
+    app.add_template_filter(local_time)
+    app.add_template_filter(in_unit)
+    app.add_template_filter(unit)
     app.add_template_filter(number)
     app.add_template_filter(forecast_date)
     app.add_template_filter(forecast_hours)

@@ -6,7 +6,7 @@ from flask import Blueprint, redirect, render_template, request, url_for
 
 from fleet.charts.pump import page_charts
 from fleet.db.queries import pump_by_serial, serials_any_case
-from fleet.services.pages.pump import READING_COLUMNS, pump_page
+from fleet.services.pages.pump import READING_COLUMNS, pump_page, readings_in_site_units
 from fleet.web.db import session
 from fleet.web.lookup import pump_or_404
 from fleet.web.respond import is_table_format, respond, twin_routes, twin_urls, wants_json
@@ -23,7 +23,10 @@ def page(serial, fmt):
     pump_or_404(serial, fmt)
     data = pump_page(session(), serial)
     if wants_json(fmt) or is_table_format(fmt):
-        return respond(data, "pumps/page.html", fmt, "readings", READING_COLUMNS, _filename(serial))
+        columns = READING_COLUMNS
+        if request.args.get("units") == "site":  # canonical unless asked: ?units=site
+            data["readings"], columns = readings_in_site_units(data)
+        return respond(data, "pumps/page.html", fmt, "readings", columns, _filename(serial))
     return render_template("pumps/page.html", twins=twin_urls(), charts=page_charts(data), **data)
 
 

@@ -2,7 +2,8 @@
 
 The form works without JavaScript: "Check and save" runs the importer's validation and the plausibility
 checks first; doubtful values come back with the reasons and a "Save as typed" button; refused values come
-back with every typed value kept. The unit chosen for each field is remembered in a cookie.
+back with every typed value kept. Each stop's form speaks its pump's site: times in the site's zone, numbers in
+its units (a unit chosen instead is remembered per site in a cookie), a decimal comma where the site allows one.
 """
 
 from pathlib import Path
@@ -24,8 +25,9 @@ from flask import (
 from flask_wtf.csrf import generate_csrf
 
 from fleet import units
+from fleet.io.localtime import form_value
 from fleet.io.parse import ImportRejected
-from fleet.services import rounds
+from fleet.services import rounds, sitelocal
 from fleet.services.posted_readings import PLACE_PARTS
 from fleet.services.writes import perform
 from fleet.timeutil import utcnow
@@ -86,7 +88,7 @@ def walk(route_id, fmt):
     if wants_json(fmt) or is_table_format(fmt):
         return respond(data, "rounds/walk.html", fmt, "stops", STOP_COLUMNS, f"route-{route_id}")
     number = request.args.get("stop", type=int) or _first_unread(data["stops"])
-    return _render_walk(data, number, values={}, chosen=_remembered_units(), twins=twin_urls())
+    return _render_walk(data, number, values={}, chosen=None, twins=twin_urls())
 
 
 @bp.post("/rounds/<int:route_id>/stops/<int:number>")
@@ -102,7 +104,8 @@ def reading(route_id, number):
     fields = rounds.fields_for(pump)
     values = {f.name: form.get(f.name, "") for f in fields}
     values.update(taken_at=form.get("taken_at", ""), note=form.get("note", ""), taken_by=form.get("taken_by", ""))
-    chosen = _chosen_units(form)
+    conventions = sitelocal.of_pump(db, pump)
+    chosen = _chosen_units(form, conventions)
     # A blank 'taken by' is the signed-in technician; a name typed in (a colleague's reading) is kept.
     table = rounds.reading_table(pump.serial, values["taken_at"], {f.name: values[f.name] for f in fields}, chosen,
                                  values["note"], values["taken_by"].strip() or current_actor())
@@ -114,30 +117,33 @@ def reading(route_id, number):
         status = 422 if outcome.problems else 200
         page = _render_walk(data, number, values=values, chosen=chosen, outcome=outcome, checked=True,
                             twins={fmt: url_for("rounds.walk", route_id=route_id, fmt=fmt) for fmt in TWIN_FORMATS})
-        return _remember_units(page, chosen), status
+        return _remember_units(page, chosen, conventions), status
     try:
         saved = rounds.save_readings(sessions(), table)
     except ImportRejected as rejected:  # stored by someone else between the check and the save
         outcome = rounds.CheckOutcome(problems=rejected.problems)
         page = _render_walk(data, number, values=values, chosen=chosen, outcome=outcome, checked=True,
                             twins={fmt: url_for("rounds.walk", route_id=route_id, fmt=fmt) for fmt in TWIN_FORMATS})
-        return _remember_units(page, chosen), 422
+        return _remember_units(page, chosen, conventions), 422
     flash(f"Saved the reading of {pump.serial}; {saved.describe()}.", "info")
     after = number + 1 if number < len(data["stops"]) else None
     target = url_for("rounds.walk", route_id=route_id, stop=after) if after else \
         url_for("rounds.walk", route_id=route_id, stop=number, done=1)
-    return _remember_units(redirect(target), chosen)
+    return _remember_units(redirect(target), chosen, conventions)
 
 
 def _first_unread(stops: list[dict]) -> int:
     return next((s["number"] for s in stops if not s["read_today"]), 1)
 
 
-def _render_walk(data: dict, number: int, values: dict, chosen: dict, twins: dict, outcome=None,
+def _render_walk(data: dict, number: int, values: dict, chosen: dict | None, twins: dict, outcome=None,
                  checked: bool = False) -> str:
     number = min(max(number, 1), len(data["stops"])) if data["stops"] else 0
     stop = data["stops"][number - 1] if number else None
     pump = pump_or_404(stop["pump"]) if stop else None
+    conventions = sitelocal.of_pump(session(), pump) if pump else sitelocal.UTC_CANONICAL
+    if chosen is None:
+        chosen = {**_site_units(conventions), **_remembered_units(conventions)}
     errors: dict[str, list[str]] = {}
     for problem in (outcome.problems if outcome else []):
         errors.setdefault(_field_of(problem.column), []).append(problem.reason)
@@ -157,7 +163,8 @@ def _render_walk(data: dict, number: int, values: dict, chosen: dict, twins: dic
         else done_url,
         place={part: stop[part] for part in PLACE_PARTS} if stop else None,
         fields=rounds.fields_for(pump) if pump else [], choices=units.CHOICES, stroke_unit=rounds.STROKE_UNIT,
-        values=values, chosen=chosen, default_time=utcnow().strftime("%Y-%m-%dT%H:%M"), outcome=outcome,
+        values=values, chosen=chosen, default_time=form_value(utcnow(), conventions.time_zone), outcome=outcome,
+        conventions=conventions, zone_label=sitelocal.zone_label(conventions),
         errors=errors, doubts=doubts, checked=checked, done=request.args.get("done") == "1",
         confirm_codes=",".join(sorted({d.code for d in outcome.warnings})) if outcome else "",
     )
@@ -203,19 +210,36 @@ def _valid(chosen: dict) -> dict[str, str]:
     return {name: unit for name, unit in chosen.items() if name in offered and unit in offered[name]}
 
 
-def _remembered_units() -> dict[str, str]:
-    return _valid(dict(parse_qsl(request.cookies.get(UNIT_COOKIE, ""))))
+# The cookie keeps, per site, only the choices that differ from the site's own units ('Plant A|oil_temp' ->
+# 'degF'), so a site's units stay the default on its forms and a technician's own choice is kept where made.
+def _site_units(conventions: sitelocal.Conventions) -> dict[str, str]:
+    offered = rounds.unit_choices()
+    return {f.name: conventions.unit_of(f.quantity) for f in rounds.FORM_FIELDS
+            if conventions.unit_of(f.quantity) in offered.get(f.name, ())}
 
 
-def _chosen_units(form) -> dict[str, str]:
-    chosen = _remembered_units()
+def _cookie_pairs() -> dict[str, str]:
+    return dict(parse_qsl(request.cookies.get(UNIT_COOKIE, "")))
+
+
+def _remembered_units(conventions: sitelocal.Conventions) -> dict[str, str]:
+    prefix = f"{conventions.site or ''}|"
+    return _valid({key[len(prefix):]: unit for key, unit in _cookie_pairs().items() if key.startswith(prefix)})
+
+
+def _chosen_units(form, conventions: sitelocal.Conventions) -> dict[str, str]:
+    chosen = {**_site_units(conventions), **_remembered_units(conventions)}
     chosen.update(_valid({name: form.get(f"{name}_unit", "") for name in rounds.unit_choices()}))
     return chosen
 
 
-def _remember_units(response, chosen: dict):
+def _remember_units(response, chosen: dict, conventions: sitelocal.Conventions):
     response = make_response(response)
-    # Query-string form ('outlet_flow=gal%2Fmin&...'): safe in a cookie value whatever the unit's spelling.
-    response.set_cookie(UNIT_COOKIE, urlencode(sorted(chosen.items())), max_age=UNIT_COOKIE_AGE_S,
+    prefix = f"{conventions.site or ''}|"
+    defaults = _site_units(conventions)
+    pairs = {key: unit for key, unit in _cookie_pairs().items() if not key.startswith(prefix)}
+    pairs.update({prefix + name: unit for name, unit in chosen.items() if defaults.get(name) != unit})
+    # Query-string form ('Plant+A%7Coutlet_flow=gal%2Fmin&...'): safe in a cookie value whatever the spelling.
+    response.set_cookie(UNIT_COOKIE, urlencode(sorted(pairs.items())), max_age=UNIT_COOKIE_AGE_S,
                         samesite="Lax", httponly=True)
     return response

@@ -1,7 +1,7 @@
 """audit reasons: why a record was corrected, kept beside its old values
 
 Revision ID: 0009
-Revises: 0007
+Revises: 0008
 Create Date: 2026-12-03 03:45:00
 """
 
@@ -11,7 +11,7 @@ import sqlalchemy as sa
 from alembic import op
 
 revision: str = "0009"
-down_revision: str | None = "0007"
+down_revision: str | None = "0008"
 branch_labels: str | Sequence[str] | None = None
 depends_on: str | Sequence[str] | None = None
 

@@ -11,6 +11,7 @@ import pandas as pd
 from sqlalchemy import select
 from sqlalchemy.orm import Session
 
+from fleet import units
 from fleet.db.models import (
     AnalysisResult,
     FlowTestPoint,
@@ -26,11 +27,13 @@ from fleet.db.models import (
 )
 from fleet.db.queries import corrected_readings, current_places, pump_by_serial
 from fleet.horizon import is_beyond
+from fleet.io.localtime import iso_local
 from fleet.jsonvalues import json_ready
 from fleet.kinds import EVENT_KINDS, PUMP_KINDS
 from fleet.physics.cleanliness import Iso4406Code
 from fleet.physics.pump import baseline_flow_lpm, theoretical_flow_lpm
 from fleet.services.analysis import analyse_with_frames
+from fleet.services.sitelocal import of_pump
 from fleet.trend.remaining_life import trend_band
 from fleet.trend.status import wear_shape_sentence
 
@@ -60,11 +63,13 @@ def pump_page(session: Session, serial: str) -> dict | None:
     pump = pump_by_serial(session, serial)
     if pump is None:
         return None
+    site = of_pump(session, pump)
+    zone_text = site.time_zone
     analysis, frames = analyse_with_frames(session, [pump.id])
     referred = analysis.readings[analysis.readings["pump_id"] == pump.id].sort_values("taken_at", kind="stable")
     limits = frames.pumps.iloc[0]
     events = _events(session, pump.id)
-    readings = _reading_rows(session, referred)
+    readings = _reading_rows(session, referred, zone_text)
     current_fit = _current_fit(analysis, pump.id)
     data = {
         "pump": _rated(pump),
@@ -72,12 +77,14 @@ def pump_page(session: Session, serial: str) -> dict | None:
         "oil": _oil(session, pump.id),
         "limits": {name: limits.get(name) for name in LIMIT_FIELDS},
         "headline": _headline(session, pump.id),
-        "installations": _installations(session, pump.id),
+        "site_units": {"time_zone": zone_text, "pressure": site.pressure_unit, "flow": site.flow_unit,
+                       "temperature": site.temperature_unit},
+        "installations": _installations(session, pump.id, zone_text),
         "events": _place_events(events, referred),
         "readings": readings,
         "trend": _trend(current_fit, pump, analysis.settings.confidence),
         "samples": _samples(session, pump.id),
-        "flow_test": _flow_test(session, pump, referred, current_fit),
+        "flow_test": _flow_test(session, pump, referred, current_fit, zone_text),
     }
     return json_ready(data)
 
@@ -132,15 +139,16 @@ def _headline(session: Session, pump_id: int) -> dict | None:
     return headline
 
 
-def _installations(session: Session, pump_id: int) -> list[dict]:
+def _installations(session: Session, pump_id: int, zone_text: str) -> list[dict]:
     rows = session.execute(
         select(Installation, Position.name, Machine.name, Site.name)
         .join(Position, Position.id == Installation.position_id).join(Machine, Machine.id == Position.machine_id)
         .join(Site, Site.id == Machine.site_id).where(Installation.pump_id == pump_id)
         .order_by(Installation.installed_at)
     )
-    return [{"site": site, "machine": machine, "position": position, "installed_at": _iso(stay.installed_at),
-             "installed_hours": stay.installed_hours, "removed_at": _iso(stay.removed_at),
+    return [{"site": site, "machine": machine, "position": position,
+             "installed_at": iso_local(stay.installed_at, zone_text, "minutes"),
+             "installed_hours": stay.installed_hours, "removed_at": iso_local(stay.removed_at, zone_text, "minutes"),
              "removed_hours": stay.removed_hours} for stay, position, machine, site in rows]
 
 
@@ -169,7 +177,7 @@ def _place_events(events: pd.DataFrame, referred: pd.DataFrame) -> list[dict]:
     return out.to_dict(orient="records")
 
 
-def _reading_rows(session: Session, referred: pd.DataFrame) -> list[dict]:
+def _reading_rows(session: Session, referred: pd.DataFrame, zone_text: str) -> list[dict]:
     if referred.empty:
         return []
     extra = pd.DataFrame(session.execute(
@@ -181,7 +189,8 @@ def _reading_rows(session: Session, referred: pd.DataFrame) -> list[dict]:
         drain_pct = 100.0 * r["drain_lpm"].to_numpy(float) / max_flow
     table = pd.DataFrame({
         "reading_id": r["reading_id"],
-        "taken_at": pd.to_datetime(r["taken_at"]).dt.strftime("%Y-%m-%d %H:%M"),
+        # the site's local time with its offset, ISO 8601 (fleet.io.localtime)
+        "taken_at": [iso_local(moment, zone_text, "minutes") for moment in pd.to_datetime(r["taken_at"])],
         "hours": r["hours"], "interval_no": r["interval_no"], "outlet_pressure_bar": r["pressure_bar"],
         "speed_rpm": r["speed_rpm"], "outlet_flow_lpm": r["flow_lpm"], "case_drain_lpm": r["drain_lpm"],
         "oil_temp_c": r["temp_c"], "stroke": r["stroke"], "eta_v": r["eta_v"], "eta_v_ref": r["eta_v_ref"],
@@ -246,7 +255,8 @@ def _code(sample: OilSample) -> str | None:
         return "/".join("-" if c is None else str(c) for c in (sample.code_4, sample.code_6, sample.code_14))
 
 
-def _flow_test(session: Session, pump: Pump, referred: pd.DataFrame, fit: pd.Series | None) -> dict | None:
+def _flow_test(session: Session, pump: Pump, referred: pd.DataFrame, fit: pd.Series | None, zone_text: str
+               ) -> dict | None:
     """The latest multi-point flow test, and the line a pump with the interval's first fitted slip would give."""
     latest = session.execute(
         select(Reading.id, Reading.taken_at, Reading.speed_rpm, Reading.temp_c)
@@ -269,7 +279,8 @@ def _flow_test(session: Session, pump: Pump, referred: pd.DataFrame, fit: pd.Ser
     flows = baseline_flow_lpm(pump.displacement_cc, latest.speed_rpm, slip_rated, pump.rated_pressure_bar,
                               pressures, ratio)
     return {
-        "taken_at": _iso(latest.taken_at), "speed_rpm": latest.speed_rpm, "oil_temp_c": latest.temp_c,
+        "taken_at": iso_local(latest.taken_at, zone_text, "minutes"), "speed_rpm": latest.speed_rpm,
+        "oil_temp_c": latest.temp_c,
         "points": [{"pressure_bar": p, "flow_lpm": q} for p, q in points],
         "baseline": [{"pressure_bar": p, "flow_lpm": q} for p, q in zip(pressures, flows, strict=True)],
         "baseline_from": source, "baseline_slip_at_rated_lpm": slip_rated,
@@ -290,3 +301,28 @@ def _iso(moment: datetime | None, date_only: bool = False) -> str | None:
     if moment is None:
         return None
     return moment.strftime("%Y-%m-%d") if date_only else moment.isoformat(sep=" ", timespec="minutes")
+
+
+# The readings columns a site's units change, their quantity and the name they take ('outlet_pressure [psi]').
+SITE_UNIT_COLUMNS = {"outlet_pressure_bar": ("pressure", "outlet_pressure"), "outlet_flow_lpm": ("flow", "outlet_flow"),
+                     "case_drain_lpm": ("flow", "case_drain"), "oil_temp_c": ("temperature", "oil_temp")}
+
+
+def readings_in_site_units(data: dict) -> tuple[list[dict], tuple[str, ...]]:
+    """The readings table with pressure, flow and temperature in the site's units, the unit in each column's
+    header (``?units=site`` on the page's CSV and JSON twins); the other columns as they are."""
+    site_units = data["site_units"]
+    renamed = {name: f"{new} [{site_units[quantity]}]" for name, (quantity, new) in SITE_UNIT_COLUMNS.items()}
+    rows = []
+    for row in data["readings"]:
+        out = {}
+        for name in READING_COLUMNS:
+            if name in renamed:
+                quantity = SITE_UNIT_COLUMNS[name][0]
+                value = row[name]
+                out[renamed[name]] = None if value is None else \
+                    float(units.from_canonical([value], quantity, site_units[quantity])[0])
+            else:
+                out[name] = row[name]
+        rows.append(out)
+    return rows, tuple(renamed.get(name, name) for name in READING_COLUMNS)

@@ -13,11 +13,14 @@ from datetime import datetime
 from sqlalchemy import select
 from sqlalchemy.orm import Session
 
+from fleet import units
 from fleet.db.models import LimitDefault, Machine, Oil, Position, Pump, Site
 from fleet.db.queries import current_installations
 from fleet.io import rules
+from fleet.io.localtime import form_value
 from fleet.io.parse import ImportRejected
 from fleet.kinds import EVENT_KINDS, FAILURE_MODES, PUMP_KINDS
+from fleet.services import sitelocal
 from fleet.services.register import records as register
 from fleet.services.transfer.importing import import_table
 from fleet.services.writes.forms import Collector, Field, FormRejected, one_row_table, problems_by_field
@@ -115,21 +118,40 @@ def _site_fields(session: Session, key: str | None) -> list[Field]:
         Field("tariff_per_kwh", "Electricity price per kWh", "number", help="in the site currency"),
         Field("motor_efficiency", "Drive motor efficiency", "number", help="fraction, e.g. 0.93"),
         Field("note", "Note", "textarea"),
+        Field("time_zone", "Time zone",
+              help="IANA name of the site's clocks, e.g. Europe/Berlin or America/Chicago; times typed without an "
+                   "offset are read in it (blank: UTC)"),
+        *[Field(column, label, "select", required=True, options=_unit_options(units.SITE_QUANTITIES[column]),
+                help="shown on this site's pages and offered first on its forms")
+          for column, label in (("pressure_unit", "Pressure shown in"), ("flow_unit", "Flow shown in"),
+                                ("temperature_unit", "Temperature shown in"))],
+        Field("decimal_comma", "Accept a decimal comma (120,5) in this site's forms and files", "checkbox"),
     ]
+
+
+def _unit_options(quantity: str) -> tuple:
+    return tuple((u, units.shown(u)) for u in units.SITE_UNITS[quantity])
 
 
 def _site_initial(session: Session, key: str | None) -> dict:
     if key is None:
-        return {"currency": "EUR", "tariff_per_kwh": "0.15", "motor_efficiency": "0.93"}
+        return {"currency": "EUR", "tariff_per_kwh": "0.15", "motor_efficiency": "0.93", "time_zone": "UTC",
+                "pressure_unit": "bar", "flow_unit": "L/min", "temperature_unit": "degC"}
     site = _get(session, Site, key)
     return {"site": site.name, "currency": site.currency, "tariff_per_kwh": _fmt(site.tariff_per_kwh),
-            "motor_efficiency": _fmt(site.motor_efficiency), "note": _fmt(site.note)}
+            "motor_efficiency": _fmt(site.motor_efficiency), "note": _fmt(site.note), "time_zone": site.time_zone,
+            "pressure_unit": site.pressure_unit, "flow_unit": site.flow_unit,
+            "temperature_unit": site.temperature_unit, "decimal_comma": _fmt(site.decimal_comma)}
 
 
 def _site_save(session: Session, key: str | None, values: dict) -> Saved:
     if key is not None:
         values = {**values, "site": _get(session, Site, key).name}  # the name keys the import; it is not edited
-    result = _import_one(session, "sites", values, ["site", "currency", "tariff_per_kwh", "motor_efficiency", "note"])
+    # An unticked box sends nothing; here that means 'no', not 'leave as it was'.
+    values = {**values, "decimal_comma": "yes" if values.get("decimal_comma") else "no"}
+    result = _import_one(session, "sites", values, ["site", "currency", "tariff_per_kwh", "motor_efficiency", "note",
+                                                    "time_zone", "pressure_unit", "flow_unit", "temperature_unit",
+                                                    "decimal_comma"])
     site = session.scalar(select(Site).where(Site.name == values["site"].strip()))
     verb = "added" if result.created else "saved"
     return Saved(f"Site {site.name} {verb}.")
@@ -384,13 +406,16 @@ def _limit_save(session: Session, key: str | None, values: dict) -> Saved:
     return Saved(f"Default limits of {PUMP_KINDS[key].lower()} pumps saved.")
 
 
+SITE_TIME = "local time of the pump's site (its time zone in the register)"
+
+
 # --- installations and removals --------------------------------------------------------------------------------
 
 def _install_fields(session: Session, key: str | None) -> list[Field]:
     return [
         Field("pump", "Pump", "select", required=True, options=_pump_options(session)),
         Field("position_id", "Into position", "select", required=True, options=_position_options(session)),
-        Field("installed_at", "Installed on", "datetime", required=True),
+        Field("installed_at", "Installed on", "datetime", required=True, help=SITE_TIME),
         Field("hours", "Pump hour meter then", "number", quantity="hours"),
     ]
 
@@ -412,7 +437,7 @@ def _install_save(session: Session, key: str | None, values: dict) -> Saved:
 def _removal_fields(session: Session, key: str | None) -> list[Field]:
     return [
         Field("pump", "Pump", "select", required=True, options=_pump_options(session, installed_only=True)),
-        Field("removed_at", "Removed on", "datetime", required=True),
+        Field("removed_at", "Removed on", "datetime", required=True, help=SITE_TIME),
         Field("hours", "Pump hour meter then", "number", quantity="hours"),
     ]
 
@@ -420,6 +445,9 @@ def _removal_fields(session: Session, key: str | None) -> list[Field]:
 def _removal_save(session: Session, key: str | None, values: dict) -> Saved:
     form = Collector(values, "removals")
     serial = form.choice("pump", {v for v, _ in _pump_options(session, installed_only=True)}, required=True)
+    if serial is not None:  # its time is read in the pump's site's zone, its number with that site's decimal mark
+        site = sitelocal.of_pump(session, serial)
+        form.zone, form.decimal_comma = site.time_zone, site.decimal_comma
     removed_at, hours = form.get("removed_at"), form.get("hours")
     form.check(rules.not_in_future(form.row(), "removed_at", utcnow()))
     form.raise_if_any()
@@ -440,7 +468,7 @@ def _removal_save(session: Session, key: str | None, values: dict) -> Saved:
 def _event_fields(session: Session, key: str | None) -> list[Field]:
     return [
         Field("pump", "Pump", "select", required=True, options=_pump_options(session)),
-        Field("date", "Date", "datetime", required=True),
+        Field("date", "Date", "datetime", required=True, help=SITE_TIME),
         Field("kind", "Work done", "select", required=True, options=tuple(EVENT_KINDS.items())),
         Field("hours", "Pump hour meter", "number", quantity="hours"),
         Field("cost", "Cost", "number", help="site currency"),
@@ -461,7 +489,7 @@ def _event_save(session: Session, key: str | None, values: dict) -> Saved:
 def _sample_fields(session: Session, key: str | None) -> list[Field]:
     return [
         Field("machine_id", "Machine (reservoir)", "select", required=True, options=_machine_options(session)),
-        Field("sampled_at", "Sampled on", "datetime", required=True),
+        Field("sampled_at", "Sampled on", "datetime", required=True, help=SITE_TIME),
         Field("reported_at", "Reported on", "datetime", help="blank: still at the lab"),
         Field("iso4406", "ISO 4406 code", help="e.g. 18/16/13 or -/16/13"),
         Field("water", "Water", "number", help="ppm"),
@@ -487,7 +515,12 @@ def _no_initial(session: Session, key: str | None) -> dict:
 
 
 def _now_initial(name: str) -> Callable[[Session, str | None], dict]:
-    return lambda session, key: {name: utcnow().strftime("%Y-%m-%dT%H:%M")}
+    """Now as the form's default: the sites' local time when they share one zone. The pump (so its site) is chosen
+    in the same form, so with sites in different zones the time is left for the user to type."""
+    def initial(session: Session, key: str | None) -> dict:
+        zones = set(session.scalars(select(Site.time_zone))) or {"UTC"}
+        return {name: form_value(utcnow(), zones.pop()) if len(zones) == 1 else ""}
+    return initial
 
 
 NEW_ONLY, EDIT_ONLY = frozenset({"new"}), frozenset({"edit"})

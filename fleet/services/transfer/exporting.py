@@ -1,6 +1,10 @@
 """Export each kind as the importer reads it, canonical units written into the headers, so files round-trip.
 
-CSV and .xlsx carry the same columns; every text cell passes the formula guard (``fleet.io.formulas``).
+CSV and .xlsx carry the same columns; every text cell passes the formula guard (``fleet.io.formulas``). Times are
+each row's site's local time: ISO 8601 with the offset in CSV (``2026-01-15T08:00:00-06:00``), the wall-clock
+time in .xlsx (a spreadsheet date has no offset; the importer reads it back in the same site's zone). With
+``units="site"`` pressure, flow and temperature are written in the units of the rows' site (one site's rows, or
+sites that agree), the header saying which.
 """
 
 import pandas as pd
@@ -22,28 +26,36 @@ from fleet.db.models import (
 )
 from fleet.io.columns import KINDS, Column
 from fleet.io.formulas import guard
+from fleet.io.localtime import zone
 from fleet.io.spreadsheet import frame_to_xlsx
 from fleet.physics.cleanliness import Iso4406Code
+from fleet.services.sitelocal import row_conventions, row_sites
 
-TIME_FORMAT = "%Y-%m-%d %H:%M:%S"
+UNIT_MODES = ("canonical", "site")
 
 
-def header(column: Column) -> str:
+class ExportError(ValueError):
+    """An export that cannot be written as asked (e.g. site units for sites that use different ones)."""
+
+
+def header(column: Column, unit: str | None = None) -> str:
     if column.quantity is None:
         return column.name
-    label = column.export_unit or units.LABELS[column.quantity]
+    label = unit or column.export_unit or units.LABELS[column.quantity]
     return f"{column.name} [{label}]" if label else column.name
 
 
-def export_csv(session: Session, kind: str) -> tuple[str, int]:
+def export_csv(session: Session, kind: str, unit_mode: str = "canonical", site: str | None = None
+               ) -> tuple[str, int]:
     """``kind`` as CSV text, and its number of rows."""
-    table = export_table(session, kind)
+    table = export_table(session, kind, unit_mode=unit_mode, site=site)
     return _guarded(table).to_csv(index=False, lineterminator="\n"), len(table)
 
 
-def export_xlsx(session: Session, kind: str) -> tuple[bytes, int]:
+def export_xlsx(session: Session, kind: str, unit_mode: str = "canonical", site: str | None = None
+                ) -> tuple[bytes, int]:
     """``kind`` as an .xlsx workbook (numbers as numbers, times as Excel dates), and its number of rows."""
-    table = export_table(session, kind, text_times=False)
+    table = export_table(session, kind, text_times=False, unit_mode=unit_mode, site=site)
     return frame_to_xlsx(table, title=kind), len(table)
 
 
@@ -57,24 +69,66 @@ def _guarded(table: pd.DataFrame) -> pd.DataFrame:
     return out
 
 
-def export_table(session: Session, kind: str, text_times: bool = True) -> pd.DataFrame:
-    """The rows of ``kind`` with the importer's headers; times as text unless ``text_times`` is False."""
+def export_table(session: Session, kind: str, text_times: bool = True, unit_mode: str = "canonical",
+                 site: str | None = None) -> pd.DataFrame:
+    """The rows of ``kind`` with the importer's headers; times as text unless ``text_times`` is False; only the
+    rows of ``site`` when given; pressure, flow and temperature in the site's units when ``unit_mode`` is
+    'site'. ExportError when the rows' sites use different units (export one site, or canonical units)."""
+    if unit_mode not in UNIT_MODES:
+        raise ExportError(f"units '{unit_mode}' is not one of {', '.join(UNIT_MODES)}")
     frame = _QUERIES[kind](session)
+    if site is not None:
+        if session.scalar(select(Site.id).where(Site.name == site)) is None:
+            raise ExportError(f"no site '{site}' in the register")
+        frame = frame[[s is not None and s.name == site for s in row_sites(session, kind, frame)]]
+        frame = frame.reset_index(drop=True)
+    zones = row_conventions(session, kind, frame).zones
+    site_units = _site_units(session, kind, frame) if unit_mode == "site" else {}
     specs = KINDS[kind]
     out = pd.DataFrame(index=frame.index)
     for column in specs:
         values = frame[column.name] if column.name in frame else pd.Series([None] * len(frame), dtype=object)
+        unit = site_units.get(column.quantity)
         if column.type == "datetime":
-            stamps = pd.to_datetime(values)
-            values = stamps.dt.strftime(TIME_FORMAT).where(stamps.notna(), "") if text_times \
-                else stamps.dt.floor("s").astype(object).where(stamps.notna(), None)
+            values = _local_times(pd.to_datetime(values), zones, text_times)
         elif column.type == "bool":
             values = values.map(lambda v: "" if v is None else ("yes" if v else "no"))
-        elif column.quantity is not None and column.export_unit:
-            values = pd.Series(units.from_canonical(values.astype(float), column.quantity, column.export_unit),
-                               index=frame.index)
-        out[header(column)] = values
+        elif column.quantity is not None and (unit or column.export_unit):
+            values = pd.Series(units.from_canonical(values.astype(float), column.quantity,
+                                                    unit or column.export_unit), index=frame.index)
+        out[header(column, unit)] = values
     return out
+
+
+def _local_times(stamps: pd.Series, zones: pd.Series, text: bool) -> pd.Series:
+    """Stored naive-UTC times in each row's zone: ISO 8601 text with the offset, or wall-clock datetimes."""
+    cells = []
+    for stamp, name in zip(stamps, zones, strict=True):
+        if pd.isna(stamp):
+            cells.append("" if text else None)
+            continue
+        local = stamp.floor("s").tz_localize("UTC").tz_convert(zone(name))
+        cells.append(local.isoformat() if text else local.tz_localize(None).to_pydatetime())
+    return pd.Series(cells, index=stamps.index, dtype=object)
+
+
+def _site_units(session: Session, kind: str, frame: pd.DataFrame) -> dict[str, str]:
+    """quantity -> the unit every row's site shows it in; ExportError when the sites disagree."""
+    found: dict[str, dict[str, str]] = {}
+    for site in row_sites(session, kind, frame):
+        if site is None:
+            continue
+        for attribute, quantity in units.SITE_QUANTITIES.items():
+            found.setdefault(quantity, {}).setdefault(getattr(site, attribute), site.name)
+    chosen = {}
+    for quantity, by_unit in found.items():
+        if len(by_unit) > 1:
+            named = ", ".join(f"{name} in {units.shown(unit)}"
+                              for unit, name in sorted(by_unit.items(), key=lambda pair: pair[1]))
+            raise ExportError(f"the rows' sites show {quantity} in different units ({named}): export one site "
+                              "or canonical units")
+        chosen[quantity] = next(iter(by_unit))
+    return chosen
 
 
 def _frame(session: Session, statement, columns: list[str]) -> pd.DataFrame:
@@ -82,8 +136,11 @@ def _frame(session: Session, statement, columns: list[str]) -> pd.DataFrame:
 
 
 def _sites(session: Session) -> pd.DataFrame:
-    return _frame(session, select(Site.name, Site.currency, Site.tariff_per_kwh, Site.motor_efficiency, Site.note)
-                  .order_by(Site.name), ["site", "currency", "tariff_per_kwh", "motor_efficiency", "note"])
+    return _frame(session, select(Site.name, Site.currency, Site.tariff_per_kwh, Site.motor_efficiency, Site.note,
+                                  Site.time_zone, Site.pressure_unit, Site.flow_unit, Site.temperature_unit,
+                                  Site.decimal_comma).order_by(Site.name),
+                  ["site", "currency", "tariff_per_kwh", "motor_efficiency", "note", "time_zone", "pressure_unit",
+                   "flow_unit", "temperature_unit", "decimal_comma"])
 
 
 def _pumps(session: Session) -> pd.DataFrame:

@@ -14,6 +14,7 @@ import pandas as pd
 from sqlalchemy import insert, select, tuple_
 from sqlalchemy.orm import Session
 
+from fleet import units
 from fleet.db import changes
 from fleet.db.models import (
     FlowTestPoint,
@@ -27,11 +28,13 @@ from fleet.db.models import (
 from fleet.db.queries import pumps_on_machine
 from fleet.io import rules
 from fleet.io.files import read_file
+from fleet.io.localtime import ZoneError, zone_name
 from fleet.io.meter import meter_doubts
 from fleet.io.parse import ImportRejected, ParsedTable, Problem, parse_table, row_numbers
 from fleet.io.spreadsheet import SpreadsheetError
 from fleet.physics.cleanliness import code_from_counts
 from fleet.services.register import records as register
+from fleet.services.sitelocal import row_conventions
 from fleet.timeutil import utcnow
 
 SQLITE_DATETIME_FORMAT = "%Y-%m-%d %H:%M:%S.%f"  # how SQLAlchemy stores a DateTime in SQLite
@@ -85,7 +88,7 @@ def read_readable(source: str | Path | bytes, filename: str | None = None):
 def import_table(session: Session, kind: str, table: pd.DataFrame, *, now: datetime | None = None,
                  source: str = "import", taken_by: str | None = None) -> ImportResult:
     now = now or utcnow()
-    parsed, problems = parse_table(kind, table)
+    parsed, problems = parse_table(kind, table, row_conventions(session, kind, table))
     problems += rules.table_rules(kind, parsed.data, now)  # every problem at once, not cell problems first
     if problems:
         if "pump" in parsed.present and kind != "pumps":
@@ -149,9 +152,10 @@ def _duplicates_in_file(parsed: ParsedTable, keys: list[str], problems: list[Pro
 def _import_sites(ctx: _Context, parsed: ParsedTable, result: ImportResult) -> list[Problem]:
     problems: list[Problem] = []
     _duplicates_in_file(parsed, ["site"], problems, "site")
+    conventions = site_conventions(parsed, problems)
     if problems:
         return problems
-    for _, row in parsed.data.iterrows():
+    for index, row in parsed.data.iterrows():
         site = ctx.session.scalar(select(Site).where(Site.name == row["site"]))
         if site is None:
             site = Site(name=row["site"])
@@ -164,7 +168,35 @@ def _import_sites(ctx: _Context, parsed: ParsedTable, result: ImportResult) -> l
             value = _value(row, column)
             if value is not None:
                 setattr(site, attribute, value)
+        for attribute, value in conventions.get(index, {}).items():
+            setattr(site, attribute, value)
     return problems
+
+
+def site_conventions(parsed: ParsedTable, problems: list[Problem]) -> dict[int, dict]:
+    """row index -> the conventions the row sets (time zone, display units, decimal comma), each checked: the zone
+    by the IANA data (zoneinfo), a unit by pint among the site choices (fleet.units.site_unit)."""
+    found: dict[int, dict] = {}
+    for index, row in parsed.data.iterrows():
+        values: dict = {}
+        zone_text = _value(row, "time_zone")
+        if zone_text is not None:
+            try:
+                values["time_zone"] = zone_name(zone_text)
+            except ZoneError as exc:
+                problems.append(Problem(int(index) + 2, "time_zone", str(exc)))
+        for column, quantity in units.SITE_QUANTITIES.items():
+            unit_text = _value(row, column)
+            if unit_text is None:
+                continue
+            try:
+                values[column] = units.site_unit(unit_text, quantity)
+            except units.UnitError as exc:
+                problems.append(Problem(int(index) + 2, column, str(exc)))
+        if _value(row, "decimal_comma") is not None:
+            values["decimal_comma"] = bool(_value(row, "decimal_comma"))
+        found[index] = values
+    return found
 
 
 # --- pumps -------------------------------------------------------------------------------------------------
@@ -311,7 +343,7 @@ def _check_readings(ctx: _Context, parsed: ParsedTable) -> tuple[pd.DataFrame, l
 def check_readings(session: Session, table: pd.DataFrame, now: datetime | None = None) -> list[Problem]:
     """Every problem an import of these readings would meet, without writing anything."""
     now = now or utcnow()
-    parsed, problems = parse_table("readings", table)
+    parsed, problems = parse_table("readings", table, row_conventions(session, "readings", table))
     problems += rules.table_rules("readings", parsed.data, now)
     if problems:
         if "pump" in parsed.present:

@@ -52,8 +52,11 @@ class Collector:
     """Reads a form's fields by the same column declarations and parser as a CSV file (fleet.io.columns,
     fleet.io.parse), gathering every problem so all are reported at once, in the same words as an import."""
 
-    def __init__(self, values: dict, kind: str):
+    def __init__(self, values: dict, kind: str, zone: str | None = None, decimal_comma: bool = False):
         self.values = values
+        # The site's conventions for times without an offset and for a decimal comma (fleet.services.sitelocal);
+        # a form may set them once it knows its site.
+        self.zone, self.decimal_comma = zone, decimal_comma
         self.specs = {column.name: column for column in (KINDS.get(kind) or FORM_KINDS[kind])}
         self.parsed: dict[str, object] = {}
         self.errors: dict[str, list[str]] = {}
@@ -69,7 +72,7 @@ class Collector:
         """The field's value in canonical units (its unit chosen beside it), or None when blank or refused."""
         spec = self.specs[name]
         unit = (self.values.get(name + UNIT_SUFFIX) or None) if spec.quantity else None
-        value, reasons = parse_cell(spec, self.values.get(name), unit)
+        value, reasons = parse_cell(spec, self.values.get(name), unit, self.zone, self.decimal_comma)
         for reason in reasons:
             self.add(name, reason)
         self.parsed[name] = value
