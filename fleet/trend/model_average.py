@@ -13,7 +13,7 @@ Where the mixture never reaches a level (the trend may stay flat), that bound st
 import numpy as np
 from scipy import special
 
-from fleet.trend.wear_laws import MEMBERS, LawFits, member_x
+from fleet.trend.wear_laws import MEMBERS, LawFits
 
 # Hours grid (in units of the interval's current hours) on which the crossing is first bracketed: the readings'
 # span, then geometric steps out to a million times it (no plan looks further).
@@ -23,61 +23,67 @@ CROSSING_GRID = np.concatenate([_GRID_PAST, _GRID_AHEAD])
 _BISECTIONS = 32
 
 
-def _moments(fits: LawFits, j: int, hours: np.ndarray):
-    """Mean and standard deviation of member j's fitted line at hours (shape (G,) or (G, K)), its own space."""
-    hours = np.asarray(hours, dtype=float)
-    expand = (slice(None), None) if hours.ndim == 2 else (slice(None),)
-    m = MEMBERS[j]
-    x = member_x(m, hours, fits.hours_scale[expand], fits.hours_offset[expand])
-    a, b = fits.a[:, j][expand], fits.b[:, j][expand]
+_POWER = np.array([m.law == "power" for m in MEMBERS])
+_EXPONENT = np.array([m.power for m in MEMBERS])
+_LOG_SPACE = np.array([m.log_space for m in MEMBERS])
+
+
+def _per_group(values: np.ndarray, ndim: int) -> np.ndarray:
+    """Per-group values (G,) or per group and member (G, M), shaped to broadcast against hours of `ndim`
+    dimensions (first axis the group) with the members on a last axis."""
+    if values.ndim == 1:
+        return values.reshape(values.shape + (1,) * ndim)
+    return values.reshape(values.shape[:1] + (1,) * (ndim - 1) + values.shape[1:])
+
+
+def _moments(fits: LawFits, hours: np.ndarray):
+    """Mean and standard deviation of every member's fitted line at hours, in its own space: hours (G, ...)
+    gives arrays (G, ..., M), one call for all members (member_x of fleet.trend.wear_laws, all at once)."""
+    h = hours[..., None]
+    scale = _per_group(fits.hours_scale, hours.ndim)
+    offset = _per_group(fits.hours_offset, hours.ndim)
+    with np.errstate(invalid="ignore", divide="ignore", over="ignore"):
+        x = np.where(_POWER, np.maximum((h + offset) / scale, 0.0) ** _EXPONENT, h)
+    a, b = _per_group(fits.a, hours.ndim), _per_group(fits.b, hours.ndim)
+    var_a, var_b, cov = (_per_group(v, hours.ndim) for v in (fits.var_a, fits.var_b, fits.cov_ab))
     with np.errstate(invalid="ignore", over="ignore"):  # an unfitted group's NaN stays NaN (it has no weight)
-        var = fits.var_a[:, j][expand] + 2.0 * x * fits.cov_ab[:, j][expand] + x * x * fits.var_b[:, j][expand]
+        var = var_a + 2.0 * x * cov + x * x * var_b
         return a + b * x, np.sqrt(np.maximum(var, 0.0))
 
 
-def _cdf_terms(fits: LawFits, hours, value, confidence: float):
-    """Yield (weight, P(member's line at hours <= value)) for each member with some weight."""
-    hours = np.asarray(hours, dtype=float)
-    expand = (slice(None), None) if hours.ndim == 2 else (slice(None),)
-    value = np.asarray(value, dtype=float)
-    for j, m in enumerate(MEMBERS):
-        w = fits.weight[:, j]
-        if not np.any(w > 0):
-            continue
-        mean, sd = _moments(fits, j, hours)
-        with np.errstate(invalid="ignore", divide="ignore"):
-            level = np.log(np.where(value > 0, value, np.nan)) if m.log_space else value
-            t = (level - mean) / sd
-        t = np.where(sd > 0, t, np.where(level >= mean, np.inf, -np.inf))
-        if m.log_space:
-            t = np.where(value > 0, t, -np.inf)  # a log member never goes below zero flow
-        p = special.ndtr(t * fits.t_ratio(confidence)[:, j][expand])
-        yield w[expand], np.where(w[expand] > 0, np.nan_to_num(p, nan=0.5), 0.0)
-
-
 def value_cdf(fits: LawFits, hours, value, confidence: float) -> np.ndarray:
-    """P(averaged trend at `hours` <= `value`), per group (broadcast over a (G, K) grid of hours)."""
-    total = 0.0
-    for w, p in _cdf_terms(fits, hours, value, confidence):
-        total = total + w * p
-    return np.asarray(total, dtype=float) * np.ones(np.shape(hours))
+    """P(averaged trend at `hours` <= `value`), per group (broadcast over a (G, ...) array of hours).
 
-
-def value_quantile(fits: LawFits, hours, level: float, confidence: float) -> np.ndarray:
-    """The `level` quantile of the averaged trend's value (a flow, L/min) at `hours`; NaN for unfitted groups."""
+    Each member with weight contributes weight x Phi(t x z/t-ratio); all members are computed in one pass over
+    a last axis, so the cost per call does not grow with the number of members.
+    """
     hours = np.asarray(hours, dtype=float)
-    expand = (slice(None), None) if hours.ndim == 2 else (slice(None),)
-    lo = np.full(hours.shape, np.inf)
-    hi = np.full(hours.shape, -np.inf)
-    for j, m in enumerate(MEMBERS):
-        used = (fits.weight[:, j] > 0)[expand]
-        mean, sd = _moments(fits, j, hours)
-        spread = 10.0 * sd
-        with np.errstate(over="ignore"):
-            low, high = (np.exp(mean - spread), np.exp(np.minimum(mean + spread, 700.0))) if m.log_space else (
-                mean - spread, mean + spread)
-        lo = np.where(used & np.isfinite(low), np.minimum(lo, low), lo)
-        hi = np.where(used & np.isfinite(high), np.maximum(hi, high), hi)
+    value = np.broadcast_to(np.asarray(value, dtype=float), hours.shape)[..., None]
+    mean, sd = _moments(fits, hours)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        level = np.where(_LOG_SPACE, np.log(np.where(value > 0, value, np.nan)), value)
+        t = (level - mean) / sd
+    t = np.where(sd > 0, t, np.where(level >= mean, np.inf, -np.inf))
+    t = np.where(_LOG_SPACE & ~(value > 0), -np.inf, t)  # a log member never goes below zero flow
+    w = _per_group(fits.weight, hours.ndim)
+    p = special.ndtr(t * _per_group(fits.t_ratio(confidence), hours.ndim))
+    return np.where(w > 0, w * np.nan_to_num(p, nan=0.5), 0.0).sum(axis=-1)
+
+
+def value_quantile(fits: LawFits, hours, level, confidence: float) -> np.ndarray:
+    """The `level` quantile of the averaged trend's value (a flow, L/min) at `hours` (G, ...); `level` is a
+    number or an array broadcast against hours, so several quantiles come from one bisection. NaN for
+    unfitted groups."""
+    hours = np.asarray(hours, dtype=float)
+    level = np.broadcast_to(np.asarray(level, dtype=float), hours.shape)
+    mean, sd = _moments(fits, hours)
+    spread = 10.0 * sd
+    with np.errstate(over="ignore"):
+        low = np.where(_LOG_SPACE, np.exp(mean - spread), mean - spread)
+        high = np.where(_LOG_SPACE, np.exp(np.minimum(mean + spread, 700.0)), mean + spread)
+    used = _per_group(fits.weight > 0, hours.ndim)
+    lo = np.where(used & np.isfinite(low), low, np.inf).min(axis=-1)
+    hi = np.where(used & np.isfinite(high), high, -np.inf).max(axis=-1)
     fitted = np.isfinite(lo) & np.isfinite(hi)
     lo, hi = np.where(fitted, lo, 0.0), np.where(fitted, hi, 1.0)
     for _ in range(44):  # the bracket shrinks to 1e-13 of its width
@@ -120,21 +126,18 @@ def crossing_quantiles(fits: LawFits, limit, now_hours, levels, confidence: floa
     limit_g = np.where(ok, limit, 1.0)
 
     def crossed(hours):
-        return 1.0 - value_cdf(fits, hours, limit_g[:, None] if np.ndim(hours) == 2 else limit_g, confidence)
+        return 1.0 - value_cdf(fits, hours, limit_g[:, None], confidence)
 
     on_grid = crossed(grid)
-    rows = np.arange(len(now))
-    out = []
-    for level in levels:
-        reached = on_grid >= level
-        any_reached = reached.any(axis=1) & ok
-        first = np.argmax(reached, axis=1)
-        hi = grid[rows, first]
-        lo = grid[rows, np.maximum(first - 1, 0)]
-        for _ in range(_BISECTIONS):
-            mid = 0.5 * (lo + hi)
-            up = crossed(mid) >= level
-            lo, hi = np.where(up, lo, mid), np.where(up, mid, hi)
-        x = np.where(first == 0, 0.0, hi)
-        out.append(np.where(any_reached, x, np.nan))
-    return out
+    levels = np.asarray(levels, dtype=float)
+    reached = on_grid[:, None, :] >= levels[None, :, None]  # (G, L, grid)
+    any_reached = reached.any(axis=2) & ok[:, None]
+    first = np.argmax(reached, axis=2)
+    hi = np.take_along_axis(grid, first, axis=1)
+    lo = np.take_along_axis(grid, np.maximum(first - 1, 0), axis=1)
+    for _ in range(_BISECTIONS):  # every level at once
+        mid = 0.5 * (lo + hi)
+        up = crossed(mid) >= levels[None, :]
+        lo, hi = np.where(up, lo, mid), np.where(up, mid, hi)
+    x = np.where(first == 0, 0.0, hi)
+    return list(np.where(any_reached, x, np.nan).T)
