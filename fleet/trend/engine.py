@@ -166,6 +166,15 @@ def _crossing_passed(cur: pd.DataFrame, current_iv: pd.DataFrame, referred: pd.D
     return out
 
 
+def place_readings(pumps: pd.DataFrame, readings: pd.DataFrame | None, events: pd.DataFrame | None,
+                   flow_points: pd.DataFrame | None, settings: AnalysisSettings) -> tuple[pd.DataFrame, pd.DataFrame]:
+    """The per-reading part of the analysis, no fitting: readings referred to reference conditions and placed in
+    their service intervals (referred readings, intervals). A page that lists readings needs only this."""
+    readings = _empty_readings() if readings is None or len(readings) == 0 else readings
+    referred = refer_readings(readings, pumps, flow_points, settings)
+    return assign_intervals(referred, events)
+
+
 def analyze_fleet(
     pumps: pd.DataFrame,
     readings: pd.DataFrame,
@@ -184,10 +193,7 @@ def analyze_fleet(
     s = settings or AnalysisSettings()
     now = pd.Timestamp(now)
     pump_tab = _pump_table(pumps)
-    readings = _empty_readings() if readings is None or len(readings) == 0 else readings
-
-    referred = refer_readings(readings, pumps, flow_points, s)
-    referred, intervals = assign_intervals(referred, events)
+    referred, intervals = place_readings(pumps, readings, events, flow_points, s)
     intervals = intervals[intervals["pump_id"].isin(pump_tab.index)].reset_index(drop=True)
 
     # Wear trends and remaining life, every pump interval at once.

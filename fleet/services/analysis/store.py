@@ -15,7 +15,7 @@ import pandas as pd
 from sqlalchemy import delete, insert, select, update
 from sqlalchemy.orm import Session
 
-from fleet.db.models import AnalysisResult, FleetPrior, Pump, ServiceLife, StatusChange
+from fleet.db.models import AnalysisResult, FleetPrior, IntervalTrend, Pump, ServiceLife, StatusChange
 from fleet.jsonvalues import json_ready
 from fleet.services.analysis.compute import Computed
 from fleet.services.analysis.snapshots import keep_forecasts
@@ -77,7 +77,9 @@ def store(session: Session, computed: Computed, settings: AnalysisSettings | Non
     for part in _chunks(keep):
         session.execute(delete(AnalysisResult).where(AnalysisResult.pump_id.in_(part)))
         session.execute(delete(ServiceLife).where(ServiceLife.pump_id.in_(part)))
+        session.execute(delete(IntervalTrend).where(IntervalTrend.pump_id.in_(part)))
     _insert_results(session, records, computed)
+    _insert_trends(session, computed.trends[computed.trends["pump_id"].isin(keep)], computed.computed_at)
     keep_forecasts(session, records, computed.computed_at)
     lives = computed.lives[computed.lives["pump_id"].isin(keep)]
     if len(lives):
@@ -107,6 +109,16 @@ def _insert_results(session: Session, records: list[dict], computed: Computed) -
         })
     if rows:
         session.execute(insert(AnalysisResult), rows)
+
+
+def _insert_trends(session: Session, trends: pd.DataFrame, computed_at: datetime) -> None:
+    if len(trends):
+        session.execute(insert(IntervalTrend), [
+            {"pump_id": int(p), "interval_no": int(n), "computed_at": computed_at, "is_current": bool(c),
+             "start_hours": json_ready(s), "current_hours": json_ready(h), "enough_data": bool(e), "fit": fit}
+            for p, n, c, s, h, e, fit in zip(trends["pump_id"], trends["interval_no"], trends["is_current"],
+                                              trends["start_hours"], trends["current_hours"], trends["enough_data"],
+                                              trends["fit"], strict=True)])
 
 
 def _record_changes(session: Session, records: list[dict], computed_at: datetime) -> list[StatusChange]:
