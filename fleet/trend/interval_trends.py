@@ -34,9 +34,18 @@ def interval_trends(fits: pd.DataFrame, intervals: pd.DataFrame, confidence: flo
         c.removeprefix("slip_") in SLIP_FIGURES or "_weight" in c or c.endswith(
             ("_a", "_b", "_var_a", "_var_b", "_cov_ab", "_dof", "_hours_scale", "_hours_offset")))]
     kept += [f"drain_{name}" for name in DRAIN_FIGURES if f"drain_{name}" in fits.columns]
-    values = json_ready(fits[kept].astype(object).to_dict(orient="records"))
-    for value in values:
-        value["confidence"] = confidence
+    values = [{"confidence": confidence} for _ in range(len(fits))]
+    for name in kept:  # column by column: JSON-ready values without a check per cell
+        column = fits[name]
+        if pd.api.types.is_bool_dtype(column):
+            cells = column.to_numpy(bool).tolist()
+        elif pd.api.types.is_numeric_dtype(column):
+            numbers = column.to_numpy(float)
+            cells = np.where(np.isfinite(numbers), numbers, None).tolist()
+        else:
+            cells = json_ready(column.tolist())
+        for value, cell in zip(values, cells, strict=True):
+            value[name] = cell
     return pd.DataFrame({
         "pump_id": fits["pump_id"].to_numpy(np.int64),
         "interval_no": fits["interval_no"].to_numpy(np.int64),
