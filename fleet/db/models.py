@@ -244,6 +244,10 @@ class AnalysisResult(Base):
     prior_hours_to_overhaul: Mapped[float | None] = mapped_column(Float)
     energy_cost_per_year: Mapped[float | None] = mapped_column(Float)
     detail: Mapped[dict[str, Any]] = mapped_column(JSON)  # every other figure of the analysis, JSON-ready
+    # The two figures of the service order besides status and hours (also in detail): columns, so re-ranking the
+    # stored list after a write reads no JSON.
+    past_margin: Mapped[float | None] = mapped_column(Float)
+    limit_date_low: Mapped[str | None] = mapped_column(String(10))
     # The pump's data version (PumpDataVersion) these figures were computed from: older than the pump's means stale.
     data_version: Mapped[int] = mapped_column(Integer, default=0, server_default="0")
 

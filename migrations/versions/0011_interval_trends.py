@@ -1,4 +1,5 @@
-"""interval trends: each service interval's fitted wear trend, kept with the analysis
+"""interval trends: each service interval's fitted wear trend, kept with the analysis; the service order's
+figures as columns
 
 Revision ID: 0011
 Revises: 0007
@@ -31,10 +32,16 @@ def upgrade() -> None:
                                 ondelete="CASCADE"),
         sa.PrimaryKeyConstraint("pump_id", "interval_no", name=op.f("pk_interval_trend")),
     )
+    with op.batch_alter_table("analysis_result", schema=None) as batch_op:
+        batch_op.add_column(sa.Column("past_margin", sa.Float(), nullable=True))
+        batch_op.add_column(sa.Column("limit_date_low", sa.String(length=10), nullable=True))
     # Analyses stored before this revision kept no interval trends: mark each stale (a version below any pump's),
     # so it is recomputed, with its trends, on the next start or read.
     op.execute("UPDATE analysis_result SET data_version = -1")
 
 
 def downgrade() -> None:
+    with op.batch_alter_table("analysis_result", schema=None) as batch_op:
+        batch_op.drop_column("limit_date_low")
+        batch_op.drop_column("past_margin")
     op.drop_table("interval_trend")

@@ -105,6 +105,7 @@ def _insert_results(session: Session, records: list[dict], computed: Computed) -
         rows.append({
             "pump_id": record["pump_id"], "computed_at": computed.computed_at, "rank": record.get("rank") or 0,
             "detail": json_ready(detail), "data_version": computed.versions.get(record["pump_id"], 0),
+            "past_margin": record.get("past_margin"), "limit_date_low": record.get("limit_date_low"),
             **{k: record.get(k) for k in COLUMNS},
         })
     if rows:
@@ -221,14 +222,13 @@ def _rewrite_prior_figures(session: Session, changed: pd.DataFrame) -> None:
 def rerank(session: Session) -> None:
     """Order the whole stored service list again (a partial refresh moves some pumps).
 
-    Reads only the figures the order uses (status, hours to limit, and from each stored detail its margin past
-    the limit, lower-bound date and pump name, extracted by the database) and writes only the ranks that moved.
+    Reads only the figures the order uses (status, hours to limit, margin past the limit, lower-bound date, all
+    plain columns, and the pump's serial) and writes only the ranks that moved.
     """
-    detail = AnalysisResult.detail
     rows = session.execute(select(
         AnalysisResult.pump_id, AnalysisResult.rank, AnalysisResult.status, AnalysisResult.hours_to_limit,
-        detail["past_margin"].as_float(), detail["limit_date_low"].as_string(), detail["pump"].as_string(),
-    )).all()
+        AnalysisResult.past_margin, AnalysisResult.limit_date_low, Pump.serial,
+    ).join(Pump, Pump.id == AnalysisResult.pump_id)).all()
     if not rows:
         return
     frame = pd.DataFrame(rows, columns=["pump_id", "rank", "status", "hours_to_limit", "past_margin",
