@@ -11,7 +11,11 @@ Reported per law and overall, for the pumps not yet at their limit that have a t
 error of the hours to limit (intervals with at least 8 readings) and the share of pumps whose true remaining
 hours lie inside the band (an open upper bound holds everything above its lower bound).
 
-    python3 -m benchmarks.calibration [--size small|full] [--out figures.json]
+With --known-law every pump is also analysed with its true law alone (the accelerating law is the power law,
+its exponent still free): the best that fitting reaches on the same readings, the floor under the averaged
+forecast's error, reported beside it.
+
+    python3 -m benchmarks.calibration [--size small|full] [--seed N] [--known-law] [--out figures.json]
 """
 
 import argparse
@@ -36,6 +40,7 @@ from fleet.trend.engine import analyze_fleet
 from fleet.trend.settings import AnalysisSettings
 
 LAWS = ("exponential", "linear", "accelerating", "run_in")
+ENGINE_LAW = {"exponential": "exponential", "linear": "linear", "accelerating": "power", "run_in": "run_in"}
 MAX_READINGS = 60
 MIN_READINGS_FOR_ERROR = 8
 TARGET_COVERAGE = (0.85, 0.95)
@@ -124,11 +129,23 @@ def invented_fleet(seed: int, n: int):
     return pumps, readings, events, truth
 
 
-def run_fleet(seed: int, n: int, weighting: str = "aicc") -> pd.DataFrame:
+def run_fleet(seed: int, n: int, weighting: str = "aicc", known_law: bool = False) -> pd.DataFrame:
+    """The engine's results beside the truth for one invented fleet; known_law: each pump fitted with its true
+    law alone (the fleet analysed in one part per law)."""
     pumps, readings, events, truth = invented_fleet(seed, n)
     now = readings["taken_at"].max() + pd.Timedelta(days=1)
-    analysis = analyze_fleet(pumps, readings, events, None, now=now, settings=AnalysisSettings(law_weighting=weighting))
-    res = analysis.results
+    parts = [(AnalysisSettings(law_weighting=weighting), pumps["pump_id"].to_numpy())]
+    if known_law:
+        parts = [(AnalysisSettings(law_weighting=weighting, wear_laws=(ENGINE_LAW[law],)),
+                  truth.index[truth["law"] == law].to_numpy()) for law in LAWS]
+    results = []
+    for settings, ids in parts:
+        analysis = analyze_fleet(pumps[pumps["pump_id"].isin(ids)].reset_index(drop=True),
+                                 readings[readings["pump_id"].isin(ids)].reset_index(drop=True),
+                                 events[events["pump_id"].isin(ids)].reset_index(drop=True), None, now=now,
+                                 settings=settings)
+        results.append(analysis.results)
+    res = pd.concat(results)
     out = truth.join(res.reindex(columns=["n_points", "interval_hours", "hours_to_limit", "hours_to_limit_low",
                                           "hours_to_limit_high", "governing_limit", "wear_law", "slip_past"]))
     out["true_remaining"] = out["crossing"] - out["interval_hours"]
@@ -160,13 +177,20 @@ def figures(rows: pd.DataFrame) -> dict:
     return out
 
 
-def table(fig: dict) -> str:
-    lines = ["| wear law | pumps | median error of hours to limit (>= 8 readings) | inside 90 % band "
-             "| open upper bound |", "| --- | ---: | ---: | ---: | ---: |"]
+def table(fig: dict, floor: dict | None = None) -> str:
+    """The README's table; with `floor` (the known-law figures) two more columns beside the averaged ones."""
+    head = ["| wear law | pumps | median error of hours to limit (>= 8 readings) | inside 90 % band "
+            "| open upper bound |", "| --- | ---: | ---: | ---: | ---: |"]
+    if floor:
+        head = [head[0] + " true law alone: median error | true law alone: inside band |", head[1] + " ---: | ---: |"]
+    lines = head
     for name in (*LAWS, "overall"):
         f = fig[name]
-        lines.append(f"| {name.replace('_', '-')} | {f['pumps']} | {100 * f['median_rel_error']:.1f} % | "
-                     f"{100 * f['coverage']:.1f} % | {100 * f['open_upper_share']:.1f} % |")
+        line = (f"| {name.replace('_', '-')} | {f['pumps']} | {100 * f['median_rel_error']:.1f} % | "
+                f"{100 * f['coverage']:.1f} % | {100 * f['open_upper_share']:.1f} % |")
+        if floor:
+            line += f" {100 * floor[name]['median_rel_error']:.1f} % | {100 * floor[name]['coverage']:.1f} % |"
+        lines.append(line)
     return "\n".join(lines)
 
 
@@ -177,6 +201,12 @@ def met(fig: dict) -> dict:
             for name in (*LAWS, "overall")}
 
 
+def _run(seeds, n, weighting, known_law, workers) -> pd.DataFrame:
+    count = len(seeds)
+    with ProcessPoolExecutor(max_workers=workers) as pool:
+        return pd.concat(list(pool.map(run_fleet, seeds, [n] * count, [weighting] * count, [known_law] * count)))
+
+
 def main(argv: list[str] | None = None) -> dict:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--size", choices=sorted(SIZES), default="full")
@@ -184,24 +214,31 @@ def main(argv: list[str] | None = None) -> dict:
     parser.add_argument("--workers", type=int, default=2)
     parser.add_argument("--weighting", choices=("aicc", "held_back"), default="aicc",
                         help="how the engine weighs the wear laws (AnalysisSettings.law_weighting)")
+    parser.add_argument("--known-law", action="store_true",
+                        help="also fit every pump with its true law alone, the floor the averaged forecast is "
+                             "measured against")
     parser.add_argument("--out", help="write the figures as JSON here")
     args = parser.parse_args(argv)
     size = SIZES[args.size]
     started = time.perf_counter()
     seeds = [args.seed + k for k in range(size.fleets)]
-    with ProcessPoolExecutor(max_workers=args.workers) as pool:
-        parts = list(pool.map(run_fleet, seeds, [size.pumps_per_fleet] * len(seeds), [args.weighting] * len(seeds)))
-    rows = pd.concat(parts)
+    rows = _run(seeds, size.pumps_per_fleet, args.weighting, False, args.workers)
     fig = figures(rows)
     fig["met"] = met(fig)
+    floor = None
+    if args.known_law:
+        floor = figures(_run(seeds, size.pumps_per_fleet, args.weighting, True, args.workers))
+        floor["met"] = met(floor)
+        fig["known_law"] = floor
     fig["size"] = args.size
+    fig["seed"] = args.seed
     fig["weighting"] = args.weighting
     fig["fleets"] = size.fleets
     fig["pumps"] = int(len(rows))
     fig["seconds"] = round(time.perf_counter() - started, 1)
-    print(f"{fig['pumps']} invented pumps in {size.fleets} fleets, laws weighed by {args.weighting}, "
-          f"{fig['seconds']} s\n")
-    print(table(fig))
+    print(f"{fig['pumps']} invented pumps in {size.fleets} fleets from seed {args.seed}, laws weighed by "
+          f"{args.weighting}, {fig['seconds']} s\n")
+    print(table(fig, floor))
     print(f"\npumps before their limit without a forecast (no trend or flat): {fig['pumps_without_forecast']}; "
           f"past their limit: {fig['past_limit_pumps']}, of which found past: {100 * fig['past_limit_detected']:.0f} %")
     if args.out:

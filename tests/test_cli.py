@@ -202,6 +202,6 @@ def test_analyze_json_names_the_wear_law_of_every_pump(demo_db, monkeypatch):
         assert "wear_law" in record and "wear_law_weights" in record
         if record["wear_law"] is not None:
             weights = record["wear_law_weights"]
-            assert set(weights) == {"exponential", "linear", "power"}
+            assert set(weights) == {"exponential", "linear", "power", "run_in"}
             assert sum(weights.values()) == pytest.approx(1.0) and max(weights, key=weights.get) == record["wear_law"]
     assert sum(r["wear_law"] is not None for r in records) >= 35  # the invented demo's pumps nearly all have a trend

@@ -11,7 +11,7 @@ from statsmodels.robust.norms import HuberT
 from statsmodels.tools import eval_measures
 
 from fleet.trend.linear import fieller_crossing, grouped_wls
-from fleet.trend.model_average import crossing_quantiles, value_cdf, value_quantile
+from fleet.trend.model_average import averaged_slope, crossing_quantiles, value_cdf, value_quantile
 from fleet.trend.robust import fit_reweighted
 from fleet.trend.settings import AnalysisSettings
 from fleet.trend.wear_laws import MEMBERS, LawFits, aicc, akaike_weights, fit_wear_laws, joint_score
@@ -175,7 +175,13 @@ def test_averaged_crossing_solves_the_mixture_found_by_scipy_brentq():
     def crossed(x):  # P(averaged trend at x >= limit), written out member by member with scipy.stats
         total = 0.0
         for j, m in enumerate(MEMBERS):
-            u = x if m.law != "power" else ((x + laws.hours_offset[0]) / laws.hours_scale[0]) ** m.power
+            r = (x + laws.hours_offset[0]) / laws.hours_scale[0]
+            if m.law == "power":
+                u = r**m.power
+            elif m.law == "run_in":  # the run-in member's x, written out
+                u = m.share * (1 - np.exp(-r / m.tau)) / (1 - np.exp(-1 / m.tau)) + (1 - m.share) * r
+            else:
+                u = x
             mean = laws.a[0, j] + laws.b[0, j] * u
             sd = np.sqrt(laws.var_a[0, j] + 2 * u * laws.cov_ab[0, j] + u * u * laws.var_b[0, j])
             level = np.log(limit) if m.log_space else limit
@@ -201,3 +207,72 @@ def test_held_back_weighting_scores_forecasts_of_the_last_readings():
     assert held.a == pytest.approx(in_sample.a, nan_ok=True)
     assert held.law_weights()["linear"][0] > 0.5
     assert not np.allclose(held.weight, in_sample.weight)
+
+
+def _run_in_readings(rng, tau, share, n=40, offset=0.0, span=5000.0, sigma=0.05):
+    h = np.linspace(0.0, span, n)
+    u = (h + offset) / (span + offset)
+    truth = 4.0 + 3.0 * (share * (1 - np.exp(-u / tau)) / (1 - np.exp(-1 / tau)) + (1 - share) * u)
+    return h, truth + 0.3 * sigma * rng.standard_normal(n), np.full(n, sigma)
+
+
+def test_run_in_member_is_scipy_curve_fit_at_its_tau_and_share():
+    rng = np.random.default_rng(12)
+    member = next(m for m in MEMBERS if m.law == "run_in" and m.share == 0.5 and abs(m.tau - 0.04 * 10**0.5) < 1e-12)
+    h, q, sigma = _run_in_readings(rng, member.tau, member.share)
+    laws = _laws(h, q, sigma)
+    j = NAMES.index(member.name)
+
+    def model(hh, a, b):  # the member written out from its definition: q = a + b x(u; tau, s)
+        u = hh / h.max()
+        return a + b * (member.share * (1 - np.exp(-u / member.tau)) / (1 - np.exp(-1 / member.tau))
+                        + (1 - member.share) * u)
+
+    # scipy.optimize.curve_fit reference (relative sigma, as our scale is estimated).
+    popt, pcov = optimize.curve_fit(model, h, q, sigma=sigma, absolute_sigma=False)
+    assert [laws.a[0, j], laws.b[0, j]] == pytest.approx(popt, rel=1e-7)
+    # Our member counts tau and the share among its parameters: n - 4 degrees of freedom, curve_fit's n - 2.
+    assert laws.var_b[0, j] * (h.size - 4) / (h.size - 2) == pytest.approx(pcov[1, 1], rel=1e-6)
+    assert laws.law_weights()["run_in"][0] > 0.9
+
+
+def test_run_in_grid_finds_the_shape_a_free_fit_finds():
+    rng = np.random.default_rng(13)
+    h, q, sigma = _run_in_readings(rng, tau=0.1, share=0.5, n=45)
+    laws = _laws(h, q, sigma)
+    # scipy.optimize.curve_fit reference with tau free and the run-in written as q = a + b u + c (1 - e^(-u/tau))
+    # (statsmodels WLS at the fitted tau gives a, b and c linearly; the share is c(1 - e^(-1/tau)) / (b + ...)).
+    u = h / h.max()
+    (a, b, c, tau), _ = optimize.curve_fit(lambda uu, a, b, c, t: a + b * uu + c * (1 - np.exp(-uu / t)), u, q,
+                                           p0=(4.0, 1.0, 1.0, 0.2), sigma=sigma)
+    wls = sm.WLS(q, np.column_stack([np.ones_like(u), u, 1 - np.exp(-u / tau)]), weights=1 / sigma**2).fit()
+    assert wls.params == pytest.approx([a, b, c], rel=1e-4)
+    share = c * (1 - np.exp(-1 / tau)) / (c * (1 - np.exp(-1 / tau)) + b)
+    top = MEMBERS[int(np.argmax(laws.weight[0]))]
+    assert top.law == "run_in"
+    # The heaviest member sits next to the free fit on the grid (steps of 10^(1/6) in tau, 0.1 in share).
+    assert abs(np.log(top.tau / tau)) <= np.log(10) / 6 and abs(top.share - share) <= 0.1
+    # The averaged growth rate at the latest reading is the free fit's: dq/dh = (b + c e^(-1/tau) / tau) / H.
+    rate = (b + c * np.exp(-1 / tau) / tau) / h.max()
+    assert averaged_slope(laws, np.array([h.max()]))[0] == pytest.approx(rate, rel=0.05)
+
+
+def test_run_in_is_not_fitted_where_the_readings_miss_the_early_part():
+    rng = np.random.default_rng(14)
+    # Readings only from 40 % of the interval on: the run-in (tau 0.04 .. 0.4 of H, needs readings within 3 tau).
+    h, q, sigma = _run_in_readings(rng, tau=0.05, share=0.5)
+    late = h >= 0.4 * h.max()
+    laws = _laws(h[late], q[late], sigma[late], offset=0.0)
+    is_run_in = np.array([m.law == "run_in" for m in MEMBERS])
+    reach = np.array([m.tau * 3.0 for m in MEMBERS])
+    assert not laws.usable[0, is_run_in & (reach < 0.4)].any()
+    assert laws.usable[0, is_run_in & (reach > 0.5)].all()
+
+
+def test_known_law_setting_weighs_only_that_law():
+    rng = np.random.default_rng(15)
+    h, q, sigma = _run_in_readings(rng, tau=0.1, share=0.5, n=30)
+    laws = _laws(h, q, sigma, settings=AnalysisSettings(wear_laws=("linear",)))
+    assert laws.law_weights()["linear"][0] == pytest.approx(1.0)
+    few = _laws(h[:4], q[:4], sigma[:4], settings=AnalysisSettings(wear_laws=("power",)))  # no law scored
+    assert few.law_weights()["power"][0] == pytest.approx(1.0)

@@ -24,6 +24,9 @@ def _fleet(seed, law, covered, n_readings=40):
     shapes = {
         "linear": lambda i, h: 1 + (ratio[i] - 1) * h / crossing[i],
         "accelerating": lambda i, h: 1 + (ratio[i] - 1) * (h / crossing[i]) ** 2.2,
+        # run-in: 45 % of the rise to the limit comes early (time constant a tenth of the life), the rest steadily
+        "run_in": lambda i, h: 1 + (ratio[i] - 1) * (0.45 * -np.expm1(-h / crossing[i] / 0.1) / -np.expm1(-10.0)
+                                                     + 0.55 * h / crossing[i]),
     }
     per_day = covered * crossing / ((n_readings - 1) * 7.0)
     readings = ts.wear_readings(pumps, rng, n_readings=n_readings, eta_new=eta_new, hours_per_day=per_day,
@@ -33,7 +36,7 @@ def _fleet(seed, law, covered, n_readings=40):
     return pumps, readings, now, truth
 
 
-@pytest.mark.parametrize("law,expected", [("linear", "linear"), ("accelerating", "power")])
+@pytest.mark.parametrize("law,expected", [("linear", "linear"), ("accelerating", "power"), ("run_in", "run_in")])
 def test_names_the_wear_law_and_forecasts_within_its_band(law, expected):
     pumps, readings, now, truth = _fleet(17, law, covered=0.7)
     res = analyze_fleet(pumps, readings, None, None, now=now).results
@@ -52,6 +55,9 @@ def test_names_the_wear_law_and_forecasts_within_its_band(law, expected):
         assert (res["wear_power"].dropna() > 1).mean() >= 0.8  # accelerating: exponents above 1
         row = res.iloc[0]  # the sentence a due or past pump's reasons carry
         assert "accelerating" in wear_shape_sentence(row["wear_law"], row["wear_law_weights"], row["wear_power"])
+    if expected == "run_in":
+        row = res.iloc[0]
+        assert "fast at first" in wear_shape_sentence(row["wear_law"], row["wear_law_weights"], row["wear_power"])
 
 
 def test_a_pump_past_its_limit_is_dated_from_its_readings():
@@ -74,7 +80,7 @@ def test_new_fields_are_json_ready():
     pumps, readings, now, _ = _fleet(31, "linear", covered=0.6)
     rec = results_to_records(analyze_fleet(pumps, readings, None, None, now=now).results)[0]
     assert isinstance(rec["wear_law"], str)
-    assert set(rec["wear_law_weights"]) == {"exponential", "linear", "power"}
+    assert set(rec["wear_law_weights"]) == {"exponential", "linear", "power", "run_in"}
     assert all(isinstance(v, float) for v in rec["wear_law_weights"].values())
     assert rec["crossed_date"] is None and rec["crossed_limit"] is None  # not past its limit
     for key in ("eta_v_ref", "hours_to_limit", "hours_to_limit_low", "limit_date", "governing_limit"):

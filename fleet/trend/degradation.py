@@ -2,7 +2,7 @@
 
 Wear opens the clearances and laminar leakage grows with the cube of the gap, so the referred slip (and the
 referred case drain) often grows exponentially; abrasive wear grows it about linearly, a damaged part faster
-and faster, run-in slower and slower. Each law is fitted and weighed (fleet.trend.wear_laws); the figures
+and faster, run-in fast at first and then steadily. Each law is fitted and weighed (fleet.trend.wear_laws); the figures
 people read come from their weighted mixture (fleet.trend.model_average). All pump intervals are fitted at
 once (grouped sums, a few reweighting passes), never one solver call per pump.
 """
@@ -128,9 +128,9 @@ def fit_degradation(referred: pd.DataFrame, settings: AnalysisSettings | None = 
 
     # One law of wear for both trends of an interval (they leak through the same clearances).
     joint = joint_score(slip_laws.law_score, drain_laws.law_score)
-    joint_power = joint_score(slip_laws.power_score, drain_laws.power_score)
-    slip_laws.weigh(joint, joint_power)
-    drain_laws.weigh(joint, joint_power)
+    joint_members = joint_score(slip_laws.member_score, drain_laws.member_score)
+    slip_laws.weigh(joint, joint_members)
+    drain_laws.weigh(joint, joint_members)
     frames.append(_as_frame(slip_laws, _span(g, h, n_groups), current_hours, "slip", s))
     frames.append(_as_frame(drain_laws, _span(gd, hd, n_groups), current_hours, "drain", s))
     return pd.concat(frames, axis=1)

@@ -13,7 +13,7 @@ Where the mixture never reaches a level (the trend may stay flat), that bound st
 import numpy as np
 from scipy import special
 
-from fleet.trend.wear_laws import MEMBERS, LawFits
+from fleet.trend.wear_laws import MEMBERS, LawFits, member_x, run_in_dx_du, run_in_x
 
 # Hours grid (in units of the interval's current hours) on which the crossing is first bracketed: the readings'
 # span, then geometric steps out to a million times it (no plan looks further).
@@ -23,72 +23,95 @@ CROSSING_GRID = np.concatenate([_GRID_PAST, _GRID_AHEAD])
 _BISECTIONS = 32
 
 
-_POWER = np.array([m.law == "power" for m in MEMBERS])
-_EXPONENT = np.array([m.power for m in MEMBERS])
-_LOG_SPACE = np.array([m.log_space for m in MEMBERS])
-
-
-def _per_group(values: np.ndarray, ndim: int) -> np.ndarray:
-    """Per-group values (G,) or per group and member (G, M), shaped to broadcast against hours of `ndim`
-    dimensions (first axis the group) with the members on a last axis."""
-    if values.ndim == 1:
-        return values.reshape(values.shape + (1,) * ndim)
-    return values.reshape(values.shape[:1] + (1,) * (ndim - 1) + values.shape[1:])
-
-
-def _moments(fits: LawFits, hours: np.ndarray):
-    """Mean and standard deviation of every member's fitted line at hours, in its own space: hours (G, ...)
-    gives arrays (G, ..., M), one call for all members (member_x of fleet.trend.wear_laws, all at once)."""
-    h = hours[..., None]
-    scale = _per_group(fits.hours_scale, hours.ndim)
-    offset = _per_group(fits.hours_offset, hours.ndim)
-    with np.errstate(invalid="ignore", divide="ignore", over="ignore"):
-        x = np.where(_POWER, np.maximum((h + offset) / scale, 0.0) ** _EXPONENT, h)
-    a, b = _per_group(fits.a, hours.ndim), _per_group(fits.b, hours.ndim)
-    var_a, var_b, cov = (_per_group(v, hours.ndim) for v in (fits.var_a, fits.var_b, fits.cov_ab))
+def _moments(fits: LawFits, j: int, hours: np.ndarray, rows=slice(None)):
+    """Mean and standard deviation of member j's fitted line at hours (shape (G,) or (G, K), G the groups picked
+    by `rows`), its own space."""
+    hours = np.asarray(hours, dtype=float)
+    expand = (slice(None), None) if hours.ndim == 2 else (slice(None),)
+    m = MEMBERS[j]
+    x = member_x(m, hours, fits.hours_scale[rows][expand], fits.hours_offset[rows][expand])
+    a, b = fits.a[rows, j][expand], fits.b[rows, j][expand]
     with np.errstate(invalid="ignore", over="ignore"):  # an unfitted group's NaN stays NaN (it has no weight)
-        var = var_a + 2.0 * x * cov + x * x * var_b
+        var = (fits.var_a[rows, j][expand] + 2.0 * x * fits.cov_ab[rows, j][expand]
+               + x * x * fits.var_b[rows, j][expand])
         return a + b * x, np.sqrt(np.maximum(var, 0.0))
 
 
-def value_cdf(fits: LawFits, hours, value, confidence: float) -> np.ndarray:
-    """P(averaged trend at `hours` <= `value`), per group (broadcast over a (G, ...) array of hours).
+_KIND = np.array([("power", "run_in").index(m.law) + 1 if m.law in ("power", "run_in") else 0 for m in MEMBERS])
+_LOG = np.array([m.log_space for m in MEMBERS])
+_POWER = np.array([m.power for m in MEMBERS])
+_TAU = np.array([m.tau for m in MEMBERS])
+_SHARE = np.array([m.share for m in MEMBERS])
 
-    Each member with weight contributes weight x Phi(t x z/t-ratio); all members are computed in one pass over
-    a last axis, so the cost per call does not grow with the number of members.
-    """
-    hours = np.asarray(hours, dtype=float)
-    value = np.broadcast_to(np.asarray(value, dtype=float), hours.shape)[..., None]
-    mean, sd = _moments(fits, hours)
-    with np.errstate(invalid="ignore", divide="ignore"):
-        level = np.where(_LOG_SPACE, np.log(np.where(value > 0, value, np.nan)), value)
+
+def _weighed_pairs(fits: LawFits, confidence: float) -> dict:
+    """Every (group, member) pair with some weight, as flat arrays (groups in order): the mixture is then
+    evaluated for all of them at once, however many members the laws have (most weigh in for few pumps)."""
+    rows, cols = np.nonzero(fits.weight > 0)
+    pairs = {name: getattr(fits, name)[rows, cols] for name in ("weight", "a", "b", "var_a", "cov_ab", "var_b")}
+    pairs.update(rows=rows, ratio=fits.t_ratio(confidence)[rows, cols], log=_LOG[cols], kind=_KIND[cols],
+                 power=_POWER[cols], tau=_TAU[cols], share=_SHARE[cols], scale=fits.hours_scale[rows],
+                 offset=fits.hours_offset[rows])
+    pairs["starts"] = np.flatnonzero(np.r_[True, rows[1:] != rows[:-1]]) if rows.size else rows
+    return pairs
+
+
+def _pairs_cdf(pairs: dict, hours: np.ndarray, value: np.ndarray) -> np.ndarray:
+    """P(member's line at hours <= value) for every weighed pair; hours and value already picked per pair."""
+    col = (slice(None), None) if hours.ndim == 2 else (slice(None),)
+    x = hours.copy()
+    with np.errstate(invalid="ignore", divide="ignore", over="ignore"):
+        u = np.maximum((hours + pairs["offset"][col]) / pairs["scale"][col], 0.0)
+        power, run_in = pairs["kind"] == 1, pairs["kind"] == 2
+        x[power] = u[power] ** pairs["power"][power][col]
+        x[run_in] = run_in_x(u[run_in], pairs["tau"][run_in][col], pairs["share"][run_in][col])
+        mean = pairs["a"][col] + pairs["b"][col] * x
+        var = pairs["var_a"][col] + 2.0 * x * pairs["cov_ab"][col] + x * x * pairs["var_b"][col]
+        sd = np.sqrt(np.maximum(var, 0.0))
+        log = np.broadcast_to(pairs["log"][col], hours.shape)
+        level = np.where(log, np.log(np.where(value > 0, value, np.nan)), value)
         t = (level - mean) / sd
     t = np.where(sd > 0, t, np.where(level >= mean, np.inf, -np.inf))
-    t = np.where(_LOG_SPACE & ~(value > 0), -np.inf, t)  # a log member never goes below zero flow
-    w = _per_group(fits.weight, hours.ndim)
-    p = special.ndtr(t * _per_group(fits.t_ratio(confidence), hours.ndim))
-    return np.where(w > 0, w * np.nan_to_num(p, nan=0.5), 0.0).sum(axis=-1)
+    t = np.where(log & ~(value > 0), -np.inf, t)  # a log member never goes below zero flow
+    return np.nan_to_num(special.ndtr(t * pairs["ratio"][col]), nan=0.5)
 
 
-def value_quantile(fits: LawFits, hours, level, confidence: float) -> np.ndarray:
-    """The `level` quantile of the averaged trend's value (a flow, L/min) at `hours` (G, ...); `level` is a
-    number or an array broadcast against hours, so several quantiles come from one bisection. NaN for
-    unfitted groups."""
+def value_cdf(fits: LawFits, hours, value, confidence: float, pairs: dict | None = None) -> np.ndarray:
+    """P(averaged trend at `hours` <= `value`), per group (broadcast over a (G, K) grid of hours). pairs: the
+    weighed pairs of `fits` at `confidence` when already gathered (a search calls this many times)."""
+    pairs = _weighed_pairs(fits, confidence) if pairs is None else pairs
     hours = np.asarray(hours, dtype=float)
-    level = np.broadcast_to(np.asarray(level, dtype=float), hours.shape)
-    mean, sd = _moments(fits, hours)
-    spread = 10.0 * sd
-    with np.errstate(over="ignore"):
-        low = np.where(_LOG_SPACE, np.exp(mean - spread), mean - spread)
-        high = np.where(_LOG_SPACE, np.exp(np.minimum(mean + spread, 700.0)), mean + spread)
-    used = _per_group(fits.weight > 0, hours.ndim)
-    lo = np.where(used & np.isfinite(low), low, np.inf).min(axis=-1)
-    hi = np.where(used & np.isfinite(high), high, -np.inf).max(axis=-1)
+    value = np.broadcast_to(np.asarray(value, dtype=float), hours.shape)
+    total = np.zeros(hours.shape)
+    rows = pairs["rows"]
+    if rows.size:
+        col = (slice(None), None) if hours.ndim == 2 else (slice(None),)
+        p = _pairs_cdf(pairs, hours[rows], value[rows])
+        total[rows[pairs["starts"]]] = np.add.reduceat(pairs["weight"][col] * p, pairs["starts"], axis=0)
+    return total
+
+
+def value_quantile(fits: LawFits, hours, level: float, confidence: float) -> np.ndarray:
+    """The `level` quantile of the averaged trend's value (a flow, L/min) at `hours`; NaN for unfitted groups."""
+    hours = np.asarray(hours, dtype=float)
+    expand = (slice(None), None) if hours.ndim == 2 else (slice(None),)
+    lo = np.full(hours.shape, np.inf)
+    hi = np.full(hours.shape, -np.inf)
+    for j, m in enumerate(MEMBERS):
+        used = (fits.weight[:, j] > 0)[expand]
+        mean, sd = _moments(fits, j, hours)
+        spread = 10.0 * sd
+        with np.errstate(over="ignore"):
+            low, high = (np.exp(mean - spread), np.exp(np.minimum(mean + spread, 700.0))) if m.log_space else (
+                mean - spread, mean + spread)
+        lo = np.where(used & np.isfinite(low), np.minimum(lo, low), lo)
+        hi = np.where(used & np.isfinite(high), np.maximum(hi, high), hi)
     fitted = np.isfinite(lo) & np.isfinite(hi)
     lo, hi = np.where(fitted, lo, 0.0), np.where(fitted, hi, 1.0)
+    pairs = _weighed_pairs(fits, confidence)
     for _ in range(44):  # the bracket shrinks to 1e-13 of its width
         mid = 0.5 * (lo + hi)
-        below = value_cdf(fits, hours, mid, confidence) < level
+        below = value_cdf(fits, hours, mid, confidence, pairs) < level
         lo, hi = np.where(below, mid, lo), np.where(below, hi, mid)
     return np.where(fitted, 0.5 * (lo + hi), np.nan)
 
@@ -105,6 +128,9 @@ def averaged_slope(fits: LawFits, hours) -> np.ndarray:
             elif m.law == "power":
                 u = np.maximum((h + fits.hours_offset) / fits.hours_scale, 0.0)
                 rate = b * m.power * u ** (m.power - 1.0) / fits.hours_scale
+            elif m.law == "run_in":
+                u = np.maximum((h + fits.hours_offset) / fits.hours_scale, 0.0)
+                rate = b * run_in_dx_du(u, m.tau, m.share) / fits.hours_scale
             else:
                 rate = b
         total = total + np.where(w > 0, w * np.nan_to_num(rate, nan=0.0, posinf=0.0, neginf=0.0), 0.0)
@@ -125,19 +151,24 @@ def crossing_quantiles(fits: LawFits, limit, now_hours, levels, confidence: floa
     grid = span[:, None] * CROSSING_GRID[None, :]
     limit_g = np.where(ok, limit, 1.0)
 
+    pairs = _weighed_pairs(fits, confidence)
+
     def crossed(hours):
-        return 1.0 - value_cdf(fits, hours, limit_g[:, None], confidence)
+        return 1.0 - value_cdf(fits, hours, limit_g[:, None] if np.ndim(hours) == 2 else limit_g, confidence, pairs)
 
     on_grid = crossed(grid)
-    levels = np.asarray(levels, dtype=float)
-    reached = on_grid[:, None, :] >= levels[None, :, None]  # (G, L, grid)
-    any_reached = reached.any(axis=2) & ok[:, None]
-    first = np.argmax(reached, axis=2)
-    hi = np.take_along_axis(grid, first, axis=1)
-    lo = np.take_along_axis(grid, np.maximum(first - 1, 0), axis=1)
-    for _ in range(_BISECTIONS):  # every level at once
-        mid = 0.5 * (lo + hi)
-        up = crossed(mid) >= levels[None, :]
-        lo, hi = np.where(up, lo, mid), np.where(up, mid, hi)
-    x = np.where(first == 0, 0.0, hi)
-    return list(np.where(any_reached, x, np.nan).T)
+    rows = np.arange(len(now))
+    out = []
+    for level in levels:
+        reached = on_grid >= level
+        any_reached = reached.any(axis=1) & ok
+        first = np.argmax(reached, axis=1)
+        hi = grid[rows, first]
+        lo = grid[rows, np.maximum(first - 1, 0)]
+        for _ in range(_BISECTIONS):
+            mid = 0.5 * (lo + hi)
+            up = crossed(mid) >= level
+            lo, hi = np.where(up, lo, mid), np.where(up, mid, hi)
+        x = np.where(first == 0, 0.0, hi)
+        out.append(np.where(any_reached, x, np.nan))
+    return out

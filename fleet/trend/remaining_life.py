@@ -218,8 +218,8 @@ def averaged_band(fit, hours_grid, qmax, confidence: float = 0.90, quantity: str
     laws = LawFits.from_columns(fit, quantity)
     h = np.asarray(hours_grid, dtype=float)
     alpha = 1.0 - confidence
-    levels = np.array([alpha / 2, 0.5, 1 - alpha / 2])
-    lo, mid, hi = value_quantile(laws, np.repeat(h[None, :, None], 3, axis=2), levels, confidence)[0].T
+    levels = np.repeat([alpha / 2, 0.5, 1 - alpha / 2], len(h))[None, :]  # the three quantiles in one search
+    lo, mid, hi = value_quantile(laws, np.tile(h, 3)[None, :], levels, confidence)[0].reshape(3, len(h))
     h = h[None, :]
     if quantity == "slip":
         mean, low, high = 1.0 - mid / qmax, 1.0 - hi / qmax, 1.0 - lo / qmax

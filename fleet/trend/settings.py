@@ -27,6 +27,9 @@ class AnalysisSettings:
     # the better-holding bands for every law but one (python3 -m benchmarks.calibration --weighting held_back).
     law_weighting: str = "aicc"
     law_held_back: float = 0.3
+    # The wear laws compared (fleet.trend.wear_laws.LAWS); fewer for a known law, as the calibration benchmark's
+    # --known-law does to find the best any fit of that law reaches on the same readings.
+    wear_laws: tuple[str, ...] = ("exponential", "linear", "power", "run_in")
     # Slip below this fraction of theoretical flow is floored before the log (noise can push flow above theory).
     slip_floor_fraction: float = 0.001
 

@@ -47,6 +47,9 @@ def wear_shape_sentence(law: str, weights: dict | None, power: float) -> str:
         shape = "The wear is growing exponentially, faster as the clearances open"
     elif law == "linear":
         shape = "The wear is steady, in proportion to the running hours"
+    elif law == "run_in":
+        shape = ("The wear was fast at first, as parts bed in after an overhaul or when new, and is settling "
+                 "into steady wear")
     elif np.isfinite(power) and power > 1:
         shape = f"The wear is accelerating, like a power {power:.1f} of the running hours"
     elif np.isfinite(power):

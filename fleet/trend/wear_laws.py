@@ -10,15 +10,23 @@ and weighed against each other by small-sample AIC (AICc).
   decelerates (run-in after an overhaul). p is not solved for: each exponent of a fixed grid is a member of
   its own, a straight line in (h / H)^p, so the spread over p carries the exponent's uncertainty into the
   forecast and every member is fitted by the same grouped robust line fit.
+- run_in: q = a + b x, x = s (1 - e^(-u/tau)) / (1 - e^(-1/tau)) + (1 - s) u, u = (h + h0) / H as for the
+  power law: a fast rise after an overhaul (or from new) that settles into steady wear, s the share of the rise
+  to the latest reading that the run-in part makes, tau its time constant (a share of H). Like the power law's
+  exponent, tau and s are not solved for: each pair of a small grid is a member, a straight line in its own x
+  (x runs from 0 to 1 over the readings). A member is only fitted where the interval holds the early part that
+  identifies it: the first reading within 3 tau of the start, and at least two readings there.
 
 q is a referred flow (slip or case drain, L/min) and h the running hours in the interval. Weights: each law's
 fit is scored on the same data scale (q, residuals divided by the error model's sigma, Huber-clipped at a
 common robust scale so one outlier does not decide the law), AICc = n ln(D / n) + 2K + 2K(K + 1) / (n - K - 1)
 with K counting the scale too (Burnham & Anderson 2002, sec. 2.4), weights exp(-delta / 2) normalised. Within
-the power law its exponents are weighed by their likelihood alone (same K). A law needs n > K + 1 readings
+the power law its exponents, and within the run-in law its (tau, s) pairs, are weighed by their likelihood
+alone (same K). A law needs n > K + 1 readings
 to be scored; with fewer than that for every law, the exponential law stands alone.
 """
 
+import warnings
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -29,10 +37,18 @@ from fleet.trend.linear import t_quantile
 from fleet.trend.robust import fit_reweighted, robust_scale
 from fleet.trend.settings import AnalysisSettings
 
-LAWS = ("exponential", "linear", "power")
-LAW_PARAMS = {"exponential": 3, "linear": 3, "power": 4}  # a, b, scale (+ the exponent p)
+LAWS = ("exponential", "linear", "power", "run_in")
+# a, b, scale (+ the exponent p; + the run-in's tau and share s)
+LAW_PARAMS = {"exponential": 3, "linear": 3, "power": 4, "run_in": 5}
 # 0.35 .. 4 in even steps on a log scale; p = 1 is the linear law itself.
 POWER_EXPONENTS = tuple(2.0 ** (k / 4.0) for k in (*range(-6, 0), *range(1, 9)))
+# Run-in time constants (shares of H, 0.04 .. 0.4 in even steps on a log scale) and shares of the rise it makes
+# (s = 0 would be the linear law). Our choices, measured on the invented fleets of benchmarks/calibration.py:
+# shares in steps of 0.1 forecast run-in wear better than steps of 0.15 (median error 26.7 % against 27.4 %),
+# time constants from 0.03 to 0.65 no better than these.
+RUN_IN_TAUS = tuple(0.04 * 10.0 ** (k / 6.0) for k in range(7))
+RUN_IN_SHARES = (0.1, 0.2, 0.3, 0.4, 0.5, 0.6, 0.7, 0.8, 0.9)
+RUN_IN_REACH = 3.0  # a run-in member needs readings within this many tau of the start
 
 
 @dataclass(frozen=True)
@@ -44,13 +60,18 @@ class Member:
     log_space: bool  # the line is fitted to ln q (else to q)
     power: float  # the line's x is (h / H)^power for the power law; plain hours otherwise
     n_params: int
+    tau: float = float("nan")  # run-in law: time constant, a share of H
+    share: float = float("nan")  # run-in law: the share of the rise to H that the run-in part makes
 
 
 MEMBERS = (
     Member("exponential", "exponential", True, 1.0, 2),
     Member("linear", "linear", False, 1.0, 2),
     *(Member(f"power_p{round(100 * p):03d}", "power", False, p, 3) for p in POWER_EXPONENTS),
+    *(Member(f"run_in_t{round(1000 * t):03d}_s{round(100 * sh):02d}", "run_in", False, 1.0, 4, t, sh)
+      for t in RUN_IN_TAUS for sh in RUN_IN_SHARES),
 )
+FAMILIES = ("power", "run_in")  # laws with many members, fitted in one weighted pass each
 FIELDS = ("a", "b", "var_a", "var_b", "cov_ab", "dof", "weight")
 
 
@@ -70,8 +91,9 @@ class LawFits:
     scale: np.ndarray | None = None  # robust residual scale per group and member (kept in memory only)
     n_points: np.ndarray | None = None  # readings fitted per group
     law_score: np.ndarray | None = None  # AICc per group and law (columns as LAWS), NaN where not scored
-    power_score: np.ndarray | None = None  # n ln(D / n) per group and power exponent, NaN where not scored
+    member_score: np.ndarray | None = None  # n ln(D / n) per group and member, NaN where not scored
     usable: np.ndarray | None = None  # per group and member: the line could be fitted
+    allowed: tuple = LAWS  # the laws compared (AnalysisSettings.wear_laws)
     _t_ratio: dict = field(default_factory=dict, repr=False)
 
     def t_ratio(self, confidence: float) -> np.ndarray:
@@ -81,16 +103,20 @@ class LawFits:
             self._t_ratio[confidence] = special.ndtri(0.5 + confidence / 2.0) / t_quantile(confidence, self.dof)
         return self._t_ratio[confidence]
 
-    def weigh(self, law_score: np.ndarray, power_score: np.ndarray) -> None:
-        """Set the member weights from scores per group: AICc per law, and the fit term n ln(D / n) per power
-        exponent (same K, so the likelihood alone weighs them); this trend's own, or summed with another's."""
-        law_w = akaike_weights(law_score)
-        within_power = akaike_weights(power_score)
-        is_power = np.array([m.law == "power" for m in MEMBERS])
+    def weigh(self, law_score: np.ndarray, member_score: np.ndarray) -> None:
+        """Set the member weights from scores per group: AICc per law, and the fit term n ln(D / n) per member
+        of a law with many members (same K, so the likelihood alone weighs them); this trend's own, or summed
+        with another's. Where no law could be scored the first allowed law stands alone."""
+        law_w = akaike_weights(law_score, fallback=LAWS.index(self.allowed[0]))
         weight = np.zeros(self.a.shape)
-        weight[:, 0], weight[:, 1] = law_w[:, 0], law_w[:, 1]
-        weight[:, is_power] = law_w[:, [2]] * within_power
+        for k, law in enumerate(LAWS):
+            of_law = np.array([m.law == law for m in MEMBERS])
+            within = akaike_weights(member_score[:, of_law]) if law in FAMILIES else 1.0
+            weight[:, of_law] = law_w[:, [k]] * within
         weight = np.where(self.usable, weight, 0.0)
+        # A member with under a millionth of the heaviest one's weight moves no forecast (all of them together
+        # hold under 1e-4 of the probability); dropping them spares the forecasts their evaluation.
+        weight = np.where(weight >= 1e-6 * weight.max(axis=1, keepdims=True, initial=0.0), weight, 0.0)
         total = weight.sum(axis=1, keepdims=True)
         with np.errstate(invalid="ignore", divide="ignore"):
             fitted = self.usable.any(axis=1, keepdims=True) & (total > 0)
@@ -135,18 +161,31 @@ class LawFits:
 def member_x(member: Member, hours, hours_scale, hours_offset) -> np.ndarray:
     """The line's x of a member at interval hours (scale and offset broadcast against hours)."""
     h = np.asarray(hours, dtype=float)
-    if member.law != "power":
+    if member.law not in FAMILIES:
         return h
     with np.errstate(invalid="ignore", divide="ignore"):
-        return np.maximum((h + hours_offset) / hours_scale, 0.0) ** member.power
+        u = np.maximum((h + hours_offset) / hours_scale, 0.0)
+    if member.law == "power":
+        return u**member.power
+    return run_in_x(u, member.tau, member.share)
 
 
-def _fit_power_members(group, hours, q, sigma, robust_w, clip, hours_scale, offset, n_groups, out, deviance,
-                       only=None):
-    """Fill the power members' columns of `out` and `deviance`: one weighted least-squares pass per exponent
-    with fixed weights (error model x Huber), from grouped sums; Huber's sandwich covariance as in
-    fleet.trend.robust.fit_reweighted, clipped at the common robust scale `clip`. only: refit just these
-    groups (a mask over groups), leaving the others' figures as they are."""
+def run_in_x(u, tau: float, share: float) -> np.ndarray:
+    """x of a run-in member at u = (h + h0) / H: s (1 - e^(-u/tau)) / (1 - e^(-1/tau)) + (1 - s) u (0 at 0, 1 at 1)."""
+    return share * -np.expm1(-u / tau) / -np.expm1(-1.0 / tau) + (1.0 - share) * u
+
+
+def run_in_dx_du(u, tau: float, share: float) -> np.ndarray:
+    """dx/du of a run-in member (for the growth rate)."""
+    return share * np.exp(-u / tau) / (tau * -np.expm1(-1.0 / tau)) + (1.0 - share)
+
+
+def _fit_family_members(family, group, hours, q, sigma, robust_w, clip, hours_scale, offset, n_groups, out,
+                        deviance, only=None):
+    """Fill the columns of `out` and `deviance` of the members of a law with many members (FAMILIES): one
+    weighted least-squares pass per member with fixed weights (error model x Huber), from grouped sums; Huber's
+    sandwich covariance as in fleet.trend.robust.fit_reweighted, clipped at the common robust scale `clip`.
+    only: refit just these groups (a mask over groups), leaving the others' figures as they are."""
     rows = slice(None)
     if only is not None:
         keep = only[group]
@@ -159,13 +198,14 @@ def _fit_power_members(group, hours, q, sigma, robust_w, clip, hours_scale, offs
     sy = np.bincount(group, w * q, minlength=n_groups)
     m0 = np.bincount(group, model_w, minlength=n_groups)
     with np.errstate(invalid="ignore", divide="ignore"):
-        log_u = np.log(np.maximum((hours + offset[group]) / hours_scale[group], 1e-300))
+        u = np.maximum((hours + offset[group]) / hours_scale[group], 0.0)
+        log_u = np.log(np.maximum(u, 1e-300))
     clip2 = clip[group] ** 2
     for j, m in enumerate(MEMBERS):
-        if m.law != "power":
+        if m.law != family:
             continue
-        x = np.exp(m.power * log_u)
-        # Raw sums are safe here: x = ((h + h0) / H)^p lies in [0, 1].
+        # Raw sums are safe here: every family's x lies in [0, 1] over the readings.
+        x = np.exp(m.power * log_u) if family == "power" else run_in_x(u, m.tau, m.share)
         wx = w * x
         sx = np.bincount(group, wx, minlength=n_groups)
         sxx = np.bincount(group, wx * x, minlength=n_groups)
@@ -193,20 +233,32 @@ def _fit_power_members(group, hours, q, sigma, robust_w, clip, hours_scale, offs
         deviance[rows, j] = psi2[rows]
 
 
-def _best_power_huber(group, hours, q, sigma, out, deviance, hours_scale, offset, n_groups, settings):
-    """Huber weights of each reading about its group's best-fitting power line (smallest deviance)."""
-    is_power = np.array([m.law == "power" for m in MEMBERS])
-    power_dev = np.where(np.isfinite(deviance[:, is_power]), deviance[:, is_power], np.inf)
-    best = np.flatnonzero(is_power)[np.argmin(power_dev, axis=1)]
-    p = np.array([m.power for m in MEMBERS])[best][group]
-    with np.errstate(invalid="ignore", divide="ignore"):
-        x = np.maximum((hours + offset[group]) / hours_scale[group], 0.0) ** p
-    rows = np.arange(n_groups)
-    fitted = out["a"][rows, best][group] + out["b"][rows, best][group] * x
+def _best_family_huber(family, group, hours, q, sigma, out, deviance, hours_scale, offset, n_groups, settings):
+    """Huber weights of each reading about its group's best-fitting line of the family (smallest deviance)."""
+    of_family = np.array([m.law == family for m in MEMBERS])
+    family_dev = np.where(np.isfinite(deviance[:, of_family]), deviance[:, of_family], np.inf)
+    best = np.flatnonzero(of_family)[np.argmin(family_dev, axis=1)]
+    fitted = np.full(len(q), np.nan)
+    for j in np.unique(best):
+        at = best[group] == j
+        x = member_x(MEMBERS[j], hours[at], hours_scale[group[at]], offset[group[at]])
+        fitted[at] = out["a"][group[at], j] + out["b"][group[at], j] * x
     z = (q - fitted) / sigma
     u = np.abs(z) / robust_scale(group, z, n_groups)[group]
     with np.errstate(invalid="ignore", divide="ignore"):
         return np.where(u > settings.huber_k, settings.huber_k / u, 1.0)
+
+
+def run_in_identifiable(group, hours, hours_scale, offset, n_groups) -> np.ndarray:
+    """Per group and member: False for a run-in member whose early part the readings do not show (the first
+    reading later than RUN_IN_REACH tau after the start, or fewer than two readings before then)."""
+    ok = np.ones((n_groups, len(MEMBERS)), dtype=bool)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        u = (hours + offset[group]) / hours_scale[group]
+    for j, m in enumerate(MEMBERS):
+        if m.law == "run_in":
+            ok[:, j] = np.bincount(group, u <= RUN_IN_REACH * m.tau, minlength=n_groups) >= 2
+    return ok
 
 
 def aicc(n, n_params, deviance) -> np.ndarray:
@@ -219,20 +271,21 @@ def aicc(n, n_params, deviance) -> np.ndarray:
     return np.where(ok, value, np.nan)
 
 
-def akaike_weights(criterion: np.ndarray) -> np.ndarray:
+def akaike_weights(criterion: np.ndarray, fallback: int = 0) -> np.ndarray:
     """exp(-delta / 2) / sum, delta from the row's smallest criterion; NaN entries get weight 0.
 
-    A row with no finite entry gets all its weight on the first column (the exponential law)."""
+    A row with no finite entry gets all its weight on column `fallback` (by default the first, the exponential
+    law)."""
     c = np.atleast_2d(np.asarray(criterion, dtype=float))
     finite = np.isfinite(c)
     best = np.min(np.where(finite, c, np.inf), axis=1, keepdims=True)
     with np.errstate(invalid="ignore", over="ignore"):
         raw = np.where(finite, np.exp(-0.5 * (c - np.where(np.isfinite(best), best, 0.0))), 0.0)
     total = raw.sum(axis=1, keepdims=True)
-    fallback = np.zeros_like(c)
-    fallback[:, 0] = 1.0
+    alone = np.zeros_like(c)
+    alone[:, fallback] = 1.0
     with np.errstate(invalid="ignore", divide="ignore"):
-        return np.where(total > 0, raw / np.where(total > 0, total, 1.0), fallback)
+        return np.where(total > 0, raw / np.where(total > 0, total, 1.0), alone)
 
 
 def fit_wear_laws(
@@ -292,50 +345,48 @@ def fit_wear_laws(
     deviance = np.full(shape, np.nan)
     for j in range(2):
         deviance[:, j] = np.bincount(group, np.minimum(z[:, j] ** 2, clip[group] ** 2), minlength=n_groups)
-    # The power law's lines take shared Huber weights, one weighted pass each (its exponents are many, the
-    # outliers the same): a reading is an outlier when the exponential law and the linear law find it far off
-    # and, where a power line fits best of all, that line too (a first pass finds it; without it, readings
-    # that only the exponential and linear laws miss, as on an accelerating pump, would lose their weight).
+    # The lines of the power and run-in laws take shared Huber weights, one weighted pass each (their members
+    # are many, the outliers the same): a reading is an outlier when the exponential law and the linear law
+    # find it far off and, where a line of the family fits best of all, that line too (a first pass finds it;
+    # without it, readings that only the exponential and linear laws miss, as on an accelerating pump, would
+    # lose their weight).
     robust_w = np.fmax(huber["exponential"], huber["linear"])
-    _fit_power_members(group, hours, q, sigma, robust_w, clip, hours_scale, offset, n_groups, out, deviance)
-    spared = np.fmax(robust_w, _best_power_huber(group, hours, q, sigma, out, deviance, hours_scale, offset,
-                                                 n_groups, settings))
-    is_power = np.array([m.law == "power" for m in MEMBERS])
-    best_power_dev = np.min(np.where(np.isfinite(deviance[:, is_power]), deviance[:, is_power], np.inf), axis=1)
-    power_best = best_power_dev < np.fmin(deviance[:, 0], deviance[:, 1])
-    changed = power_best & (np.bincount(group, spared != robust_w, minlength=n_groups) > 0)
-    if changed.any():
-        _fit_power_members(group, hours, q, sigma, spared, clip, hours_scale, offset, n_groups, out, deviance,
-                           only=changed)
-    usable = np.isfinite(out["a"]) & np.isfinite(out["b"]) & np.isfinite(out["var_b"]) & np.isfinite(deviance)
+    identifiable = run_in_identifiable(group, hours, hours_scale, offset, n_groups)
+    allowed = np.array([m.law in settings.wear_laws for m in MEMBERS])
+    for family in FAMILIES:
+        if family not in settings.wear_laws:
+            continue
+        of_family = np.array([m.law == family for m in MEMBERS])
+        _fit_family_members(family, group, hours, q, sigma, robust_w, clip, hours_scale, offset, n_groups, out,
+                            deviance)
+        deviance = np.where(identifiable, deviance, np.nan)
+        spared = np.fmax(robust_w, _best_family_huber(family, group, hours, q, sigma, out, deviance, hours_scale,
+                                                      offset, n_groups, settings))
+        best_dev = np.min(np.where(np.isfinite(deviance[:, of_family]), deviance[:, of_family], np.inf), axis=1)
+        family_best = best_dev < np.fmin(deviance[:, 0], deviance[:, 1])
+        changed = family_best & (np.bincount(group, spared != robust_w, minlength=n_groups) > 0)
+        if changed.any():
+            _fit_family_members(family, group, hours, q, sigma, spared, clip, hours_scale, offset, n_groups, out,
+                                deviance, only=changed)
+            deviance = np.where(identifiable, deviance, np.nan)
+    usable = (np.isfinite(out["a"]) & np.isfinite(out["b"]) & np.isfinite(out["var_b"]) & np.isfinite(deviance)
+              & allowed & identifiable)
     deviance = np.where(usable, np.maximum(deviance, 1e-12 * count[:, None]), np.nan)
     with np.errstate(invalid="ignore", divide="ignore"):
         fit_term = count[:, None] * np.log(deviance / count[:, None])
-    is_power = np.array([m.law == "power" for m in MEMBERS])
-    best_power = np.min(np.where(np.isfinite(fit_term[:, is_power]), deviance[:, is_power], np.inf), axis=1)
-    law_score = np.column_stack(
-        [
-            aicc(count, LAW_PARAMS["exponential"], deviance[:, 0]),
-            aicc(count, LAW_PARAMS["linear"], deviance[:, 1]),
-            aicc(count, LAW_PARAMS["power"], np.where(np.isfinite(best_power), best_power, np.nan)),
-        ]
-    )
-    power_score = fit_term[:, is_power]
+    law_score = np.column_stack([_law_aicc(law, count, deviance) for law in LAWS])
+    member_score = fit_term
     if settings.law_weighting == "held_back":
         held = _held_back_scores(
             group, hours, q, log_q, sigma, np.fmax(huber["exponential"], huber["linear"]), fitted_q, floor,
             hours_scale, offset, first, last, clip, n_groups, settings,
         )
         if held is not None:
-            scored = np.isfinite(held).all(axis=1, keepdims=True)
-            member_crit = -2.0 * held
-            with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
-                pw = member_crit[:, is_power]
-                top = np.nanmin(pw, axis=1, keepdims=True)
-                family = top - 2.0 * np.log(np.nanmean(np.exp(-0.5 * (pw - top)), axis=1, keepdims=True))
-            held_law = np.column_stack([member_crit[:, 0], member_crit[:, 1], family[:, 0]])
+            member_crit = np.where(usable, -2.0 * held, np.nan)
+            scored = np.isfinite(member_crit[:, :2]).all(axis=1, keepdims=True)
+            held_law = np.column_stack([_family_criterion(member_crit, law) for law in LAWS])
             law_score = np.where(scored, held_law, law_score)
-            power_score = np.where(scored, pw, power_score)
+            member_score = np.where(scored, member_crit, member_score)
     out["weight"] = np.zeros(shape)
     laws = LawFits(
         **out,
@@ -343,11 +394,31 @@ def fit_wear_laws(
         hours_offset=offset,
         n_points=count,
         law_score=law_score,
-        power_score=power_score,
+        member_score=member_score,
         usable=usable,
+        allowed=tuple(law for law in LAWS if law in settings.wear_laws),
     )
-    laws.weigh(law_score, laws.power_score)
+    laws.weigh(law_score, laws.member_score)
     return laws
+
+
+def _law_aicc(law: str, count, deviance) -> np.ndarray:
+    """AICc of a law on its best member's deviance (NaN where no member is usable)."""
+    of_law = np.array([m.law == law for m in MEMBERS])
+    best = np.min(np.where(np.isfinite(deviance[:, of_law]), deviance[:, of_law], np.inf), axis=1)
+    return aicc(count, LAW_PARAMS[law], np.where(np.isfinite(best), best, np.nan))
+
+
+def _family_criterion(member_crit, law: str) -> np.ndarray:
+    """A law's held-back criterion: its one member's, or for a family -2 ln of its members' mean likelihood."""
+    of_law = np.array([m.law == law for m in MEMBERS])
+    crit = member_crit[:, of_law]
+    if crit.shape[1] == 1:
+        return crit[:, 0]
+    with np.errstate(over="ignore", invalid="ignore", divide="ignore"), warnings.catch_warnings():
+        warnings.simplefilter("ignore", RuntimeWarning)  # a group no member could score stays NaN
+        top = np.nanmin(crit, axis=1, keepdims=True)
+        return (top - 2.0 * np.log(np.nanmean(np.exp(-0.5 * (crit - top)), axis=1, keepdims=True)))[:, 0]
 
 
 def _held_back_scores(group, hours, q, log_q, sigma, robust_w, fitted_q, floor, hours_scale, offset, first, last,
