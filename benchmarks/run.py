@@ -40,9 +40,9 @@ LOADED_COLUMNS = ("id", "pump_id", "taken_at", "hours", "pressure_bar", "speed_r
                   "temp_c", "stroke")
 BATCH_ROWS = 500_000
 TARGETS = {  # issue 6
-    "import_ratio": 1.5, "analysis_ratio": 3.0, "analysis_s": 60.0, "service_list_ms": 300.0,
-    "pump_page_ms": 200.0, "reading_visible_ms": 100.0, "analysis_peak_mb": 2048.0,
+    "import_ratio": 1.5, "analysis_ratio": 3.0, "analysis_s": 60.0, "analysis_peak_mb": 2048.0,
     "help_ms": 300.0,  # issue 10
+    "service_list_ms": 100.0, "pump_page_ms": 150.0, "reading_visible_ms": 50.0,  # issue 12
 }
 
 
@@ -332,10 +332,12 @@ def table(figures: dict) -> str:
         ("full analysis", f"{figures['analysis_s']:.1f} s", f"load floor {figures['load_floor_s']:.1f} s",
          f"{figures['analysis_ratio']:.2f} x (target <= 3, < 60 s)"),
         ("analysis peak memory", f"{figures['analysis_peak_mb']:,.0f} MB", "", "target <= 2048 MB"),
-        ("service list page, median of 20", f"{figures['service_list_ms']:.0f} ms", "", "target <= 300 ms"),
-        ("pump page, 5 years of readings", f"{figures['pump_page_ms']:.0f} ms", "", "target <= 200 ms"),
+        ("service list page, median of 20", f"{figures['service_list_ms']:.0f} ms", "",
+         f"target <= {TARGETS['service_list_ms']:.0f} ms"),
+        ("pump page, 5 years of readings", f"{figures['pump_page_ms']:.0f} ms", "",
+         f"target <= {TARGETS['pump_page_ms']:.0f} ms"),
         ("new reading -> analysis visible", f"{figures['reading_visible_ms']:.0f} ms "
-         f"(max {figures['reading_visible_max_ms']:.0f})", "", "target <= 100 ms"),
+         f"(max {figures['reading_visible_max_ms']:.0f})", "", f"target <= {TARGETS['reading_visible_ms']:.0f} ms"),
         ("overhaul imported -> refreshed", f"{figures['overhaul_refresh_ms']:.0f} ms", "", ""),
         ("oil sample imported -> refreshed", f"{figures['sample_refresh_ms']:.0f} ms", "", ""),
         (f"command line start (`fleet --help`), median of {figures['help_runs']}", f"{figures['help_ms']:.0f} ms",

@@ -59,6 +59,11 @@ def test_demo_data_at_an_earlier_revision_upgrades_to_the_newest_intact(revision
     loaded = 0
     with demo_db.engine.connect() as reader, engine.connect() as upgraded:
         for name, columns in kept.items():
+            if name == "analysis_result" and revision < "0011" and "data_version" in columns:
+                # 0011 keeps interval trends with each analysis: it marks every older stored analysis stale.
+                columns = [c for c in columns if c != "data_version"]
+                versions = upgraded.execute(select(at_head.tables[name].c.data_version)).scalars().all()
+                assert versions and set(versions) == {-1}
             expected = _rows(reader, source.tables[name], columns)
             assert _rows(upgraded, at_head.tables[name], columns) == expected, name
             loaded += len(expected)

@@ -255,6 +255,10 @@ class AnalysisResult(Base):
     prior_hours_to_overhaul: Mapped[float | None] = mapped_column(Float)
     energy_cost_per_year: Mapped[float | None] = mapped_column(Float)
     detail: Mapped[dict[str, Any]] = mapped_column(JSON)  # every other figure of the analysis, JSON-ready
+    # The two figures of the service order besides status and hours (also in detail): columns, so re-ranking the
+    # stored list after a write reads no JSON.
+    past_margin: Mapped[float | None] = mapped_column(Float)
+    limit_date_low: Mapped[str | None] = mapped_column(String(10))
     # The pump's data version (PumpDataVersion) these figures were computed from: older than the pump's means stale.
     data_version: Mapped[int] = mapped_column(Integer, default=0, server_default="0")
 
@@ -283,6 +287,23 @@ class ServiceLife(Base):
     entry_hours: Mapped[float] = mapped_column(Float)
     life_hours: Mapped[float] = mapped_column(Float)
     failed: Mapped[bool] = mapped_column(Boolean)
+
+
+class IntervalTrend(Base):
+    """Each service interval's wear trend as the latest analysis fitted it (every wear law's line of the referred
+    slip, its crossing of the limit with bounds): the pump page draws the trend and its band from these rows, so
+    viewing a pump runs no analysis. Replaced with the pump's analysis_result, in the same transaction."""
+
+    __tablename__ = "interval_trend"
+
+    pump_id: Mapped[int] = mapped_column(ForeignKey("pump.id", ondelete="CASCADE"), primary_key=True)
+    interval_no: Mapped[int] = mapped_column(Integer, primary_key=True)
+    computed_at: Mapped[datetime] = mapped_column(DateTime)
+    is_current: Mapped[bool] = mapped_column(Boolean)
+    start_hours: Mapped[float | None] = mapped_column(Float)  # hour meter at the interval's start
+    current_hours: Mapped[float | None] = mapped_column(Float)  # hours into the interval at its last reading
+    enough_data: Mapped[bool] = mapped_column(Boolean)  # the slip has a trend of its own
+    fit: Mapped[dict[str, Any]] = mapped_column(JSON)  # the fitted figures, JSON-ready (fleet.trend.interval_trends)
 
 
 class ForecastSnapshot(Base):

@@ -30,6 +30,9 @@ def _as_frame(laws: LawFits, span: np.ndarray, current_hours: np.ndarray, prefix
     stacked = np.column_stack([weights[law] for law in LAWS])
     fitted = laws.weight.sum(axis=1) > 0
     wear_law = np.where(fitted, np.array(LAWS, dtype=object)[np.argmax(stacked, axis=1)], None)
+    # The median now and at the interval's start, from one bisection.
+    current, start = value_quantile(
+        laws, np.column_stack([current_hours, np.zeros_like(current_hours)]), 0.5, settings.confidence).T
     cols = {
         "n_points": laws.n_points.astype(np.int64),
         "span_hours": span,
@@ -40,8 +43,8 @@ def _as_frame(laws: LawFits, span: np.ndarray, current_hours: np.ndarray, prefix
         "cov_ab": laws.cov_ab[:, exp],
         "scale": laws.scale[:, exp],
         "dof": laws.dof[:, exp],
-        "current_lpm": value_quantile(laws, current_hours, 0.5, settings.confidence),
-        "start_lpm": value_quantile(laws, np.zeros_like(current_hours), 0.5, settings.confidence),
+        "current_lpm": current,
+        "start_lpm": start,
         "slope_lpm_per_h": averaged_slope(laws, current_hours),
         "wear_law": wear_law,
         **{f"weight_{law}": np.where(fitted, weights[law], np.nan) for law in LAWS},

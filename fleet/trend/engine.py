@@ -147,13 +147,32 @@ def _crossing_passed(cur: pd.DataFrame, current_iv: pd.DataFrame, referred: pd.D
     keys = pd.DataFrame({"pump_id": cur.index.to_numpy(), "interval_no": current_iv["interval_no"].to_numpy()})
     per_day = cur["hours_per_day"].to_numpy(float)
     out = pd.DataFrame({"crossed_limit": np.where(past, names[first], None)}, index=cur.index)
-    near = referred[referred["pump_id"].isin(cur.index[past])]  # only past pumps' readings date a crossing
-    for suffix, field_ in (("", "crossing_hours"), ("_low", "crossing_low"), ("_high", "crossing_high")):
+    suffixes = ("", "_low", "_high")
+    hours = []
+    for suffix, field_ in zip(suffixes, ("crossing_hours", "crossing_low", "crossing_high"), strict=True):
         h = np.column_stack([cur[f"{q}_{field_}"].to_numpy(float) for q in QUANTITIES])[rows, first]
-        h = np.where(past, h, np.nan)
-        out[f"crossed_at_hours{suffix}"] = start + h
-        out[f"crossed_date{suffix}"] = dates_at_hours(near, keys, h, per_day).to_numpy()
+        hours.append(np.where(past, h, np.nan))
+        out[f"crossed_at_hours{suffix}"] = start + hours[-1]
+    if not past.any():  # nothing to date: skip the readings' search
+        for suffix in suffixes:
+            out[f"crossed_date{suffix}"] = pd.Series(pd.NaT, index=cur.index, dtype="datetime64[ns]").to_numpy()
+        return out
+    near = referred[referred["pump_id"].isin(cur.index[past])]  # only past pumps' readings date a crossing
+    # The three figures of every pump dated in one search.
+    dates = dates_at_hours(near, pd.concat([keys] * 3, ignore_index=True), np.concatenate(hours),
+                           np.tile(per_day, 3)).to_numpy()
+    for i, suffix in enumerate(suffixes):
+        out[f"crossed_date{suffix}"] = dates[i * len(cur):(i + 1) * len(cur)]
     return out
+
+
+def place_readings(pumps: pd.DataFrame, readings: pd.DataFrame | None, events: pd.DataFrame | None,
+                   flow_points: pd.DataFrame | None, settings: AnalysisSettings) -> tuple[pd.DataFrame, pd.DataFrame]:
+    """The per-reading part of the analysis, no fitting: readings referred to reference conditions and placed in
+    their service intervals (referred readings, intervals). A page that lists readings needs only this."""
+    readings = _empty_readings() if readings is None or len(readings) == 0 else readings
+    referred = refer_readings(readings, pumps, flow_points, settings)
+    return assign_intervals(referred, events)
 
 
 def analyze_fleet(
@@ -174,10 +193,7 @@ def analyze_fleet(
     s = settings or AnalysisSettings()
     now = pd.Timestamp(now)
     pump_tab = _pump_table(pumps)
-    readings = _empty_readings() if readings is None or len(readings) == 0 else readings
-
-    referred = refer_readings(readings, pumps, flow_points, s)
-    referred, intervals = assign_intervals(referred, events)
+    referred, intervals = place_readings(pumps, readings, events, flow_points, s)
     intervals = intervals[intervals["pump_id"].isin(pump_tab.index)].reset_index(drop=True)
 
     # Wear trends and remaining life, every pump interval at once.

@@ -63,6 +63,20 @@ def reset_events(events: pd.DataFrame | None) -> pd.DataFrame:
     return resets
 
 
+def _resets_before(resets: pd.DataFrame, pump_ids: np.ndarray, key: np.ndarray) -> np.ndarray:
+    """Per reading, how many of its pump's reset events come at or before it: its interval number (resets are
+    numbered 1.. in key order). Exact comparisons of the ordering keys, one pass per reset of the busiest pump."""
+    reset_pump = resets["pump_id"].to_numpy(np.int64)  # sorted by pump, then key (reset_events)
+    reset_key = resets["key"].to_numpy(float)
+    first = np.searchsorted(reset_pump, pump_ids, side="left")
+    last = np.searchsorted(reset_pump, pump_ids, side="right")
+    count = np.zeros(len(pump_ids), dtype=np.int64)
+    for k in range(int((last - first).max(initial=0))):
+        at = first + k
+        count += (at < last) & (reset_key[np.minimum(at, len(reset_key) - 1)] <= key)
+    return count
+
+
 def assign_intervals(readings: pd.DataFrame, events: pd.DataFrame | None) -> tuple[pd.DataFrame, pd.DataFrame]:
     """Place every reading in its pump's service interval.
 
@@ -75,20 +89,8 @@ def assign_intervals(readings: pd.DataFrame, events: pd.DataFrame | None) -> tup
     resets = reset_events(events)
     r = readings.copy()
     r["taken_at"] = pd.to_datetime(r["taken_at"])
-    r["_key"] = _order_key(r["taken_at"], r["hours"], missing_hours=_END_OF_DAY)
-    r["_row"] = np.arange(len(r))
-    r = r.sort_values("_key", kind="stable")
-    placed = pd.merge_asof(
-        r[["_key", "_row", "pump_id"]],
-        resets[["key", "pump_id", "interval_no"]].sort_values("key", kind="stable"),
-        left_on="_key",
-        right_on="key",
-        by="pump_id",
-        direction="backward",
-        allow_exact_matches=True,
-    )
-    r["interval_no"] = placed.set_index("_row")["interval_no"].reindex(r["_row"]).fillna(0).astype(np.int64).values
-    r = r.sort_values("_row").drop(columns=["_key", "_row"])
+    key = _order_key(r["taken_at"], r["hours"], missing_hours=_END_OF_DAY)
+    r["interval_no"] = _resets_before(resets, r["pump_id"].to_numpy(np.int64), key)
 
     hours = pd.to_numeric(r["hours"], errors="coerce")
     grouped = r.assign(_hours=hours).groupby(["pump_id", "interval_no"])

@@ -216,9 +216,11 @@ def averaged_band(fit, hours_grid, qmax, confidence: float = 0.90, quantity: str
     bounds of hours_to_limits (both come from the same mixture).
     """
     laws = LawFits.from_columns(fit, quantity)
-    h = np.asarray(hours_grid, dtype=float)[None, :]
+    h = np.asarray(hours_grid, dtype=float)
     alpha = 1.0 - confidence
-    lo, mid, hi = (value_quantile(laws, h, level, confidence)[0] for level in (alpha / 2, 0.5, 1 - alpha / 2))
+    levels = np.repeat([alpha / 2, 0.5, 1 - alpha / 2], len(h))[None, :]  # the three quantiles in one search
+    lo, mid, hi = value_quantile(laws, np.tile(h, 3)[None, :], levels, confidence)[0].reshape(3, len(h))
+    h = h[None, :]
     if quantity == "slip":
         mean, low, high = 1.0 - mid / qmax, 1.0 - hi / qmax, 1.0 - lo / qmax
     else:

@@ -145,7 +145,12 @@ class LawFits:
         def col(name):
             return np.atleast_1d(np.asarray(frame[f"{prefix}_{name}"], dtype=float))
 
-        parts = {f: np.column_stack([col(f"{m.name}_{f}") for m in MEMBERS]) for f in FIELDS}
+        if isinstance(frame, pd.DataFrame):  # every member's columns in one take, not one lookup each
+            names = [f"{prefix}_{m.name}_{f}" for f in FIELDS for m in MEMBERS]
+            block = frame[names].to_numpy(dtype=float).reshape(len(frame), len(FIELDS), len(MEMBERS))
+            parts = {f: block[:, i, :] for i, f in enumerate(FIELDS)}
+        else:
+            parts = {f: np.column_stack([col(f"{m.name}_{f}") for m in MEMBERS]) for f in FIELDS}
         return cls(
             **parts,
             hours_scale=col("hours_scale"),

@@ -9,7 +9,6 @@ from fleet.services.analysis.compute import (
     Computed,
     analyse,
     analyse_results,
-    analyse_with_frames,
     stored_priors,
 )
 from fleet.services.analysis.records import analysis_records, pump_ids_for, statuses
@@ -18,6 +17,6 @@ from fleet.services.analysis.store import CONTRACT_FIELDS, RefreshSummary
 
 __all__ = [
     "CHUNK_PUMPS", "any_stale", "CONTRACT_FIELDS", "Computed", "RefreshSummary", "analyse", "analyse_results",
-    "analyse_with_frames", "analysis_records", "bring_up_to_date", "pump_ids_for", "reanalyse", "refresh_analysis",
+    "analysis_records", "bring_up_to_date", "pump_ids_for", "reanalyse", "refresh_analysis",
     "stale_pumps", "statuses", "stored_priors",
 ]

@@ -9,9 +9,10 @@ from sqlalchemy import select
 from sqlalchemy.orm import Session
 
 from fleet.db.models import FleetPrior, Pump, PumpDataVersion
-from fleet.services.analysis.frames import FleetFrames, load_frames
+from fleet.services.analysis.frames import load_frames
 from fleet.timeutil import utcnow
 from fleet.trend.engine import FleetAnalysis, analyze_fleet, apply_priors, fit_priors
+from fleet.trend.interval_trends import interval_trends
 from fleet.trend.intervals import interval_lives
 from fleet.trend.settings import AnalysisSettings
 from fleet.trend.status import service_rank
@@ -27,6 +28,7 @@ class Computed:
 
     results: pd.DataFrame
     lives: pd.DataFrame
+    trends: pd.DataFrame  # each pump interval's fitted trend (fleet.trend.interval_trends)
     versions: dict[int, int]
     computed_at: datetime
     full: bool
@@ -56,24 +58,17 @@ def stored_priors(session: Session) -> pd.DataFrame | None:
 def analyse(session: Session, pump_ids=None, now: datetime | None = None,
             settings: AnalysisSettings | None = None) -> FleetAnalysis:
     """Compute (without storing) the analysis of ``pump_ids`` (None: the fleet)."""
-    return analyse_with_frames(session, pump_ids, now, settings)[0]
-
-
-def analyse_with_frames(session: Session, pump_ids=None, now: datetime | None = None,
-                        settings: AnalysisSettings | None = None) -> tuple[FleetAnalysis, FleetFrames]:
-    """The analysis and the frames it was computed from (a page needs both; loading twice costs)."""
     now = now or utcnow()
     frames = load_frames(session, pump_ids, as_of=now)
     priors = None if pump_ids is None else stored_priors(session)
-    analysis = analyze_fleet(frames.pumps, frames.readings, frames.events, frames.samples, frames.flow_points,
-                             now=now, settings=settings, priors=priors)
-    return analysis, frames
+    return analyze_fleet(frames.pumps, frames.readings, frames.events, frames.samples, frames.flow_points,
+                         now=now, settings=settings, priors=priors)
 
 
 def analyse_results(session: Session, pump_ids=None, now: datetime | None = None,
                     settings: AnalysisSettings | None = None,
-                    chunk_pumps: int = CHUNK_PUMPS) -> tuple[pd.DataFrame, pd.DataFrame]:
-    """(results, service lives) of ``pump_ids`` (None: the fleet).
+                    chunk_pumps: int = CHUNK_PUMPS) -> tuple[pd.DataFrame, pd.DataFrame, pd.DataFrame]:
+    """(results, service lives, interval trends) of ``pump_ids`` (None: the fleet).
 
     The fleet is analysed ``chunk_pumps`` pumps at a time, so memory stays bounded by one part. A pump's
     figures depend only on its own data and the fleet priors; those are fitted once from every part's service
@@ -87,12 +82,14 @@ def analyse_results(session: Session, pump_ids=None, now: datetime | None = None
         frames = load_frames(session, [], as_of=now)
         part = analyze_fleet(frames.pumps, frames.readings, frames.events, frames.samples, frames.flow_points,
                              now=now, settings=settings)
-        return part.results, interval_lives(part.intervals)
-    parts, intervals, kinds = [], [], []
+        return part.results, interval_lives(part.intervals), interval_trends(part.fits, part.intervals,
+                                                                             settings.confidence)
+    parts, intervals, kinds, trends = [], [], [], []
     for first in range(0, len(ids), chunk_pumps):
         part = analyse(session, ids[first:first + chunk_pumps], now, settings)
         parts.append(part.results)
         intervals.append(part.intervals)
+        trends.append(interval_trends(part.fits, part.intervals, settings.confidence))
         kinds.append(part.results["kind"])
     results = pd.concat(parts) if len(parts) > 1 else parts[0]
     all_intervals = pd.concat(intervals, ignore_index=True)
@@ -100,7 +97,7 @@ def analyse_results(session: Session, pump_ids=None, now: datetime | None = None
         if len(parts) > 1:  # each part ranked its own pumps: rank the fleet
             results["rank"] = service_rank(results).to_numpy()
         apply_priors(results, fit_priors(all_intervals, pd.concat(kinds), settings), now)
-    return results, interval_lives(all_intervals)
+    return results, interval_lives(all_intervals), pd.concat(trends, ignore_index=True)
 
 
 def compute(session: Session, pump_ids=None, now: datetime | None = None,
@@ -109,5 +106,5 @@ def compute(session: Session, pump_ids=None, now: datetime | None = None,
     computed_at = now or utcnow()
     versions = data_versions(session, pump_ids)  # first: the data read next is at least this new
     ids = None if pump_ids is None else sorted(set(versions))
-    results, lives = analyse_results(session, ids, computed_at, settings)
-    return Computed(results, lives, versions, computed_at, full=pump_ids is None)
+    results, lives, trends = analyse_results(session, ids, computed_at, settings)
+    return Computed(results, lives, trends, versions, computed_at, full=pump_ids is None)

@@ -15,7 +15,7 @@ import pandas as pd
 from sqlalchemy import delete, insert, select, update
 from sqlalchemy.orm import Session
 
-from fleet.db.models import AnalysisResult, FleetPrior, Pump, ServiceLife, StatusChange
+from fleet.db.models import AnalysisResult, FleetPrior, IntervalTrend, Pump, ServiceLife, StatusChange
 from fleet.jsonvalues import json_ready
 from fleet.services.analysis.compute import Computed
 from fleet.services.analysis.snapshots import keep_forecasts
@@ -77,7 +77,9 @@ def store(session: Session, computed: Computed, settings: AnalysisSettings | Non
     for part in _chunks(keep):
         session.execute(delete(AnalysisResult).where(AnalysisResult.pump_id.in_(part)))
         session.execute(delete(ServiceLife).where(ServiceLife.pump_id.in_(part)))
+        session.execute(delete(IntervalTrend).where(IntervalTrend.pump_id.in_(part)))
     _insert_results(session, records, computed)
+    _insert_trends(session, computed.trends[computed.trends["pump_id"].isin(keep)], computed.computed_at)
     keep_forecasts(session, records, computed.computed_at)
     lives = computed.lives[computed.lives["pump_id"].isin(keep)]
     if len(lives):
@@ -103,10 +105,21 @@ def _insert_results(session: Session, records: list[dict], computed: Computed) -
         rows.append({
             "pump_id": record["pump_id"], "computed_at": computed.computed_at, "rank": record.get("rank") or 0,
             "detail": json_ready(detail), "data_version": computed.versions.get(record["pump_id"], 0),
+            "past_margin": record.get("past_margin"), "limit_date_low": record.get("limit_date_low"),
             **{k: record.get(k) for k in COLUMNS},
         })
     if rows:
         session.execute(insert(AnalysisResult), rows)
+
+
+def _insert_trends(session: Session, trends: pd.DataFrame, computed_at: datetime) -> None:
+    if len(trends):
+        session.execute(insert(IntervalTrend), [
+            {"pump_id": int(p), "interval_no": int(n), "computed_at": computed_at, "is_current": bool(c),
+             "start_hours": json_ready(s), "current_hours": json_ready(h), "enough_data": bool(e), "fit": fit}
+            for p, n, c, s, h, e, fit in zip(trends["pump_id"], trends["interval_no"], trends["is_current"],
+                                              trends["start_hours"], trends["current_hours"], trends["enough_data"],
+                                              trends["fit"], strict=True)])
 
 
 def _record_changes(session: Session, records: list[dict], computed_at: datetime) -> list[StatusChange]:
@@ -209,14 +222,13 @@ def _rewrite_prior_figures(session: Session, changed: pd.DataFrame) -> None:
 def rerank(session: Session) -> None:
     """Order the whole stored service list again (a partial refresh moves some pumps).
 
-    Reads only the figures the order uses (status, hours to limit, and from each stored detail its margin past
-    the limit, lower-bound date and pump name, extracted by the database) and writes only the ranks that moved.
+    Reads only the figures the order uses (status, hours to limit, margin past the limit, lower-bound date, all
+    plain columns, and the pump's serial) and writes only the ranks that moved.
     """
-    detail = AnalysisResult.detail
     rows = session.execute(select(
         AnalysisResult.pump_id, AnalysisResult.rank, AnalysisResult.status, AnalysisResult.hours_to_limit,
-        detail["past_margin"].as_float(), detail["limit_date_low"].as_string(), detail["pump"].as_string(),
-    )).all()
+        AnalysisResult.past_margin, AnalysisResult.limit_date_low, Pump.serial,
+    ).join(Pump, Pump.id == AnalysisResult.pump_id)).all()
     if not rows:
         return
     frame = pd.DataFrame(rows, columns=["pump_id", "rank", "status", "hours_to_limit", "past_margin",

@@ -1,7 +1,8 @@
 """Everything the pump page shows about one pump, as one JSON-ready dict (the page, its JSON and its CSV).
 
-The headline figures are the stored analysis (the same the service list shows); the per-reading table, the
-trend band and the flow test are computed afresh for this one pump by the analysis engine.
+The headline figures are the stored analysis (the same the service list shows), and so is the trend: each
+interval's fitted lines are kept with the analysis (interval_trend), and the band is drawn from them. Only the
+per-reading part is computed here, referral and service intervals for this one pump; no wear fit runs.
 """
 
 from datetime import datetime
@@ -16,6 +17,7 @@ from fleet.db.models import (
     AnalysisResult,
     FlowTestPoint,
     Installation,
+    IntervalTrend,
     Machine,
     MaintenanceEvent,
     Oil,
@@ -32,9 +34,13 @@ from fleet.jsonvalues import json_ready
 from fleet.kinds import EVENT_KINDS, PUMP_KINDS
 from fleet.physics.cleanliness import Iso4406Code
 from fleet.physics.pump import baseline_flow_lpm, theoretical_flow_lpm
-from fleet.services.analysis import analyse_with_frames
+from fleet.services.analysis.frames import load_frames
 from fleet.services.sitelocal import of_pump
+from fleet.timeutil import utcnow
+from fleet.trend.engine import place_readings
+from fleet.trend.interval_trends import fit_row
 from fleet.trend.remaining_life import trend_band
+from fleet.trend.settings import AnalysisSettings
 from fleet.trend.status import wear_shape_sentence
 
 # Columns of the readings table and of the page's CSV twin, in order: raw values, then referred ones.
@@ -65,12 +71,14 @@ def pump_page(session: Session, serial: str) -> dict | None:
         return None
     site = of_pump(session, pump)
     zone_text = site.time_zone
-    analysis, frames = analyse_with_frames(session, [pump.id])
-    referred = analysis.readings[analysis.readings["pump_id"] == pump.id].sort_values("taken_at", kind="stable")
+    frames = load_frames(session, [pump.id], as_of=utcnow())
+    referred, _ = place_readings(frames.pumps, frames.readings, frames.events, frames.flow_points,
+                                 AnalysisSettings())
+    referred = referred.sort_values("taken_at", kind="stable")
     limits = frames.pumps.iloc[0]
     events = _events(session, pump.id)
     readings = _reading_rows(session, referred, zone_text)
-    current_fit = _current_fit(analysis, pump.id)
+    current_fit = _current_fit(session, pump.id)
     data = {
         "pump": _rated(pump),
         "where": _where(session, pump.id),
@@ -82,7 +90,7 @@ def pump_page(session: Session, serial: str) -> dict | None:
         "installations": _installations(session, pump.id, zone_text),
         "events": _place_events(events, referred),
         "readings": readings,
-        "trend": _trend(current_fit, pump, analysis.settings.confidence),
+        "trend": _trend(current_fit, pump),
         "samples": _samples(session, pump.id),
         "flow_test": _flow_test(session, pump, referred, current_fit, zone_text),
     }
@@ -201,26 +209,19 @@ def _reading_rows(session: Session, referred: pd.DataFrame, zone_text: str) -> l
     return json_ready(table[list(READING_COLUMNS)].astype(object).to_dict(orient="records"))
 
 
-def _current_fit(analysis, pump_id: int) -> pd.Series | None:
-    """The fit row of the pump's current service interval, or None."""
-    intervals = analysis.intervals
-    current = intervals[(intervals["pump_id"] == pump_id) & intervals["is_current"]]
-    if current.empty:
+def _current_fit(session: Session, pump_id: int) -> pd.Series | None:
+    """The stored fit of the pump's current service interval (as one row of the engine's fits), or None."""
+    kept = session.scalar(select(IntervalTrend).where(IntervalTrend.pump_id == pump_id, IntervalTrend.is_current))
+    if kept is None:
         return None
-    interval = current.iloc[0]
-    fits = analysis.fits
-    row = fits[(fits["pump_id"] == pump_id) & (fits["interval_no"] == interval["interval_no"])]
-    if row.empty:
-        return None
-    fit = row.iloc[0].copy()
-    fit["start_hours"] = interval["start_hours"]
-    return fit
+    return fit_row(kept.fit, kept.interval_no, kept.start_hours, kept.current_hours)
 
 
-def _trend(fit: pd.Series | None, pump: Pump, confidence: float) -> dict | None:
+def _trend(fit: pd.Series | None, pump: Pump) -> dict | None:
     """The fitted eta_v,ref line of the current interval, its band, and its forecast to the limit."""
-    if fit is None or not bool(fit["slip_enough_data"]):
+    if fit is None or fit["slip_enough_data"] is not True:
         return None
+    confidence = float(fit["confidence"])
     now_h = float(fit["current_hours"])
     crossing = float(fit["slip_crossing_hours"])
     end_h = crossing if np.isfinite(crossing) and crossing > now_h else now_h + max(FORECAST_MIN_HOURS, now_h)
@@ -289,7 +290,7 @@ def _flow_test(session: Session, pump: Pump, referred: pd.DataFrame, fit: pd.Ser
 
 def _baseline_slip(pump: Pump, fit: pd.Series | None) -> tuple[float, str]:
     """Referred slip at rated pressure the baseline assumes, and where it comes from."""
-    if fit is not None and bool(fit["slip_enough_data"]) and np.isfinite(float(fit["slip_a"])):
+    if fit is not None and fit["slip_enough_data"] is True and np.isfinite(float(fit["slip_a"])):
         return float(np.exp(float(fit["slip_a"]))), "the start of this service interval's fitted trend"
     theoretical = theoretical_flow_lpm(pump.displacement_cc, pump.rated_speed_rpm)
     if pump.max_flow_lpm is not None and pump.max_flow_lpm < theoretical:
