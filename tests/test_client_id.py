@@ -183,3 +183,22 @@ def test_repeats_sent_at_once_store_one_reading(demo_db):
     assert [outcomes[n] for n in same] == ["repeat"]
     assert all(outcomes[n] == "conflict" for n in range(len(bodies)) if n not in same and n != winner)
     assert _count(demo_db, client_id=body["client_id"]) == 1
+
+
+def test_a_repeat_at_a_site_with_its_own_zone_is_a_repeat_not_a_conflict(client, demo_db):
+    """A device sends the site's wall-clock time without an offset; comparing the resend with the stored reading
+    must read that time in the same zone as storing it did. Reference: Python's zoneinfo (IANA tz database)."""
+    from zoneinfo import ZoneInfo
+
+    from tests.test_site_zones import _set_site
+
+    _set_site(demo_db, time_zone="America/Chicago")
+    wall = (utcnow() - timedelta(hours=1)).replace(tzinfo=ZoneInfo("UTC")).astimezone(ZoneInfo("America/Chicago"))
+    body = _reading(demo_db, taken_at=wall.strftime("%Y-%m-%dT%H:%M"))
+    first = client.post("/api/readings", json=body)
+    assert first.status_code == 201, first.get_json()
+    again = client.post("/api/readings", json=body)
+    assert again.status_code == 200 and again.get_json()["repeat"] is True, again.get_json()
+    with demo_db.sessions() as session:
+        stored = session.scalar(select(Reading.taken_at).where(Reading.client_id == body["client_id"]))
+    assert stored == wall.replace(second=0, microsecond=0).astimezone(ZoneInfo("UTC")).replace(tzinfo=None)

@@ -209,3 +209,24 @@ def test_hostile_correction_bodies_never_cause_a_server_error(client, demo_db, b
     assert response.status_code in (200, 400, 403, 404, 422) and response.is_json
     if response.status_code != 200:
         assert response.get_json()["problems"]
+
+
+def test_a_correction_takes_a_decimal_comma_only_where_the_pump_site_allows_it(client, demo_db):
+    """Same convention as the site's forms and files (README: decimal comma)."""
+    from fleet.db.queries import current_places
+    from fleet.services.transfer.importing import import_table
+    from fleet.services.writes import perform
+    from tests.test_site_zones import _cells
+
+    reading_id, _ = _add_reading(demo_db, "A. Other", timedelta(days=3))
+    refused = client.patch(f"/api/readings/{reading_id}", json={"oil_temp": "55,5", "reason": "re-read"})
+    assert refused.status_code == 422 and refused.get_json()["problems"][0]["field"] == "oil_temp"
+    with demo_db.sessions() as session:
+        pump_id = session.scalar(select(Pump.id).where(Pump.serial == SERIAL))
+        site_name = current_places(session, [pump_id])[pump_id].site
+    perform(demo_db.sessions, lambda s: import_table(s, "sites", _cells([{"site": site_name,
+                                                                          "decimal_comma": "true"}])))
+    taken = client.patch(f"/api/readings/{reading_id}", json={"oil_temp": "55,5", "reason": "re-read"})
+    assert taken.status_code == 200, taken.get_json()
+    with demo_db.sessions() as session:
+        assert session.get(Reading, reading_id).temp_c == pytest.approx(55.5)

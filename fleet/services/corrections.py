@@ -17,10 +17,11 @@ from sqlalchemy.orm import Session
 from fleet import units
 from fleet.db import audit
 from fleet.db.models import Pump, Reading
-from fleet.io.parse import parse_table
+from fleet.io.parse import RowConventions, parse_table
 from fleet.jsonvalues import plain
 from fleet.services import users
 from fleet.services.rounds import FORM_FIELDS, plausibility_warnings, pump_facts
+from fleet.services.sitelocal import of_pump
 from fleet.timeutil import utcnow
 
 # Readings CSV column -> Reading attribute, for the values a correction may change.
@@ -80,7 +81,7 @@ def correct_reading(session: Session, reading_id: int, values: dict[str, str], r
         raise CorrectionRefused([{"field": "", "reason": refusal}], 403)
     pump = session.get(Pump, reading.pump_id)
     known = {name: value for name, value in values.items() if name in CORRECTABLE}
-    parsed, problems = _parse(pump.serial, reading, known, chosen_units or {})
+    parsed, problems = _parse(pump.serial, reading, known, chosen_units or {}, of_pump(session, pump).decimal_comma)
     problems = _shape_problems(values, reason) + problems  # every problem at once
     if problems:
         raise CorrectionRefused(problems)
@@ -124,10 +125,11 @@ def _stored_cell(reading: Reading, name: str) -> tuple[str, str]:
     return name, "" if value is None else (value if isinstance(value, str) else repr(value))
 
 
-def _parse(serial: str, reading: Reading, values: dict[str, str],
-           chosen_units: dict[str, str]) -> tuple[dict, list[dict]]:
+def _parse(serial: str, reading: Reading, values: dict[str, str], chosen_units: dict[str, str],
+           decimal_comma: bool = False) -> tuple[dict, list[dict]]:
     """The typed values in canonical units, parsed with the rest of the reading (required fields, bounds), and
-    the problems of the values typed."""
+    the problems of the values typed. Numbers as the pump's site writes them (``decimal_comma``); the stored
+    time is UTC, so it is parsed without a zone."""
     row = {"pump": serial, "taken_at": reading.taken_at.isoformat(sep=" ")}
     for name in CORRECTABLE:
         if name in values:
@@ -136,7 +138,8 @@ def _parse(serial: str, reading: Reading, values: dict[str, str],
         else:
             header, text = _stored_cell(reading, name)
             row[header] = text
-    parsed, problems = parse_table("readings", pd.DataFrame([row], dtype=str))
+    parsed, problems = parse_table("readings", pd.DataFrame([row], dtype=str),
+                                   RowConventions(decimal_comma=pd.Series([decimal_comma], dtype=bool)))
     if problems:
         return {}, [{"field": _field_of(p.column), "reason": p.reason} for p in sorted(problems)]
     cells = parsed.data.iloc[0]
@@ -157,4 +160,4 @@ def _doubts(session: Session, pump: Pump, reading: Reading, now: datetime) -> li
               "speed": reading.speed_rpm, "outlet_flow": reading.flow_lpm, "oil_temp": reading.temp_c,
               "stroke": reading.stroke}
     return [{"field": d.field, "code": d.code, "message": d.message}
-            for d in plausibility_warnings(facts, values, now)]
+            for d in plausibility_warnings(facts, values, now, of_pump(session, pump))]

@@ -16,6 +16,7 @@ from sqlalchemy.orm import Session
 from fleet.db.models import Pump, Reading
 from fleet.db.queries import current_places
 from fleet.io.parse import ImportRejected, Problem, parse_table
+from fleet.services.sitelocal import row_conventions
 from fleet.services.transfer.importing import import_table
 
 CLIENT_ID_MAX = 64
@@ -66,7 +67,7 @@ def store_posted(session: Session, table: pd.DataFrame, client_ids: list[str | N
                  places: list[dict | None], source: str = "api") -> PostedOutcome:
     """Store the rows of ``table`` (one per posted reading) that are not repeats; raise ImportRejected (rows
     counted as the importer does, header = row 1) or ClientIdConflict with nothing written."""
-    parsed, problems = parse_table("readings", table)
+    parsed, problems = parse_table("readings", table, row_conventions(session, "readings", table))
     if problems:  # the importer names every problem of the table, in its words (it raises ImportRejected)
         import_table(session, "readings", table, source=source)
         raise ImportRejected(problems)
