@@ -56,7 +56,7 @@ def test_two_readings_taken_with_no_signal_are_stored_once_when_it_returns(live_
     page.click("button[value=save]")
     page.wait_for_selector("#device-errors")
     errors = page.inner_text("#device-errors")
-    assert "'abc' is not a number" in errors and "400 is above the highest allowed value (150 degC)" in errors
+    assert "'abc' is not a number" in errors and "400 is above the highest allowed value (150 °C)" in errors
     page.screenshot(path=str(artifacts / "offline-round-problems.png"), full_page=True)
 
     _fill(page, first)
@@ -150,3 +150,43 @@ def test_the_servers_verdict_on_a_kept_reading_is_shown(live_app, page, context,
     assert "not stored" in verdict and f"pump {FIRST} was moved" in verdict
     assert page.is_visible("#device-queue li[data-state=refused] button:has-text('Remove from this list')")
     assert _stored(demo_db, FIRST, values["hours"]) == []
+
+
+def test_with_no_signal_the_device_reads_the_sites_clock_and_asks_about_a_fast_meter(live_app, page, context,
+                                                                                      base_url, demo_db, browser_login):
+    """A site six hours behind UTC (America/Chicago in winter; reference: Python's zoneinfo, IANA tz database):
+    the form's local time is stored as the same moment in UTC, and an hour meter running far ahead of the clock
+    gets the server's look-again question on the device (fleet/io/meter.py's allowance, sent as data)."""
+    from datetime import UTC, datetime
+    from zoneinfo import ZoneInfo
+
+    from fleet.services.transfer.importing import import_table
+    from fleet.services.writes import perform
+    from tests.test_site_zones import _cells
+
+    zone = "America/Chicago"
+    perform(demo_db.sessions, lambda s: import_table(s, "sites", _cells([{"site": "East Yard", "time_zone": zone}])))
+    browser_login("technician")
+    page.goto(base_url + "/rounds")
+    page.fill("#route-name", "Walk on the site's clock")
+    page.fill("#route-pumps", FIRST)
+    page.click("text=Save route")
+    page.wait_for_selector("#device-kept:has-text('kept on this device')", timeout=20000)
+    context.set_offline(True)
+    moment = datetime.now(UTC).replace(second=0, microsecond=0)
+    wall = moment.astimezone(ZoneInfo(zone)).strftime("%Y-%m-%dT%H:%M")
+    values = _facts(demo_db, FIRST, extra_hours=5000)  # 5000 h on the meter since a reading days ago
+    _fill(page, {**values, "taken_at": wall})
+    page.click("button[value=check]")
+    page.wait_for_selector("#device-doubts, .has-doubt", timeout=10000)
+    assert "Running hours advanced 5000 h" in page.inner_text("body")
+    values = _facts(demo_db, FIRST, extra_hours=3)
+    _fill(page, {**values, "taken_at": wall})
+    page.click("button[value=save]")
+    page.wait_for_selector("#complete-title, #device-queue li[data-state=waiting]")
+    context.set_offline(False)
+    page.wait_for_selector("#device-queue li[data-state=stored]", timeout=30000)
+    with demo_db.sessions() as session:
+        stored = session.scalar(select(Reading.taken_at).join(Pump, Pump.id == Reading.pump_id)
+                                .where(Pump.serial == FIRST, Reading.hours == float(values["hours"])))
+    assert stored == moment.replace(tzinfo=None)

@@ -5,7 +5,7 @@ accept and refuse exactly the same readings, and is stored as one unit of work (
 """
 
 from dataclasses import dataclass, field
-from datetime import datetime
+from datetime import UTC, datetime
 
 import numpy as np
 import pandas as pd
@@ -17,7 +17,7 @@ from fleet.db.models import Installation, Machine, Position, Pump, Reading, Rout
 from fleet.db.queries import current_places
 from fleet.io.columns import READINGS
 from fleet.io.localtime import iso_local, offset_text, to_local
-from fleet.io.meter import meter_doubt
+from fleet.io.meter import FAST_ALLOWANCE_FRACTION, FAST_ALLOWANCE_H, meter_doubt
 from fleet.io.parse import Problem, parse_table
 from fleet.io.rules import FUTURE_TOLERANCE
 from fleet.jsonvalues import plain
@@ -254,10 +254,14 @@ def plausibility_warnings(facts: PumpFacts, reading: dict, now: datetime, site: 
                               f"Oil temperature {shown_temp} is outside this pump's limits "
                               f"({low.split()[0]}–{high}).",
                               HOT_OIL_CAUTION if temp > facts.oil_temp_max_c else None))
-    if known["hours"] and known["taken_at"] and facts.last_taken_at is not None:
+    if known["hours"] and facts.last_taken_at is not None:
         # Local times on both sides, so the message names the last reading's date as the site's clock had it.
-        meter = meter_doubt(to_local(facts.last_taken_at, zone_text), facts.last_hours,
-                            to_local(reading["taken_at"], zone_text), reading["hours"])
+        # Without a usable time only a meter gone backwards can be told (at the last reading's time, no clock).
+        last_at = to_local(facts.last_taken_at, zone_text)
+        at = to_local(reading["taken_at"], zone_text) if known["taken_at"] else last_at
+        meter = meter_doubt(last_at, facts.last_hours, at, reading["hours"])
+        if meter and not known["taken_at"] and meter.code != "hours_backwards":
+            meter = None
         if meter:
             warnings.append(Doubt(meter.code, "hours", meter.message))
     if known["taken_at"] and reading["taken_at"] > now:
@@ -315,8 +319,9 @@ def device_rules(session: Session, route_id: int, now: datetime | None = None) -
         offered = (STROKE_UNIT,) if spec.name == "stroke" else units.CHOICES[spec.quantity]
         fields[spec.name] = {
             "label": spec.label, "required": column.required, "min": column.min, "max": column.max,
-            "positive": column.positive, "canonical_unit": units.LABELS.get(column.quantity or "", ""),
+            "positive": column.positive, "canonical_unit": units.SHOWN_LABELS.get(column.quantity or "", ""),
             "units": {unit: units.linear_form(unit, column.quantity) for unit in offered},
+            "shown_units": {unit: units.shown(unit) for unit in offered},  # as a screen writes them: °C, not degC
         }
     pumps = {}
     serials = [stop["pump"] for stop in walk["stops"]]
@@ -327,11 +332,13 @@ def device_rules(session: Session, route_id: int, now: datetime | None = None) -
             "rated_pressure_bar": facts.rated_pressure_bar,
             "oil_temp_min_c": facts.oil_temp_min_c, "oil_temp_max_c": facts.oil_temp_max_c,
             "last_hours": facts.last_hours,
-            "last_taken_at": facts.last_taken_at.isoformat(timespec="minutes") if facts.last_taken_at else None,
+            "last_taken_at": (facts.last_taken_at.replace(tzinfo=UTC).isoformat(timespec="minutes")
+                              if facts.last_taken_at else None),
             "fields": [f.name for f in fields_for(pump)],
         }
     return {"route": walk["route"]["id"], "fields": fields, "pumps": pumps,
             "future_tolerance_s": FUTURE_TOLERANCE.total_seconds(),
+            "meter": {"allowance_h": FAST_ALLOWANCE_H, "allowance_fraction": FAST_ALLOWANCE_FRACTION},
             "hot_oil_caution": HOT_OIL_CAUTION, "made_at": (now or utcnow()).isoformat(timespec="seconds")}
 
 

@@ -65,15 +65,38 @@
     return Number.isInteger(value) ? String(value) : String(Number(value.toPrecision(6)));
   }
 
-  function utcOf(text) {  // the form's "YYYY-MM-DDTHH:MM", read as UTC like the server does
-    return /^\d{4}-\d{2}-\d{2}T\d{2}:\d{2}$/.test(text) ? new Date(text + ":00Z") : null;
-  }
+  // --- the site's clock: the form's times are the site's wall-clock time (data-time-zone), as on the server ----
+  const zone = (form && form.dataset.timeZone) || "UTC";
+  const wallFormat = new Intl.DateTimeFormat("en-CA", {timeZone: zone, hourCycle: "h23", year: "numeric",
+    month: "2-digit", day: "2-digit", hour: "2-digit", minute: "2-digit"});
 
   function pad(n) { return String(n).padStart(2, "0"); }
 
-  function stamp(date) {
-    return `${date.getUTCFullYear()}-${pad(date.getUTCMonth() + 1)}-${pad(date.getUTCDate())} ` +
-      `${pad(date.getUTCHours())}:${pad(date.getUTCMinutes())}`;
+  function wallOf(date) {  // "YYYY-MM-DDTHH:MM" on the site's clock
+    const p = Object.fromEntries(wallFormat.formatToParts(date).map((part) => [part.type, part.value]));
+    return `${p.year}-${p.month}-${p.day}T${pad(Number(p.hour) % 24)}:${p.minute}`;
+  }
+
+  function stamp(date) { return wallOf(date).replace("T", " "); }
+
+  // The moment a wall-clock text names, or why there is none: clocks skip it (spring) or pass it twice
+  // (autumn); the server refuses both too, so the device asks at once.
+  function utcOf(text) {
+    if (!/^\d{4}-\d{2}-\d{2}T\d{2}:\d{2}$/.test(text)) return {date: null};
+    const asUtc = new Date(text + ":00Z");
+    if (Number.isNaN(asUtc.getTime())) return {date: null};
+    const hour = 3600 * 1000;
+    const found = [];  // every offset in use on Earth (UTC-12:00 to UTC+14:00) in quarter hours
+    for (let quarter = -48; quarter <= 56; quarter++) {
+      const candidate = new Date(asUtc.getTime() - quarter * hour / 4);
+      if (wallOf(candidate) === text) found.push(candidate);
+    }
+    const moments = [...new Set(found.map((d) => d.getTime()))].sort((a, b) => a - b);
+    if (!moments.length) return {date: null, reason: `${text.replace("T", " ")} does not exist in ${zone}: the ` +
+      "clocks skip it (daylight saving)"};
+    if (moments[moments.length - 1] - moments[0] >= hour / 2) return {date: null, reason: `${text.replace("T", " ")} ` +
+      `happens twice in ${zone} (the clocks go back): enter it when the connection is back, with its offset`};
+    return {date: new Date(moments[0])};
   }
 
   function check(values, pumpRules) {
@@ -81,9 +104,10 @@
     const doubts = [];
     const canonical = {};
     const now = new Date();
-    const at = utcOf(values.taken_at);
+    const moment = utcOf(values.taken_at);
+    const at = moment.date;
     if (!values.taken_at) problems.push({field: "taken_at", reason: "a value is required"});
-    else if (!at) problems.push({field: "taken_at", reason: `'${values.taken_at}' is not a date`});
+    else if (!at) problems.push({field: "taken_at", reason: moment.reason || `'${values.taken_at}' is not a date`});
     else if (at - now > rules.future_tolerance_s * 1000) {
       problems.push({field: "taken_at", reason: `${stamp(at)} is in the future`});
     }
@@ -102,7 +126,7 @@
       const [factor, offset] = spec.units[typed.unit] || [1, 0];
       const value = factor * number + offset;
       const bound = (limit) => (factor === 1 && offset === 0) ? `${shown(limit)} ${spec.canonical_unit}`.trim()
-        : `${shown((limit - offset) / factor)} ${typed.unit}`;
+        : `${shown((limit - offset) / factor)} ${(spec.shown_units || {})[typed.unit] || typed.unit}`;
       let ok = true;
       if (spec.positive && value <= 0) { problems.push({field: name, reason: `${typed.text.trim()} must be above zero`}); ok = false; }
       if (spec.min !== null && value < spec.min - 1e-9) {
@@ -136,13 +160,23 @@
         caution: t > pumpRules.oil_temp_max_c ? rules.hot_oil_caution : null});
       }
     }
-    if ("hours" in canonical && pumpRules.last_hours !== null && canonical.hours < pumpRules.last_hours) {
-      doubts.push({field: "hours", message: `Running hours ${canonical.hours.toFixed(0)} h are below the last ` +
-        `reading's ${pumpRules.last_hours.toFixed(0)} h (${(pumpRules.last_taken_at || "").slice(0, 10)}): is it ` +
-        "the right pump or a new hour meter?"});
+    // The hour meter against the last reading (fleet/io/meter.py: the same rule and allowance, sent as data).
+    const lastAt = pumpRules.last_taken_at ? new Date(pumpRules.last_taken_at) : null;
+    if ("hours" in canonical && pumpRules.last_hours !== null && lastAt) {
+      const clockH = at ? Math.max((at - lastAt) / 3600000, 0) : null;
+      if (canonical.hours < pumpRules.last_hours) {
+        doubts.push({field: "hours", message: `Running hours ${canonical.hours.toFixed(0)} h are below the last ` +
+          `reading's ${pumpRules.last_hours.toFixed(0)} h (${stamp(lastAt).slice(0, 10)}): look again. Is it the ` +
+          "right pump, or a new hour meter?"});
+      } else if (clockH !== null && canonical.hours > pumpRules.last_hours
+                 + clockH * (1 + rules.meter.allowance_fraction) + rules.meter.allowance_h) {
+        doubts.push({field: "hours", message: `Running hours advanced ${(canonical.hours - pumpRules.last_hours)
+          .toFixed(0)} h in ${clockH.toFixed(1)} h of clock time since the last reading (${stamp(lastAt)}): ` +
+          "look again. Is it the right pump, or a misread hour meter?"});
+      }
     }
     if (at && at > now) {
-      doubts.push({field: "taken_at", message: `The time ${stamp(at)} is later than now (${stamp(now)} UTC).`});
+      doubts.push({field: "taken_at", message: `The time ${stamp(at)} is later than now (${stamp(now)}, ${zone}).`});
     }
     return {problems, doubts};
   }
@@ -232,7 +266,10 @@
       const latest = {...pumpRules};
       records.filter((r) => r.pump === form.dataset.pump && r.state === "waiting" && r.body.hours
                      && r.body.hours.unit === "h" && (latest.last_hours === null || r.body.hours.value > latest.last_hours))
-        .forEach((r) => { latest.last_hours = r.body.hours.value; latest.last_taken_at = r.body.taken_at; });
+        .forEach((r) => {
+          const kept = utcOf(r.body.taken_at.replace(" ", "T")).date;
+          if (kept) { latest.last_hours = r.body.hours.value; latest.last_taken_at = kept.toISOString(); }
+        });
       const values = typedValues(pumpRules);
       const outcome = check(values, latest);
       showOutcome(outcome, action);
