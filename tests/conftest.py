@@ -5,6 +5,7 @@ import os
 import re
 import shutil
 import threading
+import time
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -195,7 +196,13 @@ def live_app(_live_server, demo_db):
     _live_server[1].app = app
     yield app
     _live_server[1].app = None
-    app.extensions["fleet_engine"].dispose()
+    # A request still in flight (a page's script or service worker fetching as the test ends) holds a pooled
+    # connection; disposing under it would leave that connection open for the garbage collector. Wait for it.
+    engine = app.extensions["fleet_engine"]
+    deadline = time.monotonic() + 10
+    while getattr(engine.pool, "checkedout", lambda: 0)() and time.monotonic() < deadline:
+        time.sleep(0.05)
+    engine.dispose()
 
 
 @pytest.fixture(scope="session")
