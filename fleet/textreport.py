@@ -6,6 +6,9 @@ from fleet.horizon import USEFUL_YEARS, date_text, hours_text
 from fleet.safety import CHECK_NOW_CAUTION, calls_for_work
 from fleet.status_words import STATUS_LABELS
 
+# The limit a forecast runs to, as a screen writes it (the JSON keeps the field's key).
+LIMIT_SHORT = {"eta_v": "η_v", "case_drain": "case drain"}
+
 
 def _num(value, fmt: str, empty: str = "-") -> str:
     return empty if value is None else format(value, fmt)
@@ -47,12 +50,13 @@ def service_table(records: list[dict], width: int = 110) -> str:
              f"{'hours to limit (bounds)':<26} {'date':<15} {'limit':<10}"
     lines = [header, "-" * len(header)]
     for record in records:
+        limit = record.get("governing_limit")
         lines.append(
             f"{record.get('rank', 0):>3}  {str(record['pump'])[:14]:<14} "
             f"{STATUS_LABELS.get(record['status'], record['status']):<11} "
             f"{efficiency(record.get('eta_v_ref')):>8} {percent_points(record.get('eta_v_decline_per_1000h')):>10} "
             f"{_num(record.get('drain_pct_ref'), '.1f'):>6} {_hours(record):<26} "
-            f"{_date(record):<15} {record.get('governing_limit') or '-':<10}"
+            f"{_date(record):<15} {LIMIT_SHORT.get(limit, limit) or '-':<10}"
         )
         for reason in record.get("reasons") or []:
             lines.extend(textwrap.wrap(reason, width=width, initial_indent="       - ",
