@@ -26,6 +26,16 @@ def _stored(demo_db, serial, hours: str) -> list[tuple]:
                                .where(Pump.serial == serial, Reading.hours == float(hours))).all()
 
 
+def _open_route_then_lose_signal(page, context, base_url, name: str) -> None:
+    """Save a one-stop route of FIRST, wait until the device keeps its pages, then cut the connection."""
+    page.goto(base_url + "/rounds")
+    page.fill("#route-name", name)
+    page.fill("#route-pumps", FIRST)
+    page.click("text=Save route")
+    page.wait_for_selector("#device-kept:has-text('kept on this device')", timeout=20000)
+    context.set_offline(True)
+
+
 def _fill(page, values: dict) -> None:
     for name, value in values.items():
         page.fill(f"#f-{name}", value)
@@ -106,12 +116,7 @@ def test_two_readings_taken_with_no_signal_are_stored_once_when_it_returns(live_
 def test_the_device_reads_a_decimal_comma_only_where_the_form_allows_it(live_app, page, context, base_url, demo_db,
                                                                         browser_login):
     browser_login("technician")
-    page.goto(base_url + "/rounds")
-    page.fill("#route-name", "Comma walk")
-    page.fill("#route-pumps", FIRST)
-    page.click("text=Save route")
-    page.wait_for_selector("#device-kept:has-text('kept on this device')", timeout=20000)
-    context.set_offline(True)
+    _open_route_then_lose_signal(page, context, base_url, "Comma walk")
     values = _facts(demo_db, FIRST)
     _fill(page, {**values, "oil_temp": "48,5"})
     page.click("button[value=check]")
@@ -129,12 +134,7 @@ def test_the_servers_verdict_on_a_kept_reading_is_shown(live_app, page, context,
     """A reading kept with no signal of a pump that the register moved meanwhile is refused, and the device says
     why and keeps it listed."""
     browser_login("technician")
-    page.goto(base_url + "/rounds")
-    page.fill("#route-name", "Verdict walk")
-    page.fill("#route-pumps", FIRST)
-    page.click("text=Save route")
-    page.wait_for_selector("#device-kept:has-text('kept on this device')", timeout=20000)
-    context.set_offline(True)
+    _open_route_then_lose_signal(page, context, base_url, "Verdict walk")
     values = _facts(demo_db, FIRST)
     _fill(page, values)
     page.click("button[value=save]")
@@ -167,12 +167,7 @@ def test_with_no_signal_the_device_reads_the_sites_clock_and_asks_about_a_fast_m
     zone = "America/Chicago"
     perform(demo_db.sessions, lambda s: import_table(s, "sites", _cells([{"site": "East Yard", "time_zone": zone}])))
     browser_login("technician")
-    page.goto(base_url + "/rounds")
-    page.fill("#route-name", "Walk on the site's clock")
-    page.fill("#route-pumps", FIRST)
-    page.click("text=Save route")
-    page.wait_for_selector("#device-kept:has-text('kept on this device')", timeout=20000)
-    context.set_offline(True)
+    _open_route_then_lose_signal(page, context, base_url, "Walk on the site's clock")
     moment = datetime.now(UTC).replace(second=0, microsecond=0)
     wall = moment.astimezone(ZoneInfo(zone)).strftime("%Y-%m-%dT%H:%M")
     values = _facts(demo_db, FIRST, extra_hours=5000)  # 5000 h on the meter since a reading days ago
