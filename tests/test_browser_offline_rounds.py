@@ -2,22 +2,12 @@
 device, survives a reload, and once the connection is back each reading is stored exactly once."""
 
 import pytest
-from sqlalchemy import func, select
+from sqlalchemy import select
 
 from fleet.db.models import Installation, Position, Pump, Reading
+from tests.test_browser_rounds import FIRST, SECOND, _facts  # invented demo plant pumps
 
 pytestmark = pytest.mark.browser
-
-FIRST, SECOND = "EY-104", "EY-105"  # invented demo plant: an internal gear and a vane pump
-
-
-def _facts(demo_db, serial, extra_hours=9):
-    with demo_db.sessions() as session:
-        pump = session.scalar(select(Pump).where(Pump.serial == serial))
-        hours = session.scalar(select(func.max(Reading.hours)).where(Reading.pump_id == pump.id))
-        return {"hours": f"{hours + extra_hours:.1f}", "outlet_pressure": f"{0.8 * pump.rated_pressure_bar:.1f}",
-                "speed": f"{pump.rated_speed_rpm:.0f}",
-                "outlet_flow": f"{0.9 * pump.displacement_cc * pump.rated_speed_rpm / 1000:.2f}", "oil_temp": "48"}
 
 
 def _stored(demo_db, serial, hours: str) -> list[tuple]:

@@ -10,11 +10,13 @@ pytestmark = pytest.mark.browser
 FIRST, SECOND = "EY-104", "EY-105"  # invented demo plant: an internal gear and a vane pump
 
 
-def _facts(demo_db, serial):
+def _facts(demo_db, serial, extra_hours=9):
+    """Plausible typed values of ``serial``: its meter ``extra_hours`` past its last reading, 80 % of rated
+    pressure, rated speed, 90 % of theoretical flow."""
     with demo_db.sessions() as session:
         pump = session.scalar(select(Pump).where(Pump.serial == serial))
         hours = session.scalar(select(func.max(Reading.hours)).where(Reading.pump_id == pump.id))
-        return {"hours": f"{hours + 9:.1f}", "outlet_pressure": f"{0.8 * pump.rated_pressure_bar:.1f}",
+        return {"hours": f"{hours + extra_hours:.1f}", "outlet_pressure": f"{0.8 * pump.rated_pressure_bar:.1f}",
                 "speed": f"{pump.rated_speed_rpm:.0f}",
                 "outlet_flow": f"{0.9 * pump.displacement_cc * pump.rated_speed_rpm / 1000:.2f}", "oil_temp": "48"}
 
