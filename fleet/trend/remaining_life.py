@@ -12,7 +12,7 @@ import pandas as pd
 
 from fleet.trend.degradation import QUANTITIES, not_enough_reason
 from fleet.trend.linear import LineFit, line_variance, t_quantile
-from fleet.trend.model_average import crossing_quantiles, value_quantile
+from fleet.trend.model_average import crossing_band, value_band
 from fleet.trend.settings import AnalysisSettings
 from fleet.trend.wear_laws import LawFits
 
@@ -41,16 +41,13 @@ def hours_to_limits(fits: pd.DataFrame, limits_lpm: dict[str, np.ndarray], setti
     """
     out = pd.DataFrame(index=fits.index)
     now_h = fits["current_hours"].to_numpy(dtype=float)
-    alpha = 1.0 - settings.confidence
     for q in QUANTITIES:
         laws = LawFits.from_columns(fits, q)
         limit = np.asarray(limits_lpm[q], dtype=float)
         enough = fits[f"{q}_enough_data"].to_numpy(dtype=bool)
         has_limit = np.isfinite(limit) & (limit > 0)
         usable = enough & has_limit
-        x_low, x_hat, x_high = crossing_quantiles(
-            laws, np.where(usable, limit, np.nan), now_h, (alpha / 2, 0.5, 1 - alpha / 2), settings.confidence
-        )
+        x_low, x_hat, x_high = crossing_band(laws, np.where(usable, limit, np.nan), now_h, settings.confidence)
         current = fits[f"{q}_current_lpm"].to_numpy(dtype=float)
         past = usable & (current >= limit)
 
@@ -217,9 +214,7 @@ def averaged_band(fit, hours_grid, qmax, confidence: float = 0.90, quantity: str
     """
     laws = LawFits.from_columns(fit, quantity)
     h = np.asarray(hours_grid, dtype=float)
-    alpha = 1.0 - confidence
-    levels = np.repeat([alpha / 2, 0.5, 1 - alpha / 2], len(h))[None, :]  # the three quantiles in one search
-    lo, mid, hi = value_quantile(laws, np.tile(h, 3)[None, :], levels, confidence)[0].reshape(3, len(h))
+    lo, mid, hi = (edge[0] for edge in value_band(laws, h[None, :], confidence))
     h = h[None, :]
     if quantity == "slip":
         mean, low, high = 1.0 - mid / qmax, 1.0 - hi / qmax, 1.0 - lo / qmax
