@@ -1,9 +1,9 @@
 """Hours and calendar dates until each limit, from a pump's own trend, with honest bounds.
 
 The limit on eta_v,ref becomes a limit on the referred slip, (1 - eta_limit) x rated flow; the case drain
-limit is pct / 100 x max flow. The forecast is where the model-averaged trend of the wear laws reaches it;
-the bounds are the quantiles of that crossing under the mixture of the laws' fitted mean lines, which for
-a single law is the Fieller (inverse prediction) interval (ISO 13381-1 asks a prognosis to name its limit
+limit is pct / 100 x max flow. The forecast is where the trend of the most weighted wear law reaches it;
+the bounds span the crossing bands of every law the readings cannot rule out, each the quantiles of that
+crossing under its fitted mean lines, which for a single line is the Fieller (inverse prediction) interval (ISO 13381-1 asks a prognosis to name its limit
 and carry a confidence figure).
 """
 
@@ -30,8 +30,9 @@ def limit_flows_lpm(eta_v_limit, drain_limit_pct, rated_flow_lpm, max_flow_lpm) 
 def hours_to_limits(fits: pd.DataFrame, limits_lpm: dict[str, np.ndarray], settings: AnalysisSettings) -> pd.DataFrame:
     """Remaining hours to each limit and to the governing one, for every fitted pump interval.
 
-    The crossing is that of the model-averaged trend (fleet.trend.model_average): its median is the forecast,
-    its (1 - confidence) / 2 and (1 + confidence) / 2 quantiles the bounds. Per limit q (slip -> eta_v,
+    The crossing comes from the weighed wear laws (fleet.trend.model_average.crossing_band): the median
+    crossing of the heaviest law is the forecast, the union of the (1 - confidence) / 2 to (1 + confidence) / 2
+    crossing bands of the laws the readings cannot rule out the bounds. Per limit q (slip -> eta_v,
     drain -> case_drain): q_crossing_hours, q_crossing_low, q_crossing_high (interval hours at the crossing
     and its bounds, also for a limit already passed; NaN where open), q_hours_to_limit, q_hours_low,
     q_hours_high (remaining hours, 0 once past), q_upper_open (no finite upper bound: the trend may stay
@@ -209,8 +210,9 @@ def averaged_band(fit, hours_grid, qmax, confidence: float = 0.90, quantity: str
     hours, with its band: what a chart of the pump's current interval draws.
 
     fit: one row of FleetAnalysis.fits. qmax: the rated flow for eta_v,ref or the max flow for drain %.
-    Returns hours, mean (the mixture's median), low, high; the band meets the limit exactly at the hours
-    bounds of hours_to_limits (both come from the same mixture).
+    Returns hours, mean (the heaviest law's median), low, high (the union of the plausible laws' bands); the
+    mean and the band meet the limit exactly at the forecast and bounds of hours_to_limits (both come from
+    fleet.trend.model_average's crossing_band and value_band, law by law).
     """
     laws = LawFits.from_columns(fit, quantity)
     h = np.asarray(hours_grid, dtype=float)
