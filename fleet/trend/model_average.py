@@ -21,8 +21,8 @@ from scipy import special
 from fleet.trend.wear_laws import LAWS, MEMBERS, LawFits, member_x, run_in_dx_du, run_in_x
 
 # The laws the readings cannot rule out: those whose Akaike weight is at least this share of the heaviest law's
-# (an evidence ratio of at most 8, Royall's 1/8 likelihood interval, as Burnham & Anderson 2002 sec. 4.6.4 use it
-# for a confidence set of models). The band is the union of their own bands.
+# (an evidence ratio of at most 8: Royall 1997, the 1/8 likelihood interval, which Burnham & Anderson 2002
+# carry over to a confidence set of models; cited from memory). The band is the union of their own bands.
 CONFIDENCE_SET_RATIO = 1.0 / 8.0
 
 # Hours grid (in units of the interval's current hours) on which the crossing is first bracketed: the readings'

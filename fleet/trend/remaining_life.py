@@ -3,8 +3,8 @@
 The limit on eta_v,ref becomes a limit on the referred slip, (1 - eta_limit) x rated flow; the case drain
 limit is pct / 100 x max flow. The forecast is where the trend of the most weighted wear law reaches it;
 the bounds span the crossing bands of every law the readings cannot rule out, each the quantiles of that
-crossing under its fitted mean lines, which for a single line is the Fieller (inverse prediction) interval (ISO 13381-1 asks a prognosis to name its limit
-and carry a confidence figure).
+crossing under its fitted mean lines, which for a single line is the Fieller (inverse prediction)
+interval (ISO 13381-1 asks a prognosis to name its limit and carry a confidence figure).
 """
 
 import numpy as np
