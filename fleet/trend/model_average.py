@@ -202,6 +202,21 @@ def heaviest_law(fits: LawFits) -> np.ndarray:
     return np.argmax(np.column_stack([weights[law] for law in LAWS]), axis=1)
 
 
+def heaviest_law_median(fits: LawFits, hours, confidence: float) -> np.ndarray:
+    """The heaviest law's median value (a flow, L/min) at `hours` (per group, or a (G, K) grid): the centre
+    line of value_band, and so the trend's value now that the pages show beside the forecast."""
+    hours = np.asarray(hours, dtype=float)
+    expand = (slice(None), None) if hours.ndim == 2 else (slice(None),)
+    heaviest = heaviest_law(fits)
+    median = np.full(hours.shape, np.nan)
+    for k, law in enumerate(LAWS):
+        rows = (heaviest == k) & (fits.weight.sum(axis=1) > 0)
+        if rows.any():
+            mid = value_quantile(law_alone(fits, law, rows), hours, 0.5, confidence)
+            median = np.where(rows[expand], mid, median)
+    return median
+
+
 def plausible_laws(fits: LawFits) -> dict[str, np.ndarray]:
     """Per law, the groups whose readings cannot rule it out: its weight at least CONFIDENCE_SET_RATIO of the
     heaviest law's (and above zero)."""
