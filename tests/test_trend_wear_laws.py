@@ -11,7 +11,15 @@ from statsmodels.robust.norms import HuberT
 from statsmodels.tools import eval_measures
 
 from fleet.trend.linear import fieller_crossing, grouped_wls
-from fleet.trend.model_average import averaged_slope, crossing_quantiles, value_cdf, value_quantile
+from fleet.trend.model_average import (
+    averaged_slope,
+    crossing_band,
+    crossing_quantiles,
+    plausible_laws,
+    value_band,
+    value_cdf,
+    value_quantile,
+)
 from fleet.trend.robust import fit_reweighted
 from fleet.trend.settings import AnalysisSettings
 from fleet.trend.wear_laws import MEMBERS, LawFits, aicc, akaike_weights, fit_wear_laws, joint_score
@@ -276,3 +284,58 @@ def test_known_law_setting_weighs_only_that_law():
     assert laws.law_weights()["linear"][0] == pytest.approx(1.0)
     few = _laws(h[:4], q[:4], sigma[:4], settings=AnalysisSettings(wear_laws=("power",)))  # no law scored
     assert few.law_weights()["power"][0] == pytest.approx(1.0)
+
+
+def _by_hand(laws: LawFits, weights: dict[str, float]) -> LawFits:
+    w = np.zeros_like(laws.weight)
+    for name, value in weights.items():
+        w[:, NAMES.index(name)] = value
+    return LawFits(laws.a, laws.b, laws.var_a, laws.var_b, laws.cov_ab, laws.dof, w, laws.hours_scale,
+                   laws.hours_offset)
+
+
+def test_plausible_laws_are_those_within_an_evidence_ratio_of_eight():
+    # Royall (1997), 1/8 likelihood interval; Burnham & Anderson (2002) carry it over to Akaike weights: a law
+    # is kept while w_best / w_law <= 8, i.e. its AICc within 2 ln 8 of the best (cited from memory).
+    laws = _laws(np.linspace(0.0, 4000.0, 20), 5.0 + 1e-3 * np.linspace(0.0, 4000.0, 20), np.full(20, 0.1))
+    for delta, kept in ((2 * np.log(8.0) - 1e-9, True), (2 * np.log(8.0) + 1e-6, False)):
+        w = akaike_weights(np.array([[0.0, delta, np.nan, np.nan]]))[0]
+        assert w[0] / w[1] == pytest.approx(np.exp(delta / 2))
+        fits = _by_hand(laws, {"exponential": w[0], "linear": w[1]})
+        plausible = plausible_laws(fits)
+        assert plausible["exponential"][0] and plausible["linear"][0] == kept
+        assert not plausible["power"][0] and not plausible["run_in"][0]  # no weight: never plausible
+
+
+def test_band_is_the_union_of_the_plausible_laws_bands_and_the_forecast_the_heaviest_laws_found_by_brentq():
+    rng = np.random.default_rng(8)
+    h = np.linspace(0.0, 5000.0, 20)
+    q = 5.0 + 1.2e-3 * h + 3e-7 * h**2 + rng.normal(0.0, 0.15, h.size)
+    # Exponential heaviest, linear plausible (0.3 >= 0.64 / 8), the power member not (0.06 < 0.08).
+    weights = {"exponential": 0.64, "linear": 0.30, "power_p283": 0.06}
+    laws = _by_hand(_laws(h, q, np.full(h.size, 0.15)), weights)
+    limit, now = 30.0, 5000.0
+
+    def crossed(x, name):  # P(that member's line at x >= limit), written out with scipy.stats
+        j = NAMES.index(name)
+        m = MEMBERS[j]
+        u = ((x + laws.hours_offset[0]) / laws.hours_scale[0]) ** m.power if m.law == "power" else x
+        mean = laws.a[0, j] + laws.b[0, j] * u
+        sd = np.sqrt(laws.var_a[0, j] + 2 * u * laws.cov_ab[0, j] + u * u * laws.var_b[0, j])
+        ratio = stats.norm.ppf(0.95) / stats.t.ppf(0.95, laws.dof[0, j])
+        return stats.norm.cdf((mean - (np.log(limit) if m.log_space else limit)) / sd * ratio)
+
+    def solve(name, level):
+        return optimize.brentq(lambda x: crossed(x, name) - level, now, 1e6)
+
+    low, mid, high = crossing_band(laws, [limit], [now], 0.90)
+    assert mid[0] == pytest.approx(solve("exponential", 0.5), rel=1e-6)
+    assert low[0] == pytest.approx(min(solve("exponential", 0.05), solve("linear", 0.05)), rel=1e-6)
+    assert high[0] == pytest.approx(max(solve("exponential", 0.95), solve("linear", 0.95)), rel=1e-6)
+    # The power member, though weighed in, is outside the plausible set: its earlier crossing widens nothing.
+    assert solve("power_p283", 0.05) < low[0]
+    # The chart's band meets the limit where the bounds say, its centre where the forecast does.
+    edges = value_band(laws, np.array([[low[0], mid[0], high[0]]]), 0.90)
+    assert edges[2][0, 0] == pytest.approx(limit, rel=1e-6)  # high edge of the flow at the low bound
+    assert edges[1][0, 1] == pytest.approx(limit, rel=1e-6)
+    assert edges[0][0, 2] == pytest.approx(limit, rel=1e-6)

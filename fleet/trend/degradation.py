@@ -2,15 +2,16 @@
 
 Wear opens the clearances and laminar leakage grows with the cube of the gap, so the referred slip (and the
 referred case drain) often grows exponentially; abrasive wear grows it about linearly, a damaged part faster
-and faster, run-in fast at first and then steadily. Each law is fitted and weighed (fleet.trend.wear_laws); the figures
-people read come from their weighted mixture (fleet.trend.model_average). All pump intervals are fitted at
-once (grouped sums, a few reweighting passes), never one solver call per pump.
+and faster, run-in fast at first and then steadily. Each law is fitted and weighed (fleet.trend.wear_laws); the
+figures people read come from the heaviest law and the laws the readings cannot rule out
+(fleet.trend.model_average). All pump intervals are fitted at once (grouped sums, a few reweighting passes),
+never one solver call per pump.
 """
 
 import numpy as np
 import pandas as pd
 
-from fleet.trend.model_average import averaged_slope, value_quantile
+from fleet.trend.model_average import averaged_slope, heaviest_law_median
 from fleet.trend.settings import AnalysisSettings
 from fleet.trend.wear_laws import LAWS, LawFits, fit_wear_laws, joint_score
 
@@ -30,9 +31,10 @@ def _as_frame(laws: LawFits, span: np.ndarray, current_hours: np.ndarray, prefix
     stacked = np.column_stack([weights[law] for law in LAWS])
     fitted = laws.weight.sum(axis=1) > 0
     wear_law = np.where(fitted, np.array(LAWS, dtype=object)[np.argmax(stacked, axis=1)], None)
-    # The median now and at the interval's start, from one bisection.
-    current, start = value_quantile(
-        laws, np.column_stack([current_hours, np.zeros_like(current_hours)]), 0.5, settings.confidence).T
+    # The heaviest law's median now and at the interval's start: the centre of the band a chart draws, which
+    # reaches a limit at the forecast (fleet.trend.model_average.crossing_band).
+    current, start = heaviest_law_median(
+        laws, np.column_stack([current_hours, np.zeros_like(current_hours)]), settings.confidence).T
     cols = {
         "n_points": laws.n_points.astype(np.int64),
         "span_hours": span,
@@ -68,7 +70,7 @@ def fit_degradation(referred: pd.DataFrame, settings: AnalysisSettings | None = 
     and per quantity q in (slip, drain):
     - q_n_points, q_span_hours: the readings fitted;
     - q_a, q_b, q_var_a, q_var_b, q_cov_ab, q_scale, q_dof: the exponential law's line ln q = a + b h;
-    - q_current_lpm, q_start_lpm: the averaged trend (median of the model mixture) at current_hours and at 0;
+    - q_current_lpm, q_start_lpm: the trend (median of the heaviest law) at current_hours and at 0;
     - q_slope_lpm_per_h: the model-weighted growth rate at current_hours;
     - q_wear_law (the law with the most weight, None if unfitted) and q_weight_<law> for each of LAWS;
     - q_hours_scale, q_hours_offset and q_<member>_<a|b|var_a|var_b|cov_ab|dof|weight> for every member of the model set

@@ -1,10 +1,10 @@
 """Hours and calendar dates until each limit, from a pump's own trend, with honest bounds.
 
 The limit on eta_v,ref becomes a limit on the referred slip, (1 - eta_limit) x rated flow; the case drain
-limit is pct / 100 x max flow. The forecast is where the model-averaged trend of the wear laws reaches it;
-the bounds are the quantiles of that crossing under the mixture of the laws' fitted mean lines, which for
-a single law is the Fieller (inverse prediction) interval (ISO 13381-1 asks a prognosis to name its limit
-and carry a confidence figure).
+limit is pct / 100 x max flow. The forecast is where the trend of the most weighted wear law reaches it;
+the bounds span the crossing bands of every law the readings cannot rule out, each the quantiles of that
+crossing under its fitted mean lines, which for a single line is the Fieller (inverse prediction)
+interval (ISO 13381-1 asks a prognosis to name its limit and carry a confidence figure).
 """
 
 import numpy as np
@@ -12,7 +12,7 @@ import pandas as pd
 
 from fleet.trend.degradation import QUANTITIES, not_enough_reason
 from fleet.trend.linear import LineFit, line_variance, t_quantile
-from fleet.trend.model_average import crossing_quantiles, value_quantile
+from fleet.trend.model_average import crossing_band, value_band
 from fleet.trend.settings import AnalysisSettings
 from fleet.trend.wear_laws import LawFits
 
@@ -30,8 +30,9 @@ def limit_flows_lpm(eta_v_limit, drain_limit_pct, rated_flow_lpm, max_flow_lpm) 
 def hours_to_limits(fits: pd.DataFrame, limits_lpm: dict[str, np.ndarray], settings: AnalysisSettings) -> pd.DataFrame:
     """Remaining hours to each limit and to the governing one, for every fitted pump interval.
 
-    The crossing is that of the model-averaged trend (fleet.trend.model_average): its median is the forecast,
-    its (1 - confidence) / 2 and (1 + confidence) / 2 quantiles the bounds. Per limit q (slip -> eta_v,
+    The crossing comes from the weighed wear laws (fleet.trend.model_average.crossing_band): the median
+    crossing of the heaviest law is the forecast, the union of the (1 - confidence) / 2 to (1 + confidence) / 2
+    crossing bands of the laws the readings cannot rule out the bounds. Per limit q (slip -> eta_v,
     drain -> case_drain): q_crossing_hours, q_crossing_low, q_crossing_high (interval hours at the crossing
     and its bounds, also for a limit already passed; NaN where open), q_hours_to_limit, q_hours_low,
     q_hours_high (remaining hours, 0 once past), q_upper_open (no finite upper bound: the trend may stay
@@ -41,16 +42,13 @@ def hours_to_limits(fits: pd.DataFrame, limits_lpm: dict[str, np.ndarray], setti
     """
     out = pd.DataFrame(index=fits.index)
     now_h = fits["current_hours"].to_numpy(dtype=float)
-    alpha = 1.0 - settings.confidence
     for q in QUANTITIES:
         laws = LawFits.from_columns(fits, q)
         limit = np.asarray(limits_lpm[q], dtype=float)
         enough = fits[f"{q}_enough_data"].to_numpy(dtype=bool)
         has_limit = np.isfinite(limit) & (limit > 0)
         usable = enough & has_limit
-        x_low, x_hat, x_high = crossing_quantiles(
-            laws, np.where(usable, limit, np.nan), now_h, (alpha / 2, 0.5, 1 - alpha / 2), settings.confidence
-        )
+        x_low, x_hat, x_high = crossing_band(laws, np.where(usable, limit, np.nan), now_h, settings.confidence)
         current = fits[f"{q}_current_lpm"].to_numpy(dtype=float)
         past = usable & (current >= limit)
 
@@ -212,14 +210,13 @@ def averaged_band(fit, hours_grid, qmax, confidence: float = 0.90, quantity: str
     hours, with its band: what a chart of the pump's current interval draws.
 
     fit: one row of FleetAnalysis.fits. qmax: the rated flow for eta_v,ref or the max flow for drain %.
-    Returns hours, mean (the mixture's median), low, high; the band meets the limit exactly at the hours
-    bounds of hours_to_limits (both come from the same mixture).
+    Returns hours, mean (the heaviest law's median), low, high (the union of the plausible laws' bands); the
+    mean and the band meet the limit exactly at the forecast and bounds of hours_to_limits (both come from
+    fleet.trend.model_average's crossing_band and value_band, law by law).
     """
     laws = LawFits.from_columns(fit, quantity)
     h = np.asarray(hours_grid, dtype=float)
-    alpha = 1.0 - confidence
-    levels = np.repeat([alpha / 2, 0.5, 1 - alpha / 2], len(h))[None, :]  # the three quantiles in one search
-    lo, mid, hi = value_quantile(laws, np.tile(h, 3)[None, :], levels, confidence)[0].reshape(3, len(h))
+    lo, mid, hi = (edge[0] for edge in value_band(laws, h[None, :], confidence))
     h = h[None, :]
     if quantity == "slip":
         mean, low, high = 1.0 - mid / qmax, 1.0 - hi / qmax, 1.0 - lo / qmax
