@@ -8,12 +8,20 @@ from dataclasses import dataclass, field
 
 import numpy as np
 import pandas as pd
+import pyarrow as pa
+import pyarrow.compute as pc
 
 from fleet import units
 from fleet.io.columns import KINDS, Column
 from fleet.io.localtime import localize
 from fleet.kinds import EVENT_KINDS, FAILURE_MODES, PUMP_KINDS, READING_SOURCES, normalise_kind
 from fleet.physics.cleanliness import parse_code
+
+# pandas 3 holds inferred text in Arrow when pyarrow is installed, and Arrow text cannot hold what a hostile form
+# or API body may send (an unpaired surrogate). Text from a form, a JSON body or the database is therefore held
+# as Python strings, set here once for the process; only the CSV reader (fleet.io.files) asks for Arrow text
+# explicitly, whose cells are valid UTF-8 by construction.
+pd.set_option("mode.string_storage", "python")
 
 TRUE_WORDS = frozenset({"yes", "y", "true", "1", "x"})
 FALSE_WORDS = frozenset({"no", "n", "false", "0", ""})
@@ -31,6 +39,8 @@ OFFSET = r"(?:Z|[+-]\d{2}:?\d{2})$"
 # as a thousands separator ('12,500': 12.5 or 12500?) is refused, as is any cell with both a comma and a point.
 COMMA_DECIMAL = r"[+-]?\d+,\d+"
 THOUSANDS_LIKE = r"[+-]?[1-9]\d{0,2},\d{3}"
+# A number Arrow's cast reads exactly as Python's float() does (fleet.io.parse._floats); anything else goes to float().
+PLAIN_DECIMAL = r"^[+-]?(?:\d+\.?\d*|\.\d+)(?:[eE][+-]?\d{1,3})?$"
 ISO_TIME = r"\d{4}-\d{2}-\d{2}(?:[T ]\d{2}:\d{2}(?::\d{2}(?:\.\d{1,9})?)?)?(?:Z|[+-]\d{2}:?\d{2})?"
 
 
@@ -84,9 +94,13 @@ def row_numbers(index: pd.Index) -> np.ndarray:
     return np.asarray(index) + 2
 
 
+def _is_arrow_text(series: pd.Series) -> bool:
+    return isinstance(series.dtype, pd.ArrowDtype) and pa.types.is_string(series.dtype.pyarrow_dtype)
+
+
 def _cells(series: pd.Series) -> pd.Series:
-    """Text cells, stripped, with blanks as NA."""
-    text = series.astype("string").str.strip()
+    """Text cells, stripped, with blanks as NA (a CSV's Arrow text stays Arrow, for its kernels)."""
+    text = (series if _is_arrow_text(series) else series.astype(pd.StringDtype("python"))).str.strip()
     return text.mask(text == "")
 
 
@@ -194,8 +208,7 @@ def _parse_numbers(spec: Column, cells: pd.Series, blank: pd.Series, unit: str |
     already = pd.Series(False, index=cells.index)
     already.iloc[[flag.positions[i] for i in range(refused_before, len(flag.problems))]] = True
     blank = blank | already
-    # Cell by cell to float: a 400-digit integer becomes inf (refused below), never an OverflowError.
-    numbers = pd.Series([_to_float(c) for c in cells], index=cells.index, dtype=float)
+    numbers = pd.Series(_floats(cells), index=cells.index)
     flag(~blank & numbers.isna(), lambda cell: f"'{cell}' is not a number")
     unit = unit if unit is not None else spec.default_unit
     # 'inf' and '1e999' parse as numbers; no reading or register value is infinite, or near it.
@@ -224,6 +237,29 @@ def _parse_numbers(spec: Column, cells: pd.Series, blank: pd.Series, unit: str |
                  f"({bound(spec.max)})")
         if spec.integer:
             flag(values.notna() & (values != values.round()), lambda cell: f"{cell} must be a whole number")
+    return values
+
+
+def _floats(cells: pd.Series) -> np.ndarray:
+    """Each cell as Python's float() reads it (NaN where it is no number).
+
+    Arrow text cells written as plain decimals go through Arrow's cast, column at once: it rounds to the nearest
+    double as float() does (tests/test_fast_import.py checks them against float()). Any other cell ('inf',
+    '1e999', ' 1_000', a 400-digit integer) is read by float() itself, cell by cell."""
+    values = np.full(len(cells), np.nan)
+    rest = np.ones(len(cells), dtype=bool)
+    if _is_arrow_text(cells) and len(cells):
+        text = pc.fill_null(cells.array.__arrow_array__(), "")
+        plain = pc.and_(pc.match_substring_regex(text, PLAIN_DECIMAL), pc.less_equal(pc.utf8_length(text), 24))
+        try:
+            picked = np.asarray(plain.to_numpy(zero_copy_only=False), dtype=bool)
+            values[picked] = pc.cast(pc.filter(text, plain), pa.float64()).to_numpy(zero_copy_only=False)
+            rest = ~picked
+        except (pa.ArrowInvalid, pa.ArrowNotImplementedError):
+            rest[:] = True
+    cells_left = cells[rest]
+    # Cell by cell to float: a 400-digit integer becomes inf (refused below), never an OverflowError.
+    values[rest] = [_to_float(c) for c in cells_left]
     return values
 
 
@@ -293,7 +329,10 @@ def _parse_column(spec: Column, raw: pd.Series, unit: str | None,
     # cannot be written as UTF-8 (an unpaired surrogate from a broken client) cannot be stored or shown.
     nul = cells.str.contains("\x00", regex=False).fillna(False).astype(bool)
     flag(nul, lambda _cell: "contains a NUL character (0x00)")
-    broken = cells.map(_not_utf8, na_action="ignore").fillna(False).astype(bool) & ~nul
+    if _is_arrow_text(cells):  # Arrow text is valid UTF-8 by construction
+        broken = pd.Series(False, index=cells.index)
+    else:
+        broken = cells.map(_not_utf8, na_action="ignore").fillna(False).astype(bool) & ~nul
     flag(broken, lambda _cell: "contains characters that cannot be stored (not valid Unicode text)")
     cells, blank = cells.mask(nul | broken), blank | nul | broken
 
