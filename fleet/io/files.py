@@ -11,6 +11,7 @@ header) goes to pandas' own reader, which gives the established cells or the est
 
 import csv
 import io
+import re
 from pathlib import Path
 
 import pandas as pd
@@ -20,6 +21,7 @@ import pyarrow.csv as arrow_csv
 from fleet.io.formulas import unguard_table
 from fleet.io.spreadsheet import XLSX_SUFFIX, Sheet, is_xlsx, read_xlsx
 
+_BLANK_THEN_QUOTE = re.compile(rb"[ \t][\"']")
 UTF8_BOM = b"\xef\xbb\xbf"
 # One thread: the machine's cores are shared, and one thread over 1 MB blocks measured fastest here.
 _READ_OPTIONS = {"use_threads": False, "block_size": 1 << 20}
@@ -38,8 +40,8 @@ def read_csv(source: str | Path | bytes) -> pd.DataFrame:
 def _read_arrow(data: bytes) -> pd.DataFrame | None:
     """The cells through pyarrow's reader as Arrow text, or None when pandas' reader must decide."""
     body = data[len(UTF8_BOM):] if data.startswith(UTF8_BOM) else data
-    if any(mark in body for mark in (b' "', b"\t\"", b" '", b"\t'")):  # skipinitialspace would read these
-        return None  # cells otherwise (a quoted cell, or the formula guard, after blanks)
+    if (b" " in body or b"\t" in body) and _BLANK_THEN_QUOTE.search(body):
+        return None  # skipinitialspace reads a quoted cell, or the formula guard, after blanks otherwise
     try:
         header = next(csv.reader([body.split(b"\n", 1)[0].decode("utf-8").rstrip("\r")]))
     except (UnicodeDecodeError, StopIteration, csv.Error):

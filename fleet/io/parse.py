@@ -94,13 +94,14 @@ def row_numbers(index: pd.Index) -> np.ndarray:
     return np.asarray(index) + 2
 
 
-def _is_arrow_text(series: pd.Series) -> bool:
+def is_arrow_text(series: pd.Series) -> bool:
+    """Cells held as Arrow text (a CSV read by fleet.io.files), whose string methods run as Arrow kernels."""
     return isinstance(series.dtype, pd.ArrowDtype) and pa.types.is_string(series.dtype.pyarrow_dtype)
 
 
 def _cells(series: pd.Series) -> pd.Series:
     """Text cells, stripped, with blanks as NA (a CSV's Arrow text stays Arrow, for its kernels)."""
-    text = (series if _is_arrow_text(series) else series.astype(pd.StringDtype("python"))).str.strip()
+    text = (series if is_arrow_text(series) else series.astype(pd.StringDtype("python"))).str.strip()
     return text.mask(text == "")
 
 
@@ -248,7 +249,7 @@ def _floats(cells: pd.Series) -> np.ndarray:
     '1e999', ' 1_000', a 400-digit integer) is read by float() itself, cell by cell."""
     values = np.full(len(cells), np.nan)
     rest = np.ones(len(cells), dtype=bool)
-    if _is_arrow_text(cells) and len(cells):
+    if is_arrow_text(cells) and len(cells):
         text = pc.fill_null(cells.array.__arrow_array__(), "")
         plain = pc.and_(pc.match_substring_regex(text, PLAIN_DECIMAL), pc.less_equal(pc.utf8_length(text), 24))
         try:
@@ -257,6 +258,7 @@ def _floats(cells: pd.Series) -> np.ndarray:
             rest = ~picked
         except (pa.ArrowInvalid, pa.ArrowNotImplementedError):
             rest[:] = True
+    rest &= cells.notna().to_numpy()  # a blank stays NaN
     cells_left = cells[rest]
     # Cell by cell to float: a 400-digit integer becomes inf (refused below), never an OverflowError.
     values[rest] = [_to_float(c) for c in cells_left]
@@ -329,7 +331,7 @@ def _parse_column(spec: Column, raw: pd.Series, unit: str | None,
     # cannot be written as UTF-8 (an unpaired surrogate from a broken client) cannot be stored or shown.
     nul = cells.str.contains("\x00", regex=False).fillna(False).astype(bool)
     flag(nul, lambda _cell: "contains a NUL character (0x00)")
-    if _is_arrow_text(cells):  # Arrow text is valid UTF-8 by construction
+    if is_arrow_text(cells):  # Arrow text is valid UTF-8 by construction
         broken = pd.Series(False, index=cells.index)
     else:
         broken = cells.map(_not_utf8, na_action="ignore").fillna(False).astype(bool) & ~nul
