@@ -2,8 +2,13 @@
 with Python's float(), numpy's time text with datetime.strftime, the column-wide meter check with the one rule,
 and COPY/executemany with what an ORM read sees."""
 
+import json
 import math
+import os
+import subprocess
+import sys
 from datetime import datetime, timedelta
+from pathlib import Path
 
 import numpy as np
 import pandas as pd
@@ -138,3 +143,20 @@ def test_bulk_insert_stores_what_the_orm_reads_back(db):
                                       Reading.source).order_by(Reading.taken_at)).all()
     assert rows[0] == (datetime(2024, 3, 1, 8, 0, 0, 123456), 63.1, "tab\there", "back\\slash", "import")
     assert rows[1][1] is None and rows[1][2] is None and not math.isnan(rows[0][1])
+
+
+@pytest.mark.slow
+def test_the_import_floor_benchmark_runs_at_its_small_size(tmp_path):
+    # A smoke test: the figures are reported (on PostgreSQL too when a server is given), never timed here.
+    out = tmp_path / "import.json"
+    command = [sys.executable, "-m", "benchmarks.import_floors", "--size", "small", "--out", str(out)]
+    server = os.environ.get("FLEET_TEST_DATABASE_URL")
+    if server:
+        command += ["--database", server]
+    done = subprocess.run(command, cwd=Path(__file__).resolve().parents[1], capture_output=True, text=True,
+                          timeout=300)
+    assert done.returncode == 0, done.stderr
+    figures = json.loads(out.read_text())
+    assert figures["readings"] == 40 * 60
+    for name in ("import_s", "import_floor_s", "import_ratio") + (("pg_import_ratio",) if server else ()):
+        assert math.isfinite(figures[name]) and figures[name] > 0, name
