@@ -40,14 +40,16 @@ def read_csv(source: str | Path | bytes) -> pd.DataFrame:
 def _read_arrow(data: bytes) -> pd.DataFrame | None:
     """The cells through pyarrow's reader as Arrow text, or None when pandas' reader must decide."""
     body = data[len(UTF8_BOM):] if data.startswith(UTF8_BOM) else data
-    if (b" " in body or b"\t" in body) and _BLANK_THEN_QUOTE.search(body):
+    if (b'"' in body or b"'" in body) and _BLANK_THEN_QUOTE.search(body):
         return None  # skipinitialspace reads a quoted cell, or the formula guard, after blanks otherwise
+    end = body.find(b"\n")
+    first_line = body if end < 0 else body[:end]
+    if b'"' in first_line:
+        return None  # a quoted header may hold a line break
     try:
-        header = next(csv.reader([body.split(b"\n", 1)[0].decode("utf-8").rstrip("\r")]))
+        header = next(csv.reader([first_line.decode("utf-8").rstrip("\r")]))
     except (UnicodeDecodeError, StopIteration, csv.Error):
         return None
-    if b'"' in body.split(b"\n", 1)[0]:
-        return None  # a quoted header may hold a line break
     names = [name.lstrip(" ") for name in header]
     if not names or len(set(names)) != len(names) or not all(names):
         return None  # pandas names repeated and blank headers its own way

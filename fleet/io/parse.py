@@ -244,24 +244,27 @@ def _parse_numbers(spec: Column, cells: pd.Series, blank: pd.Series, unit: str |
 def _floats(cells: pd.Series) -> np.ndarray:
     """Each cell as Python's float() reads it (NaN where it is no number).
 
-    Arrow text cells written as plain decimals go through Arrow's cast, column at once: it rounds to the nearest
-    double as float() does (tests/test_fast_import.py checks them against float()). Any other cell ('inf',
-    '1e999', ' 1_000', a 400-digit integer) is read by float() itself, cell by cell."""
+    Arrow text goes through Arrow's cast, the whole column at once, which rounds a decimal to the nearest double as
+    float() does (tests/test_fast_import.py checks both paths against each other). When the cast refuses a cell,
+    plain decimals are cast and every other cell ('1_000', '0x10', a 400-digit integer) is read by float() itself."""
     values = np.full(len(cells), np.nan)
-    rest = np.ones(len(cells), dtype=bool)
+    rest = cells.notna().to_numpy(dtype=bool, copy=True)  # a blank stays NaN
     if is_arrow_text(cells) and len(cells):
-        text = pc.fill_null(cells.array.__arrow_array__(), "")
+        text = cells.array.__arrow_array__()
+        try:
+            return pc.cast(text, pa.float64()).to_numpy(zero_copy_only=False).astype(float)
+        except (pa.ArrowInvalid, pa.ArrowNotImplementedError):
+            pass
+        text = pc.fill_null(text, "")
         plain = pc.and_(pc.match_substring_regex(text, PLAIN_DECIMAL), pc.less_equal(pc.utf8_length(text), 24))
         try:
             picked = np.asarray(plain.to_numpy(zero_copy_only=False), dtype=bool)
             values[picked] = pc.cast(pc.filter(text, plain), pa.float64()).to_numpy(zero_copy_only=False)
-            rest = ~picked
+            rest &= ~picked
         except (pa.ArrowInvalid, pa.ArrowNotImplementedError):
-            rest[:] = True
-    rest &= cells.notna().to_numpy()  # a blank stays NaN
-    cells_left = cells[rest]
+            pass
     # Cell by cell to float: a 400-digit integer becomes inf (refused below), never an OverflowError.
-    values[rest] = [_to_float(c) for c in cells_left]
+    values[rest] = [_to_float(c) for c in cells[rest]]
     return values
 
 

@@ -71,17 +71,26 @@ _DIGITS = {width: np.array([[ord(c) for c in f"{n:0{width}d}"] for n in range(10
 
 
 def time_texts(values: np.ndarray) -> list[str | None]:
-    """Times as 'YYYY-MM-DD HH:MM:SS.ffffff' (None for NaT), built as digits over the whole array at once."""
+    """Times as 'YYYY-MM-DD HH:MM:SS.ffffff' (None for NaT), built as digits over the whole array at once.
+
+    The date comes from the day count by the proleptic Gregorian arithmetic of H. Hinnant's ``civil_from_days``
+    (integer operations only; tests/test_fast_import.py checks it against datetime.strftime)."""
     micros = values.astype("datetime64[us]")
     missing = np.isnat(micros)
-    micros = np.where(missing, np.datetime64(0, "us"), micros)
-    days = micros.astype("datetime64[D]")
-    months = days.astype("datetime64[M]")
-    of_day = (micros - days).astype(np.int64)
+    count = np.where(missing, 0, micros.view(np.int64))
+    days = count // 86_400_000_000
+    of_day = count - days * 86_400_000_000
+    shifted = days + 719_468  # days from 0000-03-01
+    era = shifted // 146_097
+    of_era = shifted - era * 146_097
+    year_of_era = (of_era - of_era // 1460 + of_era // 36_524 - of_era // 146_096) // 365
+    day_of_year = of_era - (365 * year_of_era + year_of_era // 4 - year_of_era // 100)
+    month_from_march = (5 * day_of_year + 2) // 153
+    month = np.where(month_from_march < 10, month_from_march + 3, month_from_march - 9)
     fields = (  # (first character, digits, value)
-        (0, 4, months.astype("datetime64[Y]").astype(np.int64) + 1970),
-        (5, 2, months.astype(np.int64) % 12 + 1),
-        (8, 2, (days - months).astype(np.int64) + 1),
+        (0, 4, year_of_era + era * 400 + (month <= 2)),
+        (5, 2, month),
+        (8, 2, day_of_year - (153 * month_from_march + 2) // 5 + 1),
         (11, 2, of_day // 3_600_000_000), (14, 2, of_day // 60_000_000 % 60), (17, 2, of_day // 1_000_000 % 60),
         (20, 3, of_day // 1000 % 1000), (23, 3, of_day % 1000),
     )
