@@ -76,6 +76,8 @@ class RowConventions:
     decimal_comma: pd.Series | None = None
 
     def aligned(self, index: pd.Index) -> "RowConventions":
+        if all(part is None or part.index.equals(index) for part in (self.zones, self.decimal_comma)):
+            return self
         zones = None if self.zones is None else pd.Series(self.zones.to_numpy(), index=index)
         comma = None if self.decimal_comma is None else pd.Series(self.decimal_comma.to_numpy(), index=index)
         return RowConventions(zones, comma)
@@ -289,8 +291,8 @@ def _parse_times(cells: pd.Series, blank: pd.Series, flag, zones: pd.Series | No
     far = iso & ~cells.str[:4].between(f"{EARLIEST.year - 1}", f"{LATEST.year + 1}").fillna(False).astype(bool)
     text = cells.where(iso & ~far)
     offset = text.str.contains(OFFSET).fillna(False).astype(bool)
-    stamps = pd.to_datetime(text.where(offset), errors="coerce", format="ISO8601", utc=True).dt.tz_localize(None)
-    wall = pd.to_datetime(text.where(~offset), errors="coerce", format="ISO8601")
+    stamps = _to_datetime(text, offset, utc=True)
+    wall = _to_datetime(text, ~offset, utc=False)
     unreadable = ~blank & iso & ~far & stamps.isna() & wall.isna()
     flag(unreadable, lambda cell: f"'{cell}' is not a date (write YYYY-MM-DD or YYYY-MM-DD HH:MM)")
     zones = pd.Series("UTC", index=cells.index) if zones is None else zones
@@ -301,6 +303,14 @@ def _parse_times(cells: pd.Series, blank: pd.Series, flag, zones: pd.Series | No
     outside = far | (stamps < EARLIEST) | (stamps > LATEST)
     flag(outside, lambda cell: f"{cell} is outside the dates fleet keeps ({EARLIEST:%Y-%m-%d} to {LATEST:%Y-%m-%d})")
     return stamps.mask(outside)
+
+
+def _to_datetime(text: pd.Series, rows: pd.Series, utc: bool) -> pd.Series:
+    """The ISO 8601 times of ``rows`` (naive; UTC when ``utc``), NaT elsewhere; no parse when no row is asked."""
+    if not rows.any():
+        return pd.Series(pd.NaT, index=text.index, dtype="datetime64[ns]")
+    stamps = pd.to_datetime(text.where(rows), errors="coerce", format="ISO8601", utc=utc)
+    return stamps.dt.tz_localize(None) if utc else stamps
 
 
 class _Flagger:
