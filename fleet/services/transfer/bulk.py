@@ -35,7 +35,7 @@ def insert_frame(session: Session, model, frame: pd.DataFrame) -> None:
         if dialect == "sqlite":
             marks = ", ".join("?" * len(frame.columns))
             cursor.executemany(f"INSERT INTO {model.__tablename__} ({', '.join(frame.columns)}) VALUES ({marks})",
-                               zip(*columns, strict=False))  # a repeated value (created_at) repeats without end
+                               zip(*columns, strict=False))  # repeats end with pump_id, always a list
         else:
             with cursor.copy(f"COPY {model.__tablename__} ({', '.join(frame.columns)}) FROM STDIN") as copy:
                 for row in zip(*columns, strict=False):
@@ -54,6 +54,8 @@ def _column_values(series: pd.Series, nulls: bool):
         return time_texts(values)
     if pd.api.types.is_float_dtype(series):
         numbers = series.to_numpy(dtype=float)
+        if np.isnan(numbers).all():
+            return itertools.repeat(None)  # a column the file did not have (stroke of fixed pumps)
         values = numbers.tolist()
         if nulls and np.isnan(numbers).any():
             missing = np.isnan(numbers)
@@ -62,7 +64,10 @@ def _column_values(series: pd.Series, nulls: bool):
     if pd.api.types.is_integer_dtype(series):
         return series.to_numpy(dtype=np.int64).tolist()
     values = series.astype(object)
-    return values.where(values.notna(), None).tolist()
+    missing = values.isna().to_numpy()
+    if missing.all():
+        return itertools.repeat(None)  # a text column the file did not have (note, taken_by)
+    return values.where(~missing, None).tolist()
 
 
 # The digits of every number of 2, 3 and 4 places, as ASCII codes: one table lookup writes a field of a time.
