@@ -34,6 +34,7 @@ class FleetSize:
 
 SIZES = {
     "small": FleetSize(pumps=40, readings_per_pump=60, pumps_per_file=20),
+    "medium": FleetSize(pumps=1_000, readings_per_pump=520, pumps_per_file=1_000),  # one file of the full size's
     "full": FleetSize(pumps=10_000, readings_per_pump=520, pumps_per_file=1_000),
 }
 

@@ -44,4 +44,16 @@ def unguard(value):
 
 def unguard_table(table: pd.DataFrame) -> pd.DataFrame:
     """Every text cell of a file's table with the export guard undone."""
-    return table.apply(lambda column: column.map(unguard)) if len(table.columns) else table
+    return table.apply(_unguard_column) if len(table.columns) else table
+
+
+def _unguard_column(column: pd.Series) -> pd.Series:
+    """``unguard`` over a column; only cells that start with the guard can change, so only they are looked at."""
+    if not pd.api.types.is_string_dtype(column.dtype) or column.dtype == object:
+        return column.map(unguard)
+    quoted = column.str.startswith(GUARD).to_numpy(dtype=bool, na_value=False)
+    if not quoted.any():
+        return column
+    column = column.copy()
+    column[quoted] = column[quoted].map(unguard)
+    return column

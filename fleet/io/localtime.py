@@ -79,28 +79,31 @@ def localize(naive: pd.Series, zones: pd.Series) -> tuple[pd.Series, dict[int, s
     ``naive`` holds Timestamps (NaT where blank); ``zones`` an IANA name per row (same index). The rows named in
     the reasons (by position) come back as NaT.
     """
-    out = pd.Series(pd.NaT, index=naive.index, dtype="datetime64[ns]")
+    values = naive.to_numpy(dtype="datetime64[ns]")
+    out = np.full(len(values), np.datetime64("NaT"), dtype="datetime64[ns]")
     reasons: dict[int, str] = {}
-    positions = pd.Series(np.arange(len(naive)), index=naive.index)
-    for name, rows in naive.groupby(zones.fillna(DEFAULT_ZONE).to_numpy(), sort=False):
+    codes, names = pd.factorize(zones.fillna(DEFAULT_ZONE).to_numpy())
+    for code, name in enumerate(names):
+        where = np.flatnonzero(codes == code)  # row positions read in this zone
         key = zone(name).key
         if key == "UTC":
-            out.loc[rows.index] = rows.to_numpy()
+            out[where] = values[where]
             continue
+        rows = pd.Series(values[where], index=where)
         earlier = rows.dt.tz_localize(key, ambiguous=np.ones(len(rows), dtype=bool), nonexistent="NaT")
         later = rows.dt.tz_localize(key, ambiguous=np.zeros(len(rows), dtype=bool), nonexistent="NaT")
-        gap = rows.notna() & earlier.isna()
-        fold = rows.notna() & earlier.notna() & (earlier != later)
-        good = rows.notna() & ~gap & ~fold
-        out.loc[rows.index[good.to_numpy()]] = earlier[good].dt.tz_convert("UTC").dt.tz_localize(None).to_numpy()
-        for index in rows.index[gap.to_numpy()]:
-            reasons[int(positions[index])] = (
-                f"{_wall(rows[index])} does not exist in {key}: the clocks skip that hour when daylight saving "
+        gap = (rows.notna() & earlier.isna()).to_numpy()
+        fold = (rows.notna() & earlier.notna() & (earlier != later)).to_numpy()
+        good = rows.notna().to_numpy() & ~gap & ~fold
+        out[where[good]] = earlier[good].dt.tz_convert("UTC").dt.tz_localize(None).to_numpy(dtype="datetime64[ns]")
+        for position in where[gap]:
+            reasons[int(position)] = (
+                f"{_wall(rows[position])} does not exist in {key}: the clocks skip that hour when daylight saving "
                 "time begins; check the time, or write it with its UTC offset")
-        for index in rows.index[fold.to_numpy()]:
-            first, second = earlier[index], later[index]
-            reasons[int(positions[index])] = (
-                f"{_wall(rows[index])} happens twice in {key}: the clocks go back over that hour when daylight "
+        for position in where[fold]:
+            first, second = earlier[position], later[position]
+            reasons[int(position)] = (
+                f"{_wall(rows[position])} happens twice in {key}: the clocks go back over that hour when daylight "
                 f"saving time ends; write it with its offset, {offset_text(first.utcoffset())} for the first or "
                 f"{offset_text(second.utcoffset())} for the second")
-    return out, reasons
+    return pd.Series(out, index=naive.index), reasons

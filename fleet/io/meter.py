@@ -9,6 +9,7 @@ saving (a form) or beside what was stored (the API, a CSV import), never a refus
 from dataclasses import dataclass
 from datetime import datetime
 
+import numpy as np
 import pandas as pd
 
 # A meter may run ahead of the clock by a little: readings rounded to the hour, a wall clock a minute out.
@@ -50,20 +51,31 @@ def meter_doubt(last_at: datetime | None, last_hours: float | None, at: datetime
 def meter_doubts(new: pd.DataFrame, stored: pd.DataFrame) -> list[tuple[object, MeterDoubt]]:
     """(index in ``new``, doubt) for each new reading whose meter doubts the reading before it.
 
-    Both frames hold pump_id, taken_at and hours; the reading before may be stored or another new row.
+    Both frames hold pump_id, taken_at and hours; the reading before may be stored or another new row. The
+    comparison runs over whole columns first, with a margin, to find the few readings worth asking about; each of
+    those is then asked ``meter_doubt`` itself, so the rule and its words stay in one place.
     """
-    parts = [new[["pump_id", "taken_at", "hours"]].assign(is_new=True, new_index=new.index)]
+    parts = [new[["pump_id", "taken_at", "hours"]].assign(is_new=True, new_index=np.arange(len(new)))]
     if len(stored):  # pandas warns of concatenating an empty frame
-        parts.append(stored[["pump_id", "taken_at", "hours"]].assign(is_new=False, new_index=None))
+        parts.append(stored[["pump_id", "taken_at", "hours"]].assign(is_new=False, new_index=-1))
     both = pd.concat(parts, ignore_index=True)
     both = both.sort_values(["pump_id", "taken_at"], kind="stable")
-    before = both.groupby("pump_id")[["taken_at", "hours"]].shift(1)
+    pump = both["pump_id"].to_numpy()
+    at = both["taken_at"].to_numpy(dtype="datetime64[us]")
+    hours = both["hours"].to_numpy(dtype=float)
+    same_pump = np.zeros(len(both), dtype=bool)
+    same_pump[1:] = pump[1:] == pump[:-1]
+    last_hours = np.roll(hours, 1)
+    clock_h = np.maximum((at - np.roll(at, 1)) / np.timedelta64(1, "h"), 0.0)
+    limit = last_hours + clock_h * (1.0 + FAST_ALLOWANCE_FRACTION) + FAST_ALLOWANCE_H
+    with np.errstate(invalid="ignore"):
+        worth = (hours < last_hours) | (hours > limit - 1e-6 * np.maximum(1.0, np.abs(limit)))
+    worth &= same_pump & both["is_new"].to_numpy(dtype=bool) & ~np.isnan(last_hours)
     out = []
-    for row, last_at, last_hours in zip(both.itertuples(), before["taken_at"], before["hours"], strict=True):
-        if not row.is_new or pd.isna(last_at):
-            continue
-        doubt = meter_doubt(pd.Timestamp(last_at).to_pydatetime(), float(last_hours),
-                            pd.Timestamp(row.taken_at).to_pydatetime(), float(row.hours))
+    new_index = both["new_index"].to_numpy()
+    for position in np.flatnonzero(worth):
+        doubt = meter_doubt(pd.Timestamp(at[position - 1]).to_pydatetime(), float(hours[position - 1]),
+                            pd.Timestamp(at[position]).to_pydatetime(), float(hours[position]))
         if doubt:
-            out.append((row.new_index, doubt))
+            out.append((new.index[new_index[position]], doubt))
     return out

@@ -8,12 +8,20 @@ from dataclasses import dataclass, field
 
 import numpy as np
 import pandas as pd
+import pyarrow as pa
+import pyarrow.compute as pc
 
 from fleet import units
 from fleet.io.columns import KINDS, Column
 from fleet.io.localtime import localize
 from fleet.kinds import EVENT_KINDS, FAILURE_MODES, PUMP_KINDS, READING_SOURCES, normalise_kind
 from fleet.physics.cleanliness import parse_code
+
+# pandas 3 holds inferred text in Arrow when pyarrow is installed, and Arrow text cannot hold what a hostile form
+# or API body may send (an unpaired surrogate). Text from a form, a JSON body or the database is therefore held
+# as Python strings, set here once for the process; only the CSV reader (fleet.io.files) asks for Arrow text
+# explicitly, whose cells are valid UTF-8 by construction.
+pd.set_option("mode.string_storage", "python")
 
 TRUE_WORDS = frozenset({"yes", "y", "true", "1", "x"})
 FALSE_WORDS = frozenset({"no", "n", "false", "0", ""})
@@ -31,6 +39,8 @@ OFFSET = r"(?:Z|[+-]\d{2}:?\d{2})$"
 # as a thousands separator ('12,500': 12.5 or 12500?) is refused, as is any cell with both a comma and a point.
 COMMA_DECIMAL = r"[+-]?\d+,\d+"
 THOUSANDS_LIKE = r"[+-]?[1-9]\d{0,2},\d{3}"
+# A number Arrow's cast reads exactly as Python's float() does (fleet.io.parse._floats); anything else goes to float().
+PLAIN_DECIMAL = r"^[+-]?(?:\d+\.?\d*|\.\d+)(?:[eE][+-]?\d{1,3})?$"
 ISO_TIME = r"\d{4}-\d{2}-\d{2}(?:[T ]\d{2}:\d{2}(?::\d{2}(?:\.\d{1,9})?)?)?(?:Z|[+-]\d{2}:?\d{2})?"
 
 
@@ -66,6 +76,8 @@ class RowConventions:
     decimal_comma: pd.Series | None = None
 
     def aligned(self, index: pd.Index) -> "RowConventions":
+        if all(part is None or part.index.equals(index) for part in (self.zones, self.decimal_comma)):
+            return self
         zones = None if self.zones is None else pd.Series(self.zones.to_numpy(), index=index)
         comma = None if self.decimal_comma is None else pd.Series(self.decimal_comma.to_numpy(), index=index)
         return RowConventions(zones, comma)
@@ -84,9 +96,14 @@ def row_numbers(index: pd.Index) -> np.ndarray:
     return np.asarray(index) + 2
 
 
+def is_arrow_text(series: pd.Series) -> bool:
+    """Cells held as Arrow text (a CSV read by fleet.io.files), whose string methods run as Arrow kernels."""
+    return isinstance(series.dtype, pd.ArrowDtype) and pa.types.is_string(series.dtype.pyarrow_dtype)
+
+
 def _cells(series: pd.Series) -> pd.Series:
-    """Text cells, stripped, with blanks as NA."""
-    text = series.astype("string").str.strip()
+    """Text cells, stripped, with blanks as NA (a CSV's Arrow text stays Arrow, for its kernels)."""
+    text = (series if is_arrow_text(series) else series.astype(pd.StringDtype("python"))).str.strip()
     return text.mask(text == "")
 
 
@@ -194,8 +211,7 @@ def _parse_numbers(spec: Column, cells: pd.Series, blank: pd.Series, unit: str |
     already = pd.Series(False, index=cells.index)
     already.iloc[[flag.positions[i] for i in range(refused_before, len(flag.problems))]] = True
     blank = blank | already
-    # Cell by cell to float: a 400-digit integer becomes inf (refused below), never an OverflowError.
-    numbers = pd.Series([_to_float(c) for c in cells], index=cells.index, dtype=float)
+    numbers = pd.Series(_floats(cells), index=cells.index)
     flag(~blank & numbers.isna(), lambda cell: f"'{cell}' is not a number")
     unit = unit if unit is not None else spec.default_unit
     # 'inf' and '1e999' parse as numbers; no reading or register value is infinite, or near it.
@@ -227,6 +243,33 @@ def _parse_numbers(spec: Column, cells: pd.Series, blank: pd.Series, unit: str |
     return values
 
 
+def _floats(cells: pd.Series) -> np.ndarray:
+    """Each cell as Python's float() reads it (NaN where it is no number).
+
+    Arrow text goes through Arrow's cast, the whole column at once, which rounds a decimal to the nearest double as
+    float() does (tests/test_fast_import.py checks both paths against each other). When the cast refuses a cell,
+    plain decimals are cast and every other cell ('1_000', '0x10', a 400-digit integer) is read by float() itself."""
+    values = np.full(len(cells), np.nan)
+    rest = cells.notna().to_numpy(dtype=bool, copy=True)  # a blank stays NaN
+    if is_arrow_text(cells) and len(cells):
+        text = cells.array.__arrow_array__()
+        try:
+            return pc.cast(text, pa.float64()).to_numpy(zero_copy_only=False).astype(float)
+        except (pa.ArrowInvalid, pa.ArrowNotImplementedError):
+            pass
+        text = pc.fill_null(text, "")
+        plain = pc.and_(pc.match_substring_regex(text, PLAIN_DECIMAL), pc.less_equal(pc.utf8_length(text), 24))
+        try:
+            picked = np.asarray(plain.to_numpy(zero_copy_only=False), dtype=bool)
+            values[picked] = pc.cast(pc.filter(text, plain), pa.float64()).to_numpy(zero_copy_only=False)
+            rest &= ~picked
+        except (pa.ArrowInvalid, pa.ArrowNotImplementedError):
+            pass
+    # Cell by cell to float: a 400-digit integer becomes inf (refused below), never an OverflowError.
+    values[rest] = [_to_float(c) for c in cells[rest]]
+    return values
+
+
 def _to_float(cell) -> float:
     if cell is None or cell is pd.NA:
         return np.nan
@@ -248,8 +291,8 @@ def _parse_times(cells: pd.Series, blank: pd.Series, flag, zones: pd.Series | No
     far = iso & ~cells.str[:4].between(f"{EARLIEST.year - 1}", f"{LATEST.year + 1}").fillna(False).astype(bool)
     text = cells.where(iso & ~far)
     offset = text.str.contains(OFFSET).fillna(False).astype(bool)
-    stamps = pd.to_datetime(text.where(offset), errors="coerce", format="ISO8601", utc=True).dt.tz_localize(None)
-    wall = pd.to_datetime(text.where(~offset), errors="coerce", format="ISO8601")
+    stamps = _to_datetime(text, offset, utc=True)
+    wall = _to_datetime(text, ~offset, utc=False)
     unreadable = ~blank & iso & ~far & stamps.isna() & wall.isna()
     flag(unreadable, lambda cell: f"'{cell}' is not a date (write YYYY-MM-DD or YYYY-MM-DD HH:MM)")
     zones = pd.Series("UTC", index=cells.index) if zones is None else zones
@@ -260,6 +303,14 @@ def _parse_times(cells: pd.Series, blank: pd.Series, flag, zones: pd.Series | No
     outside = far | (stamps < EARLIEST) | (stamps > LATEST)
     flag(outside, lambda cell: f"{cell} is outside the dates fleet keeps ({EARLIEST:%Y-%m-%d} to {LATEST:%Y-%m-%d})")
     return stamps.mask(outside)
+
+
+def _to_datetime(text: pd.Series, rows: pd.Series, utc: bool) -> pd.Series:
+    """The ISO 8601 times of ``rows`` (naive; UTC when ``utc``), NaT elsewhere; no parse when no row is asked."""
+    if not rows.any():
+        return pd.Series(pd.NaT, index=text.index, dtype="datetime64[ns]")
+    stamps = pd.to_datetime(text.where(rows), errors="coerce", format="ISO8601", utc=utc)
+    return stamps.dt.tz_localize(None) if utc else stamps
 
 
 class _Flagger:
@@ -293,7 +344,10 @@ def _parse_column(spec: Column, raw: pd.Series, unit: str | None,
     # cannot be written as UTF-8 (an unpaired surrogate from a broken client) cannot be stored or shown.
     nul = cells.str.contains("\x00", regex=False).fillna(False).astype(bool)
     flag(nul, lambda _cell: "contains a NUL character (0x00)")
-    broken = cells.map(_not_utf8, na_action="ignore").fillna(False).astype(bool) & ~nul
+    if is_arrow_text(cells):  # Arrow text is valid UTF-8 by construction
+        broken = pd.Series(False, index=cells.index)
+    else:
+        broken = cells.map(_not_utf8, na_action="ignore").fillna(False).astype(bool) & ~nul
     flag(broken, lambda _cell: "contains characters that cannot be stored (not valid Unicode text)")
     cells, blank = cells.mask(nul | broken), blank | nul | broken
 

@@ -7,6 +7,7 @@ a pump never installed follows UTC, canonical units and a decimal point.
 
 from dataclasses import dataclass
 
+import numpy as np
 import pandas as pd
 from sqlalchemy import func, select
 from sqlalchemy.orm import Session
@@ -14,7 +15,7 @@ from sqlalchemy.orm import Session
 from fleet import units
 from fleet.db.models import Installation, Machine, Position, Pump, Site
 from fleet.io.localtime import DEFAULT_ZONE, offset_text, to_local
-from fleet.io.parse import RowConventions
+from fleet.io.parse import RowConventions, is_arrow_text
 from fleet.timeutil import utcnow
 
 
@@ -79,7 +80,8 @@ def _cells(table: pd.DataFrame, name: str) -> pd.Series | None:
         try:
             if units.parse_header(str(header))[0] == name:
                 column = table[header]
-                return (column.iloc[:, 0] if isinstance(column, pd.DataFrame) else column).astype("string").str.strip()
+                column = column.iloc[:, 0] if isinstance(column, pd.DataFrame) else column
+                return (column if is_arrow_text(column) else column.astype("string")).str.strip()
         except units.UnitError:
             continue
     return None
@@ -111,6 +113,15 @@ def row_sites(session: Session, kind: str, table: pd.DataFrame) -> list[Site | N
 
 def row_conventions(session: Session, kind: str, table: pd.DataFrame) -> RowConventions:
     """Each row's site conventions (fleet.io.parse reads times and numbers by them)."""
+    pumps = _cells(table, "pump")
+    if pumps is not None and kind not in {"pumps", "installations"}:
+        # Readings come by the hundred thousand: look each pump up once and spread its site's ways over its rows.
+        codes, serials = pd.factorize(pumps)
+        by_serial = pump_sites(session, serials)
+        found = [of_site(by_serial.get(serial)) for serial in serials] + [UTC_CANONICAL]  # code -1: no serial
+        zones = np.array([c.time_zone for c in found], dtype=object)[codes]
+        comma = np.array([c.decimal_comma for c in found], dtype=bool)[codes]
+        return RowConventions(pd.Series(zones, dtype=object), pd.Series(comma, dtype=bool))
     found = [of_site(site) for site in row_sites(session, kind, table)]
     return RowConventions(pd.Series([c.time_zone for c in found], dtype=object),
                           pd.Series([c.decimal_comma for c in found], dtype=bool))

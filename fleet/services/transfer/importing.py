@@ -4,7 +4,6 @@
 one (row, column, reason) and writes nothing. It never commits: the caller owns the transaction.
 """
 
-import itertools
 from dataclasses import dataclass, field
 from datetime import datetime
 from pathlib import Path
@@ -35,9 +34,8 @@ from fleet.io.spreadsheet import SpreadsheetError
 from fleet.physics.cleanliness import code_from_counts
 from fleet.services.register import records as register
 from fleet.services.sitelocal import row_conventions
+from fleet.services.transfer.bulk import insert_frame
 from fleet.timeutil import utcnow
-
-SQLITE_DATETIME_FORMAT = "%Y-%m-%d %H:%M:%S.%f"  # how SQLAlchemy stores a DateTime in SQLite
 
 
 @dataclass
@@ -132,8 +130,10 @@ def _column(parsed: ParsedTable, name: str) -> pd.Series:
 def _pump_ids(session: Session, parsed: ParsedTable, problems: list[Problem]) -> pd.Series:
     """Map the 'pump' column to pump ids; unknown serials become problems."""
     serials = parsed.data["pump"]
-    known = dict(session.execute(select(Pump.serial, Pump.id).where(Pump.serial.in_(serials.dropna().unique()))).all())
-    ids = serials.map(known)
+    codes, unique = pd.factorize(serials)
+    known = dict(session.execute(select(Pump.serial, Pump.id).where(Pump.serial.in_(list(unique)))).all())
+    found = np.array([known.get(serial, np.nan) for serial in unique] + [np.nan], dtype=float)
+    ids = pd.Series(found[codes], index=serials.index)  # code -1 (a blank cell) takes the NaN at the end
     unknown = ids.isna() & serials.notna()  # a blank or refused cell is already a problem of its own
     for row, serial in zip(row_numbers(parsed.data.index[unknown]), serials[unknown], strict=True):
         problems.append(Problem(int(row), "pump", f"no pump '{serial}' in the register (import it with the pumps "
@@ -374,7 +374,7 @@ def _import_readings(ctx: _Context, parsed: ParsedTable, result: ImportResult) -
     })
     frame["created_at"] = pd.Timestamp(utcnow())
     result.doubts = _meter_doubts(ctx.session, frame)
-    _insert_frame(ctx.session, Reading, frame)
+    insert_frame(ctx.session, Reading, frame)
     result.created = len(frame)
     result.pump_ids.update(int(x) for x in frame["pump_id"].unique())
     return problems
@@ -390,60 +390,6 @@ def _meter_doubts(session: Session, frame: pd.DataFrame) -> list[dict]:
     rows = row_numbers(pd.Index([index for index, _ in found]))
     return [{"row": int(row), "field": "hours", "code": doubt.code, "message": doubt.message}
             for row, (_, doubt) in zip(rows, found, strict=True)]
-
-
-def _insert_frame(session: Session, model, frame: pd.DataFrame) -> None:
-    """Insert the rows of ``frame`` (columns named as the table's) in one executemany.
-
-    On SQLite the rows go straight to the driver as tuples, with times written in the text form SQLAlchemy
-    itself stores (so ORM reads and range queries see the same values): the per-row parameter processing of
-    an ORM bulk insert costs more than SQLite's own insert. Other databases take the plain Core insert.
-    """
-    if len(frame) == 0:
-        return
-    changes.note(session, model.__tablename__, "pump_id", {int(p) for p in frame["pump_id"].unique()})
-    connection = session.connection()
-    if connection.dialect.name != "sqlite":
-        session.execute(insert(model), _records(frame))
-        return
-    columns = []
-    for name in frame.columns:
-        series = frame[name]
-        if pd.api.types.is_datetime64_any_dtype(series) and series.nunique(dropna=False) == 1:
-            stamp = series.iloc[0]  # one moment for every row (created_at): format it once
-            columns.append(itertools.repeat(None if pd.isna(stamp) else stamp.strftime(SQLITE_DATETIME_FORMAT)))
-        elif pd.api.types.is_datetime64_any_dtype(series):
-            text = series.dt.strftime(SQLITE_DATETIME_FORMAT).astype(object)
-            columns.append(text.where(series.notna(), None).tolist())
-        elif pd.api.types.is_float_dtype(series):
-            columns.append(series.to_numpy(dtype=float).tolist())  # sqlite3 binds NaN as NULL
-        elif pd.api.types.is_integer_dtype(series):
-            columns.append(series.to_numpy(dtype=np.int64).tolist())
-        else:
-            values = series.astype(object)
-            columns.append(values.where(values.notna(), None).tolist())
-    names = ", ".join(frame.columns)
-    marks = ", ".join("?" * len(frame.columns))
-    cursor = connection.connection.cursor()
-    try:
-        cursor.executemany(f"INSERT INTO {model.__tablename__} ({names}) VALUES ({marks})",
-                           zip(*columns, strict=False))  # created_at repeats without end
-    finally:
-        cursor.close()
-
-
-def _records(frame: pd.DataFrame) -> list[dict]:
-    """Rows as plain dicts for an executemany insert: NaN/NaT -> None, numpy scalars -> Python."""
-    columns = {}
-    for name in frame.columns:
-        series = frame[name]
-        if pd.api.types.is_datetime64_any_dtype(series):
-            values = [None if pd.isna(v) else v.to_pydatetime() for v in series]
-        else:
-            values = [None if pd.isna(v) else (v.item() if isinstance(v, np.generic) else v)
-                      for v in series.astype(object)]
-        columns[name] = values
-    return [dict(zip(columns, row, strict=True)) for row in zip(*columns.values(), strict=True)]
 
 
 # --- flow tests --------------------------------------------------------------------------------------------
@@ -595,7 +541,7 @@ def _import_events(ctx: _Context, parsed: ParsedTable, result: ImportResult) -> 
         "note": _column(parsed, "note"),
     })
     frame["created_at"] = pd.Timestamp(utcnow())
-    _insert_frame(ctx.session, MaintenanceEvent, frame)
+    insert_frame(ctx.session, MaintenanceEvent, frame)
     result.created = len(frame)
     result.pump_ids.update(int(x) for x in frame["pump_id"].unique())
     return problems

@@ -1,0 +1,153 @@
+"""The readings import against its floor, alone: on SQLite (plain sqlite3 executemany) and, given a server, on
+PostgreSQL (a plain COPY of the same rows into the same table). Quicker than the whole benchmark when only the
+import changed; ``benchmarks.run`` measures SQLite's the same way.
+
+    python3 -m benchmarks.import_floors --size medium
+    python3 -m benchmarks.import_floors --size medium --database postgresql+psycopg://postgres@127.0.0.1:5432/bench
+
+The PostgreSQL database named is emptied and rebuilt through the migrations; a second database, ``<name>_floor``,
+is made from it as a template just before the readings are imported (the same schema, pumps and indexes) and
+dropped at the end.
+"""
+
+import argparse
+import json
+import os
+import shutil
+import tempfile
+import time
+from pathlib import Path
+
+from benchmarks.synthetic import SIZES, FleetFiles, write_fleet
+
+READING_COLUMNS = ("pump_id", "taken_at", "hours", "pressure_bar", "speed_rpm", "flow_lpm", "drain_lpm", "temp_c",
+                   "stroke", "taken_by", "note", "source", "created_at")
+
+
+def _register(url: str, files: FleetFiles):
+    """A database at the schema's head holding the fleet's sites and pumps; its engine and sessions."""
+    from fleet.db import migrate
+    from fleet.db.engine import make_engine, make_session_factory
+    from fleet.services.register.records import ensure_limit_defaults
+    from fleet.services.transfer.importing import import_file
+
+    engine = make_engine(url)
+    migrate.upgrade(engine)
+    sessions = make_session_factory(engine)
+    with sessions.begin() as session:
+        ensure_limit_defaults(session)
+    for kind, path in (("sites", files.sites), ("pumps", files.pumps)):
+        with sessions.begin() as session:
+            import_file(session, kind, path)
+    return engine, sessions
+
+
+def _import_readings(sessions, files: FleetFiles) -> float:
+    """Seconds the readings take through the code path of `fleet import readings FILE --no-analysis`."""
+    from fleet.services.transfer.importing import import_file
+
+    started = time.perf_counter()
+    created = 0
+    for path in files.readings:
+        with sessions.begin() as session:
+            created += import_file(session, "readings", path).created
+    seconds = time.perf_counter() - started
+    assert created == files.n_readings, (created, files.n_readings)
+    return seconds
+
+
+def _figures(name: str, seconds: float, floor_s: float, rows: int) -> dict:
+    return {f"{name}_s": seconds, f"{name}_floor_s": floor_s, f"{name}_ratio": seconds / floor_s,
+            f"{name}_rows_per_s": rows / seconds}
+
+
+def sqlite_import(work: Path, files: FleetFiles) -> dict:
+    """The import on a SQLite file against sqlite3 executemany into a copy taken just before it."""
+    from benchmarks.run import _checkpoint, _floor_insert
+
+    path, floor = work / "import.sqlite", work / "import_floor.sqlite"
+    engine, sessions = _register(f"sqlite:///{path}", files)
+    engine.dispose()
+    _checkpoint(path)
+    shutil.copyfile(path, floor)
+    seconds = _import_readings(sessions, files)
+    engine.dispose()
+    _checkpoint(path)
+    floor_s = _floor_insert(path, floor)
+    for leftover in (path, floor):
+        for suffix in ("", "-wal", "-shm"):
+            Path(f"{leftover}{suffix}").unlink(missing_ok=True)
+    return _figures("import", seconds, floor_s, files.n_readings)
+
+
+def _server(url: str):
+    """A psycopg connection to the server's maintenance database (CREATE and DROP DATABASE), autocommit."""
+    import psycopg
+    from sqlalchemy.engine import make_url
+
+    parts = make_url(url)
+    return psycopg.connect(host=parts.host, port=parts.port, user=parts.username, password=parts.password,
+                           dbname="postgres", autocommit=True), parts
+
+
+def postgres_import(url: str, files: FleetFiles) -> dict:
+    """The import on PostgreSQL (through COPY) against a plain COPY of the stored rows into a copy of the database
+    taken just before the import, each in one transaction."""
+    import psycopg
+
+    from fleet.db import migrate
+    from fleet.db.engine import make_engine
+
+    admin, parts = _server(url)
+    floor_name = f"{parts.database}_floor"
+    engine = make_engine(url)
+    migrate.downgrade_to_empty(engine)
+    with engine.begin() as connection:
+        connection.exec_driver_sql("DROP TABLE IF EXISTS alembic_version")
+    engine.dispose()
+    engine, sessions = _register(url, files)
+    engine.dispose()
+    admin.execute(f'DROP DATABASE IF EXISTS "{floor_name}"')
+    admin.execute(f'CREATE DATABASE "{floor_name}" TEMPLATE "{parts.database}"')
+    try:
+        seconds = _import_readings(sessions, files)
+        engine.dispose()
+        columns = ", ".join(READING_COLUMNS)
+        plain = dict(host=parts.host, port=parts.port, user=parts.username, password=parts.password)
+        with psycopg.connect(dbname=parts.database, **plain) as source:
+            rows = source.execute(f"SELECT {columns} FROM reading ORDER BY id").fetchall()
+        with psycopg.connect(dbname=floor_name, **plain) as floor:
+            started = time.perf_counter()
+            with floor.cursor() as cursor, cursor.copy(f"COPY reading ({columns}) FROM STDIN") as copy:
+                for row in rows:
+                    copy.write_row(row)
+            floor.commit()
+            floor_s = time.perf_counter() - started
+    finally:
+        admin.execute(f'DROP DATABASE IF EXISTS "{floor_name}"')
+        admin.close()
+    return _figures("pg_import", seconds, floor_s, files.n_readings)
+
+
+def main(argv: list[str] | None = None) -> dict:
+    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser.add_argument("--size", choices=sorted(SIZES), default="small")
+    parser.add_argument("--database", help="a PostgreSQL URL to measure on as well (the database is emptied)")
+    parser.add_argument("--out", type=Path, help="write the figures as JSON here")
+    args = parser.parse_args(argv)
+    figures: dict = {"size": args.size, "load_average": os.getloadavg()}
+    with tempfile.TemporaryDirectory(prefix="fleet-import-") as folder:
+        files = write_fleet(Path(folder) / "csv", SIZES[args.size])
+        figures["readings"] = files.n_readings
+        figures.update(sqlite_import(Path(folder), files))
+        if args.database:
+            figures.update(postgres_import(args.database, files))
+    figures["load_average_after"] = os.getloadavg()
+    if args.out:
+        args.out.write_text(json.dumps(figures, indent=2) + "\n")
+    print(json.dumps(figures, indent=2))
+    return figures
+
+
+if __name__ == "__main__":
+    main()

@@ -1,0 +1,162 @@
+"""The fast import path agrees with the plain one: pyarrow's CSV reader with pandas' reader, Arrow's number cast
+with Python's float(), numpy's time text with datetime.strftime, the column-wide meter check with the one rule,
+and COPY/executemany with what an ORM read sees."""
+
+import json
+import math
+import os
+import subprocess
+import sys
+from datetime import datetime, timedelta
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+import pyarrow as pa
+import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
+from sqlalchemy import select
+
+from fleet.db.models import Reading
+from fleet.io.files import read_csv
+from fleet.io.meter import meter_doubt, meter_doubts
+from fleet.io.parse import is_arrow_text, parse_table
+from fleet.services.transfer.bulk import time_texts
+from fleet.services.transfer.importing import import_file, import_table
+from tests.conftest import DATA
+
+
+def _pandas_cells(data: bytes) -> pd.DataFrame:
+    """The cells as the plain reader gives them (pandas' C parser, every cell text)."""
+    import io
+
+    from fleet.io.formulas import unguard_table
+
+    return unguard_table(pd.read_csv(io.BytesIO(data), dtype=str, keep_default_na=False, skipinitialspace=True,
+                                      encoding="utf-8-sig"))
+
+
+FILES = {
+    "plain": b"pump,taken_at,hours\nA-1,2024-01-01 08:00,10\nA-2,2024-01-02,11.5\n",
+    "crlf and bom": b"\xef\xbb\xbfpump,hours\r\nA-1,10\r\nA-2,\r\n",
+    "quoted comma and newline": b'pump,note\nA-1,"worn, noisy"\nA-2,"two\nlines"\n',
+    "NA and null words stay text": b"pump,note\nNA,null\nN/A,nan\n",
+    "formula guard": b"pump,note\nA-1,'=1+1\nA-2,''=x\nA-3,'plain\n",
+    "blank lines": b"pump,hours\n\nA-1,1\n\nA-2,2\n",
+    "blank before a quote": b'pump, note\nA-1, "x, y"\n',
+    "header only": b"pump,hours\n",
+}
+
+
+@pytest.mark.parametrize("name", sorted(FILES))
+def test_the_arrow_reader_gives_the_cells_pandas_gives(name):
+    # Reference: pandas' own CSV reader with the options fleet used before (the cells every other test expects).
+    data = FILES[name]
+    fast, plain = read_csv(data), _pandas_cells(data)
+    assert list(fast.columns) == list(plain.columns)
+    assert fast.astype(object).values.tolist() == plain.astype(object).values.tolist()
+
+
+def test_a_plain_file_is_read_as_arrow_text_and_a_ragged_one_by_pandas():
+    assert is_arrow_text(read_csv(FILES["plain"])["pump"])
+    for ragged in (b"pump,hours\nA-1,1,2\n", b"pump,hours,note\nA-1,1\n"):  # pyarrow refuses; pandas decides
+        fast, plain = read_csv(ragged), _pandas_cells(ragged)
+        assert not is_arrow_text(fast["pump"]) and fast.equals(plain)
+
+
+numbers = st.one_of(
+    st.floats(allow_nan=False, allow_infinity=False).map(repr),
+    st.from_regex(r"\A[+-]?\d{0,25}\.?\d{0,25}(?:[eE][+-]?\d{1,4})?\Z"),
+    st.sampled_from(["inf", "-Infinity", "nan", "1e999", "9" * 400, "1_000", "0x10", "١٢", " 7 ", "", "12,5"]),
+)
+
+
+@settings(max_examples=300, deadline=None)
+@given(st.lists(numbers, min_size=1, max_size=20))
+def test_numbers_parse_alike_from_arrow_text_and_python_text(cells):
+    # Reference: Python's float(), which rounds a decimal to the nearest double (IEEE 754); the Python-string path
+    # reads every cell with it, the Arrow path casts plain decimals in Arrow and leaves the rest to float().
+    python = pd.DataFrame({"value": pd.Series(cells, dtype=object)})
+    arrow = pd.DataFrame({"value": pd.Series(cells, dtype=pd.ArrowDtype(pa.string()))})
+    for kind in ("readings",):
+        a, a_problems = parse_table(kind, python.rename(columns={"value": "hours"}))
+        b, b_problems = parse_table(kind, arrow.rename(columns={"value": "hours"}))
+        assert [str(p) for p in a_problems] == [str(p) for p in b_problems]
+        left, right = a.data["hours"].to_numpy(), b.data["hours"].to_numpy()
+        assert np.array_equal(left, right, equal_nan=True)
+    for cell, value in zip(cells, right, strict=True):  # and each plain decimal is float()'s double exactly
+        text = cell.strip()
+        if text and text.lstrip("+-").replace(".", "", 1).isdigit() and abs(float(text)) <= 1e12:
+            assert value == float(text)
+
+
+@settings(max_examples=100, deadline=None)
+@given(st.lists(st.datetimes(min_value=datetime(1970, 1, 1), max_value=datetime(2100, 12, 31, 23, 59, 59)),
+                min_size=1, max_size=50))
+def test_time_text_is_what_strftime_writes(moments):
+    # Reference: datetime.strftime with the format SQLAlchemy stores in SQLite ('%Y-%m-%d %H:%M:%S.%f').
+    values = np.array(moments, dtype="datetime64[us]")
+    assert time_texts(values) == [m.strftime("%Y-%m-%d %H:%M:%S.%f") for m in moments]
+    assert time_texts(np.array(["NaT"], dtype="datetime64[us]")) == [None]
+
+
+@settings(max_examples=100, deadline=None)
+@given(st.lists(st.tuples(st.integers(1, 3), st.integers(0, 400), st.floats(0, 500, allow_nan=False)),
+                min_size=1, max_size=40, unique_by=lambda r: (r[0], r[1])))
+def test_the_column_wide_meter_check_finds_what_the_one_rule_finds(rows):
+    # Reference: meter_doubt (fleet.io.meter) asked of every reading against the one before it, one by one.
+    start = datetime(2025, 1, 1)
+    frame = pd.DataFrame({"pump_id": [r[0] for r in rows],
+                          "taken_at": [start + timedelta(hours=r[1]) for r in rows],
+                          "hours": [round(r[2], 1) for r in rows]})
+    # Some readings sit on an allowance's edge (clock hours x 1.02 + 1 h), where rounding could tip either way.
+    edge = frame["taken_at"].sub(start).dt.total_seconds().div(3600).mul(1.02).add(1)
+    frame.loc[frame.index[::3], "hours"] = edge[::3]
+    found = {index: doubt for index, doubt in meter_doubts(frame, frame.iloc[0:0])}
+    ordered = frame.sort_values(["pump_id", "taken_at"], kind="stable")
+    expected = {}
+    for _pump, group in ordered.groupby("pump_id"):
+        previous = None
+        for index, row in group.iterrows():
+            if previous is not None:
+                doubt = meter_doubt(previous["taken_at"].to_pydatetime(), float(previous["hours"]),
+                                    row["taken_at"].to_pydatetime(), float(row["hours"]))
+                if doubt:
+                    expected[index] = doubt
+            previous = row
+    assert found == expected
+
+
+def test_bulk_insert_stores_what_the_orm_reads_back(db):
+    # Reference: the values themselves, read back through the ORM (SQLite executemany, or COPY on PostgreSQL).
+    with db.sessions.begin() as session:
+        import_file(session, "pumps", DATA / "pumps_small.csv")
+    table = pd.DataFrame({"pump": ["T-101", "T-101"], "taken_at": ["2024-03-01 08:00:00.123456", "2024-03-02 08:00"],
+                          "hours": ["1000", "1010"], "outlet_pressure": ["230", "231"], "speed": ["1490", "1490"],
+                          "outlet_flow": ["63.1", ""], "oil_temp": ["48", "49"], "note": ["tab\there", ""],
+                          "taken_by": ["back\\slash", ""]})
+    with db.sessions.begin() as session:
+        import_table(session, "readings", table.astype(pd.ArrowDtype(pa.string())))
+    with db.sessions() as session:
+        rows = session.execute(select(Reading.taken_at, Reading.flow_lpm, Reading.note, Reading.taken_by,
+                                      Reading.source).order_by(Reading.taken_at)).all()
+    assert rows[0] == (datetime(2024, 3, 1, 8, 0, 0, 123456), 63.1, "tab\there", "back\\slash", "import")
+    assert rows[1][1] is None and rows[1][2] is None and not math.isnan(rows[0][1])
+
+
+@pytest.mark.slow
+def test_the_import_floor_benchmark_runs_at_its_small_size(tmp_path):
+    # A smoke test: the figures are reported (on PostgreSQL too when a server is given), never timed here.
+    out = tmp_path / "import.json"
+    command = [sys.executable, "-m", "benchmarks.import_floors", "--size", "small", "--out", str(out)]
+    server = os.environ.get("FLEET_TEST_DATABASE_URL")
+    if server:
+        command += ["--database", server]
+    done = subprocess.run(command, cwd=Path(__file__).resolve().parents[1], capture_output=True, text=True,
+                          timeout=300)
+    assert done.returncode == 0, done.stderr
+    figures = json.loads(out.read_text())
+    assert figures["readings"] == 40 * 60
+    for name in ("import_s", "import_floor_s", "import_ratio") + (("pg_import_ratio",) if server else ()):
+        assert math.isfinite(figures[name]) and figures[name] > 0, name
