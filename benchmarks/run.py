@@ -127,6 +127,11 @@ def _plain_connection(url: str):
 def child_load_floor(url: str) -> dict:
     """The floor of the analysis: the reading columns it reads, from the database into numpy arrays (on PostgreSQL
     through a server-side cursor, so the rows come in batches as from SQLite)."""
+    import sqlalchemy.engine  # noqa: F401  (the modules _plain_connection uses load before the clock starts)
+
+    if not url.startswith("sqlite"):
+        import psycopg  # noqa: F401
+
     start_mb = _peak_mb()
     started = time.perf_counter()
     connection = _plain_connection(url)
