@@ -16,6 +16,7 @@ from fleet.services.analysis import analyse_results, analysis_records, reanalyse
 from fleet.services.analysis import compute as compute_module
 from fleet.services.analysis.compute import compute
 from fleet.services.analysis.parallel import WORKERS_ENV, shareable, worker_count
+from fleet.trend.settings import AnalysisSettings
 from tests.test_one_pump_path import _plain, _same
 
 NOW = dt.datetime(2026, 12, 1, 12)
@@ -86,3 +87,11 @@ def test_the_number_of_workers_is_checked(demo_db, monkeypatch):
     assert worker_count() >= 1
     with pytest.raises(ValueError, match="1 or more"):
         worker_count(0)
+
+
+def test_a_part_failing_in_a_worker_fails_the_run_and_nothing_is_returned(tmp_path):
+    from fleet.services.analysis.parallel import parts_in_workers
+
+    missing = f"sqlite:///{tmp_path / 'no such folder' / 'fleet.sqlite'}"
+    with pytest.raises(Exception, match="unable to open database file"):
+        parts_in_workers(missing, [[1, 2], [3, 4], [5]], NOW, AnalysisSettings(), 2)
