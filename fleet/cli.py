@@ -166,10 +166,13 @@ def export(db: Database, kind: str, file: str, unit_mode: str, site: str | None)
 @click.option("--json", "as_json", is_flag=True, help="print a JSON array, one object per pump")
 @click.option("--pump", "pumps", multiple=True, help="only these pumps (repeatable); default the whole fleet")
 @click.option("--stored", is_flag=True, help="print the stored results without recomputing")
+@click.option("--workers", type=click.IntRange(min=1), envvar="FLEET_ANALYSIS_WORKERS", show_envvar=True,
+              help="processes analysing the fleet's parts at once (default: one per CPU core; 1: in this process)")
 @click.pass_obj
-def analyze(db: Database, as_json: bool, pumps: tuple[str, ...], stored: bool) -> None:
+def analyze(db: Database, as_json: bool, pumps: tuple[str, ...], stored: bool, workers: int | None) -> None:
     """Analyse the fleet (or some pumps), store the results and print them, most urgent first."""
     from fleet.services.analysis import analysis_records, bring_up_to_date, pump_ids_for, reanalyse
+    from fleet.services.analysis.parallel import worker_count
     from fleet.textreport import service_table
 
     db.require_current()
@@ -178,7 +181,8 @@ def analyze(db: Database, as_json: bool, pumps: tuple[str, ...], stored: bool) -
     if stored:
         bring_up_to_date(db.sessions)  # what a write left stale is brought up to date, never shown stale
     else:
-        reanalyse(db.sessions, pump_ids=ids, progress=None if as_json else _progress_bar())
+        reanalyse(db.sessions, pump_ids=ids, progress=None if as_json else _progress_bar(),
+                  workers=worker_count(workers))
     with db.sessions() as session:
         records = analysis_records(session, pump_ids=ids)
     if as_json:

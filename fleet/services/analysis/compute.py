@@ -1,7 +1,7 @@
 """Run the trend engine on stored data: read only, nothing stored here (fleet.services.analysis.store does that)."""
 
 from collections.abc import Callable
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from datetime import datetime
 
 import pandas as pd
@@ -32,6 +32,7 @@ class Computed:
     versions: dict[int, int]
     computed_at: datetime
     full: bool
+    worker_peaks_mb: dict[int, float] = field(default_factory=dict)  # worker process id -> its peak memory
 
 
 def data_versions(session: Session, pump_ids=None) -> dict[int, int]:
@@ -65,15 +66,34 @@ def analyse(session: Session, pump_ids=None, now: datetime | None = None,
                          now=now, settings=settings, priors=priors)
 
 
+@dataclass
+class Part:
+    """One part of a full analysis: its pumps' results, service intervals and interval trends."""
+
+    results: pd.DataFrame
+    intervals: pd.DataFrame
+    trends: pd.DataFrame
+
+
+def analyse_part(session: Session, pump_ids, now: datetime, settings: AnalysisSettings) -> Part:
+    """The engine on one part of the fleet (the same whether run here or in a worker process)."""
+    part = analyse(session, pump_ids, now, settings)
+    return Part(part.results, part.intervals, interval_trends(part.fits, part.intervals, settings.confidence))
+
+
 def analyse_results(session: Session, pump_ids=None, now: datetime | None = None,
-                    settings: AnalysisSettings | None = None,
-                    chunk_pumps: int = CHUNK_PUMPS) -> tuple[pd.DataFrame, pd.DataFrame, pd.DataFrame]:
+                    settings: AnalysisSettings | None = None, chunk_pumps: int | None = None,
+                    workers: int = 1, url: str | None = None, worker_peaks_mb: dict[int, float] | None = None,
+                    ) -> tuple[pd.DataFrame, pd.DataFrame, pd.DataFrame]:
     """(results, service lives, interval trends) of ``pump_ids`` (None: the fleet).
 
-    The fleet is analysed ``chunk_pumps`` pumps at a time, so memory stays bounded by one part. A pump's
-    figures depend only on its own data and the fleet priors; those are fitted once from every part's service
-    intervals and then given to every pump (fleet.trend.engine.apply_priors), so the results are the same as
-    one pass over the whole fleet.
+    The fleet is analysed ``chunk_pumps`` (default CHUNK_PUMPS) pumps at a time, so memory stays bounded by one
+    part. A pump's figures depend only on its own data and the fleet priors; those are fitted once from every
+    part's service intervals and then given to every pump (fleet.trend.engine.apply_priors), so the results are the
+    same as one pass over the whole fleet. With ``workers`` > 1 and the database's ``url``, the parts run in that many
+    worker processes (fleet.services.analysis.parallel), each reading committed data in its own transaction:
+    only for a caller whose session holds no writes of its own; each worker's peak resident memory is noted in
+    ``worker_peaks_mb`` when given (the benchmark counts it).
     """
     now = now or utcnow()
     settings = settings or AnalysisSettings()
@@ -84,27 +104,40 @@ def analyse_results(session: Session, pump_ids=None, now: datetime | None = None
                              now=now, settings=settings)
         return part.results, interval_lives(part.intervals), interval_trends(part.fits, part.intervals,
                                                                              settings.confidence)
-    parts, intervals, kinds, trends = [], [], [], []
-    for first in range(0, len(ids), chunk_pumps):
-        part = analyse(session, ids[first:first + chunk_pumps], now, settings)
-        parts.append(part.results)
-        intervals.append(part.intervals)
-        trends.append(interval_trends(part.fits, part.intervals, settings.confidence))
-        kinds.append(part.results["kind"])
-    results = pd.concat(parts) if len(parts) > 1 else parts[0]
-    all_intervals = pd.concat(intervals, ignore_index=True)
+    chunk_pumps = chunk_pumps or CHUNK_PUMPS
+    id_parts = [ids[first:first + chunk_pumps] for first in range(0, len(ids), chunk_pumps)]
+    if workers > 1 and len(id_parts) > 1 and url is not None:
+        from fleet.services.analysis.parallel import parts_in_workers
+
+        parts = parts_in_workers(url, id_parts, now, settings, workers, worker_peaks_mb)
+    else:
+        parts = [analyse_part(session, part_ids, now, settings) for part_ids in id_parts]
+    results = pd.concat([p.results for p in parts]) if len(parts) > 1 else parts[0].results
+    all_intervals = pd.concat([p.intervals for p in parts], ignore_index=True)
     if pump_ids is None:
         if len(parts) > 1:  # each part ranked its own pumps: rank the fleet
             results["rank"] = service_rank(results).to_numpy()
-        apply_priors(results, fit_priors(all_intervals, pd.concat(kinds), settings), now)
-    return results, interval_lives(all_intervals), pd.concat(trends, ignore_index=True)
+        apply_priors(results, fit_priors(all_intervals, results["kind"], settings), now)
+    return results, interval_lives(all_intervals), pd.concat([p.trends for p in parts], ignore_index=True)
 
 
 def compute(session: Session, pump_ids=None, now: datetime | None = None,
-            settings: AnalysisSettings | None = None) -> Computed:
-    """Analyse ``pump_ids`` (None: the whole fleet) from what ``session`` sees; nothing is written."""
+            settings: AnalysisSettings | None = None, workers: int = 1) -> Computed:
+    """Analyse ``pump_ids`` (None: the whole fleet) from what ``session`` sees; nothing is written.
+
+    ``workers`` > 1 runs the parts in worker processes that read committed data (analyse_results): only for a
+    session that has written nothing itself.
+    """
     computed_at = now or utcnow()
     versions = data_versions(session, pump_ids)  # first: the data read next is at least this new
     ids = None if pump_ids is None else sorted(set(versions))
-    results, lives, trends = analyse_results(session, ids, computed_at, settings)
-    return Computed(results, lives, trends, versions, computed_at, full=pump_ids is None)
+    url = None
+    if workers > 1:
+        from fleet.services.analysis.parallel import shareable
+
+        url = session.get_bind().url.render_as_string(hide_password=False)
+        url = url if shareable(url) else None  # a private in-memory database: the parts run here
+    peaks: dict[int, float] = {}
+    results, lives, trends = analyse_results(session, ids, computed_at, settings, workers=workers, url=url,
+                                             worker_peaks_mb=peaks)
+    return Computed(results, lives, trends, versions, computed_at, full=pump_ids is None, worker_peaks_mb=peaks)

@@ -52,11 +52,14 @@ def refresh_analysis(session: Session, pump_ids=None, now: datetime | None = Non
 
 
 def reanalyse(sessions: sessionmaker[Session], pump_ids=None, now: datetime | None = None,
-              settings: AnalysisSettings | None = None, progress: Progress | None = None) -> RefreshSummary:
+              settings: AnalysisSettings | None = None, progress: Progress | None = None,
+              workers: int = 1) -> RefreshSummary:
     """Analyse ``pump_ids`` (None: the fleet) afresh, computing outside the write lock, then bring up to date
-    anything written meanwhile."""
+    anything written meanwhile. ``workers`` > 1 runs a full analysis's parts in that many processes
+    (fleet.services.analysis.parallel): the read transaction here has written nothing, so they see what it sees
+    or newer, and the data versions read first keep anything newer stale."""
     with sessions() as session, session.begin():
-        computed = compute(session, pump_ids, now, settings)
+        computed = compute(session, pump_ids, now, settings, workers=workers)
     if progress:
         progress(0, len(computed.results), "storing analysis")
     summary = run_write(sessions, lambda session: store(session, computed, settings), exclusive=STORE_LOCK)

@@ -1,0 +1,97 @@
+"""A full analysis run in worker processes gives the figures of the same run in one process.
+
+The reference is the project's own in-process run (the figures themselves are checked against outside sources in
+the tests of fleet/trend). The demo plant's 41 pumps are cut into parts of 7 here so that several parts really go
+to the workers; SQLite, or PostgreSQL when FLEET_TEST_DATABASE_URL is set (each worker opens its own engine).
+"""
+
+import datetime as dt
+
+import pandas as pd
+import pytest
+from click.testing import CliRunner
+
+from fleet.cli import main
+from fleet.services.analysis import analyse_results, analysis_records, reanalyse
+from fleet.services.analysis import compute as compute_module
+from fleet.services.analysis.compute import compute
+from fleet.services.analysis.parallel import WORKERS_ENV, shareable, worker_count
+from fleet.trend.settings import AnalysisSettings
+from tests.test_one_pump_path import _plain, _same
+
+NOW = dt.datetime(2026, 12, 1, 12)
+PART = 7  # 41 demo pumps: six parts, the last one short
+
+
+def _same_frame(expected: pd.DataFrame, got: pd.DataFrame, what: str) -> None:
+    assert list(got.columns) == list(expected.columns), what
+    assert list(got.index) == list(expected.index), what
+    for column in expected.columns:
+        _same(expected[column], got[column], f"{what} {column}")
+
+
+def test_parts_in_two_workers_give_the_figures_of_one_process(demo_db):
+    with demo_db.sessions() as session:
+        one_pass = analyse_results(session, None, NOW)  # the whole demo in one part
+        serial = analyse_results(session, None, NOW, chunk_pumps=PART)
+        peaks: dict[int, float] = {}
+        pooled = analyse_results(session, None, NOW, chunk_pumps=PART, workers=2, url=demo_db.url,
+                                 worker_peaks_mb=peaks)
+    assert len(one_pass[0]) == 41
+    for name, expected, got in zip(("results", "lives", "trends"), serial, pooled, strict=True):
+        assert len(expected) > 0, name
+        _same_frame(expected, got, f"workers {name}")
+    for name, expected, got in zip(("results", "lives", "trends"), one_pass, serial, strict=True):
+        _same_frame(expected, got, f"parts {name}")
+    # The work really ran in other processes, at most two, and each said how much memory it took.
+    assert 1 <= len(peaks) <= 2 and all(peak > 0 for peak in peaks.values())
+
+
+def test_compute_of_a_private_in_memory_database_stays_in_process():
+    assert not shareable("sqlite://")
+    assert not shareable("sqlite:///:memory:")
+    assert not shareable("sqlite:///file:x?mode=memory&uri=true")
+    assert shareable("sqlite:////tmp/fleet.sqlite")
+    assert shareable("postgresql+psycopg://u@127.0.0.1:5432/fleet")
+
+
+def test_fleet_analyze_with_workers_stores_what_one_process_stores(demo_db, monkeypatch):
+    monkeypatch.setenv("FLEET_DATABASE_URL", demo_db.url)
+    monkeypatch.setattr(compute_module, "CHUNK_PUMPS", PART)
+    monkeypatch.setattr(compute_module, "utcnow", lambda: NOW)  # both runs analyse as of the same moment
+    reanalyse(demo_db.sessions, now=NOW, workers=1)
+    with demo_db.sessions() as session:
+        serial = analysis_records(session)
+    done = CliRunner().invoke(main, ["analyze", "--json", "--workers", "2"])
+    assert done.exit_code == 0, done.output
+    with demo_db.sessions() as session:
+        pooled = analysis_records(session)
+        computed = compute(session, None, workers=2)  # the same path, to see the workers did run
+    assert len(computed.worker_peaks_mb) >= 1
+    assert len(pooled) == len(serial) == 41
+    assert [_plain(record) for record in pooled] == [_plain(record) for record in serial]
+
+
+def test_the_number_of_workers_is_checked(demo_db, monkeypatch):
+    monkeypatch.setenv("FLEET_DATABASE_URL", demo_db.url)
+    done = CliRunner().invoke(main, ["analyze", "--workers", "0"])
+    assert done.exit_code == 2 and "--workers" in done.output and "0" in done.output
+    monkeypatch.setenv(WORKERS_ENV, "two")
+    done = CliRunner().invoke(main, ["analyze"])
+    assert done.exit_code == 2 and WORKERS_ENV in done.output
+    with pytest.raises(ValueError, match=f"{WORKERS_ENV}='two'"):
+        worker_count()
+    monkeypatch.setenv(WORKERS_ENV, "3")
+    assert worker_count() == 3 and worker_count(1) == 1
+    monkeypatch.delenv(WORKERS_ENV)
+    assert worker_count() >= 1
+    with pytest.raises(ValueError, match="1 or more"):
+        worker_count(0)
+
+
+def test_a_part_failing_in_a_worker_fails_the_run_and_nothing_is_returned(tmp_path):
+    from fleet.services.analysis.parallel import parts_in_workers
+
+    missing = f"sqlite:///{tmp_path / 'no such folder' / 'fleet.sqlite'}"
+    with pytest.raises(Exception, match="unable to open database file"):
+        parts_in_workers(missing, [[1, 2], [3, 4], [5]], NOW, AnalysisSettings(), 2)
