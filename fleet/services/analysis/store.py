@@ -12,7 +12,7 @@ from datetime import datetime
 
 import numpy as np
 import pandas as pd
-from sqlalchemy import delete, insert, select, update
+from sqlalchemy import delete, func, insert, select, update
 from sqlalchemy.orm import Session
 
 from fleet.db.models import AnalysisResult, FleetPrior, IntervalTrend, Pump, ServiceLife, StatusChange
@@ -22,7 +22,7 @@ from fleet.services.analysis.snapshots import keep_forecasts
 from fleet.services.mail.outbox import queue_alerts
 from fleet.trend.engine import apply_priors, results_to_records
 from fleet.trend.settings import AnalysisSettings
-from fleet.trend.status import service_rank
+from fleet.trend.status import service_order_keys, service_rank
 from fleet.trend.weibull import fit_fleet_priors
 
 # The fields of the JSON contract (`fleet analyze --json`), each stored in its own column.
@@ -37,6 +37,8 @@ COLUMNS = CONTRACT_FIELDS[1:]  # 'pump' is the serial, kept on the pump row
 # moves never add up unseen.
 PRIOR_TOLERANCE = 1e-6
 _IN_CHUNK = 5000  # ids per IN (...) list
+# Up to this many stored pumps are placed in the order one by one (place_in_order); more are re-ranked whole.
+PLACED_ONE_BY_ONE = 50
 
 
 @dataclass
@@ -62,12 +64,14 @@ def store(session: Session, computed: Computed, settings: AnalysisSettings | Non
     settings = settings or AnalysisSettings()
     results = computed.results
     ids = [int(p) for p in results.index]
-    stored, kinds_before = {}, set()
+    stored, kinds_before, placed = {}, set(), {}
     for part in _chunks(ids):
-        for pump_id, version, kind in session.execute(
-                select(AnalysisResult.pump_id, AnalysisResult.data_version, AnalysisResult.detail["kind"].as_string())
+        for pump_id, version, kind, rank, key in session.execute(
+                select(AnalysisResult.pump_id, AnalysisResult.data_version, AnalysisResult.detail["kind"].as_string(),
+                       AnalysisResult.rank, AnalysisResult.order_key)
                 .where(AnalysisResult.pump_id.in_(part))):
             stored[pump_id], _ = version, kinds_before.add(kind)
+            placed[pump_id] = (rank, key)
     existing = {p for part in _chunks(ids) for p in session.scalars(select(Pump.id).where(Pump.id.in_(part)))}
     keep = [p for p in ids if p in existing and computed.versions.get(p, 0) >= stored.get(p, -1)]
     kept = results.loc[keep]
@@ -78,7 +82,7 @@ def store(session: Session, computed: Computed, settings: AnalysisSettings | Non
         session.execute(delete(AnalysisResult).where(AnalysisResult.pump_id.in_(part)))
         session.execute(delete(ServiceLife).where(ServiceLife.pump_id.in_(part)))
         session.execute(delete(IntervalTrend).where(IntervalTrend.pump_id.in_(part)))
-    _insert_results(session, records, computed)
+    _insert_results(session, records, computed, placed)
     _insert_trends(session, computed.trends[computed.trends["pump_id"].isin(keep)], computed.computed_at)
     keep_forecasts(session, records, computed.computed_at)
     lives = computed.lives[computed.lives["pump_id"].isin(keep)]
@@ -92,18 +96,23 @@ def store(session: Session, computed: Computed, settings: AnalysisSettings | Non
     if computed.full:
         kinds |= set(session.scalars(select(FleetPrior.kind)))
     refit_kinds(session, kinds, computed.computed_at, settings)
-    rerank(session)
+    if computed.full or len(records) > PLACED_ONE_BY_ONE or not place_in_order(session, records):
+        rerank(session)
     by_status = kept["status"].value_counts().to_dict()
     return RefreshSummary(len(records), {str(k): int(v) for k, v in by_status.items()}, computed.full,
                           computed.computed_at, alerts)
 
 
-def _insert_results(session: Session, records: list[dict], computed: Computed) -> None:
+def _insert_results(session: Session, records: list[dict], computed: Computed,
+                    placed: dict[int, tuple[int, bytes | None]]) -> None:
+    """Insert the records; each keeps its pump's former place in the order (rank and key) until placed anew
+    (a pump new to the list: rank 0, no key)."""
     rows = []
     for record in records:
         detail = {k: v for k, v in record.items() if k not in COLUMNS and k not in ("pump_id", "rank")}
+        rank, key = placed.get(record["pump_id"], (0, None))
         rows.append({
-            "pump_id": record["pump_id"], "computed_at": computed.computed_at, "rank": record.get("rank") or 0,
+            "pump_id": record["pump_id"], "computed_at": computed.computed_at, "rank": rank, "order_key": key,
             "detail": json_ready(detail), "data_version": computed.versions.get(record["pump_id"], 0),
             "past_margin": record.get("past_margin"), "limit_date_low": record.get("limit_date_low"),
             **{k: record.get(k) for k in COLUMNS},
@@ -220,25 +229,62 @@ def _rewrite_prior_figures(session: Session, changed: pd.DataFrame) -> None:
 
 
 def rerank(session: Session) -> None:
-    """Order the whole stored service list again (a partial refresh moves some pumps).
+    """Order the whole stored service list again, and key every row (fleet.trend.status.service_order_keys).
 
     Reads only the figures the order uses (status, hours to limit, margin past the limit, lower-bound date, all
-    plain columns, and the pump's serial) and writes only the ranks that moved.
+    plain columns, and the pump's serial) and writes only the ranks and keys that moved.
     """
     rows = session.execute(select(
-        AnalysisResult.pump_id, AnalysisResult.rank, AnalysisResult.status, AnalysisResult.hours_to_limit,
-        AnalysisResult.past_margin, AnalysisResult.limit_date_low, Pump.serial,
+        AnalysisResult.pump_id, AnalysisResult.rank, AnalysisResult.order_key, AnalysisResult.status,
+        AnalysisResult.hours_to_limit, AnalysisResult.past_margin, AnalysisResult.limit_date_low, Pump.serial,
     ).join(Pump, Pump.id == AnalysisResult.pump_id)).all()
     if not rows:
         return
-    frame = pd.DataFrame(rows, columns=["pump_id", "rank", "status", "hours_to_limit", "past_margin",
+    frame = pd.DataFrame(rows, columns=["pump_id", "rank", "order_key", "status", "hours_to_limit", "past_margin",
                                         "limit_date_low", "pump"]).set_index("pump_id")
     frame["past_margin"] = frame["past_margin"].astype(float)
     frame["hours_to_limit"] = frame["hours_to_limit"].astype(float)
-    frame["limit_date_low"] = pd.to_datetime(frame["limit_date_low"])
-    ranks = service_rank(frame)
-    moved = ranks[ranks != frame["rank"]]
-    if len(moved):
-        session.execute(update(AnalysisResult), [{"pump_id": int(pump_id), "rank": int(rank)}
-                                                 for pump_id, rank in moved.items()])
+    keys = service_order_keys(frame)
+    ranks = service_rank(frame).to_numpy()
+    moved = (ranks != frame["rank"].to_numpy()) | (keys != frame["order_key"].to_numpy())
+    if moved.any():
+        session.execute(update(AnalysisResult), [
+            {"pump_id": int(pump_id), "rank": int(rank), "order_key": key}
+            for pump_id, rank, key in zip(frame.index[moved], ranks[moved], keys[moved], strict=True)])
     session.flush()
+
+
+def place_in_order(session: Session, records: list[dict]) -> bool:
+    """Give each newly stored pump its rank and key among the stored list, without reading the list: a pump's new
+    rank is one more than the number of smaller keys (an indexed count), and only the ranks between its old place
+    and its new one shift by one. False, with nothing changed, when the stored list is not a whole ranking
+    1..N with a key on every row (rows from before keys existed, or a pump deleted since), so the caller
+    re-ranks it whole.
+    """
+    result = AnalysisResult.__table__
+    new = [record["pump_id"] for record in records]
+    keyed = result.c.order_key.is_not(None)
+    rows, with_key, distinct, lowest, top = session.execute(select(
+        func.count(), func.count(result.c.order_key), func.count(result.c.rank.distinct()).filter(keyed),
+        func.min(result.c.rank).filter(keyed), func.max(result.c.rank).filter(keyed))).one()
+    unkeyed_new = session.scalar(select(func.count()).select_from(result)
+                                 .where(result.c.pump_id.in_(new), result.c.order_key.is_(None)))
+    if rows - with_key != unkeyed_new or distinct != with_key or (with_key and (lowest != 1 or top != with_key)):
+        return False
+    keys = service_order_keys(pd.DataFrame(records))
+    for pump_id, key in zip(new, keys, strict=True):
+        old = session.scalar(select(result.c.rank).where(result.c.pump_id == pump_id)
+                             .where(result.c.order_key.is_not(None)))
+        rank = 1 + session.scalar(select(func.count()).select_from(result)
+                                  .where(result.c.order_key < key, result.c.pump_id != pump_id))
+        if old is None:  # new to the list: everything from its place on moves down one
+            shift = (result.c.rank >= rank, 1)
+        elif rank < old:
+            shift = ((result.c.rank >= rank) & (result.c.rank < old), 1)
+        else:
+            shift = ((result.c.rank > old) & (result.c.rank <= rank), -1)
+        if old != rank:
+            session.execute(result.update().where(shift[0], result.c.pump_id != pump_id)
+                            .values(rank=result.c.rank + shift[1]))
+        session.execute(result.update().where(result.c.pump_id == pump_id).values(rank=rank, order_key=key))
+    return True
