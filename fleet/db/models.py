@@ -271,6 +271,11 @@ class AnalysisResult(Base):
     # stored list after a write reads no JSON.
     past_margin: Mapped[float | None] = mapped_column(Float)
     limit_date_low: Mapped[str | None] = mapped_column(String(10))
+    # What its kind's fleet life figures give this pump, and what they are computed from (also in detail but
+    # prior_b10_hours): columns, so a refit of the kind rewrites a few plain columns and reads no JSON.
+    prior_b10_hours: Mapped[float | None] = mapped_column(Float)
+    age_hours: Mapped[float | None] = mapped_column(Float)
+    planning_horizon_hours: Mapped[float | None] = mapped_column(Float)
     # The pump's place in the service order as bytes (fleet.trend.status.service_order_keys), indexed: a write
     # places its pumps among the stored list by counting smaller keys, without reading the list. NULL until the
     # next full re-rank (rows stored before the column existed).

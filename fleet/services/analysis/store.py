@@ -12,7 +12,7 @@ from datetime import datetime
 
 import numpy as np
 import pandas as pd
-from sqlalchemy import delete, func, insert, select, update
+from sqlalchemy import bindparam, delete, func, insert, select, update
 from sqlalchemy.orm import Session
 
 from fleet.db.models import AnalysisResult, FleetPrior, IntervalTrend, Pump, ServiceLife, StatusChange
@@ -20,7 +20,7 @@ from fleet.jsonvalues import json_ready
 from fleet.services.analysis.compute import Computed
 from fleet.services.analysis.snapshots import keep_forecasts
 from fleet.services.mail.outbox import queue_alerts
-from fleet.trend.engine import apply_priors, results_to_records
+from fleet.trend.engine import prior_figures, results_to_records
 from fleet.trend.settings import AnalysisSettings
 from fleet.trend.status import service_order_keys, service_rank
 from fleet.trend.weibull import fit_fleet_priors
@@ -32,6 +32,12 @@ CONTRACT_FIELDS = (
     "energy_cost_per_year",
 )
 COLUMNS = CONTRACT_FIELDS[1:]  # 'pump' is the serial, kept on the pump row
+# Further figures kept in their own columns: the service order's (also in detail), and the prior figures with
+# what they are computed from (fleet.trend.engine.prior_figures; the prior columns only, since a refit of the
+# kind rewrites them without touching detail).
+ORDER_COLUMNS = ("past_margin", "limit_date_low")
+PRIOR_COLUMNS = ("prior_b10_hours", "age_hours", "planning_horizon_hours")
+NOT_IN_DETAIL = (*COLUMNS, "pump_id", "rank", "prior_b10_hours", "planning_horizon_hours")
 # A stored prior figure is rewritten when a refit moves it by more than this (relative). Far inside the promise
 # that stored figures match a full analysis to 1 part in 10,000, and compared with the stored value, so small
 # moves never add up unseen.
@@ -109,13 +115,12 @@ def _insert_results(session: Session, records: list[dict], computed: Computed,
     (a pump new to the list: rank 0, no key)."""
     rows = []
     for record in records:
-        detail = {k: v for k, v in record.items() if k not in COLUMNS and k not in ("pump_id", "rank")}
+        detail = {k: v for k, v in record.items() if k not in NOT_IN_DETAIL}
         rank, key = placed.get(record["pump_id"], (0, None))
         rows.append({
             "pump_id": record["pump_id"], "computed_at": computed.computed_at, "rank": rank, "order_key": key,
             "detail": json_ready(detail), "data_version": computed.versions.get(record["pump_id"], 0),
-            "past_margin": record.get("past_margin"), "limit_date_low": record.get("limit_date_low"),
-            **{k: record.get(k) for k in COLUMNS},
+            **{k: record.get(k) for k in (*COLUMNS, *ORDER_COLUMNS, *PRIOR_COLUMNS)},
         })
     if rows:
         session.execute(insert(AnalysisResult), rows)
@@ -168,36 +173,38 @@ def _reason_keys(reasons) -> set[str]:
 
 def refit_kinds(session: Session, kinds, now: datetime, settings: AnalysisSettings) -> None:
     """Fit the fleet life figures of ``kinds`` again from the stored service lives, store them, and give every
-    stored analysis of those kinds its prior figures from them."""
+    stored analysis of those kinds its prior figures from them.
+
+    Reads plain columns only (the service lives, and each stored pump's age and planning horizon in running
+    hours) and rewrites the two prior columns of the pumps whose figures moved: no JSON read or written.
+    """
     kinds = sorted(k for k in kinds if k)
     if not kinds:
         return
-    kind_of = pd.Series(dict(session.execute(select(Pump.id, Pump.kind).where(Pump.kind.in_(kinds))).all()),
+    kind_of = pd.Series(dict(_plain_rows(session, select(Pump.id, Pump.kind).where(Pump.kind.in_(kinds)))),
                         dtype=object)
-    rows = session.execute(select(ServiceLife.pump_id, ServiceLife.entry_hours, ServiceLife.life_hours,
-                                  ServiceLife.failed).join(Pump, Pump.id == ServiceLife.pump_id)
-                           .where(Pump.kind.in_(kinds))).all()
-    lives = pd.DataFrame(rows, columns=["pump_id", "entry_hours", "life_hours", "failed"]).astype(
+    lives = pd.DataFrame(_plain_rows(session, select(
+        ServiceLife.pump_id, ServiceLife.entry_hours, ServiceLife.life_hours, ServiceLife.failed)
+        .join(Pump, Pump.id == ServiceLife.pump_id).where(Pump.kind.in_(kinds))),
+        columns=["pump_id", "entry_hours", "life_hours", "failed"]).astype(
         {"entry_hours": float, "life_hours": float, "failed": bool})
     priors = fit_fleet_priors(lives, kind_of, settings.min_weibull_failures)
-    detail = AnalysisResult.detail
-    stored = pd.DataFrame(session.execute(
-        select(AnalysisResult.pump_id, Pump.kind, AnalysisResult.hours_to_limit,
-               AnalysisResult.prior_hours_to_overhaul, detail["prior_b10_hours"].as_float(),
-               detail["age_hours"].as_float(), detail["hours_per_day"].as_float(),
-               detail["planning_horizon_weeks"].as_float(), detail["last_reading_at"].as_string())
-        .join(Pump, Pump.id == AnalysisResult.pump_id).where(Pump.kind.in_(kinds))).all(),
-        columns=["pump_id", "kind", "hours_to_limit", "stored_prior_hours", "stored_b10", "age_hours",
-                 "hours_per_day", "planning_horizon_weeks", "last_reading_at"]).set_index("pump_id")
-    for column in ("hours_to_limit", "stored_prior_hours", "stored_b10", "age_hours", "hours_per_day",
-                   "planning_horizon_weeks"):
-        stored[column] = stored[column].astype(float)
-    stored["last_reading_at"] = pd.to_datetime(stored["last_reading_at"])
-    priors = apply_priors(stored, priors, now)
-    moved = _moved(stored["prior_hours_to_overhaul"], stored["stored_prior_hours"]) | \
-        _moved(stored["prior_b10_hours"], stored["stored_b10"])
-    if moved.any():
-        _rewrite_prior_figures(session, stored[moved])
+    result = AnalysisResult.__table__
+    stored = _plain_rows(session, select(
+        result.c.pump_id, Pump.kind, result.c.age_hours, result.c.planning_horizon_hours,
+        result.c.prior_hours_to_overhaul, result.c.prior_b10_hours)
+        .join(Pump, Pump.id == result.c.pump_id).where(Pump.kind.in_(kinds)))
+    if stored:
+        ids, kind, age, horizon, old_hours, old_b10 = (np.array(c, dtype=object) for c in zip(*stored, strict=True))
+        hours, b10, priors = prior_figures(kind, age.astype(float), horizon.astype(float), priors)
+        moved = _moved(hours, old_hours.astype(float)) | _moved(b10, old_b10.astype(float))
+        if moved.any():
+            session.execute(result.update().where(result.c.pump_id == bindparam("id")).values(
+                prior_hours_to_overhaul=bindparam("hours"), prior_b10_hours=bindparam("b10")), [
+                {"id": int(p), "hours": json_ready(h), "b10": json_ready(b)}
+                for p, h, b in zip(ids[moved], hours[moved], b10[moved], strict=True)])
+    else:
+        priors["expected_overhauls_in_horizon"] = np.nan
     session.execute(delete(FleetPrior).where(FleetPrior.kind.in_(kinds)))
     if len(priors):
         session.execute(insert(FleetPrior), [
@@ -206,26 +213,19 @@ def refit_kinds(session: Session, kinds, now: datetime, settings: AnalysisSettin
     session.flush()
 
 
-def _moved(new: pd.Series, old: pd.Series) -> pd.Series:
-    new, old = new.astype(float), old.astype(float)
+def _plain_rows(session: Session, statement) -> list[tuple]:
+    """The driver's rows of ``statement`` as plain tuples (no per-row Row or type processing: numbers only)."""
+    result = session.connection().execute(statement)
+    try:
+        return result.cursor.fetchall() if result.cursor is not None else []
+    finally:
+        result.close()
+
+
+def _moved(new: np.ndarray, old: np.ndarray) -> np.ndarray:
     with np.errstate(invalid="ignore", divide="ignore"):
-        relative = (new - old).abs() / np.maximum(old.abs(), 1e-9)
-    return (new.isna() != old.isna()) | (relative > PRIOR_TOLERANCE).fillna(False)
-
-
-def _rewrite_prior_figures(session: Session, changed: pd.DataFrame) -> None:
-    ids = [int(p) for p in changed.index]
-    details = {}
-    for part in _chunks(ids):
-        details.update(dict(session.execute(select(AnalysisResult.pump_id, AnalysisResult.detail)
-                                            .where(AnalysisResult.pump_id.in_(part))).all()))
-    rows = []
-    for pump_id, row in changed.iterrows():
-        detail = dict(details[int(pump_id)] or {})
-        detail["prior_b10_hours"] = json_ready(row["prior_b10_hours"])
-        rows.append({"pump_id": int(pump_id), "prior_hours_to_overhaul": json_ready(row["prior_hours_to_overhaul"]),
-                     "detail": detail})
-    session.execute(update(AnalysisResult), rows)
+        relative = np.abs(new - old) / np.maximum(np.abs(old), 1e-9)
+    return (np.isnan(new) != np.isnan(old)) | np.nan_to_num(relative > PRIOR_TOLERANCE, nan=False).astype(bool)
 
 
 def rerank(session: Session) -> None:
