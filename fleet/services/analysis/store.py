@@ -267,8 +267,12 @@ def place_in_order(session: Session, records: list[dict]) -> bool:
     unkeyed = set(session.scalars(select(result.c.pump_id).where(result.c.order_key.is_(None)).limit(len(new) + 1)))
     if not unkeyed <= set(new):
         return False
-    rows, top = session.execute(select(func.count(), func.max(result.c.rank))).one()
-    if (top or 0) != rows - len(unkeyed):
+    ranked = result.c.rank > 0  # a pump new to the list waits at rank 0 (_insert_results)
+    rows, distinct, lowest, top = session.execute(select(
+        func.count(), func.count(result.c.rank.distinct()), func.min(result.c.rank), func.max(result.c.rank))
+        .where(ranked)).one()
+    if not rows == distinct == (top or 0) or lowest not in (None, 1) or \
+            session.scalar(select(func.count()).select_from(result).where(~ranked)) != len(unkeyed):
         return False
     keys = service_order_keys(pd.DataFrame(records))
     for pump_id, key in zip(new, keys, strict=True):
