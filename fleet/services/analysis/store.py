@@ -2,8 +2,9 @@
 
 Runs inside a write unit. A pump's figures are stored only when computed from data at least as new as those already
 stored (a slow analysis never overwrites a newer one). The fleet life figures (the Weibull of each pump kind) are
-refitted from the stored service lives whenever a pump of that kind is stored, and each pump of the kind then gets
-its prior figures again: this needs intervals, not readings, so it stays cheap. Each stored pump's forecast is also
+refitted from the stored service lives whenever a stored pump of that kind changes what they are computed from (its
+service lives, age or planning horizon), and each pump of the kind then gets its prior figures again: this needs
+intervals, not readings, so it stays cheap. Each stored pump's forecast is also
 kept in the forecast record when it moved (fleet.services.analysis.snapshots states the rule).
 """
 
@@ -66,22 +67,25 @@ def _chunks(ids: list) -> list[list]:
 
 
 def store(session: Session, computed: Computed, settings: AnalysisSettings | None = None) -> RefreshSummary:
-    """Store ``computed`` where it is not older than what is stored; refit the kinds concerned; re-rank."""
+    """Store ``computed`` where it is not older than what is stored; refit the kinds whose fleet life figures it
+    changes; place its pumps in the service order."""
     settings = settings or AnalysisSettings()
     results = computed.results
     ids = [int(p) for p in results.index]
-    stored, kinds_before, placed = {}, set(), {}
+    stored, basis_before, placed = {}, {}, {}
     for part in _chunks(ids):
-        for pump_id, version, kind, rank, key in session.execute(
+        for pump_id, version, kind, age, horizon, rank, key in session.execute(
                 select(AnalysisResult.pump_id, AnalysisResult.data_version, AnalysisResult.detail["kind"].as_string(),
-                       AnalysisResult.rank, AnalysisResult.order_key)
+                       AnalysisResult.age_hours, AnalysisResult.planning_horizon_hours, AnalysisResult.rank,
+                       AnalysisResult.order_key)
                 .where(AnalysisResult.pump_id.in_(part))):
-            stored[pump_id], _ = version, kinds_before.add(kind)
-            placed[pump_id] = (rank, key)
+            stored[pump_id], basis_before[pump_id], placed[pump_id] = version, (kind, age, horizon), (rank, key)
     existing = {p for part in _chunks(ids) for p in session.scalars(select(Pump.id).where(Pump.id.in_(part)))}
     keep = [p for p in ids if p in existing and computed.versions.get(p, 0) >= stored.get(p, -1)]
     kept = results.loc[keep]
     records = results_to_records(kept)
+    lives = computed.lives[computed.lives["pump_id"].isin(keep)]
+    kinds = _kinds_moved(session, records, lives, basis_before)
     changes = _record_changes(session, records, computed.computed_at)
     alerts = queue_alerts(session, changes)  # in this transaction: stored with the analysis they follow from
     for part in _chunks(keep):
@@ -91,22 +95,48 @@ def store(session: Session, computed: Computed, settings: AnalysisSettings | Non
     _insert_results(session, records, computed, placed)
     _insert_trends(session, computed.trends[computed.trends["pump_id"].isin(keep)], computed.computed_at)
     keep_forecasts(session, records, computed.computed_at)
-    lives = computed.lives[computed.lives["pump_id"].isin(keep)]
     if len(lives):
         session.execute(insert(ServiceLife), [
             {"pump_id": int(p), "interval_no": int(n), "entry_hours": float(e), "life_hours": float(h),
              "failed": bool(f)}
             for p, n, e, h, f in zip(lives["pump_id"], lives["interval_no"], lives["entry_hours"],
                                      lives["life_hours"], lives["failed"], strict=True)])
-    kinds = set(kept["kind"].dropna()) | {k for k in kinds_before if k}
     if computed.full:
-        kinds |= set(session.scalars(select(FleetPrior.kind)))
+        kinds |= set(kept["kind"].dropna()) | set(session.scalars(select(FleetPrior.kind)))
     refit_kinds(session, kinds, computed.computed_at, settings)
     if computed.full or len(records) > PLACED_ONE_BY_ONE or not place_in_order(session, records):
         rerank(session)
     by_status = kept["status"].value_counts().to_dict()
     return RefreshSummary(len(records), {str(k): int(v) for k, v in by_status.items()}, computed.full,
                           computed.computed_at, alerts)
+
+
+def _kinds_moved(session: Session, records: list[dict], lives: pd.DataFrame,
+                 basis_before: dict[int, tuple]) -> set[str]:
+    """The pump kinds whose fleet life figures the records change: those of a pump whose service lives, kind, age
+    or planning horizon differ from what is stored (before and after, when its kind changed). A kind's Weibull
+    is fitted from its service lives and its expected overhauls summed from its pumps' ages and horizons, so
+    with none of these changed its stored figures, and its pumps' prior figures, stay exact as they are."""
+    ids = [record["pump_id"] for record in records]
+    stored_lives: dict[int, list] = {}
+    for part in _chunks(ids):
+        for row in session.execute(select(ServiceLife.pump_id, ServiceLife.interval_no, ServiceLife.entry_hours,
+                                          ServiceLife.life_hours, ServiceLife.failed)
+                                   .where(ServiceLife.pump_id.in_(part)).order_by(ServiceLife.interval_no)):
+            stored_lives.setdefault(row[0], []).append(tuple(row))
+    new_lives: dict[int, list] = {}
+    for row in sorted(zip(lives["pump_id"], lives["interval_no"], lives["entry_hours"], lives["life_hours"],
+                          lives["failed"], strict=True), key=lambda r: r[1]):
+        new_lives.setdefault(int(row[0]), []).append((int(row[0]), int(row[1]), float(row[2]), float(row[3]),
+                                                     bool(row[4])))
+    kinds = set()
+    for record in records:
+        pump_id = record["pump_id"]
+        before = basis_before.get(pump_id)
+        after = (record.get("kind"), record.get("age_hours"), record.get("planning_horizon_hours"))
+        if before != after or stored_lives.get(pump_id, []) != new_lives.get(pump_id, []):
+            kinds |= {k for k in (before[0] if before else None, after[0]) if k}
+    return kinds
 
 
 def _insert_results(session: Session, records: list[dict], computed: Computed,
