@@ -18,7 +18,7 @@ from sqlalchemy.orm import Session
 
 from fleet.db.models import AnalysisResult, FleetPrior, IntervalTrend, Pump, ServiceLife, StatusChange
 from fleet.jsonvalues import json_ready
-from fleet.services.analysis.compute import Computed
+from fleet.services.analysis.compute import Computed, stored_priors
 from fleet.services.analysis.snapshots import keep_forecasts
 from fleet.services.mail.outbox import queue_alerts
 from fleet.trend.engine import prior_figures, results_to_records
@@ -86,6 +86,7 @@ def store(session: Session, computed: Computed, settings: AnalysisSettings | Non
     records = results_to_records(kept)
     lives = computed.lives[computed.lives["pump_id"].isin(keep)]
     kinds = _kinds_moved(session, records, lives, basis_before)
+    kinds |= _with_stored_priors(session, records, kinds)
     changes = _record_changes(session, records, computed.computed_at)
     alerts = queue_alerts(session, changes)  # in this transaction: stored with the analysis they follow from
     for part in _chunks(keep):
@@ -137,6 +138,28 @@ def _kinds_moved(session: Session, records: list[dict], lives: pd.DataFrame,
         if before != after or stored_lives.get(pump_id, []) != new_lives.get(pump_id, []):
             kinds |= {k for k in (before[0] if before else None, after[0]) if k}
     return kinds
+
+
+def _with_stored_priors(session: Session, records: list[dict], refitted: set[str]) -> set[str]:
+    """Give the records of kinds not refitted their prior figures from their kind's stored fleet life figures as
+    they are now, under the store's lock: the engine read them earlier, and another store may have refitted the
+    kind since. Returns the kinds that have no stored figures yet (to be fitted)."""
+    rest = [r for r in records if r.get("kind") and r["kind"] not in refitted]
+    if not rest:
+        return set()
+    priors = stored_priors(session)
+    known = set() if priors is None else set(priors.index)
+    missing = {r["kind"] for r in rest if r["kind"] not in known}
+    rest = [r for r in rest if r["kind"] in known]
+    if rest:
+        def number(value):
+            return np.nan if value is None else float(value)
+
+        hours, b10, _ = prior_figures([r["kind"] for r in rest], [number(r.get("age_hours")) for r in rest],
+                                      [number(r.get("planning_horizon_hours")) for r in rest], priors)
+        for record, h, b in zip(rest, hours, b10, strict=True):
+            record["prior_hours_to_overhaul"], record["prior_b10_hours"] = json_ready(h), json_ready(b)
+    return missing
 
 
 def _insert_results(session: Session, records: list[dict], computed: Computed,
