@@ -11,7 +11,7 @@ from fleet.trend.engine import analyze_fleet
 from fleet.trend.linear import grouped_wls
 from fleet.trend.remaining_life import hours_per_day, limit_dates, limit_flows_lpm, trend_band
 from fleet.trend.settings import AnalysisSettings
-from fleet.trend.status import service_rank
+from fleet.trend.status import service_order_keys, service_rank
 
 
 def test_limits_turn_into_referred_flows():
@@ -104,3 +104,29 @@ def test_a_fleet_of_2000_pumps_is_analysed_in_one_pass():
     )
     assert len(analysis.results) == 2000
     assert analysis.results["status"].notna().all()
+
+
+def test_service_order_keys_sort_as_the_stated_order():
+    # The order as README states it, written as plain Python tuples (common practice, no source): status group,
+    # furthest past first, due_soon by the lower-bound date (none last), hours to limit (none last), the name.
+    rng = np.random.default_rng(7)
+    n = 400
+    statuses = np.array(["past_limit", "due_soon", "watch", "healthy"])
+    margins = rng.choice([np.nan, -0.0, 0.0, 0.3, -1.5, 2.0, np.inf], n)
+    hours = rng.choice([np.nan, 0.0, -0.0, 12.5, 900.0, 1e7, -3.0], n)
+    dates = rng.choice([None, "2025-09-01", "2025-08-01", "2031-01-15"], n)
+    frame = pd.DataFrame({"status": rng.choice(statuses, n), "past_margin": margins, "limit_date_low": dates,
+                          "hours_to_limit": hours, "pump": [f"P-{rng.integers(0, 60):02d}-{i}" for i in range(n)]},
+                         index=pd.Index(rng.permutation(n) + 100, name="pump_id"))
+
+    def key(row):
+        margin = -(row.past_margin if np.isfinite(row.past_margin) or np.isinf(row.past_margin) else -np.inf)
+        date = row.limit_date_low if row.status == "due_soon" and pd.notna(row.limit_date_low) else None
+        return (list(statuses).index(row.status), margin, date is None, date or "",
+                row.hours_to_limit if not np.isnan(row.hours_to_limit) else np.inf, row.pump)
+
+    expected = sorted(frame.itertuples(), key=key)
+    ranks = service_rank(frame)
+    assert [row.Index for row in expected] == list(ranks.sort_values().index)
+    keys = service_order_keys(frame)
+    assert sorted(keys) == [keys[frame.index.get_loc(row.Index)] for row in expected]

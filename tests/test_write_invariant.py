@@ -215,3 +215,23 @@ def test_an_import_left_for_later_is_brought_up_to_date_by_the_next_read(client,
     assert client.get("/").status_code == 200  # a page read brings it up to date first
     assert _lobe_prior(demo_db)["n_failures"] == 3
     assert_stored_equals_full(demo_db)
+
+
+def test_a_lab_result_changes_no_service_life_so_no_kind_is_refitted(client, demo_db, monkeypatch):
+    from fleet.services.analysis import store
+
+    refitted = []
+    original = store.refit_kinds
+    monkeypatch.setattr(store, "refit_kinds", lambda session, kinds, *rest: (refitted.append(set(kinds)),
+                                                                             original(session, kinds, *rest)))
+    with demo_db.sessions() as session:
+        pump = session.scalar(select(Pump).where(Pump.serial == "EY-101"))
+        machine_id = session.scalar(select(Installation).where(
+            Installation.pump_id == pump.id, Installation.removed_at.is_(None))).position.machine_id
+    _, at = _last(demo_db, "EY-101")
+    moment = at.strftime("%Y-%m-%dT%H:%M")
+    assert client.post("/register/sample/new", data={"machine_id": str(machine_id), "sampled_at": moment,
+                                                     "reported_at": moment, "iso4406": "20/18/15",
+                                                     "water": "400"}).status_code == 302
+    assert refitted and all(kinds == set() for kinds in refitted), refitted
+    assert_stored_equals_full(demo_db)

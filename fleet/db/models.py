@@ -8,7 +8,19 @@ then reports as a change against the migrations.
 from datetime import datetime
 from typing import Any
 
-from sqlalchemy import JSON, Boolean, DateTime, Float, ForeignKey, Index, Integer, String, Text, UniqueConstraint
+from sqlalchemy import (
+    JSON,
+    Boolean,
+    DateTime,
+    Float,
+    ForeignKey,
+    Index,
+    Integer,
+    LargeBinary,
+    String,
+    Text,
+    UniqueConstraint,
+)
 from sqlalchemy.orm import Mapped, mapped_column, relationship
 
 from fleet.db.base import Base
@@ -259,6 +271,15 @@ class AnalysisResult(Base):
     # stored list after a write reads no JSON.
     past_margin: Mapped[float | None] = mapped_column(Float)
     limit_date_low: Mapped[str | None] = mapped_column(String(10))
+    # What its kind's fleet life figures give this pump, and what they are computed from (also in detail but
+    # prior_b10_hours): columns, so a refit of the kind rewrites a few plain columns and reads no JSON.
+    prior_b10_hours: Mapped[float | None] = mapped_column(Float)
+    age_hours: Mapped[float | None] = mapped_column(Float)
+    planning_horizon_hours: Mapped[float | None] = mapped_column(Float)
+    # The pump's place in the service order as bytes (fleet.trend.status.service_order_keys), indexed: a write
+    # places its pumps among the stored list by counting smaller keys, without reading the list. NULL until the
+    # next full re-rank (rows stored before the column existed).
+    order_key: Mapped[bytes | None] = mapped_column(LargeBinary, index=True)
     # The pump's data version (PumpDataVersion) these figures were computed from: older than the pump's means stale.
     data_version: Mapped[int] = mapped_column(Integer, default=0, server_default="0")
 

@@ -356,24 +356,35 @@ def fit_priors(intervals: pd.DataFrame, kind_of_pump: pd.Series, settings: Analy
 
 
 def apply_priors(res: pd.DataFrame, priors: pd.DataFrame, now) -> pd.DataFrame:
-    """Set each pump's prior figures (in place) from its kind's fleet Weibull; return the priors with the
-    expected overhauls of ``res``'s pumps in their planning horizon.
+    """Set each pump's prior figures (in place) from its kind's fleet Weibull, and its planning horizon in running
+    hours; return the priors with the expected overhauls of ``res``'s pumps in their planning horizon.
 
     res needs kind, age_hours and what horizon_remaining_hours reads. Nothing else of a pump's analysis
     depends on the priors, so a fleet analysed in parts can be given the whole fleet's priors afterwards.
     """
-    fleet_priors = priors.copy()
-    kinds = res["kind"].to_numpy()
-    age = res["age_hours"].to_numpy(float)
-    kind_prior = fleet_priors.reindex(kinds)
-    res["prior_hours_to_overhaul"] = mean_residual_life(
-        age, kind_prior["beta"].to_numpy(float), kind_prior["alpha"].to_numpy(float)
-    )
-    res["prior_b10_hours"] = kind_prior["b10_hours"].to_numpy(float)
     _, horizon_h = horizon_remaining_hours(res, pd.Timestamp(now))
-    expected = expected_overhauls(age, horizon_h, kinds, fleet_priors)
-    fleet_priors["expected_overhauls_in_horizon"] = expected.reindex(fleet_priors.index)
+    res["planning_horizon_hours"] = horizon_h
+    hours, b10, fleet_priors = prior_figures(res["kind"].to_numpy(), res["age_hours"].to_numpy(float), horizon_h,
+                                             priors)
+    res["prior_hours_to_overhaul"], res["prior_b10_hours"] = hours, b10
     return fleet_priors
+
+
+def prior_figures(kinds, age_hours, horizon_hours, priors: pd.DataFrame):
+    """What each pump's kind's fleet Weibull says of it: (mean residual life at its age, the kind's B10), and the
+    priors with the expected overhauls of these pumps within their planning horizons (``horizon_hours``).
+
+    The one computation of the prior figures: a full analysis (apply_priors) and a refit of stored kinds
+    (fleet.services.analysis.store.refit_kinds) both call it.
+    """
+    fleet_priors = priors.copy()
+    kinds = np.asarray(kinds, dtype=object)
+    age = np.asarray(age_hours, dtype=float)
+    kind_prior = fleet_priors.reindex(kinds)
+    hours = mean_residual_life(age, kind_prior["beta"].to_numpy(float), kind_prior["alpha"].to_numpy(float))
+    expected = expected_overhauls(age, np.asarray(horizon_hours, dtype=float), kinds, fleet_priors)
+    fleet_priors["expected_overhauls_in_horizon"] = expected.reindex(fleet_priors.index)
+    return hours, kind_prior["b10_hours"].to_numpy(float), fleet_priors
 
 
 def _data_note(res: pd.DataFrame, current_iv: pd.DataFrame, cur: pd.DataFrame, s: AnalysisSettings) -> np.ndarray:

@@ -294,20 +294,41 @@ def assess_status(results: pd.DataFrame, now, settings: AnalysisSettings) -> pd.
     return pd.DataFrame({"status": status, "reasons": reasons, "rank": rank.to_numpy()}, index=r.index)
 
 
-def service_rank(frame: pd.DataFrame) -> pd.Series:
-    """Service-list order 1..N (index as frame's): past_limit first, furthest past first (past_margin, the
-    log of value over limit); then due_soon by the lower-bound date (how soon and how sure); then watch,
-    then healthy, each by hours to limit; the pump's name breaks ties. Works on stored records too."""
+def _sortable_float(values: np.ndarray) -> np.ndarray:
+    """Big-endian bytes (n, 8) of float64 values whose byte order is their numeric order (-inf < ... < inf)."""
+    bits = (np.asarray(values, dtype=np.float64) + 0.0).view(np.uint64)  # + 0.0 makes -0.0 equal to 0.0
+    negative = (bits >> np.uint64(63)).astype(bool)
+    bits = np.where(negative, ~bits, bits | np.uint64(1 << 63))
+    return bits.astype(">u8").view(np.uint8).reshape(-1, 8)
+
+
+def service_order_keys(frame: pd.DataFrame) -> np.ndarray:
+    """Each pump's place in the service list as bytes: sorting the keys bytewise gives the service order.
+
+    Past_limit first, furthest past first (past_margin, the log of value over limit); then due_soon by the
+    lower-bound date (how soon and how sure); then watch, then healthy, each by hours to limit; the pump's name
+    breaks ties. Bytes, so the database orders stored keys the same way (SQLite BLOB and PostgreSQL bytea
+    compare bytewise), and a pump can be placed among the stored list without reading it. Works on stored
+    records too (dates as text)."""
     status = _col(frame, "status", "healthy").astype(str).to_numpy()
-    order = pd.DataFrame(
-        {
-            "group": pd.Categorical(status, categories=list(STATUS_ORDER), ordered=True).codes,
-            "past_margin": -np.nan_to_num(_num(frame, "past_margin"), nan=-np.inf),
-            "date_low": pd.to_datetime(_col(frame, "limit_date_low", pd.NaT)).where(status == "due_soon"),
-            "hours": np.nan_to_num(_num(frame, "hours_to_limit"), nan=np.inf),
-            "pump": _col(frame, "pump", "").astype(str).to_numpy(),
-        },
-        index=frame.index,
-    )
-    order = order.sort_values(["group", "past_margin", "date_low", "hours", "pump"], na_position="last", kind="stable")
-    return pd.Series(np.arange(1, len(order) + 1), index=order.index, name="rank").reindex(frame.index)
+    group = pd.Categorical(status, categories=list(STATUS_ORDER), ordered=True).codes + 1  # unknown first
+    margin = -np.nan_to_num(_num(frame, "past_margin"), nan=-np.inf)
+    date_low = pd.to_datetime(_col(frame, "limit_date_low", pd.NaT)).where(status == "due_soon")
+    no_date = date_low.isna().to_numpy()
+    date_ns = np.where(no_date, 0, date_low.to_numpy(dtype="datetime64[ns]").view(np.int64))
+    date_bits = (date_ns.astype(np.int64).view(np.uint64) ^ np.uint64(1 << 63)).astype(">u8").view(np.uint8)
+    hours = np.nan_to_num(_num(frame, "hours_to_limit"), nan=np.inf)
+    fixed = np.concatenate([
+        group.astype(np.uint8).reshape(-1, 1), _sortable_float(margin),
+        no_date.astype(np.uint8).reshape(-1, 1), date_bits.reshape(-1, 8), _sortable_float(hours),
+    ], axis=1)  # a missing date sorts after every date
+    names = _col(frame, "pump", "").astype(str).to_numpy()
+    return np.array([row.tobytes() + name.encode() for row, name in zip(fixed, names, strict=True)], dtype=object)
+
+
+def service_rank(frame: pd.DataFrame) -> pd.Series:
+    """Service-list order 1..N (index as frame's), by service_order_keys; equal keys keep the frame's order."""
+    order = np.argsort(service_order_keys(frame), kind="stable")
+    ranks = np.empty(len(order), dtype=np.int64)
+    ranks[order] = np.arange(1, len(order) + 1)
+    return pd.Series(ranks, index=frame.index, name="rank")

@@ -100,11 +100,14 @@ def effective_limits(pumps: pd.DataFrame, defaults: pd.DataFrame) -> pd.DataFram
     return out
 
 
-def load_pumps(session: Session, pump_ids=None) -> pd.DataFrame:
+def load_pumps(session: Session, pump_ids=None, history: pd.DataFrame | None = None) -> pd.DataFrame:
+    """The pumps with their place now and their effective limits; ``history`` (installation_history of the same
+    pumps) when the caller has it already."""
     pumps = _query(session, _restrict(select(Pump.__table__), Pump.id, pump_ids)).rename(
         columns={"id": "pump_id", "serial": "pump", "oil_temp_max_c": "oil_temp_max_c"}
     )
-    history = installation_history(session, pump_ids)
+    if history is None:
+        history = installation_history(session, pump_ids)
     current = history[history["removed_at"].isna()].drop_duplicates("pump_id", keep="last").set_index("pump_id")
     for column in ("site", "machine", "position", "machine_id", "site_id"):
         pumps[column] = pumps["pump_id"].map(current[column]) if len(current) else None
@@ -191,8 +194,8 @@ def load_frames(session: Session, pump_ids=None, as_of=None) -> FleetFrames:
     ``as_of`` keeps only what was known at that moment (readings taken, events done, lab results reported by
     then), so an analysis can be replayed for a past week.
     """
-    pumps = load_pumps(session, pump_ids)
     history = installation_history(session, pump_ids)
+    pumps = load_pumps(session, pump_ids, history)
     machine_ids = None if pump_ids is None else pumps["machine_id"].dropna().astype(int).unique().tolist()
     frames = FleetFrames(
         pumps=pumps,

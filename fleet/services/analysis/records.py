@@ -28,6 +28,7 @@ def analysis_records(session: Session, pump_ids=None) -> list[dict]:
         record = {"pump": serial}
         record.update({k: getattr(row, k) for k in COLUMNS})
         record["rank"] = row.rank
+        record.update({k: getattr(row, k) for k in ("prior_b10_hours", "planning_horizon_hours")})  # not in detail
         record["computed_at"] = row.computed_at.isoformat(timespec="seconds")
         record.update({k: v for k, v in (row.detail or {}).items() if k not in record})
         records.append(record)

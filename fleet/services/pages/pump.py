@@ -53,9 +53,9 @@ LIMIT_FIELDS = ("eta_v_limit", "drain_limit_pct", "oil_temp_min_c", "oil_temp_ma
                 "reading_interval_days", "planning_horizon_weeks")
 HEADLINE_FIELDS = ("status", "reasons", "rank", "eta_v_ref", "eta_v_decline_per_1000h", "drain_pct_ref",
                    "hours_to_limit", "hours_to_limit_low", "hours_to_limit_high", "limit_date", "governing_limit",
-                   "prior_hours_to_overhaul", "energy_cost_per_year")
+                   "prior_hours_to_overhaul", "prior_b10_hours", "energy_cost_per_year")
 DETAIL_FIELDS = ("limit_date_low", "limit_date_high", "confidence", "upper_bound_open", "currency", "leakage_kw",
-                 "overhaul_saving_per_year", "overhaul_payback_years", "prior_b10_hours", "data_note",
+                 "overhaul_saving_per_year", "overhaul_payback_years", "data_note",
                  "last_reading_at", "hours_per_day", "cleanliness_code", "wear_law", "wear_law_weights", "wear_power",
                  "crossed_limit", "crossed_at_hours", "crossed_at_hours_low", "crossed_at_hours_high", "crossed_date",
                  "crossed_date_low", "crossed_date_high")

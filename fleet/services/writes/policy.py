@@ -13,8 +13,9 @@ A write unit notes the rows it changed (fleet.db.changes); here they become pump
 
 Each touched pump's data version moves on (PumpDataVersion) in the same transaction as the rows, so an analysis
 older than its data is always known as stale. A kind's fleet life figures are refitted by the analysis store
-whenever a pump of that kind is re-analysed (fleet.services.analysis), since its service intervals may have
-changed: an overhaul or replacement, its deletion or restore, or new hours on a running interval.
+whenever a re-analysed pump of that kind has other service lives, age or planning horizon than stored
+(fleet.services.analysis.store): an overhaul or replacement, its deletion or restore, or new hours on a running
+interval.
 """
 
 from sqlalchemy import select
