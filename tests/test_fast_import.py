@@ -17,12 +17,14 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 from sqlalchemy import select
+from sqlalchemy.exc import IntegrityError
 
+from fleet.db.engine import is_unique_violation
 from fleet.db.models import Reading
 from fleet.io.files import read_csv
 from fleet.io.meter import meter_doubt, meter_doubts
 from fleet.io.parse import is_arrow_text, parse_table
-from fleet.services.transfer.bulk import time_texts
+from fleet.services.transfer.bulk import insert_frame, time_texts
 from fleet.services.transfer.importing import import_file, import_table
 from tests.conftest import DATA
 
@@ -143,6 +145,23 @@ def test_bulk_insert_stores_what_the_orm_reads_back(db):
                                       Reading.source).order_by(Reading.taken_at)).all()
     assert rows[0] == (datetime(2024, 3, 1, 8, 0, 0, 123456), 63.1, "tab\there", "back\\slash", "import")
     assert rows[1][1] is None and rows[1][2] is None and not math.isnan(rows[0][1])
+
+
+def test_a_key_stored_twice_by_the_bulk_insert_is_the_error_the_write_unit_retries(db):
+    # The bulk insert talks to the driver (sqlite3 executemany, psycopg COPY) below SQLAlchemy; its errors must still
+    # be SQLAlchemy's, or the write unit cannot tell two devices saving the same reading at once from a crash.
+    with db.sessions.begin() as session:
+        import_file(session, "pumps", DATA / "pumps_small.csv")
+    table = pd.DataFrame({"pump": ["T-101"], "taken_at": ["2024-03-01 08:00"], "hours": ["1000"],
+                          "outlet_pressure": ["230"], "speed": ["1490"], "outlet_flow": ["63.1"], "oil_temp": ["48"]})
+    with db.sessions.begin() as session:
+        import_table(session, "readings", table)
+    with db.sessions() as session, session.begin():
+        stored = pd.read_sql(select(Reading.__table__), session.connection())
+        frame = stored.drop(columns=["id"]).dropna(axis=1)  # the same reading again, every value given
+        with pytest.raises(IntegrityError) as raised:
+            insert_frame(session, Reading, frame)
+    assert is_unique_violation(raised.value)
 
 
 @pytest.mark.slow

@@ -11,6 +11,7 @@ import itertools
 import numpy as np
 import pandas as pd
 from sqlalchemy import insert
+from sqlalchemy.exc import DBAPIError
 from sqlalchemy.orm import Session
 
 from fleet.db import changes
@@ -30,16 +31,24 @@ def insert_frame(session: Session, model, frame: pd.DataFrame) -> None:
         session.execute(insert(model), _records(frame))
         return
     columns = [_column_values(frame[name], nulls=dialect == "postgresql") for name in frame.columns]
+    names = ", ".join(frame.columns)
+    if dialect == "sqlite":
+        statement = f"INSERT INTO {model.__tablename__} ({names}) VALUES ({', '.join('?' * len(frame.columns))})"
+    else:
+        statement = f"COPY {model.__tablename__} ({names}) FROM STDIN"
+    dbapi_error = connection.dialect.loaded_dbapi.Error
     cursor = connection.connection.cursor()
     try:
         if dialect == "sqlite":
-            marks = ", ".join("?" * len(frame.columns))
-            cursor.executemany(f"INSERT INTO {model.__tablename__} ({', '.join(frame.columns)}) VALUES ({marks})",
-                               zip(*columns, strict=False))  # repeats end with pump_id, always a list
+            cursor.executemany(statement, zip(*columns, strict=False))  # repeats end with pump_id, always a list
         else:
-            with cursor.copy(f"COPY {model.__tablename__} ({', '.join(frame.columns)}) FROM STDIN") as copy:
+            with cursor.copy(statement) as copy:
                 for row in zip(*columns, strict=False):
                     copy.write_row(row)
+    except dbapi_error as error:
+        # As SQLAlchemy would raise it from its own execute: the write unit retries a lock or a key stored twice
+        # at once by its type (fleet.db.transaction), and a driver's bare error would pass that by.
+        raise DBAPIError.instance(statement, None, error, dbapi_error) from error
     finally:
         cursor.close()
 
