@@ -95,6 +95,7 @@ def postgres_import(url: str, files: FleetFiles) -> dict:
     taken just before the import, each in one transaction."""
     import psycopg
 
+    from benchmarks.run import copy_rows
     from fleet.db import migrate
     from fleet.db.engine import make_engine
 
@@ -118,9 +119,7 @@ def postgres_import(url: str, files: FleetFiles) -> dict:
             rows = source.execute(f"SELECT {columns} FROM reading ORDER BY id").fetchall()
         with psycopg.connect(dbname=floor_name, **plain) as floor:
             started = time.perf_counter()
-            with floor.cursor() as cursor, cursor.copy(f"COPY reading ({columns}) FROM STDIN") as copy:
-                for row in rows:
-                    copy.write_row(row)
+            copy_rows(floor, "reading", rows)
             floor.commit()
             floor_s = time.perf_counter() - started
     finally:

@@ -206,6 +206,13 @@ def _floor_insert(source: Path, floor: Path) -> float:
     return seconds
 
 
+def copy_rows(connection, table: str, rows) -> None:
+    """``rows`` (tuples of READING_COLUMNS) into ``table`` by a plain psycopg COPY: an import's PostgreSQL floor."""
+    with connection.cursor() as cursor, cursor.copy(f"COPY {table} ({', '.join(READING_COLUMNS)}) FROM STDIN") as copy:
+        for row in rows:
+            copy.write_row(row)
+
+
 def _floor_insert_server(url: str) -> float:
     """Seconds a plain psycopg COPY takes to insert every stored reading into a table made LIKE ``reading`` (same
     columns, defaults and indexes; no foreign keys), one transaction; the table is dropped after. COPY, as the
@@ -222,9 +229,7 @@ def _floor_insert_server(url: str) -> float:
     with writer.transaction():
         while rows := cursor.fetchmany(BATCH_ROWS):
             started = time.perf_counter()
-            with writer.cursor() as into, into.copy(f"COPY bench_floor_reading ({columns}) FROM STDIN") as copy:
-                for row in rows:
-                    copy.write_row(row)
+            copy_rows(writer, "bench_floor_reading", rows)
             seconds += time.perf_counter() - started
         started = time.perf_counter()
     seconds += time.perf_counter() - started  # the commit
