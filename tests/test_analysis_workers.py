@@ -12,9 +12,8 @@ import pytest
 from click.testing import CliRunner
 
 from fleet.cli import main
-from fleet.services.analysis import analyse_results, analysis_records, reanalyse
+from fleet.services.analysis import analyse_results, analysis_records, reanalyse, spool
 from fleet.services.analysis import compute as compute_module
-from fleet.services.analysis.compute import compute
 from fleet.services.analysis.parallel import WORKERS_ENV, shareable, worker_count
 from fleet.trend.settings import AnalysisSettings
 from tests.test_one_pump_path import _plain, _same
@@ -43,8 +42,9 @@ def test_parts_in_two_workers_give_the_figures_of_one_process(demo_db):
         _same_frame(expected, got, f"workers {name}")
     for name, expected, got in zip(("results", "lives", "trends"), one_pass, serial, strict=True):
         _same_frame(expected, got, f"parts {name}")
-    # The work really ran in other processes, at most two, and each said how much memory it took.
-    assert 1 <= len(peaks) <= 2 and all(peak > 0 for peak in peaks.values())
+    # The work really ran in other processes, a fresh one for each of the six parts, and each said how much
+    # memory it took.
+    assert len(peaks) == 6 and all(peak > 0 for peak in peaks.values())
 
 
 def test_compute_of_a_private_in_memory_database_stays_in_process():
@@ -59,6 +59,7 @@ def test_fleet_analyze_with_workers_stores_what_one_process_stores(demo_db, monk
     monkeypatch.setenv("FLEET_DATABASE_URL", demo_db.url)
     monkeypatch.setattr(compute_module, "CHUNK_PUMPS", PART)
     monkeypatch.setattr(compute_module, "utcnow", lambda: NOW)  # both runs analyse as of the same moment
+    monkeypatch.setattr(spool, "utcnow", lambda: NOW)
     reanalyse(demo_db.sessions, now=NOW, workers=1)
     with demo_db.sessions() as session:
         serial = analysis_records(session)
@@ -66,8 +67,10 @@ def test_fleet_analyze_with_workers_stores_what_one_process_stores(demo_db, monk
     assert done.exit_code == 0, done.output
     with demo_db.sessions() as session:
         pooled = analysis_records(session)
-        computed = compute(session, None, workers=2)  # the same path, to see the workers did run
-    assert len(computed.worker_peaks_mb) >= 1
+        with spool.spool_folder() as folder:  # the same path, to see the workers did run
+            spooled = spool.spool_fleet(session, folder, workers=2)
+            assert len(spooled.parts) == 6 and all(path.exists() for path in spooled.parts)
+    assert len(spooled.worker_peaks_mb) == 6  # one fresh worker per part
     assert len(pooled) == len(serial) == 41
     assert [_plain(record) for record in pooled] == [_plain(record) for record in serial]
 

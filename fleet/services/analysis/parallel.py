@@ -1,23 +1,32 @@
 """Run the parts of a full analysis in worker processes, so a fleet run uses every core of the server.
 
-Each worker is a fresh interpreter ('spawn'): nothing of the parent's engine, pool or connections crosses into it
-(a connection shared across fork corrupts both ends). It opens its own engine from the database URL, reads its
-part of the pumps in its own read transaction, runs the engine and sends back the part's rows. The parent reads
-the data versions before any worker starts, so a write landing meanwhile leaves its pump stale, never hidden,
-and fits the fleet priors once from every part's intervals (fleet.services.analysis.compute).
+Workers are forked from a server process ('forkserver') that was started fresh and has imported the analysis's
+libraries once, before any database was opened: nothing of the parent's engine, pool or connections crosses
+into a worker (a connection shared across fork corrupts both ends), and the libraries' memory (about 190 MB of
+numpy, pandas, scipy and SQLAlchemy) is shared between the workers until one writes to it, instead of loaded
+again by each. Each worker analyses one part and exits (a fresh fork per part is cheap), so what a part held is
+given back to the system at once. It opens its own engine from the database URL, reads its part of the pumps in
+its own read transaction, runs the engine and writes the part to its file (fleet.services.analysis.spool),
+sending back only what the fleet priors need. The parent reads the data versions before any worker starts, so a
+write landing meanwhile leaves its pump stale, never hidden, and fits the fleet priors once from every part.
 """
 
 import multiprocessing
 import os
 from concurrent.futures import ProcessPoolExecutor
 from datetime import datetime
+from pathlib import Path
 
 from sqlalchemy.engine import make_url
 
 from fleet.services.analysis.compute import Part, analyse_part
+from fleet.services.analysis.spool import PartSummary, spool_part
 from fleet.trend.settings import AnalysisSettings
 
 WORKERS_ENV = "FLEET_ANALYSIS_WORKERS"
+# Imported once by the fork server, so every worker forked from it shares these modules' pages.
+PRELOAD = ("numpy", "pandas", "scipy.stats", "scipy.optimize", "sqlalchemy.orm", "fleet.db.engine",
+           "fleet.services.analysis.spool")
 
 
 def worker_count(requested: int | None = None) -> int:
@@ -56,8 +65,9 @@ def peak_resident_mb() -> float | None:
     return None
 
 
-def _part_in_worker(url: str, pump_ids: list[int], now: datetime,
-                    settings: AnalysisSettings) -> tuple[Part, int, float | None]:
+def _in_worker(url: str, work, *arguments):
+    """``work(session, *arguments)`` in a read transaction of the worker's own engine; with the worker's id and
+    its peak memory."""
     from sqlalchemy.orm import Session
 
     from fleet.db.engine import make_engine
@@ -65,26 +75,50 @@ def _part_in_worker(url: str, pump_ids: list[int], now: datetime,
     engine = make_engine(url)
     try:
         with Session(engine) as session, session.begin():
-            part = analyse_part(session, pump_ids, now, settings)
+            done = work(session, *arguments)
     finally:
         engine.dispose()
-    return part, os.getpid(), peak_resident_mb()
+    return done, os.getpid(), peak_resident_mb()
 
 
-def parts_in_workers(url: str, id_parts: list[list[int]], now: datetime, settings: AnalysisSettings, workers: int,
-                     peaks_mb: dict[int, float] | None = None) -> list[Part]:
-    """Each list of pump ids analysed in one of ``workers`` processes; the parts in the order given."""
-    context = multiprocessing.get_context("spawn")
-    parts = []
-    with ProcessPoolExecutor(max_workers=min(workers, len(id_parts)), mp_context=context) as pool:
-        futures = [pool.submit(_part_in_worker, url, ids, now, settings) for ids in id_parts]
+def _pool(workers: int, parts: int) -> ProcessPoolExecutor:
+    """Up to ``workers`` processes forked from the preloaded fork server where there is one (Linux), each for one
+    part; elsewhere fresh interpreters ('spawn')."""
+    if "forkserver" in multiprocessing.get_all_start_methods():
+        context = multiprocessing.get_context("forkserver")
+        context.set_forkserver_preload(list(PRELOAD))
+    else:
+        context = multiprocessing.get_context("spawn")
+    return ProcessPoolExecutor(max_workers=min(workers, parts), mp_context=context, max_tasks_per_child=1)
+
+
+def _run(work, url: str, arguments: list[tuple], workers: int, peaks_mb: dict[int, float] | None) -> list:
+    """``work(session, *each)`` for each of ``arguments`` in the workers; the answers in the order given."""
+    answers = []
+    with _pool(workers, len(arguments)) as pool:
+        futures = [pool.submit(_in_worker, url, work, *each) for each in arguments]
         try:
             for future in futures:
-                part, pid, peak = future.result()
-                parts.append(part)
+                answer, pid, peak = future.result()
+                answers.append(answer)
                 if peaks_mb is not None and peak is not None:
                     peaks_mb[pid] = max(peak, peaks_mb.get(pid, 0.0))
         except BaseException:
             pool.shutdown(wait=True, cancel_futures=True)  # one part failed: the rest is not wanted
             raise
-    return parts
+    return answers
+
+
+def parts_in_workers(url: str, id_parts: list[list[int]], now: datetime, settings: AnalysisSettings, workers: int,
+                     peaks_mb: dict[int, float] | None = None) -> list[Part]:
+    """Each list of pump ids analysed in one of ``workers`` processes; the parts in the order given."""
+    return _run(analyse_part, url, [(ids, now, settings) for ids in id_parts], workers, peaks_mb)
+
+
+def spool_in_workers(url: str, id_parts: list[list[int]], paths: list[Path], now: datetime,
+                     settings: AnalysisSettings, workers: int,
+                     peaks_mb: dict[int, float] | None = None) -> list[PartSummary]:
+    """Each list of pump ids analysed in one of ``workers`` processes and written to its path
+    (fleet.services.analysis.spool.spool_part); their summaries in the order given."""
+    return _run(spool_part, url, [(ids, now, settings, path) for ids, path in zip(id_parts, paths, strict=True)],
+                workers, peaks_mb)

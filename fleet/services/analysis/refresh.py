@@ -13,7 +13,9 @@ from sqlalchemy.orm import Session, sessionmaker
 from fleet.db.models import AnalysisResult, Pump, PumpDataVersion
 from fleet.db.transaction import run_write
 from fleet.services.analysis.compute import Progress, compute
+from fleet.services.analysis.spool import spool_fleet, spool_folder
 from fleet.services.analysis.store import RefreshSummary, store
+from fleet.services.analysis.store_fleet import store_spooled
 from fleet.services.mail.send import deliver_due
 from fleet.trend.settings import AnalysisSettings
 
@@ -42,6 +44,9 @@ def any_stale(session: Session) -> bool:
 def refresh_analysis(session: Session, pump_ids=None, now: datetime | None = None,
                      settings: AnalysisSettings | None = None, progress: Progress | None = None) -> RefreshSummary:
     """Analyse ``pump_ids`` (None: the whole fleet) and store the results in the caller's transaction."""
+    if pump_ids is None:  # part by part (fleet.services.analysis.spool)
+        with spool_folder() as folder:
+            return store_spooled(session, spool_fleet(session, folder, now, settings), settings, progress)
     computed = compute(session, pump_ids, now, settings)
     if progress:
         progress(0, len(computed.results), "storing analysis")
@@ -58,17 +63,31 @@ def reanalyse(sessions: sessionmaker[Session], pump_ids=None, now: datetime | No
     anything written meanwhile. ``workers`` > 1 runs a full analysis's parts in that many processes
     (fleet.services.analysis.parallel): the read transaction here has written nothing, so they see what it sees
     or newer, and the data versions read first keep anything newer stale."""
-    with sessions() as session, session.begin():
-        computed = compute(session, pump_ids, now, settings, workers=workers)
-    if progress:
-        progress(0, len(computed.results), "storing analysis")
-    summary = run_write(sessions, lambda session: store(session, computed, settings), exclusive=STORE_LOCK)
-    if progress:
-        progress(len(computed.results), len(computed.results), "storing analysis")
+    if pump_ids is None:
+        summary = _fleet_afresh(sessions, now, settings, progress, workers)
+    else:
+        with sessions() as session, session.begin():
+            computed = compute(session, pump_ids, now, settings, workers=workers)
+        if progress:
+            progress(0, len(computed.results), "storing analysis")
+        summary = run_write(sessions, lambda session: store(session, computed, settings), exclusive=STORE_LOCK)
+        if progress:
+            progress(len(computed.results), len(computed.results), "storing analysis")
     bring_up_to_date(sessions, now, settings)
     if summary.alerts:
         deliver_due(sessions)
     return summary
+
+
+def _fleet_afresh(sessions: sessionmaker[Session], now: datetime | None, settings: AnalysisSettings | None,
+                  progress: Progress | None = None, workers: int = 1) -> RefreshSummary:
+    """The whole fleet analysed part by part into files in a read transaction, then stored part by part in one
+    write (fleet.services.analysis.spool, store_fleet): no process holds the whole fleet's results."""
+    with spool_folder() as folder:
+        with sessions() as session, session.begin():
+            spooled = spool_fleet(session, folder, now, settings, workers)
+        return run_write(sessions, lambda session: store_spooled(session, spooled, settings, progress),
+                         exclusive=STORE_LOCK)
 
 
 def bring_up_to_date(sessions: sessionmaker[Session], now: datetime | None = None,
@@ -84,8 +103,12 @@ def bring_up_to_date(sessions: sessionmaker[Session], now: datetime | None = Non
                 break
             total = session.scalar(select(func.count(Pump.id))) or 0
             full = len(stale) >= max(FULL_SHARE * total, 2)
-            computed = compute(session, None if full else sorted(stale), now, settings)
-        summary = run_write(sessions, lambda session, c=computed: store(session, c, settings), exclusive=STORE_LOCK)
+            computed = None if full else compute(session, sorted(stale), now, settings)
+        if full:
+            summary = _fleet_afresh(sessions, now, settings)
+        else:
+            summary = run_write(sessions, lambda session, c=computed: store(session, c, settings),
+                                exclusive=STORE_LOCK)
         alerts += summary.alerts
     if alerts and deliver:
         deliver_due(sessions)

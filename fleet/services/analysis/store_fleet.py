@@ -1,0 +1,92 @@
+"""Store a full analysis part by part, in the caller's one transaction: all of it is stored, or none of it.
+
+The whole-fleet counterpart of fleet.services.analysis.store.store, for a SpooledAnalysis
+(fleet.services.analysis.spool): each part is read from its file, given its pumps' prior figures from the fleet
+priors fitted once, and stored (results, status changes and their alerts, interval trends, service lives, forecast
+snapshots) before the next is read, so memory holds one part, never the fleet. Then, as after any full analysis,
+every kind's fleet life figures are refitted from the stored service lives and the whole list is re-ranked.
+The stored rows are those store() would write for the same analysis (tests/test_analysis_spooled.py).
+"""
+
+from collections import Counter
+
+from sqlalchemy import JSON, Text, bindparam, cast, delete, insert, select
+from sqlalchemy.orm import Session
+
+from fleet.db.models import AnalysisResult, FleetPrior, IntervalTrend, Pump, ServiceLife
+from fleet.jsonvalues import json_ready
+from fleet.services.analysis.compute import Progress
+from fleet.services.analysis.snapshots import keep_forecasts
+from fleet.services.analysis.spool import SpooledAnalysis, SpooledPart, read_part
+from fleet.services.analysis.store import RefreshSummary, _insert_results, _record_changes, refit_kinds, rerank
+from fleet.services.mail.outbox import queue_alerts
+from fleet.trend.engine import apply_priors, results_to_records
+from fleet.trend.settings import AnalysisSettings
+
+
+def store_spooled(session: Session, spooled: SpooledAnalysis, settings: AnalysisSettings | None = None,
+                  progress: Progress | None = None) -> RefreshSummary:
+    """Store every part of ``spooled`` where it is not older than what is stored; refit every kind's fleet life
+    figures; re-rank the service list. ``progress(pumps done, pumps, label)`` after each part."""
+    settings = settings or AnalysisSettings()
+    kinds = set(session.scalars(select(FleetPrior.kind)))
+    by_status: Counter = Counter()
+    stored = alerts = done = 0
+    for path in spooled.parts:
+        part = read_part(path)
+        count, part_kinds, part_alerts, statuses = _store_part(session, part, spooled)
+        stored, alerts, kinds = stored + count, alerts + part_alerts, kinds | part_kinds
+        by_status.update(statuses)
+        done += len(part.results)
+        del part  # before the next is read: one part in memory at a time
+        if progress:
+            progress(done, spooled.pumps, "storing analysis")
+    refit_kinds(session, kinds, spooled.computed_at, settings)
+    rerank(session)
+    return RefreshSummary(stored, {str(k): int(v) for k, v in by_status.items()}, True, spooled.computed_at,
+                          alerts)
+
+
+def _store_part(session: Session, part: SpooledPart, spooled: SpooledAnalysis):
+    """Store one part; returns (pumps stored, the kinds they had and have, alerts queued, statuses)."""
+    ids = [int(p) for p in part.results.index]
+    before = {pump_id: (version, kind, rank, key) for pump_id, version, kind, rank, key in session.execute(
+        select(AnalysisResult.pump_id, AnalysisResult.data_version, AnalysisResult.detail["kind"].as_string(),
+               AnalysisResult.rank, AnalysisResult.order_key).where(AnalysisResult.pump_id.in_(ids)))}
+    existing = set(session.scalars(select(Pump.id).where(Pump.id.in_(ids))))
+    keep = [p for p in ids if p in existing and spooled.versions.get(p, 0) >= before.get(p, (-1,))[0]]
+    kept = part.results.loc[keep].copy()
+    apply_priors(kept, spooled.priors, spooled.computed_at)  # the fleet's priors, fitted once from every part
+    records = results_to_records(kept)
+    # A pump whose kind changed leaves its former kind to refit too (as store's _kinds_moved does).
+    kinds = set(kept["kind"].dropna()) | {before[p][1] for p in keep if p in before and before[p][1]}
+    alerts = queue_alerts(session, _record_changes(session, records, spooled.computed_at))
+    session.execute(delete(AnalysisResult).where(AnalysisResult.pump_id.in_(keep)))
+    session.execute(delete(ServiceLife).where(ServiceLife.pump_id.in_(keep)))
+    session.execute(delete(IntervalTrend).where(IntervalTrend.pump_id.in_(keep)))
+    _insert_results(session, records, spooled, {p: before[p][2:] for p in keep if p in before})
+    _insert_trends(session, part, keep, spooled)
+    keep_forecasts(session, records, spooled.computed_at)
+    lives = part.lives[part.lives["pump_id"].isin(keep)]
+    if len(lives):
+        session.execute(insert(ServiceLife), [
+            {"pump_id": int(p), "interval_no": int(n), "entry_hours": float(e), "life_hours": float(h),
+             "failed": bool(f)}
+            for p, n, e, h, f in zip(lives["pump_id"], lives["interval_no"], lives["entry_hours"],
+                                     lives["life_hours"], lives["failed"], strict=True)])
+    return len(records), kinds, alerts, kept["status"].value_counts().to_dict()
+
+
+def _insert_trends(session: Session, part: SpooledPart, keep: list[int], spooled: SpooledAnalysis) -> None:
+    """Insert the part's interval trends, each fit as the JSON text the worker encoded (not encoded again)."""
+    trends = part.trends[part.trends["pump_id"].isin(keep)]
+    if not len(trends):
+        return
+    text = bindparam("fit_json", type_=Text())
+    fit = text if session.get_bind().dialect.name == "sqlite" else cast(text, JSON)  # SQLite keeps JSON as text
+    session.execute(insert(IntervalTrend).values(fit=fit), [
+        {"pump_id": int(p), "interval_no": int(n), "computed_at": spooled.computed_at, "is_current": bool(c),
+         "start_hours": json_ready(s), "current_hours": json_ready(h), "enough_data": bool(e), "fit_json": fit_json}
+        for p, n, c, s, h, e, fit_json in zip(trends["pump_id"], trends["interval_no"], trends["is_current"],
+                                               trends["start_hours"], trends["current_hours"], trends["enough_data"],
+                                               trends["fit_json"], strict=True)])
