@@ -12,7 +12,7 @@ in one run:
   PostgreSQL, psycopg executemany into a table made LIKE the readings table (its columns, defaults and indexes);
 - the full-fleet analysis (`fleet analyze`: load, analyse in --workers processes, store) against loading the same
   reading columns from the database into numpy arrays; each in its own process, which also reports its peak
-  memory: the analysis counts its own and each of its workers' (the sum of their high-water marks);
+  memory: the analysis the largest PSS of itself and all its workers at once, sampled (benchmarks/tree_memory.py);
 - the service list page (median of 20) and a pump page with five years of readings, through the Flask test client;
 - a new reading posted to POST /api/readings until its pump's refreshed analysis is visible to another session;
 - an overhaul and an oil sample imported, until the touched pumps' analysis is stored;
@@ -83,34 +83,44 @@ def _peak_mb() -> float:
 # --- the parts that run in their own process ---------------------------------------------------------------
 
 def child_analysis(url: str) -> dict:
-    """The full analysis `fleet analyze` runs (fleet.services.analysis.reanalyse): compute in a read transaction,
-    the parts in $FLEET_ANALYSIS_WORKERS processes, then store in one write transaction.
+    """The full analysis `fleet analyze` runs (fleet.services.analysis.reanalyse): the fleet computed part by part
+    into files in a read transaction, the parts in $FLEET_ANALYSIS_WORKERS processes, then stored part by part in
+    one write transaction.
 
-    Peak memory bounds what the run held at once from above: while the workers ran, this process's high-water mark
-    when they had finished plus each worker's (read by the worker after each part; the peaks need not coincide and
-    shared library pages count once per process); then, once they have exited, this process's mark at the end."""
+    Peak memory is the largest sum of the PSS of this process and all its descendants (the fork server and the
+    workers) sampled every 0.1 s (benchmarks/tree_memory.py): PSS counts the library pages the workers share with
+    the fork server once in all. Beside it, the same samples' RSS sum (shared pages once per process) and each
+    process's own high-water mark (VmHWM, RSS): this process's, and the largest of the workers' (one per part)."""
+    from benchmarks.tree_memory import TreeMemory
     from fleet.db.engine import make_engine, make_session_factory
-    from fleet.services.analysis.compute import compute
     from fleet.services.analysis.parallel import worker_count
-    from fleet.services.analysis.store import store
+    from fleet.services.analysis.spool import spool_fleet, spool_folder
+    from fleet.services.analysis.store_fleet import store_spooled
 
     workers = worker_count()
     engine = make_engine(url)
     sessions = make_session_factory(engine)
     start_mb = _peak_mb()
+    memory = TreeMemory().start()
     started = time.perf_counter()
-    with sessions() as session, session.begin():
-        computed = compute(session, None, workers=workers)
-    computed_s, computed_mb = time.perf_counter() - started, _peak_mb()  # the pool has exited here
-    with sessions.begin() as session:
-        summary = store(session, computed)
+    with spool_folder() as folder:
+        with sessions() as session, session.begin():
+            spooled = spool_fleet(session, folder, workers=workers)
+        computed_s, computed_mb = time.perf_counter() - started, _peak_mb()  # the pool has exited here
+        computed_pss_mb = memory.peak_pss_mb
+        with sessions.begin() as session:
+            summary = store_spooled(session, spooled)
     seconds = time.perf_counter() - started
+    memory.stop()
     engine.dispose()
     own_mb = _peak_mb()
-    worker_mb = sorted(computed.worker_peaks_mb.values())
-    return {"seconds": seconds, "compute_s": computed_s, "peak_mb": max(computed_mb + sum(worker_mb), own_mb),
-            "own_peak_mb": own_mb, "own_computed_mb": computed_mb, "worker_peaks_mb": worker_mb,
-            "workers": workers, "start_mb": start_mb, "pumps": summary.pumps, "by_status": summary.by_status}
+    worker_mb = sorted(spooled.worker_peaks_mb.values())
+    return {"seconds": seconds, "compute_s": computed_s, "peak_mb": memory.peak_pss_mb,
+            "computing_pss_mb": computed_pss_mb, "peak_rss_sum_mb": memory.peak_rss_mb,
+            "processes_at_peak": memory.processes_at_peak,
+            "own_peak_mb": own_mb, "own_computed_mb": computed_mb, "worker_peak_mb": max(worker_mb, default=0.0),
+            "worker_processes": len(worker_mb), "workers": workers, "start_mb": start_mb, "pumps": summary.pumps,
+            "by_status": summary.by_status}
 
 
 def _plain_connection(url: str):
@@ -410,7 +420,10 @@ def run(size_name: str, work: Path, database: str | None = None, workers: int | 
     figures.update({"analysis_s": analysis["seconds"], "analysis_peak_mb": analysis["peak_mb"],
                     "analysis_own_peak_mb": analysis["own_peak_mb"], "analysis_compute_s": analysis["compute_s"],
                     "analysis_own_computed_mb": analysis["own_computed_mb"],
-                    "analysis_worker_peaks_mb": analysis["worker_peaks_mb"],
+                    "analysis_computing_pss_mb": analysis["computing_pss_mb"],
+                    "analysis_peak_rss_sum_mb": analysis["peak_rss_sum_mb"],
+                    "analysis_worker_peak_mb": analysis["worker_peak_mb"],
+                    "analysis_worker_processes": analysis["worker_processes"],
                     "analysis_start_mb": analysis["start_mb"], "analysis_by_status": analysis["by_status"],
                     "analysis_pumps": analysis["pumps"], "load_floor_rows": load["rows"],
                     "load_floor_s": load["seconds"], "load_floor_peak_mb": load["peak_mb"],
@@ -434,7 +447,6 @@ def run(size_name: str, work: Path, database: str | None = None, workers: int | 
 
 def table(figures: dict) -> str:
     """The figures as the README's table rows."""
-    workers = len(figures["analysis_worker_peaks_mb"])
     rows = [
         ("database, workers, load average at start / end", figures["database"], f"{figures['workers']} worker(s)",
          " ".join(f"{v:.2f}" for v in figures["load_average_start"]) + " / "
@@ -445,10 +457,11 @@ def table(figures: dict) -> str:
         ("full analysis", f"{figures['analysis_s']:.1f} s (computing {figures['analysis_compute_s']:.1f} s)",
          f"load floor {figures['load_floor_s']:.1f} s",
          f"{figures['analysis_ratio']:.2f} x (target <= {TARGETS['analysis_ratio']}, < 60 s)"),
-        ("analysis peak memory", f"{figures['analysis_peak_mb']:,.0f} MB",
-         f"main {figures['analysis_own_computed_mb']:,.0f} MB + {workers} worker(s) "
-         + (", ".join(f"{v:,.0f}" for v in figures["analysis_worker_peaks_mb"]) + " MB" if workers else "(one part)")
-         + f"; then storing, main {figures['analysis_own_peak_mb']:,.0f} MB",
+        ("analysis peak memory, PSS of all its processes at once", f"{figures['analysis_peak_mb']:,.0f} MB",
+         f"computing {figures['analysis_computing_pss_mb']:,.0f} MB; RSS summed "
+         f"{figures['analysis_peak_rss_sum_mb']:,.0f} MB; main's own peak {figures['analysis_own_peak_mb']:,.0f} MB, "
+         f"a worker's "
+         f"{figures['analysis_worker_peak_mb']:,.0f} MB ({figures['analysis_worker_processes']} parts in workers)",
          f"target <= {TARGETS['analysis_peak_mb']:,.0f} MB"),
         ("service list page, median of 20", f"{figures['service_list_ms']:.0f} ms", "",
          f"target <= {TARGETS['service_list_ms']:.0f} ms"),

@@ -1,13 +1,15 @@
 """A full analysis computed part by part into files, so no process ever holds the whole fleet's results.
 
-Each part of the fleet (CHUNK_PUMPS pumps, fleet.services.analysis.compute) is analysed, in this process or in a worker
-(fleet.services.analysis.parallel), and written at once to its own file in a private temporary folder, in the form
-the store inserts: the results frame, the service lives, and each interval's trend with its fit already as JSON
-text (a fit holds every wear-law member's line, about 15 kB of JSON per interval: encoding it where it was
-computed keeps that work on the workers and out of the main process). Only each part's service lives and pump
-kinds come back to the caller, which fits the fleet priors once from all of them
-(fleet.trend.engine.fit_priors; each pump gets its figures when its part is stored:
-fleet.services.analysis.store_fleet). The folder is removed when the caller is done with it.
+Each part of the fleet (CHUNK_PUMPS pumps, fleet.services.analysis.compute) is analysed, in this process or in a
+worker (fleet.services.analysis.parallel), and written at once to its own file in a private temporary folder, in
+the form the store inserts: each pump's record (fleet.trend.engine.results_to_records) with its stored detail
+already as JSON text, the service lives, and each interval's trend with its fit as JSON text (a fit holds every
+wear-law member's line, about 15 kB of JSON per interval). Turning figures into records and JSON where they were
+computed keeps that work on the workers, in parallel, and out of the main process, which stores alone. The prior
+figures are the one part of a record left to fill: only each part's service lives and pump kinds come back to the
+caller, which fits the fleet priors once from all of them (fleet.trend.engine.fit_priors); each pump gets its
+figures when its part is stored (fleet.services.analysis.store_fleet; nothing else in a record depends on the
+priors). The folder is removed when the caller is done with it.
 """
 
 import json
@@ -26,8 +28,11 @@ from sqlalchemy.orm import Session
 
 import fleet.services.analysis.compute as compute_module
 from fleet.db.models import Pump
+from fleet.jsonvalues import json_ready
 from fleet.services.analysis.compute import analyse_part, data_versions
+from fleet.services.analysis.store import NOT_IN_DETAIL
 from fleet.timeutil import utcnow
+from fleet.trend.engine import results_to_records
 from fleet.trend.intervals import interval_lives
 from fleet.trend.settings import AnalysisSettings
 from fleet.trend.weibull import fit_fleet_priors
@@ -35,10 +40,13 @@ from fleet.trend.weibull import fit_fleet_priors
 
 @dataclass
 class SpooledPart:
-    """One part as its file holds it: results (one row per pump, index pump_id), service lives, interval trends
-    (the columns of table interval_trend, with ``fit_json`` the fit as JSON text)."""
+    """One part as its file holds it: its results (one row per pump, index pump_id: what the prior figures are
+    computed from), each pump's record and its detail as JSON text (in the order of the results), service lives,
+    interval trends (the columns of table interval_trend, with ``fit_json`` the fit as JSON text)."""
 
     results: pd.DataFrame
+    records: list[dict]
+    details: list[str]
     lives: pd.DataFrame
     trends: pd.DataFrame
 
@@ -68,11 +76,14 @@ def spool_part(session: Session, pump_ids: list[int], now: datetime, settings: A
                path: Path) -> PartSummary:
     """Analyse ``pump_ids`` and write the part to ``path`` (the same whether run here or in a worker)."""
     part = analyse_part(session, pump_ids, now, settings)
+    records = results_to_records(part.results)
+    details = [json.dumps(json_ready({k: v for k, v in record.items() if k not in NOT_IN_DETAIL}))
+               for record in records]
     trends = part.trends.drop(columns="fit")
     trends["fit_json"] = [json.dumps(fit) for fit in part.trends["fit"]]
     lives = interval_lives(part.intervals)
     with open(path, "wb") as out:
-        pickle.dump(SpooledPart(part.results, lives, trends), out, protocol=pickle.HIGHEST_PROTOCOL)
+        pickle.dump(SpooledPart(part.results, records, details, lives, trends), out, protocol=pickle.HIGHEST_PROTOCOL)
     return PartSummary(path, lives, part.results["kind"])
 
 

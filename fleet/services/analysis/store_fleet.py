@@ -18,10 +18,21 @@ from fleet.jsonvalues import json_ready
 from fleet.services.analysis.compute import Progress
 from fleet.services.analysis.snapshots import keep_forecasts
 from fleet.services.analysis.spool import SpooledAnalysis, SpooledPart, read_part
-from fleet.services.analysis.store import RefreshSummary, _insert_results, _record_changes, refit_kinds, rerank
+from fleet.services.analysis.store import (
+    COLUMNS,
+    ORDER_COLUMNS,
+    PRIOR_COLUMNS,
+    RefreshSummary,
+    _record_changes,
+    refit_kinds,
+    rerank,
+)
 from fleet.services.mail.outbox import queue_alerts
-from fleet.trend.engine import apply_priors, results_to_records
+from fleet.trend.engine import apply_priors
 from fleet.trend.settings import AnalysisSettings
+
+# What a record takes from the fleet priors (fleet.trend.engine.apply_priors), filled in as its part is stored.
+PRIOR_FIGURES = ("planning_horizon_hours", "prior_hours_to_overhaul", "prior_b10_hours")
 
 
 def store_spooled(session: Session, spooled: SpooledAnalysis, settings: AnalysisSettings | None = None,
@@ -55,21 +66,24 @@ def _store_part(session: Session, part: SpooledPart, spooled: SpooledAnalysis):
                AnalysisResult.rank, AnalysisResult.order_key).where(AnalysisResult.pump_id.in_(ids)))}
     existing = set(session.scalars(select(Pump.id).where(Pump.id.in_(ids))))
     keep = [p for p in ids if p in existing and spooled.versions.get(p, 0) >= before.get(p, (-1,))[0]]
+    position = {pump_id: n for n, pump_id in enumerate(ids)}
     kept = part.results.loc[keep].copy()
     apply_priors(kept, spooled.priors, spooled.computed_at)  # the fleet's priors, fitted once from every part
-    records = results_to_records(kept)
+    records, details = [part.records[position[p]] for p in keep], [part.details[position[p]] for p in keep]
+    for record, values in zip(records, zip(*(kept[name] for name in PRIOR_FIGURES), strict=True), strict=True):
+        record.update(zip(PRIOR_FIGURES, (json_ready(value) for value in values), strict=True))
     # A pump whose kind changed leaves its former kind to refit too (as store's _kinds_moved does).
     kinds = set(kept["kind"].dropna()) | {before[p][1] for p in keep if p in before and before[p][1]}
     alerts = queue_alerts(session, _record_changes(session, records, spooled.computed_at))
     session.execute(delete(AnalysisResult).where(AnalysisResult.pump_id.in_(keep)))
     session.execute(delete(ServiceLife).where(ServiceLife.pump_id.in_(keep)))
     session.execute(delete(IntervalTrend).where(IntervalTrend.pump_id.in_(keep)))
-    _insert_results(session, records, spooled, {p: before[p][2:] for p in keep if p in before})
+    _insert_results(session, records, details, {p: before[p][2:] for p in keep if p in before}, spooled)
     _insert_trends(session, part, keep, spooled)
     keep_forecasts(session, records, spooled.computed_at)
     lives = part.lives[part.lives["pump_id"].isin(keep)]
     if len(lives):
-        session.execute(insert(ServiceLife), [
+        session.execute(insert(ServiceLife.__table__), [
             {"pump_id": int(p), "interval_no": int(n), "entry_hours": float(e), "life_hours": float(h),
              "failed": bool(f)}
             for p, n, e, h, f in zip(lives["pump_id"], lives["interval_no"], lives["entry_hours"],
@@ -77,14 +91,35 @@ def _store_part(session: Session, part: SpooledPart, spooled: SpooledAnalysis):
     return len(records), kinds, alerts, kept["status"].value_counts().to_dict()
 
 
+def _json_text(session: Session, name: str):
+    """A parameter carrying JSON text as it goes into a JSON column (not encoded again)."""
+    text = bindparam(name, type_=Text())
+    return text if session.get_bind().dialect.name == "sqlite" else cast(text, JSON)  # SQLite keeps JSON as text
+
+
+def _insert_results(session: Session, records: list[dict], details: list[str],
+                    placed: dict[int, tuple[int, bytes | None]], spooled: SpooledAnalysis) -> None:
+    """The rows store's _insert_results writes, with each detail as the JSON text the worker encoded: each keeps
+    its pump's former place in the order until the list is re-ranked (a pump new to the list: rank 0, no key)."""
+    if not records:
+        return
+    rows = []
+    for record, detail in zip(records, details, strict=True):
+        rank, key = placed.get(record["pump_id"], (0, None))
+        rows.append({
+            "pump_id": record["pump_id"], "computed_at": spooled.computed_at, "rank": rank, "order_key": key,
+            "detail_json": detail, "data_version": spooled.versions.get(record["pump_id"], 0),
+            **{k: record.get(k) for k in (*COLUMNS, *ORDER_COLUMNS, *PRIOR_COLUMNS)},
+        })
+    session.execute(insert(AnalysisResult.__table__).values(detail=_json_text(session, "detail_json")), rows)
+
+
 def _insert_trends(session: Session, part: SpooledPart, keep: list[int], spooled: SpooledAnalysis) -> None:
-    """Insert the part's interval trends, each fit as the JSON text the worker encoded (not encoded again)."""
+    """Insert the part's interval trends, each fit as the JSON text the worker encoded."""
     trends = part.trends[part.trends["pump_id"].isin(keep)]
     if not len(trends):
         return
-    text = bindparam("fit_json", type_=Text())
-    fit = text if session.get_bind().dialect.name == "sqlite" else cast(text, JSON)  # SQLite keeps JSON as text
-    session.execute(insert(IntervalTrend).values(fit=fit), [
+    session.execute(insert(IntervalTrend.__table__).values(fit=_json_text(session, "fit_json")), [
         {"pump_id": int(p), "interval_no": int(n), "computed_at": spooled.computed_at, "is_current": bool(c),
          "start_hours": json_ready(s), "current_hours": json_ready(h), "enough_data": bool(e), "fit_json": fit_json}
         for p, n, c, s, h, e, fit_json in zip(trends["pump_id"], trends["interval_no"], trends["is_current"],
