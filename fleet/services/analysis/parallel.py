@@ -25,7 +25,8 @@ from fleet.trend.settings import AnalysisSettings
 
 WORKERS_ENV = "FLEET_ANALYSIS_WORKERS"
 # Imported once by the fork server, so every worker forked from it shares these modules' pages.
-PRELOAD = ("numpy", "pandas", "scipy.stats", "scipy.optimize", "sqlalchemy.orm", "fleet.db.engine",
+PRELOAD = ("numpy", "pandas", "scipy.stats", "scipy.optimize", "sqlalchemy.orm", "sqlalchemy.dialects.sqlite",
+           "sqlalchemy.dialects.postgresql.psycopg", "fleet.db.engine",
            "fleet.services.analysis.spool")
 
 
