@@ -4,7 +4,7 @@ Each part of the fleet (CHUNK_PUMPS pumps, fleet.services.analysis.compute) is a
 worker (fleet.services.analysis.parallel), and written at once to its own file in a private temporary folder, in
 the form the store inserts: each pump's record (fleet.trend.engine.results_to_records) with its stored detail
 already as JSON text, the service lives, and each interval's trend with its fit as JSON text (a fit holds every
-wear-law member's line, about 15 kB of JSON per interval). Turning figures into records and JSON where they were
+wear-law member's line, about 26 kB of JSON per interval). Turning figures into records and JSON where they were
 computed keeps that work on the workers, in parallel, and out of the main process, which stores alone. The prior
 figures are the one part of a record left to fill: only each part's service lives and pump kinds come back to the
 caller, which fits the fleet priors once from all of them (fleet.trend.engine.fit_priors); each pump gets its
