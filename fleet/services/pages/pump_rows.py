@@ -121,13 +121,14 @@ def _pump_frame(session: Session, pump: Pump, here: Stay | None) -> pd.DataFrame
     """load_pumps' row for this pump: its columns, where it sits now, its site's energy figures, its limits."""
     row = {column.key: getattr(pump, column.key) for column in Pump.__table__.columns}
     row["pump_id"], row["pump"] = row.pop("id"), row.pop("serial")
-    site = None if here is None else session.get(Site, here.site_id)
-    row.update(site=None if here is None else here.site, machine=None if here is None else here.machine,
-               position=None if here is None else here.position,
-               machine_id=np.nan if here is None else here.machine_id, site_id=np.nan if here is None else here.site_id,
-               tariff_per_kwh=None if site is None else site.tariff_per_kwh,
-               motor_efficiency=None if site is None else site.motor_efficiency,
-               currency=None if site is None else site.currency)
+    if here is None:  # in the store: no place, and so no site's tariff (as load_pumps leaves them)
+        row.update(dict.fromkeys(("site", "machine", "position", "machine_id", "site_id")),
+                   **dict.fromkeys(("tariff_per_kwh", "motor_efficiency", "currency"), np.nan))
+    else:
+        site = session.get(Site, here.site_id)
+        row.update(site=here.site, machine=here.machine, position=here.position, machine_id=here.machine_id,
+                   site_id=here.site_id, tariff_per_kwh=site.tariff_per_kwh, motor_efficiency=site.motor_efficiency,
+                   currency=site.currency)
     if row["max_flow_lpm"] is None:
         row["max_flow_lpm"] = theoretical_flow_lpm(pump.displacement_cc, pump.rated_speed_rpm)
     defaults = pd.DataFrame(session.execute(select(LimitDefault.__table__)).mappings().all(),
