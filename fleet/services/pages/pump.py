@@ -189,15 +189,16 @@ def _reading_rows(session: Session, rows: PumpRows, referred: pd.DataFrame, zone
     return [dict(zip(READING_COLUMNS, row, strict=True)) for row in zip(*values, strict=True)]
 
 
-def _current_fit(session: Session, pump_id: int) -> pd.Series | None:
+def _current_fit(session: Session, pump_id: int) -> dict | None:
     """The stored fit of the pump's current service interval (as one row of the engine's fits), or None."""
     kept = session.scalar(select(IntervalTrend).where(IntervalTrend.pump_id == pump_id, IntervalTrend.is_current))
     if kept is None:
         return None
-    return fit_row(kept.fit, kept.interval_no, kept.start_hours, kept.current_hours)
+    # as a plain mapping: the band reads each of the wear laws' members' fields, a dict lookup each
+    return fit_row(kept.fit, kept.interval_no, kept.start_hours, kept.current_hours).to_dict()
 
 
-def _trend(fit: pd.Series | None, pump: Pump) -> dict | None:
+def _trend(fit: dict | None, pump: Pump) -> dict | None:
     """The fitted eta_v,ref line of the current interval, its band, and its forecast to the limit."""
     if fit is None or fit["slip_enough_data"] is not True:
         return None
@@ -235,7 +236,7 @@ def _code(sample: OilSample) -> str | None:
         return "/".join("-" if c is None else str(c) for c in (sample.code_4, sample.code_6, sample.code_14))
 
 
-def _flow_test(pump: Pump, rows: PumpRows, referred: pd.DataFrame, fit: pd.Series | None, zone_text: str
+def _flow_test(pump: Pump, rows: PumpRows, referred: pd.DataFrame, fit: dict | None, zone_text: str
                ) -> dict | None:
     """The latest multi-point flow test, and the line a pump with the interval's first fitted slip would give."""
     tested = rows.all_readings[rows.all_readings["reading_id"].isin(rows.all_flow_points["reading_id"])]
@@ -264,7 +265,7 @@ def _flow_test(pump: Pump, rows: PumpRows, referred: pd.DataFrame, fit: pd.Serie
     }
 
 
-def _baseline_slip(pump: Pump, fit: pd.Series | None) -> tuple[float, str]:
+def _baseline_slip(pump: Pump, fit: dict | None) -> tuple[float, str]:
     """Referred slip at rated pressure the baseline assumes, and where it comes from."""
     if fit is not None and fit["slip_enough_data"] is True and np.isfinite(float(fit["slip_a"])):
         return float(np.exp(float(fit["slip_a"]))), "the start of this service interval's fitted trend"
