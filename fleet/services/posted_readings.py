@@ -15,7 +15,7 @@ import math
 from dataclasses import dataclass, field
 
 import pandas as pd
-from sqlalchemy import insert, select, tuple_
+from sqlalchemy import insert, or_, select
 from sqlalchemy.orm import Session
 
 from fleet.db import changes
@@ -108,8 +108,8 @@ def store_plainly(session: Session, rows: list[dict[str, str]], client_ids: list
     repeats = _repeats(session, values, client_ids)
     fresh = [i for i in range(len(rows)) if i not in repeats]
     _check_places(session, [v["pump"] for v in values], places, fresh)
-    if fresh and session.execute(select(Reading.id).where(
-            tuple_(Reading.pump_id, Reading.taken_at).in_([keys[i] for i in fresh])).limit(1)).first():
+    if fresh and session.execute(select(Reading.id).where(or_(*(
+            (Reading.pump_id == keys[i][0]) & (Reading.taken_at == keys[i][1]) for i in fresh))).limit(1)).first():
         return None  # a reading of that pump at that time is stored: the importer names it
     doubts = _doubts(session, values, keys, fresh)
     created_at = utcnow()
