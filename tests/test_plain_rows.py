@@ -44,7 +44,8 @@ VARIANTS = [
     {"taken_by": "A. Tech"}, {"taken_by": "x" * 120}, {"taken_by": "x" * 121}, {"note": "n\x00ul"},
     {"note": "bad \udc80"}, {"note": "long " * 500}, {"source": "API"}, {"source": "hand-held"},
     {"source": "form"}, {"hours": "\u0661\u0662\u0663"}, {"taken_at": "\u0662\u0660\u0662\u0666-05-30 08:00"},
-    {"hours": "1e-400"}, {"speed": "1450."}, {"pump": ""}, {"pump": "  P-1  "}, {"unknown_column": "3"}, {"pump": "\x00"},
+    {"hours": "1e-400"}, {"speed": "1450."}, {"pump": ""}, {"pump": "  P-1  "}, {"unknown_column": "3"},
+    {"pump": "\x00"},
 ]
 ZONES = [None, "America/Chicago", "Europe/Berlin"]
 
