@@ -143,3 +143,18 @@ def test_a_post_the_plain_reader_declines_is_stored_by_the_importer_with_its_wor
     with demo_db.sessions() as session:  # the same pump and time again: the importer's words
         assert store_plainly(session, rows, [None], [None]) is None
     assert outcome.created == 1 and np.isfinite(outcome.readings[0]["id"])
+
+
+def test_a_posted_reading_is_not_counted_as_corrected_by_either_path(demo_db, monkeypatch):
+    """Keeping a reading's client_id is part of storing it: no 'update' in the audit trail (fleet.db.queries)."""
+    from fleet.db.queries import corrected_readings
+
+    plain = perform(demo_db.sessions, lambda s: store_posted(s, _post_rows(demo_db, "EY-104", 40, 4.0),
+                                                             ["audit-plain"], [None])).value
+    monkeypatch.setattr(posted_readings, "store_plainly", lambda *args, **kwargs: None)
+    imported = perform(demo_db.sessions, lambda s: store_posted(s, _post_rows(demo_db, "EY-105", 40, 4.0),
+                                                                ["audit-imported"], [None])).value
+    ids = [plain.readings[0]["id"], imported.readings[0]["id"]]
+    with demo_db.sessions() as session:
+        assert corrected_readings(session, ids) == set()
+        assert [session.get(Reading, i).client_id for i in ids] == ["audit-plain", "audit-imported"]
