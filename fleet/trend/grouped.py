@@ -1,0 +1,62 @@
+"""Reductions of a value per group over plain arrays (group codes 0..n_groups-1), for one pump or many alike.
+
+What pandas' groupby gives (missing values skipped; NaN for a group with none), without building a Series and
+a grouper per call: the engine calls these hundreds of times per analysis, mostly on one pump's readings.
+"""
+
+import numpy as np
+
+
+def pair_codes(first: np.ndarray, second: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """The distinct (first, second) integer pairs, sorted (shape (n, 2)), and each row's code 0..n-1 among them."""
+    pairs = np.column_stack([np.asarray(first, dtype=np.int64), np.asarray(second, dtype=np.int64)])
+    unique, codes = np.unique(pairs, axis=0, return_inverse=True)
+    return unique, codes.reshape(-1)
+
+
+def group_time_max(group: np.ndarray, times: np.ndarray, n_groups: int, smallest: bool = False) -> np.ndarray:
+    """The latest (or earliest) time of each group, missing times skipped; NaT for a group with none."""
+    known = ~np.isnat(times)
+    ticks = times.view(np.int64)
+    fill = np.iinfo(np.int64).max if smallest else np.iinfo(np.int64).min
+    out = np.full(n_groups, fill, dtype=np.int64)
+    (np.minimum if smallest else np.maximum).at(out, group[known], ticks[known])
+    out = out.view(times.dtype)
+    out[np.bincount(group[known], minlength=n_groups) == 0] = np.datetime64("NaT")
+    return out
+
+
+def group_max(group: np.ndarray, values: np.ndarray, n_groups: int) -> np.ndarray:
+    out = np.full(n_groups, np.nan)
+    np.fmax.at(out, group, values)  # fmax skips NaN
+    return out
+
+
+def group_min(group: np.ndarray, values: np.ndarray, n_groups: int) -> np.ndarray:
+    out = np.full(n_groups, np.nan)
+    np.fmin.at(out, group, values)
+    return out
+
+
+def group_first(group: np.ndarray, values: np.ndarray, n_groups: int) -> np.ndarray:
+    """The first non-missing value of each group in the arrays' order."""
+    known = ~np.isnan(values)
+    codes, first = np.unique(group[known], return_index=True)
+    out = np.full(n_groups, np.nan)
+    out[codes] = values[known][first]
+    return out
+
+
+def group_median(group: np.ndarray, values: np.ndarray, n_groups: int) -> np.ndarray:
+    """The median of each group: the middle value, or the mean of the two middle ones, of its sorted values."""
+    known = ~np.isnan(values)
+    g, v = group[known], values[known]
+    order = np.lexsort((v, g))
+    v = v[order]
+    counts = np.bincount(g, minlength=n_groups)
+    starts = np.cumsum(counts) - counts
+    has = counts > 0
+    out = np.full(n_groups, np.nan)
+    low, high = (starts + (counts - 1) // 2)[has], (starts + counts // 2)[has]
+    out[has] = (v[low] + v[high]) / 2
+    return out
