@@ -13,7 +13,7 @@ from fleet.frames import READING_COLUMNS
 from fleet.physics.pump import theoretical_flow_lpm
 from fleet.trend.degradation import QUANTITIES, fit_degradation, not_enough_reason, summarise_fits
 from fleet.trend.energy import leakage_energy, typical_pressure_bar
-from fleet.trend.grouped import group_median
+from fleet.trend.grouped import group_median, pair_codes
 from fleet.trend.intervals import assign_intervals, interval_lives
 from fleet.trend.linear import t_quantile
 from fleet.trend.oil_condition import OIL_COLUMNS, oil_condition
@@ -21,8 +21,8 @@ from fleet.trend.referral import refer_readings
 from fleet.trend.remaining_life import (
     LIMIT_NAMES,
     dates_at_hours,
-    hours_per_day,
     hours_to_limits,
+    interval_hours_per_day,
     limit_dates,
     limit_flows_lpm,
 )
@@ -234,9 +234,14 @@ def analyze_fleet(
     t = t_quantile(s.confidence, fits["slip_dof"].to_numpy(float))
     with np.errstate(invalid="ignore"):
         fits["slip_b_significant"] = fits["slip_b"].to_numpy(float) > t * np.sqrt(fits["slip_var_b"].to_numpy(float))
-    fkeys = pd.MultiIndex.from_frame(fits[KEYS])
-    fits["hours_per_day"] = hours_per_day(referred, s).reindex(fkeys).to_numpy()
-    fits["typical_pressure_bar"] = typical_pressure_bar(referred, s.typical_window_days).reindex(fkeys).to_numpy()
+    # The fits' rows are the referred readings' pump intervals in order (fit_degradation), so codes line up.
+    pairs, group = pair_codes(referred["pump_id"].to_numpy(), referred["interval_no"].to_numpy())
+    assert len(pairs) == len(fits)
+    taken = referred["taken_at"].to_numpy()
+    fits["hours_per_day"] = interval_hours_per_day(group, taken, referred["hours"].to_numpy(float), len(fits), s)
+    fits["typical_pressure_bar"] = typical_pressure_bar(group, taken, referred["pressure_bar"].to_numpy(float),
+                                                        referred["flag"].isna().to_numpy(), len(fits),
+                                                        s.typical_window_days)
 
     # One row per pump: its current interval.
     current_iv = intervals[intervals["is_current"]].set_index("pump_id").reindex(pump_tab.index)

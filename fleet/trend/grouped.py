@@ -5,6 +5,7 @@ a grouper per call: the engine calls these hundreds of times per analysis, mostl
 """
 
 import numpy as np
+import pandas as pd
 
 
 def pair_codes(first: np.ndarray, second: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -45,6 +46,26 @@ def group_first(group: np.ndarray, values: np.ndarray, n_groups: int) -> np.ndar
     out = np.full(n_groups, np.nan)
     out[codes] = values[known][first]
     return out
+
+
+def seconds(ticks: np.ndarray, times: np.ndarray) -> np.ndarray:
+    """Differences of ``times``' integer ticks in seconds, as pandas' Timedelta.total_seconds gives them."""
+    per_second = np.timedelta64(1, "s") // np.timedelta64(1, np.datetime_data(times.dtype)[0])
+    return ticks / per_second
+
+
+def time_span_days(group: np.ndarray, times: np.ndarray, n_groups: int) -> np.ndarray:
+    """Days from each group's earliest to its latest time; NaN for a group without times."""
+    first = group_time_max(group, times, n_groups, smallest=True)
+    last = group_time_max(group, times, n_groups)
+    ticks = np.where(np.isnat(last), 0, last.view(np.int64) - first.view(np.int64))
+    return np.where(np.isnat(last), np.nan, seconds(ticks, times) / 86400.0)
+
+
+def within_days_of_last(group: np.ndarray, times: np.ndarray, n_groups: int, days: float) -> np.ndarray:
+    """Rows whose time is no more than ``days`` before their group's latest time (False for a missing time)."""
+    latest = group_time_max(group, times, n_groups)[group]
+    return ~np.isnat(times) & (times >= latest - np.timedelta64(pd.Timedelta(days=days)))
 
 
 def group_median(group: np.ndarray, values: np.ndarray, n_groups: int) -> np.ndarray:

@@ -11,6 +11,7 @@ import numpy as np
 import pandas as pd
 
 from fleet.trend.degradation import QUANTITIES, not_enough_reason
+from fleet.trend.grouped import group_max, group_min, pair_codes, time_span_days, within_days_of_last
 from fleet.trend.linear import LineFit, line_variance, t_quantile
 from fleet.trend.model_average import crossing_band, value_band
 from fleet.trend.settings import AnalysisSettings
@@ -101,27 +102,37 @@ def hours_per_day(readings: pd.DataFrame, settings: AnalysisSettings) -> pd.Seri
     Uses the readings of the last `hours_per_day_window_days` before the interval's last reading, falling
     back to the whole interval when those span less than a week. NaN with no usable span; clipped to 0..24.
     """
-    r = readings.loc[
-        np.isfinite(pd.to_numeric(readings["hours"], errors="coerce")) & readings["taken_at"].notna(),
-        ["pump_id", "interval_no", "taken_at", "hours"],
-    ]
-    keys = ["pump_id", "interval_no"]
-    last_at = r.groupby(keys)["taken_at"].transform("max")
-    recent = r[r["taken_at"] >= last_at - pd.Timedelta(days=settings.hours_per_day_window_days)]
+    pairs, group = pair_codes(readings["pump_id"].to_numpy(), readings["interval_no"].to_numpy())
+    taken = pd.to_datetime(readings["taken_at"]).to_numpy()
+    hours = pd.to_numeric(readings["hours"], errors="coerce").to_numpy(float)
+    rate = interval_hours_per_day(group, taken, hours, len(pairs), settings)
+    used = np.bincount(group[_dated_hours(taken, hours)], minlength=len(pairs)) > 0
+    index = pd.MultiIndex.from_arrays([pairs[used, 0], pairs[used, 1]], names=["pump_id", "interval_no"])
+    return pd.Series(rate[used], index=index, name="hours_per_day")
 
-    def rate(frame: pd.DataFrame) -> tuple[pd.Series, pd.Series]:
-        g = frame.groupby(keys)
-        days = (g["taken_at"].max() - g["taken_at"].min()).dt.total_seconds() / 86400.0
-        run = g["hours"].max() - g["hours"].min()
-        return run, days
+
+def _dated_hours(taken: np.ndarray, hours: np.ndarray) -> np.ndarray:
+    return np.isfinite(hours) & ~np.isnat(taken)
+
+
+def interval_hours_per_day(group: np.ndarray, taken: np.ndarray, hours: np.ndarray, n_groups: int,
+                           settings: AnalysisSettings) -> np.ndarray:
+    """hours_per_day over plain arrays: readings' group codes (0..n_groups-1), times and hour-meter values."""
+    usable = _dated_hours(taken, hours)
+    g, t, h = group[usable], taken[usable], hours[usable]
+    recent = within_days_of_last(g, t, n_groups, settings.hours_per_day_window_days)
+
+    def rate(keep):
+        run = group_max(g[keep], h[keep], n_groups) - group_min(g[keep], h[keep], n_groups)
+        return run, time_span_days(g[keep], t[keep], n_groups)
 
     run_recent, days_recent = rate(recent)
-    run_all, days_all = rate(r)
-    use_recent = days_recent.reindex(days_all.index) >= 7.0
-    run = run_recent.reindex(days_all.index).where(use_recent, run_all)
-    days = days_recent.reindex(days_all.index).where(use_recent, days_all)
-    per_day = (run / days.where(days > 0)).clip(lower=0.0, upper=24.0)
-    return per_day.rename("hours_per_day")
+    run_all, days_all = rate(np.ones(len(g), dtype=bool))
+    use_recent = days_recent >= 7.0
+    run = np.where(use_recent, run_recent, run_all)
+    days = np.where(use_recent, days_recent, days_all)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        return np.clip(run / np.where(days > 0, days, np.nan), 0.0, 24.0)
 
 
 def limit_dates(last_reading_at: pd.Series, remaining_hours, per_day) -> pd.Series:
