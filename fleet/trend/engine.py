@@ -28,10 +28,11 @@ from fleet.trend.remaining_life import (
 )
 from fleet.trend.settings import AnalysisSettings
 from fleet.trend.status import assess_status, horizon_remaining_hours
-from fleet.trend.wear_laws import LAWS, MEMBERS
+from fleet.trend.wear_laws import FIELDS, LAWS, MEMBERS
 from fleet.trend.weibull import expected_overhauls, fit_fleet_priors, mean_residual_life
 
 KEYS = ["pump_id", "interval_no"]
+_MEMBER_LINES = frozenset(f"{q}_{m.name}_{f}" for q in QUANTITIES for m in MEMBERS for f in FIELDS if f != "weight")
 
 
 @dataclass
@@ -247,7 +248,8 @@ def analyze_fleet(
     current_iv = intervals[intervals["is_current"]].set_index("pump_id").reindex(pump_tab.index)
     current_iv["interval_no"] = current_iv["interval_no"].fillna(0).astype(np.int64)
     cur_keys = pd.MultiIndex.from_arrays([pump_tab.index, current_iv["interval_no"]])
-    cur = fits.set_index(KEYS).reindex(cur_keys)
+    # The members' lines (most of the fits' columns) stay out: the pump rows read only their weights.
+    cur = fits[[c for c in fits.columns if c not in _MEMBER_LINES]].set_index(KEYS).reindex(cur_keys)
     cur.index = pump_tab.index
     cur_limits = {
         q: limit_flows_lpm(

@@ -167,21 +167,20 @@ def crossing_quantiles(fits: LawFits, limit, now_hours, levels, confidence: floa
         return 1.0 - value_cdf(fits, hours, limit_g[:, None] if np.ndim(hours) == 2 else limit_g, confidence, pairs)
 
     on_grid = crossed(grid)
-    rows = np.arange(len(now))
-    out = []
-    for level in levels:
-        reached = on_grid >= level
-        any_reached = reached.any(axis=1) & ok
-        first = np.argmax(reached, axis=1)
-        hi = grid[rows, first]
-        lo = grid[rows, np.maximum(first - 1, 0)]
-        for _ in range(_BISECTIONS):
-            mid = 0.5 * (lo + hi)
-            up = crossed(mid) >= level
-            lo, hi = np.where(up, lo, mid), np.where(up, mid, hi)
-        x = np.where(first == 0, 0.0, hi)
-        out.append(np.where(any_reached, x, np.nan))
-    return out
+    # Every level's bracket searched at once: one column per level, one evaluation of the mixture per step.
+    levels = np.asarray(levels, dtype=float)[None, :]
+    reached = on_grid[:, :, None] >= levels[:, None, :]
+    any_reached = reached.any(axis=1) & ok[:, None]
+    first = np.argmax(reached, axis=1)
+    rows = np.arange(len(now))[:, None]
+    hi = grid[rows, first]
+    lo = grid[rows, np.maximum(first - 1, 0)]
+    for _ in range(_BISECTIONS):
+        mid = 0.5 * (lo + hi)
+        up = crossed(mid) >= levels
+        lo, hi = np.where(up, lo, mid), np.where(up, mid, hi)
+    x = np.where(any_reached, np.where(first == 0, 0.0, hi), np.nan)
+    return list(x.T)
 
 
 def law_alone(fits: LawFits, law: str, rows: np.ndarray | None = None) -> LawFits:
