@@ -107,7 +107,8 @@ def value_quantile(fits: LawFits, hours, level: float, confidence: float) -> np.
     expand = (slice(None), None) if hours.ndim == 2 else (slice(None),)
     lo = np.full(hours.shape, np.inf)
     hi = np.full(hours.shape, -np.inf)
-    for j, m in enumerate(MEMBERS):
+    for j in np.flatnonzero((fits.weight > 0).any(axis=0)):  # a member without weight widens no bracket
+        m = MEMBERS[j]
         used = (fits.weight[:, j] > 0)[expand]
         mean, sd = _moments(fits, j, hours)
         spread = 10.0 * sd
@@ -130,7 +131,8 @@ def averaged_slope(fits: LawFits, hours) -> np.ndarray:
     """Model-weighted mean of the members' growth rates dq/dh (L/min per hour) at `hours` (per group)."""
     h = np.asarray(hours, dtype=float)
     total = np.zeros(len(fits))
-    for j, m in enumerate(MEMBERS):
+    for j in np.flatnonzero((fits.weight > 0).any(axis=0)):  # a member without weight adds nothing
+        m = MEMBERS[j]
         w, a, b = fits.weight[:, j], fits.a[:, j], fits.b[:, j]
         with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
             if m.log_space:
