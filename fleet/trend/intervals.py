@@ -32,13 +32,13 @@ INTERVAL_COLUMNS = [
 ]
 
 
-def _day_number(times: pd.Series) -> np.ndarray:
-    days = pd.to_datetime(times).dt.normalize().to_numpy(dtype="datetime64[D]")
+def _day_number(times: np.ndarray) -> np.ndarray:
+    days = np.asarray(times).astype("datetime64[D]")  # floors to the day, as normalising does
     return days.astype(np.int64).astype(float)
 
 
-def _order_key(times: pd.Series, hours: pd.Series, missing_hours: float) -> np.ndarray:
-    h = pd.to_numeric(hours, errors="coerce").to_numpy(dtype=float)
+def _order_key(times: np.ndarray, hours: np.ndarray, missing_hours: float) -> np.ndarray:
+    h = np.asarray(hours, dtype=float)
     h = np.where(np.isfinite(h), np.clip(h, 0.0, _END_OF_DAY), missing_hours)
     return _day_number(times) * _DAY_SLOT + h
 
@@ -55,13 +55,23 @@ def reset_events(events: pd.DataFrame | None) -> pd.DataFrame:
                 "kind": pd.Series(dtype=object),
             }
         )
-    resets = events.loc[events["kind"].isin(RESETS_INTERVAL), cols].copy()
-    resets["date"] = pd.to_datetime(resets["date"])
+    chosen = events["kind"].isin(RESETS_INTERVAL).to_numpy()
+    pump = events["pump_id"].to_numpy(np.int64)[chosen]
+    date = pd.to_datetime(events["date"]).to_numpy()[chosen]
+    hours = pd.to_numeric(events["hours"], errors="coerce").to_numpy(float)[chosen]
     # An event without hours applies to every reading of its day ("at or before it").
-    resets["key"] = _order_key(resets["date"], resets["hours"], missing_hours=-1.0)
-    resets = resets.sort_values(["pump_id", "key"], kind="stable").reset_index(drop=True)
-    resets["interval_no"] = resets.groupby("pump_id").cumcount().astype(np.int64) + 1
-    return resets
+    key = _order_key(date, hours, missing_hours=-1.0)
+    order = np.lexsort((key, pump))  # stable: by pump, then key
+    pump = pump[order]
+    first_of_pump = np.searchsorted(pump, pump, side="left")
+    return pd.DataFrame({
+        "pump_id": pump,
+        "date": date[order],
+        "hours": hours[order],
+        "kind": pd.Series(events["kind"].to_numpy(object)[chosen][order], dtype=object),
+        "key": key[order],
+        "interval_no": np.arange(len(pump), dtype=np.int64) - first_of_pump + 1,
+    }, columns=[*cols, "key", "interval_no"])
 
 
 def _resets_before(resets: pd.DataFrame, pump_ids: np.ndarray, key: np.ndarray) -> np.ndarray:
@@ -90,7 +100,8 @@ def assign_intervals(readings: pd.DataFrame, events: pd.DataFrame | None) -> tup
     resets = reset_events(events)
     r = readings.copy()
     r["taken_at"] = pd.to_datetime(r["taken_at"])
-    key = _order_key(r["taken_at"], r["hours"], missing_hours=_END_OF_DAY)
+    key = _order_key(r["taken_at"].to_numpy(), pd.to_numeric(r["hours"], errors="coerce").to_numpy(float),
+                     missing_hours=_END_OF_DAY)
     r["interval_no"] = _resets_before(resets, r["pump_id"].to_numpy(np.int64), key)
 
     hours = pd.to_numeric(r["hours"], errors="coerce").to_numpy(dtype=float)
