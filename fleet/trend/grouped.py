@@ -10,9 +10,14 @@ import pandas as pd
 
 def pair_codes(first: np.ndarray, second: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """The distinct (first, second) integer pairs, sorted (shape (n, 2)), and each row's code 0..n-1 among them."""
-    pairs = np.column_stack([np.asarray(first, dtype=np.int64), np.asarray(second, dtype=np.int64)])
-    unique, codes = np.unique(pairs, axis=0, return_inverse=True)
-    return unique, codes.reshape(-1)
+    first, second = np.asarray(first, dtype=np.int64), np.asarray(second, dtype=np.int64)
+    if len(first) and second.min() >= 0 and first.min() >= 0 and first.max() < 2**62 // (int(second.max()) + 1):
+        # One integer key per pair, same order: sorting plain integers is far faster than sorting rows.
+        width = int(second.max()) + 1
+        keys, codes = np.unique(first * width + second, return_inverse=True)
+        return np.column_stack([keys // width, keys % width]), codes.reshape(-1)
+    unique, codes = np.unique(np.column_stack([first, second]), axis=0, return_inverse=True)
+    return unique.reshape(-1, 2), codes.reshape(-1)
 
 
 def group_time_max(group: np.ndarray, times: np.ndarray, n_groups: int, smallest: bool = False) -> np.ndarray:
@@ -25,6 +30,9 @@ def group_time_max(group: np.ndarray, times: np.ndarray, n_groups: int, smallest
     out = out.view(times.dtype)
     out[np.bincount(group[known], minlength=n_groups) == 0] = np.datetime64("NaT")
     return out
+
+
+_FEW_GROUPS = 16  # up to this many groups (a pump's intervals) a plain sort beats building a pandas grouper
 
 
 def group_max(group: np.ndarray, values: np.ndarray, n_groups: int) -> np.ndarray:
@@ -70,10 +78,12 @@ def within_days_of_last(group: np.ndarray, times: np.ndarray, n_groups: int, day
 
 def group_median(group: np.ndarray, values: np.ndarray, n_groups: int) -> np.ndarray:
     """The median of each group: the middle value, or the mean of the two middle ones, of its sorted values."""
+    if n_groups > _FEW_GROUPS:  # many groups (a fleet): pandas' grouped median needs no sort of all the values
+        return pd.Series(values).groupby(group).median().reindex(range(n_groups)).to_numpy(dtype=float)
     known = ~np.isnan(values)
     g, v = group[known], values[known]
-    order = np.lexsort((v, g))
-    v = v[order]
+    by_value = np.argsort(v)  # then by group, stably: each group's values in order (two plain sorts)
+    v = v[by_value][np.argsort(g[by_value], kind="stable")]
     counts = np.bincount(g, minlength=n_groups)
     starts = np.cumsum(counts) - counts
     has = counts > 0
