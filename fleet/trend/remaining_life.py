@@ -11,7 +11,7 @@ import numpy as np
 import pandas as pd
 
 from fleet.trend.degradation import QUANTITIES, not_enough_reason
-from fleet.trend.grouped import group_max, group_min, pair_codes, time_span_days, within_days_of_last
+from fleet.trend.grouped import group_max, group_min, time_span_days, within_days_of_last
 from fleet.trend.linear import LineFit, line_variance, t_quantile
 from fleet.trend.model_average import crossing_band, value_band
 from fleet.trend.settings import AnalysisSettings
@@ -96,28 +96,18 @@ def hours_to_limits(fits: pd.DataFrame, limits_lpm: dict[str, np.ndarray], setti
 _TREND_WORDS = {"slip": "volumetric efficiency", "drain": "case drain"}
 
 
-def hours_per_day(readings: pd.DataFrame, settings: AnalysisSettings) -> pd.Series:
-    """Running hours per calendar day per (pump_id, interval_no), from the pump's own hour meter.
-
-    Uses the readings of the last `hours_per_day_window_days` before the interval's last reading, falling
-    back to the whole interval when those span less than a week. NaN with no usable span; clipped to 0..24.
-    """
-    pairs, group = pair_codes(readings["pump_id"].to_numpy(), readings["interval_no"].to_numpy())
-    taken = pd.to_datetime(readings["taken_at"]).to_numpy()
-    hours = pd.to_numeric(readings["hours"], errors="coerce").to_numpy(float)
-    rate = interval_hours_per_day(group, taken, hours, len(pairs), settings)
-    used = np.bincount(group[_dated_hours(taken, hours)], minlength=len(pairs)) > 0
-    index = pd.MultiIndex.from_arrays([pairs[used, 0], pairs[used, 1]], names=["pump_id", "interval_no"])
-    return pd.Series(rate[used], index=index, name="hours_per_day")
-
-
 def _dated_hours(taken: np.ndarray, hours: np.ndarray) -> np.ndarray:
     return np.isfinite(hours) & ~np.isnat(taken)
 
 
 def interval_hours_per_day(group: np.ndarray, taken: np.ndarray, hours: np.ndarray, n_groups: int,
                            settings: AnalysisSettings) -> np.ndarray:
-    """hours_per_day over plain arrays: readings' group codes (0..n_groups-1), times and hour-meter values."""
+    """Running hours per calendar day of each pump interval (readings' group codes 0..n_groups-1, their times and
+    hour-meter values), from the pump's own hour meter.
+
+    Uses the readings of the last `hours_per_day_window_days` before the interval's last reading, falling
+    back to the whole interval when those span less than a week. NaN with no usable span; clipped to 0..24.
+    """
     usable = _dated_hours(taken, hours)
     g, t, h = group[usable], taken[usable], hours[usable]
     recent = within_days_of_last(g, t, n_groups, settings.hours_per_day_window_days)
