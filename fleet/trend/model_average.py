@@ -107,7 +107,8 @@ def value_quantile(fits: LawFits, hours, level: float, confidence: float) -> np.
     expand = (slice(None), None) if hours.ndim == 2 else (slice(None),)
     lo = np.full(hours.shape, np.inf)
     hi = np.full(hours.shape, -np.inf)
-    for j, m in enumerate(MEMBERS):
+    for j in np.flatnonzero((fits.weight > 0).any(axis=0)):  # a member without weight widens no bracket
+        m = MEMBERS[j]
         used = (fits.weight[:, j] > 0)[expand]
         mean, sd = _moments(fits, j, hours)
         spread = 10.0 * sd
@@ -130,7 +131,8 @@ def averaged_slope(fits: LawFits, hours) -> np.ndarray:
     """Model-weighted mean of the members' growth rates dq/dh (L/min per hour) at `hours` (per group)."""
     h = np.asarray(hours, dtype=float)
     total = np.zeros(len(fits))
-    for j, m in enumerate(MEMBERS):
+    for j in np.flatnonzero((fits.weight > 0).any(axis=0)):  # a member without weight adds nothing
+        m = MEMBERS[j]
         w, a, b = fits.weight[:, j], fits.a[:, j], fits.b[:, j]
         with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
             if m.log_space:
@@ -167,21 +169,20 @@ def crossing_quantiles(fits: LawFits, limit, now_hours, levels, confidence: floa
         return 1.0 - value_cdf(fits, hours, limit_g[:, None] if np.ndim(hours) == 2 else limit_g, confidence, pairs)
 
     on_grid = crossed(grid)
-    rows = np.arange(len(now))
-    out = []
-    for level in levels:
-        reached = on_grid >= level
-        any_reached = reached.any(axis=1) & ok
-        first = np.argmax(reached, axis=1)
-        hi = grid[rows, first]
-        lo = grid[rows, np.maximum(first - 1, 0)]
-        for _ in range(_BISECTIONS):
-            mid = 0.5 * (lo + hi)
-            up = crossed(mid) >= level
-            lo, hi = np.where(up, lo, mid), np.where(up, mid, hi)
-        x = np.where(first == 0, 0.0, hi)
-        out.append(np.where(any_reached, x, np.nan))
-    return out
+    # Every level's bracket searched at once: one column per level, one evaluation of the mixture per step.
+    levels = np.asarray(levels, dtype=float)[None, :]
+    reached = on_grid[:, :, None] >= levels[:, None, :]
+    any_reached = reached.any(axis=1) & ok[:, None]
+    first = np.argmax(reached, axis=1)
+    rows = np.arange(len(now))[:, None]
+    hi = grid[rows, first]
+    lo = grid[rows, np.maximum(first - 1, 0)]
+    for _ in range(_BISECTIONS):
+        mid = 0.5 * (lo + hi)
+        up = crossed(mid) >= levels
+        lo, hi = np.where(up, lo, mid), np.where(up, mid, hi)
+    x = np.where(any_reached, np.where(first == 0, 0.0, hi), np.nan)
+    return list(x.T)
 
 
 def law_alone(fits: LawFits, law: str, rows: np.ndarray | None = None) -> LawFits:

@@ -33,6 +33,7 @@ import numpy as np
 import pandas as pd
 from scipy import special
 
+from fleet.trend.grouped import group_max, group_min
 from fleet.trend.linear import t_quantile
 from fleet.trend.robust import fit_reweighted, robust_scale
 from fleet.trend.settings import AnalysisSettings
@@ -308,9 +309,8 @@ def fit_wear_laws(
     log_q = np.log(q)
     count = np.bincount(group, minlength=n_groups).astype(float)
     offset = np.zeros(n_groups) if hours_offset is None else np.nan_to_num(np.asarray(hours_offset, float))
-    by_group = pd.Series(hours).groupby(group)
-    last = by_group.max().reindex(range(n_groups)).to_numpy(dtype=float)
-    first = by_group.min().reindex(range(n_groups)).to_numpy(dtype=float)
+    last = group_max(group, hours, n_groups)
+    first = group_min(group, hours, n_groups)
     hours_scale = np.where(last + offset > 0, last + offset, np.nan)
 
     def log_variance(fitted_log):
