@@ -209,10 +209,11 @@ def heaviest_law_median(fits: LawFits, hours, confidence: float) -> np.ndarray:
     expand = (slice(None), None) if hours.ndim == 2 else (slice(None),)
     heaviest = heaviest_law(fits)
     median = np.full(hours.shape, np.nan)
+    centred = fits.centred()
     for k, law in enumerate(LAWS):
         rows = (heaviest == k) & (fits.weight.sum(axis=1) > 0)
         if rows.any():
-            mid = value_quantile(law_alone(fits, law, rows), hours, 0.5, confidence)
+            mid = value_quantile(law_alone(centred, law, rows), hours, 0.5, confidence)
             median = np.where(rows[expand], mid, median)
     return median
 
@@ -247,15 +248,21 @@ def crossing_band(fits: LawFits, limit, now_hours, confidence: float) -> tuple[n
     low = np.full(len(fits), np.nan)
     high = np.full(len(fits), -np.inf)
     open_high = np.zeros(len(fits), dtype=bool)
+    centred = fits.centred()
     for k, (law, rows) in enumerate(plausible_laws(fits).items()):
         if not rows.any():
             continue
         lo, mid, hi = crossing_quantiles(law_alone(fits, law, rows), limit, now_hours,
                                          (alpha / 2, 0.5, 1 - alpha / 2), confidence)
-        median = np.where(rows & (heaviest == k), mid, median)
+        top = rows & (heaviest == k)
+        if centred is not fits and top.any():
+            (mid,) = crossing_quantiles(law_alone(centred, law, top), limit, now_hours, (0.5,), confidence)
+        median = np.where(top, mid, median)
         low = np.where(rows, np.fmin(low, lo), low)
         open_high |= rows & np.isnan(hi)
         high = np.where(rows, np.fmax(high, hi), high)
+    low = np.fmin(low, median)  # a forecast on a centred line may lie past its own trend's band: the band holds it
+    high = np.where(np.isfinite(high), np.fmax(high, median), high)
     reached = np.isfinite(median) | np.isfinite(low)
     high = np.where(open_high | ~np.isfinite(high) | ~reached, np.nan, high)
     return low, median, high
@@ -274,12 +281,16 @@ def value_band(fits: LawFits, hours, confidence: float) -> tuple[np.ndarray, np.
     expand = (slice(None), None) if hours.ndim == 2 else (slice(None),)
     grid = hours if hours.ndim == 2 else hours[:, None]
     levels = np.repeat([alpha / 2, 0.5, 1 - alpha / 2], grid.shape[1])[None, :]  # three quantiles, one search
+    centred = fits.centred()
     for k, (law, rows) in enumerate(plausible_laws(fits).items()):
         if not rows.any():
             continue
         found = value_quantile(law_alone(fits, law, rows), np.tile(grid, 3), levels, confidence)
         lo, mid, hi = (part.reshape(hours.shape) for part in np.split(found, 3, axis=1))
-        median = np.where((rows & (heaviest == k))[expand], mid, median)
+        top = rows & (heaviest == k)
+        if centred is not fits and top.any():
+            mid = value_quantile(law_alone(centred, law, top), grid, 0.5, confidence).reshape(hours.shape)
+        median = np.where(top[expand], mid, median)
         low = np.where(rows[expand], np.fmin(low, lo), low)
         high = np.where(rows[expand], np.fmax(high, hi), high)
-    return low, median, high
+    return np.fmin(low, median), median, np.fmax(high, median)
