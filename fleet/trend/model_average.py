@@ -10,7 +10,9 @@ scaled to a normal one with the same two-sided quantile: then that member's boun
 Where the mixture never reaches a level (the trend may stay flat), that bound stays open (NaN).
 
 What the pages and the plan read (crossing_band, value_band) takes these pieces one law at a time: the forecast
-is the heaviest law's own median, the band the union of the bands of the laws the readings cannot rule out.
+is the heaviest law's own median, the band the union of the bands of the laws the readings cannot rule out. The
+median is taken on the lines the forecast follows (LawFits.centred: for the slip, the case drain's shape at the
+slip's level), the bands on the trend's own lines; the band is widened to hold the forecast where it lies past.
 """
 
 import dataclasses
@@ -230,7 +232,8 @@ def crossing_band(fits: LawFits, limit, now_hours, confidence: float) -> tuple[n
     """Low bound, forecast and high bound of the interval hours at which the trend reaches `limit`, per group.
 
     The forecast is the median crossing of the heaviest law alone (heaviest_law; its exponents or run-in shapes
-    still averaged). The median of the mixture of all laws was tried first: where one law takes most of the
+    still averaged), on the lines the forecast follows (LawFits.centred; the band on the trend's own lines,
+    widened to hold the forecast). The median of the mixture of all laws was tried first: where one law takes most of the
     weight, the others' share drags the forecast towards theirs, and on the invented fleets of
     benchmarks/calibration.py the law the readings favour gave the smaller median error for exponential wear
     (11.4 % against 13.2 %) and as good or better for linear and accelerating wear, run-in wear 0.4 to 1.2

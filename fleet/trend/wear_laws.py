@@ -24,6 +24,10 @@ with K counting the scale too (Burnham & Anderson 2002, sec. 2.4), weights exp(-
 the power law its exponents, and within the run-in law its (tau, s) pairs, are weighed by their likelihood
 alone (same K). A law needs n > K + 1 readings
 to be scored; with fewer than that for every law, the exponential law stands alone.
+
+Where an interval has a case drain trend, the slip's forecast follows the drain's shape scaled to the slip's
+level (LawFits.centred_on: the same clearances, and the drain meter sees the shape far more sharply), unless the
+slip's own readings refute that shape; the slip's band stays its own.
 """
 
 import dataclasses
