@@ -233,8 +233,8 @@ def crossing_band(fits: LawFits, limit, now_hours, confidence: float) -> tuple[n
 
     The forecast is the median crossing of the heaviest law alone (heaviest_law; its exponents or run-in shapes
     still averaged), on the lines the forecast follows (LawFits.centred; the band on the trend's own lines,
-    widened to hold the forecast). The median of the mixture of all laws was tried first: where one law takes most of the
-    weight, the others' share drags the forecast towards theirs, and on the invented fleets of
+    widened to hold the forecast). The median of the mixture of all laws was tried first: where one law takes
+    most of the weight, the others' share drags the forecast towards theirs, and on the invented fleets of
     benchmarks/calibration.py the law the readings favour gave the smaller median error for exponential wear
     (11.4 % against 13.2 %) and as good or better for linear and accelerating wear, run-in wear 0.4 to 1.2
     points worse. The bounds are the union of the bands of the plausible laws (plausible_laws), each law's band

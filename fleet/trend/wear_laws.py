@@ -166,25 +166,30 @@ class LawFits:
                 & (count >= 4) & (np.nan_to_num(other.n_points) >= settings.min_points))
         refuted_at = stats.f.ppf(0.99, 1, np.maximum(count - 2, 1))
         centre_a, centre_b = self.a.copy(), self.b.copy()
-        w = 1.0 / np.asarray(sigma, dtype=float) ** 2
-        value = np.asarray(value, dtype=float)
-        for j, m in enumerate(MEMBERS):
-            x = member_x(m, hours, other.hours_scale[group], other.hours_offset[group])
+        w_all = 1.0 / np.asarray(sigma, dtype=float) ** 2
+        value_all = np.asarray(value, dtype=float)
+        hours_all = np.asarray(hours, dtype=float)
+        weighed = (self.weight > 0) & same[:, None]  # a member without weight moves no forecast
+        for j in np.flatnonzero(weighed.any(axis=0)):
+            m = MEMBERS[j]
+            at = weighed[group, j]  # the readings of the groups concerned only
+            g, h, q, w = group[at], hours_all[at], value_all[at], w_all[at]
+            x = member_x(m, h, other.hours_scale[g], other.hours_offset[g])
             with np.errstate(invalid="ignore", over="ignore", divide="ignore"):
-                line = other.a[group, j] + other.b[group, j] * x
+                line = other.a[g, j] + other.b[g, j] * x
                 shape = np.exp(line) if m.log_space else line
                 ok = np.isfinite(shape)
-                k, robust = _through_origin(group, np.where(ok, shape, 0.0), value, np.where(ok, w, 0.0), n_groups,
+                k, robust = _through_origin(g, np.where(ok, shape, 0.0), q, np.where(ok, w, 0.0), n_groups,
                                             settings.huber_k)
-                own = self.a[group, j] + self.b[group, j] * x
+                own = self.a[g, j] + self.b[g, j] * x
                 own = np.exp(own) if m.log_space else own
                 rw = w * robust
-                shared = np.bincount(group, np.nan_to_num(rw * (value - k[group] * shape) ** 2), minlength=n_groups)
-                alone = np.bincount(group, np.nan_to_num(rw * (value - own) ** 2), minlength=n_groups)
+                shared = np.bincount(g, np.nan_to_num(rw * (q - k[g] * shape) ** 2), minlength=n_groups)
+                alone = np.bincount(g, np.nan_to_num(rw * (q - own) ** 2), minlength=n_groups)
                 f_stat = (shared - alone) / (alone / np.maximum(count - 2, 1))
                 a = other.a[:, j] + np.log(k) if m.log_space else k * other.a[:, j]
                 b = other.b[:, j] if m.log_space else k * other.b[:, j]
-            use = same & (k > 0) & np.isfinite(a) & np.isfinite(b) & ~(f_stat > refuted_at)
+            use = weighed[:, j] & (k > 0) & np.isfinite(a) & np.isfinite(b) & ~(f_stat > refuted_at)
             centre_a[:, j] = np.where(use, a, centre_a[:, j])
             centre_b[:, j] = np.where(use, b, centre_b[:, j])
         self.centre_a, self.centre_b = centre_a, centre_b
@@ -326,10 +331,10 @@ def run_in_identifiable(group, hours, hours_scale, offset, n_groups) -> np.ndarr
 
 
 def _through_origin(group, x, y, w, n_groups, huber_k: float) -> tuple[np.ndarray, np.ndarray]:
-    """Per group the slope k of y = k x by weighted least squares through the origin, with Huber weights about
-    the fitted line (a few passes), so that a gross outlier of y moves k little; and those Huber weights."""
+    """Per group the slope k of y = k x by weighted least squares through the origin, then a few passes with
+    Huber weights about the line (the scale as fleet.trend.robust.robust_scale), so that a gross outlier of y
+    moves k little; returns k and the last Huber weights."""
     robust = np.ones_like(y)
-    k = np.full(n_groups, np.nan)
     for _ in range(4):
         sxx = np.bincount(group, w * robust * x * x, minlength=n_groups)
         with np.errstate(invalid="ignore", divide="ignore"):
