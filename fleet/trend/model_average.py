@@ -255,11 +255,16 @@ def crossing_band(fits: LawFits, limit, now_hours, confidence: float) -> tuple[n
     for k, (law, rows) in enumerate(plausible_laws(fits).items()):
         if not rows.any():
             continue
-        lo, mid, hi = crossing_quantiles(law_alone(fits, law, rows), limit, now_hours,
-                                         (alpha / 2, 0.5, 1 - alpha / 2), confidence)
         top = rows & (heaviest == k)
-        if centred is not fits and top.any():
-            (mid,) = crossing_quantiles(law_alone(centred, law, top), limit, now_hours, (0.5,), confidence)
+        if centred is fits:  # one search for the three levels
+            lo, mid, hi = crossing_quantiles(law_alone(fits, law, rows), limit, now_hours,
+                                             (alpha / 2, 0.5, 1 - alpha / 2), confidence)
+        else:  # the bounds on the trend's own lines, the forecast on the centred ones (the heaviest law only)
+            lo, hi = crossing_quantiles(law_alone(fits, law, rows), limit, now_hours, (alpha / 2, 1 - alpha / 2),
+                                        confidence)
+            mid = np.full(len(fits), np.nan)
+            if top.any():
+                (mid,) = crossing_quantiles(law_alone(centred, law, top), limit, now_hours, (0.5,), confidence)
         median = np.where(top, mid, median)
         low = np.where(rows, np.fmin(low, lo), low)
         open_high |= rows & np.isnan(hi)
@@ -284,15 +289,21 @@ def value_band(fits: LawFits, hours, confidence: float) -> tuple[np.ndarray, np.
     expand = (slice(None), None) if hours.ndim == 2 else (slice(None),)
     grid = hours if hours.ndim == 2 else hours[:, None]
     levels = np.repeat([alpha / 2, 0.5, 1 - alpha / 2], grid.shape[1])[None, :]  # three quantiles, one search
+    edge_levels = np.repeat([alpha / 2, 1 - alpha / 2], grid.shape[1])[None, :]
     centred = fits.centred()
     for k, (law, rows) in enumerate(plausible_laws(fits).items()):
         if not rows.any():
             continue
-        found = value_quantile(law_alone(fits, law, rows), np.tile(grid, 3), levels, confidence)
-        lo, mid, hi = (part.reshape(hours.shape) for part in np.split(found, 3, axis=1))
         top = rows & (heaviest == k)
-        if centred is not fits and top.any():
-            mid = value_quantile(law_alone(centred, law, top), grid, 0.5, confidence).reshape(hours.shape)
+        if centred is fits:  # one search for the three levels
+            found = value_quantile(law_alone(fits, law, rows), np.tile(grid, 3), levels, confidence)
+            lo, mid, hi = (part.reshape(hours.shape) for part in np.split(found, 3, axis=1))
+        else:  # the edges on the trend's own lines, the centre on the centred ones (the heaviest law only)
+            found = value_quantile(law_alone(fits, law, rows), np.tile(grid, 2), edge_levels, confidence)
+            lo, hi = (part.reshape(hours.shape) for part in np.split(found, 2, axis=1))
+            mid = np.full(hours.shape, np.nan)
+            if top.any():
+                mid = value_quantile(law_alone(centred, law, top), grid, 0.5, confidence).reshape(hours.shape)
         median = np.where(top[expand], mid, median)
         low = np.where(rows[expand], np.fmin(low, lo), low)
         high = np.where(rows[expand], np.fmax(high, hi), high)
