@@ -129,6 +129,8 @@ def fit_degradation(referred: pd.DataFrame, settings: AnalysisSettings | None = 
     joint_members = joint_score(slip_laws.member_score, drain_laws.member_score)
     slip_laws.weigh(joint, joint_members)
     drain_laws.weigh(joint, joint_members)
+    # The slip's forecast follows the case drain's sharper shape (LawFits.centred_on); its band stays its own.
+    slip_laws.centred_on(drain_laws, g, h, q_slip, slip_sigma(None), s)
     frames.append(_as_frame(slip_laws, _span(g, h, n_groups), current_hours, "slip", s))
     frames.append(_as_frame(drain_laws, _span(gd, hd, n_groups), current_hours, "drain", s))
     return pd.concat(frames, axis=1)
