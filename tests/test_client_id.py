@@ -5,7 +5,6 @@ import threading
 import uuid
 from datetime import timedelta
 
-import pandas as pd
 import pytest
 from sqlalchemy import func, select
 
@@ -143,9 +142,8 @@ def test_a_bad_place_is_refused_with_400(client, demo_db):
     assert response.status_code == 400 and response.get_json()["problems"][0]["column"] == "place"
 
 
-def _table(body: dict) -> pd.DataFrame:
-    cells = {k: str(v) for k, v in body.items() if k not in ("client_id", "place")}
-    return pd.DataFrame([cells], dtype=str)
+def _rows(body: dict) -> list[dict[str, str]]:
+    return [{k: str(v) for k, v in body.items() if k not in ("client_id", "place")}]
 
 
 @pytest.mark.slow
@@ -163,7 +161,7 @@ def test_repeats_sent_at_once_store_one_reading(demo_db):
         try:
             barrier.wait()
             result = perform(make_session_factory(engine),
-                             lambda s: store_posted(s, _table(bodies[n]), [body["client_id"]], [None]))
+                             lambda s: store_posted(s, _rows(bodies[n]), [body["client_id"]], [None]))
             outcomes[n] = "repeat" if result.value.created == 0 else "stored"
         except ClientIdConflict:
             outcomes[n] = "conflict"

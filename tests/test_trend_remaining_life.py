@@ -9,7 +9,7 @@ import trend_synthetic as ts
 
 from fleet.trend.engine import analyze_fleet
 from fleet.trend.linear import grouped_wls
-from fleet.trend.remaining_life import hours_per_day, limit_dates, limit_flows_lpm, trend_band
+from fleet.trend.remaining_life import interval_hours_per_day, limit_dates, limit_flows_lpm, trend_band
 from fleet.trend.settings import AnalysisSettings
 from fleet.trend.status import service_order_keys, service_rank
 
@@ -40,19 +40,13 @@ def test_trend_band_matches_statsmodels_mean_interval_on_the_log_scale():
 def test_hours_per_day_uses_recent_hour_meter_history():
     days = np.array([0, 100, 200, 260, 300])
     hours = np.array([0, 2400, 4800, 5040, 5200])  # 24 h/day, then 4 h/day over the last 100 days
-    r = pd.DataFrame(
-        {
-            "pump_id": 1,
-            "interval_no": 0,
-            "taken_at": pd.Timestamp("2025-01-01") + pd.to_timedelta(days, unit="D"),
-            "hours": hours.astype(float),
-        }
-    )
-    per_day = hours_per_day(r, AnalysisSettings())
-    assert per_day.loc[(1, 0)] == pytest.approx(400.0 / 100.0)
+    taken = (pd.Timestamp("2025-01-01") + pd.to_timedelta(days, unit="D")).to_numpy()
+    group = np.zeros(len(days), dtype=np.int64)  # one pump interval
+    per_day = interval_hours_per_day(group, taken, hours.astype(float), 1, AnalysisSettings())
+    assert per_day[0] == pytest.approx(400.0 / 100.0)
     # Fallback to the whole interval when the recent window spans less than a week.
-    short = hours_per_day(r, AnalysisSettings(hours_per_day_window_days=3))
-    assert short.loc[(1, 0)] == pytest.approx(5200.0 / 300.0)
+    short = interval_hours_per_day(group, taken, hours.astype(float), 1, AnalysisSettings(hours_per_day_window_days=3))
+    assert short[0] == pytest.approx(5200.0 / 300.0)
     dates = limit_dates(pd.Series([pd.Timestamp("2025-06-01 14:00")]), [100.0], [4.0])
     assert dates.iloc[0] == pd.Timestamp("2025-06-26")
 

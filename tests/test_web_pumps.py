@@ -1,11 +1,13 @@
 """The pump page: HTML, its JSON and CSV twins, the referred readings and the flow-test baseline."""
 
+import base64
 import csv
 import io
 import math
 
 import numpy as np
 import pandas as pd
+import plotly.graph_objects as go
 import pytest
 
 from fleet.charts import pump as charts
@@ -165,20 +167,29 @@ def test_service_list_links_reach_the_pump_page(client):
     assert client.get(f"/pumps/{FIXED_PUMP}").status_code == 200
 
 
+def _typed_values(spec) -> list[float]:
+    """A plotly typed array back as numbers: base64 of the values in the named numpy dtype (plotly.js' typed array
+    form, which plotly.py writes for numpy arrays too)."""
+    assert set(spec) == {"dtype", "bdata"}
+    return np.frombuffer(base64.b64decode(spec["bdata"]), dtype=spec["dtype"]).tolist()
+
+
 def test_efficiency_figure_carries_points_band_limit_and_events():
-    readings = pd.DataFrame({"hours": [0.0, 500.0, 1000.0], "eta_v": [0.93, 0.92, 0.91],
-                             "eta_v_ref": [0.95, 0.94, 0.93]})
-    band = pd.DataFrame({"hours": [0.0, 1000.0, 2000.0], "mean": [0.95, 0.93, 0.90], "low": [0.94, 0.92, 0.88],
-                         "high": [0.96, 0.94, 0.92], "forecast": [False, False, True]})
-    events = pd.DataFrame({"chart_hours": [700.0], "kind_label": ["Inspection"]})
-    fig = charts.efficiency_figure(readings, band, 0.85, events)
+    readings = {"hours": [0.0, 500.0, 1000.0], "eta_v": [0.93, 0.92, 0.91], "eta_v_ref": [0.95, 0.94, 0.93]}
+    band = {"hours": [0.0, 1000.0, 2000.0], "mean": [0.95, 0.93, 0.90], "low": [0.94, 0.92, 0.88],
+            "high": [0.96, 0.94, 0.92], "forecast": [False, False, True]}
+    events = [{"chart_hours": 700.0, "kind_label": "Inspection"}, {"chart_hours": None, "kind_label": "Unplaced"}]
+    spec = charts.efficiency_figure(readings, band, 0.85, events)
+    fig = go.Figure(data=spec["data"], layout=spec["layout"])  # plotly's own validators read the plain spec
     named = {trace.name: trace for trace in fig.data}
-    assert list(named["η_v,ref (referred)"].y) == [0.95, 0.94, 0.93]
-    assert list(named["forecast"].x) == [1000.0, 2000.0]
+    assert _typed_values(named["η_v,ref (referred)"].y) == [0.95, 0.94, 0.93]
+    assert _typed_values(named["forecast"].x) == [1000.0, 2000.0]  # from the fitted line's end on
+    assert _typed_values(named["fitted trend"].x) == [0.0, 1000.0]
     shapes = fig.layout.shapes
     assert any(s.y0 == 0.85 and s.y1 == 0.85 for s in shapes)  # the limit line
     assert any(s.x0 == 700.0 and s.x1 == 700.0 for s in shapes)  # the event marker
-    html = charts.figure_html(fig, "chart-x")
+    assert len(shapes) == 2  # an event without hours has no place on an hours axis
+    html = charts.chart_html(spec, "chart-x")
     assert 'id="chart-x"' in html and "<script" in html and "plotly.min.js" not in html
 
 

@@ -9,8 +9,8 @@ from dataclasses import dataclass
 
 import numpy as np
 import pandas as pd
-from sqlalchemy import func, select
-from sqlalchemy.orm import Session
+from sqlalchemy import select
+from sqlalchemy.orm import Session, aliased
 
 from fleet import units
 from fleet.db.models import Installation, Machine, Position, Pump, Site
@@ -60,14 +60,35 @@ def pump_sites(session: Session, serials) -> dict[str, Site]:
     serials = [s for s in set(serials) if _queryable(s)]
     if not serials:
         return {}
-    latest = (select(Installation.pump_id, func.max(Installation.installed_at).label("at"))
-              .group_by(Installation.pump_id).subquery())
     rows = session.execute(
-        select(Pump.serial, Site).join(latest, latest.c.pump_id == Pump.id)
-        .join(Installation, (Installation.pump_id == Pump.id) & (Installation.installed_at == latest.c.at))
+        select(Pump.serial, Site).select_from(Pump)
+        .join(Installation, Installation.id == latest_installation())
         .join(Position, Position.id == Installation.position_id).join(Machine, Machine.id == Position.machine_id)
         .join(Site, Site.id == Machine.site_id).where(Pump.serial.in_(serials)))
     return {serial: site for serial, site in rows}
+
+
+def pump_zones(session: Session, serials) -> dict[str, tuple[int, str]]:
+    """serial -> (pump id, the time zone of its site) for the pumps of the register (one statement; UTC for a
+    pump never installed): what a few posted readings need to be read and stored."""
+    serials = [s for s in set(serials) if _queryable(s)]
+    if not serials:
+        return {}
+    rows = session.execute(
+        select(Pump.serial, Pump.id, Site.time_zone).select_from(Pump)
+        .outerjoin(Installation, Installation.id == latest_installation())
+        .outerjoin(Position, Position.id == Installation.position_id)
+        .outerjoin(Machine, Machine.id == Position.machine_id).outerjoin(Site, Site.id == Machine.site_id)
+        .where(Pump.serial.in_(serials)))
+    return {serial: (pump_id, zone or DEFAULT_ZONE) for serial, pump_id, zone in rows}
+
+
+def latest_installation():
+    """The id of each pump's latest installation, as a subquery correlated to Pump: an indexed look-up per pump
+    asked about (a grouped subquery would first group every installation of the fleet)."""
+    later = aliased(Installation)
+    return (select(later.id).where(later.pump_id == Pump.id)
+            .order_by(later.installed_at.desc(), later.id.desc()).limit(1).correlate(Pump).scalar_subquery())
 
 
 def of_pump(session: Session, pump: Pump | str) -> Conventions:

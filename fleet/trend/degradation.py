@@ -11,6 +11,7 @@ never one solver call per pump.
 import numpy as np
 import pandas as pd
 
+from fleet.trend.grouped import group_first, group_max, group_min, pair_codes
 from fleet.trend.model_average import averaged_slope, heaviest_law_median
 from fleet.trend.settings import AnalysisSettings
 from fleet.trend.wear_laws import LAWS, LawFits, fit_wear_laws, joint_score
@@ -19,9 +20,7 @@ QUANTITIES = ("slip", "drain")
 
 
 def _span(group: np.ndarray, hours: np.ndarray, n_groups: int) -> np.ndarray:
-    s = pd.Series(hours).groupby(group)
-    span = (s.max() - s.min()).reindex(range(n_groups))
-    return span.to_numpy(dtype=float)
+    return group_max(group, hours, n_groups) - group_min(group, hours, n_groups)
 
 
 def _as_frame(laws: LawFits, span: np.ndarray, current_hours: np.ndarray, prefix: str, settings) -> pd.DataFrame:
@@ -51,9 +50,10 @@ def _as_frame(laws: LawFits, span: np.ndarray, current_hours: np.ndarray, prefix
         "wear_law": wear_law,
         **{f"weight_{law}": np.where(fitted, weights[law], np.nan) for law in LAWS},
     }
-    out = {f"{prefix}_{k}": v for k, v in cols.items()}
-    out.update(laws.to_columns(prefix))
-    return pd.DataFrame(out)
+    # The members' columns (hundreds, all floats) as one block: a frame of one array, not one Series each.
+    members = laws.to_columns(prefix)
+    block = pd.DataFrame(np.column_stack(list(members.values())), columns=list(members))
+    return pd.concat([pd.DataFrame({f"{prefix}_{k}": v for k, v in cols.items()}), block], axis=1)
 
 
 def fit_degradation(referred: pd.DataFrame, settings: AnalysisSettings | None = None) -> pd.DataFrame:
@@ -78,25 +78,21 @@ def fit_degradation(referred: pd.DataFrame, settings: AnalysisSettings | None = 
     Derived eta_v_ref figures are added by `summarise_fits`.
     """
     s = settings or AnalysisSettings()
-    keys = referred[["pump_id", "interval_no"]].drop_duplicates().sort_values(["pump_id", "interval_no"])
-    keys = keys.reset_index(drop=True)
+    unique, group_all = pair_codes(referred["pump_id"].to_numpy(), referred["interval_no"].to_numpy())
+    keys = pd.DataFrame({"pump_id": unique[:, 0], "interval_no": unique[:, 1]})
     n_groups = len(keys)
-    code_of = pd.Series(np.arange(n_groups), index=pd.MultiIndex.from_frame(keys))
-    group_all = code_of.reindex(pd.MultiIndex.from_frame(referred[["pump_id", "interval_no"]])).to_numpy()
 
     hours = pd.to_numeric(referred["interval_hours"], errors="coerce").to_numpy(dtype=float)
     valid_hours = np.isfinite(hours) & (hours >= 0)
-    current_hours = (
-        pd.Series(np.where(valid_hours, hours, np.nan)).groupby(group_all).max().reindex(range(n_groups))
-    ).to_numpy(dtype=float)
+    current_hours = group_max(group_all, np.where(valid_hours, hours, np.nan), n_groups)
     good = referred["flag"].isna().to_numpy() & valid_hours
 
     frames = [keys.assign(current_hours=current_hours)]
     # Hours run before the interval's hours count: the first interval's hour meter counts from new.
     start_meter = pd.to_numeric(referred["interval_start_hours"], errors="coerce").to_numpy(dtype=float)
     first_interval = referred["interval_no"].to_numpy() == 0
-    offset = pd.Series(np.where(first_interval, start_meter, 0.0)).groupby(group_all).first()
-    offset = np.maximum(offset.reindex(range(n_groups)).fillna(0.0).to_numpy(dtype=float), 0.0)
+    offset = group_first(group_all, np.where(first_interval, start_meter, 0.0), n_groups)
+    offset = np.maximum(np.where(np.isnan(offset), 0.0, offset), 0.0)
 
     # Slip: error model from the flow meter.
     rated = referred["rated_flow_lpm"].to_numpy(dtype=float)
@@ -133,6 +129,8 @@ def fit_degradation(referred: pd.DataFrame, settings: AnalysisSettings | None = 
     joint_members = joint_score(slip_laws.member_score, drain_laws.member_score)
     slip_laws.weigh(joint, joint_members)
     drain_laws.weigh(joint, joint_members)
+    # The slip's forecast follows the case drain's sharper shape (LawFits.centred_on); its band stays its own.
+    slip_laws.centred_on(drain_laws, g, h, q_slip, slip_sigma(None), s)
     frames.append(_as_frame(slip_laws, _span(g, h, n_groups), current_hours, "slip", s))
     frames.append(_as_frame(drain_laws, _span(gd, hd, n_groups), current_hours, "drain", s))
     return pd.concat(frames, axis=1)

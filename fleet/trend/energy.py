@@ -10,15 +10,17 @@ import pandas as pd
 
 from fleet.physics.energy import leakage_cost_per_year, overhaul_payback_years
 from fleet.physics.leakage import leakage_power_kw
+from fleet.trend.grouped import group_median, within_days_of_last
 
 HOURS_PER_YEAR_DAYS = 365.0
 
-def typical_pressure_bar(referred: pd.DataFrame, window_days: float) -> pd.Series:
-    """Median working pressure of the usable readings of the last `window_days` of each pump interval."""
-    r = referred.loc[referred["flag"].isna(), ["pump_id", "interval_no", "taken_at", "pressure_bar"]]
-    last_at = r.groupby(["pump_id", "interval_no"])["taken_at"].transform("max")
-    recent = r[r["taken_at"] >= last_at - pd.Timedelta(days=window_days)]
-    return recent.groupby(["pump_id", "interval_no"])["pressure_bar"].median().rename("typical_pressure_bar")
+def typical_pressure_bar(group: np.ndarray, taken: np.ndarray, pressure_bar: np.ndarray, usable: np.ndarray,
+                         n_groups: int, window_days: float) -> np.ndarray:
+    """Median working pressure of the usable readings of the last `window_days` of each pump interval (readings'
+    group codes 0..n_groups-1; NaN for an interval without one)."""
+    g, t, p = group[usable], taken[usable], pressure_bar[usable]
+    recent = within_days_of_last(g, t, n_groups, window_days)
+    return group_median(g[recent], p[recent], n_groups)
 
 
 def leakage_energy(

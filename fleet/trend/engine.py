@@ -13,6 +13,7 @@ from fleet.frames import READING_COLUMNS
 from fleet.physics.pump import theoretical_flow_lpm
 from fleet.trend.degradation import QUANTITIES, fit_degradation, not_enough_reason, summarise_fits
 from fleet.trend.energy import leakage_energy, typical_pressure_bar
+from fleet.trend.grouped import group_median, pair_codes
 from fleet.trend.intervals import assign_intervals, interval_lives
 from fleet.trend.linear import t_quantile
 from fleet.trend.oil_condition import OIL_COLUMNS, oil_condition
@@ -20,17 +21,18 @@ from fleet.trend.referral import refer_readings
 from fleet.trend.remaining_life import (
     LIMIT_NAMES,
     dates_at_hours,
-    hours_per_day,
     hours_to_limits,
+    interval_hours_per_day,
     limit_dates,
     limit_flows_lpm,
 )
 from fleet.trend.settings import AnalysisSettings
 from fleet.trend.status import assess_status, horizon_remaining_hours
-from fleet.trend.wear_laws import LAWS, MEMBERS
+from fleet.trend.wear_laws import FIELDS, LAWS, MEMBERS
 from fleet.trend.weibull import expected_overhauls, fit_fleet_priors, mean_residual_life
 
 KEYS = ["pump_id", "interval_no"]
+_MEMBER_LINES = frozenset(f"{q}_{m.name}_{f}" for q in QUANTITIES for m in MEMBERS for f in FIELDS if f != "weight")
 
 
 @dataclass
@@ -65,25 +67,51 @@ def _pump_table(pumps: pd.DataFrame) -> pd.DataFrame:
     return p
 
 
+def _last_in_group(group: np.ndarray, keep: np.ndarray, n_groups: int) -> np.ndarray:
+    """Per group, the position of its last row among those kept (rows already in time order); -1 if none."""
+    at = np.flatnonzero(keep)
+    last = np.full(n_groups, -1)
+    last[group[at]] = at  # a later row overwrites an earlier one of its group
+    return last
+
+
 def _last_usable(referred: pd.DataFrame, current: pd.MultiIndex) -> pd.DataFrame:
     """Per pump: last reading of its current interval (flag), last usable eta/drain, case drain jump ratio."""
-    idx = pd.MultiIndex.from_frame(referred[KEYS])
-    cur = referred[idx.isin(current)].sort_values(["pump_id", "taken_at"], kind="stable")
-    out = pd.DataFrame(index=pd.Index(current.get_level_values(0), name="pump_id"))
-    # groupby().last() would skip a None flag, so take the last row explicitly.
-    last_rows = cur.groupby("pump_id").tail(1).set_index("pump_id")
-    out["last_flag"] = last_rows["flag"].reindex(out.index)
-    good = cur[cur["flag"].isna()]
-    out["last_eta_v_ref"] = good.dropna(subset=["eta_v_ref"]).groupby("pump_id")["eta_v_ref"].last()
-    out["last_drain_pct_ref"] = good.dropna(subset=["drain_pct_ref"]).groupby("pump_id")["drain_pct_ref"].last()
-    drains = good.dropna(subset=["drain_ref_lpm"])
-    drains = drains[drains["drain_ref_lpm"] > 0]
-    is_last = drains.groupby("pump_id").cumcount(ascending=False) == 0
-    earlier = drains[~is_last].groupby("pump_id")["drain_ref_lpm"]
-    median_before = earlier.median().where(earlier.size() >= 3)
-    latest = drains[is_last].set_index("pump_id")["drain_ref_lpm"]
-    out["drain_jump_ratio"] = (latest / median_before.reindex(latest.index)).reindex(out.index)
-    return out
+    pumps = current.get_level_values(0)
+    n = len(pumps)
+    pos = pumps.get_indexer(referred["pump_id"].to_numpy())
+    interval = np.asarray(current.get_level_values(1), dtype=np.int64)
+    in_current = (pos >= 0) & (referred["interval_no"].to_numpy(np.int64) == interval[np.maximum(pos, 0)])
+    rows = np.flatnonzero(in_current)
+    rows = rows[np.lexsort((referred["taken_at"].to_numpy()[rows], pos[rows]))]  # stable: by pump, then time
+    group = pos[rows]
+    flag = referred["flag"].to_numpy(object)[rows]
+    good = pd.isna(flag)
+    eta = referred["eta_v_ref"].to_numpy(float)[rows]
+    drain_pct = referred["drain_pct_ref"].to_numpy(float)[rows]
+    drain = referred["drain_ref_lpm"].to_numpy(float)[rows]
+
+    def last_of(values: np.ndarray, keep: np.ndarray) -> np.ndarray:
+        at = _last_in_group(group, keep, n)
+        return np.where(at >= 0, values[np.maximum(at, 0)], np.nan) if len(values) else np.full(n, np.nan)
+
+    last_row = _last_in_group(group, np.ones(len(rows), dtype=bool), n)
+    has_row = last_row >= 0
+    index = pd.Index(pumps, name="pump_id")
+    last_flag = referred["flag"].iloc[rows[last_row[has_row]]].set_axis(index[has_row]).reindex(index)
+    # The latest positive drain against the median of the ones before it (at least three).
+    drains = good & ~np.isnan(drain) & (drain > 0)
+    latest_at = _last_in_group(group, drains, n)
+    earlier = drains.copy()
+    earlier[latest_at[latest_at >= 0]] = False
+    median_before = group_median(group[earlier], drain[earlier], n)
+    median_before = np.where(np.bincount(group[earlier], minlength=n) >= 3, median_before, np.nan)
+    return pd.DataFrame({
+        "last_flag": last_flag,
+        "last_eta_v_ref": last_of(eta, good & ~np.isnan(eta)),
+        "last_drain_pct_ref": last_of(drain_pct, good & ~np.isnan(drain_pct)),
+        "drain_jump_ratio": last_of(drain, drains) / median_before,
+    }, index=index)
 
 
 def _past_margin(fits: pd.DataFrame, limits: dict[str, np.ndarray], last: pd.DataFrame, pumps: pd.DataFrame):
@@ -207,15 +235,21 @@ def analyze_fleet(
     t = t_quantile(s.confidence, fits["slip_dof"].to_numpy(float))
     with np.errstate(invalid="ignore"):
         fits["slip_b_significant"] = fits["slip_b"].to_numpy(float) > t * np.sqrt(fits["slip_var_b"].to_numpy(float))
-    fkeys = pd.MultiIndex.from_frame(fits[KEYS])
-    fits["hours_per_day"] = hours_per_day(referred, s).reindex(fkeys).to_numpy()
-    fits["typical_pressure_bar"] = typical_pressure_bar(referred, s.typical_window_days).reindex(fkeys).to_numpy()
+    # The fits' rows are the referred readings' pump intervals in order (fit_degradation), so codes line up.
+    pairs, group = pair_codes(referred["pump_id"].to_numpy(), referred["interval_no"].to_numpy())
+    assert len(pairs) == len(fits)
+    taken = referred["taken_at"].to_numpy()
+    fits["hours_per_day"] = interval_hours_per_day(group, taken, referred["hours"].to_numpy(float), len(fits), s)
+    fits["typical_pressure_bar"] = typical_pressure_bar(group, taken, referred["pressure_bar"].to_numpy(float),
+                                                        referred["flag"].isna().to_numpy(), len(fits),
+                                                        s.typical_window_days)
 
     # One row per pump: its current interval.
     current_iv = intervals[intervals["is_current"]].set_index("pump_id").reindex(pump_tab.index)
     current_iv["interval_no"] = current_iv["interval_no"].fillna(0).astype(np.int64)
     cur_keys = pd.MultiIndex.from_arrays([pump_tab.index, current_iv["interval_no"]])
-    cur = fits.set_index(KEYS).reindex(cur_keys)
+    # The members' lines (most of the fits' columns) stay out: the pump rows read only their weights.
+    cur = fits[[c for c in fits.columns if c not in _MEMBER_LINES]].set_index(KEYS).reindex(cur_keys)
     cur.index = pump_tab.index
     cur_limits = {
         q: limit_flows_lpm(

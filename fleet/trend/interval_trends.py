@@ -34,18 +34,23 @@ def interval_trends(fits: pd.DataFrame, intervals: pd.DataFrame, confidence: flo
         c.removeprefix("slip_") in SLIP_FIGURES or "_weight" in c or c.endswith(
             ("_a", "_b", "_var_a", "_var_b", "_cov_ab", "_dof", "_hours_scale", "_hours_offset")))]
     kept += [f"drain_{name}" for name in DRAIN_FIGURES if f"drain_{name}" in fits.columns]
-    values = [{"confidence": confidence} for _ in range(len(fits))]
-    for name in kept:  # column by column: JSON-ready values without a check per cell
-        column = fits[name]
-        if pd.api.types.is_bool_dtype(column):
-            cells = column.to_numpy(bool).tolist()
-        elif pd.api.types.is_numeric_dtype(column):
-            numbers = column.to_numpy(float)
-            cells = np.where(np.isfinite(numbers), numbers, None).tolist()
-        else:
-            cells = json_ready(column.tolist())
-        for value, cell in zip(values, cells, strict=True):
-            value[name] = cell
+    # Every kept column as one object table (numbers NaN -> None, bools, JSON-ready text), numbers in one block:
+    # a row's dict is then one zip, with no lookup or check per cell.
+    table = np.empty((len(fits), len(kept)), dtype=object)
+    dtypes = fits.dtypes
+    numeric = [j for j, name in enumerate(kept) if pd.api.types.is_numeric_dtype(dtypes[name])
+               and not pd.api.types.is_bool_dtype(dtypes[name])]
+    in_block = set(numeric)
+    if numeric:
+        numbers = fits[[kept[j] for j in numeric]].to_numpy(float)
+        table[:, numeric] = np.where(np.isfinite(numbers), numbers, None)
+    for j, name in enumerate(kept):
+        if pd.api.types.is_bool_dtype(dtypes[name]):
+            table[:, j] = fits[name].to_numpy(bool).tolist()
+        elif j not in in_block:
+            table[:, j] = json_ready(fits[name].tolist())
+    keys = ["confidence", *kept]
+    values = [dict(zip(keys, (confidence, *row), strict=True)) for row in table.tolist()]
     return pd.DataFrame({
         "pump_id": fits["pump_id"].to_numpy(np.int64),
         "interval_no": fits["interval_no"].to_numpy(np.int64),

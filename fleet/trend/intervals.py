@@ -7,6 +7,7 @@ import numpy as np
 import pandas as pd
 
 from fleet.kinds import RESETS_INTERVAL
+from fleet.trend.grouped import group_max, group_min, group_time_max, pair_codes
 
 # Ordering key = day number * _DAY_SLOT + hour-meter value, so that on the day of an event the hour meter
 # decides which side of it a reading falls. _DAY_SLOT exceeds any hour-meter value (114 years of running).
@@ -31,13 +32,13 @@ INTERVAL_COLUMNS = [
 ]
 
 
-def _day_number(times: pd.Series) -> np.ndarray:
-    days = pd.to_datetime(times).dt.normalize().to_numpy(dtype="datetime64[D]")
+def _day_number(times: np.ndarray) -> np.ndarray:
+    days = np.asarray(times).astype("datetime64[D]")  # floors to the day, as normalising does
     return days.astype(np.int64).astype(float)
 
 
-def _order_key(times: pd.Series, hours: pd.Series, missing_hours: float) -> np.ndarray:
-    h = pd.to_numeric(hours, errors="coerce").to_numpy(dtype=float)
+def _order_key(times: np.ndarray, hours: np.ndarray, missing_hours: float) -> np.ndarray:
+    h = np.asarray(hours, dtype=float)
     h = np.where(np.isfinite(h), np.clip(h, 0.0, _END_OF_DAY), missing_hours)
     return _day_number(times) * _DAY_SLOT + h
 
@@ -54,13 +55,23 @@ def reset_events(events: pd.DataFrame | None) -> pd.DataFrame:
                 "kind": pd.Series(dtype=object),
             }
         )
-    resets = events.loc[events["kind"].isin(RESETS_INTERVAL), cols].copy()
-    resets["date"] = pd.to_datetime(resets["date"])
+    chosen = events["kind"].isin(RESETS_INTERVAL).to_numpy()
+    pump = events["pump_id"].to_numpy(np.int64)[chosen]
+    date = pd.to_datetime(events["date"]).to_numpy()[chosen]
+    hours = pd.to_numeric(events["hours"], errors="coerce").to_numpy(float)[chosen]
     # An event without hours applies to every reading of its day ("at or before it").
-    resets["key"] = _order_key(resets["date"], resets["hours"], missing_hours=-1.0)
-    resets = resets.sort_values(["pump_id", "key"], kind="stable").reset_index(drop=True)
-    resets["interval_no"] = resets.groupby("pump_id").cumcount().astype(np.int64) + 1
-    return resets
+    key = _order_key(date, hours, missing_hours=-1.0)
+    order = np.lexsort((key, pump))  # stable: by pump, then key
+    pump = pump[order]
+    first_of_pump = np.searchsorted(pump, pump, side="left")
+    return pd.DataFrame({
+        "pump_id": pump,
+        "date": date[order],
+        "hours": hours[order],
+        "kind": pd.Series(events["kind"].to_numpy(object)[chosen][order], dtype=object),
+        "key": key[order],
+        "interval_no": np.arange(len(pump), dtype=np.int64) - first_of_pump + 1,
+    }, columns=[*cols, "key", "interval_no"])
 
 
 def _resets_before(resets: pd.DataFrame, pump_ids: np.ndarray, key: np.ndarray) -> np.ndarray:
@@ -89,57 +100,68 @@ def assign_intervals(readings: pd.DataFrame, events: pd.DataFrame | None) -> tup
     resets = reset_events(events)
     r = readings.copy()
     r["taken_at"] = pd.to_datetime(r["taken_at"])
-    key = _order_key(r["taken_at"], r["hours"], missing_hours=_END_OF_DAY)
+    key = _order_key(r["taken_at"].to_numpy(), pd.to_numeric(r["hours"], errors="coerce").to_numpy(float),
+                     missing_hours=_END_OF_DAY)
     r["interval_no"] = _resets_before(resets, r["pump_id"].to_numpy(np.int64), key)
 
-    hours = pd.to_numeric(r["hours"], errors="coerce")
-    grouped = r.assign(_hours=hours).groupby(["pump_id", "interval_no"])
-    from_readings = pd.DataFrame(
-        {
-            "n_readings": grouped.size(),
-            "first_hours": grouped["_hours"].min(),
-            "last_hours": grouped["_hours"].max(),
-            "first_reading_at": grouped["taken_at"].min(),
-            "last_reading_at": grouped["taken_at"].max(),
-        }
-    )
+    hours = pd.to_numeric(r["hours"], errors="coerce").to_numpy(dtype=float)
+    taken = r["taken_at"].to_numpy()
+    reading_pump = r["pump_id"].to_numpy(np.int64)
+    reading_no = r["interval_no"].to_numpy(np.int64)
 
-    from_events = resets.set_index(["pump_id", "interval_no"])[["date", "kind", "hours"]].rename(
-        columns={"date": "start_at", "kind": "start_kind", "hours": "event_hours"}
-    )
-    intervals = from_readings.join(from_events, how="outer")
-    # A pump overhauled before its first reading lived from new to that overhaul: that life is on record too.
-    overhauled = resets.loc[resets["interval_no"] == 1, "pump_id"].to_numpy()
-    from_new = pd.MultiIndex.from_arrays([overhauled, np.zeros(len(overhauled), dtype=np.int64)],
-                                         names=["pump_id", "interval_no"]).difference(intervals.index)
-    if len(from_new):
-        intervals = pd.concat([intervals, pd.DataFrame(index=from_new)]).sort_index()
-    intervals["n_readings"] = intervals["n_readings"].fillna(0).astype(np.int64)
-    initial = intervals.index.get_level_values("interval_no") == 0
-    unread = initial & (intervals["n_readings"] == 0)
-    intervals["start_at"] = pd.to_datetime(intervals["start_at"]).where(~initial, intervals["first_reading_at"])
-    intervals["start_kind"] = intervals["start_kind"].astype(object).where(~initial, "first_reading")
-    intervals.loc[unread, "start_kind"] = "new"
+    # Every pump interval: those with readings, those opened by a reset event, and, for a pump overhauled before
+    # its first reading, the life from new to that overhaul (interval 0, on record too).
+    reset_pump = resets["pump_id"].to_numpy(np.int64)
+    reset_no = resets["interval_no"].to_numpy(np.int64)
+    from_new = reset_pump[reset_no == 1]
+    pairs, codes = pair_codes(np.concatenate([reading_pump, reset_pump, from_new]),
+                              np.concatenate([reading_no, reset_no, np.zeros(len(from_new), dtype=np.int64)]))
+    n = len(pairs)
+    in_reading, in_reset = codes[:len(r)], codes[len(r):len(r) + len(resets)]
+
+    n_readings = np.bincount(in_reading, minlength=n).astype(np.int64)
+    first_hours, last_hours = group_min(in_reading, hours, n), group_max(in_reading, hours, n)
+    first_reading_at = group_time_max(in_reading, taken, n, smallest=True)
+    last_reading_at = group_time_max(in_reading, taken, n)
+
+    event_date = resets["date"].to_numpy()
+    time_type = np.result_type(taken.dtype, event_date.dtype)
+    start_at = np.full(n, np.datetime64("NaT"), dtype=time_type)
+    start_at[in_reset] = event_date
+    start_kind = np.full(n, np.nan, dtype=object)
+    start_kind[in_reset] = resets["kind"].to_numpy(object)
+    event_hours = np.full(n, np.nan)
+    event_hours[in_reset] = resets["hours"].to_numpy(float)
+
+    initial = pairs[:, 1] == 0
+    unread = initial & (n_readings == 0)
+    start_at = np.where(initial, first_reading_at.astype(time_type), start_at)
+    start_kind[initial] = "first_reading"
+    start_kind[unread] = "new"
     # The event's hour-meter value starts the clock unless the readings after it show a fresh meter.
-    event_hours = intervals["event_hours"]
-    use_event = event_hours.notna() & ~(event_hours > intervals["first_hours"])
-    intervals["start_hours"] = np.where(use_event, event_hours, intervals["first_hours"])
-    intervals.loc[unread, "start_hours"] = 0.0  # the hour meter counts from new
-    intervals = intervals.reset_index().sort_values(["pump_id", "interval_no"], kind="stable")
+    use_event = ~np.isnan(event_hours) & ~(event_hours > first_hours)
+    start_hours = np.where(use_event, event_hours, first_hours)
+    start_hours[unread] = 0.0  # the hour meter counts from new
 
-    nxt = intervals.groupby("pump_id").shift(-1)
-    intervals["end_at"] = pd.to_datetime(nxt["start_at"])
-    intervals["end_kind"] = nxt["start_kind"]
-    intervals["end_hours"] = nxt["event_hours"]
-    intervals["is_current"] = intervals["end_at"].isna()
-    intervals = intervals[INTERVAL_COLUMNS].reset_index(drop=True)
+    # Each interval ends where its pump's next one starts (pairs are sorted by pump, then interval).
+    has_next = np.r_[pairs[1:, 0] == pairs[:-1, 0], False]
+    after = np.minimum(np.arange(n) + 1, max(n - 1, 0))
+    end_at = np.where(has_next, start_at[after], np.datetime64("NaT"))
+    end_kind = np.where(has_next, start_kind[after], np.nan)
+    end_hours = np.where(has_next, event_hours[after], np.nan)
+    intervals = pd.DataFrame({
+        "pump_id": pairs[:, 0], "interval_no": pairs[:, 1], "start_at": start_at,
+        "start_kind": pd.Series(start_kind, dtype=object),
+        "start_hours": start_hours, "end_at": end_at.astype(time_type), "end_kind": pd.Series(end_kind, dtype=object),
+        "end_hours": end_hours,
+        "n_readings": n_readings, "first_hours": first_hours, "last_hours": last_hours,
+        "first_reading_at": first_reading_at, "last_reading_at": last_reading_at, "is_current": np.isnat(end_at),
+    }, columns=INTERVAL_COLUMNS)
 
-    start = intervals.set_index(["pump_id", "interval_no"])[["start_at", "start_hours"]]
-    idx = pd.MultiIndex.from_arrays([r["pump_id"], r["interval_no"]])
-    r["interval_start_at"] = pd.to_datetime(start["start_at"].reindex(idx).to_numpy())
-    r["interval_start_hours"] = start["start_hours"].reindex(idx).to_numpy(dtype=float)
-    r["interval_hours"] = hours.to_numpy(dtype=float) - r["interval_start_hours"].to_numpy()
-    r["age_hours"] = np.where(r["interval_no"].to_numpy() == 0, hours.to_numpy(dtype=float), r["interval_hours"])
+    r["interval_start_at"] = start_at[in_reading]
+    r["interval_start_hours"] = start_hours[in_reading]
+    r["interval_hours"] = hours - start_hours[in_reading]
+    r["age_hours"] = np.where(reading_no == 0, hours, r["interval_hours"].to_numpy())
     return r, intervals
 
 

@@ -10,7 +10,9 @@ scaled to a normal one with the same two-sided quantile: then that member's boun
 Where the mixture never reaches a level (the trend may stay flat), that bound stays open (NaN).
 
 What the pages and the plan read (crossing_band, value_band) takes these pieces one law at a time: the forecast
-is the heaviest law's own median, the band the union of the bands of the laws the readings cannot rule out.
+is the heaviest law's own median, the band the union of the bands of the laws the readings cannot rule out. The
+median is taken on the lines the forecast follows (LawFits.centred: for the slip, the case drain's shape at the
+slip's level), the bands on the trend's own lines; the band is widened to hold the forecast where it lies past.
 """
 
 import dataclasses
@@ -107,7 +109,8 @@ def value_quantile(fits: LawFits, hours, level: float, confidence: float) -> np.
     expand = (slice(None), None) if hours.ndim == 2 else (slice(None),)
     lo = np.full(hours.shape, np.inf)
     hi = np.full(hours.shape, -np.inf)
-    for j, m in enumerate(MEMBERS):
+    for j in np.flatnonzero((fits.weight > 0).any(axis=0)):  # a member without weight widens no bracket
+        m = MEMBERS[j]
         used = (fits.weight[:, j] > 0)[expand]
         mean, sd = _moments(fits, j, hours)
         spread = 10.0 * sd
@@ -130,7 +133,8 @@ def averaged_slope(fits: LawFits, hours) -> np.ndarray:
     """Model-weighted mean of the members' growth rates dq/dh (L/min per hour) at `hours` (per group)."""
     h = np.asarray(hours, dtype=float)
     total = np.zeros(len(fits))
-    for j, m in enumerate(MEMBERS):
+    for j in np.flatnonzero((fits.weight > 0).any(axis=0)):  # a member without weight adds nothing
+        m = MEMBERS[j]
         w, a, b = fits.weight[:, j], fits.a[:, j], fits.b[:, j]
         with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
             if m.log_space:
@@ -167,21 +171,20 @@ def crossing_quantiles(fits: LawFits, limit, now_hours, levels, confidence: floa
         return 1.0 - value_cdf(fits, hours, limit_g[:, None] if np.ndim(hours) == 2 else limit_g, confidence, pairs)
 
     on_grid = crossed(grid)
-    rows = np.arange(len(now))
-    out = []
-    for level in levels:
-        reached = on_grid >= level
-        any_reached = reached.any(axis=1) & ok
-        first = np.argmax(reached, axis=1)
-        hi = grid[rows, first]
-        lo = grid[rows, np.maximum(first - 1, 0)]
-        for _ in range(_BISECTIONS):
-            mid = 0.5 * (lo + hi)
-            up = crossed(mid) >= level
-            lo, hi = np.where(up, lo, mid), np.where(up, mid, hi)
-        x = np.where(first == 0, 0.0, hi)
-        out.append(np.where(any_reached, x, np.nan))
-    return out
+    # Every level's bracket searched at once: one column per level, one evaluation of the mixture per step.
+    levels = np.asarray(levels, dtype=float)[None, :]
+    reached = on_grid[:, :, None] >= levels[:, None, :]
+    any_reached = reached.any(axis=1) & ok[:, None]
+    first = np.argmax(reached, axis=1)
+    rows = np.arange(len(now))[:, None]
+    hi = grid[rows, first]
+    lo = grid[rows, np.maximum(first - 1, 0)]
+    for _ in range(_BISECTIONS):
+        mid = 0.5 * (lo + hi)
+        up = crossed(mid) >= levels
+        lo, hi = np.where(up, lo, mid), np.where(up, mid, hi)
+    x = np.where(any_reached, np.where(first == 0, 0.0, hi), np.nan)
+    return list(x.T)
 
 
 def law_alone(fits: LawFits, law: str, rows: np.ndarray | None = None) -> LawFits:
@@ -209,10 +212,11 @@ def heaviest_law_median(fits: LawFits, hours, confidence: float) -> np.ndarray:
     expand = (slice(None), None) if hours.ndim == 2 else (slice(None),)
     heaviest = heaviest_law(fits)
     median = np.full(hours.shape, np.nan)
+    centred = fits.centred()
     for k, law in enumerate(LAWS):
         rows = (heaviest == k) & (fits.weight.sum(axis=1) > 0)
         if rows.any():
-            mid = value_quantile(law_alone(fits, law, rows), hours, 0.5, confidence)
+            mid = value_quantile(law_alone(centred, law, rows), hours, 0.5, confidence)
             median = np.where(rows[expand], mid, median)
     return median
 
@@ -229,8 +233,9 @@ def crossing_band(fits: LawFits, limit, now_hours, confidence: float) -> tuple[n
     """Low bound, forecast and high bound of the interval hours at which the trend reaches `limit`, per group.
 
     The forecast is the median crossing of the heaviest law alone (heaviest_law; its exponents or run-in shapes
-    still averaged). The median of the mixture of all laws was tried first: where one law takes most of the
-    weight, the others' share drags the forecast towards theirs, and on the invented fleets of
+    still averaged), on the lines the forecast follows (LawFits.centred; the band on the trend's own lines,
+    widened to hold the forecast). The median of the mixture of all laws was tried first: where one law takes
+    most of the weight, the others' share drags the forecast towards theirs, and on the invented fleets of
     benchmarks/calibration.py the law the readings favour gave the smaller median error for exponential wear
     (11.4 % against 13.2 %) and as good or better for linear and accelerating wear, run-in wear 0.4 to 1.2
     points worse. The bounds are the union of the bands of the plausible laws (plausible_laws), each law's band
@@ -247,15 +252,26 @@ def crossing_band(fits: LawFits, limit, now_hours, confidence: float) -> tuple[n
     low = np.full(len(fits), np.nan)
     high = np.full(len(fits), -np.inf)
     open_high = np.zeros(len(fits), dtype=bool)
+    centred = fits.centred()
     for k, (law, rows) in enumerate(plausible_laws(fits).items()):
         if not rows.any():
             continue
-        lo, mid, hi = crossing_quantiles(law_alone(fits, law, rows), limit, now_hours,
-                                         (alpha / 2, 0.5, 1 - alpha / 2), confidence)
-        median = np.where(rows & (heaviest == k), mid, median)
+        top = rows & (heaviest == k)
+        if centred is fits:  # one search for the three levels
+            lo, mid, hi = crossing_quantiles(law_alone(fits, law, rows), limit, now_hours,
+                                             (alpha / 2, 0.5, 1 - alpha / 2), confidence)
+        else:  # the bounds on the trend's own lines, the forecast on the centred ones (the heaviest law only)
+            lo, hi = crossing_quantiles(law_alone(fits, law, rows), limit, now_hours, (alpha / 2, 1 - alpha / 2),
+                                        confidence)
+            mid = np.full(len(fits), np.nan)
+            if top.any():
+                (mid,) = crossing_quantiles(law_alone(centred, law, top), limit, now_hours, (0.5,), confidence)
+        median = np.where(top, mid, median)
         low = np.where(rows, np.fmin(low, lo), low)
         open_high |= rows & np.isnan(hi)
         high = np.where(rows, np.fmax(high, hi), high)
+    low = np.fmin(low, median)  # a forecast on a centred line may lie past its own trend's band: the band holds it
+    high = np.where(np.isfinite(high), np.fmax(high, median), high)
     reached = np.isfinite(median) | np.isfinite(low)
     high = np.where(open_high | ~np.isfinite(high) | ~reached, np.nan, high)
     return low, median, high
@@ -274,12 +290,22 @@ def value_band(fits: LawFits, hours, confidence: float) -> tuple[np.ndarray, np.
     expand = (slice(None), None) if hours.ndim == 2 else (slice(None),)
     grid = hours if hours.ndim == 2 else hours[:, None]
     levels = np.repeat([alpha / 2, 0.5, 1 - alpha / 2], grid.shape[1])[None, :]  # three quantiles, one search
+    edge_levels = np.repeat([alpha / 2, 1 - alpha / 2], grid.shape[1])[None, :]
+    centred = fits.centred()
     for k, (law, rows) in enumerate(plausible_laws(fits).items()):
         if not rows.any():
             continue
-        found = value_quantile(law_alone(fits, law, rows), np.tile(grid, 3), levels, confidence)
-        lo, mid, hi = (part.reshape(hours.shape) for part in np.split(found, 3, axis=1))
-        median = np.where((rows & (heaviest == k))[expand], mid, median)
+        top = rows & (heaviest == k)
+        if centred is fits:  # one search for the three levels
+            found = value_quantile(law_alone(fits, law, rows), np.tile(grid, 3), levels, confidence)
+            lo, mid, hi = (part.reshape(hours.shape) for part in np.split(found, 3, axis=1))
+        else:  # the edges on the trend's own lines, the centre on the centred ones (the heaviest law only)
+            found = value_quantile(law_alone(fits, law, rows), np.tile(grid, 2), edge_levels, confidence)
+            lo, hi = (part.reshape(hours.shape) for part in np.split(found, 2, axis=1))
+            mid = np.full(hours.shape, np.nan)
+            if top.any():
+                mid = value_quantile(law_alone(centred, law, top), grid, 0.5, confidence).reshape(hours.shape)
+        median = np.where(top[expand], mid, median)
         low = np.where(rows[expand], np.fmin(low, lo), low)
         high = np.where(rows[expand], np.fmax(high, hi), high)
-    return low, median, high
+    return np.fmin(low, median), median, np.fmax(high, median)

@@ -7,6 +7,7 @@ import pandas as pd
 
 from fleet.physics.cleanliness import Iso4406Code, parse_code, steps_over_channels
 from fleet.physics.oil import kinematic_viscosity_cst, oil_life_factor, viscosity_window_flag
+from fleet.trend.grouped import group_time_max
 from fleet.trend.settings import AnalysisSettings
 
 
@@ -77,28 +78,38 @@ def latest_lab_results(samples: pd.DataFrame | None, now, settings: AnalysisSett
     ]
     if samples is None or len(samples) == 0:
         return pd.DataFrame(columns=cols, index=pd.Index([], name="machine_id"))
-    s = samples.copy()
-    s["sampled_at"] = pd.to_datetime(s["sampled_at"])
-    s["reported_at"] = pd.to_datetime(s["reported_at"])
-    reported = s[s["reported_at"].notna()].sort_values(["machine_id", "sampled_at", "reported_at"], kind="stable")
-    latest = reported.groupby("machine_id").tail(1).set_index("machine_id")
-    pending = s[s["reported_at"].isna()].groupby("machine_id")["sampled_at"].min()
+    machines, machine = np.unique(samples["machine_id"].to_numpy(np.int64), return_inverse=True)
+    n = len(machines)
+    sampled = pd.to_datetime(samples["sampled_at"]).to_numpy()
+    reported = pd.to_datetime(samples["reported_at"]).to_numpy()
+    done = ~np.isnat(reported)
+    # Each machine's latest reported sample: the last by (sampled, reported), ties kept in the samples' order.
+    rows = np.flatnonzero(done)
+    rows = rows[np.lexsort((reported[rows], sampled[rows], machine[rows]))]
+    latest = np.full(n, -1)
+    latest[machine[rows]] = rows
+    has = latest >= 0
+    at = np.maximum(latest, 0)
+
+    def pick(column: str) -> np.ndarray:
+        return np.where(has, pd.to_numeric(samples[column], errors="coerce").to_numpy(float)[at], np.nan)
+
+    pending = group_time_max(machine[~done], sampled[~done], n, smallest=True)
+    late_after = np.datetime64(pd.Timestamp(now) - pd.Timedelta(days=settings.lab_late_days))
     out = pd.DataFrame(
         {
-            "sample_sampled_at": latest["sampled_at"],
-            "sample_reported_at": latest["reported_at"],
-            "c4": pd.to_numeric(latest["code_4"], errors="coerce"),
-            "c6": pd.to_numeric(latest["code_6"], errors="coerce"),
-            "c14": pd.to_numeric(latest["code_14"], errors="coerce"),
-            "low_count": latest["low_count"].fillna(False).astype(bool),
-            "water_ppm": pd.to_numeric(latest["water_ppm"], errors="coerce"),
-        }
+            "sample_sampled_at": np.where(has, sampled[at], np.datetime64("NaT")).astype(sampled.dtype),
+            "sample_reported_at": np.where(has, reported[at], np.datetime64("NaT")).astype(reported.dtype),
+            "c4": pick("code_4"),
+            "c6": pick("code_6"),
+            "c14": pick("code_14"),
+            "low_count": has & samples["low_count"].astype("boolean").fillna(False).to_numpy(bool)[at],
+            "water_ppm": pick("water_ppm"),
+            "lab_late": ~np.isnat(pending) & (pending < late_after),
+            "lab_pending_since": pending,
+        },
+        index=pd.Index(machines, name="machine_id"),
     )
-    out = out.join(pending.rename("lab_pending_since"), how="outer")
-    late_after = pd.Timestamp(now) - pd.Timedelta(days=settings.lab_late_days)
-    out["lab_late"] = out["lab_pending_since"].notna() & (out["lab_pending_since"] < late_after)
-    out["low_count"] = out["low_count"].astype("boolean").fillna(False).astype(bool)
-    out.index.name = "machine_id"
     return out[cols]
 
 

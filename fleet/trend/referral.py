@@ -77,16 +77,28 @@ def refer_readings(
     multi-point flow tests, flow_test_points, leak_lpm_per_bar and leak_lpm_per_bar_ref.
     """
     s = settings or AnalysisSettings()
-    r = readings.reset_index(drop=True).merge(_pump_fields(pumps), on="pump_id", how="left", validate="m:1")
-    known_pump = r["displacement_cc"].notna().to_numpy()
-    variable = r["variable"].fillna(False).astype(bool).to_numpy()
-    has_drain_port = r["case_drain"].fillna(False).astype(bool).to_numpy()
+    r = readings.reset_index(drop=True)
+    # Each reading's pump fields by position (a lookup, not a merge of the frames).
+    fields = _pump_fields(pumps)
+    if not fields["pump_id"].is_unique:
+        raise ValueError("pumps: more than one row for a pump_id")
+    at = pd.Index(fields["pump_id"]).get_indexer(r["pump_id"])
 
-    vg = _num(r, "displacement_cc")
+    def pump_value(column: str, missing=np.nan) -> np.ndarray:
+        values = _num(fields, column) if missing is np.nan else fields[column].to_numpy(bool)
+        if len(values) == 0:
+            return np.full(len(at), missing)
+        return np.where(at >= 0, values[np.maximum(at, 0)], missing)
+
+    vg = pump_value("displacement_cc")
+    known_pump = ~np.isnan(vg)
+    variable = pump_value("variable", False)
+    has_drain_port = pump_value("case_drain", False)
+
     n = _num(r, "speed_rpm")
-    n_rated = _num(r, "rated_speed_rpm")
+    n_rated = pump_value("rated_speed_rpm")
     p = _num(r, "pressure_bar")
-    p_rated = _num(r, "rated_pressure_bar")
+    p_rated = pump_value("rated_pressure_bar")
     flow = _num(r, "flow_lpm")
     drain = np.where(has_drain_port, _num(r, "drain_lpm"), np.nan)
     temp = _num(r, "temp_c")
@@ -95,11 +107,11 @@ def refer_readings(
     # A fixed pump always runs at full stroke; a variable pump's flow means nothing without its setting.
     stroke = np.where(variable, stroke_given, np.where(np.isfinite(stroke_given), stroke_given, 1.0))
     nu40, nu100, rho15 = _num(r, "nu40"), _num(r, "nu100"), _num(r, "density15")
-    t_ref = _num(r, "reference_temp_c")
+    t_ref = pump_value("reference_temp_c")
 
     q_th = np.asarray(theoretical_flow_lpm(vg, n, stroke), dtype=float)
     rated_flow = np.asarray(theoretical_flow_lpm(vg, n_rated), dtype=float)
-    max_flow = _num(r, "max_flow_lpm")
+    max_flow = pump_value("max_flow_lpm")
     nu = np.asarray(kinematic_viscosity_cst(temp, nu40, nu100), dtype=float)
     mu = np.asarray(dynamic_viscosity_pas(temp, nu40, nu100, rho15), dtype=float)
     mu_ref = np.asarray(dynamic_viscosity_pas(t_ref, nu40, nu100, rho15), dtype=float)

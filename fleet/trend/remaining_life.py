@@ -11,6 +11,7 @@ import numpy as np
 import pandas as pd
 
 from fleet.trend.degradation import QUANTITIES, not_enough_reason
+from fleet.trend.grouped import group_max, group_min, time_span_days, within_days_of_last
 from fleet.trend.linear import LineFit, line_variance, t_quantile
 from fleet.trend.model_average import crossing_band, value_band
 from fleet.trend.settings import AnalysisSettings
@@ -95,33 +96,33 @@ def hours_to_limits(fits: pd.DataFrame, limits_lpm: dict[str, np.ndarray], setti
 _TREND_WORDS = {"slip": "volumetric efficiency", "drain": "case drain"}
 
 
-def hours_per_day(readings: pd.DataFrame, settings: AnalysisSettings) -> pd.Series:
-    """Running hours per calendar day per (pump_id, interval_no), from the pump's own hour meter.
+def _dated_hours(taken: np.ndarray, hours: np.ndarray) -> np.ndarray:
+    return np.isfinite(hours) & ~np.isnat(taken)
+
+
+def interval_hours_per_day(group: np.ndarray, taken: np.ndarray, hours: np.ndarray, n_groups: int,
+                           settings: AnalysisSettings) -> np.ndarray:
+    """Running hours per calendar day of each pump interval (readings' group codes 0..n_groups-1, their times and
+    hour-meter values), from the pump's own hour meter.
 
     Uses the readings of the last `hours_per_day_window_days` before the interval's last reading, falling
     back to the whole interval when those span less than a week. NaN with no usable span; clipped to 0..24.
     """
-    r = readings.loc[
-        np.isfinite(pd.to_numeric(readings["hours"], errors="coerce")) & readings["taken_at"].notna(),
-        ["pump_id", "interval_no", "taken_at", "hours"],
-    ]
-    keys = ["pump_id", "interval_no"]
-    last_at = r.groupby(keys)["taken_at"].transform("max")
-    recent = r[r["taken_at"] >= last_at - pd.Timedelta(days=settings.hours_per_day_window_days)]
+    usable = _dated_hours(taken, hours)
+    g, t, h = group[usable], taken[usable], hours[usable]
+    recent = within_days_of_last(g, t, n_groups, settings.hours_per_day_window_days)
 
-    def rate(frame: pd.DataFrame) -> tuple[pd.Series, pd.Series]:
-        g = frame.groupby(keys)
-        days = (g["taken_at"].max() - g["taken_at"].min()).dt.total_seconds() / 86400.0
-        run = g["hours"].max() - g["hours"].min()
-        return run, days
+    def rate(keep):
+        run = group_max(g[keep], h[keep], n_groups) - group_min(g[keep], h[keep], n_groups)
+        return run, time_span_days(g[keep], t[keep], n_groups)
 
     run_recent, days_recent = rate(recent)
-    run_all, days_all = rate(r)
-    use_recent = days_recent.reindex(days_all.index) >= 7.0
-    run = run_recent.reindex(days_all.index).where(use_recent, run_all)
-    days = days_recent.reindex(days_all.index).where(use_recent, days_all)
-    per_day = (run / days.where(days > 0)).clip(lower=0.0, upper=24.0)
-    return per_day.rename("hours_per_day")
+    run_all, days_all = rate(np.ones(len(g), dtype=bool))
+    use_recent = days_recent >= 7.0
+    run = np.where(use_recent, run_recent, run_all)
+    days = np.where(use_recent, days_recent, days_all)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        return np.clip(run / np.where(days > 0, days, np.nan), 0.0, 24.0)
 
 
 def limit_dates(last_reading_at: pd.Series, remaining_hours, per_day) -> pd.Series:

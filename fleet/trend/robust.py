@@ -6,15 +6,15 @@ solver call per pump.
 """
 
 import numpy as np
-import pandas as pd
 
+from fleet.trend.grouped import group_median
 from fleet.trend.linear import LineFit, grouped_line, inverse_design
 from fleet.trend.settings import AnalysisSettings
 
 
 def robust_scale(group: np.ndarray, z: np.ndarray, n_groups: int) -> np.ndarray:
     """Per group 1.4826 x median |z| (MAD about the line), never below 1: the error model's own scatter."""
-    mad = pd.Series(np.abs(z)).groupby(group).median().reindex(range(n_groups)).to_numpy()
+    mad = group_median(group, np.abs(z), n_groups)
     return np.maximum(1.4826 * np.nan_to_num(mad, nan=1.0), 1.0)
 
 

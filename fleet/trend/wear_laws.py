@@ -24,15 +24,21 @@ with K counting the scale too (Burnham & Anderson 2002, sec. 2.4), weights exp(-
 the power law its exponents, and within the run-in law its (tau, s) pairs, are weighed by their likelihood
 alone (same K). A law needs n > K + 1 readings
 to be scored; with fewer than that for every law, the exponential law stands alone.
+
+Where an interval has a case drain trend, the slip's forecast follows the drain's shape scaled to the slip's
+level (LawFits.centred_on: the same clearances, and the drain meter sees the shape far more sharply), unless the
+slip's own readings refute that shape; the slip's band stays its own.
 """
 
+import dataclasses
 import warnings
 from dataclasses import dataclass, field
 
 import numpy as np
 import pandas as pd
-from scipy import special
+from scipy import special, stats
 
+from fleet.trend.grouped import group_max, group_min
 from fleet.trend.linear import t_quantile
 from fleet.trend.robust import fit_reweighted, robust_scale
 from fleet.trend.settings import AnalysisSettings
@@ -73,6 +79,7 @@ MEMBERS = (
 )
 FAMILIES = ("power", "run_in")  # laws with many members, fitted in one weighted pass each
 FIELDS = ("a", "b", "var_a", "var_b", "cov_ab", "dof", "weight")
+CENTRE_FIELDS = ("centre_a", "centre_b")  # LawFits.centred_on
 
 
 @dataclass
@@ -94,6 +101,10 @@ class LawFits:
     member_score: np.ndarray | None = None  # n ln(D / n) per group and member, NaN where not scored
     usable: np.ndarray | None = None  # per group and member: the line could be fitted
     allowed: tuple = LAWS  # the laws compared (AnalysisSettings.wear_laws)
+    # The lines the forecast follows (centred_on): where set, per group and member a and b of the line whose
+    # median is the forecast and the chart's centre; None: (a, b) themselves. The band stays on (a, b).
+    centre_a: np.ndarray | None = None
+    centre_b: np.ndarray | None = None
     _t_ratio: dict = field(default_factory=dict, repr=False)
 
     def t_ratio(self, confidence: float) -> np.ndarray:
@@ -128,13 +139,70 @@ class LawFits:
     def law_weights(self) -> dict[str, np.ndarray]:
         return {law: self.weight[:, [m.law == law for m in MEMBERS]].sum(axis=1) for law in LAWS}
 
+    def centred(self) -> "LawFits":
+        """The fits with each member's line moved to the line the forecast follows (centre_a, centre_b), its
+        spread and weight kept: the forecast and the chart's centre come from these, the band from self."""
+        if self.centre_a is None:
+            return self
+        return dataclasses.replace(self, a=self.centre_a, b=self.centre_b, _t_ratio=self._t_ratio)
+
+    def centred_on(self, other: "LawFits", group, hours, value, sigma, settings: AnalysisSettings) -> None:
+        """Set the lines the forecast follows to the shape of `other` (the case drain's trend of the same
+        intervals) scaled to this trend's level.
+
+        Slip and case drain leak through the same clearances: where the share of the slip that leaves through
+        the case drain holds over the interval, both grow alike, and the case drain meter (small flows, a few %
+        of noise) shows the shape far more sharply than the slip (the difference of two large flows). Per group
+        and member, q = k d(x): k by weighted least squares through the origin of this trend's readings on the
+        other's fitted line (weights 1 / sigma^2, Huber-weighted about that line); for the exponential law a
+        shift of ln q by ln k. Only where the other trend has a trend of its own (settings.min_points readings)
+        on the same hours (its H and h0 equal this one's), k > 0, and this trend's readings do not refute the
+        shared shape: the F test of the one-parameter line k d(x) against this trend's own two-parameter line
+        at the 1 % level (an extra sum of squares test, e.g. Draper & Smith, Applied Regression Analysis, on
+        the same Huber weights; cited from memory). Elsewhere the line stays this trend's own. The band is not
+        moved: it rests on this trend's own readings, so it holds whether the shares hold or not."""
+        n_groups = len(self)
+        count = np.bincount(group, minlength=n_groups).astype(float)
+        same = (np.isclose(other.hours_scale, self.hours_scale) & np.isclose(other.hours_offset, self.hours_offset)
+                & (count >= 4) & (np.nan_to_num(other.n_points) >= settings.min_points))
+        refuted_at = stats.f.ppf(0.99, 1, np.maximum(count - 2, 1))
+        centre_a, centre_b = self.a.copy(), self.b.copy()
+        w_all = 1.0 / np.asarray(sigma, dtype=float) ** 2
+        value_all = np.asarray(value, dtype=float)
+        hours_all = np.asarray(hours, dtype=float)
+        weighed = (self.weight > 0) & same[:, None]  # a member without weight moves no forecast
+        for j in np.flatnonzero(weighed.any(axis=0)):
+            m = MEMBERS[j]
+            at = weighed[group, j]  # the readings of the groups concerned only
+            g, h, q, w = group[at], hours_all[at], value_all[at], w_all[at]
+            x = member_x(m, h, other.hours_scale[g], other.hours_offset[g])
+            with np.errstate(invalid="ignore", over="ignore", divide="ignore"):
+                line = other.a[g, j] + other.b[g, j] * x
+                shape = np.exp(line) if m.log_space else line
+                ok = np.isfinite(shape)
+                k, robust = _through_origin(g, np.where(ok, shape, 0.0), q, np.where(ok, w, 0.0), n_groups,
+                                            settings.huber_k)
+                own = self.a[g, j] + self.b[g, j] * x
+                own = np.exp(own) if m.log_space else own
+                rw = w * robust
+                shared = np.bincount(g, np.nan_to_num(rw * (q - k[g] * shape) ** 2), minlength=n_groups)
+                alone = np.bincount(g, np.nan_to_num(rw * (q - own) ** 2), minlength=n_groups)
+                f_stat = (shared - alone) / (alone / np.maximum(count - 2, 1))
+                a = other.a[:, j] + np.log(k) if m.log_space else k * other.a[:, j]
+                b = other.b[:, j] if m.log_space else k * other.b[:, j]
+            use = weighed[:, j] & (k > 0) & np.isfinite(a) & np.isfinite(b) & ~(f_stat > refuted_at)
+            centre_a[:, j] = np.where(use, a, centre_a[:, j])
+            centre_b[:, j] = np.where(use, b, centre_b[:, j])
+        self.centre_a, self.centre_b = centre_a, centre_b
+
     def to_columns(self, prefix: str) -> dict[str, np.ndarray]:
         cols = {
             f"{prefix}_hours_scale": self.hours_scale,
             f"{prefix}_hours_offset": self.hours_offset,
         }
+        centre = CENTRE_FIELDS if self.centre_a is not None else ()
         for j, m in enumerate(MEMBERS):
-            for f in FIELDS:
+            for f in (*FIELDS, *centre):
                 cols[f"{prefix}_{m.name}_{f}"] = getattr(self, f)[:, j]
         return cols
 
@@ -145,12 +213,14 @@ class LawFits:
         def col(name):
             return np.atleast_1d(np.asarray(frame[f"{prefix}_{name}"], dtype=float))
 
+        # The lines the forecast follows are kept only for a trend centred on another's (centred_on).
+        fields = (*FIELDS, *CENTRE_FIELDS) if f"{prefix}_{MEMBERS[0].name}_centre_a" in frame else FIELDS
         if isinstance(frame, pd.DataFrame):  # every member's columns in one take, not one lookup each
-            names = [f"{prefix}_{m.name}_{f}" for f in FIELDS for m in MEMBERS]
-            block = frame[names].to_numpy(dtype=float).reshape(len(frame), len(FIELDS), len(MEMBERS))
-            parts = {f: block[:, i, :] for i, f in enumerate(FIELDS)}
+            names = [f"{prefix}_{m.name}_{f}" for f in fields for m in MEMBERS]
+            block = frame[names].to_numpy(dtype=float).reshape(len(frame), len(fields), len(MEMBERS))
+            parts = {f: block[:, i, :] for i, f in enumerate(fields)}
         else:
-            parts = {f: np.column_stack([col(f"{m.name}_{f}") for m in MEMBERS]) for f in FIELDS}
+            parts = {f: np.column_stack([col(f"{m.name}_{f}") for m in MEMBERS]) for f in fields}
         return cls(
             **parts,
             hours_scale=col("hours_scale"),
@@ -261,6 +331,35 @@ def run_in_identifiable(group, hours, hours_scale, offset, n_groups) -> np.ndarr
     return ok
 
 
+def _through_origin(group, x, y, w, n_groups, huber_k: float) -> tuple[np.ndarray, np.ndarray]:
+    """Per group the slope k of y = k x by weighted least squares through the origin, then a few passes with
+    Huber weights about the line (the scale as fleet.trend.robust.robust_scale), so that a gross outlier of y
+    moves k little; returns k and the last Huber weights."""
+    robust = np.ones_like(y)
+    for _ in range(4):
+        sxx = np.bincount(group, w * robust * x * x, minlength=n_groups)
+        with np.errstate(invalid="ignore", divide="ignore"):
+            k = np.where(sxx > 0, np.bincount(group, w * robust * x * y, minlength=n_groups) / sxx, np.nan)
+            z = (y - k[group] * x) * np.sqrt(w)
+            u = np.abs(z) / _mad_scale(group, np.nan_to_num(z), n_groups)[group]
+            robust = np.where(u > huber_k, huber_k / u, 1.0)
+    return k, robust
+
+
+def _mad_scale(group, z, n_groups) -> np.ndarray:
+    """fleet.trend.robust.robust_scale (1.4826 x median |z| per group, never below 1) by one sort: called for
+    every weighed member on a few groups' readings, where a grouped median's fixed cost would dominate."""
+    a = np.abs(z)
+    order = np.lexsort((a, group))
+    count = np.bincount(group, minlength=n_groups)
+    start = np.concatenate([[0], np.cumsum(count)[:-1]])
+    sorted_a = a[order]
+    has = count > 0
+    lo = sorted_a[np.where(has, start + (count - 1) // 2, 0)] if a.size else np.zeros(n_groups)
+    hi = sorted_a[np.where(has, start + count // 2, 0)] if a.size else np.zeros(n_groups)
+    return np.maximum(1.4826 * np.where(has, 0.5 * (lo + hi), 1.0), 1.0)
+
+
 def aicc(n, n_params, deviance) -> np.ndarray:
     """Small-sample AIC of a least-squares fit: n ln(D / n) + 2K + 2K(K + 1) / (n - K - 1); NaN if n <= K + 1."""
     n = np.asarray(n, dtype=float)
@@ -308,9 +407,8 @@ def fit_wear_laws(
     log_q = np.log(q)
     count = np.bincount(group, minlength=n_groups).astype(float)
     offset = np.zeros(n_groups) if hours_offset is None else np.nan_to_num(np.asarray(hours_offset, float))
-    by_group = pd.Series(hours).groupby(group)
-    last = by_group.max().reindex(range(n_groups)).to_numpy(dtype=float)
-    first = by_group.min().reindex(range(n_groups)).to_numpy(dtype=float)
+    last = group_max(group, hours, n_groups)
+    first = group_min(group, hours, n_groups)
     hours_scale = np.where(last + offset > 0, last + offset, np.nan)
 
     def log_variance(fitted_log):

@@ -19,7 +19,6 @@ Posting needs a technician or engineer: an API token (``Authorization: Bearer fl
 import json
 import math
 
-import pandas as pd
 from flask import Blueprint, jsonify, request
 
 from fleet import units
@@ -72,8 +71,9 @@ def _cell(value, item_no: int, name: str, problems: list[Problem]) -> str:
     return ""
 
 
-def readings_table(items: list) -> tuple[pd.DataFrame, list[Problem]]:
-    """The posted objects as a table of text cells for the importer, and the problems of their shape.
+def readings_rows(items: list) -> tuple[list[dict[str, str]], list[Problem]]:
+    """The posted objects as rows of text cells for the importer (each row has every column, in the same order),
+    and the problems of their shape.
 
     A column whose values all carry the same unit keeps it in its header (the importer converts it); when
     objects use different units, each value is converted here to the canonical unit with fleet.units.
@@ -110,7 +110,8 @@ def readings_table(items: list) -> tuple[pd.DataFrame, list[Problem]]:
         else:
             table[name] = [_to_canonical(v, u.get(name), FIELDS[name].quantity)
                            for v, u in zip(values, unit_of, strict=True)]
-    return pd.DataFrame(table, index=range(len(cells)), dtype=str), problems
+    rows = [dict(zip(table, values, strict=True)) for values in zip(*table.values(), strict=True)]
+    return rows or [{} for _ in cells], problems
 
 
 def _split_unit(value: dict, item_no: int, name: str, problems: list[Problem]):
@@ -184,13 +185,13 @@ def post_readings():
         return _problems_response(problems, 400)
     if repeated := _repeated_ids(client_ids):
         return _problems_response(repeated)
-    table, problems = readings_table(items)
+    rows, problems = readings_rows(items)
     if problems:
         return _problems_response(problems)
     token_id = signed_in_user().token_id
 
     def work(db):
-        result = store_posted(db, table, client_ids, places)
+        result = store_posted(db, rows, client_ids, places)
         if token_id is not None:
             mark_token_used(db, token_id)
         return result

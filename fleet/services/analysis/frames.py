@@ -84,12 +84,15 @@ def effective_limits(pumps: pd.DataFrame, defaults: pd.DataFrame) -> pd.DataFram
     """Per-pump limits: the pump's override where set, else its kind's stored default, else the built-in one."""
     stored = {row["kind"]: row for row in defaults.to_dict(orient="records")}
     out = pumps.copy()
+    kinds = out["kind"].tolist()
     for name in LIMIT_FIELDS:
         # Per kind: the stored default where set, else the built-in one (plain dicts: this runs per page load).
         by_kind = {kind: (stored[kind][name] if kind in stored and pd.notna(stored[kind][name])
                           else getattr(limits, name)) for kind, limits in DEFAULT_LIMITS.items()}
         override = out[name] if name in out else pd.Series(np.nan, index=out.index)
-        out[name] = override.where(override.notna(), out["kind"].map(by_kind))
+        # A list lookup per pump: Series.map would build a Series of the dict first, on every call.
+        of_kind = pd.Series([by_kind.get(kind, np.nan) for kind in kinds], index=out.index)
+        out[name] = override.where(override.notna(), of_kind)
     # A variable piston pump without its own target, under a kind default that was never edited, wants the
     # cleaner code (common practice, no source).
     variable_piston = out["variable"].astype(bool) & out["kind"].isin(PISTON_KINDS)

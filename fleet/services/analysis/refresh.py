@@ -22,6 +22,7 @@ from fleet.trend.settings import AnalysisSettings
 # When at least this share of the fleet is stale, one full analysis is cheaper than pump by pump.
 FULL_SHARE = 0.5
 STORE_LOCK = "fleet analysis store"  # one store at a time (PostgreSQL; SQLite has one writer anyway)
+AMONG_AT_MOST = 5000  # pumps looked up by id when a write names its pumps; more: one look over the fleet
 ROUNDS = 4  # rounds of "analyse what is stale" before giving up to the next read (writers keep coming)
 
 
@@ -91,18 +92,21 @@ def _fleet_afresh(sessions: sessionmaker[Session], now: datetime | None, setting
 
 
 def bring_up_to_date(sessions: sessionmaker[Session], now: datetime | None = None,
-                     settings: AnalysisSettings | None = None, deliver: bool = True) -> RefreshSummary | None:
-    """Analyse every stale pump and store it, then send the alerts the stores queued (after their commit, outside
-    the lock: fleet.services.mail.send; ``deliver=False`` leaves that to the caller, as ``perform`` does);
-    None when nothing was stale."""
+                     settings: AnalysisSettings | None = None, deliver: bool = True,
+                     among: set[int] | None = None) -> RefreshSummary | None:
+    """Analyse every stale pump (``among``: of these pumps only, as a write unit asks for the pumps it touched;
+    any other stale pump is caught by the next read or start) and store it, then send the alerts the stores
+    queued (after their commit, outside the lock: fleet.services.mail.send; ``deliver=False`` leaves that to the
+    caller, as ``perform`` does); None when nothing was stale."""
     summary, alerts = None, 0
+    if among is not None and len(among) > AMONG_AT_MOST:
+        among = None  # one look over the fleet costs less than a list this long
     for _ in range(ROUNDS):
         with sessions() as session, session.begin():
-            stale = stale_pumps(session) if any_stale(session) else set()
+            stale = _stale_among(session, among)
             if not stale:
                 break
-            total = session.scalar(select(func.count(Pump.id))) or 0
-            full = len(stale) >= max(FULL_SHARE * total, 2)
+            full = len(stale) >= 2 and len(stale) >= FULL_SHARE * (session.scalar(select(func.count(Pump.id))) or 0)
             computed = None if full else compute(session, sorted(stale), now, settings)
         if full:
             summary = _fleet_afresh(sessions, now, settings)
@@ -113,3 +117,11 @@ def bring_up_to_date(sessions: sessionmaker[Session], now: datetime | None = Non
     if alerts and deliver:
         deliver_due(sessions)
     return summary
+
+
+def _stale_among(session: Session, among: set[int] | None) -> set[int]:
+    if among is None:
+        return stale_pumps(session) if any_stale(session) else set()
+    if not among:
+        return set()
+    return set(session.scalars(_stale().where(Pump.id.in_(sorted(among)))))

@@ -2,10 +2,12 @@
 
 The headline figures are the stored analysis (the same the service list shows), and so is the trend: each
 interval's fitted lines are kept with the analysis (interval_trend), and the band is drawn from them. Only the
-per-reading part is computed here, referral and service intervals for this one pump; no wear fit runs.
+per-reading part is computed here, referral and service intervals for this one pump; no wear fit runs. The pump's
+rows come from a few plain queries (``pump_rows``), and the readings table is built column by column.
 """
 
-from datetime import datetime
+import math
+from datetime import datetime, timedelta, timezone
 
 import numpy as np
 import pandas as pd
@@ -13,29 +15,16 @@ from sqlalchemy import select
 from sqlalchemy.orm import Session
 
 from fleet import units
-from fleet.db.models import (
-    AnalysisResult,
-    FlowTestPoint,
-    Installation,
-    IntervalTrend,
-    Machine,
-    MaintenanceEvent,
-    Oil,
-    OilSample,
-    Position,
-    Pump,
-    Reading,
-    Site,
-)
-from fleet.db.queries import corrected_readings, current_places, pump_by_serial
+from fleet.db.models import AnalysisResult, IntervalTrend, OilSample, Pump, Site
+from fleet.db.queries import corrected_readings, pump_by_serial
 from fleet.horizon import is_beyond
-from fleet.io.localtime import iso_local
+from fleet.io.localtime import iso_local, zone
 from fleet.jsonvalues import json_ready
 from fleet.kinds import EVENT_KINDS, PUMP_KINDS
 from fleet.physics.cleanliness import Iso4406Code
 from fleet.physics.pump import baseline_flow_lpm, theoretical_flow_lpm
-from fleet.services.analysis.frames import load_frames
-from fleet.services.sitelocal import of_pump
+from fleet.services.pages.pump_rows import PumpRows, pump_rows
+from fleet.services.sitelocal import of_site
 from fleet.timeutil import utcnow
 from fleet.trend.engine import place_readings
 from fleet.trend.interval_trends import fit_row
@@ -69,32 +58,31 @@ def pump_page(session: Session, serial: str) -> dict | None:
     pump = pump_by_serial(session, serial)
     if pump is None:
         return None
-    site = of_pump(session, pump)
+    rows = pump_rows(session, pump, as_of=utcnow())
+    site = of_site(None if rows.last_site_id is None else session.get(Site, rows.last_site_id))
     zone_text = site.time_zone
-    frames = load_frames(session, [pump.id], as_of=utcnow())
-    referred, _ = place_readings(frames.pumps, frames.readings, frames.events, frames.flow_points,
-                                 AnalysisSettings())
+    referred, _ = place_readings(rows.pumps, rows.readings, rows.events, rows.flow_points, AnalysisSettings())
     referred = referred.sort_values("taken_at", kind="stable")
-    limits = frames.pumps.iloc[0]
-    events = _events(session, pump.id)
-    readings = _reading_rows(session, referred, zone_text)
+    limits = rows.pumps.iloc[0]
+    here = rows.here
     current_fit = _current_fit(session, pump.id)
-    data = {
+    data = json_ready({
         "pump": _rated(pump),
-        "where": _where(session, pump.id),
-        "oil": _oil(session, pump.id),
+        "where": None if here is None else {"site": here.site, "machine": here.machine, "position": here.position,
+                                            "currency": session.get(Site, here.site_id).currency},
+        "oil": None if here is None else here.oil,
         "limits": {name: limits.get(name) for name in LIMIT_FIELDS},
         "headline": _headline(session, pump.id),
         "site_units": {"time_zone": zone_text, "pressure": site.pressure_unit, "flow": site.flow_unit,
                        "temperature": site.temperature_unit},
-        "installations": _installations(session, pump.id, zone_text),
-        "events": _place_events(events, referred),
-        "readings": readings,
+        "installations": _installations(rows, zone_text),
+        "events": _place_events(rows.all_events, referred),
         "trend": _trend(current_fit, pump),
-        "samples": _samples(session, pump.id),
-        "flow_test": _flow_test(session, pump, referred, current_fit, zone_text),
-    }
-    return json_ready(data)
+        "samples": _samples(session, None if here is None else here.machine_id),
+        "flow_test": _flow_test(pump, rows, referred, current_fit, zone_text),
+    })
+    data["readings"] = _reading_rows(session, rows, referred, zone_text)  # plain already: the bulk of the page
+    return data
 
 
 def _rated(pump: Pump) -> dict:
@@ -106,29 +94,6 @@ def _rated(pump: Pump) -> dict:
         "max_flow_lpm": pump.max_flow, "case_drain": pump.case_drain,
         "reference_temp_c": pump.reference_temp_c, "overhaul_cost": pump.overhaul_cost, "note": pump.note,
     }
-
-
-def _where(session: Session, pump_id: int) -> dict | None:
-    place = current_places(session, [pump_id]).get(pump_id)
-    if place is None:
-        return None
-    return {"site": place.site, "machine": place.machine, "position": place.position,
-            "currency": session.get(Site, place.site_id).currency}
-
-
-def _current_machine_id(session: Session, pump_id: int) -> int | None:
-    place = current_places(session, [pump_id]).get(pump_id)
-    return None if place is None else place.machine_id
-
-
-def _oil(session: Session, pump_id: int) -> dict | None:
-    machine_id = _current_machine_id(session, pump_id)
-    oil = None if machine_id is None else session.scalar(
-        select(Oil).join(Machine, Machine.oil_id == Oil.id).where(Machine.id == machine_id))
-    if oil is None:
-        return None
-    return {"name": oil.name, "iso_vg": oil.iso_vg, "viscosity_40": oil.viscosity_40,
-            "viscosity_100": oil.viscosity_100, "density_15": oil.density_15}
 
 
 def _headline(session: Session, pump_id: int) -> dict | None:
@@ -147,77 +112,93 @@ def _headline(session: Session, pump_id: int) -> dict | None:
     return headline
 
 
-def _installations(session: Session, pump_id: int, zone_text: str) -> list[dict]:
-    rows = session.execute(
-        select(Installation, Position.name, Machine.name, Site.name)
-        .join(Position, Position.id == Installation.position_id).join(Machine, Machine.id == Position.machine_id)
-        .join(Site, Site.id == Machine.site_id).where(Installation.pump_id == pump_id)
-        .order_by(Installation.installed_at)
-    )
-    return [{"site": site, "machine": machine, "position": position,
+def _installations(rows: PumpRows, zone_text: str) -> list[dict]:
+    return [{"site": stay.site, "machine": stay.machine, "position": stay.position,
              "installed_at": iso_local(stay.installed_at, zone_text, "minutes"),
              "installed_hours": stay.installed_hours, "removed_at": iso_local(stay.removed_at, zone_text, "minutes"),
-             "removed_hours": stay.removed_hours} for stay, position, machine, site in rows]
-
-
-def _events(session: Session, pump_id: int) -> pd.DataFrame:
-    rows = session.scalars(select(MaintenanceEvent).where(MaintenanceEvent.pump_id == pump_id)
-                           .order_by(MaintenanceEvent.date)).all()
-    return pd.DataFrame([{
-        "event_id": e.id, "date": e.date, "hours": e.hours, "kind": e.kind,
-        "kind_label": EVENT_KINDS.get(e.kind, e.kind),
-        "cost": e.cost, "downtime_h": e.downtime_h, "failure_mode": e.failure_mode, "note": e.note,
-    } for e in rows], columns=["event_id", "date", "hours", "kind", "kind_label", "cost", "downtime_h", "failure_mode",
-                               "note"])
+             "removed_hours": stay.removed_hours} for stay in rows.stays]
 
 
 def _place_events(events: pd.DataFrame, referred: pd.DataFrame) -> list[dict]:
     """Events with an hour-meter position for the hours charts: as recorded, else interpolated from readings."""
     if events.empty:
         return []
-    hours = pd.to_numeric(events["hours"], errors="coerce").to_numpy(float)
+    hours = events["hours"].to_numpy(float)
     if len(referred):
         stamps = pd.to_datetime(referred["taken_at"]).astype("int64").to_numpy(float)
-        when = pd.to_datetime(events["date"]).astype("int64").to_numpy(float)
+        when = events["date"].astype("int64").to_numpy(float)
         guessed = np.interp(when, stamps, referred["hours"].to_numpy(float))
         hours = np.where(np.isfinite(hours), hours, guessed)
-    out = events.assign(chart_hours=hours, date=pd.to_datetime(events["date"]).dt.strftime("%Y-%m-%d"))
-    return out.to_dict(orient="records")
+    return [{"event_id": event_id, "date": f"{date:%Y-%m-%d}", "hours": recorded, "kind": kind,
+             "kind_label": EVENT_KINDS.get(kind, kind), "cost": cost, "downtime_h": downtime, "failure_mode": mode,
+             "note": note, "chart_hours": placed}
+            for event_id, date, recorded, kind, cost, downtime, mode, note, placed in zip(
+                events["event_id"], events["date"], events["hours"], events["kind"], events["cost"],
+                events["downtime_h"], events["failure_mode"], events["note"], hours, strict=True)]
 
 
-def _reading_rows(session: Session, referred: pd.DataFrame, zone_text: str) -> list[dict]:
+def local_minutes(stamps, zone_text: str | None) -> np.ndarray:
+    """Naive-UTC times as the site's local time with its offset, to the minute, over a whole column: what
+    ``iso_local(moment, zone_text, "minutes")`` writes for each ('2026-01-15T08:00-06:00')."""
+    utc = pd.DatetimeIndex(stamps).as_unit("ns")
+    wall = utc.tz_localize("UTC").tz_convert(zone(zone_text)).tz_localize(None)
+    seconds = ((wall - utc) // pd.Timedelta(seconds=1)).to_numpy(np.int64)
+    offsets, which = np.unique(seconds, return_inverse=True)
+    # each offset as datetime.isoformat writes it ('+05:45'; seconds too where a zone's history has them)
+    texts = np.array([datetime(2000, 1, 1, tzinfo=timezone(timedelta(seconds=int(s)))).isoformat(
+        timespec="minutes")[len("2000-01-01T00:00"):] for s in offsets], dtype=object)
+    return np.asarray(np.datetime_as_string(wall.to_numpy(), unit="m"), dtype=object) + texts[which]
+
+
+def _plain_list(values) -> list:
+    """A column as JSON values: Python numbers and text, None for NaN, infinity and missing (as json_ready)."""
+    array = np.asarray(values)
+    if array.dtype.kind == "f":
+        out = array.astype(object)
+        out[~np.isfinite(array)] = None
+        return out.tolist()
+    if array.dtype.kind in "iub":
+        return array.tolist()
+    return [None if v is None or v is pd.NA or (isinstance(v, float) and math.isnan(v)) else v
+            for v in array.tolist()]
+
+
+def _reading_rows(session: Session, rows: PumpRows, referred: pd.DataFrame, zone_text: str) -> list[dict]:
+    """The readings table, built column by column and turned into rows once."""
     if referred.empty:
         return []
-    extra = pd.DataFrame(session.execute(
-        select(Reading.id, Reading.source, Reading.taken_by).where(Reading.id.in_(
-            [int(i) for i in referred["reading_id"]]))).all(), columns=["reading_id", "source", "taken_by"])
-    r = referred.merge(extra, on="reading_id", how="left")
-    max_flow = r["max_flow_lpm"].to_numpy(float)
+    ids = referred["reading_id"].to_numpy(np.int64)
+    extras = rows.reading_extras.reindex(ids)
     with np.errstate(invalid="ignore", divide="ignore"):
-        drain_pct = 100.0 * r["drain_lpm"].to_numpy(float) / max_flow
-    table = pd.DataFrame({
-        "reading_id": r["reading_id"],
-        # the site's local time with its offset, ISO 8601 (fleet.io.localtime)
-        "taken_at": [iso_local(moment, zone_text, "minutes") for moment in pd.to_datetime(r["taken_at"])],
-        "hours": r["hours"], "interval_no": r["interval_no"], "outlet_pressure_bar": r["pressure_bar"],
-        "speed_rpm": r["speed_rpm"], "outlet_flow_lpm": r["flow_lpm"], "case_drain_lpm": r["drain_lpm"],
-        "oil_temp_c": r["temp_c"], "stroke": r["stroke"], "eta_v": r["eta_v"], "eta_v_ref": r["eta_v_ref"],
-        "case_drain_pct": drain_pct, "case_drain_ref_lpm": r["drain_ref_lpm"], "case_drain_pct_ref": r["drain_pct_ref"],
-        "flag": r["flag"], "source": r["source"], "taken_by": r["taken_by"],
-        "corrected": r["reading_id"].isin(list(corrected_readings(session, r["reading_id"]))),
-    })
-    return json_ready(table[list(READING_COLUMNS)].astype(object).to_dict(orient="records"))
+        drain_pct = 100.0 * referred["drain_lpm"].to_numpy(float) / referred["max_flow_lpm"].to_numpy(float)
+    corrected = corrected_readings(session, ids)
+    columns = {
+        "reading_id": ids.tolist(),
+        # the site's local time with its offset, ISO 8601 (as fleet.io.localtime.iso_local)
+        "taken_at": local_minutes(referred["taken_at"], zone_text).tolist(),
+        "hours": referred["hours"], "interval_no": referred["interval_no"],
+        "outlet_pressure_bar": referred["pressure_bar"], "speed_rpm": referred["speed_rpm"],
+        "outlet_flow_lpm": referred["flow_lpm"], "case_drain_lpm": referred["drain_lpm"],
+        "oil_temp_c": referred["temp_c"], "stroke": referred["stroke"], "eta_v": referred["eta_v"],
+        "eta_v_ref": referred["eta_v_ref"], "case_drain_pct": drain_pct,
+        "case_drain_ref_lpm": referred["drain_ref_lpm"], "case_drain_pct_ref": referred["drain_pct_ref"],
+        "flag": referred["flag"], "source": extras["source"], "taken_by": extras["taken_by"],
+        "corrected": [i in corrected for i in ids.tolist()],
+    }
+    values = [v if isinstance(v, list) else _plain_list(v) for v in (columns[name] for name in READING_COLUMNS)]
+    return [dict(zip(READING_COLUMNS, row, strict=True)) for row in zip(*values, strict=True)]
 
 
-def _current_fit(session: Session, pump_id: int) -> pd.Series | None:
+def _current_fit(session: Session, pump_id: int) -> dict | None:
     """The stored fit of the pump's current service interval (as one row of the engine's fits), or None."""
     kept = session.scalar(select(IntervalTrend).where(IntervalTrend.pump_id == pump_id, IntervalTrend.is_current))
     if kept is None:
         return None
-    return fit_row(kept.fit, kept.interval_no, kept.start_hours, kept.current_hours)
+    # as a plain mapping: the band reads each of the wear laws' members' fields, a dict lookup each
+    return fit_row(kept.fit, kept.interval_no, kept.start_hours, kept.current_hours).to_dict()
 
 
-def _trend(fit: pd.Series | None, pump: Pump) -> dict | None:
+def _trend(fit: dict | None, pump: Pump) -> dict | None:
     """The fitted eta_v,ref line of the current interval, its band, and its forecast to the limit."""
     if fit is None or fit["slip_enough_data"] is not True:
         return None
@@ -235,9 +216,8 @@ def _trend(fit: pd.Series | None, pump: Pump) -> dict | None:
             "points": band.to_dict(orient="records")}
 
 
-def _samples(session: Session, pump_id: int) -> list[dict]:
+def _samples(session: Session, machine_id: int | None) -> list[dict]:
     """Lab results of the reservoir the pump sits in now (a result belongs to the oil, not to one pump)."""
-    machine_id = _current_machine_id(session, pump_id)
     if machine_id is None:
         return []
     rows = session.scalars(select(OilSample).where(OilSample.machine_id == machine_id)
@@ -256,20 +236,17 @@ def _code(sample: OilSample) -> str | None:
         return "/".join("-" if c is None else str(c) for c in (sample.code_4, sample.code_6, sample.code_14))
 
 
-def _flow_test(session: Session, pump: Pump, referred: pd.DataFrame, fit: pd.Series | None, zone_text: str
+def _flow_test(pump: Pump, rows: PumpRows, referred: pd.DataFrame, fit: dict | None, zone_text: str
                ) -> dict | None:
     """The latest multi-point flow test, and the line a pump with the interval's first fitted slip would give."""
-    latest = session.execute(
-        select(Reading.id, Reading.taken_at, Reading.speed_rpm, Reading.temp_c)
-        .join(FlowTestPoint, FlowTestPoint.reading_id == Reading.id)
-        .where(Reading.pump_id == pump.id).order_by(Reading.taken_at.desc()).limit(1)
-    ).first()
-    if latest is None:
+    tested = rows.all_readings[rows.all_readings["reading_id"].isin(rows.all_flow_points["reading_id"])]
+    if tested.empty:
         return None
-    points = session.execute(select(FlowTestPoint.pressure_bar, FlowTestPoint.flow_lpm)
-                             .where(FlowTestPoint.reading_id == latest.id)
-                             .order_by(FlowTestPoint.pressure_bar)).all()
-    reading = referred[referred["reading_id"] == latest.id]
+    latest = tested.iloc[int(np.argmax(tested["taken_at"].to_numpy()))]
+    found = rows.all_flow_points[rows.all_flow_points["reading_id"] == latest["reading_id"]]
+    found = found.iloc[np.argsort(found["pressure_bar"].to_numpy(float), kind="stable")]
+    points = list(zip(found["pressure_bar"].tolist(), found["flow_lpm"].tolist(), strict=True))
+    reading = referred[referred["reading_id"] == latest["reading_id"]]
     ratio = 1.0
     if len(reading):
         mu, mu_ref = float(reading["mu_pas"].iloc[0]), float(reading["mu_ref_pas"].iloc[0])
@@ -277,18 +254,18 @@ def _flow_test(session: Session, pump: Pump, referred: pd.DataFrame, fit: pd.Ser
     slip_rated, source = _baseline_slip(pump, fit)
     top = max([p for p, _ in points] + [pump.rated_pressure_bar])
     pressures = np.linspace(0.0, top, 11)
-    flows = baseline_flow_lpm(pump.displacement_cc, latest.speed_rpm, slip_rated, pump.rated_pressure_bar,
+    flows = baseline_flow_lpm(pump.displacement_cc, float(latest["speed_rpm"]), slip_rated, pump.rated_pressure_bar,
                               pressures, ratio)
     return {
-        "taken_at": iso_local(latest.taken_at, zone_text, "minutes"), "speed_rpm": latest.speed_rpm,
-        "oil_temp_c": latest.temp_c,
+        "taken_at": local_minutes([latest["taken_at"]], zone_text)[0], "speed_rpm": float(latest["speed_rpm"]),
+        "oil_temp_c": float(latest["temp_c"]),
         "points": [{"pressure_bar": p, "flow_lpm": q} for p, q in points],
         "baseline": [{"pressure_bar": p, "flow_lpm": q} for p, q in zip(pressures, flows, strict=True)],
         "baseline_from": source, "baseline_slip_at_rated_lpm": slip_rated,
     }
 
 
-def _baseline_slip(pump: Pump, fit: pd.Series | None) -> tuple[float, str]:
+def _baseline_slip(pump: Pump, fit: dict | None) -> tuple[float, str]:
     """Referred slip at rated pressure the baseline assumes, and where it comes from."""
     if fit is not None and fit["slip_enough_data"] is True and np.isfinite(float(fit["slip_a"])):
         return float(np.exp(float(fit["slip_a"]))), "the start of this service interval's fitted trend"

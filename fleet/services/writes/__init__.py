@@ -11,9 +11,9 @@ written) or returning its result. Around it, ``perform``:
    (fleet.db.audit);
 3. moves on the data version of every pump the refresh policy says the rows feed (policy.py), in the same
    transaction as the rows, then commits;
-4. brings every stale analysis up to date (fleet.services.analysis.bring_up_to_date), computing outside the
-   write lock. Should the process die before that, the versions say which analyses are stale, and the next start
-   or read brings them up to date: never silently stale.
+4. brings the stale analyses of the pumps it touched up to date (fleet.services.analysis.bring_up_to_date),
+   computing outside the write lock. Should the process die before that, the versions say which analyses are
+   stale, and the next start or read brings them up to date: never silently stale.
 5. sends the mail the unit or its refresh queued (an alert when a followed pump got worse, a digest), and any
    left from an earlier failure whose wait is over, after the commit and outside the lock
    (fleet.services.mail.send). A failed send keeps the mail in the outbox and never undoes the write.
@@ -62,5 +62,5 @@ def perform(sessions: sessionmaker[Session], work: Callable[[Session], T], *, re
         return value
 
     value = run_write(sessions, unit, prepare=changes.collect)
-    summary = bring_up_to_date(sessions, deliver=False) if refresh and touched else None
+    summary = bring_up_to_date(sessions, deliver=False, among=touched) if refresh and touched else None
     return Outcome(value, set(touched), summary, deliver_due(sessions))

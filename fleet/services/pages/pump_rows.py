@@ -1,0 +1,182 @@
+"""One pump's rows, as the pump page needs them: a few plain queries of this pump's columns.
+
+The frames handed to the core are those ``fleet.services.analysis.frames.load_frames`` gives for this pump (its
+effective limits and the oil of each reading by the same functions; tests/test_pump_page_rows.py compares them),
+without the whole-fleet loader's joins and maps. The rows the page shows beside them (who took a reading, the
+stays with their names, every maintenance record) come from the same queries, so nothing is read twice.
+Nothing is kept between requests: a write shows on the next page.
+"""
+
+from dataclasses import dataclass
+from datetime import datetime
+
+import numpy as np
+import pandas as pd
+from sqlalchemy import select
+from sqlalchemy.orm import Session
+
+from fleet.db.models import (
+    FlowTestPoint,
+    Installation,
+    LimitDefault,
+    Machine,
+    MaintenanceEvent,
+    Oil,
+    Position,
+    Pump,
+    Reading,
+    Site,
+)
+from fleet.frames import EVENT_COLUMNS, FLOW_POINT_COLUMNS, PUMP_COLUMNS, READING_COLUMNS
+from fleet.physics.pump import theoretical_flow_lpm
+from fleet.services.analysis.frames import attach_oil, effective_limits
+
+# The columns of the readings the page shows besides the core's.
+READING_EXTRAS = ("source", "taken_by")
+EVENT_EXTRAS = ("event_id", "downtime_h", "failure_mode", "note")
+_NUMBERS = ("hours", "pressure_bar", "speed_rpm", "flow_lpm", "drain_lpm", "temp_c", "stroke")
+
+
+@dataclass(frozen=True)
+class Stay:
+    """One installation of the pump, with the names of where it sat and the oil of that machine."""
+
+    installed_at: datetime
+    removed_at: datetime | None
+    installed_hours: float | None
+    removed_hours: float | None
+    position: str
+    machine_id: int
+    machine: str
+    site_id: int
+    site: str
+    oil: dict | None  # name, iso_vg, viscosity_40, viscosity_100, density_15
+
+
+@dataclass
+class PumpRows:
+    """The core's frames of one pump as known at a moment (``pumps``, ``readings``, ``events``, ``flow_points``),
+    and what the page shows beside them: every reading's source and author (``reading_extras``, by reading id),
+    every maintenance record (``all_events``, in date order), every flow-test point (``all_flow_points``) and
+    the pump's stays in time order."""
+
+    pumps: pd.DataFrame
+    readings: pd.DataFrame
+    events: pd.DataFrame
+    flow_points: pd.DataFrame
+    reading_extras: pd.DataFrame
+    all_readings: pd.DataFrame
+    all_events: pd.DataFrame
+    all_flow_points: pd.DataFrame
+    stays: list[Stay]
+
+    @property
+    def here(self) -> Stay | None:
+        """Where the pump sits now: its latest stay not ended."""
+        return _here(self.stays)
+
+    @property
+    def last_site_id(self) -> int | None:
+        """The site of the pump's latest installation (ended or not), whose conventions its pages follow."""
+        return max(self.stays, key=lambda stay: stay.installed_at).site_id if self.stays else None
+
+
+def _plain(session: Session, statement) -> pd.DataFrame:
+    """The driver's rows straight into a frame (no per-row SQLAlchemy processing: on SQLite times arrive as text,
+    converted by whole columns)."""
+    result = session.connection().execute(statement)
+    try:
+        keys = list(result.keys())
+        rows = result.cursor.fetchall() if result.cursor is not None else []
+    finally:
+        result.close()
+    return pd.DataFrame.from_records(rows, columns=keys, coerce_float=True)
+
+
+def _stays(session: Session, pump_id: int) -> list[Stay]:
+    rows = session.execute(
+        select(Installation.installed_at, Installation.removed_at, Installation.installed_hours,
+               Installation.removed_hours, Position.name, Machine.id, Machine.name, Site.id, Site.name,
+               Oil.id, Oil.name, Oil.iso_vg, Oil.viscosity_40, Oil.viscosity_100, Oil.density_15)
+        .join(Position, Position.id == Installation.position_id).join(Machine, Machine.id == Position.machine_id)
+        .join(Site, Site.id == Machine.site_id).outerjoin(Oil, Oil.id == Machine.oil_id)
+        .where(Installation.pump_id == pump_id).order_by(Installation.installed_at))
+    return [Stay(*row[:9], oil=None if row[9] is None else dict(
+        zip(("name", "iso_vg", "viscosity_40", "viscosity_100", "density_15"), row[10:], strict=True)))
+        for row in rows]
+
+
+def _history(pump_id: int, stays: list[Stay]) -> pd.DataFrame:
+    """The stays as installation_history's columns that attach_oil reads."""
+    return pd.DataFrame({
+        "pump_id": np.full(len(stays), pump_id, dtype=np.int64),
+        "installed_at": pd.to_datetime([stay.installed_at for stay in stays]),
+        **{column: np.array([np.nan if stay.oil is None or stay.oil[key] is None else stay.oil[key]
+                             for stay in stays], dtype=float)
+           for column, key in (("nu40", "viscosity_40"), ("nu100", "viscosity_100"), ("density15", "density_15"))},
+    })
+
+
+def _pump_frame(session: Session, pump: Pump, here: Stay | None) -> pd.DataFrame:
+    """load_pumps' row for this pump: its columns, where it sits now, its site's energy figures, its limits."""
+    row = {column.key: getattr(pump, column.key) for column in Pump.__table__.columns}
+    row["pump_id"], row["pump"] = row.pop("id"), row.pop("serial")
+    if here is None:  # in the store: no place, and so no site's tariff (as load_pumps leaves them)
+        row.update(dict.fromkeys(("site", "machine", "position", "machine_id", "site_id")),
+                   **dict.fromkeys(("tariff_per_kwh", "motor_efficiency", "currency"), np.nan))
+    else:
+        site = session.get(Site, here.site_id)
+        row.update(site=here.site, machine=here.machine, position=here.position, machine_id=here.machine_id,
+                   site_id=here.site_id, tariff_per_kwh=site.tariff_per_kwh, motor_efficiency=site.motor_efficiency,
+                   currency=site.currency)
+    if row["max_flow_lpm"] is None:
+        row["max_flow_lpm"] = theoretical_flow_lpm(pump.displacement_cc, pump.rated_speed_rpm)
+    defaults = pd.DataFrame(session.execute(select(LimitDefault.__table__)).mappings().all(),
+                            columns=[c.key for c in LimitDefault.__table__.columns])
+    frame = effective_limits(pd.DataFrame([row]), defaults)
+    missing = [c for c in PUMP_COLUMNS if c not in frame]
+    assert not missing, missing
+    return frame
+
+
+def pump_rows(session: Session, pump: Pump, as_of: datetime) -> PumpRows:
+    """Everything about ``pump`` the page draws, with the core's frames as known at ``as_of``."""
+    stays = _stays(session, pump.id)
+    rows = _plain(session, select(
+        Reading.id.label("reading_id"), Reading.pump_id, Reading.taken_at, Reading.hours, Reading.pressure_bar,
+        Reading.speed_rpm, Reading.flow_lpm, Reading.drain_lpm, Reading.temp_c, Reading.stroke, Reading.source,
+        Reading.taken_by).where(Reading.pump_id == pump.id))
+    rows["taken_at"] = pd.to_datetime(rows["taken_at"], format="ISO8601")
+    rows = rows.astype({c: float for c in _NUMBERS})
+    all_readings = attach_oil(rows[[c for c in READING_COLUMNS if c in rows]], _history(pump.id, stays))
+    all_readings = all_readings[list(READING_COLUMNS)].sort_values("taken_at", kind="stable").reset_index(drop=True)
+    points = _plain(session, select(FlowTestPoint.reading_id, FlowTestPoint.pressure_bar, FlowTestPoint.flow_lpm)
+                    .join(Reading, Reading.id == FlowTestPoint.reading_id).where(Reading.pump_id == pump.id))
+    points = points.astype({"reading_id": np.int64, "pressure_bar": float, "flow_lpm": float})
+    events = pd.DataFrame(session.execute(
+        select(MaintenanceEvent.pump_id, MaintenanceEvent.date, MaintenanceEvent.hours, MaintenanceEvent.kind,
+               MaintenanceEvent.cost, MaintenanceEvent.id.label("event_id"), MaintenanceEvent.downtime_h,
+               MaintenanceEvent.failure_mode, MaintenanceEvent.note)
+        .where(MaintenanceEvent.pump_id == pump.id)).all(), columns=[*EVENT_COLUMNS, *EVENT_EXTRAS])
+    events["date"] = pd.to_datetime(events["date"])
+    events = events.astype({"hours": float, "cost": float})
+
+    moment = pd.Timestamp(as_of)  # what was known by then, as fleet.services.analysis.frames.known_by keeps
+    readings = all_readings[all_readings["taken_at"] <= moment]
+    return PumpRows(
+        pumps=_pump_frame(session, pump, _here(stays)),
+        readings=readings,
+        events=events.loc[events["date"] <= moment, list(EVENT_COLUMNS)],
+        flow_points=points.loc[points["reading_id"].isin(readings["reading_id"]), list(FLOW_POINT_COLUMNS)],
+        reading_extras=rows.set_index("reading_id")[list(READING_EXTRAS)],
+        all_readings=all_readings,
+        all_events=events.sort_values("date", kind="stable").reset_index(drop=True),
+        all_flow_points=points,
+        stays=stays,
+    )
+
+
+def _here(stays: list[Stay]) -> Stay | None:
+    """The latest stay not ended (stays in time order), as load_pumps places a pump."""
+    open_stays = [stay for stay in stays if stay.removed_at is None]
+    return open_stays[-1] if open_stays else None
