@@ -88,7 +88,7 @@ def child_analysis(url: str) -> dict:
     one write transaction.
 
     Peak memory is the largest sum of the PSS of this process and all its descendants (the fork server and the
-    workers) sampled every 0.1 s (benchmarks/tree_memory.py): PSS counts the library pages the workers share with
+    workers) sampled every 0.5 s (benchmarks/tree_memory.py): PSS counts the library pages the workers share with
     the fork server once in all. Beside it, the same samples' RSS sum (shared pages once per process) and each
     process's own high-water mark (VmHWM, RSS): this process's, and the largest of the workers' (one per part)."""
     from benchmarks.tree_memory import TreeMemory

@@ -44,7 +44,7 @@ def _pss_rss_kb(pid: int) -> tuple[int, int]:
 class TreeMemory:
     """Samples this process tree's summed PSS and RSS in a background thread, from start() until stop()."""
 
-    def __init__(self, every: float = 0.1):
+    def __init__(self, every: float = 0.5):
         self.every = every
         self.peak_pss_mb = self.peak_rss_mb = 0.0
         self.processes_at_peak = 0
