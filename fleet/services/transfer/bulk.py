@@ -33,7 +33,7 @@ _DRIVERS = {"sqlite": "pysqlite", "postgresql": "psycopg"}
 class Prepared:
     """One block's rows as the driver takes them."""
 
-    rows: object  # tuples (sqlite3), CSV bytes (COPY) or dicts (Core)
+    rows: object  # column lists (sqlite3, zipped into rows as it binds them), CSV bytes (COPY) or dicts (Core)
     count: int
     pump_ids: set[int]
 
@@ -57,7 +57,7 @@ class BulkInsert:
         frame = frame[self.columns]
         pump_ids = {int(p) for p in pd.unique(frame["pump_id"])}
         if self.mode == "sqlite":
-            rows = list(zip(*(_python_values(frame[name]) for name in self.columns), strict=True))
+            rows = [_python_values(frame[name]) for name in self.columns]
         elif self.mode == "postgresql":
             rows = csv_bytes(frame)
         else:
@@ -77,7 +77,9 @@ class BulkInsert:
         cursor = connection.connection.cursor()
         try:
             if self.mode == "sqlite":
-                cursor.executemany(self.statement, prepared.rows)
+                # Rows made as sqlite3 binds them: zip reuses its tuple once the driver let go of it, where a
+                # list of made tuples would cost their allocation and the garbage collector's passes over them.
+                cursor.executemany(self.statement, zip(*prepared.rows, strict=True))
             else:
                 encoding = cursor.connection.info.encoding
                 data = prepared.rows if encoding == "utf-8" else prepared.rows.decode("utf-8").encode(encoding)

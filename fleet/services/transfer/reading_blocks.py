@@ -164,7 +164,8 @@ class _Blocks:
         self.file_problems: list[Problem] = []  # unknown pumps and repeated (pump, time) when the cells are right
         self.refused = bool(headers.problems)
         self.serial_codes: dict[str, int] = {}
-        self.seen: np.ndarray = np.empty(0, dtype=np.complex128)
+        self.seen_codes: list[np.ndarray] = []  # the serial code and key of every earlier block's rows
+        self.seen_keys: list[np.ndarray] = []
 
     @property
     def cells_wrong(self) -> bool:
@@ -231,12 +232,20 @@ class _Blocks:
         # One complex number per (serial, time): both parts exact, as a serial's code and a time's microseconds since
         # 1970 (below 2^53 until the year 2255) are whole numbers a double holds exactly.
         micros = data["taken_at"].to_numpy(dtype="datetime64[us]").view(np.int64).astype(float)
-        keys = known[codes] + 1j * micros
-        repeated = pd.Index(keys).duplicated(keep="first") | pd.Index(keys).isin(self.seen)
+        serial_codes = known[codes].astype(np.int64)
+        keys = serial_codes + 1j * micros
+        repeated = pd.Index(keys).duplicated(keep="first")
+        if self.seen_codes:
+            # Only earlier rows of this block's pumps can repeat one of its rows (a file sorted by pump shares few).
+            self.seen_codes, self.seen_keys = [np.concatenate(self.seen_codes)], [np.concatenate(self.seen_keys)]
+            earlier = self.seen_keys[0][np.isin(self.seen_codes[0], np.unique(serial_codes))]
+            if len(earlier):
+                repeated |= pd.Index(keys).isin(earlier)
         for row in data.index[repeated] + 2:
             self.file_problems.append(Problem(int(row), "taken_at", "the same pump and time appears earlier in the "
                                               "file"))
-        self.seen = np.concatenate([self.seen, keys])
+        self.seen_codes.append(serial_codes)
+        self.seen_keys.append(keys)
 
 
 def _stored(session: Session, block: _Block, before_id: int | None) -> list[Problem]:
