@@ -26,9 +26,10 @@ from fleet.services.sitelocal import of_site, pump_sites
 from fleet.services.transfer.bulk import BulkInsert
 from fleet.timeutil import utcnow
 
-# Rows per block: big enough that each column operation's fixed cost is small, small enough that the first insert
-# starts soon and the blocks held at once (one parsing, one storing) stay a few MB.
+# Rows per block: big enough that each column operation's fixed cost is small, small enough that the blocks held at
+# once (one parsing, one storing) stay a few MB. The first blocks are smaller, so the first insert starts soon.
 BLOCK_ROWS = 65_536
+FIRST_BLOCK_ROWS = 8_192
 # Serials per query (SQLite allows 32,766 bound values in a statement).
 SERIALS_PER_QUERY = 10_000
 READING_COLUMNS = ["pump_id", "taken_at", "hours", "pressure_bar", "speed_rpm", "flow_lpm", "drain_lpm", "temp_c",
@@ -52,7 +53,7 @@ def import_readings(session: Session, table: pd.DataFrame, now: datetime, source
     """Check the readings of ``table`` and, when ``store`` and no row has a problem, insert them all in the caller's
     transaction; on a problem nothing stays written and ``problems`` names every one."""
     headers = read_headers("readings", table.columns)
-    spans = [(first, min(first + BLOCK_ROWS, len(table))) for first in range(0, len(table), BLOCK_ROWS)] or [(0, 0)]
+    spans = _spans(len(table))
     pumps = _Pumps(session, _stripped(table, headers))
     writer = BulkInsert(session, Reading, READING_COLUMNS) if store else None
     many = len(spans) > 1
@@ -68,6 +69,15 @@ def import_readings(session: Session, table: pd.DataFrame, now: datetime, source
     else:
         _run(session, work, spans, before_id, outcome)
     return outcome
+
+
+def _spans(rows: int) -> list[tuple[int, int]]:
+    """(first, stop) of each block: FIRST_BLOCK_ROWS, then twice as many each time up to BLOCK_ROWS."""
+    spans, first, size = [], 0, min(FIRST_BLOCK_ROWS, BLOCK_ROWS)
+    while first < rows:
+        spans.append((first, min(first + size, rows)))
+        first, size = first + size, min(2 * size, BLOCK_ROWS)
+    return spans or [(0, 0)]
 
 
 def _run(session: Session, work: "_Blocks", spans: list[tuple[int, int]], before_id: int | None,
@@ -97,7 +107,7 @@ def _run(session: Session, work: "_Blocks", spans: list[tuple[int, int]], before
     if outcome.problems:
         outcome.created, outcome.pump_ids = 0, set()
         return
-    if new_rows and work.writer is not None:
+    if outcome.created:
         outcome.doubts = _meter_doubts(session, pd.concat(new_rows) if len(new_rows) > 1 else new_rows[0],
                                        before_id)
 
