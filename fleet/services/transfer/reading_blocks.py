@@ -113,7 +113,8 @@ def _run(session: Session, work: "_Blocks", spans: list[tuple[int, int]], before
 
 
 def _in_turn(work: "_Blocks", spans: list[tuple[int, int]]):
-    """Each block prepared, in order; from the second on, the next is prepared in a helper thread meanwhile."""
+    """Each block prepared, in order: with more than one, a helper thread prepares the next while the caller
+    stores the one it was given."""
     if len(spans) == 1:
         yield work.prepare(*spans[0])
         return
