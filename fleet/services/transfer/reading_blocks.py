@@ -115,11 +115,13 @@ def _run(session: Session, work: "_Blocks", spans: list[tuple[int, int]], before
 def _in_turn(work: "_Blocks", spans: list[tuple[int, int]]):
     """Each block prepared, in order: with more than one, a helper thread prepares the next while the caller
     stores the one it was given."""
+    work.pumps.look_up(*spans[0])
     if len(spans) == 1:
         yield work.prepare(*spans[0])
         return
     with ThreadPoolExecutor(max_workers=1, thread_name_prefix="fleet-import") as helper:
         coming = helper.submit(work.prepare, *spans[0])
+        work.pumps.look_up(spans[1][0])  # the rest of the file's serials, while the first block is parsed
         for position in range(len(spans)):
             block = coming.result()
             if position + 1 < len(spans):
@@ -137,19 +139,26 @@ class _Block:
 
 
 class _Pumps:
-    """The register's answer for every serial of the table, asked once: pump id and site conventions."""
+    """The register's answer for the table's serials, each asked once: pump id and site conventions."""
 
     def __init__(self, session: Session, cells: pd.Series | None):
+        self.session, self.cells = session, cells
         self.ids: dict[str, int] = {}
         self.conventions: dict = {}
-        if cells is None:
+
+    def look_up(self, first: int = 0, stop: int | None = None) -> None:
+        """Ask the register about the serials of rows first to stop not asked about yet (in the session's thread;
+        the helper thread only reads the answers, of rows it is given after they were asked)."""
+        if self.cells is None:
             return
-        serials = [s for s in pd.unique(cells.dropna()) if _queryable(s)]
-        for first in range(0, len(serials), SERIALS_PER_QUERY):
-            part = serials[first:first + SERIALS_PER_QUERY]
+        cells = self.cells.iloc[first:stop].dropna()
+        serials = [s for s in pd.unique(cells) if s not in self.conventions and _queryable(s)]
+        session = self.session
+        for start in range(0, len(serials), SERIALS_PER_QUERY):
+            part = serials[start:start + SERIALS_PER_QUERY]
             self.ids.update(session.execute(select(Pump.serial, Pump.id).where(Pump.serial.in_(part))).all())
         sites = pump_sites(session, serials)
-        self.conventions = {serial: of_site(sites.get(serial)) for serial in serials}
+        self.conventions.update({serial: of_site(sites.get(serial)) for serial in serials})
 
     def row_conventions(self, cells: pd.Series) -> RowConventions:
         """Each row's zone and decimal comma by its pump's site (as fleet.services.sitelocal.row_conventions)."""
