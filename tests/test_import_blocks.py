@@ -137,3 +137,22 @@ def test_copy_text_reads_back_to_the_same_values(numbers, texts):
     for position, s in enumerate(texts[:size]):  # a missing text is an unquoted empty field, any other quoted
         line = csv_bytes(frame.iloc[[position]]).decode()
         assert line.endswith(",\n") == (s is None) and line.endswith('"\n') == (s is not None)
+
+
+def test_later_blocks_read_cells_by_their_pumps_site(pumps, monkeypatch):
+    # The first block's serials are looked up before it, the others while it is parsed: a pump first met in a later
+    # block still has its site's decimal comma and time zone. Reference: the same file in one block.
+    with pumps.sessions.begin() as session:
+        import_table(session, "sites", pd.DataFrame([{"site": "Test Works (invented)", "decimal_comma": "yes",
+                                                      "time_zone": "America/Chicago"}]))
+    rows = [_row("T-101", d, 10 * d) for d in range(1, 5)] + [_row("T-103", d, 100 + d) for d in range(1, 4)]
+    rows[-1][6] = '"48,5"'  # quoted in the file, so its comma is no separator
+    table = _table(rows)
+    blocks = _attempt(pumps, table, 2, monkeypatch)
+    with pumps.sessions.begin() as session:
+        session.execute(Reading.__table__.delete().where(Reading.hours != 900))
+    assert blocks == _attempt(pumps, table, 10_000, monkeypatch)
+    problems, _doubts, stored = blocks
+    assert problems is None
+    last = [s for s in stored if s.hours == 103][0]
+    assert last.taken_at == datetime(2025, 3, 3, 14, 0)  # 08:00 in Chicago (UTC-6 before March 9, 2025) is 14:00 UTC
