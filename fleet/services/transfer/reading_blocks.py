@@ -57,8 +57,8 @@ def import_readings(session: Session, table: pd.DataFrame, now: datetime, source
     pumps = _Pumps(session, _stripped(table, headers))
     writer = BulkInsert(session, Reading, READING_COLUMNS) if store else None
     many = len(spans) > 1
-    # Rows written by earlier blocks must not count as stored before: only ids up to the largest now are.
-    before_id = session.scalar(select(func.coalesce(func.max(Reading.id), 0))) if many else None
+    # Rows this import writes must not count as stored before it: only ids up to the largest now are.
+    before_id = session.scalar(select(func.coalesce(func.max(Reading.id), 0))) if store else None
     work = _Blocks(headers, table, pumps, now, source, taken_by, writer)
     outcome = Outcome(len(table), headers.ignored)
     if many and store:
