@@ -107,18 +107,29 @@ def _cells(series: pd.Series) -> pd.Series:
     return text.mask(text == "")
 
 
-def parse_table(kind: str, table: pd.DataFrame, conventions: RowConventions | None = None
-                ) -> tuple[ParsedTable, list[Problem]]:
-    """Parse ``table`` (any cells; read CSVs with dtype=str) as an import of ``kind``, each row by its site's
-    ``conventions`` (default: UTC, decimal point)."""
+@dataclass
+class Headers:
+    """What a table's header row says: which known column sits where and in which unit, and its problems."""
+
+    kind: str
+    specs: dict[str, Column]
+    found: dict[str, tuple[str, str | None]]  # spec name -> (original header, unit)
+    positions: dict[str, int]  # spec name -> column position (headers may repeat in a hand-made table)
+    ignored: list[str]
+    problems: list[Problem]
+
+
+def read_headers(kind: str, columns) -> Headers:
+    """The header row of an import of ``kind``: each known column's position and unit; unknown, repeated or
+    badly written headers and missing required columns as problems of row 1."""
     if kind not in KINDS:
         raise KeyError(f"unknown kind {kind!r}; one of {', '.join(KINDS)}")
     specs = {column.name: column for column in KINDS[kind]}
     problems: list[Problem] = []
-    headers: dict[str, tuple[str, str | None]] = {}  # spec name -> (original header, unit)
-    positions: dict[str, int] = {}  # spec name -> column position (headers may repeat in a hand-made table)
+    headers: dict[str, tuple[str, str | None]] = {}
+    positions: dict[str, int] = {}
     ignored: list[str] = []
-    for position, header in enumerate(table.columns):
+    for position, header in enumerate(columns):
         try:
             name, unit = units.parse_header(str(header))
         except units.UnitError as exc:
@@ -145,15 +156,33 @@ def parse_table(kind: str, table: pd.DataFrame, conventions: RowConventions | No
     for spec in specs.values():
         if spec.required and spec.name not in headers and not any(p.column.startswith(spec.name) for p in problems):
             problems.append(Problem(1, spec.name, "required column is missing"))
+    return Headers(kind, specs, headers, positions, ignored, problems)
 
-    table = table.reset_index(drop=True)
+
+def parse_table(kind: str, table: pd.DataFrame, conventions: RowConventions | None = None
+                ) -> tuple[ParsedTable, list[Problem]]:
+    """Parse ``table`` (any cells; read CSVs with dtype=str) as an import of ``kind``, each row by its site's
+    ``conventions`` (default: UTC, decimal point)."""
+    headers = read_headers(kind, table.columns)
+    parsed, problems = parse_rows(headers, table, conventions)
+    return parsed, headers.problems + problems
+
+
+def parse_rows(headers: Headers, table: pd.DataFrame, conventions: RowConventions | None = None,
+               first: int = 0) -> tuple[ParsedTable, list[Problem]]:
+    """The cells of ``table`` under ``headers``: typed columns and each bad cell's problem. ``first`` is the
+    position of the table's first row in its file (a block of a larger file), so problems name the file's rows."""
+    table = table.set_axis(pd.RangeIndex(first, first + len(table)), axis=0)
     conventions = (conventions or RowConventions()).aligned(table.index)
     data = pd.DataFrame(index=table.index)
-    for name, (_header, unit) in headers.items():
-        values, column_problems = _parse_column(specs[name], table.iloc[:, positions[name]], unit, conventions)
+    problems: list[Problem] = []
+    for name, (_header, unit) in headers.found.items():
+        values, column_problems = _parse_column(headers.specs[name], table.iloc[:, headers.positions[name]], unit,
+                                                conventions)
         data[name] = values
         problems.extend(column_problems)
-    parsed = ParsedTable(kind, data, set(headers), {k: u for k, (_, u) in headers.items()}, ignored)
+    parsed = ParsedTable(headers.kind, data, set(headers.found), {k: u for k, (_, u) in headers.found.items()},
+                         headers.ignored)
     return parsed, problems
 
 

@@ -1,122 +1,146 @@
 """Many rows into one table at once, inside the caller's unit of work: the readings and events of an import.
 
-Each column is converted once, over the whole column, to the values the driver takes: on SQLite the rows go to
-sqlite3's executemany as tuples; on PostgreSQL they stream through COPY (psycopg 3's ``cursor.copy``), the
-server's own bulk path; any other database takes SQLAlchemy Core's executemany insert. Times go as the text each
-database keeps (SQLite) or reads (COPY), formatted with numpy, not row by row.
+A ``BulkInsert`` works in two steps, so an import can prepare one block of rows while the database stores the
+block before it: ``prepare`` turns a frame into what the driver takes, touching no connection (any thread may run
+it), and ``write`` sends it, in the session's own thread. On SQLite the rows are tuples for sqlite3's executemany;
+on PostgreSQL they are CSV text written by Arrow's CSV writer and streamed through COPY (psycopg 3's
+``cursor.copy``), the server's own bulk path; any other database takes SQLAlchemy Core's executemany insert.
+Each column is converted once, over the whole column: times as the text each database keeps (SQLite) or reads
+(COPY), by Arrow's cast, never row by row.
 """
 
-import itertools
+import io
+from dataclasses import dataclass
 
 import numpy as np
 import pandas as pd
+import pyarrow as pa
+import pyarrow.compute as pc
+import pyarrow.csv as arrow_csv
 from sqlalchemy import insert
 from sqlalchemy.exc import DBAPIError
 from sqlalchemy.orm import Session
 
 from fleet.db import changes
 
-TIME_TEXT_WIDTH = 26  # YYYY-MM-DD HH:MM:SS.ffffff, how SQLAlchemy stores a DateTime in SQLite
+# Every value quoted and a missing one left empty: COPY's CSV format then reads an empty string as itself, a missing
+# value as NULL, and no cell (not even a note of '\.') as the end of the data.
+_CSV_OPTIONS = arrow_csv.WriteOptions(include_header=False, quoting_style="all_valid")
+_DRIVERS = {"sqlite": "pysqlite", "postgresql": "psycopg"}
+
+
+@dataclass
+class Prepared:
+    """One block's rows as the driver takes them."""
+
+    rows: object  # column lists (sqlite3, zipped into rows as it binds them), CSV bytes (COPY) or dicts (Core)
+    count: int
+    pump_ids: set[int]
+
+
+class BulkInsert:
+    """Inserts frames (columns named as ``model``'s, ``pump_id`` among them) into ``model``'s table."""
+
+    def __init__(self, session: Session, model, columns: list[str]):
+        self.session, self.model, self.columns = session, model, list(columns)
+        dialect = session.connection().dialect
+        self.mode = dialect.name if _DRIVERS.get(dialect.name) == dialect.driver else "core"
+        names = ", ".join(self.columns)
+        table = model.__tablename__
+        if self.mode == "sqlite":
+            self.statement = f"INSERT INTO {table} ({names}) VALUES ({', '.join('?' * len(self.columns))})"
+        else:
+            self.statement = f"COPY {table} ({names}) FROM STDIN (FORMAT csv)"
+
+    def prepare(self, frame: pd.DataFrame) -> Prepared:
+        """The frame's rows as the driver takes them; no connection is touched."""
+        frame = frame[self.columns]
+        pump_ids = {int(p) for p in pd.unique(frame["pump_id"])}
+        if self.mode == "sqlite":
+            rows = [_python_values(frame[name]) for name in self.columns]
+        elif self.mode == "postgresql":
+            rows = csv_bytes(frame)
+        else:
+            rows = _records(frame)
+        return Prepared(rows, len(frame), pump_ids)
+
+    def write(self, prepared: Prepared) -> None:
+        """Send prepared rows, in the session's thread, inside its transaction."""
+        if prepared.count == 0:
+            return
+        changes.note(self.session, self.model.__tablename__, "pump_id", prepared.pump_ids)
+        if self.mode == "core":
+            self.session.execute(insert(self.model), prepared.rows)
+            return
+        connection = self.session.connection()
+        dbapi_error = connection.dialect.loaded_dbapi.Error
+        cursor = connection.connection.cursor()
+        try:
+            if self.mode == "sqlite":
+                # Rows made as sqlite3 binds them: zip reuses its tuple once the driver let go of it, where a
+                # list of made tuples would cost their allocation and the garbage collector's passes over them.
+                cursor.executemany(self.statement, zip(*prepared.rows, strict=True))
+            else:
+                encoding = cursor.connection.info.encoding
+                data = prepared.rows if encoding == "utf-8" else prepared.rows.decode("utf-8").encode(encoding)
+                with cursor.copy(self.statement) as copy:
+                    copy.write(data)
+        except dbapi_error as error:
+            # As SQLAlchemy would raise it from its own execute: the write unit retries a lock or a key stored twice
+            # at once by its type (fleet.db.transaction), and a driver's bare error would pass that by.
+            raise DBAPIError.instance(self.statement, None, error, dbapi_error) from error
+        finally:
+            cursor.close()
 
 
 def insert_frame(session: Session, model, frame: pd.DataFrame) -> None:
     """Insert the rows of ``frame`` (columns named as the table's, ``pump_id`` among them) in one statement."""
-    if len(frame) == 0:
-        return
-    changes.note(session, model.__tablename__, "pump_id", {int(p) for p in frame["pump_id"].unique()})
-    connection = session.connection()
-    dialect = connection.dialect.name
-    if dialect not in ("sqlite", "postgresql") or connection.dialect.driver != {"sqlite": "pysqlite",
-                                                                                 "postgresql": "psycopg"}[dialect]:
-        session.execute(insert(model), _records(frame))
-        return
-    columns = [_column_values(frame[name], nulls=dialect == "postgresql") for name in frame.columns]
-    names = ", ".join(frame.columns)
-    if dialect == "sqlite":
-        statement = f"INSERT INTO {model.__tablename__} ({names}) VALUES ({', '.join('?' * len(frame.columns))})"
-    else:
-        statement = f"COPY {model.__tablename__} ({names}) FROM STDIN"
-    dbapi_error = connection.dialect.loaded_dbapi.Error
-    cursor = connection.connection.cursor()
-    try:
-        if dialect == "sqlite":
-            cursor.executemany(statement, zip(*columns, strict=False))  # repeats end with pump_id, always a list
-        else:
-            with cursor.copy(statement) as copy:
-                for row in zip(*columns, strict=False):
-                    copy.write_row(row)
-    except dbapi_error as error:
-        # As SQLAlchemy would raise it from its own execute: the write unit retries a lock or a key stored twice
-        # at once by its type (fleet.db.transaction), and a driver's bare error would pass that by.
-        raise DBAPIError.instance(statement, None, error, dbapi_error) from error
-    finally:
-        cursor.close()
+    if len(frame):
+        writer = BulkInsert(session, model, list(frame.columns))
+        writer.write(writer.prepare(frame))
 
 
-def _column_values(series: pd.Series, nulls: bool):
-    """A column as the driver's values: floats, ints, text or None. sqlite3 binds NaN as NULL by itself; COPY
-    would write NaN, so with ``nulls`` a missing number becomes None."""
+def _python_values(series: pd.Series) -> list:
+    """A column as sqlite3's values: floats (NaN, which sqlite3 binds as NULL), ints, text or None."""
     if pd.api.types.is_datetime64_any_dtype(series):
         values = series.to_numpy(dtype="datetime64[us]")
         if len(values) and (values == values[0]).all():
-            return itertools.repeat(time_texts(values[:1])[0])  # one moment for every row (created_at)
+            return [time_texts(values[:1])[0]] * len(values)  # one moment for every row (created_at)
         return time_texts(values)
     if pd.api.types.is_float_dtype(series):
-        numbers = series.to_numpy(dtype=float)
-        if np.isnan(numbers).all():
-            return itertools.repeat(None)  # a column the file did not have (stroke of fixed pumps)
-        values = numbers.tolist()
-        if nulls and np.isnan(numbers).any():
-            missing = np.isnan(numbers)
-            values = [None if gap else value for value, gap in zip(values, missing.tolist(), strict=True)]
-        return values
+        return series.to_numpy(dtype=float).tolist()
     if pd.api.types.is_integer_dtype(series):
         return series.to_numpy(dtype=np.int64).tolist()
     values = series.astype(object)
-    missing = values.isna().to_numpy()
-    if missing.all():
-        return itertools.repeat(None)  # a text column the file did not have (note, taken_by)
-    return values.where(~missing, None).tolist()
-
-
-# The digits of every number of 2, 3 and 4 places, as ASCII codes: one table lookup writes a field of a time.
-_DIGITS = {width: np.array([[ord(c) for c in f"{n:0{width}d}"] for n in range(10 ** width)], dtype=np.uint8)
-           for width in (2, 3, 4)}
+    return values.where(values.notna(), None).tolist()
 
 
 def time_texts(values: np.ndarray) -> list[str | None]:
-    """Times as 'YYYY-MM-DD HH:MM:SS.ffffff' (None for NaT), built as digits over the whole array at once.
+    """Times as 'YYYY-MM-DD HH:MM:SS.ffffff', as SQLAlchemy stores a DateTime in SQLite (None for NaT): Arrow's
+    cast of a microsecond timestamp writes exactly that (tests/test_fast_import.py checks it against strftime)."""
+    stamps = pa.array(np.asarray(values, dtype="datetime64[us]"), type=pa.timestamp("us"), from_pandas=True)
+    return pc.cast(stamps, pa.string()).to_pylist()
 
-    The date comes from the day count by the proleptic Gregorian arithmetic of H. Hinnant's ``civil_from_days``
-    (integer operations only; tests/test_fast_import.py checks it against datetime.strftime)."""
-    micros = values.astype("datetime64[us]")
-    missing = np.isnat(micros)
-    count = np.where(missing, 0, micros.view(np.int64))
-    days = count // 86_400_000_000
-    of_day = count - days * 86_400_000_000
-    shifted = days + 719_468  # days from 0000-03-01
-    era = shifted // 146_097
-    of_era = shifted - era * 146_097
-    year_of_era = (of_era - of_era // 1460 + of_era // 36_524 - of_era // 146_096) // 365
-    day_of_year = of_era - (365 * year_of_era + year_of_era // 4 - year_of_era // 100)
-    month_from_march = (5 * day_of_year + 2) // 153
-    month = np.where(month_from_march < 10, month_from_march + 3, month_from_march - 9)
-    fields = (  # (first character, digits, value)
-        (0, 4, year_of_era + era * 400 + (month <= 2)),
-        (5, 2, month),
-        (8, 2, day_of_year - (153 * month_from_march + 2) // 5 + 1),
-        (11, 2, of_day // 3_600_000_000), (14, 2, of_day // 60_000_000 % 60), (17, 2, of_day // 1_000_000 % 60),
-        (20, 3, of_day // 1000 % 1000), (23, 3, of_day % 1000),
-    )
-    text = np.empty((len(micros), TIME_TEXT_WIDTH), dtype=np.uint8)
-    for position, mark in ((4, "-"), (7, "-"), (10, " "), (13, ":"), (16, ":"), (19, ".")):
-        text[:, position] = ord(mark)
-    for first, width, value in fields:
-        text[:, first:first + width] = _DIGITS[width][value]
-    out = text.view(f"S{TIME_TEXT_WIDTH}").ravel().astype(f"U{TIME_TEXT_WIDTH}").tolist()
-    if missing.any():
-        out = [None if gap else value for value, gap in zip(out, missing.tolist(), strict=True)]
-    return out
+
+def csv_bytes(frame: pd.DataFrame) -> bytes:
+    """The frame as the CSV COPY reads: numbers as Arrow writes them (the shortest text that reads back to the same
+    double), times as 'YYYY-MM-DD HH:MM:SS.ffffff', a missing value (NaN, NaT, None) as NULL."""
+    arrays = {}
+    for name in frame.columns:
+        series = frame[name]
+        if pd.api.types.is_datetime64_any_dtype(series):
+            arrays[name] = pa.array(series.to_numpy(dtype="datetime64[us]"), type=pa.timestamp("us"),
+                                    from_pandas=True)
+        elif pd.api.types.is_float_dtype(series):
+            arrays[name] = pa.array(series.to_numpy(dtype=float), type=pa.float64(), from_pandas=True)
+        elif pd.api.types.is_integer_dtype(series):
+            arrays[name] = pa.array(series.to_numpy(dtype=np.int64), type=pa.int64())
+        else:
+            values = series.astype(object)
+            arrays[name] = pa.array(values.where(values.notna(), None).tolist(), type=pa.string())
+    sink = io.BytesIO()
+    arrow_csv.write_csv(pa.table(arrays), sink, _CSV_OPTIONS)
+    return sink.getvalue()
 
 
 def _records(frame: pd.DataFrame) -> list[dict]:

@@ -28,13 +28,13 @@ from fleet.db.queries import pumps_on_machine
 from fleet.io import rules
 from fleet.io.files import read_file
 from fleet.io.localtime import ZoneError, zone_name
-from fleet.io.meter import meter_doubts
 from fleet.io.parse import ImportRejected, ParsedTable, Problem, parse_table, row_numbers
 from fleet.io.spreadsheet import SpreadsheetError
 from fleet.physics.cleanliness import code_from_counts
 from fleet.services.register import records as register
 from fleet.services.sitelocal import row_conventions
 from fleet.services.transfer.bulk import insert_frame
+from fleet.services.transfer.reading_blocks import import_readings
 from fleet.timeutil import utcnow
 
 
@@ -86,6 +86,8 @@ def read_readable(source: str | Path | bytes, filename: str | None = None):
 def import_table(session: Session, kind: str, table: pd.DataFrame, *, now: datetime | None = None,
                  source: str = "import", taken_by: str | None = None) -> ImportResult:
     now = now or utcnow()
+    if kind == "readings":  # in blocks, parsed while the block before is stored
+        return _import_readings_table(session, table, now, source, taken_by)
     parsed, problems = parse_table(kind, table, row_conventions(session, kind, table))
     problems += rules.table_rules(kind, parsed.data, now)  # every problem at once, not cell problems first
     if problems:
@@ -304,92 +306,21 @@ def _import_installations(ctx: _Context, parsed: ParsedTable, result: ImportResu
     return problems
 
 
-# --- readings ----------------------------------------------------------------------------------------------
-
-def _stored_keys(session: Session, model, time_column, pump_ids: np.ndarray, stamps: pd.Series) -> pd.MultiIndex:
-    """(pump_id, time) keys of ``model`` already stored, among the pumps and time span the file names."""
-    if len(pump_ids) == 0:
-        return pd.MultiIndex.from_arrays([[], []])
-    low, high = stamps.min().to_pydatetime(), stamps.max().to_pydatetime()
-    rows = session.execute(
-        select(model.pump_id, time_column).where(
-            model.pump_id.in_([int(x) for x in np.unique(pump_ids)]), time_column >= low, time_column <= high
-        )
-    ).all()
-    pumps = np.array([row[0] for row in rows], dtype=np.int64)
-    times = pd.to_datetime(pd.Series([row[1] for row in rows], dtype=object)).astype("datetime64[ns]")
-    return pd.MultiIndex.from_arrays([pumps, times])
-
-
-def _check_readings(ctx: _Context, parsed: ParsedTable) -> tuple[pd.DataFrame, list[Problem]]:
-    """The readings with their pump ids, and every problem the database shows (unknown pump, a reading of the
-    same pump and time already stored or twice in the file, a time in the future)."""
-    problems: list[Problem] = []
-    ids = _pump_ids(ctx.session, parsed, problems)
-    _duplicates_in_file(parsed, ["pump", "taken_at"], problems, "pump and time")
-    data = parsed.data.assign(pump_id=ids)
-    known = data[ids.notna()]
-    stored = _stored_keys(ctx.session, Reading, Reading.taken_at, known["pump_id"].to_numpy(), known["taken_at"])
-    if len(stored):
-        keys = pd.MultiIndex.from_arrays([known["pump_id"].astype(np.int64).to_numpy(),
-                                          known["taken_at"].astype("datetime64[ns]").to_numpy()])
-        clash = known[keys.isin(stored)]
-        for index, serial, stamp in zip(clash.index, clash["pump"], clash["taken_at"], strict=True):
-            problems.append(Problem(int(index) + 2, "taken_at", f"a reading of pump '{serial}' at "
-                                    f"{stamp:%Y-%m-%d %H:%M} is already stored"))
-    return data, problems
-
+# --- readings: fleet/services/transfer/reading_blocks.py ------------------------------------------------
 
 def check_readings(session: Session, table: pd.DataFrame, now: datetime | None = None) -> list[Problem]:
     """Every problem an import of these readings would meet, without writing anything."""
-    now = now or utcnow()
-    parsed, problems = parse_table("readings", table, row_conventions(session, "readings", table))
-    problems += rules.table_rules("readings", parsed.data, now)
-    if problems:
-        if "pump" in parsed.present:
-            _pump_ids(session, parsed, problems)
-        return sorted(problems)
-    return sorted(_check_readings(_Context(session, now, "form", None), parsed)[1])
+    outcome = import_readings(session, table, now or utcnow(), "form", None, store=False)
+    return sorted(outcome.problems)
 
 
-def _import_readings(ctx: _Context, parsed: ParsedTable, result: ImportResult) -> list[Problem]:
-    data, problems = _check_readings(ctx, parsed)
-    if problems:
-        return problems
-    source = _column(parsed, "source").where(lambda s: s.notna(), ctx.source)
-    taken_by = _column(parsed, "taken_by").where(lambda s: s.notna(), ctx.taken_by)
-    frame = pd.DataFrame({
-        "pump_id": data["pump_id"].astype(int),
-        "taken_at": data["taken_at"],
-        "hours": data["hours"],
-        "pressure_bar": data["outlet_pressure"],
-        "speed_rpm": data["speed"],
-        "flow_lpm": _column(parsed, "outlet_flow"),
-        "drain_lpm": _column(parsed, "case_drain_flow"),
-        "temp_c": data["oil_temp"],
-        "stroke": _column(parsed, "stroke"),
-        "taken_by": taken_by,
-        "note": _column(parsed, "note"),
-        "source": source,
-    })
-    frame["created_at"] = pd.Timestamp(utcnow())
-    result.doubts = _meter_doubts(ctx.session, frame)
-    insert_frame(ctx.session, Reading, frame)
-    result.created = len(frame)
-    result.pump_ids.update(int(x) for x in frame["pump_id"].unique())
-    return problems
-
-
-def _meter_doubts(session: Session, frame: pd.DataFrame) -> list[dict]:
-    """The hour-meter doubts of new readings against the reading before each, stored or in the same table."""
-    pump_ids = [int(x) for x in frame["pump_id"].unique()]
-    rows = session.execute(select(Reading.pump_id, Reading.taken_at, Reading.hours).where(
-        Reading.pump_id.in_(pump_ids), Reading.taken_at <= frame["taken_at"].max().to_pydatetime())).all()
-    stored = pd.DataFrame(rows, columns=["pump_id", "taken_at", "hours"])
-    found = sorted(meter_doubts(frame, stored), key=lambda pair: pair[0])
-    rows = row_numbers(pd.Index([index for index, _ in found]))
-    return [{"row": int(row), "field": "hours", "code": doubt.code, "message": doubt.message}
-            for row, (_, doubt) in zip(rows, found, strict=True)]
+def _import_readings_table(session: Session, table: pd.DataFrame, now: datetime, source: str,
+                           taken_by: str | None) -> ImportResult:
+    outcome = import_readings(session, table, now, source, taken_by)
+    if outcome.problems:
+        raise ImportRejected(outcome.problems)
+    return ImportResult("readings", outcome.rows, created=outcome.created, pump_ids=outcome.pump_ids,
+                        ignored_columns=outcome.ignored_columns, doubts=outcome.doubts)
 
 
 # --- flow tests --------------------------------------------------------------------------------------------
@@ -551,7 +482,6 @@ _HANDLERS = {
     "sites": _import_sites,
     "pumps": _import_pumps,
     "installations": _import_installations,
-    "readings": _import_readings,
     "flowtests": _import_flowtests,
     "samples": _import_samples,
     "events": _import_events,

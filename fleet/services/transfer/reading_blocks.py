@@ -1,0 +1,334 @@
+"""The readings import in blocks of rows: a helper thread parses and checks each block while the session's thread
+stores the one before it. sqlite3 (while SQLite works), psycopg (while it sends) and Arrow's kernels release the
+GIL, so on two cores the parsing costs little more than the insert alone.
+
+Whole or nothing, as any import: every problem of every block is reported at once, and a refusal found in a later
+block undoes the earlier blocks' rows (they are written under a savepoint), so nothing is kept. The checks find
+what one pass over the whole table finds: a pump and time is a duplicate of any earlier block's, "already stored"
+means stored before the import began (a reading id no higher than the largest then), and the hour-meter doubts
+are asked once, over the whole table, after the last block.
+"""
+
+from concurrent.futures import ThreadPoolExecutor
+from dataclasses import dataclass, field
+from datetime import datetime
+
+import numpy as np
+import pandas as pd
+from sqlalchemy import func, select
+from sqlalchemy.orm import Session
+
+from fleet.db.models import Pump, Reading
+from fleet.io import rules
+from fleet.io.meter import meter_doubts
+from fleet.io.parse import Headers, Problem, RowConventions, is_arrow_text, parse_rows, read_headers
+from fleet.services.sitelocal import of_site, pump_sites
+from fleet.services.transfer.bulk import BulkInsert
+from fleet.timeutil import utcnow
+
+# Rows per block: big enough that each column operation's fixed cost is small, small enough that the blocks held at
+# once (one parsing, one storing) stay a few MB. The first blocks are smaller, so the first insert starts soon.
+BLOCK_ROWS = 65_536
+FIRST_BLOCK_ROWS = 8_192
+# Serials per query (SQLite allows 32,766 bound values in a statement).
+SERIALS_PER_QUERY = 10_000
+READING_COLUMNS = ["pump_id", "taken_at", "hours", "pressure_bar", "speed_rpm", "flow_lpm", "drain_lpm", "temp_c",
+                   "stroke", "taken_by", "note", "source", "created_at"]
+
+
+@dataclass
+class Outcome:
+    """What an import of readings found and did."""
+
+    rows: int
+    ignored_columns: list[str]
+    created: int = 0
+    pump_ids: set[int] = field(default_factory=set)
+    doubts: list[dict] = field(default_factory=list)
+    problems: list[Problem] = field(default_factory=list)  # empty when the rows were stored
+
+
+def import_readings(session: Session, table: pd.DataFrame, now: datetime, source: str, taken_by: str | None,
+                    store: bool = True) -> Outcome:
+    """Check the readings of ``table`` and, when ``store`` and no row has a problem, insert them all in the caller's
+    transaction; on a problem nothing stays written and ``problems`` names every one."""
+    headers = read_headers("readings", table.columns)
+    spans = _spans(len(table))
+    pumps = _Pumps(session, _stripped(table, headers))
+    writer = BulkInsert(session, Reading, READING_COLUMNS) if store else None
+    many = len(spans) > 1
+    # Rows this import writes must not count as stored before it: only ids up to the largest now are.
+    before_id = session.scalar(select(func.coalesce(func.max(Reading.id), 0))) if store else None
+    work = _Blocks(headers, table, pumps, now, source, taken_by, writer)
+    outcome = Outcome(len(table), headers.ignored)
+    if many and store:
+        with session.begin_nested() as savepoint:
+            _run(session, work, spans, before_id, outcome)
+            if outcome.problems:
+                savepoint.rollback()
+    else:
+        _run(session, work, spans, before_id, outcome)
+    return outcome
+
+
+def _spans(rows: int) -> list[tuple[int, int]]:
+    """(first, stop) of each block: FIRST_BLOCK_ROWS, then twice as many each time up to BLOCK_ROWS."""
+    spans, first, size = [], 0, min(FIRST_BLOCK_ROWS, BLOCK_ROWS)
+    while first < rows:
+        spans.append((first, min(first + size, rows)))
+        first, size = first + size, min(2 * size, BLOCK_ROWS)
+    return spans or [(0, 0)]
+
+
+def _run(session: Session, work: "_Blocks", spans: list[tuple[int, int]], before_id: int | None,
+         outcome: Outcome) -> None:
+    stored_clash: list[Problem] = []
+    new_rows: list[pd.DataFrame] = []
+    blocks = _in_turn(work, spans)
+    try:
+        for block in blocks:
+            if work.cells_wrong:
+                continue  # only the cells are reported now: nothing more to check or store
+            stored_clash += _stored(session, block, before_id)
+            if stored_clash or work.file_problems:
+                work.refused = True  # stop converting rows that will not be stored
+                continue
+            if block.prepared is not None:
+                work.writer.write(block.prepared)
+                outcome.created += block.prepared.count
+                outcome.pump_ids |= block.prepared.pump_ids
+            new_rows.append(block.meter)
+    finally:
+        blocks.close()  # waits for the block the helper thread may still be preparing
+    if work.cells_wrong:
+        outcome.problems = work.headers.problems + work.cell_problems + work.unknown
+    elif work.file_problems or stored_clash:
+        outcome.problems = work.file_problems + stored_clash
+    if outcome.problems:
+        outcome.created, outcome.pump_ids = 0, set()
+        return
+    if outcome.created:
+        outcome.doubts = _meter_doubts(session, pd.concat(new_rows) if len(new_rows) > 1 else new_rows[0],
+                                       before_id)
+
+
+def _in_turn(work: "_Blocks", spans: list[tuple[int, int]]):
+    """Each block prepared, in order: with more than one, a helper thread prepares the next while the caller
+    stores the one it was given."""
+    work.pumps.look_up(*spans[0])
+    if len(spans) == 1:
+        yield work.prepare(*spans[0])
+        return
+    with ThreadPoolExecutor(max_workers=1, thread_name_prefix="fleet-import") as helper:
+        coming = helper.submit(work.prepare, *spans[0])
+        work.pumps.look_up(spans[1][0])  # the rest of the file's serials, while the first block is parsed
+        for position in range(len(spans)):
+            block = coming.result()
+            if position + 1 < len(spans):
+                coming = helper.submit(work.prepare, *spans[position + 1])
+            yield block
+
+
+@dataclass
+class _Block:
+    ids: np.ndarray | None = None  # pump id per row (NaN: unknown)
+    taken_at: pd.Series | None = None
+    serials: pd.Series | None = None
+    prepared: object = None  # the rows as the driver takes them (None: not to be stored)
+    meter: pd.DataFrame | None = None  # pump_id, taken_at, hours of the block's rows
+
+
+class _Pumps:
+    """The register's answer for the table's serials, each asked once: pump id and site conventions."""
+
+    def __init__(self, session: Session, cells: pd.Series | None):
+        self.session, self.cells = session, cells
+        self.ids: dict[str, int] = {}
+        self.conventions: dict = {}
+
+    def look_up(self, first: int = 0, stop: int | None = None) -> None:
+        """Ask the register about the serials of rows first to stop not asked about yet (in the session's thread;
+        the helper thread only reads the answers, of rows it is given after they were asked)."""
+        if self.cells is None:
+            return
+        cells = self.cells.iloc[first:stop].dropna()
+        serials = [s for s in pd.unique(cells) if s not in self.conventions and _queryable(s)]
+        session = self.session
+        for start in range(0, len(serials), SERIALS_PER_QUERY):
+            part = serials[start:start + SERIALS_PER_QUERY]
+            self.ids.update(session.execute(select(Pump.serial, Pump.id).where(Pump.serial.in_(part))).all())
+        sites = pump_sites(session, serials)
+        self.conventions.update({serial: of_site(sites.get(serial)) for serial in serials})
+
+    def row_conventions(self, cells: pd.Series) -> RowConventions:
+        """Each row's zone and decimal comma by its pump's site (as fleet.services.sitelocal.row_conventions)."""
+        codes, serials = pd.factorize(cells)
+        found = [self.conventions.get(serial) or of_site(None) for serial in serials] + [of_site(None)]
+        zones = np.array([c.time_zone for c in found], dtype=object)[codes]
+        comma = np.array([c.decimal_comma for c in found], dtype=bool)[codes]
+        return RowConventions(pd.Series(zones, index=cells.index, dtype=object),
+                              pd.Series(comma, index=cells.index, dtype=bool))
+
+
+class _Blocks:
+    """Prepares blocks one after another (in the helper thread), keeping what the file's later blocks are checked
+    against: the problems so far and every earlier (pump, time)."""
+
+    def __init__(self, headers: Headers, table: pd.DataFrame, pumps: _Pumps, now: datetime, source: str,
+                 taken_by: str | None, writer: BulkInsert | None):
+        self.headers, self.table, self.pumps, self.now = headers, table, pumps, now
+        self.source, self.taken_by, self.writer = source, taken_by, writer
+        self.created_at = pd.Timestamp(utcnow())
+        self.cell_problems: list[Problem] = []  # cells and the rules between them (nothing else is then reported)
+        self.unknown: list[Problem] = []  # serials the register does not hold
+        self.file_problems: list[Problem] = []  # unknown pumps and repeated (pump, time) when the cells are right
+        self.refused = bool(headers.problems)
+        self.serial_codes: dict[str, int] = {}
+        self.seen_codes: list[np.ndarray] = []  # the serial code and key of every earlier block's rows
+        self.seen_keys: list[np.ndarray] = []
+
+    @property
+    def cells_wrong(self) -> bool:
+        return bool(self.headers.problems or self.cell_problems)
+
+    def prepare(self, first: int, stop: int) -> _Block:
+        rows = self.table.iloc[first:stop]
+        has_pump = "pump" in self.headers.found
+        conventions = None
+        if has_pump:
+            cells = _stripped(rows, self.headers).set_axis(pd.RangeIndex(first, stop))
+            conventions = self.pumps.row_conventions(cells)
+        parsed, problems = parse_rows(self.headers, rows, conventions, first)
+        problems += rules.table_rules("readings", parsed.data, self.now)
+        block = _Block()
+        if has_pump:
+            block.ids = self._ids(parsed.data["pump"])
+        self.cell_problems += problems
+        if self.cells_wrong:
+            self.refused = True
+            return block
+        data = parsed.data
+        block.taken_at, block.serials = data["taken_at"], data["pump"]
+        self._repeats(data)
+        if self.file_problems:
+            self.refused = True
+        frame = pd.DataFrame({
+            "pump_id": np.nan_to_num(block.ids).astype(np.int64),
+            "taken_at": data["taken_at"],
+            "hours": data["hours"],
+            "pressure_bar": data["outlet_pressure"],
+            "speed_rpm": data["speed"],
+            "flow_lpm": _column(data, "outlet_flow"),
+            "drain_lpm": _column(data, "case_drain_flow"),
+            "temp_c": data["oil_temp"],
+            "stroke": _column(data, "stroke"),
+            "taken_by": _column(data, "taken_by").where(lambda s: s.notna(), self.taken_by),
+            "note": _column(data, "note"),
+            "source": _column(data, "source").where(lambda s: s.notna(), self.source),
+            "created_at": self.created_at,
+        }, index=data.index)
+        block.meter = frame[["pump_id", "taken_at", "hours"]]
+        if self.writer is not None and not self.refused:
+            block.prepared = self.writer.prepare(frame)
+        return block
+
+    def _ids(self, serials: pd.Series) -> np.ndarray:
+        """Pump ids (NaN for a serial the register lacks, which becomes a problem; a blank cell is one already)."""
+        codes, unique = pd.factorize(serials)
+        found = np.array([self.pumps.ids.get(serial, np.nan) for serial in unique] + [np.nan], dtype=float)
+        ids = found[codes]
+        unknown = np.isnan(ids) & serials.notna().to_numpy()
+        for row, serial in zip(serials.index[unknown] + 2, serials[unknown], strict=True):
+            problem = Problem(int(row), "pump", f"no pump '{serial}' in the register (import it with the pumps first)")
+            self.unknown.append(problem)
+            self.file_problems.append(problem)
+        return ids
+
+    def _repeats(self, data: pd.DataFrame) -> None:
+        """Rows whose pump and time appear earlier in the file, in this block or an earlier one."""
+        codes, unique = pd.factorize(data["pump"])
+        known = np.array([self.serial_codes.setdefault(serial, len(self.serial_codes)) for serial in unique],
+                         dtype=float)
+        # One complex number per (serial, time): both parts exact, as a serial's code and a time's microseconds since
+        # 1970 (below 2^53 until the year 2255) are whole numbers a double holds exactly.
+        micros = data["taken_at"].to_numpy(dtype="datetime64[us]").view(np.int64).astype(float)
+        serial_codes = known[codes].astype(np.int64)
+        keys = serial_codes + 1j * micros
+        repeated = pd.Index(keys).duplicated(keep="first")
+        if self.seen_codes:
+            # Only earlier rows of this block's pumps can repeat one of its rows (a file sorted by pump shares few).
+            self.seen_codes, self.seen_keys = [np.concatenate(self.seen_codes)], [np.concatenate(self.seen_keys)]
+            earlier = self.seen_keys[0][np.isin(self.seen_codes[0], np.unique(serial_codes))]
+            if len(earlier):
+                repeated |= pd.Index(keys).isin(earlier)
+        for row in data.index[repeated] + 2:
+            self.file_problems.append(Problem(int(row), "taken_at", "the same pump and time appears earlier in the "
+                                              "file"))
+        self.seen_codes.append(serial_codes)
+        self.seen_keys.append(keys)
+
+
+def _stored(session: Session, block: _Block, before_id: int | None) -> list[Problem]:
+    """Rows of the block whose pump and time a reading stored before the import already has."""
+    if block.taken_at is None:
+        return []
+    known = ~np.isnan(block.ids)
+    if not known.any():
+        return []
+    pump_ids = block.ids[known].astype(np.int64)
+    stamps, serials = block.taken_at[known], block.serials[known]
+    query = select(Reading.pump_id, Reading.taken_at).where(
+        Reading.pump_id.in_([int(x) for x in np.unique(pump_ids)]),
+        Reading.taken_at >= stamps.min().to_pydatetime(), Reading.taken_at <= stamps.max().to_pydatetime())
+    if before_id is not None:
+        query = query.where(Reading.id <= before_id)
+    rows = session.execute(query).all()
+    if not rows:
+        return []
+    stored = pd.MultiIndex.from_arrays([np.array([r[0] for r in rows], dtype=np.int64),
+                                        pd.to_datetime(pd.Series([r[1] for r in rows], dtype=object))
+                                        .astype("datetime64[ns]")])
+    keys = pd.MultiIndex.from_arrays([pump_ids, stamps.astype("datetime64[ns]").to_numpy()])
+    clash = keys.isin(stored)
+    return [Problem(int(index) + 2, "taken_at", f"a reading of pump '{serial}' at {stamp:%Y-%m-%d %H:%M} is "
+                    "already stored")
+            for index, serial, stamp in zip(stamps.index[clash], serials[clash], stamps[clash], strict=True)]
+
+
+def _meter_doubts(session: Session, frame: pd.DataFrame, before_id: int | None) -> list[dict]:
+    """The hour-meter doubts of new readings against the reading before each, stored or in the same table."""
+    pump_ids = [int(x) for x in pd.unique(frame["pump_id"])]
+    query = select(Reading.pump_id, Reading.taken_at, Reading.hours).where(
+        Reading.pump_id.in_(pump_ids), Reading.taken_at <= frame["taken_at"].max().to_pydatetime())
+    if before_id is not None:
+        query = query.where(Reading.id <= before_id)
+    stored = pd.DataFrame(session.execute(query).all(), columns=["pump_id", "taken_at", "hours"])
+    found = sorted(meter_doubts(frame, stored), key=lambda pair: pair[0])
+    return [{"row": int(index) + 2, "field": "hours", "code": doubt.code, "message": doubt.message}
+            for index, doubt in found]
+
+
+def _column(data: pd.DataFrame, name: str) -> pd.Series:
+    if name in data:
+        return data[name]
+    return pd.Series([None] * len(data), index=data.index, dtype=object)
+
+
+def _stripped(table: pd.DataFrame, headers: Headers) -> pd.Series | None:
+    """The pump cells stripped, as the parser strips them (Arrow text stays Arrow)."""
+    if "pump" not in headers.found:
+        return None
+    column = table.iloc[:, headers.positions["pump"]]
+    return (column if is_arrow_text(column) else column.astype("string")).str.strip()
+
+
+def _queryable(text) -> bool:
+    """Text a database can be asked about: valid Unicode without NUL (the parser reports the others)."""
+    if not isinstance(text, str) or "\x00" in text:
+        return False
+    try:
+        text.encode("utf-8")
+    except UnicodeEncodeError:
+        return False
+    return True
+

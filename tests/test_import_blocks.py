@@ -1,0 +1,158 @@
+"""The readings import in blocks (fleet/services/transfer/reading_blocks.py) finds and stores exactly what one pass
+over the whole table does: the same problems in the same words, the same doubts, nothing kept on a refusal.
+
+Reference: the same import with one block holding every row (no helper thread, nothing stored before every row is
+checked), and the rows themselves read back through the ORM."""
+
+import io
+import math
+from datetime import datetime
+
+import pandas as pd
+import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
+from sqlalchemy import func, select
+
+from fleet.db.models import Reading
+from fleet.io.files import read_csv
+from fleet.io.parse import ImportRejected
+from fleet.services.transfer import reading_blocks
+from fleet.services.transfer.bulk import csv_bytes
+from fleet.services.transfer.importing import check_readings, import_file, import_table
+from tests.conftest import DATA
+
+NOW = datetime(2026, 1, 1)
+COLUMNS = ["pump", "taken_at", "hours", "outlet_pressure", "speed", "outlet_flow", "oil_temp", "note"]
+
+
+def _row(pump: str, day: int, hours: float, note: str = "") -> list[str]:
+    return [pump, f"2025-03-{day:02d} 08:00", f"{hours:g}", "230", "1490", "63.1", "48", note]
+
+
+def _table(rows: list[list[str]]) -> pd.DataFrame:
+    """Rows as a CSV file's cells (Arrow text, as fleet.io.files reads them)."""
+    text = ",".join(COLUMNS) + "\n" + "".join(",".join(row) + "\n" for row in rows)
+    return read_csv(text.encode())
+
+
+@pytest.fixture
+def pumps(db):
+    with db.sessions.begin() as session:
+        import_file(session, "pumps", DATA / "pumps_small.csv")
+    with db.sessions.begin() as session:  # one reading stored before: a later clash with it is "already stored"
+        import_table(session, "readings", _table([_row("T-102", 1, 900)]), now=NOW)
+    return db
+
+
+def _attempt(db, table: pd.DataFrame, block_rows: int, monkeypatch):
+    """(problems as text or None, doubts, readings stored after) of one import with blocks of ``block_rows``."""
+    monkeypatch.setattr(reading_blocks, "BLOCK_ROWS", block_rows)
+    try:
+        with db.sessions.begin() as session:
+            result = import_table(session, "readings", table, now=NOW)
+        problems, doubts = None, result.doubts
+    except ImportRejected as rejected:
+        problems, doubts = [str(p) for p in rejected.problems], []
+    with db.sessions() as session:
+        stored = session.execute(select(Reading.pump_id, Reading.taken_at, Reading.hours, Reading.note)
+                                 .order_by(Reading.pump_id, Reading.taken_at)).all()
+    return problems, doubts, stored
+
+
+CASES = {
+    "clean, with a meter doubt across blocks": [_row("T-101", d, 100 + 10 * d) for d in range(1, 8)]
+    + [_row("T-101", 9, 50)],
+    "a bad cell in the last block, a repeat in the first": [_row("T-101", 1, 10), _row("T-101", 1, 11)]
+    + [_row("T-101", d, 10 * d) for d in range(2, 7)] + [_row("T-101", 8, -5)],
+    "a repeat across blocks": [_row("T-101", d, 10 * d) for d in range(1, 6)] + [_row("T-101", 2, 99)],
+    "already stored, in a late block": [_row("T-101", d, 10 * d) for d in range(1, 6)] + [_row("T-102", 1, 901)],
+    "an unknown pump and a repeat": [_row("T-101", d, 10 * d) for d in range(1, 5)] + [_row("X-9", 3, 1)]
+    + [_row("T-101", 4, 1)],
+    "an unknown pump and a bad cell": [_row("X-9", 3, 1), _row("T-101", 3, 1)] + [_row("T-101", 4, 10)] * 3
+    + [_row("T-101", 20, float("nan"))],
+}
+
+
+@pytest.mark.parametrize("name", sorted(CASES))
+def test_blocks_find_and_store_what_one_pass_does(pumps, monkeypatch, name):
+    table = _table(CASES[name])
+    before = _attempt(pumps, table, 2, monkeypatch)  # blocks of two rows: the helper thread, a savepoint
+    with pumps.sessions.begin() as session:  # back to the one stored reading
+        session.execute(Reading.__table__.delete().where(Reading.hours != 900))
+    one_pass = _attempt(pumps, table, 10_000, monkeypatch)
+    assert before == one_pass
+    problems, _doubts, stored = before
+    assert (problems is None) == (name.startswith("clean"))
+    assert len(stored) == (1 + len(table) if problems is None else 1)  # a refusal keeps nothing of any block
+
+
+def test_blocks_report_the_same_doubts_and_store_every_row(pumps, monkeypatch):
+    # Reference: the rows as written in the file, and fleet.io.meter's one rule asked in a single pass.
+    table = _table(CASES["clean, with a meter doubt across blocks"])
+    problems, doubts, stored = _attempt(pumps, table, 3, monkeypatch)
+    assert problems is None
+    assert [(d["row"], d["code"]) for d in doubts] == [(9, "hours_backwards")]
+    assert [s.hours for s in stored if s.pump_id != 2] == [110, 120, 130, 140, 150, 160, 170, 50]
+
+
+def test_check_readings_in_blocks_writes_nothing(pumps, monkeypatch):
+    monkeypatch.setattr(reading_blocks, "BLOCK_ROWS", 2)
+    with pumps.sessions.begin() as session:
+        problems = check_readings(session, _table(CASES["a repeat across blocks"]), NOW)
+        assert session.scalar(select(func.count(Reading.id))) == 1
+    assert [(p.row, p.column) for p in problems] == [(7, "taken_at")]
+
+
+def test_a_note_that_reads_as_the_end_of_copy_data_is_stored_as_written(pumps):
+    # '\.' alone ends COPY's text data; quoted in CSV it is a value. Reference: the note read back through the ORM.
+    with pumps.sessions.begin() as session:
+        import_table(session, "readings", _table([_row("T-101", 5, 10, "\\."), _row("T-101", 6, 11, '"a, ""b"""')]),
+                     now=NOW)
+    with pumps.sessions() as session:
+        notes = session.scalars(select(Reading.note).where(Reading.pump_id == 1).order_by(Reading.taken_at)).all()
+    assert notes == ["\\.", 'a, "b"']
+
+
+@settings(max_examples=60, deadline=None)
+@given(st.lists(st.one_of(st.floats(allow_nan=False, allow_infinity=False, width=64), st.none()), min_size=1,
+                max_size=30),
+       st.lists(st.one_of(st.text(alphabet=st.characters(blacklist_categories=("Cs",), blacklist_characters="\x00"),
+                                  max_size=12), st.none()), min_size=1, max_size=30))
+def test_copy_text_reads_back_to_the_same_values(numbers, texts):
+    # Reference: Python's csv module and float(), reading the CSV as COPY's CSV format does (an unquoted empty
+    # field is NULL, a quoted one is text).
+    import csv
+
+    size = min(len(numbers), len(texts))
+    frame = pd.DataFrame({"x": pd.Series(numbers[:size], dtype=float), "s": pd.Series(texts[:size], dtype=object)})
+    data = csv_bytes(frame).decode()
+    rows = list(csv.reader(io.StringIO(data, newline="")))
+    assert len(rows) == size
+    for (x_text, s_text), x, s in zip(rows, numbers[:size], texts[:size], strict=True):
+        assert (x_text == "") == (x is None)
+        if x is not None:
+            assert float(x_text) == x and math.copysign(1, float(x_text)) == math.copysign(1, x)
+        assert s_text == ("" if s is None else s)
+    for position, s in enumerate(texts[:size]):  # a missing text is an unquoted empty field, any other quoted
+        line = csv_bytes(frame.iloc[[position]]).decode()
+        assert line.endswith(",\n") == (s is None) and line.endswith('"\n') == (s is not None)
+
+
+def test_later_blocks_read_cells_by_their_pumps_site(pumps, monkeypatch):
+    # The first block's serials are looked up before it, the others while it is parsed: a pump first met in a later
+    # block still has its site's decimal comma and time zone. Reference: the same file in one block.
+    with pumps.sessions.begin() as session:
+        import_table(session, "sites", pd.DataFrame([{"site": "Test Works (invented)", "decimal_comma": "yes",
+                                                      "time_zone": "America/Chicago"}]))
+    rows = [_row("T-101", d, 10 * d) for d in range(1, 5)] + [_row("T-103", d, 100 + d) for d in range(1, 4)]
+    rows[-1][6] = '"48,5"'  # quoted in the file, so its comma is no separator
+    table = _table(rows)
+    blocks = _attempt(pumps, table, 2, monkeypatch)
+    with pumps.sessions.begin() as session:
+        session.execute(Reading.__table__.delete().where(Reading.hours != 900))
+    assert blocks == _attempt(pumps, table, 10_000, monkeypatch)
+    problems, _doubts, stored = blocks
+    assert problems is None
+    last = [s for s in stored if s.hours == 103][0]
+    assert last.taken_at == datetime(2025, 3, 3, 14, 0)  # 08:00 in Chicago (UTC-6 before March 9, 2025) is 14:00 UTC
