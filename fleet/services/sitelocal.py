@@ -44,7 +44,7 @@ def of_site(site: Site | None) -> Conventions:
                        site.temperature_unit or "degC", bool(site.decimal_comma), site.name)
 
 
-def _queryable(text) -> bool:
+def queryable(text) -> bool:
     """Text a database can be asked about: valid Unicode without NUL (the parser reports the others)."""
     if not isinstance(text, str) or "\x00" in text:
         return False
@@ -57,7 +57,7 @@ def _queryable(text) -> bool:
 
 def pump_sites(session: Session, serials) -> dict[str, Site]:
     """serial -> the site of the pump's latest installation."""
-    serials = [s for s in set(serials) if _queryable(s)]
+    serials = [s for s in set(serials) if queryable(s)]
     if not serials:
         return {}
     rows = session.execute(
@@ -71,7 +71,7 @@ def pump_sites(session: Session, serials) -> dict[str, Site]:
 def pump_zones(session: Session, serials) -> dict[str, tuple[int, str]]:
     """serial -> (pump id, the time zone of its site) for the pumps of the register (one statement; UTC for a
     pump never installed): what a few posted readings need to be read and stored."""
-    serials = [s for s in set(serials) if _queryable(s)]
+    serials = [s for s in set(serials) if queryable(s)]
     if not serials:
         return {}
     rows = session.execute(

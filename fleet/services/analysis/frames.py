@@ -46,7 +46,7 @@ def _query(session: Session, statement) -> pd.DataFrame:
     return pd.DataFrame(result.all(), columns=list(result.keys()))
 
 
-def _plain_query(session: Session, statement) -> pd.DataFrame:
+def plain_query(session: Session, statement) -> pd.DataFrame:
     """As _query, but the driver's rows go straight into the frame, without SQLAlchemy's per-row Row and type
     processing (on SQLite a time then arrives as text; callers convert whole columns with pd.to_datetime).
     For the large tables only, whose columns are numbers and times."""
@@ -132,7 +132,7 @@ def load_readings(session: Session, pump_ids=None, history: pd.DataFrame | None 
     statement = select(Reading.id.label("reading_id"), Reading.pump_id, Reading.taken_at, Reading.hours,
                        Reading.pressure_bar, Reading.speed_rpm, Reading.flow_lpm, Reading.drain_lpm,
                        Reading.temp_c, Reading.stroke)
-    readings = _plain_query(session, _restrict(statement, Reading.pump_id, pump_ids))
+    readings = plain_query(session, _restrict(statement, Reading.pump_id, pump_ids))
     readings["taken_at"] = pd.to_datetime(readings["taken_at"], format="ISO8601")
     readings = readings.astype({c: float for c in ("hours", "pressure_bar", "speed_rpm", "flow_lpm", "drain_lpm",
                                                    "temp_c", "stroke")})

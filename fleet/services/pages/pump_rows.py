@@ -29,7 +29,7 @@ from fleet.db.models import (
 )
 from fleet.frames import EVENT_COLUMNS, FLOW_POINT_COLUMNS, PUMP_COLUMNS, READING_COLUMNS
 from fleet.physics.pump import theoretical_flow_lpm
-from fleet.services.analysis.frames import attach_oil, effective_limits
+from fleet.services.analysis.frames import attach_oil, effective_limits, plain_query
 
 # The columns of the readings the page shows besides the core's.
 READING_EXTRAS = ("source", "taken_by")
@@ -81,18 +81,6 @@ class PumpRows:
         return max(self.stays, key=lambda stay: stay.installed_at).site_id if self.stays else None
 
 
-def _plain(session: Session, statement) -> pd.DataFrame:
-    """The driver's rows straight into a frame (no per-row SQLAlchemy processing: on SQLite times arrive as text,
-    converted by whole columns)."""
-    result = session.connection().execute(statement)
-    try:
-        keys = list(result.keys())
-        rows = result.cursor.fetchall() if result.cursor is not None else []
-    finally:
-        result.close()
-    return pd.DataFrame.from_records(rows, columns=keys, coerce_float=True)
-
-
 def _stays(session: Session, pump_id: int) -> list[Stay]:
     rows = session.execute(
         select(Installation.installed_at, Installation.removed_at, Installation.installed_hours,
@@ -142,7 +130,7 @@ def _pump_frame(session: Session, pump: Pump, here: Stay | None) -> pd.DataFrame
 def pump_rows(session: Session, pump: Pump, as_of: datetime) -> PumpRows:
     """Everything about ``pump`` the page draws, with the core's frames as known at ``as_of``."""
     stays = _stays(session, pump.id)
-    rows = _plain(session, select(
+    rows = plain_query(session, select(
         Reading.id.label("reading_id"), Reading.pump_id, Reading.taken_at, Reading.hours, Reading.pressure_bar,
         Reading.speed_rpm, Reading.flow_lpm, Reading.drain_lpm, Reading.temp_c, Reading.stroke, Reading.source,
         Reading.taken_by).where(Reading.pump_id == pump.id))
@@ -150,7 +138,7 @@ def pump_rows(session: Session, pump: Pump, as_of: datetime) -> PumpRows:
     rows = rows.astype({c: float for c in _NUMBERS})
     all_readings = attach_oil(rows[[c for c in READING_COLUMNS if c in rows]], _history(pump.id, stays))
     all_readings = all_readings[list(READING_COLUMNS)].sort_values("taken_at", kind="stable").reset_index(drop=True)
-    points = _plain(session, select(FlowTestPoint.reading_id, FlowTestPoint.pressure_bar, FlowTestPoint.flow_lpm)
+    points = plain_query(session, select(FlowTestPoint.reading_id, FlowTestPoint.pressure_bar, FlowTestPoint.flow_lpm)
                     .join(Reading, Reading.id == FlowTestPoint.reading_id).where(Reading.pump_id == pump.id))
     points = points.astype({"reading_id": np.int64, "pressure_bar": float, "flow_lpm": float})
     events = pd.DataFrame(session.execute(

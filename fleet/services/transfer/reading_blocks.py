@@ -22,7 +22,7 @@ from fleet.db.models import Pump, Reading
 from fleet.io import rules
 from fleet.io.meter import meter_doubts
 from fleet.io.parse import Headers, Problem, RowConventions, is_arrow_text, parse_rows, read_headers
-from fleet.services.sitelocal import of_site, pump_sites
+from fleet.services.sitelocal import of_site, pump_sites, queryable
 from fleet.services.transfer.bulk import BulkInsert
 from fleet.timeutil import utcnow
 
@@ -152,7 +152,7 @@ class _Pumps:
         if self.cells is None:
             return
         cells = self.cells.iloc[first:stop].dropna()
-        serials = [s for s in pd.unique(cells) if s not in self.conventions and _queryable(s)]
+        serials = [s for s in pd.unique(cells) if s not in self.conventions and queryable(s)]
         session = self.session
         for start in range(0, len(serials), SERIALS_PER_QUERY):
             part = serials[start:start + SERIALS_PER_QUERY]
@@ -320,15 +320,4 @@ def _stripped(table: pd.DataFrame, headers: Headers) -> pd.Series | None:
         return None
     column = table.iloc[:, headers.positions["pump"]]
     return (column if is_arrow_text(column) else column.astype("string")).str.strip()
-
-
-def _queryable(text) -> bool:
-    """Text a database can be asked about: valid Unicode without NUL (the parser reports the others)."""
-    if not isinstance(text, str) or "\x00" in text:
-        return False
-    try:
-        text.encode("utf-8")
-    except UnicodeEncodeError:
-        return False
-    return True
 
