@@ -16,7 +16,7 @@ import statistics
 import threading
 import time
 
-from benchmarks.run import _sign_in
+from benchmarks.run import _median_ms, _sign_in
 
 VIEWER, PASSWORD = "bench-page-viewer", "invented benchmark password"
 CHROMIUM_ARGS = ["--headless", "--no-sandbox", "--disable-gpu", "--disable-quic", "--no-first-run",
@@ -36,14 +36,7 @@ def server_ms(url: str, serial: str, times: int = 20) -> dict:
     out = {}
     for name, path in (("page_ms", f"/pumps/{serial}"), ("json_ms", f"/pumps/{serial}.json")):
         client.get(path)
-        samples = []
-        for _ in range(times):
-            started = time.perf_counter()
-            response = client.get(path)
-            samples.append(1000.0 * (time.perf_counter() - started))
-            if response.status_code != 200:
-                raise RuntimeError(f"GET {path} answered {response.status_code}")
-        out[name] = statistics.median(samples)
+        out[name] = _median_ms(client, path, times)
     return out
 
 
