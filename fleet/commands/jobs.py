@@ -77,7 +77,7 @@ def review_text(data: dict) -> str:
     lines.append(f"\nStill past their limit ({counts['still_past_limit']})")
     for item in data["still_past_limit"]:
         since = (item.get("past_limit_since") or "before the records")[:16].replace("T", " ")
-        lines.append(f"  {item['pump']:<12} since {since}  η_v,ref {efficiency(item.get('eta_v_ref'))}  "
+        lines.append(f"  {item['pump']:<12} flagged {since}  η_v,ref {efficiency(item.get('eta_v_ref'))}  "
                      f"({item.get('site')} / {item.get('machine')})")
     lines.append(f"\nStatus changes ({counts['status_change']})")
     for item in data["status_changes"]:
