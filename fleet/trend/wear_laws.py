@@ -250,17 +250,49 @@ def run_in_dx_du(u, tau: float, share: float) -> np.ndarray:
     return share * np.exp(-u / tau) / (tau * -np.expm1(-1.0 / tau)) + (1.0 - share)
 
 
+# Readings x members cells worked on at once by _fit_family_members: a block of a few MB stays in the CPU's cache
+# and bounds memory however many readings a part holds.
+_BLOCK_CELLS = 1 << 16
+
+
+def _family_x(family: str, u: np.ndarray, log_u: np.ndarray) -> np.ndarray:
+    """x of every member of a family at u (readings x the family's members, in MEMBERS' order), each column as
+    member_x gives it: the power law's u^p by one outer product of ln u, the run-in law's saturating part once
+    per time constant for all its shares."""
+    members = [m for m in MEMBERS if m.law == family]
+    if family == "power":
+        return np.exp(log_u[:, None] * np.array([m.power for m in members])[None, :])
+    x = np.empty((len(u), len(members)))
+    shares = np.array([m.share for m in members])
+    taus = np.array([m.tau for m in members])
+    for tau in dict.fromkeys(taus):
+        cols = taus == tau
+        rise = -np.expm1(-u / tau)
+        x[:, cols] = rise[:, None] * shares[cols][None, :] / -np.expm1(-1.0 / tau) + u[:, None] * (1.0 - shares[cols])
+    return x
+
+
+def _segment_sum(values: np.ndarray, starts: np.ndarray) -> np.ndarray:
+    """Sums of the rows of `values` (readings x columns) between consecutive `starts` (non-empty segments)."""
+    return np.add.reduceat(values, starts, axis=0)
+
+
 def _fit_family_members(family, group, hours, q, sigma, robust_w, clip, hours_scale, offset, n_groups, out,
                         deviance, only=None):
     """Fill the columns of `out` and `deviance` of the members of a law with many members (FAMILIES): one
     weighted least-squares pass per member with fixed weights (error model x Huber), from grouped sums; Huber's
     sandwich covariance as in fleet.trend.robust.fit_reweighted, clipped at the common robust scale `clip`.
-    only: refit just these groups (a mask over groups), leaving the others' figures as they are."""
-    rows = slice(None)
-    if only is not None:
-        keep = only[group]
-        group, hours, q, sigma, robust_w = group[keep], hours[keep], q[keep], sigma[keep], robust_w[keep]
-        rows = only
+    only: refit just these groups (a mask over groups), leaving the others' figures as they are.
+
+    Every member at once: the readings sorted by group (stably, so each group's sums add in the readings' own
+    order), the members' x as the columns of a block of readings, and each sum one segment sum over the block's
+    rows; blocks of whole groups keep each pass in cache."""
+    keep = np.ones(len(group), dtype=bool) if only is None else only[group]
+    order = np.flatnonzero(keep)
+    order = order[np.argsort(group[order], kind="stable")]
+    group, hours, q, sigma, robust_w = group[order], hours[order], q[order], sigma[order], robust_w[order]
+    cols = np.flatnonzero([m.law == family for m in MEMBERS])
+    n_params = np.array([MEMBERS[j].n_params for j in cols], dtype=float)
     model_w = 1.0 / sigma**2
     w = model_w * robust_w
     count = np.bincount(group, minlength=n_groups).astype(float)
@@ -271,36 +303,56 @@ def _fit_family_members(family, group, hours, q, sigma, robust_w, clip, hours_sc
         u = np.maximum((hours + offset[group]) / hours_scale[group], 0.0)
         log_u = np.log(np.maximum(u, 1e-300))
     clip2 = clip[group] ** 2
-    for j, m in enumerate(MEMBERS):
-        if m.law != family:
-            continue
-        # Raw sums are safe here: every family's x lies in [0, 1] over the readings.
-        x = np.exp(m.power * log_u) if family == "power" else run_in_x(u, m.tau, m.share)
-        wx = w * x
-        sx = np.bincount(group, wx, minlength=n_groups)
-        sxx = np.bincount(group, wx * x, minlength=n_groups)
-        sxy = np.bincount(group, wx * q, minlength=n_groups)
-        mx_sum = np.bincount(group, model_w * x, minlength=n_groups)
-        mxx_sum = np.bincount(group, model_w * x * x, minlength=n_groups)
+    fitted = np.flatnonzero(count > 0)  # groups with readings, in order: one segment each
+    seg_start = np.concatenate([[0], np.cumsum(count[fitted])[:-1]]).astype(np.int64)
+    seg_end = seg_start + count[fitted].astype(np.int64)
+    per_block = max(_BLOCK_CELLS // len(cols), 1)
+    first = 0
+    while first < len(fitted):
+        # whole groups up to about per_block readings (at least one group)
+        last = max(int(np.searchsorted(seg_end, seg_start[first] + per_block, side="right")), first + 1)
+        lo, hi = seg_start[first], seg_end[last - 1]
+        gs = fitted[first:last]
+        starts = seg_start[first:last] - lo
+        local = np.repeat(np.arange(last - first), count[gs].astype(np.int64))
+        x = _family_x(family, u[lo:hi], log_u[lo:hi])
+        qb, mb, wb = q[lo:hi, None], model_w[lo:hi, None], w[lo:hi, None]
+        wx = wb * x
+        sx = _segment_sum(wx, starts)
+        sxx = _segment_sum(wx * x, starts)
+        sxy = _segment_sum(wx * qb, starts)
+        mxb = mb * x
+        mx_sum = _segment_sum(mxb, starts)
+        mxx_sum = _segment_sum(mxb * x, starts)
+        n_g, s0_g, sy_g, m0_g = count[gs, None], s0[gs, None], sy[gs, None], m0[gs, None]
         with np.errstate(invalid="ignore", divide="ignore"):
-            x_mean, y_mean = sx / s0, sy / s0
+            x_mean, y_mean = sx / s0_g, sy_g / s0_g
             spread = sxx - sx * x_mean
-            b = np.where(spread > 1e-12 * s0, (sxy - sx * y_mean) / spread, np.nan)  # no spread: one hour value
+            b = np.where(spread > 1e-12 * s0_g, (sxy - sx * y_mean) / spread, np.nan)  # no spread: one hour value
             a = y_mean - b * x_mean
-            z2 = (q - a[group] - b[group] * x) ** 2 * model_w
-            psi2 = np.bincount(group, np.minimum(z2, clip2), minlength=n_groups)
-            inside = np.bincount(group, z2 <= clip2, minlength=n_groups)
-            dof = count - m.n_params
-            scale2 = np.where(dof > 0, psi2 / np.where(dof > 0, dof, 1.0), np.nan) / (inside / count) ** 2
-            mx = mx_sum / m0
+            z2 = (qb - a[local] - b[local] * x) ** 2 * mb
+            c2 = clip2[lo:hi, None]
+            psi2 = _segment_sum(np.minimum(z2, c2), starts)
+            inside = _segment_sum((z2 <= c2).astype(float), starts)
+            dof = n_g - n_params
+            scale2 = np.where(dof > 0, psi2 / np.where(dof > 0, dof, 1.0), np.nan) / (inside / n_g) ** 2
+            mx = mx_sum / m0_g
             msxx = mxx_sum - mx_sum * mx
-            inv_sxx = np.where(msxx > 1e-12 * m0, 1.0 / msxx, np.nan)
-            var_a = scale2 * (1.0 / m0 + mx**2 * inv_sxx)  # NaN for a group without readings
+            inv_sxx = np.where(msxx > 1e-12 * m0_g, 1.0 / msxx, np.nan)
+            var_a = scale2 * (1.0 / m0_g + mx**2 * inv_sxx)
         values = {"a": a, "b": b, "var_a": var_a, "var_b": scale2 * inv_sxx, "cov_ab": -scale2 * mx * inv_sxx,
-                  "dof": dof, "scale": np.sqrt(scale2)}
+                  "dof": np.broadcast_to(dof, a.shape), "scale": np.sqrt(scale2)}
         for name, value in values.items():
-            out[name][rows, j] = value[rows]
-        deviance[rows, j] = psi2[rows]
+            out[name][np.ix_(gs, cols)] = value
+        deviance[np.ix_(gs, cols)] = psi2
+        first = last
+    # A group without readings (among those refitted) has no line: as the sums over nothing give.
+    empty = np.flatnonzero((count == 0) & (np.ones(n_groups, dtype=bool) if only is None else only))
+    if empty.size:
+        for name in ("a", "b", "var_a", "var_b", "cov_ab", "scale"):
+            out[name][np.ix_(empty, cols)] = np.nan
+        out["dof"][np.ix_(empty, cols)] = -n_params
+        deviance[np.ix_(empty, cols)] = 0.0
 
 
 def _best_family_huber(family, group, hours, q, sigma, out, deviance, hours_scale, offset, n_groups, settings):

@@ -1,0 +1,150 @@
+"""The engine's fitting numerics, made faster, give the figures of the plain code they replaced.
+
+The plain implementations are kept here, small and unoptimised, as the reference: each test runs the whole
+engine once with them patched in and once as it stands, and every output (results, interval fits, service
+intervals) must agree to 1e-9 relative. The plain code's own figures are checked against outside sources in
+tests/test_trend_wear_laws.py and its neighbours (statsmodels' WLS, scipy's distributions); here the
+reference is the project's earlier code, so only an exact rewrite can pass. Data: the invented demo plant and
+an invented fleet of mixed wear laws from benchmarks/calibration.py (all pumps and readings invented).
+"""
+
+import datetime as dt
+
+import numpy as np
+import pandas as pd
+import pytest
+
+from benchmarks.calibration import invented_fleet
+from fleet.services.analysis.frames import load_frames
+from fleet.trend import wear_laws
+from fleet.trend.engine import analyze_fleet
+from fleet.trend.settings import AnalysisSettings
+
+NOW = dt.datetime(2026, 12, 1, 12)
+
+
+def reference_family_members(family, group, hours, q, sigma, robust_w, clip, hours_scale, offset, n_groups, out,
+                        deviance, only=None):
+    """The family fit as it was: one member at a time, eight grouped sums each."""
+    rows = slice(None)
+    if only is not None:
+        keep = only[group]
+        group, hours, q, sigma, robust_w = group[keep], hours[keep], q[keep], sigma[keep], robust_w[keep]
+        rows = only
+    model_w = 1.0 / sigma**2
+    w = model_w * robust_w
+    count = np.bincount(group, minlength=n_groups).astype(float)
+    s0 = np.bincount(group, w, minlength=n_groups)
+    sy = np.bincount(group, w * q, minlength=n_groups)
+    m0 = np.bincount(group, model_w, minlength=n_groups)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        u = np.maximum((hours + offset[group]) / hours_scale[group], 0.0)
+        log_u = np.log(np.maximum(u, 1e-300))
+    clip2 = clip[group] ** 2
+    for j, m in enumerate(wear_laws.MEMBERS):
+        if m.law != family:
+            continue
+        # Raw sums are safe here: every family's x lies in [0, 1] over the readings.
+        x = np.exp(m.power * log_u) if family == "power" else wear_laws.run_in_x(u, m.tau, m.share)
+        wx = w * x
+        sx = np.bincount(group, wx, minlength=n_groups)
+        sxx = np.bincount(group, wx * x, minlength=n_groups)
+        sxy = np.bincount(group, wx * q, minlength=n_groups)
+        mx_sum = np.bincount(group, model_w * x, minlength=n_groups)
+        mxx_sum = np.bincount(group, model_w * x * x, minlength=n_groups)
+        with np.errstate(invalid="ignore", divide="ignore"):
+            x_mean, y_mean = sx / s0, sy / s0
+            spread = sxx - sx * x_mean
+            b = np.where(spread > 1e-12 * s0, (sxy - sx * y_mean) / spread, np.nan)  # no spread: one hour value
+            a = y_mean - b * x_mean
+            z2 = (q - a[group] - b[group] * x) ** 2 * model_w
+            psi2 = np.bincount(group, np.minimum(z2, clip2), minlength=n_groups)
+            inside = np.bincount(group, z2 <= clip2, minlength=n_groups)
+            dof = count - m.n_params
+            scale2 = np.where(dof > 0, psi2 / np.where(dof > 0, dof, 1.0), np.nan) / (inside / count) ** 2
+            mx = mx_sum / m0
+            msxx = mxx_sum - mx_sum * mx
+            inv_sxx = np.where(msxx > 1e-12 * m0, 1.0 / msxx, np.nan)
+            var_a = scale2 * (1.0 / m0 + mx**2 * inv_sxx)  # NaN for a group without readings
+        values = {"a": a, "b": b, "var_a": var_a, "var_b": scale2 * inv_sxx, "cov_ab": -scale2 * mx * inv_sxx,
+                  "dof": dof, "scale": np.sqrt(scale2)}
+        for name, value in values.items():
+            out[name][rows, j] = value[rows]
+        deviance[rows, j] = psi2[rows]
+
+
+
+REFERENCES = {
+    (wear_laws, "_fit_family_members"): reference_family_members,
+}
+
+
+def _with(monkeypatch, plain: bool, run):
+    """run() with the plain reference implementations patched in (plain=True) or the code as it stands."""
+    with monkeypatch.context() as patch:
+        if plain:
+            for (where, name), function in REFERENCES.items():
+                patch.setattr(where, name, function)
+        return run()
+
+
+def _same_frames(expected: pd.DataFrame, got: pd.DataFrame, what: str) -> None:
+    assert list(got.columns) == list(expected.columns), what
+    assert len(got) == len(expected), what
+    for column in expected.columns:
+        a, b = expected[column], got[column]
+        where = f"{what} {column}"
+        if pd.api.types.is_float_dtype(a) or pd.api.types.is_float_dtype(b):
+            x, y = a.to_numpy(dtype=float), b.to_numpy(dtype=float)
+            assert np.array_equal(np.isnan(x), np.isnan(y)), where
+            assert np.array_equal(np.isinf(x), np.isinf(y)), where
+            finite = np.isfinite(x)
+            np.testing.assert_allclose(y[finite], x[finite], rtol=1e-9, atol=1e-12, err_msg=where)
+        elif pd.api.types.is_datetime64_any_dtype(a):
+            assert a.equals(b), where
+        else:
+            assert [_plain(v) for v in a] == [_plain(v) for v in b], where
+
+
+def _plain(value):
+    if isinstance(value, dict):
+        return {k: _plain(v) for k, v in value.items()}
+    if value is None or value is pd.NaT or (isinstance(value, float) and np.isnan(value)):
+        return None
+    if isinstance(value, float | np.floating):
+        return pytest.approx(float(value), rel=1e-9, abs=1e-12)
+    return value
+
+
+def _same_analysis(expected, got) -> None:
+    _same_frames(expected.results, got.results, "results")
+    _same_frames(expected.fits, got.fits, "fits")
+    _same_frames(expected.intervals, got.intervals, "intervals")
+
+
+def test_the_demo_plant_gets_the_plain_codes_figures(demo_db, monkeypatch):
+    with demo_db.sessions() as session:
+        frames = load_frames(session, None, as_of=NOW)
+
+    def run():
+        return analyze_fleet(frames.pumps, frames.readings, frames.events, frames.samples, frames.flow_points,
+                             now=NOW)
+
+    plain, fast = _with(monkeypatch, True, run), _with(monkeypatch, False, run)
+    assert (plain.fits["slip_weight_run_in"] > 0).any()  # the families were fitted and weigh in
+    _same_analysis(plain, fast)
+
+
+@pytest.mark.parametrize("weighting", ["aicc", "held_back"])
+def test_a_fleet_of_mixed_wear_laws_gets_the_plain_codes_figures(monkeypatch, weighting):
+    pumps, readings, events, _truth = invented_fleet(seed=11, n=160)
+    now = readings["taken_at"].max() + pd.Timedelta(days=1)
+    settings = AnalysisSettings(law_weighting=weighting)
+
+    def run():
+        return analyze_fleet(pumps, readings, events, None, now=now, settings=settings)
+
+    plain, fast = _with(monkeypatch, True, run), _with(monkeypatch, False, run)
+    laws = set(plain.fits["slip_wear_law"].dropna())
+    assert {"power", "run_in"} <= laws  # both families decide some forecasts
+    _same_analysis(plain, fast)
