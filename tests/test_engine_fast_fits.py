@@ -74,8 +74,20 @@ def reference_family_members(family, group, hours, q, sigma, robust_w, clip, hou
 
 
 
+def reference_identifiable(group, hours, hours_scale, offset, n_groups):
+    """Which run-in members the readings identify, as it was: one count per member."""
+    ok = np.ones((n_groups, len(wear_laws.MEMBERS)), dtype=bool)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        u = (hours + offset[group]) / hours_scale[group]
+    for j, m in enumerate(wear_laws.MEMBERS):
+        if m.law == "run_in":
+            ok[:, j] = np.bincount(group, u <= wear_laws.RUN_IN_REACH * m.tau, minlength=n_groups) >= 2
+    return ok
+
+
 REFERENCES = {
     (wear_laws, "_fit_family_members"): reference_family_members,
+    (wear_laws, "run_in_identifiable"): reference_identifiable,
 }
 
 

@@ -373,13 +373,14 @@ def _best_family_huber(family, group, hours, q, sigma, out, deviance, hours_scal
 
 def run_in_identifiable(group, hours, hours_scale, offset, n_groups) -> np.ndarray:
     """Per group and member: False for a run-in member whose early part the readings do not show (the first
-    reading later than RUN_IN_REACH tau after the start, or fewer than two readings before then)."""
+    reading later than RUN_IN_REACH tau after the start, or fewer than two readings before then). The count is
+    taken once per time constant: the members of one tau share it."""
     ok = np.ones((n_groups, len(MEMBERS)), dtype=bool)
     with np.errstate(invalid="ignore", divide="ignore"):
         u = (hours + offset[group]) / hours_scale[group]
-    for j, m in enumerate(MEMBERS):
-        if m.law == "run_in":
-            ok[:, j] = np.bincount(group, u <= RUN_IN_REACH * m.tau, minlength=n_groups) >= 2
+    taus = np.array([m.tau if m.law == "run_in" else np.nan for m in MEMBERS])
+    for tau in dict.fromkeys(taus[np.isfinite(taus)]):
+        ok[:, taus == tau] = (np.bincount(group, u <= RUN_IN_REACH * tau, minlength=n_groups) >= 2)[:, None]
     return ok
 
 
