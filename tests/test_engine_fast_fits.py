@@ -13,6 +13,7 @@ import datetime as dt
 import numpy as np
 import pandas as pd
 import pytest
+from scipy import stats
 
 from benchmarks.calibration import invented_fleet
 from fleet.services.analysis.frames import load_frames
@@ -85,9 +86,73 @@ def reference_identifiable(group, hours, hours_scale, offset, n_groups):
     return ok
 
 
+def reference_centred_on(self, other, group, hours, value, sigma, settings) -> None:
+    """LawFits.centred_on as it was: one member at a time."""
+    n_groups = len(self)
+    count = np.bincount(group, minlength=n_groups).astype(float)
+    same = (np.isclose(other.hours_scale, self.hours_scale) & np.isclose(other.hours_offset, self.hours_offset)
+            & (count >= 4) & (np.nan_to_num(other.n_points) >= settings.min_points))
+    refuted_at = stats.f.ppf(0.99, 1, np.maximum(count - 2, 1))
+    centre_a, centre_b = self.a.copy(), self.b.copy()
+    w_all = 1.0 / np.asarray(sigma, dtype=float) ** 2
+    value_all = np.asarray(value, dtype=float)
+    hours_all = np.asarray(hours, dtype=float)
+    weighed = (self.weight > 0) & same[:, None]  # a member without weight moves no forecast
+    for j in np.flatnonzero(weighed.any(axis=0)):
+        m = wear_laws.MEMBERS[j]
+        at = weighed[group, j]  # the readings of the groups concerned only
+        g, h, q, w = group[at], hours_all[at], value_all[at], w_all[at]
+        x = wear_laws.member_x(m, h, other.hours_scale[g], other.hours_offset[g])
+        with np.errstate(invalid="ignore", over="ignore", divide="ignore"):
+            line = other.a[g, j] + other.b[g, j] * x
+            shape = np.exp(line) if m.log_space else line
+            ok = np.isfinite(shape)
+            k, robust = reference_through_origin(g, np.where(ok, shape, 0.0), q, np.where(ok, w, 0.0), n_groups,
+                                        settings.huber_k)
+            own = self.a[g, j] + self.b[g, j] * x
+            own = np.exp(own) if m.log_space else own
+            rw = w * robust
+            shared = np.bincount(g, np.nan_to_num(rw * (q - k[g] * shape) ** 2), minlength=n_groups)
+            alone = np.bincount(g, np.nan_to_num(rw * (q - own) ** 2), minlength=n_groups)
+            f_stat = (shared - alone) / (alone / np.maximum(count - 2, 1))
+            a = other.a[:, j] + np.log(k) if m.log_space else k * other.a[:, j]
+            b = other.b[:, j] if m.log_space else k * other.b[:, j]
+        use = weighed[:, j] & (k > 0) & np.isfinite(a) & np.isfinite(b) & ~(f_stat > refuted_at)
+        centre_a[:, j] = np.where(use, a, centre_a[:, j])
+        centre_b[:, j] = np.where(use, b, centre_b[:, j])
+    self.centre_a, self.centre_b = centre_a, centre_b
+
+
+def reference_through_origin(group, x, y, w, n_groups, huber_k: float) -> tuple[np.ndarray, np.ndarray]:
+    """The slope through the origin with Huber passes, as it was."""
+    robust = np.ones_like(y)
+    for _ in range(4):
+        sxx = np.bincount(group, w * robust * x * x, minlength=n_groups)
+        with np.errstate(invalid="ignore", divide="ignore"):
+            k = np.where(sxx > 0, np.bincount(group, w * robust * x * y, minlength=n_groups) / sxx, np.nan)
+            z = (y - k[group] * x) * np.sqrt(w)
+            u = np.abs(z) / reference_mad_scale(group, np.nan_to_num(z), n_groups)[group]
+            robust = np.where(u > huber_k, huber_k / u, 1.0)
+    return k, robust
+
+
+def reference_mad_scale(group, z, n_groups) -> np.ndarray:
+    """1.4826 x median |z| per group (never below 1) by one lexical sort, as it was."""
+    a = np.abs(z)
+    order = np.lexsort((a, group))
+    count = np.bincount(group, minlength=n_groups)
+    start = np.concatenate([[0], np.cumsum(count)[:-1]])
+    sorted_a = a[order]
+    has = count > 0
+    lo = sorted_a[np.where(has, start + (count - 1) // 2, 0)] if a.size else np.zeros(n_groups)
+    hi = sorted_a[np.where(has, start + count // 2, 0)] if a.size else np.zeros(n_groups)
+    return np.maximum(1.4826 * np.where(has, 0.5 * (lo + hi), 1.0), 1.0)
+
+
 REFERENCES = {
     (wear_laws, "_fit_family_members"): reference_family_members,
     (wear_laws, "run_in_identifiable"): reference_identifiable,
+    (wear_laws.LawFits, "centred_on"): reference_centred_on,
 }
 
 

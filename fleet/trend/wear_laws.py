@@ -77,6 +77,12 @@ MEMBERS = (
     *(Member(f"run_in_t{round(1000 * t):03d}_s{round(100 * sh):02d}", "run_in", False, 1.0, 4, t, sh)
       for t in RUN_IN_TAUS for sh in RUN_IN_SHARES),
 )
+# The members' properties as arrays, for work over many (group, member) pairs at once.
+_MEMBER_KIND = np.array([("power", "run_in").index(m.law) + 1 if m.law in ("power", "run_in") else 0 for m in MEMBERS])
+_MEMBER_LOG = np.array([m.log_space for m in MEMBERS])
+_MEMBER_POWER = np.array([m.power for m in MEMBERS])
+_MEMBER_TAU = np.array([m.tau for m in MEMBERS])
+_MEMBER_SHARE = np.array([m.share for m in MEMBERS])
 FAMILIES = ("power", "run_in")  # laws with many members, fitted in one weighted pass each
 FIELDS = ("a", "b", "var_a", "var_b", "cov_ab", "dof", "weight")
 CENTRE_FIELDS = ("centre_a", "centre_b")  # LawFits.centred_on
@@ -167,32 +173,24 @@ class LawFits:
                 & (count >= 4) & (np.nan_to_num(other.n_points) >= settings.min_points))
         refuted_at = stats.f.ppf(0.99, 1, np.maximum(count - 2, 1))
         centre_a, centre_b = self.a.copy(), self.b.copy()
-        w_all = 1.0 / np.asarray(sigma, dtype=float) ** 2
-        value_all = np.asarray(value, dtype=float)
-        hours_all = np.asarray(hours, dtype=float)
         weighed = (self.weight > 0) & same[:, None]  # a member without weight moves no forecast
-        for j in np.flatnonzero(weighed.any(axis=0)):
-            m = MEMBERS[j]
-            at = weighed[group, j]  # the readings of the groups concerned only
-            g, h, q, w = group[at], hours_all[at], value_all[at], w_all[at]
-            x = member_x(m, h, other.hours_scale[g], other.hours_offset[g])
-            with np.errstate(invalid="ignore", over="ignore", divide="ignore"):
-                line = other.a[g, j] + other.b[g, j] * x
-                shape = np.exp(line) if m.log_space else line
-                ok = np.isfinite(shape)
-                k, robust = _through_origin(g, np.where(ok, shape, 0.0), q, np.where(ok, w, 0.0), n_groups,
-                                            settings.huber_k)
-                own = self.a[g, j] + self.b[g, j] * x
-                own = np.exp(own) if m.log_space else own
-                rw = w * robust
-                shared = np.bincount(g, np.nan_to_num(rw * (q - k[g] * shape) ** 2), minlength=n_groups)
-                alone = np.bincount(g, np.nan_to_num(rw * (q - own) ** 2), minlength=n_groups)
-                f_stat = (shared - alone) / (alone / np.maximum(count - 2, 1))
-                a = other.a[:, j] + np.log(k) if m.log_space else k * other.a[:, j]
-                b = other.b[:, j] if m.log_space else k * other.b[:, j]
-            use = weighed[:, j] & (k > 0) & np.isfinite(a) & np.isfinite(b) & ~(f_stat > refuted_at)
-            centre_a[:, j] = np.where(use, a, centre_a[:, j])
-            centre_b[:, j] = np.where(use, b, centre_b[:, j])
+        pair_g, pair_j = np.nonzero(weighed)
+        # Every weighed (group, member) pair at once, each with its group's readings (in their own order), in
+        # parts of whole pairs that bound memory.
+        order = np.argsort(group, kind="stable")
+        first = (np.cumsum(count) - count).astype(np.int64)
+        rows = count[pair_g].astype(np.int64)
+        ends = np.cumsum(rows)
+        start = 0
+        while start < len(pair_g):
+            stop = max(int(np.searchsorted(ends, (ends[start - 1] if start else 0) + _PAIR_ROWS, side="right")),
+                       start + 1)
+            pg, pj = pair_g[start:stop], pair_j[start:stop]
+            a, b, use = _centred_lines(self, other, pg, pj, rows[start:stop], first, order, group, hours, value,
+                                       sigma, count, refuted_at, settings.huber_k)
+            centre_a[pg[use], pj[use]] = a[use]
+            centre_b[pg[use], pj[use]] = b[use]
+            start = stop
         self.centre_a, self.centre_b = centre_a, centre_b
 
     def to_columns(self, prefix: str) -> dict[str, np.ndarray]:
@@ -226,6 +224,45 @@ class LawFits:
             hours_scale=col("hours_scale"),
             hours_offset=col("hours_offset"),
         )
+
+
+_PAIR_ROWS = 1 << 18  # readings x pairs worked on at once by LawFits.centred_on (bounds its memory)
+
+
+def _centred_lines(fits, other, pg, pj, rows, first, order, group, hours, value, sigma, count, refuted_at, huber_k):
+    """LawFits.centred_on for the pairs (group pg, member pj): the lines (a, b) on `other`'s shape at this trend's
+    level, and where they are used. Each pair takes its group's readings (`rows` of them, from `first` in the
+    group-sorted `order`)."""
+    n_pairs = len(pg)
+    pair = np.repeat(np.arange(n_pairs), rows)
+    within = np.arange(len(pair)) - np.repeat(np.cumsum(rows) - rows, rows)
+    at = order[first[pg][pair] + within]
+    g, j = group[at], pj[pair]
+    h = np.asarray(hours, dtype=float)[at]
+    q = np.asarray(value, dtype=float)[at]
+    w = 1.0 / np.asarray(sigma, dtype=float)[at] ** 2
+    kind, log = _MEMBER_KIND[j], _MEMBER_LOG[j]
+    x = h.copy()
+    with np.errstate(invalid="ignore", over="ignore", divide="ignore"):
+        u = np.maximum((h + other.hours_offset[g]) / other.hours_scale[g], 0.0)
+        power, run_in = kind == 1, kind == 2
+        x[power] = u[power] ** _MEMBER_POWER[j[power]]
+        x[run_in] = run_in_x(u[run_in], _MEMBER_TAU[j[run_in]], _MEMBER_SHARE[j[run_in]])
+        line = other.a[g, j] + other.b[g, j] * x
+        shape = np.where(log, np.exp(line), line)
+        ok = np.isfinite(shape)
+        k, robust = _through_origin(pair, np.where(ok, shape, 0.0), q, np.where(ok, w, 0.0), n_pairs, huber_k)
+        own = fits.a[g, j] + fits.b[g, j] * x
+        own = np.where(log, np.exp(own), own)
+        rw = w * robust
+        shared = np.bincount(pair, np.nan_to_num(rw * (q - k[pair] * shape) ** 2), minlength=n_pairs)
+        alone = np.bincount(pair, np.nan_to_num(rw * (q - own) ** 2), minlength=n_pairs)
+        f_stat = (shared - alone) / (alone / np.maximum(count[pg] - 2, 1))
+        pair_log = _MEMBER_LOG[pj]
+        a = np.where(pair_log, other.a[pg, pj] + np.log(k), k * other.a[pg, pj])
+        b = np.where(pair_log, other.b[pg, pj], k * other.b[pg, pj])
+    use = (k > 0) & np.isfinite(a) & np.isfinite(b) & ~(f_stat > refuted_at[pg])
+    return a, b, use
 
 
 def member_x(member: Member, hours, hours_scale, hours_offset) -> np.ndarray:
@@ -400,16 +437,32 @@ def _through_origin(group, x, y, w, n_groups, huber_k: float) -> tuple[np.ndarra
 
 
 def _mad_scale(group, z, n_groups) -> np.ndarray:
-    """fleet.trend.robust.robust_scale (1.4826 x median |z| per group, never below 1) by one sort: called for
-    every weighed member on a few groups' readings, where a grouped median's fixed cost would dominate."""
+    """fleet.trend.robust.robust_scale (1.4826 x median |z| per group, never below 1) by one sort: called on the
+    readings of many (group, member) pairs, where a grouped median's fixed cost would dominate. Each group's
+    values sorted in a row of their own (padded), a far cheaper sort than one of every value by group; a lexical
+    sort where one group is so much longer than the rest that the rows would be mostly padding."""
     a = np.abs(z)
-    order = np.lexsort((a, group))
     count = np.bincount(group, minlength=n_groups)
-    start = np.concatenate([[0], np.cumsum(count)[:-1]])
-    sorted_a = a[order]
     has = count > 0
-    lo = sorted_a[np.where(has, start + (count - 1) // 2, 0)] if a.size else np.zeros(n_groups)
-    hi = sorted_a[np.where(has, start + count // 2, 0)] if a.size else np.zeros(n_groups)
+    width = int(count.max(initial=0))
+    if not a.size:
+        return np.ones(n_groups)
+    if width * n_groups <= 4 * a.size + 4096:
+        if np.any(group[1:] < group[:-1]):
+            by_group = np.argsort(group, kind="stable")
+            group, a = group[by_group], a[by_group]
+        block = np.full((n_groups, width), np.inf)
+        block[group, np.arange(a.size) - (np.cumsum(count) - count)[group]] = a
+        block.sort(axis=1)
+        picks = np.arange(n_groups)
+        lo = block[picks, np.maximum((count - 1) // 2, 0)]
+        hi = block[picks, np.minimum(count // 2, width - 1)]
+    else:
+        order = np.lexsort((a, group))
+        start = np.concatenate([[0], np.cumsum(count)[:-1]])
+        sorted_a = a[order]
+        lo = sorted_a[np.where(has, start + (count - 1) // 2, 0)]
+        hi = sorted_a[np.where(has, start + count // 2, 0)]
     return np.maximum(1.4826 * np.where(has, 0.5 * (lo + hi), 1.0), 1.0)
 
 
