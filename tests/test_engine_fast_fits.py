@@ -17,7 +17,7 @@ from scipy import stats
 
 from benchmarks.calibration import invented_fleet
 from fleet.services.analysis.frames import load_frames
-from fleet.trend import wear_laws
+from fleet.trend import linear, robust, wear_laws
 from fleet.trend.engine import analyze_fleet
 from fleet.trend.settings import AnalysisSettings
 
@@ -149,10 +149,89 @@ def reference_mad_scale(group, z, n_groups) -> np.ndarray:
     return np.maximum(1.4826 * np.where(has, 0.5 * (lo + hi), 1.0), 1.0)
 
 
+def reference_reweighted(
+    group: np.ndarray,
+    x: np.ndarray,
+    y: np.ndarray,
+    variance_of_fit,
+    n_groups: int,
+    settings,
+    log_scale: bool = False,
+    n_params: int = 2,
+    robust_w: np.ndarray | None = None,
+):
+    """The robust line fit as it was: every group refitted in every pass."""
+    k = settings.huber_k
+    variance = variance_of_fit(None)
+    model_w = 1.0 / variance
+    bias = 0.5 if log_scale else 0.0
+    y_used = y + bias * variance
+    fixed = robust_w is not None
+    a, b, x_mean = linear.grouped_line(group, x, y_used, model_w * (robust_w if fixed else 1.0), n_groups)
+    if not fixed:
+        robust_w = np.ones_like(y)
+        previous = None
+        done = np.zeros(n_groups, dtype=bool)
+        for _ in range(settings.irls_iterations):
+            fitted = a[group] + b[group] * x
+            ok = np.isfinite(fitted)
+            if previous is not None:
+                # A group whose fitted values moved less than the tolerance keeps its line from now on; each
+                # group's result depends on its own readings only, whichever pumps are analysed with it.
+                moved = ok & (np.abs(fitted - previous) > settings.irls_tolerance * (1.0 + np.abs(fitted)))
+                done |= np.bincount(group, moved, minlength=n_groups) == 0
+                if done.all():
+                    break
+            previous = fitted
+            variance = np.where(ok, variance_of_fit(np.where(ok, fitted, y)), variance)
+            model_w = 1.0 / variance
+            y_used = y + bias * variance
+            z = (y_used - np.where(ok, fitted, y_used)) * np.sqrt(model_w)
+            u = np.abs(z) / robust.robust_scale(group, z, n_groups)[group]
+            with np.errstate(divide="ignore", invalid="ignore"):
+                robust_w = np.where(u > k, k / u, 1.0)
+            a_new, b_new, x_mean_new = linear.grouped_line(group, x, y_used, model_w * robust_w, n_groups)
+            a, b, x_mean = np.where(done, a, a_new), np.where(done, b, b_new), np.where(done, x_mean, x_mean_new)
+        # The error model and the Huber weights at the final line, so that they depend on it alone (not on
+        # whether the passes stopped because this group or the last one had converged).
+        fitted = a[group] + b[group] * x
+        ok = np.isfinite(fitted)
+        variance = np.where(ok, variance_of_fit(np.where(ok, fitted, y)), variance)
+        model_w = 1.0 / variance
+        y_used = y + bias * variance
+        z = (y_used - np.where(ok, fitted, y_used)) * np.sqrt(model_w)
+        u = np.abs(z) / robust.robust_scale(group, z, n_groups)[group]
+        with np.errstate(divide="ignore", invalid="ignore"):
+            robust_w = np.where(u > k, k / u, 1.0)
+
+    z = (y_used - (a[group] + b[group] * x)) * np.sqrt(model_w)
+    clip_at = k * robust.robust_scale(group, z, n_groups)[group]
+    count = np.bincount(group, minlength=n_groups).astype(float)
+    psi2 = np.bincount(group, np.minimum(z * z, clip_at * clip_at), minlength=n_groups)
+    inside = np.bincount(group, (np.abs(z) <= clip_at).astype(float), minlength=n_groups)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        dof = count - float(n_params)
+        scale2 = np.where(dof > 0, psi2 / np.where(dof > 0, dof, 1.0), np.nan) / (inside / count) ** 2
+    v_aa, v_ab, v_bb = linear.inverse_design(group, x, model_w, n_groups)
+    line = linear.LineFit(
+        a=a,
+        b=b,
+        var_a=scale2 * v_aa,
+        var_b=scale2 * v_bb,
+        cov_ab=scale2 * v_ab,
+        scale=np.sqrt(scale2),
+        dof=dof,
+        n_points=count,
+        x_mean=x_mean,
+    )
+    return line, robust_w
+
+
 REFERENCES = {
     (wear_laws, "_fit_family_members"): reference_family_members,
     (wear_laws, "run_in_identifiable"): reference_identifiable,
     (wear_laws.LawFits, "centred_on"): reference_centred_on,
+    (wear_laws, "fit_reweighted"): reference_reweighted,
 }
 
 
