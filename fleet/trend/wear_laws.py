@@ -83,6 +83,12 @@ _MEMBER_LOG = np.array([m.log_space for m in MEMBERS])
 _MEMBER_POWER = np.array([m.power for m in MEMBERS])
 _MEMBER_TAU = np.array([m.tau for m in MEMBERS])
 _MEMBER_SHARE = np.array([m.share for m in MEMBERS])
+_FAMILY_POWERS = np.array([m.power for m in MEMBERS if m.law == "power"])
+_RUN_IN_TAUS = np.array(RUN_IN_TAUS)
+_RUN_IN_SHARES = np.array(RUN_IN_SHARES)
+# _family_x lays the run-in members out time constant by time constant, as MEMBERS holds them
+assert [(m.tau, m.share) for m in MEMBERS if m.law == "run_in"] == [
+    (t, sh) for t in RUN_IN_TAUS for sh in RUN_IN_SHARES]
 FAMILIES = ("power", "run_in")  # laws with many members, fitted in one weighted pass each
 FIELDS = ("a", "b", "var_a", "var_b", "cov_ab", "dof", "weight")
 CENTRE_FIELDS = ("centre_a", "centre_b")  # LawFits.centred_on
@@ -295,18 +301,13 @@ _BLOCK_CELLS = 1 << 16
 def _family_x(family: str, u: np.ndarray, log_u: np.ndarray) -> np.ndarray:
     """x of every member of a family at u (readings x the family's members, in MEMBERS' order), each column as
     member_x gives it: the power law's u^p by one outer product of ln u, the run-in law's saturating part once
-    per time constant for all its shares."""
-    members = [m for m in MEMBERS if m.law == family]
+    per time constant for all its shares (MEMBERS holds them time constant by time constant)."""
     if family == "power":
-        return np.exp(log_u[:, None] * np.array([m.power for m in members])[None, :])
-    x = np.empty((len(u), len(members)))
-    shares = np.array([m.share for m in members])
-    taus = np.array([m.tau for m in members])
-    for tau in dict.fromkeys(taus):
-        cols = taus == tau
-        rise = -np.expm1(-u / tau)
-        x[:, cols] = rise[:, None] * shares[cols][None, :] / -np.expm1(-1.0 / tau) + u[:, None] * (1.0 - shares[cols])
-    return x
+        return np.exp(log_u[:, None] * _FAMILY_POWERS[None, :])
+    rise = -np.expm1(-u[:, None] / _RUN_IN_TAUS[None, :])
+    x = (rise[:, :, None] * _RUN_IN_SHARES[None, None, :] / -np.expm1(-1.0 / _RUN_IN_TAUS)[None, :, None]
+         + u[:, None, None] * (1.0 - _RUN_IN_SHARES)[None, None, :])
+    return x.reshape(len(u), -1)
 
 
 def _segment_sum(values: np.ndarray, starts: np.ndarray) -> np.ndarray:
@@ -329,7 +330,9 @@ def _fit_family_members(family, group, hours, q, sigma, robust_w, clip, hours_sc
     order = order[np.argsort(group[order], kind="stable")]
     group, hours, q, sigma, robust_w = group[order], hours[order], q[order], sigma[order], robust_w[order]
     cols = np.flatnonzero([m.law == family for m in MEMBERS])
-    n_params = np.array([MEMBERS[j].n_params for j in cols], dtype=float)
+    assert np.array_equal(cols, np.arange(cols[0], cols[-1] + 1))  # a family's members stand together
+    cols = slice(cols[0], cols[-1] + 1)
+    n_params = np.array([m.n_params for m in MEMBERS[cols]], dtype=float)
     model_w = 1.0 / sigma**2
     w = model_w * robust_w
     count = np.bincount(group, minlength=n_groups).astype(float)
@@ -343,7 +346,7 @@ def _fit_family_members(family, group, hours, q, sigma, robust_w, clip, hours_sc
     fitted = np.flatnonzero(count > 0)  # groups with readings, in order: one segment each
     seg_start = np.concatenate([[0], np.cumsum(count[fitted])[:-1]]).astype(np.int64)
     seg_end = seg_start + count[fitted].astype(np.int64)
-    per_block = max(_BLOCK_CELLS // len(cols), 1)
+    per_block = max(_BLOCK_CELLS // len(n_params), 1)
     first = 0
     while first < len(fitted):
         # whole groups up to about per_block readings (at least one group)
@@ -354,23 +357,28 @@ def _fit_family_members(family, group, hours, q, sigma, robust_w, clip, hours_sc
         local = np.repeat(np.arange(last - first), count[gs].astype(np.int64))
         x = _family_x(family, u[lo:hi], log_u[lo:hi])
         qb, mb, wb = q[lo:hi, None], model_w[lo:hi, None], w[lo:hi, None]
+        # two scratch blocks, reused for every product (fresh ones would cost more than the arithmetic)
         wx = wb * x
+        part = np.multiply(wx, x)
         sx = _segment_sum(wx, starts)
-        sxx = _segment_sum(wx * x, starts)
-        sxy = _segment_sum(wx * qb, starts)
-        mxb = mb * x
+        sxx = _segment_sum(part, starts)
+        sxy = _segment_sum(np.multiply(wx, qb, out=part), starts)
+        mxb = np.multiply(mb, x, out=wx)
         mx_sum = _segment_sum(mxb, starts)
-        mxx_sum = _segment_sum(mxb * x, starts)
+        mxx_sum = _segment_sum(np.multiply(mxb, x, out=part), starts)
         n_g, s0_g, sy_g, m0_g = count[gs, None], s0[gs, None], sy[gs, None], m0[gs, None]
         with np.errstate(invalid="ignore", divide="ignore"):
             x_mean, y_mean = sx / s0_g, sy_g / s0_g
             spread = sxx - sx * x_mean
             b = np.where(spread > 1e-12 * s0_g, (sxy - sx * y_mean) / spread, np.nan)  # no spread: one hour value
             a = y_mean - b * x_mean
-            z2 = (qb - a[local] - b[local] * x) ** 2 * mb
+            # z2 = (q - a - b x)^2 m, in the scratch blocks
+            bx = np.multiply(np.take(b, local, axis=0, out=wx), x, out=wx)
+            z2 = np.subtract(np.subtract(qb, np.take(a, local, axis=0, out=part), out=part), bx, out=part)
+            np.multiply(np.square(z2, out=z2), mb, out=z2)
             c2 = clip2[lo:hi, None]
-            psi2 = _segment_sum(np.minimum(z2, c2), starts)
-            inside = _segment_sum((z2 <= c2).astype(float), starts)
+            inside = _segment_sum(np.less_equal(z2, c2, out=wx), starts)
+            psi2 = _segment_sum(np.minimum(z2, c2, out=z2), starts)
             dof = n_g - n_params
             scale2 = np.where(dof > 0, psi2 / np.where(dof > 0, dof, 1.0), np.nan) / (inside / n_g) ** 2
             mx = mx_sum / m0_g
@@ -380,16 +388,16 @@ def _fit_family_members(family, group, hours, q, sigma, robust_w, clip, hours_sc
         values = {"a": a, "b": b, "var_a": var_a, "var_b": scale2 * inv_sxx, "cov_ab": -scale2 * mx * inv_sxx,
                   "dof": np.broadcast_to(dof, a.shape), "scale": np.sqrt(scale2)}
         for name, value in values.items():
-            out[name][np.ix_(gs, cols)] = value
-        deviance[np.ix_(gs, cols)] = psi2
+            out[name][gs, cols] = value
+        deviance[gs, cols] = psi2
         first = last
     # A group without readings (among those refitted) has no line: as the sums over nothing give.
     empty = np.flatnonzero((count == 0) & (np.ones(n_groups, dtype=bool) if only is None else only))
     if empty.size:
         for name in ("a", "b", "var_a", "var_b", "cov_ab", "scale"):
-            out[name][np.ix_(empty, cols)] = np.nan
-        out["dof"][np.ix_(empty, cols)] = -n_params
-        deviance[np.ix_(empty, cols)] = 0.0
+            out[name][empty, cols] = np.nan
+        out["dof"][empty, cols] = -n_params
+        deviance[empty, cols] = 0.0
 
 
 def _best_family_huber(family, group, hours, q, sigma, out, deviance, hours_scale, offset, n_groups, settings):
