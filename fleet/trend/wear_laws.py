@@ -252,7 +252,9 @@ def _centred_lines(fits, other, pg, pj, rows, first, order, group, hours, value,
     with np.errstate(invalid="ignore", over="ignore", divide="ignore"):
         u = np.maximum((h + other.hours_offset[g]) / other.hours_scale[g], 0.0)
         power, run_in = kind == 1, kind == 2
-        x[power] = u[power] ** _MEMBER_POWER[j[power]]
+        for exponent in np.unique(_MEMBER_POWER[j[power]]):  # a scalar exponent, as member_x: numpy takes
+            of_exponent = power & (_MEMBER_POWER[j] == exponent)  # u ** 2 and u ** 0.5 by other routes than pow
+            x[of_exponent] = u[of_exponent] ** float(exponent)
         x[run_in] = run_in_x(u[run_in], _MEMBER_TAU[j[run_in]], _MEMBER_SHARE[j[run_in]])
         line = other.a[g, j] + other.b[g, j] * x
         shape = np.where(log, np.exp(line), line)
@@ -310,9 +312,12 @@ def _family_x(family: str, u: np.ndarray, log_u: np.ndarray) -> np.ndarray:
     return x.reshape(len(u), -1)
 
 
-def _segment_sum(values: np.ndarray, starts: np.ndarray) -> np.ndarray:
-    """Sums of the rows of `values` (readings x columns) between consecutive `starts` (non-empty segments)."""
-    return np.add.reduceat(values, starts, axis=0)
+def _segment_sum(values: np.ndarray, edges: list[tuple[int, int]]) -> np.ndarray:
+    """Sums of the rows of `values` (readings x columns) over each segment (start, end) of `edges`. One reduce
+    along the rows per segment adds row after row, in the readings' order, as np.bincount does: the sums are the
+    per-member code's to the last bit (np.add.reduceat would add pairwise, which differs in the last bits, and a
+    fit's line can turn such a difference into a thousand times more)."""
+    return np.stack([np.add.reduce(values[start:end], axis=0) for start, end in edges])
 
 
 def _fit_family_members(family, group, hours, q, sigma, robust_w, clip, hours_scale, offset, n_groups, out,
@@ -353,19 +358,19 @@ def _fit_family_members(family, group, hours, q, sigma, robust_w, clip, hours_sc
         last = max(int(np.searchsorted(seg_end, seg_start[first] + per_block, side="right")), first + 1)
         lo, hi = seg_start[first], seg_end[last - 1]
         gs = fitted[first:last]
-        starts = seg_start[first:last] - lo
+        edges = list(zip((seg_start[first:last] - lo).tolist(), (seg_end[first:last] - lo).tolist(), strict=True))
         local = np.repeat(np.arange(last - first), count[gs].astype(np.int64))
         x = _family_x(family, u[lo:hi], log_u[lo:hi])
         qb, mb, wb = q[lo:hi, None], model_w[lo:hi, None], w[lo:hi, None]
         # two scratch blocks, reused for every product (fresh ones would cost more than the arithmetic)
         wx = wb * x
         part = np.multiply(wx, x)
-        sx = _segment_sum(wx, starts)
-        sxx = _segment_sum(part, starts)
-        sxy = _segment_sum(np.multiply(wx, qb, out=part), starts)
+        sx = _segment_sum(wx, edges)
+        sxx = _segment_sum(part, edges)
+        sxy = _segment_sum(np.multiply(wx, qb, out=part), edges)
         mxb = np.multiply(mb, x, out=wx)
-        mx_sum = _segment_sum(mxb, starts)
-        mxx_sum = _segment_sum(np.multiply(mxb, x, out=part), starts)
+        mx_sum = _segment_sum(mxb, edges)
+        mxx_sum = _segment_sum(np.multiply(mxb, x, out=part), edges)
         n_g, s0_g, sy_g, m0_g = count[gs, None], s0[gs, None], sy[gs, None], m0[gs, None]
         with np.errstate(invalid="ignore", divide="ignore"):
             x_mean, y_mean = sx / s0_g, sy_g / s0_g
@@ -377,8 +382,8 @@ def _fit_family_members(family, group, hours, q, sigma, robust_w, clip, hours_sc
             z2 = np.subtract(np.subtract(qb, np.take(a, local, axis=0, out=part), out=part), bx, out=part)
             np.multiply(np.square(z2, out=z2), mb, out=z2)
             c2 = clip2[lo:hi, None]
-            inside = _segment_sum(np.less_equal(z2, c2, out=wx), starts)
-            psi2 = _segment_sum(np.minimum(z2, c2, out=z2), starts)
+            inside = _segment_sum(np.less_equal(z2, c2, out=wx), edges)
+            psi2 = _segment_sum(np.minimum(z2, c2, out=z2), edges)
             dof = n_g - n_params
             scale2 = np.where(dof > 0, psi2 / np.where(dof > 0, dof, 1.0), np.nan) / (inside / n_g) ** 2
             mx = mx_sum / m0_g
