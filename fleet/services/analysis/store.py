@@ -1,11 +1,13 @@
-"""Keep an analysis: each pump's figures, its service lives, its kind's fleet life figures, and the service order.
+"""Keep an analysis: each pump's figures, its service lives, its kind's fleet life figures, and its service order key.
 
 Runs inside a write unit. A pump's figures are stored only when computed from data at least as new as those already
-stored (a slow analysis never overwrites a newer one). The fleet life figures (the Weibull of each pump kind) are
-refitted from the stored service lives whenever a stored pump of that kind changes what they are computed from (its
-service lives, age or planning horizon), and each pump of the kind then gets its prior figures again: this needs
-intervals, not readings, so it stays cheap. Each stored pump's forecast is also
-kept in the forecast record when it moved (fleet.services.analysis.snapshots states the rule).
+stored (a slow analysis never overwrites a newer one). A store writes its own pumps' rows and nothing else of the
+list: the rank shown and each pump's prior figures are derived when read (fleet.services.analysis.read_figures)
+from the order keys and the kinds' stored fleet life figures. A kind's fleet life figures (its Weibull) are
+refitted from the stored service lives only when those change (an overhaul, a replacement, a pump changing kind);
+when only a pump's age or planning horizon moved, the kind's expected overhauls in the horizon (a sum over its
+pumps) take the difference of that pump's share. Each stored pump's forecast is also kept in the forecast record
+when it moved (fleet.services.analysis.snapshots states the rule).
 """
 
 from dataclasses import dataclass
@@ -13,7 +15,7 @@ from datetime import datetime
 
 import numpy as np
 import pandas as pd
-from sqlalchemy import bindparam, delete, func, insert, select, update
+from sqlalchemy import delete, insert, select, update
 from sqlalchemy.orm import Session
 
 from fleet.db.models import AnalysisResult, FleetPrior, IntervalTrend, Pump, ServiceLife, StatusChange
@@ -23,29 +25,25 @@ from fleet.services.analysis.snapshots import keep_forecasts
 from fleet.services.mail.outbox import queue_alerts
 from fleet.trend.engine import prior_figures, results_to_records
 from fleet.trend.settings import AnalysisSettings
-from fleet.trend.status import service_order_keys, service_rank
-from fleet.trend.weibull import fit_fleet_priors
+from fleet.trend.status import service_order_keys
+from fleet.trend.weibull import conditional_failure_probability, fit_fleet_priors
 
-# The fields of the JSON contract (`fleet analyze --json`), each stored in its own column.
+# The fields of the JSON contract (`fleet analyze --json`).
 CONTRACT_FIELDS = (
     "pump", "status", "reasons", "eta_v_ref", "eta_v_decline_per_1000h", "drain_pct_ref", "hours_to_limit",
     "hours_to_limit_low", "hours_to_limit_high", "limit_date", "governing_limit", "prior_hours_to_overhaul",
     "energy_cost_per_year",
 )
-COLUMNS = CONTRACT_FIELDS[1:]  # 'pump' is the serial, kept on the pump row
-# Further figures kept in their own columns: the service order's (also in detail), and the prior figures with
-# what they are computed from (fleet.trend.engine.prior_figures; the prior columns only, since a refit of the
-# kind rewrites them without touching detail).
+# The prior figures: derived when read (fleet.services.analysis.read_figures), neither a column nor in detail.
+DERIVED = ("prior_hours_to_overhaul", "prior_b10_hours")
+# The contract's fields kept in their own columns ('pump' is the serial, kept on the pump row).
+COLUMNS = tuple(f for f in CONTRACT_FIELDS[1:] if f not in DERIVED)
+# Further figures kept in their own columns: the service order's (also in detail), and what the prior figures are
+# computed from (fleet.trend.engine.prior_figures).
 ORDER_COLUMNS = ("past_margin", "limit_date_low")
-PRIOR_COLUMNS = ("prior_b10_hours", "age_hours", "planning_horizon_hours")
-NOT_IN_DETAIL = (*COLUMNS, "pump_id", "rank", "prior_b10_hours", "planning_horizon_hours")
-# A stored prior figure is rewritten when a refit moves it by more than this (relative). Far inside the promise
-# that stored figures match a full analysis to 1 part in 10,000, and compared with the stored value, so small
-# moves never add up unseen.
-PRIOR_TOLERANCE = 1e-6
+PRIOR_COLUMNS = ("age_hours", "planning_horizon_hours")
+NOT_IN_DETAIL = (*COLUMNS, *DERIVED, "pump_id", "rank", "planning_horizon_hours")
 _IN_CHUNK = 5000  # ids per IN (...) list
-# Up to this many stored pumps are placed in the order one by one (place_in_order); more are re-ranked whole.
-PLACED_ONE_BY_ONE = 50
 
 
 @dataclass
@@ -62,62 +60,78 @@ class RefreshSummary:
         return f"analysis refreshed for the {scope}: {counts or 'no pumps'}"
 
 
+@dataclass
+class _Stored:
+    """What is stored of one pump's analysis before this store: what its kind's figures read, and its status."""
+    version: int
+    basis: tuple  # (kind, age_hours, planning_horizon_hours)
+    status: str | None
+    reasons: list
+
+
 def _chunks(ids: list) -> list[list]:
     return [ids[i:i + _IN_CHUNK] for i in range(0, len(ids), _IN_CHUNK)] or [[]]
 
 
 def store(session: Session, computed: Computed, settings: AnalysisSettings | None = None) -> RefreshSummary:
-    """Store ``computed`` where it is not older than what is stored; refit the kinds whose fleet life figures it
-    changes; place its pumps in the service order."""
+    """Store ``computed`` where it is not older than what is stored; bring the fleet life figures of the kinds
+    it changes up to date; key its pumps' places in the service order."""
     settings = settings or AnalysisSettings()
     results = computed.results
     ids = [int(p) for p in results.index]
-    stored, basis_before, placed = {}, {}, {}
-    for part in _chunks(ids):
-        for pump_id, version, kind, age, horizon, rank, key in session.execute(
-                select(AnalysisResult.pump_id, AnalysisResult.data_version, AnalysisResult.detail["kind"].as_string(),
-                       AnalysisResult.age_hours, AnalysisResult.planning_horizon_hours, AnalysisResult.rank,
-                       AnalysisResult.order_key)
-                .where(AnalysisResult.pump_id.in_(part))):
-            stored[pump_id], basis_before[pump_id], placed[pump_id] = version, (kind, age, horizon), (rank, key)
-    existing = {p for part in _chunks(ids) for p in session.scalars(select(Pump.id).where(Pump.id.in_(part)))}
-    keep = [p for p in ids if p in existing and computed.versions.get(p, 0) >= stored.get(p, -1)]
+    existing, before = set(), {}
+    for part in _chunks(ids):  # one read: which pumps still exist, and what is stored of them
+        for pump_id, version, kind, age, horizon, status, reasons in session.execute(
+                select(Pump.id, AnalysisResult.data_version, AnalysisResult.detail["kind"].as_string(),
+                       AnalysisResult.age_hours, AnalysisResult.planning_horizon_hours, AnalysisResult.status,
+                       AnalysisResult.reasons)
+                .outerjoin(AnalysisResult, AnalysisResult.pump_id == Pump.id).where(Pump.id.in_(part))):
+            existing.add(pump_id)
+            if version is not None:
+                before[pump_id] = _Stored(version, (kind, age, horizon), status, reasons)
+    keep = [p for p in ids if p in existing and computed.versions.get(p, 0) >= getattr(before.get(p), "version", -1)]
     kept = results.loc[keep]
     records = results_to_records(kept)
     lives = computed.lives[computed.lives["pump_id"].isin(keep)]
-    kinds = _kinds_moved(session, records, lives, basis_before)
-    kinds |= _with_stored_priors(session, records, kinds)
-    changes = _record_changes(session, records, computed.computed_at)
+    refit, lives_moved = _kinds_to_refit(session, records, lives, before)
+    priors = stored_priors(session)
+    known = set() if priors is None else set(priors.index)
+    refit |= {r["kind"] for r in records if r.get("kind") and r["kind"] not in known}  # none stored yet
+    if computed.full:
+        refit |= set(kept["kind"].dropna()) | known
+    changes = _record_changes(session, records, computed.computed_at,
+                              {p: (s.status, s.reasons) for p, s in before.items()})
     alerts = queue_alerts(session, changes)  # in this transaction: stored with the analysis they follow from
     for part in _chunks(keep):
         session.execute(delete(AnalysisResult).where(AnalysisResult.pump_id.in_(part)))
-        session.execute(delete(ServiceLife).where(ServiceLife.pump_id.in_(part)))
         session.execute(delete(IntervalTrend).where(IntervalTrend.pump_id.in_(part)))
-    _insert_results(session, records, computed, placed)
+    for part in _chunks(sorted(lives_moved)):
+        session.execute(delete(ServiceLife).where(ServiceLife.pump_id.in_(part)))
+    _insert_results(session, records, computed)
     _insert_trends(session, computed.trends[computed.trends["pump_id"].isin(keep)], computed.computed_at)
     keep_forecasts(session, records, computed.computed_at)
-    if len(lives):
+    moved_lives = lives[lives["pump_id"].isin(lives_moved)]
+    if len(moved_lives):
         session.execute(insert(ServiceLife), [
             {"pump_id": int(p), "interval_no": int(n), "entry_hours": float(e), "life_hours": float(h),
              "failed": bool(f)}
-            for p, n, e, h, f in zip(lives["pump_id"], lives["interval_no"], lives["entry_hours"],
-                                     lives["life_hours"], lives["failed"], strict=True)])
-    if computed.full:
-        kinds |= set(kept["kind"].dropna()) | set(session.scalars(select(FleetPrior.kind)))
-    refit_kinds(session, kinds, computed.computed_at, settings)
-    if computed.full or len(records) > PLACED_ONE_BY_ONE or not place_in_order(session, records):
-        rerank(session)
+            for p, n, e, h, f in zip(moved_lives["pump_id"], moved_lives["interval_no"], moved_lives["entry_hours"],
+                                     moved_lives["life_hours"], moved_lives["failed"], strict=True)])
+    refit |= _shift_expected_overhauls(session, records, before, refit, priors)
+    refit_kinds(session, refit, computed.computed_at, settings)
+    if computed.full or session.scalar(select(AnalysisResult.pump_id).where(AnalysisResult.order_key.is_(None))
+                                       .limit(1)) is not None:
+        rerank(session)  # rows stored before keys existed (an indexed look-up finds none once keyed)
     by_status = kept["status"].value_counts().to_dict()
     return RefreshSummary(len(records), {str(k): int(v) for k, v in by_status.items()}, computed.full,
                           computed.computed_at, alerts)
 
 
-def _kinds_moved(session: Session, records: list[dict], lives: pd.DataFrame,
-                 basis_before: dict[int, tuple]) -> set[str]:
-    """The pump kinds whose fleet life figures the records change: those of a pump whose service lives, kind, age
-    or planning horizon differ from what is stored (before and after, when its kind changed). A kind's Weibull
-    is fitted from its service lives and its expected overhauls summed from its pumps' ages and horizons, so
-    with none of these changed its stored figures, and its pumps' prior figures, stay exact as they are."""
+def _kinds_to_refit(session: Session, records: list[dict], lives: pd.DataFrame,
+                    before: dict[int, _Stored]) -> tuple[set[str], set[int]]:
+    """The pump kinds whose Weibull the records change, and the pumps whose stored service lives differ from
+    their new ones. A kind's Weibull is fitted from its pumps' service lives, so it changes when a pump's lives
+    change (both its kinds, before and after, count) or a pump changes kind; an age or horizon alone does not."""
     ids = [record["pump_id"] for record in records]
     stored_lives: dict[int, list] = {}
     for part in _chunks(ids):
@@ -130,53 +144,74 @@ def _kinds_moved(session: Session, records: list[dict], lives: pd.DataFrame,
                           lives["failed"], strict=True), key=lambda r: r[1]):
         new_lives.setdefault(int(row[0]), []).append((int(row[0]), int(row[1]), float(row[2]), float(row[3]),
                                                      bool(row[4])))
-    kinds = set()
+    kinds, moved = set(), set()
     for record in records:
         pump_id = record["pump_id"]
-        before = basis_before.get(pump_id)
-        after = (record.get("kind"), record.get("age_hours"), record.get("planning_horizon_hours"))
-        if before != after or stored_lives.get(pump_id, []) != new_lives.get(pump_id, []):
-            kinds |= {k for k in (before[0] if before else None, after[0]) if k}
-    return kinds
+        kind_before = before[pump_id].basis[0] if pump_id in before else None
+        lives_moved = stored_lives.get(pump_id, []) != new_lives.get(pump_id, [])
+        if lives_moved:
+            moved.add(pump_id)
+        if lives_moved or (pump_id in before and kind_before != record.get("kind")):
+            kinds |= {k for k in (kind_before, record.get("kind")) if k}
+    return kinds, moved
 
 
-def _with_stored_priors(session: Session, records: list[dict], refitted: set[str]) -> set[str]:
-    """Give the records of kinds not refitted their prior figures from their kind's stored fleet life figures as
-    they are now, under the store's lock: the engine read them earlier, and another store may have refitted the
-    kind since. Returns the kinds that have no stored figures yet (to be fitted)."""
-    rest = [r for r in records if r.get("kind") and r["kind"] not in refitted]
-    if not rest:
+def _shift_expected_overhauls(session: Session, records: list[dict], before: dict[int, _Stored], refit: set[str],
+                              priors: pd.DataFrame | None) -> set[str]:
+    """Move each fitted kind not refitted by the change in its pumps' shares of its expected overhauls in the
+    horizon (the kind's figure is the sum over its stored pumps of P(overhaul within the pump's horizon | its
+    age), fleet.trend.weibull.expected_overhauls): new share less old, in one update of the kind's row. Returns
+    the kinds where a share or the sum is unknown (no age, say), which are recomputed whole instead."""
+    if priors is None:
         return set()
-    priors = stored_priors(session)
-    known = set() if priors is None else set(priors.index)
-    missing = {r["kind"] for r in rest if r["kind"] not in known}
-    rest = [r for r in rest if r["kind"] in known]
-    if rest:
-        def number(value):
-            return np.nan if value is None else float(value)
+    rows = [(r["kind"], before.get(r["pump_id"]), r.get("age_hours"), r.get("planning_horizon_hours"))
+            for r in records if r.get("kind") and r["kind"] not in refit and r["kind"] in priors.index]
+    if not rows:
+        return set()
+    kinds = np.array([kind for kind, *_ in rows], dtype=object)
+    fit = priors.reindex(kinds)
+    beta, alpha = fit["beta"].to_numpy(float), fit["alpha"].to_numpy(float)
+    fitted = np.isfinite(beta) & np.isfinite(alpha)  # a kind without a fit has no expected overhauls to move
 
-        hours, b10, _ = prior_figures([r["kind"] for r in rest], [number(r.get("age_hours")) for r in rest],
-                                      [number(r.get("planning_horizon_hours")) for r in rest], priors)
-        for record, h, b in zip(rest, hours, b10, strict=True):
-            record["prior_hours_to_overhaul"], record["prior_b10_hours"] = json_ready(h), json_ready(b)
-    return missing
+    def shares(ages, horizons):
+        return conditional_failure_probability(_floats(ages), _floats(horizons), beta, alpha)
+
+    new = shares([age for *_, age, _ in rows], [horizon for *_, horizon in rows])
+    had = np.array([stored is not None for _, stored, _, _ in rows])
+    old = np.where(had, shares([s.basis[1] if s else 0.0 for _, s, _, _ in rows],
+                               [s.basis[2] if s else 0.0 for _, s, _, _ in rows]), 0.0)
+    whole = set()
+    for kind in sorted(set(kinds[fitted])):
+        sum_before = float(priors.at[kind, "expected_overhauls_in_horizon"]) if \
+            "expected_overhauls_in_horizon" in priors.columns else np.nan
+        step = float(np.sum(new[kinds == kind] - old[kinds == kind]))  # NaN when any share is unknown
+        if not (np.isfinite(sum_before) and np.isfinite(step)):
+            whole.add(kind)
+        elif step != 0.0:
+            detail = session.execute(select(FleetPrior.detail).where(FleetPrior.kind == kind)).scalar_one()
+            session.execute(update(FleetPrior).where(FleetPrior.kind == kind).values(
+                detail={**detail, "expected_overhauls_in_horizon": sum_before + step}))
+    return whole
 
 
-def _insert_results(session: Session, records: list[dict], computed: Computed,
-                    placed: dict[int, tuple[int, bytes | None]]) -> None:
-    """Insert the records; each keeps its pump's former place in the order (rank and key) until placed anew
-    (a pump new to the list: rank 0, no key)."""
+def _floats(values) -> np.ndarray:
+    return np.array([np.nan if v is None else float(v) for v in values], dtype=float)
+
+
+def _insert_results(session: Session, records: list[dict], computed: Computed) -> None:
+    """Insert the records, each with its place in the service order (fleet.trend.status.service_order_keys)."""
+    if not records:
+        return
+    keys = service_order_keys(pd.DataFrame(records))
     rows = []
-    for record in records:
+    for record, key in zip(records, keys, strict=True):
         detail = {k: v for k, v in record.items() if k not in NOT_IN_DETAIL}
-        rank, key = placed.get(record["pump_id"], (0, None))
         rows.append({
-            "pump_id": record["pump_id"], "computed_at": computed.computed_at, "rank": rank, "order_key": key,
+            "pump_id": record["pump_id"], "computed_at": computed.computed_at, "order_key": key,
             "detail": json_ready(detail), "data_version": computed.versions.get(record["pump_id"], 0),
             **{k: record.get(k) for k in (*COLUMNS, *ORDER_COLUMNS, *PRIOR_COLUMNS)},
         })
-    if rows:
-        session.execute(insert(AnalysisResult), rows)
+    session.execute(insert(AnalysisResult), rows)
 
 
 def _insert_trends(session: Session, trends: pd.DataFrame, computed_at: datetime) -> None:
@@ -189,14 +224,16 @@ def _insert_trends(session: Session, trends: pd.DataFrame, computed_at: datetime
                                               trends["fit"], strict=True)])
 
 
-def _record_changes(session: Session, records: list[dict], computed_at: datetime) -> list[StatusChange]:
-    """Append a StatusChange for every pump whose status or reasons differ from its stored analysis; returns
-    them."""
-    ids = [record["pump_id"] for record in records]
-    previous = {}
-    for part in _chunks(ids):
-        statement = select(AnalysisResult.pump_id, AnalysisResult.status, AnalysisResult.reasons)
-        previous.update({p: (s, r) for p, s, r in session.execute(statement.where(AnalysisResult.pump_id.in_(part)))})
+def _record_changes(session: Session, records: list[dict], computed_at: datetime,
+                    previous: dict[int, tuple] | None = None) -> list[StatusChange]:
+    """Append a StatusChange for every pump whose status or reasons differ from its stored analysis
+    (``previous``: pump id -> (status, reasons) stored, when the caller read them already); returns them."""
+    if previous is None:
+        previous = {}
+        for part in _chunks([record["pump_id"] for record in records]):
+            statement = select(AnalysisResult.pump_id, AnalysisResult.status, AnalysisResult.reasons)
+            previous.update({p: (s, r) for p, s, r in
+                             session.execute(statement.where(AnalysisResult.pump_id.in_(part)))})
     added = []
     for record in records:
         before_status, before_reasons = previous.get(record["pump_id"], (None, []))
@@ -230,11 +267,11 @@ def _reason_keys(reasons) -> set[str]:
 
 
 def refit_kinds(session: Session, kinds, now: datetime, settings: AnalysisSettings) -> None:
-    """Fit the fleet life figures of ``kinds`` again from the stored service lives, store them, and give every
-    stored analysis of those kinds its prior figures from them.
+    """Fit the fleet life figures of ``kinds`` again from the stored service lives, with their expected overhauls
+    in the horizon summed over their stored pumps' ages and horizons, and store them.
 
     Reads plain columns only (the service lives, and each stored pump's age and planning horizon in running
-    hours) and rewrites the two prior columns of the pumps whose figures moved: no JSON read or written.
+    hours) and writes the kinds' fleet_prior rows only: each pump's prior figures follow from them when read.
     """
     kinds = sorted(k for k in kinds if k)
     if not kinds:
@@ -248,19 +285,11 @@ def refit_kinds(session: Session, kinds, now: datetime, settings: AnalysisSettin
         {"entry_hours": float, "life_hours": float, "failed": bool})
     priors = fit_fleet_priors(lives, kind_of, settings.min_weibull_failures)
     result = AnalysisResult.__table__
-    stored = _plain_rows(session, select(
-        result.c.pump_id, Pump.kind, result.c.age_hours, result.c.planning_horizon_hours,
-        result.c.prior_hours_to_overhaul, result.c.prior_b10_hours)
-        .join(Pump, Pump.id == result.c.pump_id).where(Pump.kind.in_(kinds)))
+    stored = _plain_rows(session, select(Pump.kind, result.c.age_hours, result.c.planning_horizon_hours)
+                         .join(Pump, Pump.id == result.c.pump_id).where(Pump.kind.in_(kinds)))
     if stored:
-        ids, kind, age, horizon, old_hours, old_b10 = (np.array(c, dtype=object) for c in zip(*stored, strict=True))
-        hours, b10, priors = prior_figures(kind, age.astype(float), horizon.astype(float), priors)
-        moved = _moved(hours, old_hours.astype(float)) | _moved(b10, old_b10.astype(float))
-        if moved.any():
-            session.execute(result.update().where(result.c.pump_id == bindparam("id")).values(
-                prior_hours_to_overhaul=bindparam("hours"), prior_b10_hours=bindparam("b10")), [
-                {"id": int(p), "hours": json_ready(h), "b10": json_ready(b)}
-                for p, h, b in zip(ids[moved], hours[moved], b10[moved], strict=True)])
+        kind, age, horizon = (np.array(c, dtype=object) for c in zip(*stored, strict=True))
+        _, _, priors = prior_figures(kind, age.astype(float), horizon.astype(float), priors)
     else:
         priors["expected_overhauls_in_horizon"] = np.nan
     session.execute(delete(FleetPrior).where(FleetPrior.kind.in_(kinds)))
@@ -280,72 +309,27 @@ def _plain_rows(session: Session, statement) -> list[tuple]:
         result.close()
 
 
-def _moved(new: np.ndarray, old: np.ndarray) -> np.ndarray:
-    with np.errstate(invalid="ignore", divide="ignore"):
-        relative = np.abs(new - old) / np.maximum(np.abs(old), 1e-9)
-    return (np.isnan(new) != np.isnan(old)) | np.nan_to_num(relative > PRIOR_TOLERANCE, nan=False).astype(bool)
-
-
 def rerank(session: Session) -> None:
-    """Order the whole stored service list again, and key every row (fleet.trend.status.service_order_keys).
+    """Key every stored row of the service list again (fleet.trend.status.service_order_keys): after a full
+    analysis, or when rows stored before keys existed have none.
 
     Reads only the figures the order uses (status, hours to limit, margin past the limit, lower-bound date, all
-    plain columns, and the pump's serial) and writes only the ranks and keys that moved.
+    plain columns, and the pump's serial) and writes only the keys that moved.
     """
     rows = session.execute(select(
-        AnalysisResult.pump_id, AnalysisResult.rank, AnalysisResult.order_key, AnalysisResult.status,
-        AnalysisResult.hours_to_limit, AnalysisResult.past_margin, AnalysisResult.limit_date_low, Pump.serial,
+        AnalysisResult.pump_id, AnalysisResult.order_key, AnalysisResult.status, AnalysisResult.hours_to_limit,
+        AnalysisResult.past_margin, AnalysisResult.limit_date_low, Pump.serial,
     ).join(Pump, Pump.id == AnalysisResult.pump_id)).all()
     if not rows:
         return
-    frame = pd.DataFrame(rows, columns=["pump_id", "rank", "order_key", "status", "hours_to_limit", "past_margin",
+    frame = pd.DataFrame(rows, columns=["pump_id", "order_key", "status", "hours_to_limit", "past_margin",
                                         "limit_date_low", "pump"]).set_index("pump_id")
     frame["past_margin"] = frame["past_margin"].astype(float)
     frame["hours_to_limit"] = frame["hours_to_limit"].astype(float)
     keys = service_order_keys(frame)
-    ranks = service_rank(frame).to_numpy()
-    moved = (ranks != frame["rank"].to_numpy()) | (keys != frame["order_key"].to_numpy())
+    moved = keys != frame["order_key"].to_numpy()
     if moved.any():
         session.execute(update(AnalysisResult), [
-            {"pump_id": int(pump_id), "rank": int(rank), "order_key": key}
-            for pump_id, rank, key in zip(frame.index[moved], ranks[moved], keys[moved], strict=True)])
+            {"pump_id": int(pump_id), "order_key": key}
+            for pump_id, key in zip(frame.index[moved], keys[moved], strict=True)])
     session.flush()
-
-
-def place_in_order(session: Session, records: list[dict]) -> bool:
-    """Give each newly stored pump its rank and key among the stored list, without reading the list: a pump's new
-    rank is one more than the number of smaller keys (an indexed count), and only the ranks between its old place
-    and its new one shift by one. False, with nothing changed, when the stored list is not a whole ranking
-    1..N with a key on every row (rows from before keys existed, or a pump deleted since, leave a row without a
-    key or a gap in the ranks), so the caller re-ranks it whole. Every store leaves the list whole.
-    """
-    result = AnalysisResult.__table__
-    new = [record["pump_id"] for record in records]
-    # Each check reads an index only (the list's rows carry their whole analysis: a scan would read it all).
-    unkeyed = set(session.scalars(select(result.c.pump_id).where(result.c.order_key.is_(None)).limit(len(new) + 1)))
-    if not unkeyed <= set(new):
-        return False
-    ranked = result.c.rank > 0  # a pump new to the list waits at rank 0 (_insert_results)
-    rows, distinct, lowest, top = session.execute(select(
-        func.count(), func.count(result.c.rank.distinct()), func.min(result.c.rank), func.max(result.c.rank))
-        .where(ranked)).one()
-    if not rows == distinct == (top or 0) or lowest not in (None, 1) or \
-            session.scalar(select(func.count()).select_from(result).where(~ranked)) != len(unkeyed):
-        return False
-    keys = service_order_keys(pd.DataFrame(records))
-    for pump_id, key in zip(new, keys, strict=True):
-        old = session.scalar(select(result.c.rank).where(result.c.pump_id == pump_id)
-                             .where(result.c.order_key.is_not(None)))
-        rank = 1 + session.scalar(select(func.count()).select_from(result)
-                                  .where(result.c.order_key < key, result.c.pump_id != pump_id))
-        if old is None:  # new to the list: everything from its place on moves down one
-            shift = (result.c.rank >= rank, 1)
-        elif rank < old:
-            shift = ((result.c.rank >= rank) & (result.c.rank < old), 1)
-        else:
-            shift = ((result.c.rank > old) & (result.c.rank <= rank), -1)
-        if old != rank:
-            session.execute(result.update().where(shift[0], result.c.pump_id != pump_id)
-                            .values(rank=result.c.rank + shift[1]))
-        session.execute(result.update().where(result.c.pump_id == pump_id).values(rank=rank, order_key=key))
-    return True

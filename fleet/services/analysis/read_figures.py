@@ -1,0 +1,69 @@
+"""Figures of a stored analysis derived when read rather than stored, so a store writes its own pumps' rows only.
+
+- The rank in the service list: 1 + the number of smaller order keys (fleet.trend.status.service_order_keys;
+  keys are unique, each ends with its pump's serial), which is service_rank's figure for the stored list. A row
+  without a key (stored before keys existed, until the next store keys the list) has no rank.
+- The prior figures (prior_hours_to_overhaul, prior_b10_hours): what the kind's stored fleet life figures
+  (fleet_prior) say of the pump at its stored age, by fleet.trend.engine.prior_figures, as a full analysis
+  computes them. A refit of a kind then rewrites one fleet_prior row, not the rows of its pumps.
+"""
+
+from collections.abc import Iterable
+
+import numpy as np
+from sqlalchemy import func, select
+from sqlalchemy.orm import Session
+
+from fleet.db.models import AnalysisResult
+from fleet.jsonvalues import json_ready
+from fleet.services.analysis.compute import stored_priors
+from fleet.trend.engine import prior_figures
+
+PRIOR_FIGURES = ("prior_hours_to_overhaul", "prior_b10_hours")
+# Up to this many pumps are ranked by an indexed count each; more by one pass over the keys in order.
+COUNTED_ONE_BY_ONE = 8
+
+
+def rank_table():
+    """(pump_id, rank) of every keyed stored analysis, as a subquery to join: one ordered pass over the key
+    index."""
+    result = AnalysisResult.__table__
+    return (select(result.c.pump_id, func.row_number().over(order_by=result.c.order_key).label("rank"))
+            .where(result.c.order_key.is_not(None)).subquery("service_rank"))
+
+
+def ranks(session: Session, pump_ids: Iterable[int] | None = None) -> dict[int, int]:
+    """The service-list rank of each of ``pump_ids`` (every stored analysis when None) that has a key."""
+    if pump_ids is not None:
+        pump_ids = [int(p) for p in pump_ids]
+        if len(pump_ids) <= COUNTED_ONE_BY_ONE:
+            return _counted(session, pump_ids)
+    table = rank_table()
+    statement = select(table.c.pump_id, table.c.rank)
+    found = dict(session.execute(statement).all())
+    return found if pump_ids is None else {p: found[p] for p in pump_ids if p in found}
+
+
+def _counted(session: Session, pump_ids: list[int]) -> dict[int, int]:
+    result = AnalysisResult.__table__
+    keys = dict(session.execute(select(result.c.pump_id, result.c.order_key)
+                                .where(result.c.pump_id.in_(pump_ids), result.c.order_key.is_not(None))).all())
+    return {pump_id: 1 + session.scalar(select(func.count()).select_from(result).where(result.c.order_key < key))
+            for pump_id, key in keys.items()}
+
+
+def prior_values(session: Session, kinds, ages, horizons, priors=False) -> list[dict]:
+    """Each pump's prior figures as JSON-ready values, from its kind, age and planning horizon (running hours).
+    ``priors``: the stored fleet life figures when the caller has them already (None: none stored)."""
+    if priors is False:
+        priors = stored_priors(session)
+    kinds = list(kinds)
+    if priors is None or not kinds:
+        return [dict.fromkeys(PRIOR_FIGURES) for _ in kinds]
+    hours, b10, _ = prior_figures(np.array(kinds, dtype=object), _numbers(ages), _numbers(horizons), priors)
+    return [{"prior_hours_to_overhaul": json_ready(h), "prior_b10_hours": json_ready(b)}
+            for h, b in zip(hours, b10, strict=True)]
+
+
+def _numbers(values) -> np.ndarray:
+    return np.array([np.nan if v is None else float(v) for v in values], dtype=float)
