@@ -6,7 +6,7 @@ from sqlalchemy import select
 from sqlalchemy.orm import Session
 
 from fleet.db.models import AnalysisResult, Pump
-from fleet.services.analysis.read_figures import prior_values, rank_table
+from fleet.services.analysis.read_figures import prior_values, ranks
 from fleet.services.analysis.store import CONTRACT_FIELDS
 
 
@@ -22,13 +22,13 @@ def pump_ids_for(session: Session, serials: Iterable[str]) -> list[int]:
 def analysis_records(session: Session, pump_ids=None) -> list[dict]:
     """Stored results, most urgent first, as JSON-ready dicts: the contract fields first, then the rest. The rank
     and the prior figures are derived as they are read (fleet.services.analysis.read_figures)."""
-    ranked = rank_table()
-    statement = (select(AnalysisResult, Pump.serial, Pump.kind, ranked.c.rank)
-                 .join(Pump, Pump.id == AnalysisResult.pump_id)
-                 .outerjoin(ranked, ranked.c.pump_id == AnalysisResult.pump_id))
+    statement = select(AnalysisResult, Pump.serial, Pump.kind).join(Pump, Pump.id == AnalysisResult.pump_id)
     if pump_ids is not None:
         statement = statement.where(AnalysisResult.pump_id.in_(list(pump_ids)))
-    rows = session.execute(statement.order_by(ranked.c.rank.nulls_last(), Pump.serial)).all()
+    found = session.execute(statement).all()
+    rank_of = ranks(session, None if pump_ids is None else [row.pump_id for row, *_ in found])
+    rows = sorted(((row, serial, kind, rank_of.get(row.pump_id)) for row, serial, kind in found),
+                  key=lambda r: (r[3] is None, r[3] or 0, r[1]))  # most urgent first; unkeyed rows last
     priors = prior_values(session, [kind for _, _, kind, _ in rows], [row.age_hours for row, *_ in rows],
                           [row.planning_horizon_hours for row, *_ in rows])
     records = []

@@ -3,11 +3,10 @@
 Runs inside a write unit. A pump's figures are stored only when computed from data at least as new as those already
 stored (a slow analysis never overwrites a newer one). A store writes its own pumps' rows and nothing else of the
 list: the rank shown and each pump's prior figures are derived when read (fleet.services.analysis.read_figures)
-from the order keys and the kinds' stored fleet life figures. A kind's fleet life figures (its Weibull) are
-refitted from the stored service lives only when those change (an overhaul, a replacement, a pump changing kind);
-when only a pump's age or planning horizon moved, the kind's expected overhauls in the horizon (a sum over its
-pumps) take the difference of that pump's share. Each stored pump's forecast is also kept in the forecast record
-when it moved (fleet.services.analysis.snapshots states the rule).
+from the order keys and the kinds' stored fleet life figures. A kind's fleet life figures (its Weibull and the
+overhauls it expects) are refitted from the stored service lives and ages when a stored pump of the kind changes
+them (_kinds_to_refit): one fleet_prior row is rewritten, no pump's row. Each stored pump's forecast is also kept
+in the forecast record when it moved (fleet.services.analysis.snapshots states the rule).
 """
 
 from dataclasses import dataclass
@@ -20,13 +19,13 @@ from sqlalchemy.orm import Session
 
 from fleet.db.models import AnalysisResult, FleetPrior, IntervalTrend, Pump, ServiceLife, StatusChange
 from fleet.jsonvalues import json_ready
-from fleet.services.analysis.compute import Computed, stored_priors
+from fleet.services.analysis.compute import Computed
 from fleet.services.analysis.snapshots import keep_forecasts
 from fleet.services.mail.outbox import queue_alerts
 from fleet.trend.engine import prior_figures, results_to_records
 from fleet.trend.settings import AnalysisSettings
 from fleet.trend.status import service_order_keys
-from fleet.trend.weibull import conditional_failure_probability, fit_fleet_priors
+from fleet.trend.weibull import fit_fleet_priors
 
 # The fields of the JSON contract (`fleet analyze --json`).
 CONTRACT_FIELDS = (
@@ -94,8 +93,7 @@ def store(session: Session, computed: Computed, settings: AnalysisSettings | Non
     records = results_to_records(kept)
     lives = computed.lives[computed.lives["pump_id"].isin(keep)]
     refit, lives_moved = _kinds_to_refit(session, records, lives, before)
-    priors = stored_priors(session)
-    known = set() if priors is None else set(priors.index)
+    known = set(session.scalars(select(FleetPrior.kind)))
     refit |= {r["kind"] for r in records if r.get("kind") and r["kind"] not in known}  # none stored yet
     if computed.full:
         refit |= set(kept["kind"].dropna()) | known
@@ -117,7 +115,6 @@ def store(session: Session, computed: Computed, settings: AnalysisSettings | Non
              "failed": bool(f)}
             for p, n, e, h, f in zip(moved_lives["pump_id"], moved_lives["interval_no"], moved_lives["entry_hours"],
                                      moved_lives["life_hours"], moved_lives["failed"], strict=True)])
-    refit |= _shift_expected_overhauls(session, records, before, refit, priors)
     refit_kinds(session, refit, computed.computed_at, settings)
     if computed.full or session.scalar(select(AnalysisResult.pump_id).where(AnalysisResult.order_key.is_(None))
                                        .limit(1)) is not None:
@@ -129,9 +126,12 @@ def store(session: Session, computed: Computed, settings: AnalysisSettings | Non
 
 def _kinds_to_refit(session: Session, records: list[dict], lives: pd.DataFrame,
                     before: dict[int, _Stored]) -> tuple[set[str], set[int]]:
-    """The pump kinds whose Weibull the records change, and the pumps whose stored service lives differ from
-    their new ones. A kind's Weibull is fitted from its pumps' service lives, so it changes when a pump's lives
-    change (both its kinds, before and after, count) or a pump changes kind; an age or horizon alone does not."""
+    """The pump kinds whose fleet life figures the records change, and the pumps whose stored service lives
+    differ from their new ones. A kind's Weibull is fitted from its pumps' service lives (the running interval's
+    among them, a suspension as long as the pump's age, so it moves with every reading), and its expected
+    overhauls in the horizon are summed over its pumps' ages and horizons: the kind (before and after, when a
+    pump changed kind) is refitted when any of these moved. Nothing else of a kind's figures is stored: its
+    pumps' prior figures are derived when read."""
     ids = [record["pump_id"] for record in records]
     stored_lives: dict[int, list] = {}
     for part in _chunks(ids):
@@ -151,51 +151,10 @@ def _kinds_to_refit(session: Session, records: list[dict], lives: pd.DataFrame,
         lives_moved = stored_lives.get(pump_id, []) != new_lives.get(pump_id, [])
         if lives_moved:
             moved.add(pump_id)
-        if lives_moved or (pump_id in before and kind_before != record.get("kind")):
+        basis = (record.get("kind"), record.get("age_hours"), record.get("planning_horizon_hours"))
+        if lives_moved or pump_id not in before or before[pump_id].basis != basis:
             kinds |= {k for k in (kind_before, record.get("kind")) if k}
     return kinds, moved
-
-
-def _shift_expected_overhauls(session: Session, records: list[dict], before: dict[int, _Stored], refit: set[str],
-                              priors: pd.DataFrame | None) -> set[str]:
-    """Move each fitted kind not refitted by the change in its pumps' shares of its expected overhauls in the
-    horizon (the kind's figure is the sum over its stored pumps of P(overhaul within the pump's horizon | its
-    age), fleet.trend.weibull.expected_overhauls): new share less old, in one update of the kind's row. Returns
-    the kinds where a share or the sum is unknown (no age, say), which are recomputed whole instead."""
-    if priors is None:
-        return set()
-    rows = [(r["kind"], before.get(r["pump_id"]), r.get("age_hours"), r.get("planning_horizon_hours"))
-            for r in records if r.get("kind") and r["kind"] not in refit and r["kind"] in priors.index]
-    if not rows:
-        return set()
-    kinds = np.array([kind for kind, *_ in rows], dtype=object)
-    fit = priors.reindex(kinds)
-    beta, alpha = fit["beta"].to_numpy(float), fit["alpha"].to_numpy(float)
-    fitted = np.isfinite(beta) & np.isfinite(alpha)  # a kind without a fit has no expected overhauls to move
-
-    def shares(ages, horizons):
-        return conditional_failure_probability(_floats(ages), _floats(horizons), beta, alpha)
-
-    new = shares([age for *_, age, _ in rows], [horizon for *_, horizon in rows])
-    had = np.array([stored is not None for _, stored, _, _ in rows])
-    old = np.where(had, shares([s.basis[1] if s else 0.0 for _, s, _, _ in rows],
-                               [s.basis[2] if s else 0.0 for _, s, _, _ in rows]), 0.0)
-    whole = set()
-    for kind in sorted(set(kinds[fitted])):
-        sum_before = float(priors.at[kind, "expected_overhauls_in_horizon"]) if \
-            "expected_overhauls_in_horizon" in priors.columns else np.nan
-        step = float(np.sum(new[kinds == kind] - old[kinds == kind]))  # NaN when any share is unknown
-        if not (np.isfinite(sum_before) and np.isfinite(step)):
-            whole.add(kind)
-        elif step != 0.0:
-            detail = session.execute(select(FleetPrior.detail).where(FleetPrior.kind == kind)).scalar_one()
-            session.execute(update(FleetPrior).where(FleetPrior.kind == kind).values(
-                detail={**detail, "expected_overhauls_in_horizon": sum_before + step}))
-    return whole
-
-
-def _floats(values) -> np.ndarray:
-    return np.array([np.nan if v is None else float(v) for v in values], dtype=float)
 
 
 def _insert_results(session: Session, records: list[dict], computed: Computed) -> None:
