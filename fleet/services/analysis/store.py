@@ -42,6 +42,7 @@ COLUMNS = tuple(f for f in CONTRACT_FIELDS[1:] if f not in DERIVED)
 # Further figures kept in their own columns: the service order's (also in detail), and what the prior figures are
 # computed from (fleet.trend.engine.prior_figures).
 ORDER_COLUMNS = ("past_margin", "limit_date_low")
+ORDER_FIELDS = ("pump", "status", "hours_to_limit", *ORDER_COLUMNS)  # what fleet.trend.status.service_order_keys reads
 PRIOR_COLUMNS = ("age_hours", "planning_horizon_hours")
 NOT_IN_DETAIL = (*COLUMNS, *DERIVED, "pump_id", "rank", "planning_horizon_hours")
 _IN_CHUNK = 5000  # ids per IN (...) list
@@ -231,7 +232,7 @@ def _insert_results(session: Session, records: list[dict], computed: Computed) -
     """Insert the records, each with its place in the service order (fleet.trend.status.service_order_keys)."""
     if not records:
         return
-    keys = service_order_keys(pd.DataFrame(records))
+    keys = order_keys(records)
     rows = []
     for record, key in zip(records, keys, strict=True):
         detail = {k: v for k, v in record.items() if k not in NOT_IN_DETAIL}
@@ -241,6 +242,12 @@ def _insert_results(session: Session, records: list[dict], computed: Computed) -
             **{k: record.get(k) for k in (*COLUMNS, *ORDER_COLUMNS, *PRIOR_COLUMNS)},
         })
     session.execute(insert(AnalysisResult), rows)
+
+
+def order_keys(records: list[dict]) -> np.ndarray:
+    """The records' service order keys, from the few fields the order reads (a frame of every field costs more
+    than the keys)."""
+    return service_order_keys(pd.DataFrame({name: [record.get(name) for record in records] for name in ORDER_FIELDS}))
 
 
 def _insert_trends(session: Session, trends: pd.DataFrame, computed_at: datetime) -> None:
@@ -309,13 +316,15 @@ def refit_kinds(session: Session, kinds, now: datetime, settings: AnalysisSettin
                         dtype=object)
     lives = pd.DataFrame(_plain_rows(session, select(
         ServiceLife.pump_id, ServiceLife.entry_hours, ServiceLife.life_hours, ServiceLife.failed)
-        .join(Pump, Pump.id == ServiceLife.pump_id).where(Pump.kind.in_(kinds))),
+        .join(Pump, Pump.id == ServiceLife.pump_id).where(Pump.kind.in_(kinds))
+        .order_by(ServiceLife.pump_id, ServiceLife.interval_no)),  # a fixed order: the same sums, the same fit
         columns=["pump_id", "entry_hours", "life_hours", "failed"]).astype(
         {"entry_hours": float, "life_hours": float, "failed": bool})
     priors = fit_fleet_priors(lives, kind_of, settings.min_weibull_failures)
     result = AnalysisResult.__table__
     stored = _plain_rows(session, select(Pump.kind, result.c.age_hours, result.c.planning_horizon_hours)
-                         .join(Pump, Pump.id == result.c.pump_id).where(Pump.kind.in_(kinds)))
+                         .join(Pump, Pump.id == result.c.pump_id).where(Pump.kind.in_(kinds))
+                         .order_by(result.c.pump_id))
     if stored:
         kind, age, horizon = (np.array(c, dtype=object) for c in zip(*stored, strict=True))
         _, _, priors = prior_figures(kind, age.astype(float), horizon.astype(float), priors)

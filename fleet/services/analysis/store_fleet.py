@@ -11,7 +11,6 @@ The stored rows are those store() would write for the same analysis (tests/test_
 
 from collections import Counter
 
-import pandas as pd
 from sqlalchemy import JSON, Text, bindparam, cast, delete, insert, select
 from sqlalchemy.orm import Session
 
@@ -26,13 +25,13 @@ from fleet.services.analysis.store import (
     PRIOR_COLUMNS,
     RefreshSummary,
     _record_changes,
+    order_keys,
     refit_kinds,
     rerank,
 )
 from fleet.services.mail.outbox import queue_alerts
 from fleet.trend.engine import apply_priors
 from fleet.trend.settings import AnalysisSettings
-from fleet.trend.status import service_order_keys
 
 # What a record takes from the fleet priors (fleet.trend.engine.apply_priors), filled in as its part is stored:
 # its planning horizon in running hours is stored (the prior figures themselves are derived when read).
@@ -107,7 +106,7 @@ def _insert_results(session: Session, records: list[dict], details: list[str], s
     if not records:
         return
     rows = []
-    keys = service_order_keys(pd.DataFrame(records))
+    keys = order_keys(records)
     for record, detail, key in zip(records, details, keys, strict=True):
         rows.append({
             "pump_id": record["pump_id"], "computed_at": spooled.computed_at, "order_key": key,
