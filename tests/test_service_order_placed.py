@@ -25,7 +25,7 @@ def _stored(demo_db) -> pd.DataFrame:
             .join(Pump, Pump.id == AnalysisResult.pump_id)).all()
     frame = pd.DataFrame(rows, columns=["pump_id", "order_key", "computed_at", "status", "hours_to_limit",
                                         "past_margin", "limit_date_low", "pump"]).set_index("pump_id")
-    return frame.astype({"hours_to_limit": float, "past_margin": float})
+    return frame.astype({"hours_to_limit": float, "past_margin": float}).sort_index()
 
 
 def _reference_ranks(frame: pd.DataFrame) -> dict[int, int]:
