@@ -4,8 +4,9 @@
   keys are unique, each ends with its pump's serial), which is service_rank's figure for the stored list. A row
   without a key (stored before keys existed, until the next store keys the list) has no rank.
 - The prior figures (prior_hours_to_overhaul, prior_b10_hours): what the kind's stored fleet life figures
-  (fleet_prior) say of the pump at its stored age, by fleet.trend.engine.prior_figures, as a full analysis
-  computes them. A refit of a kind then rewrites one fleet_prior row, not the rows of its pumps.
+  (fleet_prior) say of the pump at its stored age, as fleet.trend.engine.prior_figures computes them in a full
+  analysis (tests/test_write_invariant.py compares the two). A refit of a kind then rewrites one fleet_prior
+  row, not the rows of its pumps.
 """
 
 from collections.abc import Iterable
@@ -14,10 +15,9 @@ import numpy as np
 from sqlalchemy import func, select
 from sqlalchemy.orm import Session
 
-from fleet.db.models import AnalysisResult
+from fleet.db.models import AnalysisResult, FleetPrior
 from fleet.jsonvalues import json_ready
-from fleet.services.analysis.compute import stored_priors
-from fleet.trend.engine import prior_figures
+from fleet.trend.weibull import mean_residual_life
 
 PRIOR_FIGURES = ("prior_hours_to_overhaul", "prior_b10_hours")
 # Up to this many pumps are ranked by an indexed count each; more by one pass over the keys in order.
@@ -33,9 +33,13 @@ def ranks(session: Session, pump_ids: Iterable[int] | None = None) -> dict[int, 
         if len(pump_ids) <= COUNTED_ONE_BY_ONE:
             return _counted(session, pump_ids)
     result = AnalysisResult.__table__
-    ordered = session.scalars(select(result.c.pump_id).where(result.c.order_key.is_not(None))
-                              .order_by(result.c.order_key))
-    found = {pump_id: rank for rank, pump_id in enumerate(ordered, start=1)}
+    ordered = session.connection().execute(select(result.c.pump_id).where(result.c.order_key.is_not(None))
+                                           .order_by(result.c.order_key))
+    try:  # the driver's rows as they come (ids only): no per-row Row objects for 10,000 rows
+        rows = ordered.cursor.fetchall() if ordered.cursor is not None else []
+    finally:
+        ordered.close()
+    found = {pump_id: rank for rank, (pump_id,) in enumerate(rows, start=1)}
     return found if pump_ids is None else {p: found[p] for p in pump_ids if p in found}
 
 
@@ -47,15 +51,21 @@ def _counted(session: Session, pump_ids: list[int]) -> dict[int, int]:
             for pump_id, key in keys.items()}
 
 
-def prior_values(session: Session, kinds, ages, horizons, priors=False) -> list[dict]:
-    """Each pump's prior figures as JSON-ready values, from its kind, age and planning horizon (running hours).
-    ``priors``: the stored fleet life figures when the caller has them already (None: none stored)."""
-    if priors is False:
-        priors = stored_priors(session)
-    kinds = list(kinds)
-    if priors is None or not kinds:
-        return [dict.fromkeys(PRIOR_FIGURES) for _ in kinds]
-    hours, b10, _ = prior_figures(np.array(kinds, dtype=object), _numbers(ages), _numbers(horizons), priors)
+def prior_values(session: Session, kinds, ages) -> list[dict]:
+    """Each pump's prior figures as JSON-ready values, from its kind and age: the per-pump part of
+    fleet.trend.engine.prior_figures (the mean residual life at its age under its kind's Weibull, and the
+    kind's B10), on the few stored numbers of each kind's fit (a frame of them cost more than the figures)."""
+    kinds, ages = list(kinds), _numbers(ages)
+    fits = {kind: detail or {} for kind, detail in session.execute(select(FleetPrior.kind, FleetPrior.detail))}
+
+    def figure(kind, name):
+        value = fits.get(kind, {}).get(name)
+        return np.nan if value is None else float(value)
+
+    beta = np.array([figure(k, "beta") for k in kinds], dtype=float)
+    alpha = np.array([figure(k, "alpha") for k in kinds], dtype=float)
+    b10 = [figure(k, "b10_hours") for k in kinds]
+    hours = mean_residual_life(ages, beta, alpha) if kinds else []
     return [{"prior_hours_to_overhaul": json_ready(h), "prior_b10_hours": json_ready(b)}
             for h, b in zip(hours, b10, strict=True)]
 

@@ -29,8 +29,7 @@ def analysis_records(session: Session, pump_ids=None) -> list[dict]:
     rank_of = ranks(session, None if pump_ids is None else [row.pump_id for row, *_ in found])
     rows = sorted(((row, serial, kind, rank_of.get(row.pump_id)) for row, serial, kind in found),
                   key=lambda r: (r[3] is None, r[3] or 0, r[1]))  # most urgent first; unkeyed rows last
-    priors = prior_values(session, [kind for _, _, kind, _ in rows], [row.age_hours for row, *_ in rows],
-                          [row.planning_horizon_hours for row, *_ in rows])
+    priors = prior_values(session, [kind for _, _, kind, _ in rows], [row.age_hours for row, *_ in rows])
     records = []
     for (row, serial, _, rank), prior in zip(rows, priors, strict=True):
         record = {"pump": serial}

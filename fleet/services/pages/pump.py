@@ -103,8 +103,7 @@ def _headline(session: Session, pump_id: int) -> dict | None:
         return None
     detail = result.detail or {}
     derived = {"rank": ranks(session, [pump_id]).get(pump_id),  # derived when read (read_figures)
-               **prior_values(session, [session.get(Pump, pump_id).kind], [result.age_hours],
-                              [result.planning_horizon_hours])[0]}
+               **prior_values(session, [session.get(Pump, pump_id).kind], [result.age_hours])[0]}
     headline = {name: derived[name] if name in derived else getattr(result, name) for name in HEADLINE_FIELDS}
     headline.update({name: detail.get(name) for name in DETAIL_FIELDS})
     law = headline["wear_law"]

@@ -68,10 +68,15 @@ def service_list(session: Session, query: ListQuery) -> dict:
         .limit(query.page_size).offset((page - 1) * query.page_size)
     ).all()
     analysed = [(pump, result) for pump, result, *_ in rows if result is not None]
-    rank_of = ranks(session, [pump.id for pump, _ in analysed])
+    if order is SORTS["urgency"] and not (query.site or query.machine or query.kind or query.status):
+        # The whole list in key order, keyless rows last: each keyed row's rank is its place in it.
+        first = (page - 1) * query.page_size
+        rank_of = {pump.id: first + n for n, (pump, result, *_) in enumerate(rows, start=1)
+                   if result is not None and result.order_key is not None}
+    else:
+        rank_of = ranks(session, [pump.id for pump, _ in analysed])
     priors = dict(zip((pump.id for pump, _ in analysed), prior_values(
-        session, [pump.kind for pump, _ in analysed], [result.age_hours for _, result in analysed],
-        [result.planning_horizon_hours for _, result in analysed]), strict=True))
+        session, [pump.kind for pump, _ in analysed], [result.age_hours for _, result in analysed]), strict=True))
     pumps = [_row(pump, result, site, machine, position, rank_of.get(pump.id), priors.get(pump.id, {}))
              for pump, result, site, machine, position in rows]
     counts = dict(session.execute(select(AnalysisResult.status, func.count()).group_by(AnalysisResult.status)).all())
