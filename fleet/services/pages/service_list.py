@@ -22,13 +22,13 @@ CSV_COLUMNS = ("rank", "pump", "status", "site", "machine", "position", "kind", 
                "eta_v_decline_per_1000h", "drain_pct_ref", "hours_to_limit", "hours_to_limit_low",
                "hours_to_limit_high", "limit_date", "limit_date_low", "limit_date_high", "governing_limit",
                "confidence", "prior_hours_to_overhaul", "energy_cost_per_year", "last_reading_at", "cleanliness_code",
-               "reasons")
+               "reasons", "crossed_limit", "crossed_date")
 
 
 ROW_FIELDS = ("rank", "status", "reasons", "eta_v_ref", "eta_v_decline_per_1000h", "drain_pct_ref", "hours_to_limit",
               "hours_to_limit_low", "hours_to_limit_high", "limit_date", "governing_limit", "prior_hours_to_overhaul",
               "energy_cost_per_year", "limit_date_low", "limit_date_high", "confidence", "last_reading_at",
-              "cleanliness_code", "currency", "computed_at", "crossed_date")
+              "cleanliness_code", "currency", "computed_at", "crossed_limit", "crossed_date")
 
 
 @dataclass
@@ -121,6 +121,7 @@ def _row(pump: Pump, result: AnalysisResult | None, site, machine, position, ran
         "confidence": detail.get("confidence"), "last_reading_at": detail.get("last_reading_at"),
         "cleanliness_code": detail.get("cleanliness_code"), "currency": detail.get("currency"),
         "computed_at": result.computed_at.isoformat(timespec="seconds"), "crossed_date": detail.get("crossed_date"),
+        "crossed_limit": detail.get("crossed_limit"),
     })
     return row
 
