@@ -232,18 +232,21 @@ def analyze_fleet(
     limits = limit_flows_lpm(
         fit_pump["eta_v_limit"], fit_pump["drain_limit_pct"], fit_pump["rated_flow_lpm"], fit_pump["max_flow_lpm"]
     )
-    fits = pd.concat([fits, hours_to_limits(fits, limits, s)], axis=1)
     t = t_quantile(s.confidence, fits["slip_dof"].to_numpy(float))
     with np.errstate(invalid="ignore"):
-        fits["slip_b_significant"] = fits["slip_b"].to_numpy(float) > t * np.sqrt(fits["slip_var_b"].to_numpy(float))
+        significant = fits["slip_b"].to_numpy(float) > t * np.sqrt(fits["slip_var_b"].to_numpy(float))
     # The fits' rows are the referred readings' pump intervals in order (fit_degradation), so codes line up.
     pairs, group = pair_codes(referred["pump_id"].to_numpy(), referred["interval_no"].to_numpy())
     assert len(pairs) == len(fits)
     taken = referred["taken_at"].to_numpy()
-    fits["hours_per_day"] = interval_hours_per_day(group, taken, referred["hours"].to_numpy(float), len(fits), s)
-    fits["typical_pressure_bar"] = typical_pressure_bar(group, taken, referred["pressure_bar"].to_numpy(float),
-                                                        referred["flag"].isna().to_numpy(), len(fits),
-                                                        s.typical_window_days)
+    per_interval = pd.DataFrame({
+        "slip_b_significant": significant,
+        "hours_per_day": interval_hours_per_day(group, taken, referred["hours"].to_numpy(float), len(fits), s),
+        "typical_pressure_bar": typical_pressure_bar(group, taken, referred["pressure_bar"].to_numpy(float),
+                                                     referred["flag"].isna().to_numpy(), len(fits),
+                                                     s.typical_window_days),
+    }, index=fits.index)
+    fits = pd.concat([fits, hours_to_limits(fits, limits, s), per_interval], axis=1)  # joined once: a wide frame
 
     # One row per pump: its current interval.
     current_iv = intervals[intervals["is_current"]].set_index("pump_id").reindex(pump_tab.index)
