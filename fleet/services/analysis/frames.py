@@ -152,6 +152,9 @@ def attach_oil(readings: pd.DataFrame, history: pd.DataFrame) -> pd.DataFrame:
         return readings.assign(**{c: np.nan for c in oil_columns})
     left = readings.sort_values("taken_at", kind="stable")
     right = history[["pump_id", "installed_at", *oil_columns]].sort_values("installed_at", kind="stable")
+    pumps = np.unique(np.r_[left["pump_id"].to_numpy(np.int64), right["pump_id"].to_numpy(np.int64)])
+    if len(pumps) == 1:  # one pump (its analysis after a write, its page): a search, not a merge
+        return _attach_oil_of_one(left, right, oil_columns)
     placed = pd.merge_asof(left, right, left_on="taken_at", right_on="installed_at", by="pump_id",
                            direction="backward")
     first = right.drop_duplicates("pump_id", keep="first").set_index("pump_id")
@@ -159,6 +162,20 @@ def attach_oil(readings: pd.DataFrame, history: pd.DataFrame) -> pd.DataFrame:
         fallback = placed["pump_id"].map(first[column])
         placed[column] = placed[column].where(placed[column].notna(), fallback).astype(float)
     return placed.drop(columns=["installed_at"])
+
+
+def _attach_oil_of_one(left: pd.DataFrame, right: pd.DataFrame, oil_columns: list[str]) -> pd.DataFrame:
+    """attach_oil for the readings and stays of one pump, both in time order: each reading takes the latest
+    stay installed at or before it (as merge_asof backward), else, or where that stay's oil is unknown, the
+    first stay's."""
+    at = np.searchsorted(right["installed_at"].to_numpy(), left["taken_at"].to_numpy(), side="right") - 1
+    placed = left.reset_index(drop=True)
+    oil = {}
+    for column in oil_columns:
+        values = right[column].to_numpy(dtype=float)
+        found = np.where(at >= 0, values[np.maximum(at, 0)], np.nan)
+        oil[column] = np.where(np.isnan(found), values[0], found)
+    return pd.concat([placed, pd.DataFrame(oil, index=placed.index)], axis=1)
 
 
 def load_flow_points(session: Session, pump_ids=None) -> pd.DataFrame:
