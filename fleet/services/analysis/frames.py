@@ -90,9 +90,13 @@ def effective_limits(pumps: pd.DataFrame, defaults: pd.DataFrame) -> pd.DataFram
         by_kind = {kind: (stored[kind][name] if kind in stored and pd.notna(stored[kind][name])
                           else getattr(limits, name)) for kind, limits in DEFAULT_LIMITS.items()}
         override = out[name] if name in out else pd.Series(np.nan, index=out.index)
+        given = override.notna().to_numpy()
+        if given.all():  # every pump sets its own: nothing to fill (a Series.where costs as much as the rest)
+            continue
         # A list lookup per pump: Series.map would build a Series of the dict first, on every call.
         of_kind = pd.Series([by_kind.get(kind, np.nan) for kind in kinds], index=out.index)
-        out[name] = override.where(override.notna(), of_kind)
+        # None set: the kind's values, in the column's dtype (as where gives them).
+        out[name] = override.where(given, of_kind) if given.any() else of_kind.astype(override.dtype)
     # A variable piston pump without its own target, under a kind default that was never edited, wants the
     # cleaner code (common practice, no source).
     variable_piston = out["variable"].astype(bool) & out["kind"].isin(PISTON_KINDS)
@@ -229,14 +233,19 @@ def load_frames(session: Session, pump_ids=None, as_of=None) -> FleetFrames:
 
 def known_by(frames: FleetFrames, moment: pd.Timestamp) -> FleetFrames:
     readings = frames.readings[frames.readings["taken_at"] <= moment]
-    samples = frames.samples[frames.samples["sampled_at"] <= moment].copy()
-    pending = samples["reported_at"].isna() | (samples["reported_at"] > moment)
-    samples.loc[pending, ["reported_at", "code_4", "code_6", "code_14", "water_ppm", "viscosity_40"]] = np.nan
-    samples.loc[pending, "low_count"] = False
     return FleetFrames(
         pumps=frames.pumps,
         readings=readings,
         flow_points=frames.flow_points[frames.flow_points["reading_id"].isin(readings["reading_id"])],
         events=frames.events[frames.events["date"] <= moment],
-        samples=samples,
+        samples=samples_known_by(frames.samples, moment),
     )
+
+
+def samples_known_by(samples: pd.DataFrame, moment: pd.Timestamp) -> pd.DataFrame:
+    """The lab samples taken by ``moment``, with the results not reported by then blanked."""
+    samples = samples[samples["sampled_at"] <= moment].copy()
+    pending = samples["reported_at"].isna() | (samples["reported_at"] > moment)
+    samples.loc[pending, ["reported_at", "code_4", "code_6", "code_14", "water_ppm", "viscosity_40"]] = np.nan
+    samples.loc[pending, "low_count"] = False
+    return samples
