@@ -244,8 +244,11 @@ def known_by(frames: FleetFrames, moment: pd.Timestamp) -> FleetFrames:
 
 def samples_known_by(samples: pd.DataFrame, moment: pd.Timestamp) -> pd.DataFrame:
     """The lab samples taken by ``moment``, with the results not reported by then blanked."""
-    samples = samples[samples["sampled_at"] <= moment].copy()
+    samples = samples[samples["sampled_at"] <= moment]
     pending = samples["reported_at"].isna() | (samples["reported_at"] > moment)
+    if not pending.any():  # every result in: nothing to blank (the usual case for one machine's few samples)
+        return samples
+    samples = samples.copy()
     samples.loc[pending, ["reported_at", "code_4", "code_6", "code_14", "water_ppm", "viscosity_40"]] = np.nan
     samples.loc[pending, "low_count"] = False
     return samples
