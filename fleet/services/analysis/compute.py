@@ -60,6 +60,8 @@ def analyse(session: Session, pump_ids=None, now: datetime | None = None,
             settings: AnalysisSettings | None = None) -> FleetAnalysis:
     """Compute (without storing) the analysis of ``pump_ids`` (None: the fleet)."""
     now = now or utcnow()
+    pump_ids = None if pump_ids is None else list(pump_ids)
+    # One pump (the analysis after a write): its own few queries, not the fleet loader's machinery.
     frames = one_pump_frames(session, pump_ids[0], now) if pump_ids is not None and len(pump_ids) == 1 else None
     frames = frames or load_frames(session, pump_ids, as_of=now)
     priors = None if pump_ids is None else stored_priors(session)
