@@ -82,7 +82,9 @@ def installation_history(session: Session, pump_ids=None) -> pd.DataFrame:
 
 def effective_limits(pumps: pd.DataFrame, defaults: pd.DataFrame) -> pd.DataFrame:
     """Per-pump limits: the pump's override where set, else its kind's stored default, else the built-in one."""
-    stored = {row["kind"]: row for row in defaults.to_dict(orient="records")}
+    columns = list(defaults.columns)  # rows as plain dicts, without to_dict's per-cell boxing
+    stored = {row["kind"]: row for row in (dict(zip(columns, values, strict=True))
+                                           for values in zip(*(defaults[c].tolist() for c in columns), strict=True))}
     out = pumps.copy()
     kinds = out["kind"].tolist()
     for name in LIMIT_FIELDS:
@@ -99,11 +101,16 @@ def effective_limits(pumps: pd.DataFrame, defaults: pd.DataFrame) -> pd.DataFram
         out[name] = override.where(given, of_kind) if given.any() else of_kind.astype(override.dtype)
     # A variable piston pump without its own target, under a kind default that was never edited, wants the
     # cleaner code (common practice, no source).
-    variable_piston = out["variable"].astype(bool) & out["kind"].isin(PISTON_KINDS)
-    untouched = pumps.get("cleanliness_target", pd.Series(None, index=out.index)).isna()
-    default_target = out["kind"].map(lambda k: DEFAULT_LIMITS[k].cleanliness_target if k in DEFAULT_LIMITS else None)
-    plain = out["cleanliness_target"] == default_target
-    out.loc[variable_piston & untouched & plain, "cleanliness_target"] = VARIABLE_PISTON_TARGET
+    # (Plain lists: a handful of pandas steps here cost more than the rest for the one pump of a write.)
+    variable_piston = out["variable"].astype(bool).to_numpy() & np.array([k in PISTON_KINDS for k in kinds], bool)
+    untouched = (pumps["cleanliness_target"].isna().to_numpy() if "cleanliness_target" in pumps
+                 else np.ones(len(out), dtype=bool))
+    default_target = [DEFAULT_LIMITS[k].cleanliness_target if k in DEFAULT_LIMITS else None for k in kinds]
+    plain = np.array([isinstance(d, str) and t == d
+                      for t, d in zip(out["cleanliness_target"].tolist(), default_target, strict=True)], dtype=bool)
+    lift = variable_piston & untouched & plain
+    if lift.any():
+        out.loc[lift, "cleanliness_target"] = VARIABLE_PISTON_TARGET
     return out
 
 
