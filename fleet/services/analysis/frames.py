@@ -97,8 +97,10 @@ def effective_limits(pumps: pd.DataFrame, defaults: pd.DataFrame) -> pd.DataFram
             continue
         # A list lookup per pump: Series.map would build a Series of the dict first, on every call.
         of_kind = pd.Series([by_kind.get(kind, np.nan) for kind in kinds], index=out.index)
-        # None set: the kind's values, in the column's dtype (as where gives them).
-        out[name] = override.where(given, of_kind) if given.any() else of_kind.astype(override.dtype)
+        if not given.any() and override.dtype == object:  # none set (one pump's row): the kind's, as where gives
+            out[name] = of_kind.astype(object)
+        else:
+            out[name] = override.where(given, of_kind)
     # A variable piston pump without its own target, under a kind default that was never edited, wants the
     # cleaner code (common practice, no source).
     # (Plain lists: a handful of pandas steps here cost more than the rest for the one pump of a write.)
