@@ -52,7 +52,7 @@ def service_table(records: list[dict], width: int = 110) -> str:
     for record in records:
         limit = record.get("governing_limit")
         lines.append(
-            f"{record.get('rank', 0):>3}  {str(record['pump'])[:14]:<14} "
+            f"{record.get('rank') or '':>3}  {str(record['pump'])[:14]:<14} "
             f"{STATUS_LABELS.get(record['status'], record['status']):<11} "
             f"{efficiency(record.get('eta_v_ref')):>8} {percent_points(record.get('eta_v_decline_per_1000h')):>10} "
             f"{_num(record.get('drain_pct_ref'), '.1f'):>6} {_hours(record):<26} "

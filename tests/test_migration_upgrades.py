@@ -10,10 +10,15 @@ from sqlalchemy import MetaData, insert, select
 
 from fleet.db import migrate
 from fleet.db.engine import make_engine
+from fleet.services.analysis import analysis_records
 
 REVISIONS = [script.revision for script in
              reversed(list(ScriptDirectory.from_config(migrate.alembic_config()).walk_revisions()))]
 EARLIER = REVISIONS[:-1]
+# Columns a later revision drops, because their figures are derived when read from what stays (0013: the rank from
+# the order keys, the prior figures from the kinds' fits and each pump's age). Loaded with the demo's derived
+# figures; tests/test_migration_derived_rank.py checks they read the same after the upgrade.
+DROPPED = {"analysis_result": ("rank", "prior_hours_to_overhaul", "prior_b10_hours")}
 
 
 def test_the_revisions_form_one_line_from_the_first_to_the_newest():
@@ -40,15 +45,23 @@ def test_demo_data_at_an_earlier_revision_upgrades_to_the_newest_intact(revision
     engine = make_engine(empty_database_url)
     migrate.upgrade(engine, revision)
     at_revision = _reflect(engine)
+    with demo_db.sessions() as session:
+        by_serial = {r["pump"]: r for r in analysis_records(session)}
+        derived = {pump_id: by_serial[serial] for pump_id, serial in
+                   session.execute(select(source.tables["pump"].c.id, source.tables["pump"].c.serial))
+                   if serial in by_serial}
     kept: dict[str, list[str]] = {}
     with demo_db.engine.connect() as reader, engine.begin() as writer:
         for table in at_revision.sorted_tables:  # parents before children
-            columns = [c.name for c in table.columns]
+            dropped = [c.name for c in table.columns if c.name in DROPPED.get(table.name, ())]
+            columns = [c.name for c in table.columns if c.name not in dropped]
             missing = [c for c in columns if c not in source.tables[table.name].c]
             assert not missing, f"{table.name}.{missing} of revision {revision} is gone at head: teach this test"
-            rows = _rows(reader, source.tables[table.name], columns)
+            rows = [dict(zip(columns, row, strict=True)) for row in _rows(reader, source.tables[table.name], columns)]
+            for row in rows if dropped else ():
+                row.update({name: derived[row["pump_id"]][name] for name in dropped})
             if rows:
-                writer.execute(insert(table), [dict(zip(columns, row, strict=True)) for row in rows])
+                writer.execute(insert(table), rows)
             kept[table.name] = columns
     assert sum(1 for _ in kept) >= 10
 

@@ -45,6 +45,32 @@ def test_plan_page_chart_table_caution_and_twins(client):
     assert [r["pump"] for r in csv.DictReader(io.StringIO(text))] == [r["pump"] for r in data["pumps"]]
 
 
+def test_a_pump_past_its_limit_is_planned_at_its_crossing_not_its_last_reading(client, demo_db):
+    """The plan (page, JSON, CLI text) shows when a past-limit pump's trend crossed its limit, which limit it was
+    and the bounds, as the stored analysis estimated them; not its last reading's date (its limit_date)."""
+    from fleet.commands.jobs import plan_text
+
+    with demo_db.sessions() as session:
+        stored = {serial: detail for serial, status, detail in session.execute(
+            select(Pump.serial, AnalysisResult.status, AnalysisResult.detail).join(Pump)) if status == "past_limit"}
+    data = client.get("/plan.json").get_json()
+    past = [r for r in data["pumps"] if r["status"] == "past_limit"]
+    assert past and {r["pump"] for r in past} == set(stored)
+    html = client.get("/plan").get_data(as_text=True)
+    text = plan_text(data)
+    crossed = [r for r in past if r["crossed_date"]]
+    assert crossed  # the invented demo has pumps whose trend crossed a limit
+    for row in crossed:
+        detail = stored[row["pump"]]
+        assert (row["crossed_limit"], row["crossed_date"], row["crossed_date_low"], row["crossed_date_high"]) == (
+            detail["crossed_limit"], detail["crossed_date"], detail["crossed_date_low"], detail["crossed_date_high"])
+        assert row["crossed_date"] < row["limit_date"]  # before the last reading
+        assert f"crossed around {row['crossed_date']}" in html
+        assert f"crossed ~{row['crossed_date']} ({row['crossed_date_low']} - " in text
+    # Those that crossed longest ago come first.
+    assert [r["crossed_date_low"] for r in crossed] == sorted(r["crossed_date_low"] for r in crossed)
+
+
 def test_the_plan_csv_rounds_its_figures_and_names_its_windows(client):
     data = client.get("/plan.json?weeks=520").get_json()
     rows = list(csv.DictReader(io.StringIO(client.get("/plan.csv?weeks=520").get_data(as_text=True))))

@@ -13,8 +13,7 @@ _INK, _ACCENT, _PAST, _WINDOW = "#1e2529", "#24525e", "#8c2f1c", "rgba(63, 95, 5
 
 
 def timeline_figure(plan: dict) -> go.Figure:
-    rows = plan["pumps"]
-    labels = [r["pump"] for r in rows]
+    rows = [_as_drawn(r) for r in plan["pumps"]]
     bar_x, bar_y = [], []
     for r in rows:
         low = r["limit_date_low"] or r["limit_date"]
@@ -24,22 +23,29 @@ def timeline_figure(plan: dict) -> go.Figure:
     figure = go.Figure()
     figure.add_trace(go.Scatter(x=bar_x, y=bar_y, mode="lines", name="early to late bound",
                                 line={"color": _ACCENT, "width": 10}, hoverinfo="skip"))
-    figure.add_trace(go.Scatter(
-        x=[r["limit_date"] for r in rows], y=labels, mode="markers", name="expected limit date",
-        marker={"symbol": ["x" if r["status"] == "past_limit" else "diamond" for r in rows], "size": 12,
-                "color": [_PAST if r["fit"] in ("at_risk", "past_limit") else _INK for r in rows],
-                "line": {"color": "#ffffff", "width": 1}},
-        text=[f"{r['pump']}: {r['governing_limit'] or 'limit'} on {date_text(r['limit_date'], plan['today'])} "
-              f"({date_text(r['limit_date_low'], plan['today'], '?')} to "
-              f"{date_text(r['limit_date_high'], plan['today'], 'open')}); {plan['fit_words'][r['fit']]}"
-              for r in rows],
-        hovertemplate="%{text}<extra></extra>",
-    ))
-    for window in plan["windows"]:
-        if window["past"]:
+    # Two marker traces so the legend tells a forecast (diamond) from a limit already crossed (cross).
+    for past, name, symbol in ((False, "expected limit date", "diamond"), (True, "limit crossed", "x")):
+        drawn = [r for r in rows if (r["status"] == "past_limit") == past]
+        if not drawn:
             continue
+        figure.add_trace(go.Scatter(
+            x=[r["limit_date"] for r in drawn], y=[r["pump"] for r in drawn], mode="markers", name=name,
+            marker={"symbol": symbol, "size": 12,
+                    "color": [_PAST if r["fit"] in ("at_risk", "past_limit") else _INK for r in drawn],
+                    "line": {"color": "#ffffff", "width": 1}},
+            text=[f"{r['pump']}: {r['governing_limit'] or 'limit'} {'crossed around' if past else 'on'} "
+                  f"{date_text(r['limit_date'], plan['today'])} "
+                  f"({date_text(r['limit_date_low'], plan['today'], '?')} to "
+                  f"{date_text(r['limit_date_high'], plan['today'], 'open')}); {plan['fit_words'][r['fit']]}"
+                  for r in drawn],
+            hovertemplate="%{text}<extra></extra>",
+        ))
+    ahead = [window for window in plan["windows"] if not window["past"]]
+    for number, window in enumerate(ahead):
+        # Alternate the names above and below the bars: windows close in time would print over each other.
         figure.add_vrect(x0=window["starts_at"], x1=window["ends_at"], fillcolor=_WINDOW, line_width=0,
-                         annotation_text=window["scope"], annotation_position="top left",
+                         annotation_text=window["scope"],
+                         annotation_position="bottom left" if number % 2 else "top left",
                          annotation_font_size=10)
     figure.add_vline(x=plan["today"], line_dash="dot", line_color=_INK)
     # Start a little before today, or before the earliest date drawn (a pump already past its limit).
@@ -59,3 +65,11 @@ def timeline_figure(plan: dict) -> go.Figure:
 def timeline_html(plan: dict) -> str:
     """The chart as a div and its data; the page loads plotly.js and charts.js itself from this server."""
     return chart_html(timeline_figure(plan), CHART_ID)
+
+
+def _as_drawn(row: dict) -> dict:
+    """A pump past its limit is drawn at the date its trend crossed the limit, with that date's bounds."""
+    if not row.get("crossed_date"):
+        return row
+    return {**row, "governing_limit": row["crossed_limit"], "limit_date": row["crossed_date"],
+            "limit_date_low": row["crossed_date_low"], "limit_date_high": row["crossed_date_high"]}

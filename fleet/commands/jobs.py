@@ -77,7 +77,7 @@ def review_text(data: dict) -> str:
     lines.append(f"\nStill past their limit ({counts['still_past_limit']})")
     for item in data["still_past_limit"]:
         since = (item.get("past_limit_since") or "before the records")[:16].replace("T", " ")
-        lines.append(f"  {item['pump']:<12} since {since}  η_v,ref {efficiency(item.get('eta_v_ref'))}  "
+        lines.append(f"  {item['pump']:<12} flagged {since}  η_v,ref {efficiency(item.get('eta_v_ref'))}  "
                      f"({item.get('site')} / {item.get('machine')})")
     lines.append(f"\nStatus changes ({counts['status_change']})")
     for item in data["status_changes"]:
@@ -150,14 +150,21 @@ def plan_text(data: dict) -> str:
         lines.append(_wrap(f"At risk before the next window: {', '.join(data['at_risk'])}.", indent=""))
     from fleet.horizon import date_text
 
-    lines.append(f"\nPumps inside the horizon ({len(data['pumps'])}); dates are expected (early - late bound)")
+    lines.append(f"\nPumps inside the horizon ({len(data['pumps'])}); dates are expected (early - late bound),")
+    lines.append("or for a limit already passed, when the trend crossed it (crossed ~)")
     for item in data["pumps"]:
         cost = item.get("overhaul_cost")
         payback = item.get("overhaul_payback_years")
-        lines.append(f"  {item['pump']:<10} {_label(item['status']):<11} {str(item.get('governing_limit') or '-'):<11}"
-                     f"{date_text(item.get('limit_date'), data['today'], '-')} "
-                     f"({date_text(item.get('limit_date_low'), data['today'], '-')} - "
-                     f"{date_text(item.get('limit_date_high'), data['today'], 'open')})")
+        if item.get("crossed_date"):  # past its limit: when its trend crossed it, not its last reading's date
+            when = (f"crossed ~{item['crossed_date']} ({item.get('crossed_date_low') or '-'} - "
+                    f"{item.get('crossed_date_high') or 'open'})")
+            limit = item.get("crossed_limit")
+        else:
+            when = (f"{date_text(item.get('limit_date'), data['today'], '-')} "
+                    f"({date_text(item.get('limit_date_low'), data['today'], '-')} - "
+                    f"{date_text(item.get('limit_date_high'), data['today'], 'open')})")
+            limit = item.get("governing_limit")
+        lines.append(f"  {item['pump']:<10} {_label(item['status']):<11} {str(limit or '-'):<11}{when}")
         extra = [item.get("window_label") or data["fit_words"].get(item.get("fit"), item.get("fit") or "")]
         if cost is not None:
             extra.append(f"overhaul {cost:,.0f} {item.get('currency') or ''}".rstrip())

@@ -254,7 +254,6 @@ class AnalysisResult(Base):
     pump_id: Mapped[int] = mapped_column(ForeignKey("pump.id", ondelete="CASCADE"), primary_key=True)
     computed_at: Mapped[datetime] = mapped_column(DateTime)
     status: Mapped[str] = mapped_column(String(16), index=True)
-    rank: Mapped[int] = mapped_column(Integer, index=True)
     reasons: Mapped[list[str]] = mapped_column(JSON)
     eta_v_ref: Mapped[float | None] = mapped_column(Float)
     eta_v_decline_per_1000h: Mapped[float | None] = mapped_column(Float)
@@ -264,21 +263,20 @@ class AnalysisResult(Base):
     hours_to_limit_high: Mapped[float | None] = mapped_column(Float)
     limit_date: Mapped[str | None] = mapped_column(String(10))
     governing_limit: Mapped[str | None] = mapped_column(String(16))
-    prior_hours_to_overhaul: Mapped[float | None] = mapped_column(Float)
     energy_cost_per_year: Mapped[float | None] = mapped_column(Float)
     detail: Mapped[dict[str, Any]] = mapped_column(JSON)  # every other figure of the analysis, JSON-ready
     # The two figures of the service order besides status and hours (also in detail): columns, so re-ranking the
     # stored list after a write reads no JSON.
     past_margin: Mapped[float | None] = mapped_column(Float)
     limit_date_low: Mapped[str | None] = mapped_column(String(10))
-    # What its kind's fleet life figures give this pump, and what they are computed from (also in detail but
-    # prior_b10_hours): columns, so a refit of the kind rewrites a few plain columns and reads no JSON.
-    prior_b10_hours: Mapped[float | None] = mapped_column(Float)
+    # What the pump's prior figures (its kind's fleet life figures at its age, fleet.trend.engine.prior_figures)
+    # are computed from, as plain columns: the figures themselves are computed when read
+    # (fleet.services.analysis.read_figures), so a refit of the kind rewrites no pump's row.
     age_hours: Mapped[float | None] = mapped_column(Float)
     planning_horizon_hours: Mapped[float | None] = mapped_column(Float)
-    # The pump's place in the service order as bytes (fleet.trend.status.service_order_keys), indexed: a write
-    # places its pumps among the stored list by counting smaller keys, without reading the list. NULL until the
-    # next full re-rank (rows stored before the column existed).
+    # The pump's place in the service order as bytes (fleet.trend.status.service_order_keys), indexed. The rank
+    # shown is derived when read (1 + the number of smaller keys), so a store writes its own pumps' keys only.
+    # NULL only on rows stored before the column existed, until the next store keys them all.
     order_key: Mapped[bytes | None] = mapped_column(LargeBinary, index=True)
     # The pump's data version (PumpDataVersion) these figures were computed from: older than the pump's means stale.
     data_version: Mapped[int] = mapped_column(Integer, default=0, server_default="0")

@@ -54,7 +54,6 @@ def fit_reweighted(
     fixed = robust_w is not None
     a, b, x_mean = grouped_line(group, x, y_used, model_w * (robust_w if fixed else 1.0), n_groups)
     if not fixed:
-        robust_w = np.ones_like(y)
         previous = None
         done = np.zeros(n_groups, dtype=bool)
         for _ in range(settings.irls_iterations):
@@ -72,10 +71,15 @@ def fit_reweighted(
             model_w = 1.0 / variance
             y_used = y + bias * variance
             z = (y_used - np.where(ok, fitted, y_used)) * np.sqrt(model_w)
-            u = np.abs(z) / robust_scale(group, z, n_groups)[group]
+            # Only the groups still moving are refitted: each group's scale and line come from its own readings,
+            # so leaving the settled ones out changes no figure and spares most of the later passes.
+            moving = np.flatnonzero(~done[group]) if done.any() else slice(None)
+            g_m, z_m = group[moving], z[moving]
+            u = np.abs(z_m) / robust_scale(g_m, z_m, n_groups)[g_m]
             with np.errstate(divide="ignore", invalid="ignore"):
-                robust_w = np.where(u > k, k / u, 1.0)
-            a_new, b_new, x_mean_new = grouped_line(group, x, y_used, model_w * robust_w, n_groups)
+                pass_w = np.where(u > k, k / u, 1.0)
+            a_new, b_new, x_mean_new = grouped_line(g_m, x[moving], y_used[moving], model_w[moving] * pass_w,
+                                                    n_groups)
             a, b, x_mean = np.where(done, a, a_new), np.where(done, b, b_new), np.where(done, x_mean, x_mean_new)
         # The error model and the Huber weights at the final line, so that they depend on it alone (not on
         # whether the passes stopped because this group or the last one had converged).

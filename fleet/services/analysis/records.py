@@ -6,7 +6,8 @@ from sqlalchemy import select
 from sqlalchemy.orm import Session
 
 from fleet.db.models import AnalysisResult, Pump
-from fleet.services.analysis.store import COLUMNS
+from fleet.services.analysis.read_figures import prior_values, ranks
+from fleet.services.analysis.store import CONTRACT_FIELDS
 
 
 def pump_ids_for(session: Session, serials: Iterable[str]) -> list[int]:
@@ -19,16 +20,23 @@ def pump_ids_for(session: Session, serials: Iterable[str]) -> list[int]:
 
 
 def analysis_records(session: Session, pump_ids=None) -> list[dict]:
-    """Stored results, most urgent first, as JSON-ready dicts: the contract fields first, then the rest."""
-    statement = select(AnalysisResult, Pump.serial).join(Pump, Pump.id == AnalysisResult.pump_id)
+    """Stored results, most urgent first, as JSON-ready dicts: the contract fields first, then the rest. The rank
+    and the prior figures are derived as they are read (fleet.services.analysis.read_figures)."""
+    statement = select(AnalysisResult, Pump.serial, Pump.kind).join(Pump, Pump.id == AnalysisResult.pump_id)
     if pump_ids is not None:
         statement = statement.where(AnalysisResult.pump_id.in_(list(pump_ids)))
+    found = session.execute(statement).all()
+    rank_of = ranks(session, None if pump_ids is None else [row.pump_id for row, *_ in found])
+    rows = sorted(((row, serial, kind, rank_of.get(row.pump_id)) for row, serial, kind in found),
+                  key=lambda r: (r[3] is None, r[3] or 0, r[1]))  # most urgent first; unkeyed rows last
+    priors = prior_values(session, [kind for _, _, kind, _ in rows], [row.age_hours for row, *_ in rows])
     records = []
-    for row, serial in session.execute(statement.order_by(AnalysisResult.rank, Pump.serial)):
+    for (row, serial, _, rank), prior in zip(rows, priors, strict=True):
         record = {"pump": serial}
-        record.update({k: getattr(row, k) for k in COLUMNS})
-        record["rank"] = row.rank
-        record.update({k: getattr(row, k) for k in ("prior_b10_hours", "planning_horizon_hours")})  # not in detail
+        record.update({k: prior[k] if k in prior else getattr(row, k) for k in CONTRACT_FIELDS[1:]})
+        record["rank"] = rank
+        record["prior_b10_hours"] = prior["prior_b10_hours"]
+        record["planning_horizon_hours"] = row.planning_horizon_hours  # not in detail
         record["computed_at"] = row.computed_at.isoformat(timespec="seconds")
         record.update({k: v for k, v in (row.detail or {}).items() if k not in record})
         records.append(record)

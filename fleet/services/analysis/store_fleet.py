@@ -3,8 +3,9 @@
 The whole-fleet counterpart of fleet.services.analysis.store.store, for a SpooledAnalysis
 (fleet.services.analysis.spool): each part is read from its file, given its pumps' prior figures from the fleet
 priors fitted once, and stored (results, status changes and their alerts, interval trends, service lives, forecast
-snapshots) before the next is read, so memory holds one part, never the fleet. Then, as after any full analysis,
-every kind's fleet life figures are refitted from the stored service lives and the whole list is re-ranked.
+snapshots) before the next is read, so memory holds one part, never the fleet. Each row is stored with its service
+order key; then, as after any full analysis, every kind's fleet life figures are refitted from the stored service
+lives and every key is checked (rows the analysis did not store keep theirs).
 The stored rows are those store() would write for the same analysis (tests/test_analysis_spooled.py).
 """
 
@@ -24,6 +25,7 @@ from fleet.services.analysis.store import (
     PRIOR_COLUMNS,
     RefreshSummary,
     _record_changes,
+    order_keys,
     refit_kinds,
     rerank,
 )
@@ -31,14 +33,15 @@ from fleet.services.mail.outbox import queue_alerts
 from fleet.trend.engine import apply_priors
 from fleet.trend.settings import AnalysisSettings
 
-# What a record takes from the fleet priors (fleet.trend.engine.apply_priors), filled in as its part is stored.
-PRIOR_FIGURES = ("planning_horizon_hours", "prior_hours_to_overhaul", "prior_b10_hours")
+# What a record takes from the fleet priors (fleet.trend.engine.apply_priors), filled in as its part is stored:
+# its planning horizon in running hours is stored (the prior figures themselves are derived when read).
+PRIOR_FIGURES = ("planning_horizon_hours",)
 
 
 def store_spooled(session: Session, spooled: SpooledAnalysis, settings: AnalysisSettings | None = None,
                   progress: Progress | None = None) -> RefreshSummary:
     """Store every part of ``spooled`` where it is not older than what is stored; refit every kind's fleet life
-    figures; re-rank the service list. ``progress(pumps done, pumps, label)`` after each part."""
+    figures; check every service order key. ``progress(pumps done, pumps, label)`` after each part."""
     settings = settings or AnalysisSettings()
     kinds = set(session.scalars(select(FleetPrior.kind)))
     by_status: Counter = Counter()
@@ -61,9 +64,9 @@ def store_spooled(session: Session, spooled: SpooledAnalysis, settings: Analysis
 def _store_part(session: Session, part: SpooledPart, spooled: SpooledAnalysis):
     """Store one part; returns (pumps stored, the kinds they had and have, alerts queued, statuses)."""
     ids = [int(p) for p in part.results.index]
-    before = {pump_id: (version, kind, rank, key) for pump_id, version, kind, rank, key in session.execute(
-        select(AnalysisResult.pump_id, AnalysisResult.data_version, AnalysisResult.detail["kind"].as_string(),
-               AnalysisResult.rank, AnalysisResult.order_key).where(AnalysisResult.pump_id.in_(ids)))}
+    before = {pump_id: (version, kind) for pump_id, version, kind in session.execute(
+        select(AnalysisResult.pump_id, AnalysisResult.data_version, AnalysisResult.detail["kind"].as_string())
+        .where(AnalysisResult.pump_id.in_(ids)))}
     existing = set(session.scalars(select(Pump.id).where(Pump.id.in_(ids))))
     keep = [p for p in ids if p in existing and spooled.versions.get(p, 0) >= before.get(p, (-1,))[0]]
     position = {pump_id: n for n, pump_id in enumerate(ids)}
@@ -72,13 +75,13 @@ def _store_part(session: Session, part: SpooledPart, spooled: SpooledAnalysis):
     records, details = [part.records[position[p]] for p in keep], [part.details[position[p]] for p in keep]
     for record, values in zip(records, zip(*(kept[name] for name in PRIOR_FIGURES), strict=True), strict=True):
         record.update(zip(PRIOR_FIGURES, (json_ready(value) for value in values), strict=True))
-    # A pump whose kind changed leaves its former kind to refit too (as store's _kinds_moved does).
+    # A pump whose kind changed leaves its former kind to refit too (as store's _kinds_to_refit does).
     kinds = set(kept["kind"].dropna()) | {before[p][1] for p in keep if p in before and before[p][1]}
     alerts = queue_alerts(session, _record_changes(session, records, spooled.computed_at))
     session.execute(delete(AnalysisResult).where(AnalysisResult.pump_id.in_(keep)))
     session.execute(delete(ServiceLife).where(ServiceLife.pump_id.in_(keep)))
     session.execute(delete(IntervalTrend).where(IntervalTrend.pump_id.in_(keep)))
-    _insert_results(session, records, details, {p: before[p][2:] for p in keep if p in before}, spooled)
+    _insert_results(session, records, details, spooled)
     _insert_trends(session, part, keep, spooled)
     keep_forecasts(session, records, spooled.computed_at)
     lives = part.lives[part.lives["pump_id"].isin(keep)]
@@ -97,17 +100,16 @@ def _json_text(session: Session, name: str):
     return text if session.get_bind().dialect.name == "sqlite" else cast(text, JSON)  # SQLite keeps JSON as text
 
 
-def _insert_results(session: Session, records: list[dict], details: list[str],
-                    placed: dict[int, tuple[int, bytes | None]], spooled: SpooledAnalysis) -> None:
-    """The rows store's _insert_results writes, with each detail as the JSON text the worker encoded: each keeps
-    its pump's former place in the order until the list is re-ranked (a pump new to the list: rank 0, no key)."""
+def _insert_results(session: Session, records: list[dict], details: list[str], spooled: SpooledAnalysis) -> None:
+    """The rows store's _insert_results writes, with each detail as the JSON text the worker encoded, and each
+    pump's service order key."""
     if not records:
         return
     rows = []
-    for record, detail in zip(records, details, strict=True):
-        rank, key = placed.get(record["pump_id"], (0, None))
+    keys = order_keys(records)
+    for record, detail, key in zip(records, details, keys, strict=True):
         rows.append({
-            "pump_id": record["pump_id"], "computed_at": spooled.computed_at, "rank": rank, "order_key": key,
+            "pump_id": record["pump_id"], "computed_at": spooled.computed_at, "order_key": key,
             "detail_json": detail, "data_version": spooled.versions.get(record["pump_id"], 0),
             **{k: record.get(k) for k in (*COLUMNS, *ORDER_COLUMNS, *PRIOR_COLUMNS)},
         })

@@ -25,7 +25,10 @@ MAX_WEEKS = 520
 CSV_COLUMNS = ("pump", "kind", "site", "machine", "position", "status", "governing_limit", "limit_date",
                "limit_date_low", "limit_date_high", "hours_to_limit", "fit", "window", "window_name", "window_starts",
                "overhaul_cost", "energy_cost_per_year", "overhaul_saving_per_year", "overhaul_payback_years",
-               "currency")
+               "currency", "crossed_limit", "crossed_date", "crossed_date_low", "crossed_date_high")
+# A pump past its limit: which limit its trend crossed first, and when (with bounds), estimated from its readings.
+# Its limit_date is its last reading's date, which tells a planner nothing.
+CROSSED_FIELDS = ("crossed_limit", "crossed_date", "crossed_date_low", "crossed_date_high")
 # Digits a planner's spreadsheet needs: whole hours and money, a tenth of a year of payback.
 CSV_DIGITS = {"hours_to_limit": 0, "overhaul_cost": 0, "energy_cost_per_year": 0, "overhaul_saving_per_year": 0,
               "overhaul_payback_years": 1}
@@ -64,6 +67,7 @@ def overhaul_plan(session: Session, weeks: int = DEFAULT_WEEKS, now: datetime | 
             "status": pump["status"], "governing_limit": pump["governing_limit"],
             "limit_date": pump["limit_date"], "limit_date_low": pump["limit_date_low"],
             "limit_date_high": pump["limit_date_high"], "hours_to_limit": _number(pump["hours_to_limit"]),
+            **{field: pump[field] for field in CROSSED_FIELDS},
             "fit": fit["fit"] if fit is not None else "no_forecast",
             "window": window_id, "window_label": None if window is None else window["label"],
             "window_starts": None if window is None else window["starts_at"].strftime("%Y-%m-%d"),
@@ -72,7 +76,8 @@ def overhaul_plan(session: Session, weeks: int = DEFAULT_WEEKS, now: datetime | 
             "overhaul_saving_per_year": _number(pump["overhaul_saving_per_year"]),
             "overhaul_payback_years": _number(pump["overhaul_payback_years"]), "currency": pump["currency"],
         })
-    rows.sort(key=lambda r: (r["limit_date_low"] or r["limit_date"] or "9999", r["pump"]))
+    rows.sort(key=lambda r: (r["crossed_date_low"] or r["crossed_date"] or r["limit_date_low"] or r["limit_date"]
+                             or "9999", r["pump"]))
     return {
         "weeks": weeks,
         "today": today.strftime("%Y-%m-%d"),
@@ -103,10 +108,11 @@ def _pump_frame(session: Session) -> pd.DataFrame:
             "overhaul_saving_per_year": detail.get("overhaul_saving_per_year"),
             "overhaul_payback_years": detail.get("overhaul_payback_years"),
             "age_hours": detail.get("age_hours"), "hours_per_day": detail.get("hours_per_day"),
+            **{field: detail.get(field) for field in CROSSED_FIELDS},
         })
     columns = ["pump_id", "status", "governing_limit", "limit_date", "limit_date_low", "limit_date_high",
                "hours_to_limit", "energy_cost_per_year", "overhaul_saving_per_year", "overhaul_payback_years",
-               "age_hours", "hours_per_day"]
+               "age_hours", "hours_per_day", *CROSSED_FIELDS]
     frame = pumps.merge(pd.DataFrame(stored, columns=columns), on="pump_id", how="left")
     frame["past_limit"] = frame["status"] == "past_limit"
     return frame.astype(object).where(frame.notna(), None)

@@ -23,6 +23,7 @@ from fleet.jsonvalues import json_ready
 from fleet.kinds import EVENT_KINDS, PUMP_KINDS
 from fleet.physics.cleanliness import Iso4406Code
 from fleet.physics.pump import baseline_flow_lpm, theoretical_flow_lpm
+from fleet.services.analysis.read_figures import prior_values, ranks
 from fleet.services.pages.pump_rows import PumpRows, pump_rows
 from fleet.services.sitelocal import of_site
 from fleet.timeutil import utcnow
@@ -101,7 +102,9 @@ def _headline(session: Session, pump_id: int) -> dict | None:
     if result is None:
         return None
     detail = result.detail or {}
-    headline = {name: getattr(result, name) for name in HEADLINE_FIELDS}
+    derived = {"rank": ranks(session, [pump_id]).get(pump_id),  # derived when read (read_figures)
+               **prior_values(session, [session.get(Pump, pump_id).kind], [result.age_hours])[0]}
+    headline = {name: derived[name] if name in derived else getattr(result, name) for name in HEADLINE_FIELDS}
     headline.update({name: detail.get(name) for name in DETAIL_FIELDS})
     law = headline["wear_law"]
     power = headline["wear_power"]

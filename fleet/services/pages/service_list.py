@@ -7,10 +7,11 @@ from sqlalchemy.orm import Session, aliased
 
 from fleet.db.models import AnalysisResult, Installation, Machine, Position, Pump, Site
 from fleet.kinds import PUMP_KINDS
+from fleet.services.analysis.read_figures import prior_values, ranks
 from fleet.status_words import STATUS_LABELS
 
 SORTS = {
-    "urgency": (AnalysisResult.rank, Pump.serial),
+    "urgency": (AnalysisResult.order_key, Pump.serial),  # the keys' order is the ranks' (read_figures)
     "pump": (Pump.serial,),
     "eta_v": (AnalysisResult.eta_v_ref, Pump.serial),
     "hours": (AnalysisResult.hours_to_limit, Pump.serial),
@@ -66,7 +67,18 @@ def service_list(session: Session, query: ListQuery) -> dict:
         statement.order_by(*[o.nulls_last() if hasattr(o, "nulls_last") else o for o in order])
         .limit(query.page_size).offset((page - 1) * query.page_size)
     ).all()
-    pumps = [_row(pump, result, site, machine, position) for pump, result, site, machine, position in rows]
+    analysed = [(pump, result) for pump, result, *_ in rows if result is not None]
+    if order is SORTS["urgency"] and not (query.site or query.machine or query.kind or query.status):
+        # The whole list in key order, keyless rows last: each keyed row's rank is its place in it.
+        first = (page - 1) * query.page_size
+        rank_of = {pump.id: first + n for n, (pump, result, *_) in enumerate(rows, start=1)
+                   if result is not None and result.order_key is not None}
+    else:
+        rank_of = ranks(session, [pump.id for pump, _ in analysed])
+    priors = dict(zip((pump.id for pump, _ in analysed), prior_values(
+        session, [pump.kind for pump, _ in analysed], [result.age_hours for _, result in analysed]), strict=True))
+    pumps = [_row(pump, result, site, machine, position, rank_of.get(pump.id), priors.get(pump.id, {}))
+             for pump, result, site, machine, position in rows]
     counts = dict(session.execute(select(AnalysisResult.status, func.count()).group_by(AnalysisResult.status)).all())
     return {
         "pumps": pumps,
@@ -88,7 +100,8 @@ def _count(session: Session, statement, query: ListQuery) -> int:
     return session.scalar(pumps.where(Pump.kind == query.kind) if query.kind else pumps)
 
 
-def _row(pump: Pump, result: AnalysisResult | None, site, machine, position) -> dict:
+def _row(pump: Pump, result: AnalysisResult | None, site, machine, position, rank: int | None,
+         priors: dict) -> dict:
     row = {"pump": pump.serial, "kind": pump.kind, "kind_label": PUMP_KINDS.get(pump.kind, pump.kind),
            "site": site, "machine": machine, "position": position}
     if result is None:  # registered since the last analysis: every key present, values unknown
@@ -97,12 +110,12 @@ def _row(pump: Pump, result: AnalysisResult | None, site, machine, position) -> 
         return row
     detail = result.detail or {}
     row.update({
-        "rank": result.rank, "status": result.status, "reasons": result.reasons,
+        "rank": rank, "status": result.status, "reasons": result.reasons,
         "eta_v_ref": result.eta_v_ref, "eta_v_decline_per_1000h": result.eta_v_decline_per_1000h,
         "drain_pct_ref": result.drain_pct_ref, "hours_to_limit": result.hours_to_limit,
         "hours_to_limit_low": result.hours_to_limit_low, "hours_to_limit_high": result.hours_to_limit_high,
         "limit_date": result.limit_date, "governing_limit": result.governing_limit,
-        "prior_hours_to_overhaul": result.prior_hours_to_overhaul,
+        "prior_hours_to_overhaul": priors["prior_hours_to_overhaul"],
         "energy_cost_per_year": result.energy_cost_per_year,
         "limit_date_low": detail.get("limit_date_low"), "limit_date_high": detail.get("limit_date_high"),
         "confidence": detail.get("confidence"), "last_reading_at": detail.get("last_reading_at"),
