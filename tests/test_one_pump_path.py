@@ -63,3 +63,29 @@ def test_each_pump_alone_gives_the_figures_of_the_whole_fleet_run(demo_db):
                 _same(fits[column], own_fits[column], f"pump {pump_id} fits {column}")
             past += bool(expected["crossed_limit"].notna().iloc[0])
     assert past > 0  # the demo has pumps past a limit, so the dating of a crossing is compared too
+
+
+def test_the_one_pump_frames_are_the_fleet_loaders_for_every_pump(demo_db):
+    # The analysis after a write loads its one pump by the pump page's queries (fleet.services.analysis.compute
+    # .one_pump_frames); the reference is the whole-fleet loader, itself checked against the demo's rows.
+    from pandas.testing import assert_frame_equal
+
+    from fleet.services.analysis.compute import one_pump_frames
+
+    with demo_db.sessions() as session:
+        pump_ids = list(load_frames(session, None, as_of=NOW).pumps["pump_id"])
+        assert len(pump_ids) == 41
+        with_samples = 0
+        for pump_id in pump_ids:
+            fleet, own = load_frames(session, [pump_id], as_of=NOW), one_pump_frames(session, pump_id, NOW)
+            for name in ("readings", "events", "flow_points", "samples"):
+                expected, got = getattr(fleet, name), getattr(own, name)
+                keys = [c for c in expected.columns if c not in ("cost", "hours", "code_4", "code_6", "code_14")]
+                assert_frame_equal(got.sort_values(keys, kind="stable").reset_index(drop=True),
+                                   expected.sort_values(keys, kind="stable").reset_index(drop=True),
+                                   check_dtype=name != "flow_points", obj=f"pump {pump_id} {name}")
+            assert_frame_equal(own.pumps[list(fleet.pumps.columns)].reset_index(drop=True), fleet.pumps,
+                               check_dtype=False, obj=f"pump {pump_id} pumps")
+            with_samples += len(own.samples) > 0
+        assert with_samples > 0  # lab results are compared too
+        assert one_pump_frames(session, max(pump_ids) + 1000, NOW) is None

@@ -165,18 +165,20 @@ def summarise_fits(fits: pd.DataFrame, rated_flow_lpm: np.ndarray, max_flow_lpm:
     the model-weighted one; the decline is reported positive when the pump is losing efficiency (fraction per
     1000 h).
     """
-    out = fits.copy()
     rated = np.asarray(rated_flow_lpm, dtype=float)
     max_flow = np.asarray(max_flow_lpm, dtype=float)
+    ok = {q: enough_data(fits[f"{q}_n_points"], fits[f"{q}_span_hours"], settings) for q in QUANTITIES}
     with np.errstate(invalid="ignore", divide="ignore"):
-        out["eta_v_ref"] = 1.0 - out["slip_current_lpm"].to_numpy() / rated
-        out["eta_v_decline_per_1000h"] = 1000.0 * out["slip_slope_lpm_per_h"].to_numpy() / rated
-        out["drain_pct_ref"] = 100.0 * out["drain_current_lpm"].to_numpy() / max_flow
-    for q in QUANTITIES:
-        ok = enough_data(out[f"{q}_n_points"], out[f"{q}_span_hours"], settings)
-        out[f"{q}_enough_data"] = ok
-    out.loc[~out["slip_enough_data"], ["eta_v_ref", "eta_v_decline_per_1000h"]] = np.nan
-    out.loc[~out["drain_enough_data"], "drain_pct_ref"] = np.nan
+        added = {
+            "eta_v_ref": np.where(ok["slip"], 1.0 - fits["slip_current_lpm"].to_numpy(float) / rated, np.nan),
+            "eta_v_decline_per_1000h": np.where(
+                ok["slip"], 1000.0 * fits["slip_slope_lpm_per_h"].to_numpy(float) / rated, np.nan),
+            "drain_pct_ref": np.where(ok["drain"], 100.0 * fits["drain_current_lpm"].to_numpy(float) / max_flow,
+                                      np.nan),
+            **{f"{q}_enough_data": ok[q] for q in QUANTITIES},
+        }
+    # New columns joined once, not inserted one by one into a frame of some thousand columns.
+    out = pd.concat([fits, pd.DataFrame(added, index=fits.index)], axis=1)
     for q in QUANTITIES:  # a law is named only where there is a trend
-        out[f"{q}_wear_law"] = out[f"{q}_wear_law"].where(out[f"{q}_enough_data"], None)
+        out[f"{q}_wear_law"] = out[f"{q}_wear_law"].where(ok[q], None)
     return out

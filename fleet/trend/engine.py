@@ -4,6 +4,7 @@ Order of work: refer readings -> place them in service intervals -> fit wear tre
 once -> hours and dates to each limit -> oil, energy and fleet life figures -> status and service order.
 """
 
+from collections.abc import Mapping
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -231,18 +232,21 @@ def analyze_fleet(
     limits = limit_flows_lpm(
         fit_pump["eta_v_limit"], fit_pump["drain_limit_pct"], fit_pump["rated_flow_lpm"], fit_pump["max_flow_lpm"]
     )
-    fits = pd.concat([fits, hours_to_limits(fits, limits, s)], axis=1)
     t = t_quantile(s.confidence, fits["slip_dof"].to_numpy(float))
     with np.errstate(invalid="ignore"):
-        fits["slip_b_significant"] = fits["slip_b"].to_numpy(float) > t * np.sqrt(fits["slip_var_b"].to_numpy(float))
+        significant = fits["slip_b"].to_numpy(float) > t * np.sqrt(fits["slip_var_b"].to_numpy(float))
     # The fits' rows are the referred readings' pump intervals in order (fit_degradation), so codes line up.
     pairs, group = pair_codes(referred["pump_id"].to_numpy(), referred["interval_no"].to_numpy())
     assert len(pairs) == len(fits)
     taken = referred["taken_at"].to_numpy()
-    fits["hours_per_day"] = interval_hours_per_day(group, taken, referred["hours"].to_numpy(float), len(fits), s)
-    fits["typical_pressure_bar"] = typical_pressure_bar(group, taken, referred["pressure_bar"].to_numpy(float),
-                                                        referred["flag"].isna().to_numpy(), len(fits),
-                                                        s.typical_window_days)
+    per_interval = pd.DataFrame({
+        "slip_b_significant": significant,
+        "hours_per_day": interval_hours_per_day(group, taken, referred["hours"].to_numpy(float), len(fits), s),
+        "typical_pressure_bar": typical_pressure_bar(group, taken, referred["pressure_bar"].to_numpy(float),
+                                                     referred["flag"].isna().to_numpy(), len(fits),
+                                                     s.typical_window_days),
+    }, index=fits.index)
+    fits = pd.concat([fits, hours_to_limits(fits, limits, s), per_interval], axis=1)  # joined once: a wide frame
 
     # One row per pump: its current interval.
     current_iv = intervals[intervals["is_current"]].set_index("pump_id").reindex(pump_tab.index)
@@ -271,9 +275,9 @@ def analyze_fleet(
     last = _last_usable(referred, cur_keys)
     last.index = pump_tab.index
 
-    res = pd.DataFrame(index=pump_tab.index)
-    res["pump"] = pump_tab["pump"]
-    res["kind"] = pump_tab["kind"]
+    # The pump rows gathered as one dict of columns (in the order they are shown) and framed once: a frame
+    # grown column by column pays pandas' insert for each of about a hundred columns, on every call.
+    res: dict = {"pump": pump_tab["pump"], "kind": pump_tab["kind"]}
     for col in (
         "eta_v_ref",
         "eta_v_decline_per_1000h",
@@ -307,7 +311,7 @@ def analyze_fleet(
     res["last_reading_at"] = pd.to_datetime(all_last.reindex(pump_tab.index))
     res["days_since_reading"] = (now - res["last_reading_at"]).dt.total_seconds() / 86400.0
     res["installed"] = pump_tab["machine_id"].notna() if "machine_id" in pump_tab else True
-    res = res.join(last)
+    res.update(last.items())
     # With too little for a trend, the current value is the last usable reading's; *_source says which.
     for col, last_col in (("eta_v_ref", "last_eta_v_ref"), ("drain_pct_ref", "last_drain_pct_ref")):
         from_trend = res[col].notna()
@@ -334,17 +338,14 @@ def analyze_fleet(
     ):
         res[dst] = limit_dates(res["last_reading_at"], res[src], res["hours_per_day"]).to_numpy()
 
-    res = res.join(_wear_law(cur))
-    res = res.join(_crossing_passed(cur, current_iv, referred))
+    res.update(_wear_law(cur).items())
+    res.update(_crossing_passed(cur, current_iv, referred).items())
     res["past_margin"] = _past_margin(cur, cur_limits, last, pump_tab)
     res["data_note"] = _data_note(res, current_iv, cur, s)
 
     # Oil condition and the cost of leakage.
-    res = res.join(
-        oil_condition(pump_tab.reset_index(drop=True), referred, samples, now, s)[
-            [c for c in OIL_COLUMNS if c != "cleanliness_target"]
-        ]
-    )
+    oil = oil_condition(pump_tab.reset_index(drop=True), referred, samples, now, s)
+    res.update((c, oil[c]) for c in OIL_COLUMNS if c != "cleanliness_target")
     res["cleanliness_target"] = pump_tab["cleanliness_target"]
     slip_start = cur["slip_start_lpm"].to_numpy(float)
     slip_now = np.where(cur["slip_enough_data"], cur["slip_current_lpm"], np.nan)
@@ -359,7 +360,7 @@ def analyze_fleet(
         pump_tab["overhaul_cost"] if "overhaul_cost" in pump_tab else np.nan,
     )
     energy.index = pump_tab.index
-    res = res.join(energy)
+    res.update(energy.items())
 
     # Fleet life figures: the separate, labelled prior.
     kind_of = pump_tab["kind"]
@@ -367,9 +368,11 @@ def analyze_fleet(
     res["age_hours"] = np.where(
         current_iv["interval_no"] == 0, current_iv["last_hours"], current_iv["last_hours"] - current_iv["start_hours"]
     )
+    res = pd.DataFrame(res, index=pump_tab.index)
     fleet_priors = apply_priors(res, fleet_priors, now)
 
-    res = res.join(assess_status(res, now, s))
+    status = assess_status(res, now, s)
+    res = pd.concat([res, status.set_axis(res.index)], axis=1)
     res.index.name = "pump_id"
     totals = {
         "pumps": int(len(res)),
@@ -421,7 +424,7 @@ def prior_figures(kinds, age_hours, horizon_hours, priors: pd.DataFrame):
     return hours, kind_prior["b10_hours"].to_numpy(float), fleet_priors
 
 
-def _data_note(res: pd.DataFrame, current_iv: pd.DataFrame, cur: pd.DataFrame, s: AnalysisSettings) -> np.ndarray:
+def _data_note(res: Mapping, current_iv: pd.DataFrame, cur: pd.DataFrame, s: AnalysisSettings) -> np.ndarray:
     """The 'not enough data' sentence of each pump that has too little for its own trend, else None."""
     note = not_enough_reason(cur["slip_n_points"], cur["slip_span_hours"], s, "volumetric efficiency")
     no_readings = res["last_reading_at"].isna().to_numpy()

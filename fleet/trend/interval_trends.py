@@ -37,17 +37,20 @@ def interval_trends(fits: pd.DataFrame, intervals: pd.DataFrame, confidence: flo
     # Every kept column as one object table (numbers NaN -> None, bools, JSON-ready text), numbers in one block:
     # a row's dict is then one zip, with no lookup or check per cell.
     table = np.empty((len(fits), len(kept)), dtype=object)
-    dtypes = fits.dtypes
-    numeric = [j for j, name in enumerate(kept) if pd.api.types.is_numeric_dtype(dtypes[name])
-               and not pd.api.types.is_bool_dtype(dtypes[name])]
-    in_block = set(numeric)
+    # Each column's dtype from a plain dict, and each distinct dtype judged once: a lookup in fits.dtypes (a
+    # Series keyed by some thousand names) per kept column cost more than the rows' dicts for one pump.
+    dtypes = dict(zip(fits.columns.tolist(), fits.dtypes.tolist(), strict=True))
+    kinds = {dtype: ("bool" if pd.api.types.is_bool_dtype(dtype) else
+                     "number" if pd.api.types.is_numeric_dtype(dtype) else "other") for dtype in set(dtypes.values())}
+    kind = [kinds[dtypes[name]] for name in kept]
+    numeric = [j for j, k in enumerate(kind) if k == "number"]
     if numeric:
         numbers = fits[[kept[j] for j in numeric]].to_numpy(float)
         table[:, numeric] = np.where(np.isfinite(numbers), numbers, None)
     for j, name in enumerate(kept):
-        if pd.api.types.is_bool_dtype(dtypes[name]):
+        if kind[j] == "bool":
             table[:, j] = fits[name].to_numpy(bool).tolist()
-        elif j not in in_block:
+        elif kind[j] == "other":
             table[:, j] = json_ready(fits[name].tolist())
     keys = ["confidence", *kept]
     values = [dict(zip(keys, (confidence, *row), strict=True)) for row in table.tolist()]

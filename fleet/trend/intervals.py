@@ -98,16 +98,14 @@ def assign_intervals(readings: pd.DataFrame, events: pd.DataFrame | None) -> tup
     event that have no readings yet; is_current marks each pump's latest one.
     """
     resets = reset_events(events)
-    r = readings.copy()
-    r["taken_at"] = pd.to_datetime(r["taken_at"])
-    key = _order_key(r["taken_at"].to_numpy(), pd.to_numeric(r["hours"], errors="coerce").to_numpy(float),
-                     missing_hours=_END_OF_DAY)
-    r["interval_no"] = _resets_before(resets, r["pump_id"].to_numpy(np.int64), key)
-
+    r = readings
+    if not pd.api.types.is_datetime64_dtype(r["taken_at"].dtype):
+        r = r.assign(taken_at=pd.to_datetime(r["taken_at"]))
     hours = pd.to_numeric(r["hours"], errors="coerce").to_numpy(dtype=float)
     taken = r["taken_at"].to_numpy()
+    key = _order_key(taken, hours, missing_hours=_END_OF_DAY)
     reading_pump = r["pump_id"].to_numpy(np.int64)
-    reading_no = r["interval_no"].to_numpy(np.int64)
+    reading_no = _resets_before(resets, reading_pump, key)
 
     # Every pump interval: those with readings, those opened by a reset event, and, for a pump overhauled before
     # its first reading, the life from new to that overhaul (interval 0, on record too).
@@ -158,11 +156,16 @@ def assign_intervals(readings: pd.DataFrame, events: pd.DataFrame | None) -> tup
         "first_reading_at": first_reading_at, "last_reading_at": last_reading_at, "is_current": np.isnat(end_at),
     }, columns=INTERVAL_COLUMNS)
 
-    r["interval_start_at"] = start_at[in_reading]
-    r["interval_start_hours"] = start_hours[in_reading]
-    r["interval_hours"] = hours - start_hours[in_reading]
-    r["age_hours"] = np.where(reading_no == 0, hours, r["interval_hours"].to_numpy())
-    return r, intervals
+    interval_hours = hours - start_hours[in_reading]
+    placed = pd.DataFrame({
+        "interval_no": reading_no,
+        "interval_start_at": start_at[in_reading],
+        "interval_start_hours": start_hours[in_reading],
+        "interval_hours": interval_hours,
+        "age_hours": np.where(reading_no == 0, hours, interval_hours),
+    }, index=r.index)
+    # Framed once beside the readings: no copy of them, no insert per column.
+    return pd.concat([r.drop(columns=[c for c in placed if c in r]), placed], axis=1), intervals
 
 
 def interval_lives(intervals: pd.DataFrame) -> pd.DataFrame:

@@ -7,7 +7,7 @@ import pandas as pd
 
 from fleet.physics.cleanliness import Iso4406Code, parse_code, steps_over_channels
 from fleet.physics.oil import kinematic_viscosity_cst, oil_life_factor, viscosity_window_flag
-from fleet.trend.grouped import group_time_max
+from fleet.trend.grouped import group_median, group_time_max
 from fleet.trend.settings import AnalysisSettings
 
 
@@ -114,18 +114,28 @@ def latest_lab_results(samples: pd.DataFrame | None, now, settings: AnalysisSett
 
 
 def oil_temperatures(readings: pd.DataFrame, settings: AnalysisSettings) -> pd.DataFrame:
-    """Per pump_id: last oil temperature, typical (median over the recent window), oil data of the last reading."""
+    """Per pump_id: last oil temperature, typical (median over the recent window), oil data of the last reading.
+
+    Plain arrays, sorted once by pump and time (a grouped frame costs more than the sums, for one pump as for many).
+    """
     lo, hi = settings.temp_range_c
-    t = pd.to_numeric(readings["temp_c"], errors="coerce")
-    r = readings.loc[(t >= lo) & (t <= hi), ["pump_id", "taken_at", "temp_c", "nu40", "nu100"]]
-    r = r.sort_values(["pump_id", "taken_at"], kind="stable")
-    last = r.groupby("pump_id").tail(1).set_index("pump_id")
-    last_at = r.groupby("pump_id")["taken_at"].transform("max")
-    recent = r[r["taken_at"] >= last_at - pd.Timedelta(days=settings.typical_window_days)]
-    typical = recent.groupby("pump_id")["temp_c"].median()
-    return pd.DataFrame(
-        {"oil_temp_c": last["temp_c"], "oil_temp_typical_c": typical, "nu40": last["nu40"], "nu100": last["nu100"]}
-    )
+    t = pd.to_numeric(readings["temp_c"], errors="coerce").to_numpy(dtype=float)
+    keep = np.flatnonzero((t >= lo) & (t <= hi))
+    pump, taken = readings["pump_id"].to_numpy()[keep], readings["taken_at"].to_numpy()[keep]
+    order = keep[np.lexsort((taken, pump))]  # stable: by pump, then time
+    pumps, group = np.unique(readings["pump_id"].to_numpy()[order], return_inverse=True)
+    taken = readings["taken_at"].to_numpy()[order]
+    last = np.flatnonzero(np.r_[group[1:] != group[:-1], True]) if len(order) else np.zeros(0, dtype=np.int64)
+    window = pd.Timedelta(days=settings.typical_window_days).to_timedelta64()
+    recent = taken >= (taken[last] - window)[group]
+    temps = t[order]
+    index = pd.Index(pumps, name="pump_id")
+    return pd.DataFrame({
+        "oil_temp_c": temps[last],
+        "oil_temp_typical_c": group_median(group[recent], temps[recent], len(pumps)),
+        "nu40": readings["nu40"].to_numpy(dtype=float)[order][last],
+        "nu100": readings["nu100"].to_numpy(dtype=float)[order][last],
+    }, index=index)
 
 
 def oil_condition(

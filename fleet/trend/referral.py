@@ -149,23 +149,26 @@ def refer_readings(
         flag = _add_flag(flag, np.asarray(mask, dtype=bool) & known_pump, text)
     good = pd.isna(flag)
 
-    out = readings.reset_index(drop=True).copy()
-    out["q_th_lpm"] = q_th
-    out["rated_flow_lpm"] = rated_flow
-    out["max_flow_lpm"] = max_flow
-    out["eta_v"] = _ratio(flow, q_th)
-    out["slip_lpm"] = slip
-    out["nu_cst"] = nu
-    out["viscosity_window"] = np.asarray(viscosity_window_flag(nu), dtype=object)
-    out["mu_pas"] = mu
-    out["mu_ref_pas"] = mu_ref
-    out["referral_factor"] = np.where(good, factor, np.nan)
-    out["slip_ref_lpm"] = np.where(good, slip_ref, np.nan)
-    out["eta_v_ref"] = np.where(good, 1.0 - _ratio(slip_ref, rated_flow), np.nan)
-    out["drain_ref_lpm"] = np.where(good, drain_ref, np.nan)
-    out["drain_pct_ref"] = np.where(good, 100.0 * _ratio(drain_ref, max_flow), np.nan)
-    out["leakage_kw"] = np.asarray(leakage_power_kw(p, slip), dtype=float)
-    out["flag"] = flag
+    added = {
+        "q_th_lpm": q_th,
+        "rated_flow_lpm": rated_flow,
+        "max_flow_lpm": max_flow,
+        "eta_v": _ratio(flow, q_th),
+        "slip_lpm": slip,
+        "nu_cst": nu,
+        "viscosity_window": np.asarray(viscosity_window_flag(nu), dtype=object),
+        "mu_pas": mu,
+        "mu_ref_pas": mu_ref,
+        "referral_factor": np.where(good, factor, np.nan),
+        "slip_ref_lpm": np.where(good, slip_ref, np.nan),
+        "eta_v_ref": np.where(good, 1.0 - _ratio(slip_ref, rated_flow), np.nan),
+        "drain_ref_lpm": np.where(good, drain_ref, np.nan),
+        "drain_pct_ref": np.where(good, 100.0 * _ratio(drain_ref, max_flow), np.nan),
+        "leakage_kw": np.asarray(leakage_power_kw(p, slip), dtype=float),
+        "flag": flag,
+    }
+    # The added columns framed once beside the readings (not inserted one by one, a copy each time).
+    out = pd.concat([r, pd.DataFrame(added, index=r.index)], axis=1)
     tests = flow_test_leakage(out, flow_points)
     return out.join(tests, on="reading_id") if "reading_id" in out else out.assign(**{c: np.nan for c in tests})
 

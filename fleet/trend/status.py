@@ -23,11 +23,17 @@ def _col(frame: pd.DataFrame, name: str, default=np.nan) -> pd.Series:
 
 
 def _num(frame: pd.DataFrame, name: str) -> np.ndarray:
-    return pd.to_numeric(_col(frame, name), errors="coerce").to_numpy(dtype=float)
+    column = _col(frame, name)
+    if isinstance(column.dtype, np.dtype) and column.dtype.kind in "fiub":  # numpy numbers: no conversion needed
+        return column.to_numpy(dtype=float)
+    return pd.to_numeric(column, errors="coerce").to_numpy(dtype=float)
 
 
 def _flag(frame: pd.DataFrame, name: str) -> np.ndarray:
-    return _col(frame, name, False).astype("boolean").fillna(False).to_numpy(dtype=bool)
+    column = _col(frame, name, False)
+    if column.dtype == np.bool_:  # plain numpy bools have no missing value to fill
+        return column.to_numpy(dtype=bool)
+    return column.astype("boolean").fillna(False).to_numpy(dtype=bool)
 
 
 def _date(value) -> str:

@@ -9,7 +9,7 @@ from sqlalchemy import select
 from sqlalchemy.orm import Session
 
 from fleet.db.models import FleetPrior, Pump, PumpDataVersion
-from fleet.services.analysis.frames import load_frames
+from fleet.services.analysis.frames import FleetFrames, load_frames, load_samples, samples_known_by
 from fleet.timeutil import utcnow
 from fleet.trend.engine import FleetAnalysis, analyze_fleet, apply_priors, fit_priors
 from fleet.trend.interval_trends import interval_trends
@@ -60,10 +60,30 @@ def analyse(session: Session, pump_ids=None, now: datetime | None = None,
             settings: AnalysisSettings | None = None) -> FleetAnalysis:
     """Compute (without storing) the analysis of ``pump_ids`` (None: the fleet)."""
     now = now or utcnow()
-    frames = load_frames(session, pump_ids, as_of=now)
+    pump_ids = None if pump_ids is None else list(pump_ids)
+    # One pump (the analysis after a write): its own few queries, not the fleet loader's machinery.
+    frames = one_pump_frames(session, pump_ids[0], now) if pump_ids is not None and len(pump_ids) == 1 else None
+    frames = frames or load_frames(session, pump_ids, as_of=now)
     priors = None if pump_ids is None else stored_priors(session)
     return analyze_fleet(frames.pumps, frames.readings, frames.events, frames.samples, frames.flow_points,
                          now=now, settings=settings, priors=priors)
+
+
+def one_pump_frames(session: Session, pump_id: int, now: datetime) -> FleetFrames | None:
+    """load_frames of one pump, from the pump page's few plain queries of that pump's rows
+    (fleet.services.pages.pump_rows; tests/test_pump_page_rows.py holds them equal), without the fleet loader's
+    joins and maps; None for a pump not on record."""
+    from fleet.services.pages.pump_rows import pump_rows  # that module reads this package's frames: import late
+
+    pump = session.get(Pump, int(pump_id))
+    if pump is None:
+        return None
+    rows = pump_rows(session, pump, now)
+    machine_id = rows.pumps["machine_id"].iloc[0]
+    samples = load_samples(session, [] if pd.isna(machine_id) else [int(machine_id)])
+    # pump_rows keeps what was known by ``now`` already; the lab results are kept so here.
+    return FleetFrames(pumps=rows.pumps, readings=rows.readings, flow_points=rows.flow_points, events=rows.events,
+                       samples=samples_known_by(samples, pd.Timestamp(now)))
 
 
 @dataclass

@@ -82,7 +82,9 @@ def installation_history(session: Session, pump_ids=None) -> pd.DataFrame:
 
 def effective_limits(pumps: pd.DataFrame, defaults: pd.DataFrame) -> pd.DataFrame:
     """Per-pump limits: the pump's override where set, else its kind's stored default, else the built-in one."""
-    stored = {row["kind"]: row for row in defaults.to_dict(orient="records")}
+    columns = list(defaults.columns)  # rows as plain dicts, without to_dict's per-cell boxing
+    stored = {row["kind"]: row for row in (dict(zip(columns, values, strict=True))
+                                           for values in zip(*(defaults[c].tolist() for c in columns), strict=True))}
     out = pumps.copy()
     kinds = out["kind"].tolist()
     for name in LIMIT_FIELDS:
@@ -90,16 +92,27 @@ def effective_limits(pumps: pd.DataFrame, defaults: pd.DataFrame) -> pd.DataFram
         by_kind = {kind: (stored[kind][name] if kind in stored and pd.notna(stored[kind][name])
                           else getattr(limits, name)) for kind, limits in DEFAULT_LIMITS.items()}
         override = out[name] if name in out else pd.Series(np.nan, index=out.index)
+        given = override.notna().to_numpy()
+        if given.all():  # every pump sets its own: nothing to fill (a Series.where costs as much as the rest)
+            continue
         # A list lookup per pump: Series.map would build a Series of the dict first, on every call.
         of_kind = pd.Series([by_kind.get(kind, np.nan) for kind in kinds], index=out.index)
-        out[name] = override.where(override.notna(), of_kind)
+        if not given.any() and override.dtype == object:  # none set (one pump's row): the kind's, as where gives
+            out[name] = of_kind.astype(object)
+        else:
+            out[name] = override.where(given, of_kind)
     # A variable piston pump without its own target, under a kind default that was never edited, wants the
     # cleaner code (common practice, no source).
-    variable_piston = out["variable"].astype(bool) & out["kind"].isin(PISTON_KINDS)
-    untouched = pumps.get("cleanliness_target", pd.Series(None, index=out.index)).isna()
-    default_target = out["kind"].map(lambda k: DEFAULT_LIMITS[k].cleanliness_target if k in DEFAULT_LIMITS else None)
-    plain = out["cleanliness_target"] == default_target
-    out.loc[variable_piston & untouched & plain, "cleanliness_target"] = VARIABLE_PISTON_TARGET
+    # (Plain lists: a handful of pandas steps here cost more than the rest for the one pump of a write.)
+    variable_piston = out["variable"].astype(bool).to_numpy() & np.array([k in PISTON_KINDS for k in kinds], bool)
+    untouched = (pumps["cleanliness_target"].isna().to_numpy() if "cleanliness_target" in pumps
+                 else np.ones(len(out), dtype=bool))
+    default_target = [DEFAULT_LIMITS[k].cleanliness_target if k in DEFAULT_LIMITS else None for k in kinds]
+    plain = np.array([isinstance(d, str) and t == d
+                      for t, d in zip(out["cleanliness_target"].tolist(), default_target, strict=True)], dtype=bool)
+    lift = variable_piston & untouched & plain
+    if lift.any():
+        out.loc[lift, "cleanliness_target"] = VARIABLE_PISTON_TARGET
     return out
 
 
@@ -152,6 +165,9 @@ def attach_oil(readings: pd.DataFrame, history: pd.DataFrame) -> pd.DataFrame:
         return readings.assign(**{c: np.nan for c in oil_columns})
     left = readings.sort_values("taken_at", kind="stable")
     right = history[["pump_id", "installed_at", *oil_columns]].sort_values("installed_at", kind="stable")
+    pumps = np.unique(np.r_[left["pump_id"].to_numpy(np.int64), right["pump_id"].to_numpy(np.int64)])
+    if len(pumps) == 1:  # one pump (its analysis after a write, its page): a search, not a merge
+        return _attach_oil_of_one(left, right, oil_columns)
     placed = pd.merge_asof(left, right, left_on="taken_at", right_on="installed_at", by="pump_id",
                            direction="backward")
     first = right.drop_duplicates("pump_id", keep="first").set_index("pump_id")
@@ -159,6 +175,20 @@ def attach_oil(readings: pd.DataFrame, history: pd.DataFrame) -> pd.DataFrame:
         fallback = placed["pump_id"].map(first[column])
         placed[column] = placed[column].where(placed[column].notna(), fallback).astype(float)
     return placed.drop(columns=["installed_at"])
+
+
+def _attach_oil_of_one(left: pd.DataFrame, right: pd.DataFrame, oil_columns: list[str]) -> pd.DataFrame:
+    """attach_oil for the readings and stays of one pump, both in time order: each reading takes the latest
+    stay installed at or before it (as merge_asof backward), else, or where that stay's oil is unknown, the
+    first stay's."""
+    at = np.searchsorted(right["installed_at"].to_numpy(), left["taken_at"].to_numpy(), side="right") - 1
+    placed = left.reset_index(drop=True)
+    oil = {}
+    for column in oil_columns:
+        values = right[column].to_numpy(dtype=float)
+        found = np.where(at >= 0, values[np.maximum(at, 0)], np.nan)
+        oil[column] = np.where(np.isnan(found), values[0], found)
+    return pd.concat([placed, pd.DataFrame(oil, index=placed.index)], axis=1)
 
 
 def load_flow_points(session: Session, pump_ids=None) -> pd.DataFrame:
@@ -212,14 +242,22 @@ def load_frames(session: Session, pump_ids=None, as_of=None) -> FleetFrames:
 
 def known_by(frames: FleetFrames, moment: pd.Timestamp) -> FleetFrames:
     readings = frames.readings[frames.readings["taken_at"] <= moment]
-    samples = frames.samples[frames.samples["sampled_at"] <= moment].copy()
-    pending = samples["reported_at"].isna() | (samples["reported_at"] > moment)
-    samples.loc[pending, ["reported_at", "code_4", "code_6", "code_14", "water_ppm", "viscosity_40"]] = np.nan
-    samples.loc[pending, "low_count"] = False
     return FleetFrames(
         pumps=frames.pumps,
         readings=readings,
         flow_points=frames.flow_points[frames.flow_points["reading_id"].isin(readings["reading_id"])],
         events=frames.events[frames.events["date"] <= moment],
-        samples=samples,
+        samples=samples_known_by(frames.samples, moment),
     )
+
+
+def samples_known_by(samples: pd.DataFrame, moment: pd.Timestamp) -> pd.DataFrame:
+    """The lab samples taken by ``moment``, with the results not reported by then blanked."""
+    samples = samples[samples["sampled_at"] <= moment]
+    pending = samples["reported_at"].isna() | (samples["reported_at"] > moment)
+    if not pending.any():  # every result in: nothing to blank (the usual case for one machine's few samples)
+        return samples
+    samples = samples.copy()
+    samples.loc[pending, ["reported_at", "code_4", "code_6", "code_14", "water_ppm", "viscosity_40"]] = np.nan
+    samples.loc[pending, "low_count"] = False
+    return samples
