@@ -129,14 +129,15 @@ def invented_fleet(seed: int, n: int):
     return pumps, readings, events, truth
 
 
-def run_fleet(seed: int, n: int, weighting: str = "aicc", known_law: bool = False) -> pd.DataFrame:
+def run_fleet(seed: int, n: int, weighting: str = "aicc", known_law: bool = False,
+              shape_prior: str = "pooled") -> pd.DataFrame:
     """The engine's results beside the truth for one invented fleet; known_law: each pump fitted with its true
     law alone (the fleet analysed in one part per law)."""
     pumps, readings, events, truth = invented_fleet(seed, n)
     now = readings["taken_at"].max() + pd.Timedelta(days=1)
-    parts = [(AnalysisSettings(law_weighting=weighting), pumps["pump_id"].to_numpy())]
+    parts = [(AnalysisSettings(law_weighting=weighting, shape_prior=shape_prior), pumps["pump_id"].to_numpy())]
     if known_law:
-        parts = [(AnalysisSettings(law_weighting=weighting, wear_laws=(ENGINE_LAW[law],)),
+        parts = [(AnalysisSettings(law_weighting=weighting, shape_prior=shape_prior, wear_laws=(ENGINE_LAW[law],)),
                   truth.index[truth["law"] == law].to_numpy()) for law in LAWS]
     results = []
     for settings, ids in parts:
@@ -201,10 +202,11 @@ def met(fig: dict) -> dict:
             for name in (*LAWS, "overall")}
 
 
-def _run(seeds, n, weighting, known_law, workers) -> pd.DataFrame:
+def _run(seeds, n, weighting, known_law, workers, shape_prior="pooled") -> pd.DataFrame:
     count = len(seeds)
     with ProcessPoolExecutor(max_workers=workers) as pool:
-        return pd.concat(list(pool.map(run_fleet, seeds, [n] * count, [weighting] * count, [known_law] * count)))
+        return pd.concat(list(pool.map(run_fleet, seeds, [n] * count, [weighting] * count, [known_law] * count,
+                                       [shape_prior] * count)))
 
 
 def main(argv: list[str] | None = None) -> dict:
@@ -214,6 +216,8 @@ def main(argv: list[str] | None = None) -> dict:
     parser.add_argument("--workers", type=int, default=2)
     parser.add_argument("--weighting", choices=("aicc", "held_back"), default="aicc",
                         help="how the engine weighs the wear laws (AnalysisSettings.law_weighting)")
+    parser.add_argument("--shape-prior", choices=("pooled", "flat"), default="pooled",
+                        help="the prior over the power and run-in laws' shapes (AnalysisSettings.shape_prior)")
     parser.add_argument("--known-law", action="store_true",
                         help="also fit every pump with its true law alone, the floor the averaged forecast is "
                              "measured against")
@@ -222,22 +226,23 @@ def main(argv: list[str] | None = None) -> dict:
     size = SIZES[args.size]
     started = time.perf_counter()
     seeds = [args.seed + k for k in range(size.fleets)]
-    rows = _run(seeds, size.pumps_per_fleet, args.weighting, False, args.workers)
+    rows = _run(seeds, size.pumps_per_fleet, args.weighting, False, args.workers, args.shape_prior)
     fig = figures(rows)
     fig["met"] = met(fig)
     floor = None
     if args.known_law:
-        floor = figures(_run(seeds, size.pumps_per_fleet, args.weighting, True, args.workers))
+        floor = figures(_run(seeds, size.pumps_per_fleet, args.weighting, True, args.workers, args.shape_prior))
         floor["met"] = met(floor)
         fig["known_law"] = floor
     fig["size"] = args.size
     fig["seed"] = args.seed
     fig["weighting"] = args.weighting
+    fig["shape_prior"] = args.shape_prior
     fig["fleets"] = size.fleets
     fig["pumps"] = int(len(rows))
     fig["seconds"] = round(time.perf_counter() - started, 1)
     print(f"{fig['pumps']} invented pumps in {size.fleets} fleets from seed {args.seed}, laws weighed by "
-          f"{args.weighting}, {fig['seconds']} s\n")
+          f"{args.weighting}, shape prior {args.shape_prior}, {fig['seconds']} s\n")
     print(table(fig, floor))
     print(f"\npumps before their limit without a forecast (no trend or flat): {fig['pumps_without_forecast']}; "
           f"past their limit: {fig['past_limit_pumps']}, of which found past: {100 * fig['past_limit_detected']:.0f} %")

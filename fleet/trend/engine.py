@@ -225,7 +225,7 @@ def analyze_fleet(
     intervals = intervals[intervals["pump_id"].isin(pump_tab.index)].reset_index(drop=True)
 
     # Wear trends and remaining life, every pump interval at once.
-    fits = fit_degradation(referred, s)
+    fits = fit_degradation(referred, s, pump_tab["kind"])
     fit_pump = pump_tab.reindex(fits["pump_id"])
     fits = summarise_fits(fits, fit_pump["rated_flow_lpm"].to_numpy(float), fit_pump["max_flow_lpm"].to_numpy(float), s)
     limits = limit_flows_lpm(
