@@ -58,12 +58,14 @@ def _as_frame(laws: LawFits, span: np.ndarray, current_hours: np.ndarray, prefix
 
 
 def fit_degradation(referred: pd.DataFrame, settings: AnalysisSettings | None = None,
-                    kind_of_pump: pd.Series | None = None) -> pd.DataFrame:
+                    kind_of_pump: pd.Series | None = None, shape_priors: pd.DataFrame | None = None) -> pd.DataFrame:
     """Fit ln(slip_ref) and ln(drain_ref) against interval hours for every pump interval.
 
     referred: refer_readings output with intervals assigned (pump_id, interval_no, interval_hours).
-    kind_of_pump (pump_id -> kind) is read only for the pooled shape prior (settings.shape_prior). Only
-    unflagged readings feed the fits. Error model of the slip: flow-meter noise sigma_Q = noise
+    kind_of_pump (pump_id -> kind) is read only for the pooled shape prior (settings.shape_prior), fitted from
+    these intervals unless shape_priors gives it.
+
+    Only unflagged readings feed the fits. Error model of the slip: flow-meter noise sigma_Q = noise
     fraction x reading, so var(ln slip_ref) ~ (sigma_Q / slip_raw)^2 with slip_raw the raw (unreferred)
     slip: a reading with a small raw slip (low pressure, cold oil) says little about the clearances. The
     raw slip is floored at a small positive value so noise pushing flow above theoretical does not break
@@ -133,7 +135,8 @@ def fit_degradation(referred: pd.DataFrame, settings: AnalysisSettings | None = 
     slip_laws.weigh(joint, joint_members)
     drain_laws.weigh(joint, joint_members)
     if s.shape_prior == "pooled" and kind_of_pump is not None:  # the forecast on the kind's pooled shapes
-        pool_shapes((slip_laws, drain_laws), joint, joint_members, kind_of_pump.reindex(keys["pump_id"]), s)
+        pool_shapes((slip_laws, drain_laws), joint, joint_members, kind_of_pump.reindex(keys["pump_id"]), s,
+                    shape_priors)
     # The slip's forecast follows the case drain's sharper shape (LawFits.centred_on); its band stays its own.
     slip_laws.centred_on(drain_laws, g, h, q_slip, slip_sigma(None), s)
     frames.append(_as_frame(slip_laws, _span(g, h, n_groups), current_hours, "slip", s))

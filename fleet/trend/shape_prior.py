@@ -105,12 +105,15 @@ def fit_shape_priors(law_score: np.ndarray, member_score: np.ndarray, usable: np
     return priors
 
 
-def pool_shapes(trends, law_score: np.ndarray, member_score: np.ndarray, kinds, settings) -> pd.DataFrame:
-    """Fit the shape priors of the intervals' pump kinds from their scores (AICc per law, n ln(D / n) per
-    member: the joint ones of every trend of an interval) and give each trend (LawFits, already weighed on the
-    flat prior) the weights its forecast follows, prior x likelihood; returns the priors."""
-    usable = np.logical_or.reduce([laws.usable for laws in trends])
-    priors = fit_shape_priors(law_score, member_score, usable, kinds, settings.shape_prior_min_intervals)
+def pool_shapes(trends, law_score: np.ndarray, member_score: np.ndarray, kinds, settings,
+                priors: pd.DataFrame | None = None) -> pd.DataFrame:
+    """Give each trend (LawFits, already weighed on the flat prior) the weights its forecast follows, prior x
+    likelihood, the priors those given (rows as fit_shape_priors, an ALL_KINDS row among them) or else fitted
+    from these intervals' scores (AICc per law, n ln(D / n) per member: the joint ones of every trend of an
+    interval); returns the priors."""
+    if priors is None:
+        usable = np.logical_or.reduce([laws.usable for laws in trends])
+        priors = fit_shape_priors(law_score, member_score, usable, kinds, settings.shape_prior_min_intervals)
     log_prior = member_log_prior(priors, kinds)
     for laws in trends:
         flat = laws.weight
