@@ -148,3 +148,26 @@ def test_pooled_option_moves_the_forecast_and_keeps_the_band():
     error = {name: ((res["hours_to_limit"] - remaining).abs() / remaining).median()
              for name, res in (("flat", flat), ("pooled", pooled))}
     assert error["pooled"] <= error["flat"] + 0.01, error  # a shared exponent: pooling must not hurt
+
+
+def test_calibration_own_shape_prior_sits_on_the_member_nearest_the_true_shape():
+    # The diagnostic --shape-known of benchmarks/calibration.py: each invented pump's prior on its own shape.
+    from benchmarks.calibration import invented_fleet, own_shape_priors
+
+    _, _, _, truth = invented_fleet(2024, 40)
+    priors = own_shape_priors(truth)
+    power = np.array([m.power for m in MEMBERS])
+    for pump_id, row in truth.iterrows():
+        prior = priors.loc[pump_id].to_numpy()
+        for cols in (POWER, RUN_IN):
+            assert np.isclose(prior[cols].sum(), 1.0, rtol=1e-9)
+        if row["law"] == "accelerating":
+            top = POWER[np.argmax(prior[POWER])]
+            # the nearest exponent on the grid's log scale (its steps are 2^(1/4))
+            assert abs(np.log(power[top] / row["power"])) <= np.log(2.0) / 8 + 1e-12, (power[top], row["power"])
+            assert prior[top] > 0.999
+        elif row["law"] == "run_in":
+            assert prior[RUN_IN].max() > 0.999
+        else:
+            assert np.allclose(prior[POWER], 1.0 / len(POWER))
+    assert np.allclose(priors.loc[ALL_KINDS].to_numpy()[POWER], 1.0 / len(POWER))
