@@ -27,7 +27,7 @@ def _span(group: np.ndarray, hours: np.ndarray, n_groups: int) -> np.ndarray:
 def _as_frame(laws: LawFits, span: np.ndarray, current_hours: np.ndarray, prefix: str, settings) -> pd.DataFrame:
     """The exponential member's line under the historical names (q_a, q_b, ...), the averaged figures, the laws."""
     exp = 0  # MEMBERS[0] is the exponential law
-    weights = laws.law_weights()
+    weights = laws.centred().law_weights()  # the weights the forecast follows (LawFits.centre_weight)
     stacked = np.column_stack([weights[law] for law in LAWS])
     fitted = laws.weight.sum(axis=1) > 0
     wear_law = np.where(fitted, np.array(LAWS, dtype=object)[np.argmax(stacked, axis=1)], None)

@@ -34,9 +34,9 @@ class AnalysisSettings:
     # exponent and run-in shape alike), or "pooled": fitted from the intervals analysed together, per pump kind
     # (a kind with under `shape_prior_min_intervals` intervals' worth of a family's weight takes every kind's),
     # the forecast following it and the band not. Flat is the default: on the invented fleets of
-    # benchmarks/calibration.py (--shape-prior pooled) pooling moved accelerating wear's error by 0.3 to 0.7
-    # point and run-in wear's by -0.8 to +0.5 (README, calibration), and a pooled prior would make one pump's
-    # figures depend on which pumps are analysed with it (a part, a posted reading's refresh).
+    # benchmarks/calibration.py (--shape-prior pooled) pooling cut accelerating and run-in wear's errors by 1 to 2
+    # points, no target newly met (README, calibration), and a pooled prior makes one pump's figures depend on
+    # the pumps analysed with it (a part of the fleet, a posted reading's refresh) until priors are stored.
     shape_prior: str = "flat"
     shape_prior_min_intervals: float = 20.0
     # Slip below this fraction of theoretical flow is floored before the log (noise can push flow above theory).

@@ -9,10 +9,11 @@ nonparametric maximum-likelihood estimate of a mixing distribution on a fixed gr
 Assoc. 73: 805-811), found by the EM algorithm (Dempster, Laird & Rubin 1977). Each interval counts by the weight
 its readings give the family (its AICc law weight): a prior over the exponents of accelerating wear comes from the
 intervals that look like accelerating wear. The member weights within a family are then prior x likelihood,
-renormalised (Bayes' rule), in place of the flat prior's likelihood alone; the laws' own weights are untouched.
-The forecast follows these weights (LawFits.centre_weight); the band keeps the flat prior's: weighed on the
-pooled prior too, it held the truth for only 83 to 84 % of accelerating pumps on the invented fleets of
-benchmarks/calibration.py, the prior's few favoured exponents narrowing it.
+renormalised (Bayes' rule), in place of the flat prior's likelihood alone, and each family's law is scored by its
+likelihood with the shape integrated out under that prior (marginal_law_score: one parameter fewer than with the
+best member's shape fitted). The forecast follows these weights (LawFits.centre_weight); the band keeps the flat
+prior's, joined with the band of the law the forecast follows: weighed on the pooled prior too, it held the
+truth for only 83 to 86 % of accelerating pumps on the invented fleets of benchmarks/calibration.py.
 
 A kind with fewer than `min_intervals` of a family's worth of weight takes the prior of all kinds pooled; with
 fewer than that in the whole fleet, the prior stays flat.
@@ -21,7 +22,7 @@ fewer than that in the whole fleet, the prior stays flat.
 import numpy as np
 import pandas as pd
 
-from fleet.trend.wear_laws import FAMILIES, LAWS, MEMBERS, akaike_weights
+from fleet.trend.wear_laws import FAMILIES, LAW_PARAMS, LAWS, MEMBERS, akaike_weights
 
 # Floor of a member's prior, as a share of the flat prior 1 / (members of the family): the EM estimate puts its
 # mass on few grid points, and a member a kind has not shown yet must still be able to win where one interval's
@@ -107,19 +108,45 @@ def fit_shape_priors(law_score: np.ndarray, member_score: np.ndarray, usable: np
 
 def pool_shapes(trends, law_score: np.ndarray, member_score: np.ndarray, kinds, settings,
                 priors: pd.DataFrame | None = None) -> pd.DataFrame:
-    """Give each trend (LawFits, already weighed on the flat prior) the weights its forecast follows, prior x
-    likelihood, the priors those given (rows as fit_shape_priors, an ALL_KINDS row among them) or else fitted
-    from these intervals' scores (AICc per law, n ln(D / n) per member: the joint ones of every trend of an
-    interval); returns the priors."""
+    """Give each trend (LawFits, already weighed on the flat prior) the weights its forecast follows: the laws
+    by marginal_law_score, the members within a family by prior x likelihood. The priors are those given (rows
+    as fit_shape_priors, an ALL_KINDS row among them) or else fitted from these intervals' scores (AICc per law,
+    n ln(D / n) per member: the joint ones of every trend of an interval); returns the priors."""
+    usable = np.logical_or.reduce([laws.usable for laws in trends])
     if priors is None:
-        usable = np.logical_or.reduce([laws.usable for laws in trends])
         priors = fit_shape_priors(law_score, member_score, usable, kinds, settings.shape_prior_min_intervals)
     log_prior = member_log_prior(priors, kinds)
+    marginal = marginal_law_score(law_score, member_score, usable, log_prior, [laws.n_points for laws in trends])
     for laws in trends:
         flat = laws.weight
-        laws.weigh(law_score, member_score, log_prior)
+        laws.weigh(marginal, member_score, log_prior)
         laws.centre_weight, laws.weight = laws.weight, flat
     return priors
+
+
+def marginal_law_score(law_score: np.ndarray, member_score: np.ndarray, usable: np.ndarray, log_prior: np.ndarray,
+                       n_points) -> np.ndarray:
+    """The laws' AICc with each family's shape integrated out under its prior rather than fitted: the family's
+    fit term -2 ln sum_j pi_j exp(-s_j / 2) in place of its best member's s_best, and one parameter fewer in the
+    penalty 2K + 2K(K + 1) / (n - K - 1) of each trend scored (n_points: readings per interval of each trend
+    whose scores are summed in law_score). The exponential and linear laws keep theirs."""
+    out = np.array(law_score, dtype=float, copy=True)
+    for family in FAMILIES:
+        cols = _family_columns(family)
+        k = float(LAW_PARAMS[family])
+        likelihood = member_likelihood(member_score, usable, family)  # relative to the best member
+        with np.errstate(divide="ignore", invalid="ignore"):
+            extra = -2.0 * np.log(np.sum(likelihood * np.exp(log_prior[:, cols]), axis=1))
+        fewer = np.zeros(len(out))
+        for n in n_points:
+            n = np.nan_to_num(np.asarray(n, dtype=float))
+            scored = n - k - 1.0 > 0
+            with np.errstate(divide="ignore", invalid="ignore"):
+                drop = 2.0 + 2.0 * k * (k + 1) / (n - k - 1) - 2.0 * (k - 1) * k / (n - k)
+            fewer += np.where(scored, drop, 0.0)
+        f = LAWS.index(family)
+        out[:, f] = np.where(np.isfinite(extra), out[:, f] + extra - fewer, out[:, f])
+    return out
 
 
 def member_log_prior(priors: pd.DataFrame, kinds) -> np.ndarray:
