@@ -38,6 +38,8 @@ from benchmarks.wear_fleets import (
 )
 from fleet.trend.engine import analyze_fleet
 from fleet.trend.settings import AnalysisSettings
+from fleet.trend.shape_prior import ALL_KINDS
+from fleet.trend.wear_laws import MEMBERS
 
 LAWS = ("exponential", "linear", "accelerating", "run_in")
 ENGINE_LAW = {"exponential": "exponential", "linear": "linear", "accelerating": "power", "run_in": "run_in"}
@@ -124,26 +126,67 @@ def invented_fleet(seed: int, n: int):
     })], ignore_index=True)
     # Without an event the engine counts interval hours from the first reading, and the meter from new.
     counted_from = np.where(overhauled, 0.0, first)
-    truth = pd.DataFrame({"law": law, "crossing": crossing - counted_from, "beyond": beyond},
+    # The shape in the engine's terms (hours as a share of the latest reading's, H): the power law's exponent is
+    # the same; the run-in's time constant and share are rescaled from the life to the limit to H.
+    reach = last / crossing
+    run_in_part = share * -np.expm1(-reach / tau)
+    truth = pd.DataFrame({"law": law, "crossing": crossing - counted_from, "beyond": beyond, "power": power,
+                          "run_in_tau": tau / reach, "run_in_share": run_in_part / (run_in_part + (1 - share) * reach)},
                          index=pumps["pump_id"].to_numpy())
     return pumps, readings, events, truth
 
 
-def run_fleet(seed: int, n: int, weighting: str = "aicc", known_law: bool = False) -> pd.DataFrame:
+def own_shape_priors(truth: pd.DataFrame) -> pd.DataFrame:
+    """Shape priors (rows as fleet.trend.shape_prior.fit_shape_priors) that put every pump's whole prior on the
+    grid member nearest its own true shape, one row per pump (its kind its pump_id): what knowing each pump's
+    shape would give, which no fleet can fit (a diagnostic of the limit of pooling, --shape-known)."""
+    names = [m.name for m in MEMBERS]
+    power = np.array([m.power if m.law == "power" else np.nan for m in MEMBERS])
+    tau = np.array([m.tau if m.law == "run_in" else np.nan for m in MEMBERS])
+    share = np.array([m.share if m.law == "run_in" else np.nan for m in MEMBERS])
+    rows = np.zeros((len(truth), len(MEMBERS)))
+    families = {law: np.array([m.law == law for m in MEMBERS]) for law in ("power", "run_in")}
+    for i, (law, p, t, s) in enumerate(truth[["law", "power", "run_in_tau", "run_in_share"]].itertuples(False)):
+        rows[i, :2] = 1.0
+        for of_family in families.values():
+            rows[i, of_family] = 1.0 / of_family.sum()  # flat where the pump does not wear by that family
+        if law == "accelerating":
+            distance = np.abs(np.log(power / p))
+        elif law == "run_in":  # grid steps: a sixth of a decade in tau, 0.1 in the share
+            distance = (np.log(tau / t) / (np.log(10.0) / 6.0)) ** 2 + ((share - s) / 0.1) ** 2
+        else:
+            continue
+        of_family = families[ENGINE_LAW[law]]
+        rows[i, of_family] = 1e-12
+        rows[i, np.nanargmin(np.where(of_family, distance, np.nan))] = 1.0
+    own = pd.DataFrame(rows, index=truth.index.astype(object), columns=names)
+    flat = pd.DataFrame([own.iloc[0] * 0 + 1.0], index=[ALL_KINDS], columns=names)
+    for of_family in families.values():
+        flat.loc[ALL_KINDS, of_family] = 1.0 / of_family.sum()
+    return pd.concat([own, flat])
+
+
+def run_fleet(seed: int, n: int, weighting: str = "aicc", known_law: bool = False, shape_prior: str = "flat",
+              shape_known: bool = False) -> pd.DataFrame:
     """The engine's results beside the truth for one invented fleet; known_law: each pump fitted with its true
-    law alone (the fleet analysed in one part per law)."""
+    law alone (the fleet analysed in one part per law); shape_known: each pump's shape prior on its own true
+    shape (own_shape_priors)."""
     pumps, readings, events, truth = invented_fleet(seed, n)
     now = readings["taken_at"].max() + pd.Timedelta(days=1)
-    parts = [(AnalysisSettings(law_weighting=weighting), pumps["pump_id"].to_numpy())]
+    shape_priors = None
+    if shape_known:
+        pumps["kind"] = pumps["pump_id"].astype(object)
+        shape_prior, shape_priors = "pooled", own_shape_priors(truth)
+    parts = [(AnalysisSettings(law_weighting=weighting, shape_prior=shape_prior), pumps["pump_id"].to_numpy())]
     if known_law:
-        parts = [(AnalysisSettings(law_weighting=weighting, wear_laws=(ENGINE_LAW[law],)),
+        parts = [(AnalysisSettings(law_weighting=weighting, shape_prior=shape_prior, wear_laws=(ENGINE_LAW[law],)),
                   truth.index[truth["law"] == law].to_numpy()) for law in LAWS]
     results = []
     for settings, ids in parts:
         analysis = analyze_fleet(pumps[pumps["pump_id"].isin(ids)].reset_index(drop=True),
                                  readings[readings["pump_id"].isin(ids)].reset_index(drop=True),
                                  events[events["pump_id"].isin(ids)].reset_index(drop=True), None, now=now,
-                                 settings=settings)
+                                 settings=settings, shape_priors=shape_priors)
         results.append(analysis.results)
     res = pd.concat(results)
     out = truth.join(res.reindex(columns=["n_points", "interval_hours", "hours_to_limit", "hours_to_limit_low",
@@ -201,10 +244,11 @@ def met(fig: dict) -> dict:
             for name in (*LAWS, "overall")}
 
 
-def _run(seeds, n, weighting, known_law, workers) -> pd.DataFrame:
+def _run(seeds, n, weighting, known_law, workers, shape_prior, shape_known) -> pd.DataFrame:
     count = len(seeds)
     with ProcessPoolExecutor(max_workers=workers) as pool:
-        return pd.concat(list(pool.map(run_fleet, seeds, [n] * count, [weighting] * count, [known_law] * count)))
+        return pd.concat(list(pool.map(run_fleet, seeds, [n] * count, [weighting] * count, [known_law] * count,
+                                       [shape_prior] * count, [shape_known] * count)))
 
 
 def main(argv: list[str] | None = None) -> dict:
@@ -214,6 +258,11 @@ def main(argv: list[str] | None = None) -> dict:
     parser.add_argument("--workers", type=int, default=2)
     parser.add_argument("--weighting", choices=("aicc", "held_back"), default="aicc",
                         help="how the engine weighs the wear laws (AnalysisSettings.law_weighting)")
+    parser.add_argument("--shape-prior", choices=("flat", "pooled"), default="flat",
+                        help="the prior over the power and run-in laws' shapes (AnalysisSettings.shape_prior)")
+    parser.add_argument("--shape-known", action="store_true",
+                        help="a diagnostic: each pump's shape prior on its own true exponent or run-in shape (the "
+                             "nearest grid member), what no pooling can reach")
     parser.add_argument("--known-law", action="store_true",
                         help="also fit every pump with its true law alone, the floor the averaged forecast is "
                              "measured against")
@@ -222,22 +271,24 @@ def main(argv: list[str] | None = None) -> dict:
     size = SIZES[args.size]
     started = time.perf_counter()
     seeds = [args.seed + k for k in range(size.fleets)]
-    rows = _run(seeds, size.pumps_per_fleet, args.weighting, False, args.workers)
+    rows = _run(seeds, size.pumps_per_fleet, args.weighting, False, args.workers, args.shape_prior, args.shape_known)
     fig = figures(rows)
     fig["met"] = met(fig)
     floor = None
     if args.known_law:
-        floor = figures(_run(seeds, size.pumps_per_fleet, args.weighting, True, args.workers))
+        floor = figures(_run(seeds, size.pumps_per_fleet, args.weighting, True, args.workers, args.shape_prior,
+                             args.shape_known))
         floor["met"] = met(floor)
         fig["known_law"] = floor
     fig["size"] = args.size
     fig["seed"] = args.seed
     fig["weighting"] = args.weighting
+    fig["shape_prior"] = "own true shape" if args.shape_known else args.shape_prior
     fig["fleets"] = size.fleets
     fig["pumps"] = int(len(rows))
     fig["seconds"] = round(time.perf_counter() - started, 1)
     print(f"{fig['pumps']} invented pumps in {size.fleets} fleets from seed {args.seed}, laws weighed by "
-          f"{args.weighting}, {fig['seconds']} s\n")
+          f"{args.weighting}, shape prior {fig['shape_prior']}, {fig['seconds']} s\n")
     print(table(fig, floor))
     print(f"\npumps before their limit without a forecast (no trend or flat): {fig['pumps_without_forecast']}; "
           f"past their limit: {fig['past_limit_pumps']}, of which found past: {100 * fig['past_limit_detected']:.0f} %")

@@ -14,6 +14,7 @@ import pandas as pd
 from fleet.trend.grouped import group_first, group_max, group_min, pair_codes
 from fleet.trend.model_average import averaged_slope, heaviest_law_median
 from fleet.trend.settings import AnalysisSettings
+from fleet.trend.shape_prior import pool_shapes
 from fleet.trend.wear_laws import LAWS, LawFits, fit_wear_laws, joint_score
 
 QUANTITIES = ("slip", "drain")
@@ -26,7 +27,7 @@ def _span(group: np.ndarray, hours: np.ndarray, n_groups: int) -> np.ndarray:
 def _as_frame(laws: LawFits, span: np.ndarray, current_hours: np.ndarray, prefix: str, settings) -> pd.DataFrame:
     """The exponential member's line under the historical names (q_a, q_b, ...), the averaged figures, the laws."""
     exp = 0  # MEMBERS[0] is the exponential law
-    weights = laws.law_weights()
+    weights = laws.centred().law_weights()  # the weights the forecast follows (LawFits.centre_weight)
     stacked = np.column_stack([weights[law] for law in LAWS])
     fitted = laws.weight.sum(axis=1) > 0
     wear_law = np.where(fitted, np.array(LAWS, dtype=object)[np.argmax(stacked, axis=1)], None)
@@ -56,10 +57,14 @@ def _as_frame(laws: LawFits, span: np.ndarray, current_hours: np.ndarray, prefix
     return pd.concat([pd.DataFrame({f"{prefix}_{k}": v for k, v in cols.items()}), block], axis=1)
 
 
-def fit_degradation(referred: pd.DataFrame, settings: AnalysisSettings | None = None) -> pd.DataFrame:
+def fit_degradation(referred: pd.DataFrame, settings: AnalysisSettings | None = None,
+                    kind_of_pump: pd.Series | None = None, shape_priors: pd.DataFrame | None = None) -> pd.DataFrame:
     """Fit ln(slip_ref) and ln(drain_ref) against interval hours for every pump interval.
 
     referred: refer_readings output with intervals assigned (pump_id, interval_no, interval_hours).
+    kind_of_pump (pump_id -> kind) is read only for the pooled shape prior (settings.shape_prior), fitted from
+    these intervals unless shape_priors gives it.
+
     Only unflagged readings feed the fits. Error model of the slip: flow-meter noise sigma_Q = noise
     fraction x reading, so var(ln slip_ref) ~ (sigma_Q / slip_raw)^2 with slip_raw the raw (unreferred)
     slip: a reading with a small raw slip (low pressure, cold oil) says little about the clearances. The
@@ -129,6 +134,9 @@ def fit_degradation(referred: pd.DataFrame, settings: AnalysisSettings | None = 
     joint_members = joint_score(slip_laws.member_score, drain_laws.member_score)
     slip_laws.weigh(joint, joint_members)
     drain_laws.weigh(joint, joint_members)
+    if s.shape_prior == "pooled" and kind_of_pump is not None:  # the forecast on the kind's pooled shapes
+        pool_shapes((slip_laws, drain_laws), joint, joint_members, kind_of_pump.reindex(keys["pump_id"]), s,
+                    shape_priors)
     # The slip's forecast follows the case drain's sharper shape (LawFits.centred_on); its band stays its own.
     slip_laws.centred_on(drain_laws, g, h, q_slip, slip_sigma(None), s)
     frames.append(_as_frame(slip_laws, _span(g, h, n_groups), current_hours, "slip", s))

@@ -214,10 +214,12 @@ def analyze_fleet(
     now,
     settings: AnalysisSettings | None = None,
     priors: pd.DataFrame | None = None,
+    shape_priors: pd.DataFrame | None = None,
 ) -> FleetAnalysis:
     """Analyse every pump. `now` is the moment of the analysis (overdue readings, late lab results, horizon).
 
-    priors, when given, is used as is (no refit of the fleet Weibull), so a single pump can be re-analysed.
+    priors, when given, is used as is (no refit of the fleet Weibull), so a single pump can be re-analysed;
+    shape_priors likewise for the pooled shape prior (settings.shape_prior, fleet.trend.shape_prior).
     """
     s = settings or AnalysisSettings()
     now = pd.Timestamp(now)
@@ -226,7 +228,7 @@ def analyze_fleet(
     intervals = intervals[intervals["pump_id"].isin(pump_tab.index)].reset_index(drop=True)
 
     # Wear trends and remaining life, every pump interval at once.
-    fits = fit_degradation(referred, s)
+    fits = fit_degradation(referred, s, pump_tab["kind"], shape_priors)
     fit_pump = pump_tab.reindex(fits["pump_id"])
     fits = summarise_fits(fits, fit_pump["rated_flow_lpm"].to_numpy(float), fit_pump["max_flow_lpm"].to_numpy(float), s)
     limits = limit_flows_lpm(

@@ -11,8 +11,9 @@ Where the mixture never reaches a level (the trend may stay flat), that bound st
 
 What the pages and the plan read (crossing_band, value_band) takes these pieces one law at a time: the forecast
 is the heaviest law's own median, the band the union of the bands of the laws the readings cannot rule out. The
-median is taken on the lines the forecast follows (LawFits.centred: for the slip, the case drain's shape at the
-slip's level), the bands on the trend's own lines; the band is widened to hold the forecast where it lies past.
+median is taken on the lines and weights the forecast follows (LawFits.centred: for the slip, the case drain's
+shape at the slip's level; with a pooled shape prior, its weights), the bands on the trend's own lines and weights
+(with the forecast's law among them); the band is widened to hold the forecast where it lies past.
 """
 
 import dataclasses
@@ -200,7 +201,8 @@ def law_alone(fits: LawFits, law: str, rows: np.ndarray | None = None) -> LawFit
 
 
 def heaviest_law(fits: LawFits) -> np.ndarray:
-    """Per group, the index in LAWS of the law with the most weight (the pages' and the JSON's wear_law)."""
+    """Per group, the index in LAWS of the law with the most weight (of fits.centred(): the pages' and the JSON's
+    wear_law)."""
     weights = fits.law_weights()
     return np.argmax(np.column_stack([weights[law] for law in LAWS]), axis=1)
 
@@ -210,9 +212,9 @@ def heaviest_law_median(fits: LawFits, hours, confidence: float) -> np.ndarray:
     line of value_band, and so the trend's value now that the pages show beside the forecast."""
     hours = np.asarray(hours, dtype=float)
     expand = (slice(None), None) if hours.ndim == 2 else (slice(None),)
-    heaviest = heaviest_law(fits)
-    median = np.full(hours.shape, np.nan)
     centred = fits.centred()
+    heaviest = heaviest_law(centred)
+    median = np.full(hours.shape, np.nan)
     for k, law in enumerate(LAWS):
         rows = (heaviest == k) & (fits.weight.sum(axis=1) > 0)
         if rows.any():
@@ -221,12 +223,15 @@ def heaviest_law_median(fits: LawFits, hours, confidence: float) -> np.ndarray:
     return median
 
 
-def plausible_laws(fits: LawFits) -> dict[str, np.ndarray]:
+def plausible_laws(fits: LawFits, forecast_law: np.ndarray | None = None) -> dict[str, np.ndarray]:
     """Per law, the groups whose readings cannot rule it out: its weight at least CONFIDENCE_SET_RATIO of the
-    heaviest law's (and above zero)."""
+    heaviest law's (and above zero); and the law the forecast follows (forecast_law, an index in LAWS per
+    group, where its weights differ: LawFits.centre_weight), so that the band holds its law's band too."""
     weights = fits.law_weights()
     top = np.max(np.column_stack([weights[law] for law in LAWS]), axis=1)
-    return {law: (weights[law] > 0) & (weights[law] >= CONFIDENCE_SET_RATIO * top) for law in LAWS}
+    fitted = fits.weight.sum(axis=1) > 0
+    return {law: ((weights[law] > 0) & (weights[law] >= CONFIDENCE_SET_RATIO * top))
+            | (fitted & (forecast_law == k) if forecast_law is not None else False) for k, law in enumerate(LAWS)}
 
 
 def crossing_band(fits: LawFits, limit, now_hours, confidence: float) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
@@ -247,13 +252,13 @@ def crossing_band(fits: LawFits, limit, now_hours, confidence: float) -> tuple[n
     only when no plausible law reaches the limit's low quantile.
     """
     alpha = 1.0 - confidence
-    heaviest = heaviest_law(fits)
+    centred = fits.centred()
+    heaviest = heaviest_law(centred)
     median = np.full(len(fits), np.nan)
     low = np.full(len(fits), np.nan)
     high = np.full(len(fits), -np.inf)
     open_high = np.zeros(len(fits), dtype=bool)
-    centred = fits.centred()
-    for k, (law, rows) in enumerate(plausible_laws(fits).items()):
+    for k, (law, rows) in enumerate(plausible_laws(fits, heaviest).items()):
         if not rows.any():
             continue
         top = rows & (heaviest == k)
@@ -283,7 +288,8 @@ def value_band(fits: LawFits, hours, confidence: float) -> tuple[np.ndarray, np.
     plausible laws' own bands. The centre meets a limit at crossing_band's forecast, the edges at its bounds."""
     hours = np.asarray(hours, dtype=float)
     alpha = 1.0 - confidence
-    heaviest = heaviest_law(fits)
+    centred = fits.centred()
+    heaviest = heaviest_law(centred)
     median = np.full(hours.shape, np.nan)
     low = np.full(hours.shape, np.nan)
     high = np.full(hours.shape, np.nan)
@@ -291,8 +297,7 @@ def value_band(fits: LawFits, hours, confidence: float) -> tuple[np.ndarray, np.
     grid = hours if hours.ndim == 2 else hours[:, None]
     levels = np.repeat([alpha / 2, 0.5, 1 - alpha / 2], grid.shape[1])[None, :]  # three quantiles, one search
     edge_levels = np.repeat([alpha / 2, 1 - alpha / 2], grid.shape[1])[None, :]
-    centred = fits.centred()
-    for k, (law, rows) in enumerate(plausible_laws(fits).items()):
+    for k, (law, rows) in enumerate(plausible_laws(fits, heaviest).items()):
         if not rows.any():
             continue
         top = rows & (heaviest == k)

@@ -30,6 +30,15 @@ class AnalysisSettings:
     # The wear laws compared (fleet.trend.wear_laws.LAWS); fewer for a known law, as the calibration benchmark's
     # --known-law does to find the best any fit of that law reaches on the same readings.
     wear_laws: tuple[str, ...] = ("exponential", "linear", "power", "run_in")
+    # The prior over the shapes within the power and run-in laws (fleet.trend.shape_prior): "flat" (every
+    # exponent and run-in shape alike), or "pooled": fitted from the intervals analysed together, per pump kind
+    # (a kind with under `shape_prior_min_intervals` intervals' worth of a family's weight takes every kind's),
+    # the forecast following it and the band not. Flat is the default: on the invented fleets of
+    # benchmarks/calibration.py (--shape-prior pooled) pooling cut accelerating and run-in wear's errors by 1 to 2
+    # points, no target newly met (README, calibration), and a pooled prior makes one pump's figures depend on
+    # the pumps analysed with it (a part of the fleet, a posted reading's refresh) until priors are stored.
+    shape_prior: str = "flat"
+    shape_prior_min_intervals: float = 20.0
     # Slip below this fraction of theoretical flow is floored before the log (noise can push flow above theory).
     slip_floor_fraction: float = 0.001
 

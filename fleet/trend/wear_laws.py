@@ -117,6 +117,9 @@ class LawFits:
     # median is the forecast and the chart's centre; None: (a, b) themselves. The band stays on (a, b).
     centre_a: np.ndarray | None = None
     centre_b: np.ndarray | None = None
+    # The member weights the forecast follows where they differ from `weight` (fleet.trend.shape_prior: the
+    # shapes pooled over the pump kind); the band keeps `weight`.
+    centre_weight: np.ndarray | None = None
     _t_ratio: dict = field(default_factory=dict, repr=False)
 
     def t_ratio(self, confidence: float) -> np.ndarray:
@@ -126,15 +129,18 @@ class LawFits:
             self._t_ratio[confidence] = special.ndtri(0.5 + confidence / 2.0) / t_quantile(confidence, self.dof)
         return self._t_ratio[confidence]
 
-    def weigh(self, law_score: np.ndarray, member_score: np.ndarray) -> None:
+    def weigh(self, law_score: np.ndarray, member_score: np.ndarray, log_prior: np.ndarray | None = None) -> None:
         """Set the member weights from scores per group: AICc per law, and the fit term n ln(D / n) per member
         of a law with many members (same K, so the likelihood alone weighs them); this trend's own, or summed
-        with another's. Where no law could be scored the first allowed law stands alone."""
+        with another's. Where no law could be scored the first allowed law stands alone. log_prior: per group
+        and member the log prior within its family (None: flat), so a member's weight within its family is
+        prior x likelihood (Bayes' rule; fleet.trend.shape_prior)."""
         law_w = akaike_weights(law_score, fallback=LAWS.index(self.allowed[0]))
         weight = np.zeros(self.a.shape)
         for k, law in enumerate(LAWS):
             of_law = np.array([m.law == law for m in MEMBERS])
-            within = akaike_weights(member_score[:, of_law]) if law in FAMILIES else 1.0
+            score = member_score[:, of_law] - (0.0 if log_prior is None else 2.0 * log_prior[:, of_law])
+            within = akaike_weights(score) if law in FAMILIES else 1.0
             weight[:, of_law] = law_w[:, [k]] * within
         weight = np.where(self.usable, weight, 0.0)
         # A member with under a millionth of the heaviest one's weight moves no forecast (all of them together
@@ -154,9 +160,12 @@ class LawFits:
     def centred(self) -> "LawFits":
         """The fits with each member's line moved to the line the forecast follows (centre_a, centre_b), its
         spread and weight kept: the forecast and the chart's centre come from these, the band from self."""
-        if self.centre_a is None:
+        if self.centre_a is None and self.centre_weight is None:
             return self
-        return dataclasses.replace(self, a=self.centre_a, b=self.centre_b, _t_ratio=self._t_ratio)
+        return dataclasses.replace(
+            self, a=self.a if self.centre_a is None else self.centre_a,
+            b=self.b if self.centre_b is None else self.centre_b,
+            weight=self.weight if self.centre_weight is None else self.centre_weight, _t_ratio=self._t_ratio)
 
     def centred_on(self, other: "LawFits", group, hours, value, sigma, settings: AnalysisSettings) -> None:
         """Set the lines the forecast follows to the shape of `other` (the case drain's trend of the same
@@ -179,7 +188,8 @@ class LawFits:
                 & (count >= 4) & (np.nan_to_num(other.n_points) >= settings.min_points))
         refuted_at = stats.f.ppf(0.99, 1, np.maximum(count - 2, 1))
         centre_a, centre_b = self.a.copy(), self.b.copy()
-        weighed = (self.weight > 0) & same[:, None]  # a member without weight moves no forecast
+        weight = self.weight if self.centre_weight is None else np.fmax(self.weight, self.centre_weight)
+        weighed = (weight > 0) & same[:, None]  # a member without weight moves no forecast
         pair_g, pair_j = np.nonzero(weighed)
         # Every weighed (group, member) pair at once, each with its group's readings (in their own order), in
         # parts of whole pairs that bound memory.
@@ -205,6 +215,8 @@ class LawFits:
             f"{prefix}_hours_offset": self.hours_offset,
         }
         centre = CENTRE_FIELDS if self.centre_a is not None else ()
+        if self.centre_weight is not None:
+            centre = (*centre, "centre_weight")
         for j, m in enumerate(MEMBERS):
             for f in (*FIELDS, *centre):
                 cols[f"{prefix}_{m.name}_{f}"] = getattr(self, f)[:, j]
@@ -219,6 +231,8 @@ class LawFits:
 
         # The lines the forecast follows are kept only for a trend centred on another's (centred_on).
         fields = (*FIELDS, *CENTRE_FIELDS) if f"{prefix}_{MEMBERS[0].name}_centre_a" in frame else FIELDS
+        if f"{prefix}_{MEMBERS[0].name}_centre_weight" in frame:
+            fields = (*fields, "centre_weight")
         if isinstance(frame, pd.DataFrame):  # every member's columns in one take, not one lookup each
             names = [f"{prefix}_{m.name}_{f}" for f in fields for m in MEMBERS]
             block = frame[names].to_numpy(dtype=float).reshape(len(frame), len(fields), len(MEMBERS))
