@@ -27,7 +27,7 @@ def percent_points(value, empty: str = "-") -> str:
 def _hours(record: dict) -> str:
     """Hours to the limit with bounds, or 'beyond 10 years' (fleet.horizon) for a forecast that far ahead."""
     if record.get("crossed_date"):
-        return "past (crossed ~date)"
+        return "past: crossed around"
     hours = record.get("hours_to_limit")
     text = hours_text(hours, record.get("limit_date"), empty="-", unit="")
     if hours is None or not text[:1].isdigit():
@@ -50,7 +50,8 @@ def service_table(records: list[dict], width: int = 110) -> str:
              f"{'hours to limit (bounds)':<26} {'date':<15} {'limit':<10}"
     lines = [header, "-" * len(header)]
     for record in records:
-        limit = record.get("governing_limit")
+        # A pump past its limit: the limit its trend crossed first, as the date beside it is that crossing's.
+        limit = record.get("crossed_limit") if record.get("crossed_date") else record.get("governing_limit")
         lines.append(
             f"{record.get('rank') or '':>3}  {str(record['pump'])[:14]:<14} "
             f"{STATUS_LABELS.get(record['status'], record['status']):<11} "
