@@ -245,17 +245,21 @@ def _parse_numbers(spec: Column, cells: pd.Series, blank: pd.Series, unit: str |
 
 
 def _checked_numbers(spec: Column, numbers: pd.Series, blank: pd.Series, unit: str | None, flag) -> pd.Series:
-    """Numbers read from their cells, in canonical units, each refused one flagged and left missing."""
-    flag(~blank & numbers.isna(), lambda cell: f"'{cell}' is not a number")
+    """Numbers read from their cells, in canonical units, each refused one flagged and left missing (numpy over
+    the column: a block of a large file costs a few array passes, not pandas' per-operation machinery)."""
+    index = numbers.index
+    numbers, blank = numbers.to_numpy(dtype=float), np.asarray(blank, dtype=bool)
+    missing = np.isnan(numbers)
+    flag(~blank & missing, lambda cell: f"'{cell}' is not a number")
     unit = unit if unit is not None else spec.default_unit
     # 'inf' and '1e999' parse as numbers; no reading or register value is infinite, or near it.
     with np.errstate(over="ignore", invalid="ignore"):
-        values = pd.Series(units.to_canonical(numbers.to_numpy(), unit, spec.quantity), index=numbers.index) \
+        values = np.asarray(units.to_canonical(numbers, unit, spec.quantity), dtype=float) \
             if spec.quantity else numbers
-    huge = ~np.isfinite(values) | (values.abs() > MAX_MAGNITUDE)
-    flag(~blank & numbers.notna() & huge, lambda cell: f"{cell} is not a finite number of a sensible size "
+        huge = ~np.isfinite(values) | (np.abs(values) > MAX_MAGNITUDE)
+    flag(~blank & ~missing & huge, lambda cell: f"{cell} is not a finite number of a sensible size "
          f"(at most {MAX_MAGNITUDE:g} in canonical units)")
-    values = values.mask(huge)
+    values = np.where(huge, np.nan, values)
 
     def bound(value: float) -> str:
         """A bound in the unit the number was given in (a stroke typed in % is told its bounds in %)."""
@@ -273,8 +277,8 @@ def _checked_numbers(spec: Column, numbers: pd.Series, blank: pd.Series, unit: s
             flag(values > spec.max + 1e-9, lambda cell: f"{cell} is above the highest allowed value "
                  f"({bound(spec.max)})")
         if spec.integer:
-            flag(values.notna() & (values != values.round()), lambda cell: f"{cell} must be a whole number")
-    return values
+            flag(~np.isnan(values) & (values != np.round(values)), lambda cell: f"{cell} must be a whole number")
+    return pd.Series(values, index=index)
 
 
 def _floats(cells: pd.Series) -> np.ndarray:

@@ -184,8 +184,8 @@ class _Blocks:
         self.file_problems: list[Problem] = []  # unknown pumps and repeated (pump, time) when the cells are right
         self.refused = bool(headers.problems)
         self.serial_codes: dict[str, int] = {}
-        self.seen_codes: list[np.ndarray] = []  # the serial code and key of every earlier block's rows
-        self.seen_keys: list[np.ndarray] = []
+        self.seen_codes: list[np.ndarray] = []  # the serial code and time of every earlier block's rows
+        self.seen_micros: list[np.ndarray] = []
 
     @property
     def cells_wrong(self) -> bool:
@@ -212,24 +212,25 @@ class _Blocks:
         self._repeats(data)
         if self.file_problems:
             self.refused = True
+        given = {"flow_lpm": "outlet_flow", "drain_lpm": "case_drain_flow", "stroke": "stroke", "note": "note",
+                 "taken_by": "taken_by", "source": "source"}
         frame = pd.DataFrame({
             "pump_id": np.nan_to_num(block.ids).astype(np.int64),
             "taken_at": data["taken_at"],
             "hours": data["hours"],
             "pressure_bar": data["outlet_pressure"],
             "speed_rpm": data["speed"],
-            "flow_lpm": _column(data, "outlet_flow"),
-            "drain_lpm": _column(data, "case_drain_flow"),
             "temp_c": data["oil_temp"],
-            "stroke": _column(data, "stroke"),
-            "taken_by": _column(data, "taken_by").where(lambda s: s.notna(), self.taken_by),
-            "note": _column(data, "note"),
-            "source": _column(data, "source").where(lambda s: s.notna(), self.source),
-            "created_at": self.created_at,
-        }, index=data.index)
+        } | {name: data[field] for name, field in given.items() if field in data}, index=data.index)
+        # A column the file lacks holds one value in every row: the import's own for taken_by and source.
+        defaults = {"taken_by": self.taken_by, "source": self.source}
+        for name in ("taken_by", "source"):
+            if name in frame:
+                frame[name] = frame[name].where(frame[name].notna(), defaults[name])
+        same = {name: defaults.get(name) for name in given if name not in frame} | {"created_at": self.created_at}
         block.meter = frame[["pump_id", "taken_at", "hours"]]
         if self.writer is not None and not self.refused:
-            block.prepared = self.writer.prepare(frame)
+            block.prepared = self.writer.prepare(frame, same)
         return block
 
     def _ids(self, serials: pd.Series) -> np.ndarray:
@@ -248,24 +249,29 @@ class _Blocks:
         """Rows whose pump and time appear earlier in the file, in this block or an earlier one."""
         codes, unique = pd.factorize(data["pump"])
         known = np.array([self.serial_codes.setdefault(serial, len(self.serial_codes)) for serial in unique],
-                         dtype=float)
-        # One complex number per (serial, time): both parts exact, as a serial's code and a time's microseconds since
-        # 1970 (below 2^53 until the year 2255) are whole numbers a double holds exactly.
-        micros = data["taken_at"].to_numpy(dtype="datetime64[us]").view(np.int64).astype(float)
-        serial_codes = known[codes].astype(np.int64)
-        keys = serial_codes + 1j * micros
-        repeated = pd.Index(keys).duplicated(keep="first")
+                         dtype=np.int64)
+        serial_codes = known[codes]
+        micros = data["taken_at"].to_numpy(dtype="datetime64[us]").view(np.int64)
+        # Within the block: sorted by (serial, time), stably, a row equal to the one before it is a later repeat.
+        order = np.lexsort((micros, serial_codes))
+        same = (np.diff(serial_codes[order]) == 0) & (np.diff(micros[order]) == 0)
+        repeated = np.zeros(len(data), dtype=bool)
+        repeated[order[1:][same]] = True
         if self.seen_codes:
             # Only earlier rows of this block's pumps can repeat one of its rows (a file sorted by pump shares few).
-            self.seen_codes, self.seen_keys = [np.concatenate(self.seen_codes)], [np.concatenate(self.seen_keys)]
-            earlier = self.seen_keys[0][np.isin(self.seen_codes[0], np.unique(serial_codes))]
-            if len(earlier):
-                repeated |= pd.Index(keys).isin(earlier)
+            self.seen_codes = [np.concatenate(self.seen_codes)]
+            self.seen_micros = [np.concatenate(self.seen_micros)]
+            shared = np.isin(self.seen_codes[0], np.unique(serial_codes))
+            if shared.any():
+                # One complex number per (serial, time): both parts exact, as a serial's code and a time's
+                # microseconds since 1970 (below 2^53 until the year 2255) are whole numbers a double holds exactly.
+                earlier = self.seen_codes[0][shared] + 1j * self.seen_micros[0][shared].astype(float)
+                repeated |= pd.Index(serial_codes + 1j * micros.astype(float)).isin(earlier)
         for row in data.index[repeated] + 2:
             self.file_problems.append(Problem(int(row), "taken_at", "the same pump and time appears earlier in the "
                                               "file"))
         self.seen_codes.append(serial_codes)
-        self.seen_keys.append(keys)
+        self.seen_micros.append(micros)
 
 
 def _stored(session: Session, block: _Block, before_id: int | None) -> list[Problem]:
@@ -306,12 +312,6 @@ def _meter_doubts(session: Session, frame: pd.DataFrame, before_id: int | None) 
     found = sorted(meter_doubts(frame, stored), key=lambda pair: pair[0])
     return [{"row": int(index) + 2, "field": "hours", "code": doubt.code, "message": doubt.message}
             for index, doubt in found]
-
-
-def _column(data: pd.DataFrame, name: str) -> pd.Series:
-    if name in data:
-        return data[name]
-    return pd.Series([None] * len(data), index=data.index, dtype=object)
 
 
 def _stripped(table: pd.DataFrame, headers: Headers) -> pd.Series | None:
