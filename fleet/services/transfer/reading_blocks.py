@@ -1,6 +1,9 @@
-"""The readings import in blocks of rows: a helper thread parses and checks each block while the session's thread
-stores the one before it. sqlite3 (while SQLite works), psycopg (while it sends) and Arrow's kernels release the
-GIL, so on two cores the parsing costs little more than the insert alone.
+"""The readings import in blocks of rows, each parsed and checked, then stored. On PostgreSQL a helper thread
+prepares the next block while the session's thread sends the one before it: psycopg lets go of the GIL while it
+sends, and Arrow's CSV writer while it writes, so the two run side by side. On SQLite the session's thread prepares
+each block itself: sqlite3 takes the GIL back to bind every row, and the parsing's pandas steps and Python values
+hold it, so a helper thread only took turns with the insert, and under load made the import slower (README,
+"Readings import against its floor").
 
 Whole or nothing, as any import: every problem of every block is reported at once, and a refusal found in a later
 block undoes the earlier blocks' rows (they are written under a savepoint), so nothing is kept. The checks find
@@ -84,7 +87,8 @@ def _run(session: Session, work: "_Blocks", spans: list[tuple[int, int]], before
          outcome: Outcome) -> None:
     stored_clash: list[Problem] = []
     new_rows: list[pd.DataFrame] = []
-    blocks = _in_turn(work, spans)
+    beside = work.writer is not None and work.writer.mode == "postgresql"
+    blocks = _in_turn(work, spans, beside)
     try:
         for block in blocks:
             if work.cells_wrong:
@@ -99,7 +103,7 @@ def _run(session: Session, work: "_Blocks", spans: list[tuple[int, int]], before
                 outcome.pump_ids |= block.prepared.pump_ids
             new_rows.append(block.meter)
     finally:
-        blocks.close()  # waits for the block the helper thread may still be preparing
+        blocks.close()  # waits for the block a helper thread may still be preparing
     if work.cells_wrong:
         outcome.problems = work.headers.problems + work.cell_problems + work.unknown
     elif work.file_problems or stored_clash:
@@ -112,13 +116,15 @@ def _run(session: Session, work: "_Blocks", spans: list[tuple[int, int]], before
                                        before_id)
 
 
-def _in_turn(work: "_Blocks", spans: list[tuple[int, int]]):
-    """Each block prepared, in order: with more than one, a helper thread prepares the next while the caller
-    stores the one it was given."""
-    work.pumps.look_up(*spans[0])
-    if len(spans) == 1:
-        yield work.prepare(*spans[0])
+def _in_turn(work: "_Blocks", spans: list[tuple[int, int]], beside: bool):
+    """Each block prepared, in order: when ``beside`` and there is more than one, a helper thread prepares the next
+    while the caller stores the one it was given."""
+    if len(spans) == 1 or not beside:
+        work.pumps.look_up()
+        for span in spans:
+            yield work.prepare(*span)
         return
+    work.pumps.look_up(*spans[0])
     with ThreadPoolExecutor(max_workers=1, thread_name_prefix="fleet-import") as helper:
         coming = helper.submit(work.prepare, *spans[0])
         work.pumps.look_up(spans[1][0])  # the rest of the file's serials, while the first block is parsed
@@ -148,7 +154,7 @@ class _Pumps:
 
     def look_up(self, first: int = 0, stop: int | None = None) -> None:
         """Ask the register about the serials of rows first to stop not asked about yet (in the session's thread;
-        the helper thread only reads the answers, of rows it is given after they were asked)."""
+        a helper thread only reads the answers, of rows it is given after they were asked)."""
         if self.cells is None:
             return
         cells = self.cells.iloc[first:stop].dropna()
@@ -171,8 +177,8 @@ class _Pumps:
 
 
 class _Blocks:
-    """Prepares blocks one after another (in the helper thread), keeping what the file's later blocks are checked
-    against: the problems so far and every earlier (pump, time)."""
+    """Prepares blocks one after another (in a helper thread on PostgreSQL), keeping what the file's later blocks
+    are checked against: the problems so far and every earlier (pump, time)."""
 
     def __init__(self, headers: Headers, table: pd.DataFrame, pumps: _Pumps, now: datetime, source: str,
                  taken_by: str | None, writer: BulkInsert | None):
