@@ -377,19 +377,34 @@ def _plain_arrow_column(spec: Column, raw: pd.Series, unit: str | None,
                         conventions: RowConventions) -> tuple[pd.Series, list[Problem]] | None:
     """A column of a CSV's Arrow text whose every cell is already plain, parsed without the steps only a blank,
     padded, comma'd, NUL-bearing or odd cell needs; None when any cell needs them (the full path then words its
-    problem). Plain means, for a number, a cell Arrow's cast reads whole (it refuses a blank, a space, a comma, a NUL
-    and any text: what ``_floats`` would cast after stripping); for a time, 'YYYY-MM-DD HH:MM' naming a real minute,
-    in range, and one moment in the row's zone. Gives what the full path gives (tests/test_fast_import.py)."""
+    problem). Plain means, for text, a cell neither empty nor padded, without a NUL and not too long; for a
+    number, an empty cell or one Arrow's cast reads whole (it refuses a space, a comma, a NUL and any text: what
+    ``_floats`` would cast after stripping); for a time, 'YYYY-MM-DD HH:MM' naming a real minute, in range, and one
+    moment in the row's zone. Gives what the full path gives (tests/test_fast_import.py)."""
     text = raw.array.__arrow_array__()
-    if len(text) == 0 or spec.type not in ("number", "datetime"):
+    if len(text) == 0 or spec.type not in ("number", "datetime", "text"):
         return None
+    if spec.type == "text":
+        limit = TEXT_LENGTHS.get(spec.name, DEFAULT_TEXT_LENGTH)
+        odd = pc.or_(pc.not_equal(pc.utf8_trim_whitespace(text), text), pc.equal(text, ""))
+        odd = pc.or_(odd, pc.match_substring(text, "\x00"))
+        if limit is not None:
+            odd = pc.or_(odd, pc.greater(pc.utf8_length(text), limit))
+        if pc.any(odd).as_py():
+            return None
+        return pd.Series(text.to_numpy(zero_copy_only=False), index=raw.index, dtype=object), []
     flag = _Flagger(spec, raw)
     if spec.type == "number":
+        empty = pc.equal(text, "")  # an empty cell is blank (a padded one takes the full path)
+        if pc.any(empty).as_py():
+            text = pc.if_else(empty, pa.scalar(None, pa.string()), text)
         try:
             numbers = pc.cast(text, pa.float64()).to_numpy(zero_copy_only=False)
         except (pa.ArrowInvalid, pa.ArrowNotImplementedError):
             return None
-        blank = pd.Series(False, index=raw.index)
+        blank = pd.Series(empty.to_numpy(zero_copy_only=False), index=raw.index)
+        if spec.required:
+            flag(blank, lambda _cell: "a value is required")
         return _checked_numbers(spec, pd.Series(numbers, index=raw.index), blank, unit, flag), flag.problems
     stamps = _plain_arrow_times(text, raw.index, conventions.zones)
     return None if stamps is None else (stamps, [])
