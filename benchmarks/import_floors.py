@@ -4,7 +4,13 @@ import changed; ``benchmarks.run`` measures SQLite's the same way.
 
     python3 -m benchmarks.import_floors --size medium
     python3 -m benchmarks.import_floors --size medium --database postgresql+psycopg://postgres@127.0.0.1:5432/bench
-    python3 -m benchmarks.import_floors --size medium --repeat 3    # the best of three of each, on a busy machine
+    python3 -m benchmarks.import_floors --size medium --repeat 3    # three pairs, floor and import in turn
+
+On SQLite the floor and the import take turns (floor, import, floor, import, ...), each into its own fresh copy of
+the same registered database, made and flushed to disk the same way just before it is timed; an import first, not
+timed, warms the files and libraries and stores the rows every floor run inserts. Each pair's ratio is its import
+over the floor timed just before it, and ``import_median_ratio`` is their median: a floor that moves with the
+machine's load is compared with an import run under the same load.
 
 The PostgreSQL database named is emptied and rebuilt through the migrations; a second database, ``<name>_floor``,
 is made from it as a template just before the readings are imported (the same schema, pumps and indexes) and
@@ -15,6 +21,7 @@ import argparse
 import json
 import os
 import shutil
+import statistics
 import tempfile
 import time
 from pathlib import Path
@@ -62,23 +69,54 @@ def _figures(name: str, seconds: float, floor_s: float, rows: int) -> dict:
             f"{name}_rows_per_s": rows / seconds}
 
 
-def sqlite_import(work: Path, files: FleetFiles) -> dict:
-    """The import on a SQLite file against sqlite3 executemany into a copy taken just before it."""
+def _fresh_copy(base: Path, path: Path) -> None:
+    """``path`` as a copy of ``base``, written out to disk before anything is timed on it."""
+    _remove(path)
+    shutil.copyfile(base, path)
+    os.sync()
+
+
+def _remove(path: Path) -> None:
+    for suffix in ("", "-wal", "-shm"):
+        Path(f"{path}{suffix}").unlink(missing_ok=True)
+
+
+def _timed_import(path: Path, files: FleetFiles) -> float:
+    from benchmarks.run import _checkpoint
+    from fleet.db.engine import make_engine, make_session_factory
+
+    engine = make_engine(f"sqlite:///{path}")
+    seconds = _import_readings(make_session_factory(engine), files)
+    engine.dispose()
+    _checkpoint(path)
+    return seconds
+
+
+def sqlite_imports(work: Path, files: FleetFiles, repeat: int = 1) -> list[dict]:
+    """``repeat`` pairs, each the executemany floor and then the import, taking turns on fresh copies of one
+    registered database; the rows the floor inserts come from an import run first (warm-up, not timed)."""
     from benchmarks.run import _checkpoint, _floor_insert
 
-    path, floor = work / "import.sqlite", work / "import_floor.sqlite"
-    engine, sessions = _register(f"sqlite:///{path}", files)
+    base, source = work / "registered.sqlite", work / "imported.sqlite"
+    engine, _sessions = _register(f"sqlite:///{base}", files)
     engine.dispose()
-    _checkpoint(path)
-    shutil.copyfile(path, floor)
-    seconds = _import_readings(sessions, files)
-    engine.dispose()
-    _checkpoint(path)
-    floor_s = _floor_insert(path, floor)
-    for leftover in (path, floor):
-        for suffix in ("", "-wal", "-shm"):
-            Path(f"{leftover}{suffix}").unlink(missing_ok=True)
-    return _figures("import", seconds, floor_s, files.n_readings)
+    _checkpoint(base)
+    _fresh_copy(base, source)
+    _timed_import(source, files)
+    runs = []
+    for _ in range(repeat):
+        floor = work / "floor.sqlite"
+        _fresh_copy(base, floor)
+        floor_s = _floor_insert(source, floor)
+        _remove(floor)
+        imported = work / "import.sqlite"
+        _fresh_copy(base, imported)
+        seconds = _timed_import(imported, files)
+        _remove(imported)
+        runs.append(_figures("import", seconds, floor_s, files.n_readings))
+    for leftover in (base, source):
+        _remove(leftover)
+    return runs
 
 
 def _server(url: str):
@@ -129,11 +167,14 @@ def postgres_import(url: str, files: FleetFiles) -> dict:
     return _figures("pg_import", seconds, floor_s, files.n_readings)
 
 
-def _quickest(runs: list[dict], name: str, rows: int) -> dict:
-    """The figures of the quickest import and the quickest floor among ``runs``, and every run's times."""
+def _summary(runs: list[dict], name: str, rows: int) -> dict:
+    """The quickest import against the quickest floor among ``runs`` (the fields kept from before), every pair's
+    times and ratio in the order they ran, and the median of the pairs' ratios."""
     figures = _figures(name, min(r[f"{name}_s"] for r in runs), min(r[f"{name}_floor_s"] for r in runs), rows)
     if len(runs) > 1:
         figures[f"{name}_runs"] = [[r[f"{name}_s"], r[f"{name}_floor_s"]] for r in runs]
+    figures[f"{name}_ratios"] = [r[f"{name}_ratio"] for r in runs]
+    figures[f"{name}_median_ratio"] = statistics.median(figures[f"{name}_ratios"])
     return figures
 
 
@@ -143,18 +184,18 @@ def main(argv: list[str] | None = None) -> dict:
     parser.add_argument("--database", help="a PostgreSQL URL to measure on as well (the database is emptied)")
     parser.add_argument("--out", type=Path, help="write the figures as JSON here")
     parser.add_argument("--repeat", type=int, default=1,
-                        help="measure import and floor N times each, alternating, and keep the quickest of each "
-                             "(other jobs on the machine slow single runs by chance)")
+                        help="measure N pairs of floor and import, taking turns, and report each pair's ratio "
+                             "and their median (other jobs on the machine slow single runs by chance)")
     args = parser.parse_args(argv)
     figures: dict = {"size": args.size, "load_average": os.getloadavg()}
     with tempfile.TemporaryDirectory(prefix="fleet-import-") as folder:
         files = write_fleet(Path(folder) / "csv", SIZES[args.size])
         figures["readings"] = files.n_readings
-        runs = [sqlite_import(Path(folder), files) for _ in range(args.repeat)]
-        figures.update(_quickest(runs, "import", files.n_readings))
+        runs = sqlite_imports(Path(folder), files, args.repeat)
+        figures.update(_summary(runs, "import", files.n_readings))
         if args.database:
             runs = [postgres_import(args.database, files) for _ in range(args.repeat)]
-            figures.update(_quickest(runs, "pg_import", files.n_readings))
+            figures.update(_summary(runs, "pg_import", files.n_readings))
     figures["load_average_after"] = os.getloadavg()
     if args.out:
         args.out.write_text(json.dumps(figures, indent=2) + "\n")

@@ -93,6 +93,58 @@ def test_numbers_parse_alike_from_arrow_text_and_python_text(cells):
             assert value == float(text)
 
 
+# Spaces and tabs only from the samples: Python and Arrow differ on what other control characters count as blank.
+texts = st.one_of(st.text(alphabet=st.characters(blacklist_categories=("Cs", "Cc", "Zs", "Zl", "Zp")), max_size=130),
+                  st.sampled_from(["P-1", " P-1", "P-1\t", "", "a\x00b", "x" * 121, "Pumpe Ä-7"]))
+
+
+@settings(max_examples=300, deadline=None)
+@given(st.lists(texts, min_size=1, max_size=8))
+def test_text_parses_alike_from_arrow_text_and_python_text(cells):
+    # Reference: Python's str.strip and len on the same cells (the full path strips, refuses a blank required cell, a
+    # NUL and text over 120 characters); Arrow text whose every cell is plain skips those steps and must agree.
+    for column in ("pump", "note"):
+        python = pd.DataFrame({column: pd.Series(cells, dtype=object)})
+        a, a_problems = parse_table("readings", python)
+        b, b_problems = parse_table("readings", python.astype(pd.ArrowDtype(pa.string())))
+        assert [str(p) for p in a_problems] == [str(p) for p in b_problems]
+        assert a.data[column].tolist() == b.data[column].tolist()
+        plain = [c for c in cells if c.strip() == c and c and "\x00" not in c and len(c) <= 120]
+        if len(plain) == len(cells):
+            assert b.data[column].tolist() == cells
+
+
+plain_times = st.tuples(st.integers(1965, 2105), st.integers(0, 13), st.integers(0, 32), st.integers(0, 24),
+                        st.integers(0, 61)).map(lambda t: "{:04d}-{:02d}-{:02d} {:02d}:{:02d}".format(*t))
+
+
+@settings(max_examples=300, deadline=None)
+@given(st.lists(st.tuples(plain_times, st.sampled_from(["UTC", "Europe/Berlin", "America/Chicago", None])),
+                min_size=1, max_size=8))
+def test_plain_times_parse_alike_from_arrow_text_and_python_text(rows):
+    # Reference: Python's datetime.strptime and zoneinfo (a wall time in its zone, to UTC), and the full path, which
+    # reads Python strings with pandas' ISO 8601 parser; Arrow text whose every cell is 'YYYY-MM-DD HH:MM' is read by
+    # Arrow's strptime instead, and must give the same values and the same problems (30 February, 24:00, a time the
+    # clocks skip or repeat, a year outside 1970..2100).
+    from zoneinfo import ZoneInfo
+
+    from fleet.io.parse import RowConventions
+
+    cells = [cell for cell, _zone in rows]
+    conventions = RowConventions(pd.Series([zone for _cell, zone in rows]), pd.Series([False] * len(rows)))
+    python = pd.DataFrame({"taken_at": pd.Series(cells, dtype=object)})
+    arrow = python.astype(pd.ArrowDtype(pa.string()))
+    a, a_problems = parse_table("readings", python, conventions)
+    b, b_problems = parse_table("readings", arrow, conventions)
+    assert [str(p) for p in a_problems] == [str(p) for p in b_problems]
+    left, right = a.data["taken_at"], b.data["taken_at"]
+    assert left.dtype == right.dtype and left.isna().equals(right.isna()) and (left == right)[left.notna()].all()
+    for (cell, zone), value in zip(rows, right, strict=True):
+        if pd.notna(value):
+            wall = datetime.strptime(cell, "%Y-%m-%d %H:%M").replace(tzinfo=ZoneInfo(zone or "UTC"))
+            assert value.to_pydatetime() == wall.astimezone(ZoneInfo("UTC")).replace(tzinfo=None)
+
+
 @settings(max_examples=100, deadline=None)
 @given(st.lists(st.datetimes(min_value=datetime(1970, 1, 1), max_value=datetime(2100, 12, 31, 23, 59, 59)),
                 min_size=1, max_size=50))

@@ -77,7 +77,7 @@ CASES = {
 @pytest.mark.parametrize("name", sorted(CASES))
 def test_blocks_find_and_store_what_one_pass_does(pumps, monkeypatch, name):
     table = _table(CASES[name])
-    before = _attempt(pumps, table, 2, monkeypatch)  # blocks of two rows: the helper thread, a savepoint
+    before = _attempt(pumps, table, 2, monkeypatch)  # blocks of two rows, a savepoint (a helper on PostgreSQL)
     with pumps.sessions.begin() as session:  # back to the one stored reading
         session.execute(Reading.__table__.delete().where(Reading.hours != 900))
     one_pass = _attempt(pumps, table, 10_000, monkeypatch)

@@ -241,16 +241,25 @@ def _parse_numbers(spec: Column, cells: pd.Series, blank: pd.Series, unit: str |
     already.iloc[[flag.positions[i] for i in range(refused_before, len(flag.problems))]] = True
     blank = blank | already
     numbers = pd.Series(_floats(cells), index=cells.index)
-    flag(~blank & numbers.isna(), lambda cell: f"'{cell}' is not a number")
+    return _checked_numbers(spec, numbers, blank, unit, flag)
+
+
+def _checked_numbers(spec: Column, numbers: pd.Series, blank: pd.Series, unit: str | None, flag) -> pd.Series:
+    """Numbers read from their cells, in canonical units, each refused one flagged and left missing (numpy over
+    the column: a block of a large file costs a few array passes, not pandas' per-operation machinery)."""
+    index = numbers.index
+    numbers, blank = numbers.to_numpy(dtype=float), np.asarray(blank, dtype=bool)
+    missing = np.isnan(numbers)
+    flag(~blank & missing, lambda cell: f"'{cell}' is not a number")
     unit = unit if unit is not None else spec.default_unit
     # 'inf' and '1e999' parse as numbers; no reading or register value is infinite, or near it.
     with np.errstate(over="ignore", invalid="ignore"):
-        values = pd.Series(units.to_canonical(numbers.to_numpy(), unit, spec.quantity), index=cells.index) \
+        values = np.asarray(units.to_canonical(numbers, unit, spec.quantity), dtype=float) \
             if spec.quantity else numbers
-    huge = ~np.isfinite(values) | (values.abs() > MAX_MAGNITUDE)
-    flag(~blank & numbers.notna() & huge, lambda cell: f"{cell} is not a finite number of a sensible size "
+        huge = ~np.isfinite(values) | (np.abs(values) > MAX_MAGNITUDE)
+    flag(~blank & ~missing & huge, lambda cell: f"{cell} is not a finite number of a sensible size "
          f"(at most {MAX_MAGNITUDE:g} in canonical units)")
-    values = values.mask(huge)
+    values = np.where(huge, np.nan, values)
 
     def bound(value: float) -> str:
         """A bound in the unit the number was given in (a stroke typed in % is told its bounds in %)."""
@@ -268,8 +277,8 @@ def _parse_numbers(spec: Column, cells: pd.Series, blank: pd.Series, unit: str |
             flag(values > spec.max + 1e-9, lambda cell: f"{cell} is above the highest allowed value "
                  f"({bound(spec.max)})")
         if spec.integer:
-            flag(values.notna() & (values != values.round()), lambda cell: f"{cell} must be a whole number")
-    return values
+            flag(~np.isnan(values) & (values != np.round(values)), lambda cell: f"{cell} must be a whole number")
+    return pd.Series(values, index=index)
 
 
 def _floats(cells: pd.Series) -> np.ndarray:
@@ -359,8 +368,78 @@ class _Flagger:
         self.positions.append(position)
 
 
+# A time as the plain form of ISO 8601 a round sheet or an export writes it, which _plain_arrow_times reads directly.
+PLAIN_TIME = r"^\d{4}-\d{2}-\d{2} \d{2}:\d{2}$"
+PLAIN_TIME_FORMAT = "%Y-%m-%d %H:%M"
+
+
+def _plain_arrow_column(spec: Column, raw: pd.Series, unit: str | None,
+                        conventions: RowConventions) -> tuple[pd.Series, list[Problem]] | None:
+    """A column of a CSV's Arrow text whose every cell is already plain, parsed without the steps only a blank,
+    padded, comma'd, NUL-bearing or odd cell needs; None when any cell needs them (the full path then words its
+    problem). Plain means, for text, a cell neither empty nor padded, without a NUL and not too long; for a
+    number, an empty cell or one Arrow's cast reads whole (it refuses a space, a comma, a NUL and any text: what
+    ``_floats`` would cast after stripping); for a time, 'YYYY-MM-DD HH:MM' naming a real minute, in range, and one
+    moment in the row's zone. Gives what the full path gives (tests/test_fast_import.py)."""
+    text = raw.array.__arrow_array__()
+    if len(text) == 0 or spec.type not in ("number", "datetime", "text"):
+        return None
+    if spec.type == "text":
+        limit = TEXT_LENGTHS.get(spec.name, DEFAULT_TEXT_LENGTH)
+        odd = pc.or_(pc.not_equal(pc.utf8_trim_whitespace(text), text), pc.equal(text, ""))
+        odd = pc.or_(odd, pc.match_substring(text, "\x00"))
+        if limit is not None:
+            odd = pc.or_(odd, pc.greater(pc.utf8_length(text), limit))
+        if pc.any(odd).as_py():
+            return None
+        return pd.Series(text.to_numpy(zero_copy_only=False), index=raw.index, dtype=object), []
+    flag = _Flagger(spec, raw)
+    if spec.type == "number":
+        empty = pc.equal(text, "")  # an empty cell is blank (a padded one takes the full path)
+        if pc.any(empty).as_py():
+            text = pc.if_else(empty, pa.scalar(None, pa.string()), text)
+        try:
+            numbers = pc.cast(text, pa.float64()).to_numpy(zero_copy_only=False)
+        except (pa.ArrowInvalid, pa.ArrowNotImplementedError):
+            return None
+        blank = pd.Series(empty.to_numpy(zero_copy_only=False), index=raw.index)
+        if spec.required:
+            flag(blank, lambda _cell: "a value is required")
+        return _checked_numbers(spec, pd.Series(numbers, index=raw.index), blank, unit, flag), flag.problems
+    stamps = _plain_arrow_times(text, raw.index, conventions.zones)
+    return None if stamps is None else (stamps, [])
+
+
+def _plain_arrow_times(text, index: pd.Index, zones: pd.Series | None) -> pd.Series | None:
+    """Times written 'YYYY-MM-DD HH:MM' as naive UTC, or None when any cell is written otherwise, names no real
+    minute (Arrow's strptime reads 30 February as 2 March, so each time must write back as its cell), falls outside
+    EARLIEST..LATEST or in a gap or fold of its zone."""
+    if not pc.all(pc.match_substring_regex(text, PLAIN_TIME)).as_py():
+        return None
+    try:
+        wall = pc.strptime(text, format=PLAIN_TIME_FORMAT, unit="us")
+    except (pa.ArrowInvalid, pa.ArrowNotImplementedError):
+        return None
+    # Arrow's cast writes 'YYYY-MM-DD HH:MM:SS.ffffff' (ten times quicker than its strftime): the first 16 are ours.
+    written = pc.utf8_slice_codeunits(pc.cast(wall, pa.string()), 0, len("YYYY-MM-DD HH:MM"))
+    if not pc.all(pc.equal(written, text)).as_py():
+        return None
+    naive = pd.Series(wall.to_numpy(zero_copy_only=False).astype("datetime64[ns]"), index=index)
+    local, reasons = localize(naive, pd.Series("UTC", index=index) if zones is None else zones)
+    if reasons:
+        return None
+    stamps = local.astype("datetime64[ns]")
+    if ((stamps < EARLIEST) | (stamps > LATEST) | stamps.isna()).any():
+        return None
+    return stamps
+
+
 def _parse_column(spec: Column, raw: pd.Series, unit: str | None,
                   conventions: RowConventions | None = None) -> tuple[pd.Series, list[Problem]]:
+    if is_arrow_text(raw):
+        plain = _plain_arrow_column(spec, raw, unit, (conventions or RowConventions()).aligned(raw.index))
+        if plain is not None:
+            return plain
     cells = _cells(raw)
     blank = cells.isna()
     flag = _Flagger(spec, cells)

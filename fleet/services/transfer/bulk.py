@@ -52,13 +52,18 @@ class BulkInsert:
         else:
             self.statement = f"COPY {table} ({names}) FROM STDIN (FORMAT csv)"
 
-    def prepare(self, frame: pd.DataFrame) -> Prepared:
-        """The frame's rows as the driver takes them; no connection is touched."""
-        frame = frame[self.columns]
+    def prepare(self, frame: pd.DataFrame, same: dict | None = None) -> Prepared:
+        """The frame's rows as the driver takes them, with ``same`` naming columns that hold one value in every
+        row (a file without notes, the import's time); no connection is touched."""
+        same = same or {}
         pump_ids = {int(p) for p in pd.unique(frame["pump_id"])}
         if self.mode == "sqlite":
-            rows = [_python_values(frame[name]) for name in self.columns]
-        elif self.mode == "postgresql":
+            count = len(frame)
+            rows = [[_python_values(pd.Series([same[name]]))[0]] * count if name in same
+                    else _python_values(frame[name]) for name in self.columns]
+            return Prepared(rows, count, pump_ids)
+        frame = frame.assign(**{name: [value] * len(frame) for name, value in same.items()})[self.columns]
+        if self.mode == "postgresql":
             rows = csv_bytes(frame)
         else:
             rows = _records(frame)
@@ -119,7 +124,8 @@ def time_texts(values: np.ndarray) -> list[str | None]:
     """Times as 'YYYY-MM-DD HH:MM:SS.ffffff', as SQLAlchemy stores a DateTime in SQLite (None for NaT): Arrow's
     cast of a microsecond timestamp writes exactly that (tests/test_fast_import.py checks it against strftime)."""
     stamps = pa.array(np.asarray(values, dtype="datetime64[us]"), type=pa.timestamp("us"), from_pandas=True)
-    return pc.cast(stamps, pa.string()).to_pylist()
+    # to_numpy makes the str objects in C (to_pylist makes an Arrow scalar per value first).
+    return pc.cast(stamps, pa.string()).to_numpy(zero_copy_only=False).tolist()
 
 
 def csv_bytes(frame: pd.DataFrame) -> bytes:

@@ -1,6 +1,9 @@
-"""The readings import in blocks of rows: a helper thread parses and checks each block while the session's thread
-stores the one before it. sqlite3 (while SQLite works), psycopg (while it sends) and Arrow's kernels release the
-GIL, so on two cores the parsing costs little more than the insert alone.
+"""The readings import in blocks of rows, each parsed and checked, then stored. On PostgreSQL a helper thread
+prepares the next block while the session's thread sends the one before it: psycopg lets go of the GIL while it
+sends, and Arrow's CSV writer while it writes, so the two run side by side. On SQLite the session's thread prepares
+each block itself: sqlite3 takes the GIL back to bind every row, and the parsing's pandas steps and Python values
+hold it, so a helper thread only took turns with the insert, and under load made the import slower (README,
+"Readings import against its floor").
 
 Whole or nothing, as any import: every problem of every block is reported at once, and a refusal found in a later
 block undoes the earlier blocks' rows (they are written under a savepoint), so nothing is kept. The checks find
@@ -84,7 +87,8 @@ def _run(session: Session, work: "_Blocks", spans: list[tuple[int, int]], before
          outcome: Outcome) -> None:
     stored_clash: list[Problem] = []
     new_rows: list[pd.DataFrame] = []
-    blocks = _in_turn(work, spans)
+    beside = work.writer is not None and work.writer.mode == "postgresql"
+    blocks = _in_turn(work, spans, beside)
     try:
         for block in blocks:
             if work.cells_wrong:
@@ -99,7 +103,7 @@ def _run(session: Session, work: "_Blocks", spans: list[tuple[int, int]], before
                 outcome.pump_ids |= block.prepared.pump_ids
             new_rows.append(block.meter)
     finally:
-        blocks.close()  # waits for the block the helper thread may still be preparing
+        blocks.close()  # waits for the block a helper thread may still be preparing
     if work.cells_wrong:
         outcome.problems = work.headers.problems + work.cell_problems + work.unknown
     elif work.file_problems or stored_clash:
@@ -112,13 +116,15 @@ def _run(session: Session, work: "_Blocks", spans: list[tuple[int, int]], before
                                        before_id)
 
 
-def _in_turn(work: "_Blocks", spans: list[tuple[int, int]]):
-    """Each block prepared, in order: with more than one, a helper thread prepares the next while the caller
-    stores the one it was given."""
-    work.pumps.look_up(*spans[0])
-    if len(spans) == 1:
-        yield work.prepare(*spans[0])
+def _in_turn(work: "_Blocks", spans: list[tuple[int, int]], beside: bool):
+    """Each block prepared, in order: when ``beside`` and there is more than one, a helper thread prepares the next
+    while the caller stores the one it was given."""
+    if len(spans) == 1 or not beside:
+        work.pumps.look_up()
+        for span in spans:
+            yield work.prepare(*span)
         return
+    work.pumps.look_up(*spans[0])
     with ThreadPoolExecutor(max_workers=1, thread_name_prefix="fleet-import") as helper:
         coming = helper.submit(work.prepare, *spans[0])
         work.pumps.look_up(spans[1][0])  # the rest of the file's serials, while the first block is parsed
@@ -148,7 +154,7 @@ class _Pumps:
 
     def look_up(self, first: int = 0, stop: int | None = None) -> None:
         """Ask the register about the serials of rows first to stop not asked about yet (in the session's thread;
-        the helper thread only reads the answers, of rows it is given after they were asked)."""
+        a helper thread only reads the answers, of rows it is given after they were asked)."""
         if self.cells is None:
             return
         cells = self.cells.iloc[first:stop].dropna()
@@ -171,8 +177,8 @@ class _Pumps:
 
 
 class _Blocks:
-    """Prepares blocks one after another (in the helper thread), keeping what the file's later blocks are checked
-    against: the problems so far and every earlier (pump, time)."""
+    """Prepares blocks one after another (in a helper thread on PostgreSQL), keeping what the file's later blocks
+    are checked against: the problems so far and every earlier (pump, time)."""
 
     def __init__(self, headers: Headers, table: pd.DataFrame, pumps: _Pumps, now: datetime, source: str,
                  taken_by: str | None, writer: BulkInsert | None):
@@ -184,8 +190,8 @@ class _Blocks:
         self.file_problems: list[Problem] = []  # unknown pumps and repeated (pump, time) when the cells are right
         self.refused = bool(headers.problems)
         self.serial_codes: dict[str, int] = {}
-        self.seen_codes: list[np.ndarray] = []  # the serial code and key of every earlier block's rows
-        self.seen_keys: list[np.ndarray] = []
+        self.seen_codes: list[np.ndarray] = []  # the serial code and time of every earlier block's rows
+        self.seen_micros: list[np.ndarray] = []
 
     @property
     def cells_wrong(self) -> bool:
@@ -212,24 +218,25 @@ class _Blocks:
         self._repeats(data)
         if self.file_problems:
             self.refused = True
+        given = {"flow_lpm": "outlet_flow", "drain_lpm": "case_drain_flow", "stroke": "stroke", "note": "note",
+                 "taken_by": "taken_by", "source": "source"}
         frame = pd.DataFrame({
             "pump_id": np.nan_to_num(block.ids).astype(np.int64),
             "taken_at": data["taken_at"],
             "hours": data["hours"],
             "pressure_bar": data["outlet_pressure"],
             "speed_rpm": data["speed"],
-            "flow_lpm": _column(data, "outlet_flow"),
-            "drain_lpm": _column(data, "case_drain_flow"),
             "temp_c": data["oil_temp"],
-            "stroke": _column(data, "stroke"),
-            "taken_by": _column(data, "taken_by").where(lambda s: s.notna(), self.taken_by),
-            "note": _column(data, "note"),
-            "source": _column(data, "source").where(lambda s: s.notna(), self.source),
-            "created_at": self.created_at,
-        }, index=data.index)
+        } | {name: data[field] for name, field in given.items() if field in data}, index=data.index)
+        # A column the file lacks holds one value in every row: the import's own for taken_by and source.
+        defaults = {"taken_by": self.taken_by, "source": self.source}
+        for name in ("taken_by", "source"):
+            if name in frame:
+                frame[name] = frame[name].where(frame[name].notna(), defaults[name])
+        same = {name: defaults.get(name) for name in given if name not in frame} | {"created_at": self.created_at}
         block.meter = frame[["pump_id", "taken_at", "hours"]]
         if self.writer is not None and not self.refused:
-            block.prepared = self.writer.prepare(frame)
+            block.prepared = self.writer.prepare(frame, same)
         return block
 
     def _ids(self, serials: pd.Series) -> np.ndarray:
@@ -248,24 +255,29 @@ class _Blocks:
         """Rows whose pump and time appear earlier in the file, in this block or an earlier one."""
         codes, unique = pd.factorize(data["pump"])
         known = np.array([self.serial_codes.setdefault(serial, len(self.serial_codes)) for serial in unique],
-                         dtype=float)
-        # One complex number per (serial, time): both parts exact, as a serial's code and a time's microseconds since
-        # 1970 (below 2^53 until the year 2255) are whole numbers a double holds exactly.
-        micros = data["taken_at"].to_numpy(dtype="datetime64[us]").view(np.int64).astype(float)
-        serial_codes = known[codes].astype(np.int64)
-        keys = serial_codes + 1j * micros
-        repeated = pd.Index(keys).duplicated(keep="first")
+                         dtype=np.int64)
+        serial_codes = known[codes]
+        micros = data["taken_at"].to_numpy(dtype="datetime64[us]").view(np.int64)
+        # Within the block: sorted by (serial, time), stably, a row equal to the one before it is a later repeat.
+        order = np.lexsort((micros, serial_codes))
+        same = (np.diff(serial_codes[order]) == 0) & (np.diff(micros[order]) == 0)
+        repeated = np.zeros(len(data), dtype=bool)
+        repeated[order[1:][same]] = True
         if self.seen_codes:
             # Only earlier rows of this block's pumps can repeat one of its rows (a file sorted by pump shares few).
-            self.seen_codes, self.seen_keys = [np.concatenate(self.seen_codes)], [np.concatenate(self.seen_keys)]
-            earlier = self.seen_keys[0][np.isin(self.seen_codes[0], np.unique(serial_codes))]
-            if len(earlier):
-                repeated |= pd.Index(keys).isin(earlier)
+            self.seen_codes = [np.concatenate(self.seen_codes)]
+            self.seen_micros = [np.concatenate(self.seen_micros)]
+            shared = np.isin(self.seen_codes[0], np.unique(serial_codes))
+            if shared.any():
+                # One complex number per (serial, time): both parts exact, as a serial's code and a time's
+                # microseconds since 1970 (below 2^53 until the year 2255) are whole numbers a double holds exactly.
+                earlier = self.seen_codes[0][shared] + 1j * self.seen_micros[0][shared].astype(float)
+                repeated |= pd.Index(serial_codes + 1j * micros.astype(float)).isin(earlier)
         for row in data.index[repeated] + 2:
             self.file_problems.append(Problem(int(row), "taken_at", "the same pump and time appears earlier in the "
                                               "file"))
         self.seen_codes.append(serial_codes)
-        self.seen_keys.append(keys)
+        self.seen_micros.append(micros)
 
 
 def _stored(session: Session, block: _Block, before_id: int | None) -> list[Problem]:
@@ -306,12 +318,6 @@ def _meter_doubts(session: Session, frame: pd.DataFrame, before_id: int | None) 
     found = sorted(meter_doubts(frame, stored), key=lambda pair: pair[0])
     return [{"row": int(index) + 2, "field": "hours", "code": doubt.code, "message": doubt.message}
             for index, doubt in found]
-
-
-def _column(data: pd.DataFrame, name: str) -> pd.Series:
-    if name in data:
-        return data[name]
-    return pd.Series([None] * len(data), index=data.index, dtype=object)
 
 
 def _stripped(table: pd.DataFrame, headers: Headers) -> pd.Series | None:
