@@ -26,7 +26,7 @@ from fleet.services.analysis import refresh_analysis, spool, store_fleet
 from fleet.services.analysis.compute import compute
 from fleet.services.analysis.refresh import reanalyse
 from fleet.services.analysis.store import store
-from tests.test_one_pump_path import _plain
+from tests.frame_compare import plain as _plain
 
 NOW = dt.datetime(2026, 12, 1, 12)
 PART = 7

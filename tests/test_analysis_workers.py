@@ -7,7 +7,6 @@ to the workers; SQLite, or PostgreSQL when FLEET_TEST_DATABASE_URL is set (each 
 
 import datetime as dt
 
-import pandas as pd
 import pytest
 from click.testing import CliRunner
 
@@ -16,17 +15,11 @@ from fleet.services.analysis import analyse_results, analysis_records, reanalyse
 from fleet.services.analysis import compute as compute_module
 from fleet.services.analysis.parallel import WORKERS_ENV, shareable, worker_count
 from fleet.trend.settings import AnalysisSettings
-from tests.test_one_pump_path import _plain, _same
+from tests.frame_compare import plain as _plain
+from tests.frame_compare import same_frames
 
 NOW = dt.datetime(2026, 12, 1, 12)
 PART = 7  # 41 demo pumps: six parts, the last one short
-
-
-def _same_frame(expected: pd.DataFrame, got: pd.DataFrame, what: str) -> None:
-    assert list(got.columns) == list(expected.columns), what
-    assert list(got.index) == list(expected.index), what
-    for column in expected.columns:
-        _same(expected[column], got[column], f"{what} {column}")
 
 
 def test_parts_in_two_workers_give_the_figures_of_one_process(demo_db):
@@ -39,9 +32,9 @@ def test_parts_in_two_workers_give_the_figures_of_one_process(demo_db):
     assert len(one_pass[0]) == 41
     for name, expected, got in zip(("results", "lives", "trends"), serial, pooled, strict=True):
         assert len(expected) > 0, name
-        _same_frame(expected, got, f"workers {name}")
+        same_frames(expected, got, f"workers {name}")
     for name, expected, got in zip(("results", "lives", "trends"), one_pass, serial, strict=True):
-        _same_frame(expected, got, f"parts {name}")
+        same_frames(expected, got, f"parts {name}")
     # The work really ran in other processes, a fresh one for each of the six parts, and each said how much
     # memory it took.
     assert len(peaks) == 6 and all(peak > 0 for peak in peaks.values())

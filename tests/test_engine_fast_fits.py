@@ -20,6 +20,7 @@ from fleet.services.analysis.frames import load_frames
 from fleet.trend import linear, robust, wear_laws
 from fleet.trend.engine import analyze_fleet
 from fleet.trend.settings import AnalysisSettings
+from tests.frame_compare import same_frames
 
 NOW = dt.datetime(2026, 12, 1, 12)
 
@@ -244,38 +245,9 @@ def _with(monkeypatch, plain: bool, run):
         return run()
 
 
-def _same_frames(expected: pd.DataFrame, got: pd.DataFrame, what: str) -> None:
-    assert list(got.columns) == list(expected.columns), what
-    assert len(got) == len(expected), what
-    for column in expected.columns:
-        a, b = expected[column], got[column]
-        where = f"{what} {column}"
-        if pd.api.types.is_float_dtype(a) or pd.api.types.is_float_dtype(b):
-            x, y = a.to_numpy(dtype=float), b.to_numpy(dtype=float)
-            assert np.array_equal(np.isnan(x), np.isnan(y)), where
-            assert np.array_equal(np.isinf(x), np.isinf(y)), where
-            finite = np.isfinite(x)
-            np.testing.assert_allclose(y[finite], x[finite], rtol=1e-9, atol=1e-12, err_msg=where)
-        elif pd.api.types.is_datetime64_any_dtype(a):
-            assert a.equals(b), where
-        else:
-            assert [_plain(v) for v in a] == [_plain(v) for v in b], where
-
-
-def _plain(value):
-    if isinstance(value, dict):
-        return {k: _plain(v) for k, v in value.items()}
-    if value is None or value is pd.NaT or (isinstance(value, float) and np.isnan(value)):
-        return None
-    if isinstance(value, float | np.floating):
-        return pytest.approx(float(value), rel=1e-9, abs=1e-12)
-    return value
-
-
 def _same_analysis(expected, got) -> None:
-    _same_frames(expected.results, got.results, "results")
-    _same_frames(expected.fits, got.fits, "fits")
-    _same_frames(expected.intervals, got.intervals, "intervals")
+    for what in ("results", "fits", "intervals"):
+        same_frames(getattr(expected, what), getattr(got, what), what, atol=1e-12)
 
 
 def test_the_demo_plant_gets_the_plain_codes_figures(demo_db, monkeypatch):

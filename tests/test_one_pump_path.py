@@ -5,38 +5,12 @@ checked against outside sources in the tests of fleet/trend (statsmodels, scipy,
 
 import datetime as dt
 
-import numpy as np
-import pandas as pd
-import pytest
-
 from fleet.services.analysis.frames import load_frames
 from fleet.trend.engine import analyze_fleet
+from tests.frame_compare import same_column
 
 NOW = dt.datetime(2026, 12, 1, 12)
 SKIP = {"rank"}  # the fleet's service order: a pump alone is always first, by design
-
-
-def _same(a: pd.Series, b: pd.Series, where: str) -> None:
-    if pd.api.types.is_float_dtype(a) or pd.api.types.is_float_dtype(b):
-        x, y = a.astype(float).to_numpy(), b.astype(float).to_numpy()
-        assert np.array_equal(np.isnan(x), np.isnan(y)), where
-        finite = np.isfinite(x)
-        np.testing.assert_allclose(y[finite], x[finite], rtol=1e-9, atol=1e-9, err_msg=where)
-    elif pd.api.types.is_datetime64_any_dtype(a) or pd.api.types.is_datetime64_any_dtype(b):
-        assert list(pd.to_datetime(a)) == list(pd.to_datetime(b)), where
-    else:
-        assert [_plain(v) for v in b] == [_plain(v) for v in a], where
-
-
-def _plain(value):
-    """A cell to compare: missing as None, numbers (also inside a dict of weights) to 1e-9."""
-    if isinstance(value, dict):
-        return {k: _plain(v) for k, v in value.items()}
-    if value is None or value is pd.NaT or (isinstance(value, float) and np.isnan(value)):
-        return None
-    if isinstance(value, float | np.floating):
-        return pytest.approx(float(value), rel=1e-9, abs=1e-9)
-    return value
 
 
 def test_each_pump_alone_gives_the_figures_of_the_whole_fleet_run(demo_db):
@@ -54,13 +28,13 @@ def test_each_pump_alone_gives_the_figures_of_the_whole_fleet_run(demo_db):
             assert set(got.columns) == set(expected.columns)
             for column in expected.columns:
                 if column not in SKIP:
-                    _same(expected[column], got[column], f"pump {pump_id} {column}")
+                    same_column(expected[column], got[column], f"pump {pump_id} {column}")
             # Every interval's fit, not only the current one's.
             fits = fleet.fits[fleet.fits["pump_id"] == pump_id].reset_index(drop=True)
             own_fits = alone.fits.reset_index(drop=True)
             assert len(fits) == len(own_fits) > 0
             for column in fits.columns:
-                _same(fits[column], own_fits[column], f"pump {pump_id} fits {column}")
+                same_column(fits[column], own_fits[column], f"pump {pump_id} fits {column}")
             past += bool(expected["crossed_limit"].notna().iloc[0])
     assert past > 0  # the demo has pumps past a limit, so the dating of a crossing is compared too
 
