@@ -376,11 +376,13 @@ def analyze_fleet(
     status = assess_status(res, now, s)
     res = pd.concat([res, status.set_axis(res.index)], axis=1)
     res.index.name = "pump_id"
+    # currency is all missing, and so float, for a pump not installed at a site: group on text either way.
+    currency = res["currency"].astype(object).fillna("")
     totals = {
         "pumps": int(len(res)),
         "by_status": {k: int(v) for k, v in res["status"].value_counts().items()},
         "energy_cost_per_year": {
-            str(k): float(v) for k, v in res.groupby(res["currency"].fillna(""))["energy_cost_per_year"].sum().items()
+            str(k): float(v) for k, v in res.groupby(currency)["energy_cost_per_year"].sum().items()
         },
         "leakage_kw": float(np.nansum(res["leakage_kw"])),
     }
