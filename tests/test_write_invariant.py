@@ -235,3 +235,23 @@ def test_a_lab_result_changes_no_service_life_so_no_kind_is_refitted(client, dem
                                                      "water": "400"}).status_code == 302
     assert refitted and all(kinds == set() for kinds in refitted), refitted
     assert_stored_equals_full(demo_db)
+
+
+def test_prior_figures_read_are_those_the_engine_computed(demo_db):
+    """Each pump's prior figures as pages read them (fleet.services.analysis.read_figures.prior_values, from its
+    kind's stored fit and its stored age) are those fleet.trend.engine.prior_figures gave it in the full analysis
+    that stored them. The figures themselves are checked against scipy in tests/test_trend_weibull.py."""
+    from fleet.services.analysis.compute import compute
+    from fleet.services.analysis.store import store
+
+    with demo_db.sessions() as session, session.begin():
+        computed = compute(session)
+        store(session, computed)
+        read = {r["pump"]: r for r in analysis_records(session)}
+        session.rollback()
+    engine_figures = computed.results.set_index("pump")[["prior_hours_to_overhaul", "prior_b10_hours"]]
+    assert engine_figures["prior_hours_to_overhaul"].notna().sum() > 10  # the demo's kinds with a fleet fit
+    for serial, (hours, b10) in engine_figures.iterrows():
+        for field, value in (("prior_hours_to_overhaul", hours), ("prior_b10_hours", b10)):
+            expected = None if value != value else float(value)
+            assert _same(read[serial][field], expected), (serial, field, read[serial][field], expected)

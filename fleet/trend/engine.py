@@ -415,8 +415,10 @@ def prior_figures(kinds, age_hours, horizon_hours, priors: pd.DataFrame):
     """What each pump's kind's fleet Weibull says of it: (mean residual life at its age, the kind's B10), and the
     priors with the expected overhauls of these pumps within their planning horizons (``horizon_hours``).
 
-    The one computation of the prior figures: a full analysis (apply_priors) and a refit of stored kinds
-    (fleet.services.analysis.store.refit_kinds) both call it.
+    A full analysis (apply_priors) and a refit of stored kinds (fleet.services.analysis.store.refit_kinds) both
+    call it. A page reads the per-pump part (the mean residual life at the pump's stored age, the kind's B10) by
+    fleet.services.analysis.read_figures.prior_values on the stored fit's numbers; tests/test_write_invariant.py
+    holds the two equal.
     """
     fleet_priors = priors.copy()
     kinds = np.asarray(kinds, dtype=object)
