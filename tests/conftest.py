@@ -165,7 +165,15 @@ class _SwappableApp:
         self.app = None
 
     def __call__(self, environ, start_response):
-        return self.app(environ, start_response)
+        # The body is read and its iterator closed here, before a byte reaches the socket: werkzeug's server closes
+        # the iterator only after draining the socket, and a browser that resets the connection as a test ends
+        # makes that drain raise first, leaving a static file open for the garbage collector (a ResourceWarning).
+        body = self.app(environ, start_response)
+        try:
+            return [b"".join(body)]
+        finally:
+            if hasattr(body, "close"):
+                body.close()
 
 
 @pytest.fixture(scope="session")
