@@ -35,6 +35,8 @@ def test_two_readings_taken_with_no_signal_are_stored_once_when_it_returns(live_
                                                                             demo_db, artifacts, browser_login):
     browser_login("technician")
     page.goto(base_url + "/rounds")
+    # The list of routes says what the device keeps there: the list, not a route.
+    page.wait_for_selector("#device-kept:has-text('This list of routes is kept on this device')", timeout=20000)
     page.fill("#route-name", "Walk with no signal")
     page.fill("#route-pumps", f"{FIRST}\n{SECOND}")
     page.click("text=Save route")

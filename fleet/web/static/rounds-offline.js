@@ -365,7 +365,7 @@
         app.dataset.kept = String(event.data.kept);
         const status = document.getElementById("device-kept");
         if (status && event.data.kept === event.data.asked) {
-          status.textContent = "This route is kept on this device: it opens, and takes readings, with no signal.";
+          status.textContent = app.dataset.keptWords;
         }
       };
       registration.active.postMessage({keep: urls}, [channel.port2]);
