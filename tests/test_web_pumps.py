@@ -193,6 +193,19 @@ def test_efficiency_figure_carries_points_band_limit_and_events():
     assert 'id="chart-x"' in html and "<script" in html and "plotly.min.js" not in html
 
 
+def test_efficiency_axis_keeps_the_readings_in_view_when_the_band_opens_far_ahead():
+    """A band that opens to -800 % far ahead would squash the readings into a line: the axis spans the readings,
+    the trend and its forecast, the limit and the band over the readings, and never goes below zero."""
+    readings = {"hours": [0.0, 500.0, 1000.0], "eta_v": [0.93, 0.92, 0.91], "eta_v_ref": [0.95, 0.94, 0.93]}
+    band = {"hours": [0.0, 1000.0, 20000.0], "mean": [0.95, 0.93, 0.89], "low": [0.94, 0.92, -8.0],
+            "high": [0.96, 0.94, 1.5], "forecast": [False, False, True]}
+    spec = charts.efficiency_figure(readings, band, 0.85, None)
+    low, high = go.Figure(data=spec["data"], layout=spec["layout"]).layout.yaxis.range
+    assert 0.0 < low < 0.85 and 0.96 < high < 1.0  # limit and fitted band inside, the far band's -800 % outside
+    steep = {**band, "mean": [0.95, 0.93, -0.4]}  # a forecast running below zero: the axis stops at zero
+    assert charts.efficiency_figure(readings, steep, 0.85, None)["layout"]["yaxis"]["range"][0] == 0.0
+
+
 PAST_PUMP = "EY-401"  # invented demo plant: an axial piston pump worn past its limit
 FAR_PUMP = "EY-105"  # invented demo plant: a vane pump whose slow trend puts its limit decades away
 

@@ -116,7 +116,30 @@ def efficiency_figure(readings, band, limit, events: list[dict] | None = None) -
     marks = _Marks()
     marks.limit(limit, "limit")
     marks.events(events, "chart_hours")
-    return plain_figure(traces, marks.layout(_axes("running hours (h)", "volumetric efficiency", ".0%")))
+    layout = marks.layout(_axes("running hours (h)", "volumetric efficiency", ".0%"))
+    shown = _efficiency_range(readings, band, limit)
+    if shown is not None:
+        layout["yaxis"]["range"] = shown
+    return plain_figure(traces, layout)
+
+
+def _efficiency_range(readings, band, limit) -> list[float] | None:
+    """The efficiency axis spans the readings, the trend line and its forecast, the limit, and the band where the
+    readings are: far ahead a band can open to hundreds of percent below zero, which would flatten everything else
+    into one line. The band beyond is cut at the axis; an efficiency below zero is never shown."""
+    parts = [_numbers(readings["eta_v"]), _numbers(readings["eta_v_ref"])]
+    if _present(limit):
+        parts.append(np.array([float(limit)]))
+    if band is not None and len(band["hours"]):
+        fitted = ~np.asarray(band["forecast"], dtype=bool)
+        parts += [_numbers(band["mean"]), _numbers(band["low"])[fitted], _numbers(band["high"])[fitted]]
+    values = np.concatenate(parts)
+    values = values[np.isfinite(values)]
+    if not len(values):
+        return None
+    low, high = float(values.min()), float(values.max())
+    pad = max(0.01, 0.08 * (high - low))
+    return [max(low - pad, 0.0), high + pad]
 
 
 def drain_figure(readings, limit_pct, events: list[dict] | None = None) -> dict:
