@@ -484,4 +484,7 @@ def _plain(value):
 def results_to_records(results: pd.DataFrame) -> list[dict]:
     """Results rows as JSON-ready dicts (pump_id included)."""
     frame = results.reset_index()
-    return [{str(k): _plain(v) for k, v in row.items()} for row in frame.to_dict(orient="records")]
+    # Column by column as Python values (what to_dict gives, without its lookup per cell), then row by row.
+    names = [str(k) for k in frame.columns]
+    columns = [[_plain(v) for v in values.tolist()] for _, values in frame.items()]
+    return [dict(zip(names, row, strict=True)) for row in zip(*columns, strict=True)]
