@@ -8,6 +8,8 @@ figures people read come from the heaviest law and the laws the readings cannot 
 never one solver call per pump.
 """
 
+from itertools import groupby
+
 import numpy as np
 import pandas as pd
 
@@ -60,17 +62,26 @@ def _figures(laws: LawFits, span: np.ndarray, current_hours: np.ndarray, prefix:
     return {f"{prefix}_{k}": v for k, v in cols.items()}
 
 
-def with_member_lines(table: pd.DataFrame, laws: dict[str, LawFits]) -> pd.DataFrame:
-    """The fits as one wide frame (FleetAnalysis.fits): ``table`` (fit_degradation's, with whatever columns were
-    added after them) with every member's columns (LawFits.to_columns, hundreds of floats per quantity) placed after
-    each quantity's figures, each quantity's members as one block (a frame of one array, not one Series each)."""
-    parts = [table[["pump_id", "interval_no", "current_hours"]]]
+def fit_columns(table: pd.DataFrame, laws: dict[str, LawFits]) -> dict:
+    """The columns of FleetAnalysis.fits in their order, without framing them: ``table``'s (fit_degradation's, with
+    whatever columns were added after them) as Series, and after each quantity's figures its members' lines
+    (LawFits.to_columns: hundreds of float arrays per quantity)."""
+    columns = {name: table[name] for name in ("pump_id", "interval_no", "current_hours")}
     for q in QUANTITIES:
-        members = laws[q].to_columns(q)
-        parts.append(table[[f"{q}_{name}" for name in _FIGURES]])
-        parts.append(pd.DataFrame(np.column_stack(list(members.values())), columns=list(members), index=table.index))
-    placed = {c for part in parts for c in part.columns}
-    parts.append(table[[c for c in table.columns if c not in placed]])
+        columns.update((f"{q}_{name}", table[f"{q}_{name}"]) for name in _FIGURES)
+        columns.update(laws[q].to_columns(q))
+    columns.update((name, table[name]) for name in table.columns if name not in columns)
+    return columns
+
+
+def with_member_lines(table: pd.DataFrame, laws: dict[str, LawFits]) -> pd.DataFrame:
+    """The fits as one wide frame (FleetAnalysis.fits), columns as fit_columns: each run of the table's own columns
+    taken together, each quantity's members as one block (a frame of one array, not one Series each)."""
+    parts = []
+    for own, run in groupby(fit_columns(table, laws).items(), key=lambda item: isinstance(item[1], pd.Series)):
+        run = dict(run)
+        parts.append(table[list(run)] if own else pd.DataFrame(np.column_stack(list(run.values())), columns=list(run),
+                                                                index=table.index))
     return pd.concat(parts, axis=1)
 
 

@@ -6,6 +6,7 @@ once -> hours and dates to each limit -> oil, energy and fleet life figures -> s
 
 from collections.abc import Mapping
 from dataclasses import dataclass, field
+from functools import cached_property
 
 import numpy as np
 import pandas as pd
@@ -14,6 +15,7 @@ from fleet.frames import READING_COLUMNS
 from fleet.physics.pump import theoretical_flow_lpm
 from fleet.trend.degradation import (
     QUANTITIES,
+    fit_columns,
     fit_degradation,
     not_enough_reason,
     summarise_fits,
@@ -44,15 +46,26 @@ KEYS = ["pump_id", "interval_no"]
 @dataclass
 class FleetAnalysis:
     """results: one row per pump (index pump_id). readings: the referred per-reading frame. fits: one row per
-    pump interval. priors: one row per pump kind. intervals: every service interval. totals: fleet sums."""
+    pump interval (framed from fit_table and laws when first read). priors: one row per pump kind. intervals:
+    every service interval. totals: fleet sums."""
 
     results: pd.DataFrame
     readings: pd.DataFrame
-    fits: pd.DataFrame
+    fit_table: pd.DataFrame  # the fits' own figures (fleet.trend.degradation.fit_degradation and what follows)
+    laws: dict  # each quantity's fitted wear laws (LawFits), rows as fit_table's
     priors: pd.DataFrame
     intervals: pd.DataFrame
     totals: dict = field(default_factory=dict)
     settings: AnalysisSettings = field(default_factory=AnalysisSettings)
+
+    def fit_columns(self) -> dict:
+        """The columns of ``fits`` by name, in order, none of the members' hundreds of lines framed."""
+        return fit_columns(self.fit_table, self.laws)
+
+    @cached_property
+    def fits(self) -> pd.DataFrame:
+        """One row per pump interval: the figures and every member's lines (about 1,300 columns)."""
+        return with_member_lines(self.fit_table, self.laws)
 
 
 def _empty_readings() -> pd.DataFrame:
@@ -244,7 +257,7 @@ def analyze_fleet(
 
     # Wear trends and remaining life, every pump interval at once.
     # The fits' figures as a narrow table (a few dozen columns) and the laws as arrays; the members' lines (most
-    # of the columns of FleetAnalysis.fits) are framed once, for the output only.
+    # of the columns of FleetAnalysis.fits) are framed only when that is read.
     fits, laws = fit_degradation(referred, s, pump_tab["kind"], shape_priors)
     fit_pump = pump_tab.reindex(fits["pump_id"])
     fits = summarise_fits(fits, fit_pump["rated_flow_lpm"].to_numpy(float), fit_pump["max_flow_lpm"].to_numpy(float), s)
@@ -406,7 +419,7 @@ def analyze_fleet(
     }
     first_cols = ["rank", "pump", "kind", "status", "reasons"]
     res = res[first_cols + [c for c in res.columns if c not in first_cols]]
-    return FleetAnalysis(res, referred, with_member_lines(fits, laws), fleet_priors, intervals, totals, s)
+    return FleetAnalysis(res, referred, fits, laws, fleet_priors, intervals, totals, s)
 
 
 def fit_priors(intervals: pd.DataFrame, kind_of_pump: pd.Series, settings: AnalysisSettings) -> pd.DataFrame:

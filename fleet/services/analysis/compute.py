@@ -98,7 +98,8 @@ class Part:
 def analyse_part(session: Session, pump_ids, now: datetime, settings: AnalysisSettings) -> Part:
     """The engine on one part of the fleet (the same whether run here or in a worker process)."""
     part = analyse(session, pump_ids, now, settings)
-    return Part(part.results, part.intervals, interval_trends(part.fits, part.intervals, settings.confidence))
+    return Part(part.results, part.intervals, interval_trends(part.fit_columns(), part.intervals,
+                                                                 settings.confidence))
 
 
 def analyse_results(session: Session, pump_ids=None, now: datetime | None = None,
@@ -122,8 +123,8 @@ def analyse_results(session: Session, pump_ids=None, now: datetime | None = None
         frames = load_frames(session, [], as_of=now)
         part = analyze_fleet(frames.pumps, frames.readings, frames.events, frames.samples, frames.flow_points,
                              now=now, settings=settings)
-        return part.results, interval_lives(part.intervals), interval_trends(part.fits, part.intervals,
-                                                                             settings.confidence)
+        return part.results, interval_lives(part.intervals), interval_trends(part.fit_columns(),
+                                                                             part.intervals, settings.confidence)
     chunk_pumps = chunk_pumps or CHUNK_PUMPS
     id_parts = [ids[first:first + chunk_pumps] for first in range(0, len(ids), chunk_pumps)]
     if workers > 1 and len(id_parts) > 1 and url is not None:
