@@ -401,7 +401,10 @@ def analyze_fleet(
     res["age_hours"] = np.where(
         current_iv["interval_no"] == 0, current_iv["last_hours"], current_iv["last_hours"] - current_iv["start_hours"]
     )
-    res = pd.DataFrame(res, index=pump_tab.index)
+    # A column already on the pumps' index goes in as its array: no alignment per column (object columns stay
+    # Series, which keep their dtype where an array of text would be read as strings).
+    res = pd.DataFrame({k: v.array if isinstance(v, pd.Series) and v.dtype != object and v.index.equals(pump_tab.index)
+                        else v for k, v in res.items()}, index=pump_tab.index)
     fleet_priors = apply_priors(res, fleet_priors, now)
 
     status = assess_status(res, now, s)

@@ -44,12 +44,14 @@ def data_versions(session: Session, pump_ids=None) -> dict[int, int]:
 
 
 def stored_priors(session: Session) -> pd.DataFrame | None:
-    rows = session.scalars(select(FleetPrior)).all()
+    rows = session.execute(select(FleetPrior.kind, FleetPrior.detail)).all()  # plain rows, no ORM objects
     if not rows:
         return None
-    frame = pd.DataFrame([{**row.detail} for row in rows], index=pd.Index([r.kind for r in rows], name="kind"))
+    frame = pd.DataFrame([{**detail} for _, detail in rows], index=pd.Index([kind for kind, _ in rows], name="kind"))
     # JSON gives None for a kind without a fit; the engine wants NaN in float columns.
     for column in frame.columns:
+        if frame[column].dtype == float:  # numbers already (most figures)
+            continue
         numbers = pd.to_numeric(frame[column], errors="coerce")
         if numbers.notna().sum() == frame[column].notna().sum():
             frame[column] = numbers.astype(float)
