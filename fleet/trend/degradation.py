@@ -66,11 +66,12 @@ def fit_columns(table: pd.DataFrame, laws: dict[str, LawFits]) -> dict:
     """The columns of FleetAnalysis.fits in their order, without framing them: ``table``'s (fit_degradation's, with
     whatever columns were added after them) as Series, and after each quantity's figures its members' lines
     (LawFits.to_columns: hundreds of float arrays per quantity)."""
-    columns = {name: table[name] for name in ("pump_id", "interval_no", "current_hours")}
+    own = dict(table.items())  # each column once, without a lookup by name in the frame
+    columns = {name: own[name] for name in ("pump_id", "interval_no", "current_hours")}
     for q in QUANTITIES:
-        columns.update((f"{q}_{name}", table[f"{q}_{name}"]) for name in _FIGURES)
+        columns.update((f"{q}_{name}", own[f"{q}_{name}"]) for name in _FIGURES)
         columns.update(laws[q].to_columns(q))
-    columns.update((name, table[name]) for name in table.columns if name not in columns)
+    columns.update((name, values) for name, values in own.items() if name not in columns)
     return columns
 
 
