@@ -63,3 +63,31 @@ def test_the_one_pump_frames_are_the_fleet_loaders_for_every_pump(demo_db):
             with_samples += len(own.samples) > 0
         assert with_samples > 0  # lab results are compared too
         assert one_pump_frames(session, max(pump_ids) + 1000, NOW) is None
+
+
+def test_the_fits_framed_when_read_are_the_arrays_the_engine_worked_on(demo_db):
+    # The engine keeps the fits as a narrow table and each quantity's LawFits, framing the members' ~1,300 columns
+    # only when FleetAnalysis.fits is read; the kept interval trends read the columns by name without framing them.
+    # The reference is the framed frame: both readings must give the same rows, value for value.
+    import numpy as np
+
+    from fleet.trend.interval_trends import interval_trends
+    from fleet.trend.wear_laws import FIELDS, LawFits
+
+    with demo_db.sessions() as session:
+        whole = load_frames(session, None, as_of=NOW)
+    fleet = analyze_fleet(whole.pumps, whole.readings, whole.events, whole.samples, whole.flow_points, now=NOW)
+    assert list(fleet.fit_columns()) == list(fleet.fits.columns)
+    for q, laws in fleet.laws.items():
+        again = LawFits.from_columns(fleet.fits, q)
+        for name in (*FIELDS, "hours_scale", "hours_offset"):
+            np.testing.assert_array_equal(getattr(again, name), getattr(laws, name), err_msg=f"{q} {name}")
+    framed = interval_trends(fleet.fits, fleet.intervals, 0.9)
+    by_name = interval_trends(fleet.fit_columns(), fleet.intervals, 0.9)
+    assert len(framed) == len(fleet.fits) > 41  # some pumps have more than one interval
+    assert list(by_name.columns) == list(framed.columns)
+    for column in framed.columns:
+        if column == "fit":  # JSON-ready dicts: equal key for key, in the same order
+            assert [list(d.items()) for d in by_name[column]] == [list(d.items()) for d in framed[column]]
+        else:
+            same_column(framed[column], by_name[column], f"kept trends {column}")

@@ -8,6 +8,8 @@ figures people read come from the heaviest law and the laws the readings cannot 
 never one solver call per pump.
 """
 
+from itertools import groupby
+
 import numpy as np
 import pandas as pd
 
@@ -24,8 +26,14 @@ def _span(group: np.ndarray, hours: np.ndarray, n_groups: int) -> np.ndarray:
     return group_max(group, hours, n_groups) - group_min(group, hours, n_groups)
 
 
-def _as_frame(laws: LawFits, span: np.ndarray, current_hours: np.ndarray, prefix: str, settings) -> pd.DataFrame:
-    """The exponential member's line under the historical names (q_a, q_b, ...), the averaged figures, the laws."""
+# Each quantity's figures in fit_degradation's table (q_<name>), in order.
+_FIGURES = ("n_points", "span_hours", "a", "b", "var_a", "var_b", "cov_ab", "scale", "dof", "current_lpm", "start_lpm",
+            "slope_lpm_per_h", "wear_law", *(f"weight_{law}" for law in LAWS))
+
+
+def _figures(laws: LawFits, span: np.ndarray, current_hours: np.ndarray, prefix: str, settings) -> dict:
+    """The exponential member's line under the historical names (q_a, q_b, ...), the averaged figures, the laws'
+    weights: the columns q_<name> of _FIGURES."""
     exp = 0  # MEMBERS[0] is the exponential law
     weights = laws.centred().law_weights()  # the weights the forecast follows (LawFits.centre_weight)
     stacked = np.column_stack([weights[law] for law in LAWS])
@@ -51,14 +59,36 @@ def _as_frame(laws: LawFits, span: np.ndarray, current_hours: np.ndarray, prefix
         "wear_law": wear_law,
         **{f"weight_{law}": np.where(fitted, weights[law], np.nan) for law in LAWS},
     }
-    # The members' columns (hundreds, all floats) as one block: a frame of one array, not one Series each.
-    members = laws.to_columns(prefix)
-    block = pd.DataFrame(np.column_stack(list(members.values())), columns=list(members))
-    return pd.concat([pd.DataFrame({f"{prefix}_{k}": v for k, v in cols.items()}), block], axis=1)
+    return {f"{prefix}_{k}": v for k, v in cols.items()}
+
+
+def fit_columns(table: pd.DataFrame, laws: dict[str, LawFits]) -> dict:
+    """The columns of FleetAnalysis.fits in their order, without framing them: ``table``'s (fit_degradation's, with
+    whatever columns were added after them) as Series, and after each quantity's figures its members' lines
+    (LawFits.to_columns: hundreds of float arrays per quantity)."""
+    own = dict(table.items())  # each column once, without a lookup by name in the frame
+    columns = {name: own[name] for name in ("pump_id", "interval_no", "current_hours")}
+    for q in QUANTITIES:
+        columns.update((f"{q}_{name}", own[f"{q}_{name}"]) for name in _FIGURES)
+        columns.update(laws[q].to_columns(q))
+    columns.update((name, values) for name, values in own.items() if name not in columns)
+    return columns
+
+
+def with_member_lines(table: pd.DataFrame, laws: dict[str, LawFits]) -> pd.DataFrame:
+    """The fits as one wide frame (FleetAnalysis.fits), columns as fit_columns: each run of the table's own columns
+    taken together, each quantity's members as one block (a frame of one array, not one Series each)."""
+    parts = []
+    for own, run in groupby(fit_columns(table, laws).items(), key=lambda item: isinstance(item[1], pd.Series)):
+        run = dict(run)
+        parts.append(table[list(run)] if own else pd.DataFrame(np.column_stack(list(run.values())), columns=list(run),
+                                                                index=table.index))
+    return pd.concat(parts, axis=1)
 
 
 def fit_degradation(referred: pd.DataFrame, settings: AnalysisSettings | None = None,
-                    kind_of_pump: pd.Series | None = None, shape_priors: pd.DataFrame | None = None) -> pd.DataFrame:
+                    kind_of_pump: pd.Series | None = None, shape_priors: pd.DataFrame | None = None,
+                    ) -> tuple[pd.DataFrame, dict[str, LawFits]]:
     """Fit ln(slip_ref) and ln(drain_ref) against interval hours for every pump interval.
 
     referred: refer_readings output with intervals assigned (pump_id, interval_no, interval_hours).
@@ -78,21 +108,22 @@ def fit_degradation(referred: pd.DataFrame, settings: AnalysisSettings | None = 
     - q_current_lpm, q_start_lpm: the trend (median of the heaviest law) at current_hours and at 0;
     - q_slope_lpm_per_h: the model-weighted growth rate at current_hours;
     - q_wear_law (the law with the most weight, None if unfitted) and q_weight_<law> for each of LAWS;
-    - q_hours_scale, q_hours_offset and q_<member>_<a|b|var_a|var_b|cov_ab|dof|weight> for every member of the model set
-      (LawFits.from_columns(fits, q) rebuilds it, e.g. for a chart's band).
+    and the fitted laws of each quantity ({"slip": LawFits, "drain": LawFits}, rows as the table's). The engine
+    works on this narrow table and the laws; `with_member_lines` adds q_hours_scale, q_hours_offset and
+    q_<member>_<a|b|var_a|var_b|cov_ab|dof|weight> for every member of the model set (LawFits.from_columns(fits, q)
+    rebuilds them, e.g. for a chart's band) to the fits it hands out.
     Derived eta_v_ref figures are added by `summarise_fits`.
     """
     s = settings or AnalysisSettings()
     unique, group_all = pair_codes(referred["pump_id"].to_numpy(), referred["interval_no"].to_numpy())
-    keys = pd.DataFrame({"pump_id": unique[:, 0], "interval_no": unique[:, 1]})
-    n_groups = len(keys)
+    n_groups = len(unique)
 
     hours = pd.to_numeric(referred["interval_hours"], errors="coerce").to_numpy(dtype=float)
     valid_hours = np.isfinite(hours) & (hours >= 0)
     current_hours = group_max(group_all, np.where(valid_hours, hours, np.nan), n_groups)
     good = referred["flag"].isna().to_numpy() & valid_hours
 
-    frames = [keys.assign(current_hours=current_hours)]
+    columns = {"pump_id": unique[:, 0], "interval_no": unique[:, 1], "current_hours": current_hours}
     # Hours run before the interval's hours count: the first interval's hour meter counts from new.
     start_meter = pd.to_numeric(referred["interval_start_hours"], errors="coerce").to_numpy(dtype=float)
     first_interval = referred["interval_no"].to_numpy() == 0
@@ -135,13 +166,13 @@ def fit_degradation(referred: pd.DataFrame, settings: AnalysisSettings | None = 
     slip_laws.weigh(joint, joint_members)
     drain_laws.weigh(joint, joint_members)
     if s.shape_prior == "pooled" and kind_of_pump is not None:  # the forecast on the kind's pooled shapes
-        pool_shapes((slip_laws, drain_laws), joint, joint_members, kind_of_pump.reindex(keys["pump_id"]), s,
+        pool_shapes((slip_laws, drain_laws), joint, joint_members, kind_of_pump.reindex(unique[:, 0]), s,
                     shape_priors)
     # The slip's forecast follows the case drain's sharper shape (LawFits.centred_on); its band stays its own.
     slip_laws.centred_on(drain_laws, g, h, q_slip, slip_sigma(None), s)
-    frames.append(_as_frame(slip_laws, _span(g, h, n_groups), current_hours, "slip", s))
-    frames.append(_as_frame(drain_laws, _span(gd, hd, n_groups), current_hours, "drain", s))
-    return pd.concat(frames, axis=1)
+    columns.update(_figures(slip_laws, _span(g, h, n_groups), current_hours, "slip", s))
+    columns.update(_figures(drain_laws, _span(gd, hd, n_groups), current_hours, "drain", s))
+    return pd.DataFrame(columns), {"slip": slip_laws, "drain": drain_laws}
 
 
 def enough_data(n_points: np.ndarray, span_hours: np.ndarray, settings: AnalysisSettings) -> np.ndarray:

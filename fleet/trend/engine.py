@@ -6,13 +6,21 @@ once -> hours and dates to each limit -> oil, energy and fleet life figures -> s
 
 from collections.abc import Mapping
 from dataclasses import dataclass, field
+from functools import cached_property
 
 import numpy as np
 import pandas as pd
 
 from fleet.frames import READING_COLUMNS
 from fleet.physics.pump import theoretical_flow_lpm
-from fleet.trend.degradation import QUANTITIES, fit_degradation, not_enough_reason, summarise_fits
+from fleet.trend.degradation import (
+    QUANTITIES,
+    fit_columns,
+    fit_degradation,
+    not_enough_reason,
+    summarise_fits,
+    with_member_lines,
+)
 from fleet.trend.energy import leakage_energy, typical_pressure_bar
 from fleet.trend.grouped import group_median, pair_codes
 from fleet.trend.intervals import assign_intervals, interval_lives
@@ -29,25 +37,35 @@ from fleet.trend.remaining_life import (
 )
 from fleet.trend.settings import AnalysisSettings
 from fleet.trend.status import assess_status, horizon_remaining_hours
-from fleet.trend.wear_laws import FIELDS, LAWS, MEMBERS
+from fleet.trend.wear_laws import LAWS, MEMBERS
 from fleet.trend.weibull import expected_overhauls, fit_fleet_priors, mean_residual_life
 
 KEYS = ["pump_id", "interval_no"]
-_MEMBER_LINES = frozenset(f"{q}_{m.name}_{f}" for q in QUANTITIES for m in MEMBERS for f in FIELDS if f != "weight")
 
 
 @dataclass
 class FleetAnalysis:
     """results: one row per pump (index pump_id). readings: the referred per-reading frame. fits: one row per
-    pump interval. priors: one row per pump kind. intervals: every service interval. totals: fleet sums."""
+    pump interval (framed from fit_table and laws when first read). priors: one row per pump kind. intervals:
+    every service interval. totals: fleet sums."""
 
     results: pd.DataFrame
     readings: pd.DataFrame
-    fits: pd.DataFrame
+    fit_table: pd.DataFrame  # the fits' own figures (fleet.trend.degradation.fit_degradation and what follows)
+    laws: dict  # each quantity's fitted wear laws (LawFits), rows as fit_table's
     priors: pd.DataFrame
     intervals: pd.DataFrame
     totals: dict = field(default_factory=dict)
     settings: AnalysisSettings = field(default_factory=AnalysisSettings)
+
+    def fit_columns(self) -> dict:
+        """The columns of ``fits`` by name, in order, none of the members' hundreds of lines framed."""
+        return fit_columns(self.fit_table, self.laws)
+
+    @cached_property
+    def fits(self) -> pd.DataFrame:
+        """One row per pump interval: the figures and every member's lines (about 1,300 columns)."""
+        return with_member_lines(self.fit_table, self.laws)
 
 
 def _empty_readings() -> pd.DataFrame:
@@ -127,9 +145,19 @@ def _past_margin(fits: pd.DataFrame, limits: dict[str, np.ndarray], last: pd.Dat
     return np.fmax(slip, drain)
 
 
-def _wear_law(cur: pd.DataFrame) -> pd.DataFrame:
+def _rows_of(values: np.ndarray, rows: np.ndarray) -> np.ndarray:
+    """values' rows at ``rows`` (one per pump), NaN where a row is -1 (no fitted interval)."""
+    if len(values) == 0:  # no interval fitted at all
+        return np.full((len(rows), values.shape[1]), np.nan)
+    taken = values[np.maximum(rows, 0)].astype(float)
+    taken[rows < 0] = np.nan
+    return taken
+
+
+def _wear_law(cur: pd.DataFrame, member_weights: dict[str, np.ndarray]) -> pd.DataFrame:
     """wear_law (the law with the most weight), wear_law_weights ({law: weight}) and wear_power (the power law's
-    exponent, averaged over its members by weight) of each pump's current interval. Slip and case drain are
+    exponent, averaged over its members by weight) of each pump's current interval (member_weights: per quantity,
+    per pump and member of MEMBERS, LawFits.weight of that interval). Slip and case drain are
     weighed jointly, so both trends carry the same weights; the slip's are read, the drain's where only the
     drain has a trend. None (NaN) without a trend."""
     slip_ok = cur["slip_enough_data"].to_numpy(bool)
@@ -148,9 +176,9 @@ def _wear_law(cur: pd.DataFrame) -> pd.DataFrame:
     # The power law's exponent, weighted over its members: above 1 accelerating, below 1 slowing down.
     power = np.zeros(len(cur))
     total = np.zeros(len(cur))
-    for m in MEMBERS:
+    for j, m in enumerate(MEMBERS):
         if m.law == "power":
-            w = np.where(source == "slip", cur[f"slip_{m.name}_weight"], cur[f"drain_{m.name}_weight"]).astype(float)
+            w = np.where(source == "slip", member_weights["slip"][:, j], member_weights["drain"][:, j])
             power, total = power + np.nan_to_num(w) * m.power, total + np.nan_to_num(w)
     with np.errstate(invalid="ignore", divide="ignore"):
         wear_power = np.where(known & (total > 0), power / total, np.nan)
@@ -228,7 +256,9 @@ def analyze_fleet(
     intervals = intervals[intervals["pump_id"].isin(pump_tab.index)].reset_index(drop=True)
 
     # Wear trends and remaining life, every pump interval at once.
-    fits = fit_degradation(referred, s, pump_tab["kind"], shape_priors)
+    # The fits' figures as a narrow table (a few dozen columns) and the laws as arrays; the members' lines (most
+    # of the columns of FleetAnalysis.fits) are framed only when that is read.
+    fits, laws = fit_degradation(referred, s, pump_tab["kind"], shape_priors)
     fit_pump = pump_tab.reindex(fits["pump_id"])
     fits = summarise_fits(fits, fit_pump["rated_flow_lpm"].to_numpy(float), fit_pump["max_flow_lpm"].to_numpy(float), s)
     limits = limit_flows_lpm(
@@ -248,15 +278,16 @@ def analyze_fleet(
                                                      referred["flag"].isna().to_numpy(), len(fits),
                                                      s.typical_window_days),
     }, index=fits.index)
-    fits = pd.concat([fits, hours_to_limits(fits, limits, s), per_interval], axis=1)  # joined once: a wide frame
+    fits = pd.concat([fits, hours_to_limits(fits, laws, limits, s), per_interval], axis=1)  # joined once
 
     # One row per pump: its current interval.
     current_iv = intervals[intervals["is_current"]].set_index("pump_id").reindex(pump_tab.index)
     current_iv["interval_no"] = current_iv["interval_no"].fillna(0).astype(np.int64)
     cur_keys = pd.MultiIndex.from_arrays([pump_tab.index, current_iv["interval_no"]])
-    # The members' lines (most of the fits' columns) stay out: the pump rows read only their weights.
-    cur = fits[[c for c in fits.columns if c not in _MEMBER_LINES]].set_index(KEYS).reindex(cur_keys)
+    cur = fits.set_index(KEYS).reindex(cur_keys)
     cur.index = pump_tab.index
+    # Each pump's current interval's row of the fits (-1: none), for the members' weights.
+    cur_rows = pd.MultiIndex.from_arrays([fits["pump_id"], fits["interval_no"]]).get_indexer(cur_keys)
     cur_limits = {
         q: limit_flows_lpm(
             pump_tab["eta_v_limit"], pump_tab["drain_limit_pct"], pump_tab["rated_flow_lpm"], pump_tab["max_flow_lpm"]
@@ -340,7 +371,7 @@ def analyze_fleet(
     ):
         res[dst] = limit_dates(res["last_reading_at"], res[src], res["hours_per_day"]).to_numpy()
 
-    res.update(_wear_law(cur).items())
+    res.update(_wear_law(cur, {q: _rows_of(laws[q].weight, cur_rows) for q in QUANTITIES}).items())
     res.update(_crossing_passed(cur, current_iv, referred).items())
     res["past_margin"] = _past_margin(cur, cur_limits, last, pump_tab)
     res["data_note"] = _data_note(res, current_iv, cur, s)
@@ -370,7 +401,10 @@ def analyze_fleet(
     res["age_hours"] = np.where(
         current_iv["interval_no"] == 0, current_iv["last_hours"], current_iv["last_hours"] - current_iv["start_hours"]
     )
-    res = pd.DataFrame(res, index=pump_tab.index)
+    # A column already on the pumps' index goes in as its array: no alignment per column (object columns stay
+    # Series, which keep their dtype where an array of text would be read as strings).
+    res = pd.DataFrame({k: v.array if isinstance(v, pd.Series) and v.dtype != object and v.index.equals(pump_tab.index)
+                        else v for k, v in res.items()}, index=pump_tab.index)
     fleet_priors = apply_priors(res, fleet_priors, now)
 
     status = assess_status(res, now, s)
@@ -388,7 +422,7 @@ def analyze_fleet(
     }
     first_cols = ["rank", "pump", "kind", "status", "reasons"]
     res = res[first_cols + [c for c in res.columns if c not in first_cols]]
-    return FleetAnalysis(res, referred, fits, fleet_priors, intervals, totals, s)
+    return FleetAnalysis(res, referred, fits, laws, fleet_priors, intervals, totals, s)
 
 
 def fit_priors(intervals: pd.DataFrame, kind_of_pump: pd.Series, settings: AnalysisSettings) -> pd.DataFrame:
@@ -466,4 +500,7 @@ def _plain(value):
 def results_to_records(results: pd.DataFrame) -> list[dict]:
     """Results rows as JSON-ready dicts (pump_id included)."""
     frame = results.reset_index()
-    return [{str(k): _plain(v) for k, v in row.items()} for row in frame.to_dict(orient="records")]
+    # Column by column as Python values (what to_dict gives, without its lookup per cell), then row by row.
+    names = [str(k) for k in frame.columns]
+    columns = [[_plain(v) for v in values.tolist()] for _, values in frame.items()]
+    return [dict(zip(names, row, strict=True)) for row in zip(*columns, strict=True)]

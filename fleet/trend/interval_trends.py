@@ -5,6 +5,8 @@ trend crosses its limit, and the interval's hours; with these kept, the band is 
 (fleet.trend.remaining_life.trend_band), with no readings and no fitting.
 """
 
+from collections.abc import Mapping
+
 import numpy as np
 import pandas as pd
 
@@ -16,51 +18,52 @@ SLIP_FIGURES = ("n_points", "span_hours", "a", "b", "current_lpm", "start_lpm", 
 DRAIN_FIGURES = ("n_points", "enough_data", "current_lpm", "crossing_hours", "crossing_low", "crossing_high")
 
 
-def interval_trends(fits: pd.DataFrame, intervals: pd.DataFrame, confidence: float) -> pd.DataFrame:
+def interval_trends(fits: Mapping, intervals: pd.DataFrame, confidence: float) -> pd.DataFrame:
     """One row per fitted pump interval: pump_id, interval_no, is_current, start_hours, current_hours,
     enough_data (the slip has a trend) and fit, a JSON-ready dict of the slip's wear-law lines (slip_<member>_<a,
     b, var_a, var_b, cov_ab, dof, weight>, slip_hours_scale, slip_hours_offset), its figures, the drain's
     summary figures and the confidence the crossing bounds were computed at.
 
-    fits, intervals: FleetAnalysis.fits and .intervals.
+    fits: the columns of FleetAnalysis.fits by name, in its order (FleetAnalysis.fit_columns, which frames none of
+    the members' hundreds of lines; the frame itself serves too); intervals: FleetAnalysis.intervals.
     """
     columns = ["pump_id", "interval_no", "is_current", "start_hours", "current_hours", "enough_data", "fit"]
-    if len(fits) == 0:
+    if len(fits["pump_id"]) == 0:
         return pd.DataFrame(columns=columns)
     start = intervals.set_index(["pump_id", "interval_no"])[["start_hours", "is_current"]]
-    keys = pd.MultiIndex.from_frame(fits[["pump_id", "interval_no"]])
+    keys = pd.MultiIndex.from_arrays([np.asarray(fits["pump_id"]), np.asarray(fits["interval_no"])])
     here = start.reindex(keys)
-    kept = [c for c in fits.columns if c.startswith("slip_") and (
+    kept = [c for c in fits.keys() if c.startswith("slip_") and (
         c.removeprefix("slip_") in SLIP_FIGURES or "_weight" in c or c.endswith(
             ("_a", "_b", "_var_a", "_var_b", "_cov_ab", "_dof", "_hours_scale", "_hours_offset")))]
-    kept += [f"drain_{name}" for name in DRAIN_FIGURES if f"drain_{name}" in fits.columns]
+    kept += [f"drain_{name}" for name in DRAIN_FIGURES if f"drain_{name}" in fits]
     # Every kept column as one object table (numbers NaN -> None, bools, JSON-ready text), numbers in one block:
     # a row's dict is then one zip, with no lookup or check per cell.
-    table = np.empty((len(fits), len(kept)), dtype=object)
-    # Each column's dtype from a plain dict, and each distinct dtype judged once: a lookup in fits.dtypes (a
-    # Series keyed by some thousand names) per kept column cost more than the rows' dicts for one pump.
-    dtypes = dict(zip(fits.columns.tolist(), fits.dtypes.tolist(), strict=True))
+    n_rows = len(fits["pump_id"])
+    table = np.empty((n_rows, len(kept)), dtype=object)
+    # Each distinct dtype judged once (most columns are the members' float lines).
+    dtypes = [fits[name].dtype for name in kept]
     kinds = {dtype: ("bool" if pd.api.types.is_bool_dtype(dtype) else
-                     "number" if pd.api.types.is_numeric_dtype(dtype) else "other") for dtype in set(dtypes.values())}
-    kind = [kinds[dtypes[name]] for name in kept]
+                     "number" if pd.api.types.is_numeric_dtype(dtype) else "other") for dtype in set(dtypes)}
+    kind = [kinds[dtype] for dtype in dtypes]
     numeric = [j for j, k in enumerate(kind) if k == "number"]
     if numeric:
-        numbers = fits[[kept[j] for j in numeric]].to_numpy(float)
+        numbers = np.column_stack([np.asarray(fits[kept[j]], dtype=float) for j in numeric])
         table[:, numeric] = np.where(np.isfinite(numbers), numbers, None)
     for j, name in enumerate(kept):
         if kind[j] == "bool":
-            table[:, j] = fits[name].to_numpy(bool).tolist()
+            table[:, j] = np.asarray(fits[name], dtype=bool).tolist()
         elif kind[j] == "other":
             table[:, j] = json_ready(fits[name].tolist())
     keys = ["confidence", *kept]
     values = [dict(zip(keys, (confidence, *row), strict=True)) for row in table.tolist()]
     return pd.DataFrame({
-        "pump_id": fits["pump_id"].to_numpy(np.int64),
-        "interval_no": fits["interval_no"].to_numpy(np.int64),
+        "pump_id": np.asarray(fits["pump_id"], dtype=np.int64),
+        "interval_no": np.asarray(fits["interval_no"], dtype=np.int64),
         "is_current": here["is_current"].astype("boolean").fillna(False).to_numpy(bool),
         "start_hours": here["start_hours"].to_numpy(float),
-        "current_hours": fits["current_hours"].to_numpy(float),
-        "enough_data": fits["slip_enough_data"].astype("boolean").fillna(False).to_numpy(bool),
+        "current_hours": np.asarray(fits["current_hours"], dtype=float),
+        "enough_data": pd.Series(fits["slip_enough_data"]).astype("boolean").fillna(False).to_numpy(bool),
         "fit": values,
     }, columns=columns)
 

@@ -28,8 +28,12 @@ def limit_flows_lpm(eta_v_limit, drain_limit_pct, rated_flow_lpm, max_flow_lpm) 
     }
 
 
-def hours_to_limits(fits: pd.DataFrame, limits_lpm: dict[str, np.ndarray], settings: AnalysisSettings) -> pd.DataFrame:
+def hours_to_limits(fits: pd.DataFrame, laws: dict[str, LawFits], limits_lpm: dict[str, np.ndarray],
+                    settings: AnalysisSettings) -> pd.DataFrame:
     """Remaining hours to each limit and to the governing one, for every fitted pump interval.
+
+    fits: fit_degradation's table with summarise_fits' figures; laws: each quantity's fitted laws (its rows as the
+    table's).
 
     The crossing comes from the weighed wear laws (fleet.trend.model_average.crossing_band): the median
     crossing of the heaviest law is the forecast, the union of the (1 - confidence) / 2 to (1 + confidence) / 2
@@ -41,15 +45,14 @@ def hours_to_limits(fits: pd.DataFrame, limits_lpm: dict[str, np.ndarray], setti
     figure can be given). Then governing_limit, hours_to_limit, hours_to_limit_low, hours_to_limit_high,
     upper_bound_open for the limit reached first.
     """
-    out = pd.DataFrame(index=fits.index)
+    out = {}  # the columns, framed once
     now_h = fits["current_hours"].to_numpy(dtype=float)
     for q in QUANTITIES:
-        laws = LawFits.from_columns(fits, q)
         limit = np.asarray(limits_lpm[q], dtype=float)
         enough = fits[f"{q}_enough_data"].to_numpy(dtype=bool)
         has_limit = np.isfinite(limit) & (limit > 0)
         usable = enough & has_limit
-        x_low, x_hat, x_high = crossing_band(laws, np.where(usable, limit, np.nan), now_h, settings.confidence)
+        x_low, x_hat, x_high = crossing_band(laws[q], np.where(usable, limit, np.nan), now_h, settings.confidence)
         current = fits[f"{q}_current_lpm"].to_numpy(dtype=float)
         past = usable & (current >= limit)
 
@@ -76,21 +79,21 @@ def hours_to_limits(fits: pd.DataFrame, limits_lpm: dict[str, np.ndarray], setti
         )
         out[f"{q}_note"] = np.where(has_limit, note, None)
 
-    hours = np.column_stack([out[f"{q}_hours_to_limit"].to_numpy(dtype=float) for q in QUANTITIES])
+    hours = np.column_stack([out[f"{q}_hours_to_limit"] for q in QUANTITIES])
     any_finite = np.isfinite(hours).any(axis=1)
     first = np.argmin(np.where(np.isfinite(hours), hours, np.inf), axis=1)
     names = np.array([LIMIT_NAMES[q] for q in QUANTITIES], dtype=object)
     out["governing_limit"] = np.where(any_finite, names[first], None)
-    rows = np.arange(len(out))
+    rows = np.arange(len(fits))
     for col in ("hours_to_limit", "hours_low", "hours_high", "upper_open"):
-        stacked = np.column_stack([out[f"{q}_{col}"].to_numpy() for q in QUANTITIES])
+        stacked = np.column_stack([out[f"{q}_{col}"] for q in QUANTITIES])
         picked = stacked[rows, first]
         target = {"hours_low": "hours_to_limit_low", "hours_high": "hours_to_limit_high"}.get(col, col)
         if col == "upper_open":
             out["upper_bound_open"] = np.where(any_finite, picked.astype(bool), False)
         else:
             out[target] = np.where(any_finite, picked.astype(float), np.nan)
-    return out
+    return pd.DataFrame(out, index=fits.index)
 
 
 _TREND_WORDS = {"slip": "volumetric efficiency", "drain": "case drain"}

@@ -44,12 +44,14 @@ def data_versions(session: Session, pump_ids=None) -> dict[int, int]:
 
 
 def stored_priors(session: Session) -> pd.DataFrame | None:
-    rows = session.scalars(select(FleetPrior)).all()
+    rows = session.execute(select(FleetPrior.kind, FleetPrior.detail)).all()  # plain rows, no ORM objects
     if not rows:
         return None
-    frame = pd.DataFrame([{**row.detail} for row in rows], index=pd.Index([r.kind for r in rows], name="kind"))
+    frame = pd.DataFrame([{**detail} for _, detail in rows], index=pd.Index([kind for kind, _ in rows], name="kind"))
     # JSON gives None for a kind without a fit; the engine wants NaN in float columns.
     for column in frame.columns:
+        if frame[column].dtype == float:  # numbers already (most figures)
+            continue
         numbers = pd.to_numeric(frame[column], errors="coerce")
         if numbers.notna().sum() == frame[column].notna().sum():
             frame[column] = numbers.astype(float)
@@ -98,7 +100,8 @@ class Part:
 def analyse_part(session: Session, pump_ids, now: datetime, settings: AnalysisSettings) -> Part:
     """The engine on one part of the fleet (the same whether run here or in a worker process)."""
     part = analyse(session, pump_ids, now, settings)
-    return Part(part.results, part.intervals, interval_trends(part.fits, part.intervals, settings.confidence))
+    return Part(part.results, part.intervals, interval_trends(part.fit_columns(), part.intervals,
+                                                                 settings.confidence))
 
 
 def analyse_results(session: Session, pump_ids=None, now: datetime | None = None,
@@ -122,8 +125,8 @@ def analyse_results(session: Session, pump_ids=None, now: datetime | None = None
         frames = load_frames(session, [], as_of=now)
         part = analyze_fleet(frames.pumps, frames.readings, frames.events, frames.samples, frames.flow_points,
                              now=now, settings=settings)
-        return part.results, interval_lives(part.intervals), interval_trends(part.fits, part.intervals,
-                                                                             settings.confidence)
+        return part.results, interval_lives(part.intervals), interval_trends(part.fit_columns(),
+                                                                             part.intervals, settings.confidence)
     chunk_pumps = chunk_pumps or CHUNK_PUMPS
     id_parts = [ids[first:first + chunk_pumps] for first in range(0, len(ids), chunk_pumps)]
     if workers > 1 and len(id_parts) > 1 and url is not None:

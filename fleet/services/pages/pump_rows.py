@@ -135,7 +135,7 @@ def pump_rows(session: Session, pump: Pump, as_of: datetime) -> PumpRows:
         Reading.speed_rpm, Reading.flow_lpm, Reading.drain_lpm, Reading.temp_c, Reading.stroke, Reading.source,
         Reading.taken_by).where(Reading.pump_id == pump.id))
     rows["taken_at"] = pd.to_datetime(rows["taken_at"], format="ISO8601")
-    rows = rows.astype({c: float for c in _NUMBERS})
+    rows = rows.astype({c: float for c in _NUMBERS if rows[c].dtype != float})  # mostly floats already
     all_readings = attach_oil(rows[[c for c in READING_COLUMNS if c in rows]], _history(pump.id, stays))
     all_readings = all_readings[list(READING_COLUMNS)].sort_values("taken_at", kind="stable").reset_index(drop=True)
     points = plain_query(session, select(FlowTestPoint.reading_id, FlowTestPoint.pressure_bar, FlowTestPoint.flow_lpm)
