@@ -90,7 +90,8 @@ def child_analysis(url: str) -> dict:
     Peak memory is the largest sum of the PSS of this process and all its descendants (the fork server and the
     workers) sampled every 0.5 s (benchmarks/tree_memory.py): PSS counts the library pages the workers share with
     the fork server once in all. Beside it, the same samples' RSS sum (shared pages once per process) and each
-    process's own high-water mark (VmHWM, RSS): this process's, and the largest of the workers' (one per part)."""
+    process's own high-water mark (VmHWM, RSS): this process's, and the largest of the workers' (each takes parts
+    until none is left)."""
     from benchmarks.tree_memory import TreeMemory
     from fleet.db.engine import make_engine, make_session_factory
     from fleet.services.analysis.parallel import worker_count
@@ -461,7 +462,7 @@ def table(figures: dict) -> str:
          f"computing {figures['analysis_computing_pss_mb']:,.0f} MB; RSS summed "
          f"{figures['analysis_peak_rss_sum_mb']:,.0f} MB; main's own peak {figures['analysis_own_peak_mb']:,.0f} MB, "
          f"a worker's "
-         f"{figures['analysis_worker_peak_mb']:,.0f} MB ({figures['analysis_worker_processes']} parts in workers)",
+         f"{figures['analysis_worker_peak_mb']:,.0f} MB ({figures['analysis_worker_processes']} worker processes)",
          f"target <= {TARGETS['analysis_peak_mb']:,.0f} MB"),
         ("service list page, median of 20", f"{figures['service_list_ms']:.0f} ms", "",
          f"target <= {TARGETS['service_list_ms']:.0f} ms"),

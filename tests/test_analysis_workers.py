@@ -6,6 +6,7 @@ to the workers; SQLite, or PostgreSQL when FLEET_TEST_DATABASE_URL is set (each 
 """
 
 import datetime as dt
+import os
 
 import pytest
 from click.testing import CliRunner
@@ -35,9 +36,10 @@ def test_parts_in_two_workers_give_the_figures_of_one_process(demo_db):
         same_frames(expected, got, f"workers {name}")
     for name, expected, got in zip(("results", "lives", "trends"), one_pass, serial, strict=True):
         same_frames(expected, got, f"parts {name}")
-    # The work really ran in other processes, a fresh one for each of the six parts, and each said how much
-    # memory it took.
-    assert len(peaks) == 6 and all(peak > 0 for peak in peaks.values())
+    # The work really ran in other processes (two, each taking parts until none was left), and each said how
+    # much memory it took.
+    assert 1 <= len(peaks) <= 2 and all(peak > 0 for peak in peaks.values())
+    assert os.getpid() not in peaks
 
 
 def test_compute_of_a_private_in_memory_database_stays_in_process():
@@ -63,7 +65,7 @@ def test_fleet_analyze_with_workers_stores_what_one_process_stores(demo_db, monk
         with spool.spool_folder() as folder:  # the same path, to see the workers did run
             spooled = spool.spool_fleet(session, folder, workers=2)
             assert len(spooled.parts) == 6 and all(path.exists() for path in spooled.parts)
-    assert len(spooled.worker_peaks_mb) == 6  # one fresh worker per part
+    assert 1 <= len(spooled.worker_peaks_mb) <= 2  # the parts went to the two workers
     assert len(pooled) == len(serial) == 41
     assert [_plain(record) for record in pooled] == [_plain(record) for record in serial]
 

@@ -339,3 +339,67 @@ def test_band_is_the_union_of_the_plausible_laws_bands_and_the_forecast_the_heav
     assert edges[2][0, 0] == pytest.approx(limit, rel=1e-6)  # high edge of the flow at the low bound
     assert edges[1][0, 1] == pytest.approx(limit, rel=1e-6)
     assert edges[0][0, 2] == pytest.approx(limit, rel=1e-6)
+
+
+def _whole_grid_crossings(fits, limit, now_hours, levels, confidence):
+    """The crossing search as it was before the grid was walked lazily: the mixture at every grid point of every
+    group, then _BISECTIONS halvings of every group's bracket (the reference the lazy search must equal)."""
+    from fleet.trend import model_average
+
+    limit = np.asarray(limit, dtype=float)
+    now = np.asarray(now_hours, dtype=float)
+    ok = np.isfinite(limit) & (limit > 0) & np.isfinite(now) & (now > 0) & (fits.weight.sum(axis=1) > 0)
+    span = np.where(ok, now, 1.0)
+    grid = span[:, None] * model_average.CROSSING_GRID[None, :]
+    limit_g = np.where(ok, limit, 1.0)
+
+    def crossed(hours):
+        return 1.0 - value_cdf(fits, hours, limit_g[:, None] if np.ndim(hours) == 2 else limit_g, confidence)
+
+    on_grid = crossed(grid)
+    levels = np.asarray(levels, dtype=float)[None, :]
+    reached = on_grid[:, :, None] >= levels[:, None, :]
+    any_reached = reached.any(axis=1) & ok[:, None]
+    first = np.argmax(reached, axis=1)
+    rows = np.arange(len(now))[:, None]
+    hi = grid[rows, first]
+    lo = grid[rows, np.maximum(first - 1, 0)]
+    for _ in range(model_average._BISECTIONS):
+        mid = 0.5 * (lo + hi)
+        up = crossed(mid) >= levels
+        lo, hi = np.where(up, lo, mid), np.where(up, mid, hi)
+    return list(np.where(any_reached, np.where(first == 0, 0.0, hi), np.nan).T)
+
+
+def test_lazy_crossing_search_finds_the_whole_grid_searchs_crossings_to_the_last_bit():
+    # Groups of every kind (common practice, no source: the reference is the search this one replaced):
+    # accelerating, steady, exponential and flat wear, a group past its limit at the start, a group without a
+    # limit, one without hours; each walks the grid to a different block.
+    rng = np.random.default_rng(31)
+    groups, hours, flows = [], [], []
+    shapes = [lambda h: 5.0 + 1.2e-3 * h + 3e-7 * h**2, lambda h: 5.0 + 2e-3 * h, lambda h: 5.0 * np.exp(2e-4 * h),
+              lambda h: 5.0 + 0.0 * h, lambda h: 5.0 + 4e-3 * h, lambda h: 4.0 + 1e-4 * h]
+    for g, shape in enumerate(shapes):
+        h = np.linspace(0.0, 3000.0 + 700.0 * g, 18 + g)
+        groups.append(np.full(h.size, g))
+        hours.append(h)
+        flows.append(shape(h) + rng.normal(0.0, 0.12, h.size))
+    group, h, q = np.concatenate(groups), np.concatenate(hours), np.concatenate(flows)
+    laws = fit_wear_laws(group, h, q, lambda _f: np.full(q.size, 0.12), np.full(q.size, 1e-6), len(shapes),
+                         CONVERGED, np.zeros(len(shapes)))
+    now = np.array([3000.0 + 700.0 * g for g in range(len(shapes))])
+    now[5] = np.nan
+    limit = np.array([20.0, 15.0, 30.0, 9.0, 3.0, 12.0])
+    limit[3] = 9.0
+    for levels in ((0.05, 0.5, 0.95), (0.5,), (0.05, 0.95)):
+        for fits in (laws, _only(laws, "linear"), _only(laws, "power_p283")):
+            got = crossing_quantiles(fits, limit, now, levels, 0.90)
+            want = _whole_grid_crossings(fits, limit, now, levels, 0.90)
+            for a, b in zip(got, want, strict=True):
+                assert np.array_equal(a, b, equal_nan=True), (levels, a, b)
+    # The cases are all there: a crossing ahead, one at the start (past the limit), open ones, and no limit.
+    low, mid, high = crossing_quantiles(laws, limit, now, (0.05, 0.5, 0.95), 0.90)
+    assert np.isfinite(mid[0]) and mid[4] == 0.0 and np.isnan(mid[5])
+    assert np.isnan(high).any()
+    got = crossing_quantiles(laws, np.where(np.arange(6) == 0, np.nan, limit), now, (0.5,), 0.90)
+    assert np.isnan(got[0][0])

@@ -95,6 +95,13 @@ def value_cdf(fits: LawFits, hours, value, confidence: float, pairs: dict | None
     pairs = _weighed_pairs(fits, confidence) if pairs is None else pairs
     hours = np.asarray(hours, dtype=float)
     value = np.broadcast_to(np.asarray(value, dtype=float), hours.shape)
+    return _mixture_cdf(pairs, hours, value)
+
+
+def _mixture_cdf(pairs: dict, hours: np.ndarray, value: np.ndarray) -> np.ndarray:
+    """value_cdf on gathered pairs: per group (rows of hours and value), the weighed sum of its pairs' P. A group's
+    sum depends on its own pairs alone (one reduce over its segment), so the pairs of some groups only
+    (_pairs_of) give those groups the same figures to the last bit."""
     total = np.zeros(hours.shape)
     rows = pairs["rows"]
     if rows.size:
@@ -102,6 +109,18 @@ def value_cdf(fits: LawFits, hours, value, confidence: float, pairs: dict | None
         p = _pairs_cdf(pairs, hours[rows], value[rows])
         total[rows[pairs["starts"]]] = np.add.reduceat(pairs["weight"][col] * p, pairs["starts"], axis=0)
     return total
+
+
+def _pairs_of(pairs: dict, groups: np.ndarray) -> dict:
+    """The weighed pairs of the groups picked (a mask over groups), each group renumbered to its place among
+    them: the mixture of those groups alone."""
+    keep = groups[pairs["rows"]]
+    place = np.cumsum(groups) - 1
+    picked = {name: values[keep] for name, values in pairs.items() if name != "starts"}
+    picked["rows"] = place[picked["rows"]]
+    rows = picked["rows"]
+    picked["starts"] = np.flatnonzero(np.r_[True, rows[1:] != rows[:-1]]) if rows.size else rows
+    return picked
 
 
 def value_quantile(fits: LawFits, hours, level: float, confidence: float) -> np.ndarray:
@@ -152,40 +171,63 @@ def averaged_slope(fits: LawFits, hours) -> np.ndarray:
     return np.where(fits.weight.sum(axis=1) > 0, total, np.nan)
 
 
+# Columns of CROSSING_GRID evaluated at once: a group whose every level is reached is not evaluated further out.
+_GRID_STEP = 14
+
+
 def crossing_quantiles(fits: LawFits, limit, now_hours, levels, confidence: float) -> list[np.ndarray]:
     """Interval hours at which P(averaged trend >= limit) first reaches each of `levels`, per group.
 
     limit: a flow (L/min) per group; now_hours: the interval's current hours (sets the search grid). A level
     the mixture never reaches within a million times the current hours gives NaN (open); one already reached
     at the interval start gives 0.
+
+    The first point of the grid (CROSSING_GRID times the current hours) where each level is reached brackets the
+    crossing with the point before it, and _BISECTIONS halvings of that bracket find it. The grid is walked out
+    a block of columns at a time, each block only for the groups with a level not yet reached, and the halvings
+    only for the groups with a level reached: every P is the one the whole grid would give (_mixture_cdf), so
+    the crossings are those of evaluating every group everywhere, to the last bit
+    (tests/test_trend_wear_laws.py keeps that search as the reference).
     """
     limit = np.asarray(limit, dtype=float)
     now = np.asarray(now_hours, dtype=float)
+    levels = np.asarray(levels, dtype=float)
+    n = len(now)
     ok = np.isfinite(limit) & (limit > 0) & np.isfinite(now) & (now > 0) & (fits.weight.sum(axis=1) > 0)
-    span = np.where(ok, now, 1.0)
-    grid = span[:, None] * CROSSING_GRID[None, :]
-    limit_g = np.where(ok, limit, 1.0)
-
+    out = np.full((n, len(levels)), np.nan)
+    if not ok.any():
+        return list(out.T)
     pairs = _weighed_pairs(fits, confidence)
-
-    def crossed(hours):
-        return 1.0 - value_cdf(fits, hours, limit_g[:, None] if np.ndim(hours) == 2 else limit_g, confidence, pairs)
-
-    on_grid = crossed(grid)
-    # Every level's bracket searched at once: one column per level, one evaluation of the mixture per step.
-    levels = np.asarray(levels, dtype=float)[None, :]
-    reached = on_grid[:, :, None] >= levels[:, None, :]
-    any_reached = reached.any(axis=1) & ok[:, None]
-    first = np.argmax(reached, axis=1)
-    rows = np.arange(len(now))[:, None]
-    hi = grid[rows, first]
-    lo = grid[rows, np.maximum(first - 1, 0)]
-    for _ in range(_BISECTIONS):
-        mid = 0.5 * (lo + hi)
-        up = crossed(mid) >= levels
-        lo, hi = np.where(up, lo, mid), np.where(up, mid, hi)
-    x = np.where(any_reached, np.where(first == 0, 0.0, hi), np.nan)
-    return list(x.T)
+    # The first grid column where each level is reached (-1: not yet), for the groups with a limit.
+    first = np.full((n, len(levels)), -1)
+    open_ = ok.copy()
+    for start in range(0, len(CROSSING_GRID), _GRID_STEP):
+        if not open_.any():
+            break
+        picked = _pairs_of(pairs, open_)
+        grid = now[open_, None] * CROSSING_GRID[None, start:start + _GRID_STEP]
+        crossed = 1.0 - _mixture_cdf(picked, grid, np.broadcast_to(limit[open_, None], grid.shape))
+        reached = crossed[:, :, None] >= levels[None, None, :]
+        found = reached.any(axis=1)
+        at = np.flatnonzero(open_)
+        fresh = (first[at] < 0) & found
+        first[at] = np.where(fresh, start + np.argmax(reached, axis=1), first[at])
+        open_[at] = (first[at] < 0).any(axis=1)
+    searched = ok & (first >= 0).any(axis=1)
+    if searched.any():
+        picked = _pairs_of(pairs, searched)
+        f = np.maximum(first[searched], 0)
+        span = now[searched, None]
+        hi = span * CROSSING_GRID[f]
+        lo = span * CROSSING_GRID[np.maximum(f - 1, 0)]
+        limit_s = np.broadcast_to(limit[searched, None], hi.shape)
+        for _ in range(_BISECTIONS):
+            mid = 0.5 * (lo + hi)
+            up = 1.0 - _mixture_cdf(picked, mid, limit_s) >= levels[None, :]
+            lo, hi = np.where(up, lo, mid), np.where(up, mid, hi)
+        found = first[searched]
+        out[searched] = np.where(found >= 0, np.where(found == 0, 0.0, hi), np.nan)
+    return list(out.T)
 
 
 def law_alone(fits: LawFits, law: str, rows: np.ndarray | None = None) -> LawFits:
