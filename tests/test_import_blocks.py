@@ -225,3 +225,30 @@ def test_a_file_pyarrow_refuses_further_on_is_read_whole(pumps, tmp_path, monkey
         assert streamed[0] is not None and len(streamed[2]) == 1  # refused: nothing of the early blocks stays
     else:
         assert streamed[0] is None and len(streamed[2]) == 1 + len(rows)
+
+
+def test_rows_many_to_a_statement_are_stored_as_one_to_a_statement(pumps, monkeypatch):
+    # Reference: the same rows inserted one to a statement (sqlite3's executemany of one-row INSERTs): the same ids,
+    # values and SQLite storage classes (typeof) in every column.
+    from sqlalchemy import text
+
+    from fleet.services.transfer import bulk
+
+    if pumps.engine.dialect.name != "sqlite":
+        pytest.skip("SQLite's INSERT statements; PostgreSQL takes COPY")
+    rows = [_row(f"T-10{1 + d % 3}", 2 + d // 3, 10 * d, note="n" if d % 7 == 0 else "") for d in range(80)]
+    rows[5][5] = ""  # a missing flow
+    table = _table(rows)
+    stored = []
+    for per in (1, 50):
+        monkeypatch.setattr(bulk, "SQLITE_ROWS_PER_STATEMENT", per)
+        with pumps.sessions.begin() as session:
+            import_table(session, "readings", table, now=NOW)
+        with pumps.sessions() as session:
+            columns = [c.name for c in Reading.__table__.columns if c.name != "created_at"]
+            stored.append(session.execute(text(
+                f"SELECT {', '.join(columns)}, {', '.join(f'typeof({c})' for c in columns)} FROM reading "
+                "ORDER BY id")).all())
+        with pumps.sessions.begin() as session:
+            session.execute(Reading.__table__.delete().where(Reading.hours != 900))  # the next ids as before
+    assert len(stored[0]) == 81 and stored[0] == stored[1]
