@@ -19,7 +19,7 @@ from fleet.io.files import read_csv
 from fleet.io.parse import ImportRejected
 from fleet.services.transfer import reading_blocks
 from fleet.services.transfer.bulk import csv_bytes
-from fleet.services.transfer.importing import check_readings, import_file, import_table
+from fleet.services.transfer.importing import check_readings, import_file, import_table, read_readable
 from tests.conftest import DATA
 
 NOW = datetime(2026, 1, 1)
@@ -156,3 +156,99 @@ def test_later_blocks_read_cells_by_their_pumps_site(pumps, monkeypatch):
     assert problems is None
     last = [s for s in stored if s.hours == 103][0]
     assert last.taken_at == datetime(2025, 3, 3, 14, 0)  # 08:00 in Chicago (UTC-6 before March 9, 2025) is 14:00 UTC
+
+
+def _csv_file(tmp_path, rows: list[list[str]], name: str = "readings.csv"):
+    path = tmp_path / name
+    path.write_text(",".join(COLUMNS) + "\n" + "".join(",".join(row) + "\n" for row in rows))
+    return path
+
+
+def _outcome(db, run):
+    """(problems as text or None, doubts, readings stored after) of ``run(session)``, an import of readings."""
+    try:
+        with db.sessions.begin() as session:
+            result = run(session)
+        problems, doubts = None, result.doubts
+    except ImportRejected as rejected:
+        problems, doubts = [str(p) for p in rejected.problems], []
+    with db.sessions() as session:
+        stored = session.execute(select(Reading.pump_id, Reading.taken_at, Reading.hours, Reading.note)
+                                 .order_by(Reading.pump_id, Reading.taken_at)).all()
+    with db.sessions.begin() as session:  # back to the one reading stored before
+        session.execute(Reading.__table__.delete().where(Reading.hours != 900))
+    return problems, doubts, stored
+
+
+@pytest.mark.parametrize("name", sorted(CASES))
+def test_a_streamed_file_finds_and_stores_what_its_whole_table_does(pumps, tmp_path, monkeypatch, name):
+    # Reference: the same file read whole (fleet.io.files.read_csv) and imported as one table in one block.
+    from fleet.io import files
+    from fleet.services.transfer import importing
+
+    path = _csv_file(tmp_path, CASES[name])
+    monkeypatch.setitem(files._READ_OPTIONS, "block_size", 200)  # pyarrow hands a few rows at a time
+    streamed = files.stream_csv(path)
+    assert len(list(streamed.blocks(iter([2] * 100)))) > 2  # the file is read in blocks indeed
+    monkeypatch.setattr(reading_blocks, "BLOCK_ROWS", 2)
+    monkeypatch.setattr(importing, "read_readable", None)  # the streamed path reads no table
+    in_blocks = _outcome(pumps, lambda session: import_file(session, "readings", path, now=NOW))
+    monkeypatch.setattr(reading_blocks, "BLOCK_ROWS", 10_000)
+    whole = _outcome(pumps, lambda session: import_table(session, "readings", read_csv(path), now=NOW))
+    assert in_blocks == whole
+    assert (in_blocks[0] is None) == name.startswith("clean")
+
+
+@pytest.mark.parametrize("last", ["ragged", "short"])
+def test_a_file_pyarrow_refuses_further_on_is_read_whole(pumps, tmp_path, monkeypatch, last):
+    # A row pyarrow's reader refuses after the first blocks were stored: they are undone and the file is read whole
+    # by pandas' reader, as before streaming (a row of too many cells is no CSV it reads, a short one is).
+    # Reference: the file read whole (read_readable, which words an unreadable file) and imported as one table.
+    from fleet.io import files
+
+    rows = [_row("T-101", d, 10 * d) for d in range(1, 28)]
+    rows.append(_row("T-103", 1, 5) + ["extra"] if last == "ragged" else _row("T-103", 1, 5)[:-1])
+    path = _csv_file(tmp_path, rows)
+    monkeypatch.setitem(files._READ_OPTIONS, "block_size", 200)
+    handed = []
+    with pytest.raises(files.StreamBroken):  # the precondition: the stream breaks after handing out blocks
+        for block in files.stream_csv(path).blocks(iter([2] * 100)):
+            handed.append(block)
+    assert len(handed) > 2
+    monkeypatch.setattr(reading_blocks, "BLOCK_ROWS", 2)
+    streamed = _outcome(pumps, lambda session: import_file(session, "readings", path, now=NOW))
+    monkeypatch.setattr(reading_blocks, "BLOCK_ROWS", 10_000)
+
+    reference = _outcome(pumps, lambda session: import_table(session, "readings", read_readable(path)[0], now=NOW))
+    assert streamed == reference
+    if last == "ragged":
+        assert streamed[0] is not None and len(streamed[2]) == 1  # refused: nothing of the early blocks stays
+    else:
+        assert streamed[0] is None and len(streamed[2]) == 1 + len(rows)
+
+
+def test_rows_many_to_a_statement_are_stored_as_one_to_a_statement(pumps, monkeypatch):
+    # Reference: the same rows inserted one to a statement (sqlite3's executemany of one-row INSERTs): the same ids,
+    # values and SQLite storage classes (typeof) in every column.
+    from sqlalchemy import text
+
+    from fleet.services.transfer import bulk
+
+    if pumps.engine.dialect.name != "sqlite":
+        pytest.skip("SQLite's INSERT statements; PostgreSQL takes COPY")
+    rows = [_row(f"T-10{1 + d % 3}", 2 + d // 3, 10 * d, note="n" if d % 7 == 0 else "") for d in range(80)]
+    rows[5][5] = ""  # a missing flow
+    table = _table(rows)
+    stored = []
+    for per in (1, 50):
+        monkeypatch.setattr(bulk, "SQLITE_ROWS_PER_STATEMENT", per)
+        with pumps.sessions.begin() as session:
+            import_table(session, "readings", table, now=NOW)
+        with pumps.sessions() as session:
+            columns = [c.name for c in Reading.__table__.columns if c.name != "created_at"]
+            stored.append(session.execute(text(
+                f"SELECT {', '.join(columns)}, {', '.join(f'typeof({c})' for c in columns)} FROM reading "
+                "ORDER BY id")).all())
+        with pumps.sessions.begin() as session:
+            session.execute(Reading.__table__.delete().where(Reading.hours != 900))  # the next ids as before
+    assert len(stored[0]) == 81 and stored[0] == stored[1]

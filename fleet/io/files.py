@@ -11,7 +11,10 @@ header) goes to pandas' own reader, which gives the established cells or the est
 
 import csv
 import io
+import queue
 import re
+import threading
+from collections.abc import Iterator
 from pathlib import Path
 
 import pandas as pd
@@ -39,6 +42,20 @@ def read_csv(source: str | Path | bytes) -> pd.DataFrame:
 
 def _read_arrow(data: bytes) -> pd.DataFrame | None:
     """The cells through pyarrow's reader as Arrow text, or None when pandas' reader must decide."""
+    plan = _arrow_plan(data)
+    if plan is None:
+        return None
+    names, body, options = plan
+    try:
+        table = arrow_csv.read_csv(pa.BufferReader(body), **options)
+    except (pa.ArrowInvalid, pa.ArrowNotImplementedError):
+        return None
+    return _frame(table, names)
+
+
+def _arrow_plan(data: bytes) -> tuple[list[str], pa.Buffer, dict] | None:
+    """The header's names, the body and pyarrow's reader options for a CSV, or None when pandas' reader must
+    decide (what pyarrow's reader would read differently or not at all, as far as the header and quotes tell)."""
     body = data[len(UTF8_BOM):] if data.startswith(UTF8_BOM) else data
     if (b'"' in body or b"'" in body) and _BLANK_THEN_QUOTE.search(body):
         return None  # skipinitialspace reads a quoted cell, or the formula guard, after blanks otherwise
@@ -53,17 +70,100 @@ def _read_arrow(data: bytes) -> pd.DataFrame | None:
     names = [name.lstrip(" ") for name in header]
     if not names or len(set(names)) != len(names) or not all(names):
         return None  # pandas names repeated and blank headers its own way
-    try:
-        table = arrow_csv.read_csv(
-            io.BytesIO(body),
-            read_options=arrow_csv.ReadOptions(column_names=names, skip_rows=1, **_READ_OPTIONS),
-            parse_options=arrow_csv.ParseOptions(newlines_in_values=b'"' in body),
-            convert_options=arrow_csv.ConvertOptions(column_types=dict.fromkeys(names, pa.string()),
-                                                     strings_can_be_null=False, quoted_strings_can_be_null=False))
-    except (pa.ArrowInvalid, pa.ArrowNotImplementedError):
-        return None
+    options = {
+        "read_options": arrow_csv.ReadOptions(column_names=names, skip_rows=1, **_READ_OPTIONS),
+        "parse_options": arrow_csv.ParseOptions(newlines_in_values=b'"' in body),
+        "convert_options": arrow_csv.ConvertOptions(column_types=dict.fromkeys(names, pa.string()),
+                                                    strings_can_be_null=False, quoted_strings_can_be_null=False)}
+    return names, pa.py_buffer(data)[len(data) - len(body):], options
+
+
+def _frame(table: pa.Table, names: list[str]) -> pd.DataFrame:
     return pd.DataFrame({name: pd.Series(pd.arrays.ArrowExtensionArray(table.column(position)), copy=False)
                          for position, name in enumerate(names)})
+
+
+class StreamBroken(Exception):
+    """pyarrow's reader refused a part of a streamed CSV after its first blocks were handed out: the caller undoes
+    what it did with them and reads the file whole (``read_csv``, which then asks pandas' reader)."""
+
+
+class StreamedCsv:
+    """A CSV's cells in blocks of rows, as ``read_csv`` would give them (Arrow text, the formula guard undone),
+    read by pyarrow's streaming reader in a helper thread while the caller works on the blocks before (the reader
+    parses without holding the GIL). Made by ``stream_csv``; iterate ``blocks`` once."""
+
+    # Arrow record batches read ahead of the caller at most (each about one read block, 1 MB of the file).
+    AHEAD = 4
+
+    def __init__(self, names: list[str], body: pa.Buffer, options: dict):
+        self.names = names
+        self._reader = arrow_csv.open_csv(pa.BufferReader(body), **options)
+        self._batches: queue.Queue = queue.Queue(self.AHEAD)
+        self._stop = threading.Event()
+        self._thread = threading.Thread(target=self._read_ahead, name="fleet-csv-reader", daemon=True)
+        self._thread.start()
+
+    def _read_ahead(self) -> None:
+        outcome: object = None
+        try:
+            for batch in self._reader:
+                if not self._put(batch):
+                    return
+        except (pa.ArrowInvalid, pa.ArrowNotImplementedError) as error:
+            outcome = StreamBroken(str(error))
+        self._put(outcome)  # None: the end of the file
+
+    def _put(self, item) -> bool:
+        while not self._stop.is_set():
+            try:
+                self._batches.put(item, timeout=0.05)
+                return True
+            except queue.Full:
+                continue
+        return False
+
+    def blocks(self, sizes: Iterator[int]) -> Iterator[pd.DataFrame]:
+        """The rows in blocks of the next of ``sizes`` rows each (the last block what is left; one empty block
+        for a file without rows); raises StreamBroken when pyarrow's reader refuses a later part."""
+        pending: list[pa.RecordBatch] = []
+        count, size, handed = 0, next(sizes), 0
+        try:
+            while True:
+                item = self._batches.get()
+                if isinstance(item, StreamBroken):
+                    raise item
+                if item is not None:
+                    pending.append(item)
+                    count += item.num_rows
+                while count >= size or (item is None and (count or not handed)):
+                    table = pa.Table.from_batches(pending, self._reader.schema)
+                    block, rest = table.slice(0, size), table.slice(size)
+                    handed += 1
+                    yield unguard_table(_frame(block, self.names))
+                    pending, count, size = rest.to_batches(), rest.num_rows, next(sizes)
+                if item is None:
+                    return
+        finally:
+            self.close()
+
+    def close(self) -> None:
+        """Stop the reader thread (it ends at its next batch) and wait for it."""
+        self._stop.set()
+        self._thread.join()
+
+
+def stream_csv(source: str | Path | bytes) -> StreamedCsv | None:
+    """A CSV read in blocks by pyarrow's streaming reader, or None when pandas' reader must decide (then use
+    ``read_csv``). What pyarrow's reader refuses further on raises StreamBroken from ``StreamedCsv.blocks``."""
+    data = source if isinstance(source, bytes) else Path(source).read_bytes()
+    plan = _arrow_plan(data)
+    if plan is None:
+        return None
+    try:
+        return StreamedCsv(*plan)
+    except (pa.ArrowInvalid, pa.ArrowNotImplementedError):
+        return None
 
 
 def is_xlsx_path(path: str | Path) -> bool:

@@ -27,6 +27,9 @@ from fleet.db import changes
 # value as NULL, and no cell (not even a note of '\.') as the end of the data.
 _CSV_OPTIONS = arrow_csv.WriteOptions(include_header=False, quoting_style="all_valid")
 _DRIVERS = {"sqlite": "pysqlite", "postgresql": "psycopg"}
+# Rows per INSERT statement on SQLite (a VALUES list of that many rows): SQLite then runs its statement once per 50
+# rows rather than once per row, and sqlite3 steps it once (README, "Readings import against its floor").
+SQLITE_ROWS_PER_STATEMENT = 50
 
 
 @dataclass
@@ -48,7 +51,9 @@ class BulkInsert:
         names = ", ".join(self.columns)
         table = model.__tablename__
         if self.mode == "sqlite":
-            self.statement = f"INSERT INTO {table} ({names}) VALUES ({', '.join('?' * len(self.columns))})"
+            row = f"({', '.join('?' * len(self.columns))})"
+            self.statement = f"INSERT INTO {table} ({names}) VALUES {row}"
+            self.many_statement = f"INSERT INTO {table} ({names}) VALUES {', '.join([row] * SQLITE_ROWS_PER_STATEMENT)}"
         else:
             self.statement = f"COPY {table} ({names}) FROM STDIN (FORMAT csv)"
 
@@ -82,9 +87,7 @@ class BulkInsert:
         cursor = connection.connection.cursor()
         try:
             if self.mode == "sqlite":
-                # Rows made as sqlite3 binds them: zip reuses its tuple once the driver let go of it, where a
-                # list of made tuples would cost their allocation and the garbage collector's passes over them.
-                cursor.executemany(self.statement, zip(*prepared.rows, strict=True))
+                self._sqlite_rows(cursor, prepared)
             else:
                 encoding = cursor.connection.info.encoding
                 data = prepared.rows if encoding == "utf-8" else prepared.rows.decode("utf-8").encode(encoding)
@@ -96,6 +99,21 @@ class BulkInsert:
             raise DBAPIError.instance(self.statement, None, error, dbapi_error) from error
         finally:
             cursor.close()
+
+
+    def _sqlite_rows(self, cursor, prepared: Prepared) -> None:
+        """The rows by SQLITE_ROWS_PER_STATEMENT to a statement, in their order (so their ids are as one row to a
+        statement gives them), the last few one to a statement."""
+        width, per = len(self.columns), SQLITE_ROWS_PER_STATEMENT
+        whole = prepared.count // per * per
+        if whole:
+            cells = np.empty((whole, width), dtype=object)  # row by row, the columns' values as they are
+            for position, values in enumerate(prepared.rows):
+                cells[:, position] = values[:whole]
+            cursor.executemany(self.many_statement, cells.reshape(-1, width * per).tolist())
+        if whole < prepared.count:
+            # zip reuses its tuple once the driver let go of it (no allocation and garbage collection per row).
+            cursor.executemany(self.statement, zip(*(values[whole:] for values in prepared.rows), strict=True))
 
 
 def insert_frame(session: Session, model, frame: pd.DataFrame) -> None:

@@ -26,7 +26,7 @@ from fleet.db.models import (
 )
 from fleet.db.queries import pumps_on_machine
 from fleet.io import rules
-from fleet.io.files import read_file
+from fleet.io.files import StreamBroken, StreamedCsv, is_xlsx_path, read_file, stream_csv
 from fleet.io.localtime import ZoneError, zone_name
 from fleet.io.parse import ImportRejected, ParsedTable, Problem, parse_table, row_numbers
 from fleet.io.spreadsheet import SpreadsheetError
@@ -63,7 +63,18 @@ class ImportResult:
 
 
 def import_file(session: Session, kind: str, path: str | Path, **kwargs) -> ImportResult:
-    """Import a CSV file, or an .xlsx workbook when its name ends in .xlsx (problems then name their cells)."""
+    """Import a CSV file, or an .xlsx workbook when its name ends in .xlsx (problems then name their cells).
+
+    A CSV of readings is read in blocks as they are stored (``fleet.io.files.stream_csv``), unless pandas' reader
+    must read it; when pyarrow's reader refuses a later part, what was stored of it is undone and the file is read
+    whole, as any other."""
+    if kind == "readings" and not is_xlsx_path(path):
+        streamed = stream_csv(path)
+        if streamed is not None:
+            try:
+                return import_table(session, kind, streamed, **kwargs)
+            except StreamBroken:
+                pass
     table, sheet = read_readable(path)
     try:
         return import_table(session, kind, table, **kwargs)
@@ -83,7 +94,7 @@ def read_readable(source: str | Path | bytes, filename: str | None = None):
         raise ImportRejected([Problem(1, "", f"the file is not readable as {kind} ({detail})")]) from None
 
 
-def import_table(session: Session, kind: str, table: pd.DataFrame, *, now: datetime | None = None,
+def import_table(session: Session, kind: str, table: pd.DataFrame | StreamedCsv, *, now: datetime | None = None,
                  source: str = "import", taken_by: str | None = None) -> ImportResult:
     now = now or utcnow()
     if kind == "readings":  # in blocks, parsed while the block before is stored

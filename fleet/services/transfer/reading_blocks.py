@@ -12,6 +12,7 @@ means stored before the import began (a reading id no higher than the largest th
 are asked once, over the whole table, after the last block.
 """
 
+from collections.abc import Iterator
 from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass, field
 from datetime import datetime
@@ -23,6 +24,7 @@ from sqlalchemy.orm import Session
 
 from fleet.db.models import Pump, Reading
 from fleet.io import rules
+from fleet.io.files import StreamedCsv
 from fleet.io.meter import meter_doubts
 from fleet.io.parse import Headers, Problem, RowConventions, is_arrow_text, parse_rows, read_headers
 from fleet.services.sitelocal import of_site, pump_sites, queryable
@@ -51,44 +53,62 @@ class Outcome:
     problems: list[Problem] = field(default_factory=list)  # empty when the rows were stored
 
 
-def import_readings(session: Session, table: pd.DataFrame, now: datetime, source: str, taken_by: str | None,
-                    store: bool = True) -> Outcome:
-    """Check the readings of ``table`` and, when ``store`` and no row has a problem, insert them all in the caller's
-    transaction; on a problem nothing stays written and ``problems`` names every one."""
-    headers = read_headers("readings", table.columns)
-    spans = _spans(len(table))
-    pumps = _Pumps(session, _stripped(table, headers))
+def import_readings(session: Session, table: pd.DataFrame | StreamedCsv, now: datetime, source: str,
+                    taken_by: str | None, store: bool = True) -> Outcome:
+    """Check the readings of ``table`` (a table of cells, or a CSV streamed in blocks) and, when ``store`` and no row
+    has a problem, insert them all in the caller's transaction; on a problem nothing stays written and
+    ``problems`` names every one. A streamed CSV that pyarrow's reader refuses further on raises StreamBroken,
+    with every block written before undone."""
+    streamed = isinstance(table, StreamedCsv)
+    headers = read_headers("readings", table.names if streamed else table.columns)
+    pumps = _Pumps(session)
     writer = BulkInsert(session, Reading, READING_COLUMNS) if store else None
-    many = len(spans) > 1
+    many = streamed or len(table) > min(FIRST_BLOCK_ROWS, BLOCK_ROWS)
     # Rows this import writes must not count as stored before it: only ids up to the largest now are.
     before_id = session.scalar(select(func.coalesce(func.max(Reading.id), 0))) if store else None
-    work = _Blocks(headers, table, pumps, now, source, taken_by, writer)
-    outcome = Outcome(len(table), headers.ignored)
-    if many and store:
-        with session.begin_nested() as savepoint:
-            _run(session, work, spans, before_id, outcome)
-            if outcome.problems:
-                savepoint.rollback()
-    else:
-        _run(session, work, spans, before_id, outcome)
+    work = _Blocks(headers, pumps, now, source, taken_by, writer)
+    outcome = Outcome(0, headers.ignored)
+    raw = table.blocks(_sizes()) if streamed else _slices(table)
+    try:
+        if many and store:
+            with session.begin_nested() as savepoint:
+                _run(session, work, raw, before_id, outcome)
+                if outcome.problems:
+                    savepoint.rollback()
+        else:
+            _run(session, work, raw, before_id, outcome)
+    finally:
+        if streamed:
+            table.close()
+    outcome.rows = work.rows
     return outcome
 
 
-def _spans(rows: int) -> list[tuple[int, int]]:
-    """(first, stop) of each block: FIRST_BLOCK_ROWS, then twice as many each time up to BLOCK_ROWS."""
-    spans, first, size = [], 0, min(FIRST_BLOCK_ROWS, BLOCK_ROWS)
-    while first < rows:
-        spans.append((first, min(first + size, rows)))
-        first, size = first + size, min(2 * size, BLOCK_ROWS)
-    return spans or [(0, 0)]
+def _sizes() -> Iterator[int]:
+    """Rows of each block: FIRST_BLOCK_ROWS, then twice as many each time up to BLOCK_ROWS."""
+    size = min(FIRST_BLOCK_ROWS, BLOCK_ROWS)
+    while True:
+        yield size
+        size = min(2 * size, BLOCK_ROWS)
 
 
-def _run(session: Session, work: "_Blocks", spans: list[tuple[int, int]], before_id: int | None,
+def _slices(table: pd.DataFrame) -> Iterator[pd.DataFrame]:
+    """A table's rows in blocks of ``_sizes`` (one empty block for a table without rows)."""
+    first, sizes = 0, _sizes()
+    while True:
+        size = next(sizes)
+        yield table.iloc[first:first + size]
+        first += size
+        if first >= len(table):
+            return
+
+
+def _run(session: Session, work: "_Blocks", raw: Iterator[pd.DataFrame], before_id: int | None,
          outcome: Outcome) -> None:
     stored_clash: list[Problem] = []
     new_rows: list[pd.DataFrame] = []
     beside = work.writer is not None and work.writer.mode == "postgresql"
-    blocks = _in_turn(work, spans, beside)
+    blocks = _in_turn(work, raw, beside)
     try:
         for block in blocks:
             if work.cells_wrong:
@@ -116,23 +136,26 @@ def _run(session: Session, work: "_Blocks", spans: list[tuple[int, int]], before
                                        before_id)
 
 
-def _in_turn(work: "_Blocks", spans: list[tuple[int, int]], beside: bool):
-    """Each block prepared, in order: when ``beside`` and there is more than one, a helper thread prepares the next
-    while the caller stores the one it was given."""
-    if len(spans) == 1 or not beside:
-        work.pumps.look_up()
-        for span in spans:
-            yield work.prepare(*span)
-        return
-    work.pumps.look_up(*spans[0])
-    with ThreadPoolExecutor(max_workers=1, thread_name_prefix="fleet-import") as helper:
-        coming = helper.submit(work.prepare, *spans[0])
-        work.pumps.look_up(spans[1][0])  # the rest of the file's serials, while the first block is parsed
-        for position in range(len(spans)):
-            block = coming.result()
-            if position + 1 < len(spans):
-                coming = helper.submit(work.prepare, *spans[position + 1])
-            yield block
+def _in_turn(work: "_Blocks", raw: Iterator[pd.DataFrame], beside: bool):
+    """Each block prepared, in order, its serials asked of the register first (in the session's thread): when
+    ``beside``, a helper thread prepares the next block while the caller stores the one it was given."""
+    try:
+        if not beside:
+            for rows in raw:
+                yield work.prepare(rows, work.pumps.look_up(_stripped(rows, work.headers)))
+            return
+        with ThreadPoolExecutor(max_workers=1, thread_name_prefix="fleet-import") as helper:
+            coming = None
+            for rows in raw:
+                serials = work.pumps.look_up(_stripped(rows, work.headers))
+                queued = helper.submit(work.prepare, rows, serials)  # runs once the block before is prepared
+                if coming is not None:
+                    yield coming.result()
+                coming = queued
+            if coming is not None:
+                yield coming.result()
+    finally:
+        raw.close()
 
 
 @dataclass
@@ -147,24 +170,25 @@ class _Block:
 class _Pumps:
     """The register's answer for the table's serials, each asked once: pump id and site conventions."""
 
-    def __init__(self, session: Session, cells: pd.Series | None):
-        self.session, self.cells = session, cells
+    def __init__(self, session: Session):
+        self.session = session
         self.ids: dict[str, int] = {}
         self.conventions: dict = {}
 
-    def look_up(self, first: int = 0, stop: int | None = None) -> None:
-        """Ask the register about the serials of rows first to stop not asked about yet (in the session's thread;
-        a helper thread only reads the answers, of rows it is given after they were asked)."""
-        if self.cells is None:
-            return
-        cells = self.cells.iloc[first:stop].dropna()
-        serials = [s for s in pd.unique(cells) if s not in self.conventions and queryable(s)]
+    def look_up(self, cells: pd.Series | None) -> pd.Series | None:
+        """Ask the register about the serials among ``cells`` (a block's stripped pump cells) not asked about yet,
+        in the session's thread (a helper thread only reads the answers, of blocks it is given after they were
+        asked); gives the cells back."""
+        if cells is None:
+            return None
+        serials = [s for s in pd.unique(cells.dropna()) if s not in self.conventions and queryable(s)]
         session = self.session
         for start in range(0, len(serials), SERIALS_PER_QUERY):
             part = serials[start:start + SERIALS_PER_QUERY]
             self.ids.update(session.execute(select(Pump.serial, Pump.id).where(Pump.serial.in_(part))).all())
         sites = pump_sites(session, serials)
         self.conventions.update({serial: of_site(sites.get(serial)) for serial in serials})
+        return cells
 
     def row_conventions(self, cells: pd.Series) -> RowConventions:
         """Each row's zone and decimal comma by its pump's site (as fleet.services.sitelocal.row_conventions)."""
@@ -180,9 +204,10 @@ class _Blocks:
     """Prepares blocks one after another (in a helper thread on PostgreSQL), keeping what the file's later blocks
     are checked against: the problems so far and every earlier (pump, time)."""
 
-    def __init__(self, headers: Headers, table: pd.DataFrame, pumps: _Pumps, now: datetime, source: str,
-                 taken_by: str | None, writer: BulkInsert | None):
-        self.headers, self.table, self.pumps, self.now = headers, table, pumps, now
+    def __init__(self, headers: Headers, pumps: _Pumps, now: datetime, source: str, taken_by: str | None,
+                 writer: BulkInsert | None):
+        self.headers, self.pumps, self.now = headers, pumps, now
+        self.rows = 0  # rows of the blocks prepared so far: the next block's first row is the file's row rows + 2
         self.source, self.taken_by, self.writer = source, taken_by, writer
         self.created_at = pd.Timestamp(utcnow())
         self.cell_problems: list[Problem] = []  # cells and the rules between them (nothing else is then reported)
@@ -197,12 +222,15 @@ class _Blocks:
     def cells_wrong(self) -> bool:
         return bool(self.headers.problems or self.cell_problems)
 
-    def prepare(self, first: int, stop: int) -> _Block:
-        rows = self.table.iloc[first:stop]
+    def prepare(self, rows: pd.DataFrame, serials: pd.Series | None) -> _Block:
+        """The block ``rows`` (the next after those prepared so far) parsed and checked, with ``serials`` its
+        stripped pump cells, already asked of the register."""
+        first = self.rows
+        stop = self.rows = first + len(rows)
         has_pump = "pump" in self.headers.found
         conventions = None
         if has_pump:
-            cells = _stripped(rows, self.headers).set_axis(pd.RangeIndex(first, stop))
+            cells = serials.set_axis(pd.RangeIndex(first, stop))
             conventions = self.pumps.row_conventions(cells)
         parsed, problems = parse_rows(self.headers, rows, conventions, first)
         problems += rules.table_rules("readings", parsed.data, self.now)
