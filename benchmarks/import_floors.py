@@ -1,6 +1,6 @@
-"""The readings import against its floor, alone: on SQLite (plain sqlite3 executemany) and, given a server, on
-PostgreSQL (a plain COPY of the same rows into the same table). Quicker than the whole benchmark when only the
-import changed; ``benchmarks.run`` measures SQLite's the same way.
+"""The readings import against its floor, alone: on SQLite (plain sqlite3 executemany, in the import's own INSERT
+statements) and, given a server, on PostgreSQL (a plain COPY of the same rows into the same table). Quicker than
+the whole benchmark when only the import changed; ``benchmarks.run`` measures SQLite's the same way.
 
     python3 -m benchmarks.import_floors --size medium
     python3 -m benchmarks.import_floors --size medium --database postgresql+psycopg://postgres@127.0.0.1:5432/bench

@@ -7,9 +7,10 @@ Builds an invented fleet (benchmarks/synthetic.py) as CSV files, imports it thro
 `fleet import` into a SQLite file (or the empty PostgreSQL database --database names), and measures, side by side
 in one run:
 
-- CSV import of the readings against plain sqlite3 executemany of the same rows into the same table, in one
-  transaction, on a copy of the database taken just before the import (same schema, pragmas and pumps); on
-  PostgreSQL, psycopg executemany into a table made LIKE the readings table (its columns, defaults and indexes);
+- CSV import of the readings against plain sqlite3 executemany of the same rows into the same table, in the
+  import's own INSERT statements and one transaction, on a copy of the database taken just before the import (same
+  schema, pragmas and pumps); on PostgreSQL, a plain psycopg COPY into a table made LIKE the readings table (its
+  columns, defaults and indexes);
 - the full-fleet analysis (`fleet analyze`: load, analyse in --workers processes, store) against loading the same
   reading columns from the database into numpy arrays; each in its own process, which also reports its peak
   memory: the analysis the largest PSS of itself and all its workers at once, sampled (benchmarks/tree_memory.py);
@@ -197,17 +198,27 @@ def _import(sessions, kind: str, path: Path) -> int:
 
 
 def _floor_insert(source: Path, floor: Path) -> float:
-    """Seconds plain sqlite3 executemany takes to insert every stored reading into ``floor``, one transaction."""
+    """Seconds plain sqlite3 executemany takes to insert every stored reading into ``floor``, one transaction, in
+    the statements the import itself sends (fleet/services/transfer/bulk.py: SQLITE_ROWS_PER_STATEMENT rows to an
+    INSERT, the last few one to a statement), as the PostgreSQL floor uses COPY as the import does. The rows are
+    laid out for those statements before the clock starts: the floor is the database's share alone."""
+    from fleet.services.transfer.bulk import SQLITE_ROWS_PER_STATEMENT as per
+
     reader = sqlite3.connect(source)
     writer = _sqlite_connect(floor)
     columns = ", ".join(READING_COLUMNS)
-    statement = f"INSERT INTO reading ({columns}) VALUES ({', '.join('?' * len(READING_COLUMNS))})"
+    row = f"({', '.join('?' * len(READING_COLUMNS))})"
+    one = f"INSERT INTO reading ({columns}) VALUES {row}"
+    many = f"INSERT INTO reading ({columns}) VALUES {', '.join([row] * per)}"
     cursor = reader.execute(f"SELECT {columns} FROM reading ORDER BY id")
     seconds = 0.0
     writer.execute("BEGIN")
     while rows := cursor.fetchmany(BATCH_ROWS):
+        whole = len(rows) // per * per
+        grouped = np.asarray(rows[:whole], dtype=object).reshape(-1, per * len(READING_COLUMNS)).tolist()
         started = time.perf_counter()
-        writer.executemany(statement, rows)
+        writer.executemany(many, grouped)
+        writer.executemany(one, rows[whole:])
         seconds += time.perf_counter() - started
     started = time.perf_counter()
     writer.execute("COMMIT")
