@@ -45,12 +45,11 @@ def pumps(db):
     return db
 
 
-def _attempt(db, table: pd.DataFrame, block_rows: int, monkeypatch):
-    """(problems as text or None, doubts, readings stored after) of one import with blocks of ``block_rows``."""
-    monkeypatch.setattr(reading_blocks, "BLOCK_ROWS", block_rows)
+def _collect(db, run):
+    """(problems as text or None, doubts, readings stored after) of ``run(session)``, an import of readings."""
     try:
         with db.sessions.begin() as session:
-            result = import_table(session, "readings", table, now=NOW)
+            result = run(session)
         problems, doubts = None, result.doubts
     except ImportRejected as rejected:
         problems, doubts = [str(p) for p in rejected.problems], []
@@ -58,6 +57,12 @@ def _attempt(db, table: pd.DataFrame, block_rows: int, monkeypatch):
         stored = session.execute(select(Reading.pump_id, Reading.taken_at, Reading.hours, Reading.note)
                                  .order_by(Reading.pump_id, Reading.taken_at)).all()
     return problems, doubts, stored
+
+
+def _attempt(db, table: pd.DataFrame, block_rows: int, monkeypatch):
+    """``_collect`` of one import of ``table`` with blocks of ``block_rows``."""
+    monkeypatch.setattr(reading_blocks, "BLOCK_ROWS", block_rows)
+    return _collect(db, lambda session: import_table(session, "readings", table, now=NOW))
 
 
 CASES = {
@@ -165,19 +170,11 @@ def _csv_file(tmp_path, rows: list[list[str]], name: str = "readings.csv"):
 
 
 def _outcome(db, run):
-    """(problems as text or None, doubts, readings stored after) of ``run(session)``, an import of readings."""
-    try:
-        with db.sessions.begin() as session:
-            result = run(session)
-        problems, doubts = None, result.doubts
-    except ImportRejected as rejected:
-        problems, doubts = [str(p) for p in rejected.problems], []
-    with db.sessions() as session:
-        stored = session.execute(select(Reading.pump_id, Reading.taken_at, Reading.hours, Reading.note)
-                                 .order_by(Reading.pump_id, Reading.taken_at)).all()
-    with db.sessions.begin() as session:  # back to the one reading stored before
+    """``_collect`` of ``run``, then the database back to the one reading stored before."""
+    outcome = _collect(db, run)
+    with db.sessions.begin() as session:
         session.execute(Reading.__table__.delete().where(Reading.hours != 900))
-    return problems, doubts, stored
+    return outcome
 
 
 @pytest.mark.parametrize("name", sorted(CASES))
