@@ -4,17 +4,16 @@ reader shows, derived from the keys when read, is the one fleet.trend.status.ser
 against hand-written orders in tests/test_trend_status.py). The demo plant is invented."""
 
 import io
-from datetime import timedelta
 
 import pandas as pd
 from sqlalchemy import select, update
 
-from fleet.db.models import AnalysisResult, Pump, Reading
+from fleet.db.models import AnalysisResult, Pump
 from fleet.services.analysis import analysis_records, store
 from fleet.services.analysis.read_figures import ranks
 from fleet.services.pages.service_list import ListQuery, service_list
-from fleet.timeutil import utcnow
 from fleet.trend.status import service_order_keys, service_rank
+from tests.posting import post_reading
 
 
 def _stored(demo_db) -> pd.DataFrame:
@@ -30,19 +29,6 @@ def _stored(demo_db) -> pd.DataFrame:
 
 def _reference_ranks(frame: pd.DataFrame) -> dict[int, int]:
     return {int(p): int(r) for p, r in service_rank(frame).items()}
-
-
-def _post(client, demo_db, serial: str, flow_share: float, minutes_ago: int) -> None:
-    with demo_db.sessions() as session:
-        pump = session.scalar(select(Pump).where(Pump.serial == serial))
-        hours = session.scalar(select(Reading.hours).where(Reading.pump_id == pump.id)
-                               .order_by(Reading.hours.desc()).limit(1))
-        speed, displacement = pump.rated_speed_rpm, pump.displacement_cc
-    body = {"pump": serial, "taken_at": (utcnow() - timedelta(minutes=minutes_ago)).isoformat(timespec="minutes"),
-            "hours": hours + 10, "outlet_pressure": 150, "speed": speed,
-            "outlet_flow": round(flow_share * displacement * speed / 1000.0, 2), "oil_temp": 50}
-    response = client.post("/api/readings", json=body)
-    assert response.status_code == 201, response.get_data(True)
 
 
 def _every_reader_shows(demo_db, client, expected: dict[int, int]) -> None:
@@ -83,7 +69,7 @@ def test_posted_readings_key_only_their_pump_and_every_reader_shows_the_referenc
     # A pump's flow falls far (it moves up the list), then recovers (it moves back down).
     for number, share in enumerate((0.55, 0.97, 0.3)):
         previous = _stored(demo_db)
-        _post(client, demo_db, "EY-104", share, minutes_ago=30 - number)
+        post_reading(client, demo_db, "EY-104", hours_added=10, flow_share=share, minutes_ago=30 - number)
         assert whole == [], "a one-pump write re-keyed the whole list"
         stored = _stored(demo_db)
         pump_id = pump_id or int(stored.index[stored["pump"] == "EY-104"][0])
@@ -103,7 +89,7 @@ def test_rows_without_keys_are_keyed_whole_once(client, demo_db):
     with demo_db.sessions() as session:
         assert ranks(session) == {}
         assert {r["rank"] for r in analysis_records(session)} == {None}
-    _post(client, demo_db, "EY-104", 0.9, minutes_ago=20)
+    post_reading(client, demo_db, "EY-104", hours_added=10, flow_share=0.9, minutes_ago=20)
     stored = _stored(demo_db)
     assert list(stored["order_key"]) == list(service_order_keys(stored))
     _every_reader_shows(demo_db, client, _reference_ranks(stored))

@@ -3,17 +3,16 @@ kind's refit until those moves pass FIT_DRIFT of the fit's exposure, and meanwhi
 overhauls in the horizon by the pump's share. The demo plant is invented; the synthetic lives are drawn with
 scipy.stats.weibull_min."""
 
-from datetime import timedelta
 
 import numpy as np
 import pytest
 from scipy import stats
 from sqlalchemy import select
 
-from fleet.db.models import AnalysisResult, FleetPrior, Pump, Reading
+from fleet.db.models import AnalysisResult, FleetPrior, Pump
 from fleet.services.analysis import store
-from fleet.timeutil import utcnow
 from fleet.trend.weibull import conditional_failure_probability, fit_weibull, mean_residual_life
+from tests.posting import post_reading
 
 
 def test_figures_move_less_than_a_few_times_the_exposure_share_moved():
@@ -37,18 +36,6 @@ def test_figures_move_less_than_a_few_times_the_exposure_share_moved():
                        / mean_residual_life(ages, before.beta, before.alpha) - 1).max())
     assert 0 < share < 1e-4
     assert moved < 5 * share  # what store.FIT_DRIFT's bound leans on
-
-
-def _post_few_hours(client, demo_db, serial: str, hours: float, minutes_ago: int) -> None:
-    with demo_db.sessions() as session:
-        pump = session.scalar(select(Pump).where(Pump.serial == serial))
-        last = session.scalar(select(Reading.hours).where(Reading.pump_id == pump.id)
-                              .order_by(Reading.hours.desc()).limit(1))
-        speed, displacement = pump.rated_speed_rpm, pump.displacement_cc
-    body = {"pump": serial, "taken_at": (utcnow() - timedelta(minutes=minutes_ago)).isoformat(timespec="minutes"),
-            "hours": last + hours, "outlet_pressure": 150, "speed": speed,
-            "outlet_flow": round(0.9 * displacement * speed / 1000.0, 2), "oil_temp": 50}
-    assert client.post("/api/readings", json=body).status_code == 201
 
 
 def _fitted_kind_pump(demo_db) -> tuple[str, str]:
@@ -78,14 +65,14 @@ def test_a_reading_defers_the_refit_and_moves_the_expected_overhauls(client, dem
                                                                           original(session, kinds, *a)))
     monkeypatch.setattr(store, "FIT_DRIFT", 1.0)  # the demo's kinds are small: let every move wait
     fit_before = {k: v for k, v in _expected_by_definition(demo_db, kind)[1].items() if k in ("beta", "alpha")}
-    _post_few_hours(client, demo_db, serial, 8.0, minutes_ago=30)
+    post_reading(client, demo_db, serial, hours_added=8.0, flow_share=0.9, minutes_ago=30)
     assert kind not in set().union(*refitted)
     expected, detail = _expected_by_definition(demo_db, kind)
     assert {k: detail[k] for k in fit_before} == fit_before  # the fit waits
     assert detail[store.FIT_DRIFT_FIELD] > 0
     assert detail["expected_overhauls_in_horizon"] == pytest.approx(expected, rel=1e-9)
     monkeypatch.setattr(store, "FIT_DRIFT", 1e-12)  # now any growth passes the bound
-    _post_few_hours(client, demo_db, serial, 8.0, minutes_ago=20)
+    post_reading(client, demo_db, serial, hours_added=8.0, flow_share=0.9, minutes_ago=20)
     assert kind in refitted[-1]
     with demo_db.sessions() as session:
         assert store.FIT_DRIFT_FIELD not in session.get(FleetPrior, kind).detail
