@@ -266,3 +266,39 @@ def test_forecast_beyond_ten_years_is_words_on_the_page_and_numbers_in_json(clie
     row = listing[listing.index(f'href="/pumps/{FAR_PUMP}"'):]
     row = row[:row.index("</tr>")]
     assert "beyond 10 years" in row and head["limit_date"] not in row
+
+
+def test_an_efficiency_chart_with_nothing_referred_says_so_and_its_ticks_do_not_repeat():
+    """A variable pump read without its displacement setting has no referred point: the empty chart says why, and
+    its axis (the limit's few percent) is labelled to a tenth of a percent, not 85 %, 85 %, 86 %."""
+    readings = {"hours": [0.0, 500.0], "eta_v": [None, None], "eta_v_ref": [None, None]}
+    spec = charts.efficiency_figure(readings, None, 0.85, None)
+    layout = go.Figure(data=spec["data"], layout=spec["layout"]).layout
+    assert any("No reading of this pump can be referred yet" in a.text for a in layout.annotations)
+    assert layout.yaxis.tickformat == ".1%"
+    ticks = np.arange(layout.yaxis.range[0], layout.yaxis.range[1], 0.005)  # plotly's ticks on such an axis
+    assert len({f"{t:.1%}" for t in ticks}) == len(ticks)
+    wide = charts.efficiency_figure({**readings, "eta_v_ref": [0.95, 0.80]}, None, 0.85, None)
+    assert wide["layout"]["yaxis"]["tickformat"] == ".0%"
+    assert not any("referred yet" in a.get("text", "") for a in wide["layout"].get("annotations", []))
+
+
+def test_a_sample_still_at_the_lab_is_named_and_draws_no_point(client, demo_db):
+    """The latest cleanliness is the latest lab result, with its date; a newer sample still at the lab is named
+    as such, not shown as a code of 'None', and has no point on the chart."""
+    from fleet.services.transfer.importing import import_table
+    from fleet.services.writes import perform
+
+    before = client.get(f"/pumps/{PISTON_PUMP}.json").get_json()
+    reported = [s for s in before["samples"] if s["code"]]
+    assert reported  # the invented demo plant's reservoirs have lab results
+    machine = before["where"]["machine"]
+    perform(demo_db.sessions, lambda session: import_table(session, "samples", pd.DataFrame([
+        {"machine": machine, "sampled_at": "2026-11-30 09:00"}])))
+    html = client.get(f"/pumps/{PISTON_PUMP}").get_data(as_text=True)
+    assert f"{reported[-1]['code']} (sampled {reported[-1]['sampled_at']})" in html
+    assert "the sample of 2026-11-30 has no count yet" in html and ">None" not in html
+    data = client.get(f"/pumps/{PISTON_PUMP}.json").get_json()
+    assert data["samples"][-1]["code"] is None  # the twin keeps the sample itself
+    figure = charts.page_charts(data)["cleanliness"]
+    assert "2026-11-30" not in figure and reported[-1]["sampled_at"] in figure

@@ -116,10 +116,18 @@ def efficiency_figure(readings, band, limit, events: list[dict] | None = None) -
     marks = _Marks()
     marks.limit(limit, "limit")
     marks.events(events, "chart_hours")
-    layout = marks.layout(_axes("running hours (h)", "volumetric efficiency", ".0%"))
     shown = _efficiency_range(readings, band, limit)
+    # Whole percent ticks repeat themselves on an axis a few percent tall (85 %, 85 %, 86 %): one decimal there.
+    narrow = shown is not None and shown[1] - shown[0] < 0.06
+    layout = marks.layout(_axes("running hours (h)", "volumetric efficiency", ".1%" if narrow else ".0%"))
     if shown is not None:
         layout["yaxis"]["range"] = shown
+    if not np.isfinite(_numbers(readings["eta_v_ref"])).any() and (band is None or not len(band["hours"])):
+        # An empty frame would look like a drawing fault: say why it is empty (the page's Why says more).
+        layout.setdefault("annotations", []).append(
+            {"xref": "paper", "yref": "paper", "x": 0.5, "y": 0.8, "showarrow": False, "font": {"color": INK},
+             "bgcolor": "#ffffff",
+             "text": "No reading of this pump can be referred yet: see Why above."})
     return plain_figure(traces, layout)
 
 
@@ -245,8 +253,9 @@ def page_charts(data: dict) -> dict[str, str]:
             temperature_figure(readings, limits["oil_temp_min_c"], limits["oil_temp_max_c"], events,
                                site_units["temperature"]),
             "chart-temperature")
-    if data["samples"]:
-        samples = _columns(data["samples"], ("sampled_at", "code_4", "code_6", "code_14"))
+    reported = [sample for sample in data["samples"] if sample["code"]]  # a sample still at the lab has no point
+    if reported:
+        samples = _columns(reported, ("sampled_at", "code_4", "code_6", "code_14"))
         out["cleanliness"] = chart_html(cleanliness_figure(samples, _target(limits["cleanliness_target"])),
                                         "chart-cleanliness")
     if data["flow_test"]:
