@@ -16,7 +16,7 @@ from fleet.planning.windows import match_windows
 from fleet.services.pages.plan import CSV_COLUMNS, overhaul_chances
 
 KEYS = {"weeks", "today", "horizon_end", "pumps", "windows", "fit_words", "at_risk", "kinds", "spares_cover",
-        "totals", "scopes", "window_form", "window_errors"}
+        "totals", "scopes", "window_form", "window_errors", "without_forecast"}
 
 
 def test_plan_page_chart_table_caution_and_twins(client):
@@ -69,6 +69,30 @@ def test_a_pump_past_its_limit_is_planned_at_its_crossing_not_its_last_reading(c
         assert f"crossed ~{row['crossed_date']} ({row['crossed_date_low']} - " in text
     # Those that crossed longest ago come first.
     assert [r["crossed_date_low"] for r in crossed] == sorted(r["crossed_date_low"] for r in crossed)
+
+
+def test_pumps_without_a_trend_of_their_own_are_named_with_the_reason(client, demo_db):
+    """A pump installed but with too little data for its own trend has no date to be planned by: the plan (page,
+    JSON, command line) names it and says why, rather than leaving it out unseen."""
+    from fleet.commands.jobs import plan_text
+    from fleet.services.transfer.importing import import_table
+    from fleet.services.writes import perform
+
+    assert client.get("/plan.json").get_json()["without_forecast"] == []  # every demo pump has its trend
+    # A new pump on the invented demo plant's press-2, no readings yet.
+    row = {"pump": "NEW-1", "site": "East Yard", "machine": "press-2", "position": "spare bay (invented)",
+           "kind": "vane", "variable": "no", "displacement": 20, "rated_speed": 1500, "rated_pressure": 160,
+           "oil": "house mineral HM 46", "viscosity_40": 46, "viscosity_100": 6.8, "installed_at": "2026-01-05"}
+    perform(demo_db.sessions, lambda session: import_table(session, "pumps", pd.DataFrame([row])))
+    data = client.get("/plan.json").get_json()
+    assert [r["pump"] for r in data["without_forecast"]] == ["NEW-1"]
+    assert "NEW-1" not in [r["pump"] for r in data["pumps"]]
+    new = data["without_forecast"][0]
+    assert new["why"] == "Not enough data: no readings yet." and new["machine"] == "press-2"
+    html = client.get("/plan").get_data(as_text=True)
+    assert "Pumps the plan cannot place" in html and "Not enough data: no readings yet." in html
+    text = plan_text(data)
+    assert "Pumps the plan cannot place (1)" in text and "NEW-1" in text
 
 
 def test_the_plan_csv_rounds_its_figures_and_names_its_windows(client):

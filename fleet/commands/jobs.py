@@ -171,6 +171,13 @@ def plan_text(data: dict) -> str:
         if payback is not None:
             extra.append(f"pays back in {payback:.1f} years")
         lines.append(_wrap("; ".join(e for e in extra if e), indent="             "))
+    if data.get("without_forecast"):
+        lines.append(f"\nPumps the plan cannot place ({len(data['without_forecast'])}): too little data for a trend "
+                     "of their own")
+        for item in data["without_forecast"]:
+            flag = f" The last reading: {item['last_flag']}." if item.get("last_flag") else ""
+            lines.append(f"  {item['pump']:<10} {_label(item['status'])}")
+            lines.append(_wrap(f"{item['why']}{flag}", indent="             "))
     lines.append(f"\nShutdown windows ({len(data['windows'])})")
     for window in data["windows"]:
         note = (f"  {window['note']}" if window.get("note") else "") + ("  (past)" if window.get("past") else "")
@@ -179,12 +186,16 @@ def plan_text(data: dict) -> str:
     lines.append(f"\nExpected overhauls per kind in the horizon (fleet history, {data['spares_cover']:.0%} cover)")
     for kind in data["kinds"]:
         if kind.get("beta") is None:
-            lines.append(f"  {kind['kind_label']:<15} {kind['pumps']:>3} pumps: {kind.get('note') or 'no fit'}")
+            lines.append(f"  {kind['kind_label']:<15} {_pumps(kind['pumps'])}: {kind.get('note') or 'no fit'}")
         else:
-            lines.append(f"  {kind['kind_label']:<15} {kind['pumps']:>3} pumps: beta {kind['beta']:.2f}, "
+            lines.append(f"  {kind['kind_label']:<15} {_pumps(kind['pumps'])}: beta {kind['beta']:.2f}, "
                          f"alpha {kind['alpha_hours']:,.0f} h, B10 {kind['b10_hours']:,.0f} h; expect "
                          f"{kind['expected_overhauls']:.1f}, hold {kind['spares_to_hold']} spare(s)")
     return "\n".join(lines)
+
+
+def _pumps(count: int) -> str:
+    return f"{count:>3} pump " if count == 1 else f"{count:>3} pumps"
 
 
 # --- round -------------------------------------------------------------------------------------------------

@@ -86,6 +86,7 @@ def overhaul_plan(session: Session, weeks: int = DEFAULT_WEEKS, now: datetime | 
         "windows": _window_rows(windows, today),
         "fit_words": FIT_WORDS,
         "at_risk": [r["pump"] for r in rows if r["fit"] in ("at_risk", "past_limit")],
+        "without_forecast": _without_forecast(pumps[~_inside(pumps, horizon_end)]),
         "kinds": _kind_outlook(session, pumps, weeks),
         "spares_cover": DEFAULT_COVER,
         "totals": plan_totals(rows),
@@ -108,14 +109,24 @@ def _pump_frame(session: Session) -> pd.DataFrame:
             "overhaul_saving_per_year": detail.get("overhaul_saving_per_year"),
             "overhaul_payback_years": detail.get("overhaul_payback_years"),
             "age_hours": detail.get("age_hours"), "hours_per_day": detail.get("hours_per_day"),
+            "data_note": detail.get("data_note"), "last_flag": detail.get("last_flag"),
             **{field: detail.get(field) for field in CROSSED_FIELDS},
         })
     columns = ["pump_id", "status", "governing_limit", "limit_date", "limit_date_low", "limit_date_high",
                "hours_to_limit", "energy_cost_per_year", "overhaul_saving_per_year", "overhaul_payback_years",
-               "age_hours", "hours_per_day", *CROSSED_FIELDS]
+               "age_hours", "hours_per_day", "data_note", "last_flag", *CROSSED_FIELDS]
     frame = pumps.merge(pd.DataFrame(stored, columns=columns), on="pump_id", how="left")
     frame["past_limit"] = frame["status"] == "past_limit"
     return frame.astype(object).where(frame.notna(), None)
+
+
+def _without_forecast(pumps: pd.DataFrame) -> list[dict]:
+    """Installed pumps with too little data for a trend of their own: the plan cannot place them, and a planner
+    needs to know which (and why) as much as which pumps it places."""
+    rows = pumps[pumps["machine"].notna() & pumps["data_note"].notna()].sort_values("pump")
+    return [{"pump": p.pump, "kind": p.kind, "kind_label": PUMP_KINDS.get(p.kind, p.kind), "site": p.site,
+             "machine": p.machine, "position": p.position, "status": p.status, "why": p.data_note,
+             "last_flag": p.last_flag} for p in rows.itertuples()]
 
 
 def _inside(pumps: pd.DataFrame, horizon_end: pd.Timestamp) -> np.ndarray:
