@@ -109,6 +109,16 @@ def test_the_quick_form_is_made_for_phones_and_keyboards(client):
     assert "Before you work on a pump" in html
 
 
+def test_a_variable_pump_s_form_says_what_its_displacement_setting_is_for(client):
+    """EY-101 (invented demo plant) is a variable pump: its form asks for the displacement setting and says that a
+    reading without it is kept but cannot count in the trends (fleet.trend.referral flags it so)."""
+    html = client.get(_make_route(client, pumps=("EY-101",), name="Piston walk")).get_data(as_text=True)
+    assert 'id="f-stroke"' in html and 'aria-describedby="h-stroke"' in html
+    assert 'id="h-stroke"' in html and "left out of the trends" in html
+    fixed = client.get(_make_route(client, name="Gear walk")).get_data(as_text=True)
+    assert 'id="f-stroke"' not in fixed and 'id="h-stroke"' not in fixed
+
+
 def test_hard_errors_reshow_the_form_with_every_typed_value(client, demo_db):
     location = _make_route(client)
     before = _readings_of(demo_db, FIRST)

@@ -38,6 +38,7 @@ class FormField:
     label: str
     required: bool = False
     only_if: str | None = None  # a Pump attribute that must be true for the field to show
+    hint: str | None = None  # a line under the field
 
 
 # The quick form, in walking order of a technician's eyes: hour meter first, then gauges, then meters.
@@ -48,7 +49,8 @@ FORM_FIELDS = (
     FormField("outlet_flow", "flow", "Outlet flow"),
     FormField("case_drain_flow", "flow", "Case drain flow", only_if="case_drain"),
     FormField("oil_temp", "temperature", "Oil temperature", True),
-    FormField("stroke", None, "Displacement setting, %", only_if="variable"),
+    FormField("stroke", None, "Displacement setting, %", only_if="variable",
+              hint="Without it this reading's flow cannot be judged: it is kept, but left out of the trends."),
 )
 STROKE_UNIT = "%"
 
