@@ -177,6 +177,15 @@ def from_canonical(values, quantity: str, unit_text: str | None) -> np.ndarray:
     return ureg.Quantity(array, CANONICAL[quantity]).to(unit).magnitude / scale
 
 
+def significant(values, digits: int = 12) -> np.ndarray:
+    """Converted numbers to ``digits`` significant digits, for files and tables people read: 2386 psi, not the
+    2386.0000000000014 a unit factor leaves (far finer than any gauge; an import reads it back the same)."""
+    array = np.array(values, dtype=float)
+    finite = np.isfinite(array)
+    array[finite] = np.char.mod(f"%.{digits}g", array[finite]).astype(float)
+    return array
+
+
 def convert_one(value: float, unit_text: str | None, quantity: str) -> float:
     """Scalar form of :func:`to_canonical`."""
     return float(to_canonical([value], unit_text, quantity)[0])

@@ -152,6 +152,7 @@ def test_pump_csv_stays_canonical_unless_site_units_are_asked_for(client, demo_d
         ureg.Quantity(last.pressure_bar, "bar").to("psi").magnitude, rel=1e-9)
     assert float(site[-1]["oil_temp [degF]"]) == pytest.approx(
         ureg.Quantity(last.temp_c, "degC").to("degF").magnitude, rel=1e-9)
+    assert all(len(row["outlet_pressure [psi]"].replace(".", "").strip("0")) <= 12 for row in site)
 
 
 def test_cli_export_in_site_units_for_one_site_and_refused_for_mixed_sites(demo_db, monkeypatch):
@@ -171,6 +172,10 @@ def test_cli_export_in_site_units_for_one_site_and_refused_for_mixed_sites(demo_
     mine = [r for r in rows if r["pump"] == PUMP][-1]
     assert float(mine["outlet_pressure [psi]"]) == pytest.approx(
         ureg.Quantity(last.pressure_bar, "bar").to("psi").magnitude, rel=1e-9)
+    # No unit factor's noise in a file people read: at most 12 significant digits (2386.0, not 2386.0000000000014).
+    for row in rows:
+        for name in ("outlet_pressure [psi]", "outlet_flow [gal/min]", "oil_temp [degF]"):
+            assert not row[name] or len(row[name].lstrip("-").replace(".", "").strip("0")) <= 12, row[name]
     # The file in psi imports back as the same bar values (the header carries the unit).
     again = pd.read_csv(io.StringIO(result.output), dtype=str, keep_default_na=False)
     parsed, problems = parse_table("readings", again)

@@ -51,6 +51,16 @@ def test_round_trip_to_display_units():
     assert units.from_canonical([60.0], "temperature", "degF")[0] == pytest.approx(140.0)
 
 
+def test_significant_digits_drop_a_factor_s_noise_and_keep_the_value():
+    # 164.508909... bar is 2386 psi (pint, an independent registry); the factor leaves noise in the last bits.
+    psi = units.from_canonical([ureg.Quantity(2386.0, "psi").to("bar").magnitude], "pressure", "psi")
+    shown = units.significant(np.concatenate([psi, [1 / 3, -0.5, np.nan, 1e-20]]))
+    assert shown[0] == 2386.0 and repr(float(shown[1])) == "0.333333333333"
+    assert shown[2] == -0.5 and np.isnan(shown[3]) and shown[4] == 1e-20
+    values = np.random.default_rng(4).uniform(-1e4, 1e4, 1000)
+    assert np.allclose(units.significant(values), values, rtol=5e-12, atol=0)  # 12 digits: half a unit in the last
+
+
 def test_nan_is_kept():
     out = units.to_canonical([np.nan, 10.0], "gal/min", "flow")
     assert np.isnan(out[0]) and out[1] == pytest.approx(37.854, abs=1e-3)

@@ -302,7 +302,7 @@ def readings_in_site_units(data: dict) -> tuple[list[dict], tuple[str, ...]]:
                 quantity = SITE_UNIT_COLUMNS[name][0]
                 value = row[name]
                 out[renamed[name]] = None if value is None else \
-                    float(units.from_canonical([value], quantity, site_units[quantity])[0])
+                    float(units.significant(units.from_canonical([value], quantity, site_units[quantity]))[0])
             else:
                 out[name] = row[name]
         rows.append(out)

@@ -94,8 +94,8 @@ def export_table(session: Session, kind: str, text_times: bool = True, unit_mode
         elif column.type == "bool":
             values = values.map(lambda v: "" if v is None else ("yes" if v else "no"))
         elif column.quantity is not None and (unit or column.export_unit):
-            values = pd.Series(units.from_canonical(values.astype(float), column.quantity,
-                                                    unit or column.export_unit), index=frame.index)
+            converted = units.from_canonical(values.astype(float), column.quantity, unit or column.export_unit)
+            values = pd.Series(units.significant(converted), index=frame.index)
         out[header(column, unit)] = values
     return out
 
