@@ -209,6 +209,22 @@ def test_a_decimal_comma_is_read_only_where_the_site_allows_it(demo_db):
         assert stored.temp_c == pytest.approx(48.5)
 
 
+def test_a_site_row_that_sets_the_decimal_comma_writes_its_own_numbers_with_it(demo_db):
+    """A new site's row in sites.csv that says decimal_comma yes has its own tariff read with a comma (the file is
+    written by a person who writes all numbers so); a row that turns it off is read with a point."""
+    new = {"site": "Werk Nord (invented)", "currency": "EUR", "tariff_per_kwh": "0,21", "decimal_comma": "yes"}
+    perform(demo_db.sessions, lambda s: import_table(s, "sites", _cells([new])))
+    _set_site(demo_db, decimal_comma="yes", tariff_per_kwh="0,18")
+    with demo_db.sessions() as session:
+        stored = dict(session.execute(select(Site.name, Site.tariff_per_kwh)
+                                      .where(Site.name.in_([SITE, "Werk Nord (invented)"]))).all())
+    assert stored == {"Werk Nord (invented)": pytest.approx(0.21), SITE: pytest.approx(0.18)}
+    _set_site(demo_db, decimal_comma="no", tariff_per_kwh="0.2")  # off again: a point, in the same row
+    with pytest.raises(ImportRejected) as caught:  # a row without the column keeps the stored setting (off)
+        perform(demo_db.sessions, lambda s: import_table(s, "sites", _cells([{"site": SITE, "tariff_per_kwh": "0,3"}])))
+    assert "row 2, column 'tariff_per_kwh': '0,3' is not a number" in caught.value.report()
+
+
 @pytest.mark.parametrize(("cell", "words"), [
     ("12,500", "could be a decimal or a thousands separator"),  # 12.5 or 12500?
     ("1.234,5", "write one decimal comma and no thousands separators"),

@@ -15,7 +15,7 @@ from sqlalchemy.orm import Session, aliased
 from fleet import units
 from fleet.db.models import Installation, Machine, Position, Pump, Site
 from fleet.io.localtime import DEFAULT_ZONE, offset_text, to_local
-from fleet.io.parse import RowConventions, is_arrow_text
+from fleet.io.parse import FALSE_WORDS, TRUE_WORDS, RowConventions, is_arrow_text
 from fleet.timeutil import utcnow
 
 
@@ -144,8 +144,12 @@ def row_conventions(session: Session, kind: str, table: pd.DataFrame) -> RowConv
         comma = np.array([c.decimal_comma for c in found], dtype=bool)[codes]
         return RowConventions(pd.Series(zones, dtype=object), pd.Series(comma, dtype=bool))
     found = [of_site(site) for site in row_sites(session, kind, table)]
-    return RowConventions(pd.Series([c.time_zone for c in found], dtype=object),
-                          pd.Series([c.decimal_comma for c in found], dtype=bool))
+    comma = pd.Series([c.decimal_comma for c in found], dtype=bool)
+    own = _cells(table, "decimal_comma") if kind == "sites" else None
+    if own is not None:  # a site row that sets the decimal comma writes its own tariff that way too
+        said = own.fillna("").str.lower()
+        comma = comma.mask(said.isin(TRUE_WORDS).to_numpy(), True).mask(said.isin(FALSE_WORDS - {""}).to_numpy(), False)
+    return RowConventions(pd.Series([c.time_zone for c in found], dtype=object), comma.astype(bool))
 
 
 def zone_label(conventions: Conventions, now=None) -> str:
