@@ -253,9 +253,15 @@ def known_by(frames: FleetFrames, moment: pd.Timestamp) -> FleetFrames:
 
 def samples_known_by(samples: pd.DataFrame, moment: pd.Timestamp) -> pd.DataFrame:
     """The lab samples taken by ``moment``, with the results not reported by then blanked."""
-    samples = samples[samples["sampled_at"] <= moment]
+    sampled = samples["sampled_at"].to_numpy()
+    reported = samples["reported_at"].to_numpy()
+    moment64 = np.datetime64(pd.Timestamp(moment).to_datetime64())
+    taken = sampled <= moment64
+    if taken.all() and not (np.isnat(reported) | (reported > moment64)).any():
+        return samples  # every sample taken and reported by then (the usual case for one machine's few samples)
+    samples = samples[taken]
     pending = samples["reported_at"].isna() | (samples["reported_at"] > moment)
-    if not pending.any():  # every result in: nothing to blank (the usual case for one machine's few samples)
+    if not pending.any():  # every result in: nothing to blank
         return samples
     samples = samples.copy()
     samples.loc[pending, ["reported_at", "code_4", "code_6", "code_14", "water_ppm", "viscosity_40"]] = np.nan
