@@ -63,20 +63,10 @@ def _code_text(c4, c6, c14, low) -> str | None:
         return "/".join("-" if not np.isfinite(c) else str(int(c)) for c in (c4, c6, c14))
 
 
-_LAB_COLUMNS = ["sample_sampled_at", "sample_reported_at", "c4", "c6", "c14", "low_count", "water_ppm", "lab_late",
-                "lab_pending_since"]
-
-
-def latest_lab_results(samples: pd.DataFrame | None, now, settings: AnalysisSettings) -> pd.DataFrame:
-    """Per machine_id: the latest reported sample (code, low count, water) and whether a result is late."""
-    if samples is None or len(samples) == 0:
-        return pd.DataFrame(columns=_LAB_COLUMNS, index=pd.Index([], name="machine_id"))
-    machines, columns = _latest_lab_arrays(samples, now, settings)
-    return pd.DataFrame(columns, index=pd.Index(machines, name="machine_id"))[_LAB_COLUMNS]
-
-
-def _latest_lab_arrays(samples: pd.DataFrame, now, settings: AnalysisSettings) -> tuple[np.ndarray, dict]:
-    """latest_lab_results' machines (sorted) and columns as arrays, for samples not empty."""
+def latest_lab_results(samples: pd.DataFrame, now, settings: AnalysisSettings) -> tuple[np.ndarray, dict]:
+    """Per machine: the latest reported sample (sampled and reported times, code channels c4/c6/c14, low count,
+    water) and whether a result is late (lab_late, lab_pending_since); the machines (sorted) and each column as an
+    array in their order. ``samples`` not empty."""
     machines, machine = np.unique(samples["machine_id"].to_numpy(np.int64), return_inverse=True)
     n = len(machines)
     sampled = _times(samples["sampled_at"])
@@ -121,17 +111,12 @@ def _floats(column: pd.Series) -> np.ndarray:
     return pd.to_numeric(column, errors="coerce").to_numpy(float)
 
 
-def oil_temperatures(readings: pd.DataFrame, settings: AnalysisSettings) -> pd.DataFrame:
-    """Per pump_id: last oil temperature, typical (median over the recent window), oil data of the last reading.
+def oil_temperatures(readings: pd.DataFrame, settings: AnalysisSettings) -> tuple[np.ndarray, dict]:
+    """Per pump_id: last oil temperature, typical (median over the recent window), oil data of the last reading;
+    the pumps (sorted) and each column as an array in their order.
 
     Plain arrays, sorted once by pump and time (a grouped frame costs more than the sums, for one pump as for many).
     """
-    pumps, columns = _oil_temperature_arrays(readings, settings)
-    return pd.DataFrame(columns, index=pd.Index(pumps, name="pump_id"))
-
-
-def _oil_temperature_arrays(readings: pd.DataFrame, settings: AnalysisSettings) -> tuple[np.ndarray, dict]:
-    """oil_temperatures' pumps (sorted) and columns as arrays."""
     lo, hi = settings.temp_range_c
     t = _floats(readings["temp_c"])
     keep = np.flatnonzero((t >= lo) & (t <= hi))
@@ -182,12 +167,12 @@ def oil_condition(
                "c4": np.full(n, np.nan), "c6": np.full(n, np.nan), "c14": np.full(n, np.nan),
                "water_ppm": np.full(n, np.nan), "low_count": np.zeros(n, bool), "lab_late": np.zeros(n, bool)}
     else:
-        machines, columns = _latest_lab_arrays(samples, now, settings)
+        machines, columns = latest_lab_results(samples, now, settings)
         at = pd.Index(machines).get_indexer(_floats(pumps["machine_id"]))
         lab = {name: _taken(values, at, False if values.dtype == bool else
                             np.datetime64("NaT") if values.dtype.kind == "M" else np.nan)
                for name, values in columns.items()}
-    with_temps, temps = _oil_temperature_arrays(readings, settings)
+    with_temps, temps = oil_temperatures(readings, settings)
     at = pd.Index(with_temps).get_indexer(index)
     temps = {name: _taken(values, at, np.nan) for name, values in temps.items()}
 
