@@ -59,3 +59,37 @@ def test_analysis_of_a_past_moment_uses_only_what_was_known(demo_db):
         refresh_analysis(session, now=moment)
         records = analysis_records(session)
     assert max(r["last_reading_at"] for r in records if r["last_reading_at"]) <= "2026-06-01"
+
+
+def test_samples_known_by_keeps_what_was_known_then():
+    # Reference: the rule written out plainly, sample by sample (taken by then; its result blanked unless reported
+    # by then), for the quick return (every sample taken and reported) and the ones that filter and blank.
+    import numpy as np
+    import pandas as pd
+
+    from fleet.services.analysis.frames import samples_known_by
+
+    moment = pd.Timestamp("2026-06-01 12:00")
+    samples = pd.DataFrame({
+        "machine_id": [1, 1, 2, 2, 3],
+        "sampled_at": pd.to_datetime(["2026-05-01", "2026-05-20", "2026-05-30", "2026-06-02", None]).astype(
+            "datetime64[us]"),
+        "reported_at": pd.to_datetime(["2026-05-03 00:00", "2026-06-01 12:00", "2026-06-01 12:01", None, None]).astype(
+            "datetime64[us]"),
+        "code_4": [18.0, 17.0, 19.0, 20.0, 21.0], "code_6": [16.0, 15.0, 17.0, 18.0, 19.0],
+        "code_14": [13.0, 12.0, 14.0, 15.0, 16.0], "low_count": [False, True, True, False, False],
+        "water_ppm": [100.0, 120.0, 130.0, 140.0, 150.0], "viscosity_40": [46.0, 46.1, 46.2, 46.3, 46.4],
+    })
+    for rows in ([0, 1], [0, 1, 2], [0, 1, 2, 3, 4], []):
+        given = samples.iloc[rows].reset_index(drop=True)
+        expected = []
+        for record in given.to_dict("records"):
+            if pd.isna(record["sampled_at"]) or record["sampled_at"] > moment:
+                continue
+            if pd.isna(record["reported_at"]) or record["reported_at"] > moment:
+                record.update(dict.fromkeys(("reported_at", "code_4", "code_6", "code_14", "water_ppm",
+                                             "viscosity_40"), np.nan), low_count=False)
+            expected.append(record)
+        known = samples_known_by(given, moment).reset_index(drop=True)
+        assert known.astype(object).where(known.notna(), None).to_dict("records") == pd.DataFrame(
+            expected, columns=given.columns).astype(object).where(lambda f: f.notna(), None).to_dict("records"), rows

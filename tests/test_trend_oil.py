@@ -27,11 +27,12 @@ def _samples():
 
 
 def test_latest_reported_sample_and_late_results():
-    lab = latest_lab_results(_samples(), NOW, AnalysisSettings())
-    assert lab.loc[1, "sample_sampled_at"] == pd.Timestamp("2025-05-01")  # the June sample is still at the lab
-    assert not lab.loc[1, "lab_late"]  # ...but only 5 days, inside the 14 days allowed
-    assert lab.loc[2, "lab_late"]  # sampled 41 days ago, never reported
-    assert np.isnan(lab.loc[2, "c6"])
+    machines, lab = latest_lab_results(_samples(), NOW, AnalysisSettings())
+    one, two = machines.tolist().index(1), machines.tolist().index(2)
+    assert lab["sample_sampled_at"][one] == pd.Timestamp("2025-05-01")  # the June sample is still at the lab
+    assert not lab["lab_late"][one]  # ...but only 5 days, inside the 14 days allowed
+    assert lab["lab_late"][two]  # sampled 41 days ago, never reported
+    assert np.isnan(lab["c6"][two])
 
 
 def test_pump_takes_its_machines_result_against_its_own_target():

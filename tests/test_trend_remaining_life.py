@@ -51,6 +51,27 @@ def test_hours_per_day_uses_recent_hour_meter_history():
     assert dates.iloc[0] == pd.Timestamp("2025-06-26")
 
 
+def test_limit_dates_on_plain_arrays_equal_pandas_sum_and_normalize():
+    # Reference: the same sum in pandas' own terms (a Series of times plus to_timedelta's offsets, then
+    # dt.normalize), which limit_dates did before it worked on numpy arrays. Times before 1970 and at midnight,
+    # a missing time, rates of zero, negative and missing, and hours beyond the 200-year cap.
+    rng = np.random.default_rng(12)
+    n = 400
+    last = pd.Series(pd.to_datetime("1965-01-01") + pd.to_timedelta(rng.uniform(0, 80 * 365, n), unit="D"))
+    last.iloc[:5] = [pd.NaT, pd.Timestamp("1969-12-31 23:59:59.999999"), pd.Timestamp("2024-02-29"),
+                     pd.Timestamp("1970-01-01"), pd.Timestamp("2031-06-30 23:59")]
+    last = last.astype("datetime64[us]")
+    hours = rng.uniform(0, 90_000, n)
+    hours[5:10] = [np.nan, 0.0, 1e9, 24.0, 1e-7]
+    rate = rng.uniform(0, 24, n)
+    rate[10:14] = [0.0, -3.0, np.nan, 24.0]
+    with np.errstate(invalid="ignore", divide="ignore"):
+        ok = np.isfinite(hours) & np.isfinite(rate) & (rate > 0)
+        days = np.minimum(np.where(ok, hours / np.where(ok, rate, 1.0), np.nan), 365.0 * 200)
+    expected = (last.reset_index(drop=True) + pd.Series(pd.to_timedelta(days, unit="D"))).dt.normalize()
+    pd.testing.assert_series_equal(limit_dates(last, hours, rate), expected)
+
+
 def test_service_rank_works_on_stored_records_with_text_dates():
     frame = pd.DataFrame(
         {

@@ -74,16 +74,29 @@ def _empty_readings() -> pd.DataFrame:
     return pd.DataFrame({c: pd.Series(dtype=dtypes.get(c, float)) for c in READING_COLUMNS})
 
 
+def _floats(column: pd.Series) -> np.ndarray:
+    """A column as floats, as pd.to_numeric(errors="coerce") reads it (numbers already: no parse)."""
+    if column.dtype.kind in "fiu":
+        return column.to_numpy(dtype=float)
+    return pd.to_numeric(column, errors="coerce").to_numpy(dtype=float)
+
+
+def _bools(column: pd.Series) -> np.ndarray:
+    """A yes/no column as bools, a missing value as no (as astype("boolean").fillna(False).astype(bool))."""
+    if column.dtype == bool:
+        return column.to_numpy()
+    return column.astype("boolean").fillna(False).to_numpy(dtype=bool)
+
+
 def _pump_table(pumps: pd.DataFrame) -> pd.DataFrame:
     p = pumps.set_index("pump_id", drop=False)
-    rated_flow = pd.Series(theoretical_flow_lpm(pd.to_numeric(p["displacement_cc"], errors="coerce"),
-                                                pd.to_numeric(p["rated_speed_rpm"], errors="coerce")), index=p.index)
-    p = p.assign(rated_flow_lpm=rated_flow)
-    given = pd.to_numeric(p.get("max_flow_lpm"), errors="coerce") if "max_flow_lpm" in p else rated_flow * np.nan
-    p["max_flow_lpm"] = given.where(given.notna(), rated_flow)
-    no_port = ~p["case_drain"].astype("boolean").fillna(False).astype(bool)
-    p["drain_limit_pct"] = pd.to_numeric(p["drain_limit_pct"], errors="coerce").mask(no_port)
-    return p
+    rated_flow = np.asarray(theoretical_flow_lpm(_floats(p["displacement_cc"]), _floats(p["rated_speed_rpm"])),
+                            dtype=float).reshape(-1)
+    given = _floats(p["max_flow_lpm"]) if "max_flow_lpm" in p else np.full(len(p), np.nan)
+    drain_limit = np.where(_bools(p["case_drain"]), _floats(p["drain_limit_pct"]), np.nan)  # no port: no limit
+    # The three columns set in one step (each set alone copies the table's block again).
+    return p.assign(rated_flow_lpm=rated_flow, max_flow_lpm=np.where(np.isnan(given), rated_flow, given),
+                    drain_limit_pct=drain_limit)
 
 
 def _last_in_group(group: np.ndarray, keep: np.ndarray, n_groups: int) -> np.ndarray:
@@ -203,7 +216,7 @@ def _crossing_passed(cur: pd.DataFrame, current_iv: pd.DataFrame, referred: pd.D
     start = current_iv["start_hours"].to_numpy(float)
     keys = pd.DataFrame({"pump_id": cur.index.to_numpy(), "interval_no": current_iv["interval_no"].to_numpy()})
     per_day = cur["hours_per_day"].to_numpy(float)
-    out = pd.DataFrame({"crossed_limit": np.where(past, names[first], None)}, index=cur.index)
+    out = {"crossed_limit": np.where(past, names[first], None)}  # the columns, framed once
     suffixes = ("", "_low", "_high")
     hours = []
     for suffix, field_ in zip(suffixes, ("crossing_hours", "crossing_low", "crossing_high"), strict=True):
@@ -212,15 +225,15 @@ def _crossing_passed(cur: pd.DataFrame, current_iv: pd.DataFrame, referred: pd.D
         out[f"crossed_at_hours{suffix}"] = start + hours[-1]
     if not past.any():  # nothing to date: skip the readings' search
         for suffix in suffixes:
-            out[f"crossed_date{suffix}"] = pd.Series(pd.NaT, index=cur.index, dtype="datetime64[ns]").to_numpy()
-        return out
+            out[f"crossed_date{suffix}"] = np.full(len(cur), np.datetime64("NaT"), dtype="datetime64[ns]")
+        return pd.DataFrame(out, index=cur.index)
     near = referred[referred["pump_id"].isin(cur.index[past])]  # only past pumps' readings date a crossing
     # The three figures of every pump dated in one search.
     dates = dates_at_hours(near, pd.concat([keys] * 3, ignore_index=True), np.concatenate(hours),
                            np.tile(per_day, 3)).to_numpy()
     for i, suffix in enumerate(suffixes):
         out[f"crossed_date{suffix}"] = dates[i * len(cur):(i + 1) * len(cur)]
-    return out
+    return pd.DataFrame(out, index=cur.index)
 
 
 def place_readings(pumps: pd.DataFrame, readings: pd.DataFrame | None, events: pd.DataFrame | None,
@@ -284,10 +297,11 @@ def analyze_fleet(
     current_iv = intervals[intervals["is_current"]].set_index("pump_id").reindex(pump_tab.index)
     current_iv["interval_no"] = current_iv["interval_no"].fillna(0).astype(np.int64)
     cur_keys = pd.MultiIndex.from_arrays([pump_tab.index, current_iv["interval_no"]])
-    cur = fits.set_index(KEYS).reindex(cur_keys)
-    cur.index = pump_tab.index
-    # Each pump's current interval's row of the fits (-1: none), for the members' weights.
+    # Each pump's current interval's row of the fits (-1: none), and those rows (a missing one all NaN, as a
+    # reindex on the keys gives it): taken by position, the fits are not indexed on their keys.
     cur_rows = pd.MultiIndex.from_arrays([fits["pump_id"], fits["interval_no"]]).get_indexer(cur_keys)
+    cur = fits.set_axis(pd.RangeIndex(len(fits))).drop(columns=KEYS).reindex(cur_rows)
+    cur.index = pump_tab.index
     cur_limits = {
         q: limit_flows_lpm(
             pump_tab["eta_v_limit"], pump_tab["drain_limit_pct"], pump_tab["rated_flow_lpm"], pump_tab["max_flow_lpm"]
@@ -304,7 +318,8 @@ def analyze_fleet(
         "drain_upper_open",
         "upper_bound_open",
     ):
-        cur[col] = cur[col].astype("boolean").fillna(False).astype(bool)
+        if cur[col].dtype != bool:  # a pump without a fitted current interval: NaN rows
+            cur[col] = _bools(cur[col])
     last = _last_usable(referred, cur_keys)
     last.index = pump_tab.index
 

@@ -43,42 +43,35 @@ def _order_key(times: np.ndarray, hours: np.ndarray, missing_hours: float) -> np
     return _day_number(times) * _DAY_SLOT + h
 
 
-def reset_events(events: pd.DataFrame | None) -> pd.DataFrame:
-    """The events that start a new interval, numbered 1.. per pump in time order."""
-    cols = ["pump_id", "date", "hours", "kind"]
+def reset_events(events: pd.DataFrame | None) -> dict[str, np.ndarray]:
+    """The events that start a new interval, numbered 1.. per pump in time order: pump_id, date, hours, kind, key
+    (the ordering key) and interval_no, as arrays (one pump's few events cost less so than framed)."""
     if events is None or len(events) == 0:
-        events = pd.DataFrame(
-            {
-                "pump_id": pd.Series(dtype=np.int64),
-                "date": pd.Series(dtype="datetime64[ns]"),
-                "hours": pd.Series(dtype=float),
-                "kind": pd.Series(dtype=object),
-            }
-        )
-    chosen = events["kind"].isin(RESETS_INTERVAL).to_numpy()
+        return {"pump_id": np.zeros(0, dtype=np.int64), "date": np.zeros(0, dtype="datetime64[ns]"),
+                "hours": np.zeros(0), "kind": np.zeros(0, dtype=object), "key": np.zeros(0),
+                "interval_no": np.zeros(0, dtype=np.int64)}
+    kinds = events["kind"].to_numpy(object)
+    chosen = np.fromiter((k in RESETS_INTERVAL for k in kinds), dtype=bool, count=len(kinds))
     pump = events["pump_id"].to_numpy(np.int64)[chosen]
-    date = pd.to_datetime(events["date"]).to_numpy()[chosen]
-    hours = pd.to_numeric(events["hours"], errors="coerce").to_numpy(float)[chosen]
+    dates = events["date"]
+    date = (dates if dates.dtype.kind == "M" else pd.to_datetime(dates)).to_numpy()[chosen]
+    hours = events["hours"]
+    hours = (hours.to_numpy(float) if hours.dtype.kind in "fiu"
+             else pd.to_numeric(hours, errors="coerce").to_numpy(float))[chosen]
     # An event without hours applies to every reading of its day ("at or before it").
     key = _order_key(date, hours, missing_hours=-1.0)
     order = np.lexsort((key, pump))  # stable: by pump, then key
     pump = pump[order]
     first_of_pump = np.searchsorted(pump, pump, side="left")
-    return pd.DataFrame({
-        "pump_id": pump,
-        "date": date[order],
-        "hours": hours[order],
-        "kind": pd.Series(events["kind"].to_numpy(object)[chosen][order], dtype=object),
-        "key": key[order],
-        "interval_no": np.arange(len(pump), dtype=np.int64) - first_of_pump + 1,
-    }, columns=[*cols, "key", "interval_no"])
+    return {"pump_id": pump, "date": date[order], "hours": hours[order], "kind": kinds[chosen][order],
+            "key": key[order], "interval_no": np.arange(len(pump), dtype=np.int64) - first_of_pump + 1}
 
 
-def _resets_before(resets: pd.DataFrame, pump_ids: np.ndarray, key: np.ndarray) -> np.ndarray:
+def _resets_before(resets: dict[str, np.ndarray], pump_ids: np.ndarray, key: np.ndarray) -> np.ndarray:
     """Per reading, how many of its pump's reset events come at or before it: its interval number (resets are
     numbered 1.. in key order). Exact comparisons of the ordering keys, one pass per reset of the busiest pump."""
-    reset_pump = resets["pump_id"].to_numpy(np.int64)  # sorted by pump, then key (reset_events)
-    reset_key = resets["key"].to_numpy(float)
+    reset_pump = resets["pump_id"]  # sorted by pump, then key (reset_events)
+    reset_key = resets["key"]
     first = np.searchsorted(reset_pump, pump_ids, side="left")
     last = np.searchsorted(reset_pump, pump_ids, side="right")
     count = np.zeros(len(pump_ids), dtype=np.int64)
@@ -109,27 +102,27 @@ def assign_intervals(readings: pd.DataFrame, events: pd.DataFrame | None) -> tup
 
     # Every pump interval: those with readings, those opened by a reset event, and, for a pump overhauled before
     # its first reading, the life from new to that overhaul (interval 0, on record too).
-    reset_pump = resets["pump_id"].to_numpy(np.int64)
-    reset_no = resets["interval_no"].to_numpy(np.int64)
+    reset_pump = resets["pump_id"]
+    reset_no = resets["interval_no"]
     from_new = reset_pump[reset_no == 1]
     pairs, codes = pair_codes(np.concatenate([reading_pump, reset_pump, from_new]),
                               np.concatenate([reading_no, reset_no, np.zeros(len(from_new), dtype=np.int64)]))
     n = len(pairs)
-    in_reading, in_reset = codes[:len(r)], codes[len(r):len(r) + len(resets)]
+    in_reading, in_reset = codes[:len(r)], codes[len(r):len(r) + len(reset_pump)]
 
     n_readings = np.bincount(in_reading, minlength=n).astype(np.int64)
     first_hours, last_hours = group_min(in_reading, hours, n), group_max(in_reading, hours, n)
     first_reading_at = group_time_max(in_reading, taken, n, smallest=True)
     last_reading_at = group_time_max(in_reading, taken, n)
 
-    event_date = resets["date"].to_numpy()
+    event_date = resets["date"]
     time_type = np.result_type(taken.dtype, event_date.dtype)
     start_at = np.full(n, np.datetime64("NaT"), dtype=time_type)
     start_at[in_reset] = event_date
     start_kind = np.full(n, np.nan, dtype=object)
-    start_kind[in_reset] = resets["kind"].to_numpy(object)
+    start_kind[in_reset] = resets["kind"]
     event_hours = np.full(n, np.nan)
-    event_hours[in_reset] = resets["hours"].to_numpy(float)
+    event_hours[in_reset] = resets["hours"]
 
     initial = pairs[:, 1] == 0
     unread = initial & (n_readings == 0)
@@ -165,7 +158,8 @@ def assign_intervals(readings: pd.DataFrame, events: pd.DataFrame | None) -> tup
         "age_hours": np.where(reading_no == 0, hours, interval_hours),
     }, index=r.index)
     # Framed once beside the readings: no copy of them, no insert per column.
-    return pd.concat([r.drop(columns=[c for c in placed if c in r]), placed], axis=1), intervals
+    again = [c for c in placed if c in r]
+    return pd.concat([r.drop(columns=again) if again else r, placed], axis=1), intervals
 
 
 def interval_lives(intervals: pd.DataFrame) -> pd.DataFrame:

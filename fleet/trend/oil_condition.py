@@ -63,25 +63,14 @@ def _code_text(c4, c6, c14, low) -> str | None:
         return "/".join("-" if not np.isfinite(c) else str(int(c)) for c in (c4, c6, c14))
 
 
-def latest_lab_results(samples: pd.DataFrame | None, now, settings: AnalysisSettings) -> pd.DataFrame:
-    """Per machine_id: the latest reported sample (code, low count, water) and whether a result is late."""
-    cols = [
-        "sample_sampled_at",
-        "sample_reported_at",
-        "c4",
-        "c6",
-        "c14",
-        "low_count",
-        "water_ppm",
-        "lab_late",
-        "lab_pending_since",
-    ]
-    if samples is None or len(samples) == 0:
-        return pd.DataFrame(columns=cols, index=pd.Index([], name="machine_id"))
+def latest_lab_results(samples: pd.DataFrame, now, settings: AnalysisSettings) -> tuple[np.ndarray, dict]:
+    """Per machine: the latest reported sample (sampled and reported times, code channels c4/c6/c14, low count,
+    water) and whether a result is late (lab_late, lab_pending_since); the machines (sorted) and each column as an
+    array in their order. ``samples`` not empty."""
     machines, machine = np.unique(samples["machine_id"].to_numpy(np.int64), return_inverse=True)
     n = len(machines)
-    sampled = pd.to_datetime(samples["sampled_at"]).to_numpy()
-    reported = pd.to_datetime(samples["reported_at"]).to_numpy()
+    sampled = _times(samples["sampled_at"])
+    reported = _times(samples["reported_at"])
     done = ~np.isnat(reported)
     # Each machine's latest reported sample: the last by (sampled, reported), ties kept in the samples' order.
     rows = np.flatnonzero(done)
@@ -92,34 +81,44 @@ def latest_lab_results(samples: pd.DataFrame | None, now, settings: AnalysisSett
     at = np.maximum(latest, 0)
 
     def pick(column: str) -> np.ndarray:
-        return np.where(has, pd.to_numeric(samples[column], errors="coerce").to_numpy(float)[at], np.nan)
+        return np.where(has, _floats(samples[column])[at], np.nan)
 
+    low = samples["low_count"]
+    low = low.to_numpy() if low.dtype == bool else low.astype("boolean").fillna(False).to_numpy(bool)
     pending = group_time_max(machine[~done], sampled[~done], n, smallest=True)
     late_after = np.datetime64(pd.Timestamp(now) - pd.Timedelta(days=settings.lab_late_days))
-    out = pd.DataFrame(
-        {
-            "sample_sampled_at": np.where(has, sampled[at], np.datetime64("NaT")).astype(sampled.dtype),
-            "sample_reported_at": np.where(has, reported[at], np.datetime64("NaT")).astype(reported.dtype),
-            "c4": pick("code_4"),
-            "c6": pick("code_6"),
-            "c14": pick("code_14"),
-            "low_count": has & samples["low_count"].astype("boolean").fillna(False).to_numpy(bool)[at],
-            "water_ppm": pick("water_ppm"),
-            "lab_late": ~np.isnat(pending) & (pending < late_after),
-            "lab_pending_since": pending,
-        },
-        index=pd.Index(machines, name="machine_id"),
-    )
-    return out[cols]
+    return machines, {
+        "sample_sampled_at": np.where(has, sampled[at], np.datetime64("NaT")).astype(sampled.dtype),
+        "sample_reported_at": np.where(has, reported[at], np.datetime64("NaT")).astype(reported.dtype),
+        "c4": pick("code_4"),
+        "c6": pick("code_6"),
+        "c14": pick("code_14"),
+        "low_count": has & low[at],
+        "water_ppm": pick("water_ppm"),
+        "lab_late": ~np.isnat(pending) & (pending < late_after),
+        "lab_pending_since": pending,
+    }
 
 
-def oil_temperatures(readings: pd.DataFrame, settings: AnalysisSettings) -> pd.DataFrame:
-    """Per pump_id: last oil temperature, typical (median over the recent window), oil data of the last reading.
+def _times(column: pd.Series) -> np.ndarray:
+    return (column if column.dtype.kind == "M" else pd.to_datetime(column)).to_numpy()
+
+
+def _floats(column: pd.Series) -> np.ndarray:
+    """A column as floats, as pd.to_numeric(errors="coerce") reads it (numbers already: no parse)."""
+    if column.dtype.kind in "fiu":
+        return column.to_numpy(dtype=float)
+    return pd.to_numeric(column, errors="coerce").to_numpy(float)
+
+
+def oil_temperatures(readings: pd.DataFrame, settings: AnalysisSettings) -> tuple[np.ndarray, dict]:
+    """Per pump_id: last oil temperature, typical (median over the recent window), oil data of the last reading;
+    the pumps (sorted) and each column as an array in their order.
 
     Plain arrays, sorted once by pump and time (a grouped frame costs more than the sums, for one pump as for many).
     """
     lo, hi = settings.temp_range_c
-    t = pd.to_numeric(readings["temp_c"], errors="coerce").to_numpy(dtype=float)
+    t = _floats(readings["temp_c"])
     keep = np.flatnonzero((t >= lo) & (t <= hi))
     pump, taken = readings["pump_id"].to_numpy()[keep], readings["taken_at"].to_numpy()[keep]
     order = keep[np.lexsort((taken, pump))]  # stable: by pump, then time
@@ -129,13 +128,25 @@ def oil_temperatures(readings: pd.DataFrame, settings: AnalysisSettings) -> pd.D
     window = pd.Timedelta(days=settings.typical_window_days).to_timedelta64()
     recent = taken >= (taken[last] - window)[group]
     temps = t[order]
-    index = pd.Index(pumps, name="pump_id")
-    return pd.DataFrame({
+    return pumps, {
         "oil_temp_c": temps[last],
         "oil_temp_typical_c": group_median(group[recent], temps[recent], len(pumps)),
         "nu40": readings["nu40"].to_numpy(dtype=float)[order][last],
         "nu100": readings["nu100"].to_numpy(dtype=float)[order][last],
-    }, index=index)
+    }
+
+
+def _taken(values: np.ndarray, at: np.ndarray, missing) -> np.ndarray:
+    """values at positions ``at`` (one per pump), ``missing`` where a position is -1 (as a reindex fills it)."""
+    if len(values) == 0:
+        return np.full(len(at), missing, dtype=values.dtype)
+    return np.where(at >= 0, values[np.maximum(at, 0)], missing).astype(values.dtype)
+
+
+@lru_cache(maxsize=1)
+def _no_time_dtype() -> np.dtype:
+    """The dtype pandas gives a column of missing times (what a pump without any lab result gets)."""
+    return pd.to_datetime(pd.Series([np.nan], dtype=object)).dtype
 
 
 def oil_condition(
@@ -145,46 +156,58 @@ def oil_condition(
 
     A lab result belongs to a reservoir (machine), so each pump takes its current machine's latest result.
     Water above the limit: common practice, no source (about 400-500 ppm for mineral oil).
-    """
-    p = pumps.set_index("pump_id")
-    lab = latest_lab_results(samples, now, settings)
-    lab_of_pump = lab.reindex(pd.to_numeric(p["machine_id"], errors="coerce").to_numpy())
-    lab_of_pump.index = p.index
-    temps = oil_temperatures(readings, settings).reindex(p.index)
 
-    codes = lab_of_pump[["c4", "c6", "c14"]].to_numpy(dtype=float)
-    targets = np.array([_target_channels(x) for x in p["cleanliness_target"]], dtype=float).reshape(-1, 3)
+    Plain arrays per pump (taken by position from the machines' and the readings' figures), framed once.
+    """
+    index = pd.Index(pumps["pump_id"].to_numpy(), name="pump_id")
+    n = len(index)
+    if samples is None or len(samples) == 0:
+        no_time = np.full(n, np.datetime64("NaT"), dtype=_no_time_dtype())
+        lab = {"sample_sampled_at": no_time, "sample_reported_at": no_time, "lab_pending_since": no_time,
+               "c4": np.full(n, np.nan), "c6": np.full(n, np.nan), "c14": np.full(n, np.nan),
+               "water_ppm": np.full(n, np.nan), "low_count": np.zeros(n, bool), "lab_late": np.zeros(n, bool)}
+    else:
+        machines, columns = latest_lab_results(samples, now, settings)
+        at = pd.Index(machines).get_indexer(_floats(pumps["machine_id"]))
+        lab = {name: _taken(values, at, False if values.dtype == bool else
+                            np.datetime64("NaT") if values.dtype.kind == "M" else np.nan)
+               for name, values in columns.items()}
+    with_temps, temps = oil_temperatures(readings, settings)
+    at = pd.Index(with_temps).get_indexer(index)
+    temps = {name: _taken(values, at, np.nan) for name, values in temps.items()}
+
+    codes = np.column_stack([lab["c4"], lab["c6"], lab["c14"]])
+    target = pumps["cleanliness_target"]
+    targets = np.array([_target_channels(x) for x in target], dtype=float).reshape(-1, 3)
     steps = np.asarray(steps_over_channels(codes, targets), dtype=float).reshape(-1)
     code_text = [
         _code_text(c4, c6, c14, low)
-        for c4, c6, c14, low in zip(codes[:, 0], codes[:, 1], codes[:, 2], lab_of_pump["low_count"], strict=True)
+        for c4, c6, c14, low in zip(codes[:, 0], codes[:, 1], codes[:, 2], lab["low_count"], strict=True)
     ]
-    typical = temps["oil_temp_typical_c"].to_numpy(dtype=float)
-    nu_typical = np.asarray(
-        kinematic_viscosity_cst(typical, temps["nu40"].to_numpy(float), temps["nu100"].to_numpy(float))
-    )
-    last_temp = temps["oil_temp_c"].to_numpy(dtype=float)
-    water = lab_of_pump["water_ppm"].to_numpy(dtype=float)
+    typical = temps["oil_temp_typical_c"]
+    nu_typical = np.asarray(kinematic_viscosity_cst(typical, temps["nu40"], temps["nu100"]))
+    last_temp = temps["oil_temp_c"]
+    water = lab["water_ppm"]
     out = pd.DataFrame(
         {
-            "sample_sampled_at": pd.to_datetime(lab_of_pump["sample_sampled_at"]),
-            "sample_reported_at": pd.to_datetime(lab_of_pump["sample_reported_at"]),
+            "sample_sampled_at": lab["sample_sampled_at"],
+            "sample_reported_at": lab["sample_reported_at"],
             "cleanliness_code": code_text,
-            "cleanliness_target": p["cleanliness_target"],
+            "cleanliness_target": target.set_axis(index),
             "cleanliness_steps_over": steps,
-            "low_count": lab_of_pump["low_count"].astype("boolean").fillna(False).astype(bool),
+            "low_count": lab["low_count"],
             "water_ppm": water,
             "water_high": water > settings.water_limit_ppm,
-            "lab_late": lab_of_pump["lab_late"].astype("boolean").fillna(False).astype(bool),
-            "lab_pending_since": pd.to_datetime(lab_of_pump["lab_pending_since"]),
+            "lab_late": lab["lab_late"],
+            "lab_pending_since": lab["lab_pending_since"],
             "oil_temp_c": last_temp,
             "oil_temp_typical_c": typical,
-            "oil_hot": last_temp > pd.to_numeric(p["oil_temp_max_c"], errors="coerce").to_numpy(dtype=float),
-            "oil_cold": last_temp < pd.to_numeric(p["oil_temp_min_c"], errors="coerce").to_numpy(dtype=float),
+            "oil_hot": last_temp > _floats(pumps["oil_temp_max_c"]),
+            "oil_cold": last_temp < _floats(pumps["oil_temp_min_c"]),
             "oil_life_factor": np.asarray(oil_life_factor(typical), dtype=float),
             "viscosity_typical_cst": nu_typical,
             "viscosity_window": np.where(np.isfinite(nu_typical), np.asarray(viscosity_window_flag(nu_typical)), None),
         },
-        index=p.index,
+        index=index,
     )
     return out[OIL_COLUMNS]

@@ -15,37 +15,47 @@ from fleet.trend.settings import AnalysisSettings
 
 DEFAULT_REFERENCE_TEMP_C = 50.0
 
-_PUMP_FIELDS = [
-    "pump_id",
-    "variable",
-    "displacement_cc",
-    "rated_speed_rpm",
-    "rated_pressure_bar",
-    "max_flow_lpm",
-    "case_drain",
-    "reference_temp_c",
-]
-
-
 # A routine reading (pressure, temperature, hours) without a flow or drain measurement: kept, not trended,
 # and no cause for concern on its own.
 NO_LEAKAGE_MEASURED = "no outlet flow or case drain measured"
+FLOW_TEST_COLUMNS = ["flow_test_points", "leak_lpm_per_bar", "leak_lpm_per_bar_ref"]  # flow_test_leakage's
+
 
 def _num(frame: pd.DataFrame, column: str) -> np.ndarray:
     if column not in frame:
         return np.full(len(frame), np.nan)
-    return pd.to_numeric(frame[column], errors="coerce").to_numpy(dtype=float)
+    values = frame[column]
+    if values.dtype.kind in "fiu":  # numbers already (the usual case): no parse, the values as floats
+        return values.to_numpy(dtype=float)
+    return pd.to_numeric(values, errors="coerce").to_numpy(dtype=float)
 
 
-def _pump_fields(pumps: pd.DataFrame) -> pd.DataFrame:
-    p = pumps.reindex(columns=_PUMP_FIELDS).copy()
-    p["variable"] = p["variable"].fillna(False).astype(bool)
-    p["case_drain"] = p["case_drain"].fillna(False).astype(bool)
-    rated_theoretical = np.asarray(theoretical_flow_lpm(_num(p, "displacement_cc"), _num(p, "rated_speed_rpm")))
-    p["max_flow_lpm"] = np.where(np.isfinite(_num(p, "max_flow_lpm")), _num(p, "max_flow_lpm"), rated_theoretical)
-    ref = _num(p, "reference_temp_c")
-    p["reference_temp_c"] = np.where(np.isfinite(ref), ref, DEFAULT_REFERENCE_TEMP_C)
-    return p
+def _flags(frame: pd.DataFrame, column: str) -> np.ndarray:
+    """A yes/no column as bools, a missing value as no (as fillna(False).astype(bool))."""
+    if column not in frame:
+        return np.zeros(len(frame), dtype=bool)
+    values = frame[column]
+    if values.dtype == bool:
+        return values.to_numpy()
+    return values.fillna(False).astype(bool).to_numpy()
+
+
+def _pump_fields(pumps: pd.DataFrame) -> dict[str, np.ndarray]:
+    """The pump fields the referral reads, as plain arrays (one per pump, in the pumps' order)."""
+    rated_theoretical = np.asarray(theoretical_flow_lpm(_num(pumps, "displacement_cc"),
+                                                        _num(pumps, "rated_speed_rpm")), dtype=float)
+    given = _num(pumps, "max_flow_lpm")
+    ref = _num(pumps, "reference_temp_c")
+    return {
+        "pump_id": pumps["pump_id"].to_numpy() if "pump_id" in pumps else np.full(len(pumps), np.nan),
+        "variable": _flags(pumps, "variable"),
+        "displacement_cc": _num(pumps, "displacement_cc"),
+        "rated_speed_rpm": _num(pumps, "rated_speed_rpm"),
+        "rated_pressure_bar": _num(pumps, "rated_pressure_bar"),
+        "max_flow_lpm": np.where(np.isfinite(given), given, rated_theoretical),
+        "case_drain": _flags(pumps, "case_drain"),
+        "reference_temp_c": np.where(np.isfinite(ref), ref, DEFAULT_REFERENCE_TEMP_C),
+    }
 
 
 def _add_flag(flag: np.ndarray, mask: np.ndarray, text: str) -> np.ndarray:
@@ -80,12 +90,13 @@ def refer_readings(
     r = readings.reset_index(drop=True)
     # Each reading's pump fields by position (a lookup, not a merge of the frames).
     fields = _pump_fields(pumps)
-    if not fields["pump_id"].is_unique:
+    pump_index = pd.Index(fields["pump_id"])
+    if not pump_index.is_unique:
         raise ValueError("pumps: more than one row for a pump_id")
-    at = pd.Index(fields["pump_id"]).get_indexer(r["pump_id"])
+    at = pump_index.get_indexer(r["pump_id"])
 
     def pump_value(column: str, missing=np.nan) -> np.ndarray:
-        values = _num(fields, column) if missing is np.nan else fields[column].to_numpy(bool)
+        values = fields[column]
         if len(values) == 0:
             return np.full(len(at), missing)
         return np.where(at >= 0, values[np.maximum(at, 0)], missing)
@@ -169,8 +180,10 @@ def refer_readings(
     }
     # The added columns framed once beside the readings (not inserted one by one, a copy each time).
     out = pd.concat([r, pd.DataFrame(added, index=r.index)], axis=1)
+    if flow_points is None or len(flow_points) == 0 or "reading_id" not in out:  # no flow tests: NaN columns
+        return out.assign(**dict.fromkeys(FLOW_TEST_COLUMNS, np.nan))
     tests = flow_test_leakage(out, flow_points)
-    return out.join(tests, on="reading_id") if "reading_id" in out else out.assign(**{c: np.nan for c in tests})
+    return out.join(tests, on="reading_id")
 
 
 def flow_test_leakage(referred: pd.DataFrame, flow_points: pd.DataFrame | None) -> pd.DataFrame:
@@ -181,9 +194,8 @@ def flow_test_leakage(referred: pd.DataFrame, flow_points: pd.DataFrame | None) 
     reference viscosity (pressure needs no referral: the slope is already per bar). Least squares slope
     from grouped sums; NaN with fewer than two distinct pressures.
     """
-    columns = ["flow_test_points", "leak_lpm_per_bar", "leak_lpm_per_bar_ref"]
     if flow_points is None or len(flow_points) == 0 or "reading_id" not in referred:
-        return pd.DataFrame(columns=columns, index=pd.Index([], name="reading_id"), dtype=float)
+        return pd.DataFrame(columns=FLOW_TEST_COLUMNS, index=pd.Index([], name="reading_id"), dtype=float)
     own = referred.loc[
         referred["reading_id"].isin(flow_points["reading_id"]), ["reading_id", "pressure_bar", "flow_lpm"]
     ]

@@ -136,8 +136,11 @@ def limit_dates(last_reading_at: pd.Series, remaining_hours, per_day) -> pd.Seri
     with np.errstate(invalid="ignore", divide="ignore"):
         days = np.where(ok, rem / np.where(ok, rate, 1.0), np.nan)
     days = np.minimum(days, 365.0 * 200)  # beyond any plan; keeps the timestamp in range
-    offset = pd.to_timedelta(days, unit="D")
-    return (pd.to_datetime(last_reading_at).reset_index(drop=True) + pd.Series(offset)).dt.normalize()
+    offset = pd.to_timedelta(days, unit="D").to_numpy()  # pandas' rounding of days to its time unit
+    last = np.asarray(pd.to_datetime(last_reading_at))
+    moved = last + offset  # plain arrays: numpy keeps the finer unit, as pandas' sum of the two does
+    day = moved.astype("datetime64[D]").astype(moved.dtype)  # midnight of that day (dt.normalize); NaT stays
+    return pd.Series(day)
 
 
 def trend_band(fit, hours_grid, qmax, confidence: float = 0.90, quantity: str = "slip") -> pd.DataFrame:

@@ -292,11 +292,9 @@ def assess_status(results: pd.DataFrame, now, settings: AnalysisSettings) -> pd.
     all_reasons = reasons_past + reasons_crossed + reasons_due + reasons_shape + reasons_watch + reasons_healthy
     reasons = [[s for s in row if s is not None] for row in zip(*all_reasons, strict=True)] if len(r) else []
 
-    rank = service_rank(
-        pd.DataFrame({"status": status}, index=r.index).join(
-            r[[c for c in ("past_margin", "limit_date_low", "hours_to_limit", "pump") if c in r]]
-        )
-    )
+    rank = service_rank(pd.DataFrame(
+        {"status": status, **{c: r[c] for c in ("past_margin", "limit_date_low", "hours_to_limit", "pump") if c in r}},
+        index=r.index))
     return pd.DataFrame({"status": status, "reasons": reasons, "rank": rank.to_numpy()}, index=r.index)
 
 

@@ -85,22 +85,23 @@ def effective_limits(pumps: pd.DataFrame, defaults: pd.DataFrame) -> pd.DataFram
     columns = list(defaults.columns)  # rows as plain dicts, without to_dict's per-cell boxing
     stored = {row["kind"]: row for row in (dict(zip(columns, values, strict=True))
                                            for values in zip(*(defaults[c].tolist() for c in columns), strict=True))}
-    out = pumps.copy()
-    kinds = out["kind"].tolist()
+    kinds = pumps["kind"].tolist()
+    filled = {}  # the limit columns, set in one step (each set alone copies the frame's block again)
     for name in LIMIT_FIELDS:
         # Per kind: the stored default where set, else the built-in one (plain dicts: this runs per page load).
         by_kind = {kind: (stored[kind][name] if kind in stored and pd.notna(stored[kind][name])
                           else getattr(limits, name)) for kind, limits in DEFAULT_LIMITS.items()}
-        override = out[name] if name in out else pd.Series(np.nan, index=out.index)
+        override = pumps[name] if name in pumps else pd.Series(np.nan, index=pumps.index)
         given = override.notna().to_numpy()
         if given.all():  # every pump sets its own: nothing to fill (a Series.where costs as much as the rest)
             continue
         # A list lookup per pump: Series.map would build a Series of the dict first, on every call.
-        of_kind = pd.Series([by_kind.get(kind, np.nan) for kind in kinds], index=out.index)
+        of_kind = pd.Series([by_kind.get(kind, np.nan) for kind in kinds], index=pumps.index)
         if not given.any() and override.dtype == object:  # none set (one pump's row): the kind's, as where gives
-            out[name] = of_kind.astype(object)
+            filled[name] = of_kind.astype(object)
         else:
-            out[name] = override.where(given, of_kind)
+            filled[name] = override.where(given, of_kind)
+    out = pumps.assign(**filled)
     # A variable piston pump without its own target, under a kind default that was never edited, wants the
     # cleaner code (common practice, no source).
     # (Plain lists: a handful of pandas steps here cost more than the rest for the one pump of a write.)
@@ -253,9 +254,15 @@ def known_by(frames: FleetFrames, moment: pd.Timestamp) -> FleetFrames:
 
 def samples_known_by(samples: pd.DataFrame, moment: pd.Timestamp) -> pd.DataFrame:
     """The lab samples taken by ``moment``, with the results not reported by then blanked."""
-    samples = samples[samples["sampled_at"] <= moment]
+    sampled = samples["sampled_at"].to_numpy()
+    reported = samples["reported_at"].to_numpy()
+    moment64 = np.datetime64(pd.Timestamp(moment).to_datetime64())
+    taken = sampled <= moment64
+    if taken.all() and not (np.isnat(reported) | (reported > moment64)).any():
+        return samples  # every sample taken and reported by then (the usual case for one machine's few samples)
+    samples = samples[taken]
     pending = samples["reported_at"].isna() | (samples["reported_at"] > moment)
-    if not pending.any():  # every result in: nothing to blank (the usual case for one machine's few samples)
+    if not pending.any():  # every result in: nothing to blank
         return samples
     samples = samples.copy()
     samples.loc[pending, ["reported_at", "code_4", "code_6", "code_14", "water_ppm", "viscosity_40"]] = np.nan

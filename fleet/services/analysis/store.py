@@ -314,13 +314,17 @@ def refit_kinds(session: Session, kinds, now: datetime, settings: AnalysisSettin
         return
     kind_of = pd.Series(dict(_plain_rows(session, select(Pump.id, Pump.kind).where(Pump.kind.in_(kinds)))),
                         dtype=object)
-    # Sorted here, by pump and interval, rather than by the query (which would scan the tables in that order):
-    # a fixed order gives the same sums, so the same fit, however the rows lie on disk.
-    lives = pd.DataFrame([row[:1] + row[2:] for row in sorted(_plain_rows(session, select(
+    # Sorted here, by pump and interval (a pump's intervals are unique), rather than by the query (which would scan
+    # the tables in that order): a fixed order gives the same sums, so the same fit, however the rows lie on disk.
+    rows = _plain_rows(session, select(
         ServiceLife.pump_id, ServiceLife.interval_no, ServiceLife.entry_hours, ServiceLife.life_hours,
-        ServiceLife.failed).join(Pump, Pump.id == ServiceLife.pump_id).where(Pump.kind.in_(kinds))))],
-        columns=["pump_id", "entry_hours", "life_hours", "failed"]).astype(
-        {"entry_hours": float, "life_hours": float, "failed": bool})
+        ServiceLife.failed).join(Pump, Pump.id == ServiceLife.pump_id).where(Pump.kind.in_(kinds)))
+    pump_id, interval_no, entry, life, failed = (list(c) for c in zip(*rows, strict=True)) if rows else ([],) * 5
+    order = np.lexsort((np.array(interval_no, dtype=np.int64), np.array(pump_id, dtype=np.int64)))
+    lives = pd.DataFrame({"pump_id": np.array(pump_id, dtype=np.int64)[order],
+                          "entry_hours": np.array(entry, dtype=float)[order],
+                          "life_hours": np.array(life, dtype=float)[order],
+                          "failed": np.array(failed, dtype=bool)[order]})
     priors = fit_fleet_priors(lives, kind_of, settings.min_weibull_failures)
     result = AnalysisResult.__table__
     stored = sorted(_plain_rows(session, select(result.c.pump_id, Pump.kind, result.c.age_hours,

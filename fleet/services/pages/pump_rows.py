@@ -29,7 +29,7 @@ from fleet.db.models import (
 )
 from fleet.frames import EVENT_COLUMNS, FLOW_POINT_COLUMNS, PUMP_COLUMNS, READING_COLUMNS
 from fleet.physics.pump import theoretical_flow_lpm
-from fleet.services.analysis.frames import attach_oil, effective_limits, plain_query
+from fleet.services.analysis.frames import attach_oil, effective_limits
 
 # The columns of the readings the page shows besides the core's.
 READING_EXTRAS = ("source", "taken_by")
@@ -127,20 +127,56 @@ def _pump_frame(session: Session, pump: Pump, here: Stay | None) -> pd.DataFrame
     return frame
 
 
+def _driver_columns(session: Session, statement) -> dict[str, tuple]:
+    """The driver's rows of ``statement`` as columns (name -> values), without SQLAlchemy's per-row Row and type
+    processing or a frame built row by row: for one pump's few hundred rows the frame's own machinery costs more
+    than the query."""
+    result = session.connection().execute(statement)
+    try:
+        keys = list(result.keys())
+        rows = result.cursor.fetchall() if result.cursor is not None else []
+    finally:
+        result.close()
+    return dict(zip(keys, zip(*rows, strict=True) if rows else [()] * len(keys), strict=True))
+
+
+_STORED_TIME = len("2021-01-04 08:00:00.000000")  # how SQLAlchemy writes a DateTime into SQLite's text
+
+
+def _times(values: tuple) -> np.ndarray:
+    """Times from the driver as pd.to_datetime(format="ISO8601") reads them. SQLite gives SQLAlchemy's text, all
+    of one fixed form, which numpy parses exactly and many times faster; anything else goes to pandas."""
+    if values and all(isinstance(v, str) and len(v) == _STORED_TIME for v in values):
+        # In the unit pandas gives such text (asked of the first value: it has changed between versions).
+        unit = pd.to_datetime(pd.Series(values[:1], dtype=object), format="ISO8601").dtype
+        return np.array(values, dtype="datetime64[us]").astype(unit)
+    return pd.to_datetime(pd.Series(values, dtype=object), format="ISO8601").to_numpy()
+
+
+def _numbers(values: tuple) -> np.ndarray:
+    """A column of numbers (None -> NaN) as floats, as a frame's astype(float) gives them."""
+    return np.array(values, dtype=float)
+
+
 def pump_rows(session: Session, pump: Pump, as_of: datetime) -> PumpRows:
     """Everything about ``pump`` the page draws, with the core's frames as known at ``as_of``."""
     stays = _stays(session, pump.id)
-    rows = plain_query(session, select(
+    got = _driver_columns(session, select(
         Reading.id.label("reading_id"), Reading.pump_id, Reading.taken_at, Reading.hours, Reading.pressure_bar,
         Reading.speed_rpm, Reading.flow_lpm, Reading.drain_lpm, Reading.temp_c, Reading.stroke, Reading.source,
         Reading.taken_by).where(Reading.pump_id == pump.id))
-    rows["taken_at"] = pd.to_datetime(rows["taken_at"], format="ISO8601")
-    rows = rows.astype({c: float for c in _NUMBERS if rows[c].dtype != float})  # mostly floats already
-    all_readings = attach_oil(rows[[c for c in READING_COLUMNS if c in rows]], _history(pump.id, stays))
-    all_readings = all_readings[list(READING_COLUMNS)].sort_values("taken_at", kind="stable").reset_index(drop=True)
-    points = plain_query(session, select(FlowTestPoint.reading_id, FlowTestPoint.pressure_bar, FlowTestPoint.flow_lpm)
-                    .join(Reading, Reading.id == FlowTestPoint.reading_id).where(Reading.pump_id == pump.id))
-    points = points.astype({"reading_id": np.int64, "pressure_bar": float, "flow_lpm": float})
+    taken = _times(got["taken_at"])
+    order = np.argsort(taken, kind="stable")  # the readings in time order, as the loader sorts them
+    columns = {"reading_id": np.array(got["reading_id"], dtype=np.int64),
+               "pump_id": np.array(got["pump_id"], dtype=np.int64), "taken_at": taken,
+               **{c: _numbers(got[c]) for c in _NUMBERS}}
+    all_readings = attach_oil(pd.DataFrame({c: v[order] for c, v in columns.items()}), _history(pump.id, stays))
+    all_readings = all_readings[list(READING_COLUMNS)]
+    points = _driver_columns(session, select(FlowTestPoint.reading_id, FlowTestPoint.pressure_bar,
+                                             FlowTestPoint.flow_lpm)
+                             .join(Reading, Reading.id == FlowTestPoint.reading_id).where(Reading.pump_id == pump.id))
+    points = pd.DataFrame({"reading_id": np.array(points["reading_id"], dtype=np.int64),
+                           "pressure_bar": _numbers(points["pressure_bar"]), "flow_lpm": _numbers(points["flow_lpm"])})
     events = pd.DataFrame(session.execute(
         select(MaintenanceEvent.pump_id, MaintenanceEvent.date, MaintenanceEvent.hours, MaintenanceEvent.kind,
                MaintenanceEvent.cost, MaintenanceEvent.id.label("event_id"), MaintenanceEvent.downtime_h,
@@ -149,14 +185,17 @@ def pump_rows(session: Session, pump: Pump, as_of: datetime) -> PumpRows:
     events["date"] = pd.to_datetime(events["date"])
     events = events.astype({"hours": float, "cost": float})
 
-    moment = pd.Timestamp(as_of)  # what was known by then, as fleet.services.analysis.frames.known_by keeps
-    readings = all_readings[all_readings["taken_at"] <= moment]
+    moment = np.datetime64(pd.Timestamp(as_of).to_datetime64())  # what was known by then, as frames.known_by keeps
+    known = all_readings["taken_at"].to_numpy() <= moment
+    readings = all_readings if known.all() else all_readings[known]
+    extras = pd.DataFrame({c: pd.Series(list(got[c])) for c in READING_EXTRAS})  # types as a frame infers them
+    extras.index = pd.Index(columns["reading_id"], name="reading_id")
     return PumpRows(
         pumps=_pump_frame(session, pump, _here(stays)),
         readings=readings,
         events=events.loc[events["date"] <= moment, list(EVENT_COLUMNS)],
         flow_points=points.loc[points["reading_id"].isin(readings["reading_id"]), list(FLOW_POINT_COLUMNS)],
-        reading_extras=rows.set_index("reading_id")[list(READING_EXTRAS)],
+        reading_extras=extras,
         all_readings=all_readings,
         all_events=events.sort_values("date", kind="stable").reset_index(drop=True),
         all_flow_points=points,
