@@ -145,6 +145,40 @@ def test_plain_times_parse_alike_from_arrow_text_and_python_text(rows):
             assert value.to_pydatetime() == wall.astimezone(ZoneInfo("UTC")).replace(tzinfo=None)
 
 
+odd_times = st.one_of(
+    st.tuples(st.integers(1, 9999), st.integers(0, 19), st.integers(0, 39), st.integers(0, 29), st.integers(0, 69))
+    .map(lambda t: "{:04d}-{:02d}-{:02d} {:02d}:{:02d}".format(*t)),
+    st.sampled_from(["2024-02-29 10:00", "2023-02-29 10:00", "2100-02-29 00:00", "2000-02-29 23:59",
+                     "2024-1-01 10:00", "2024-01-01T10:00", "2024-01-01 10:00 ", "2024/01/01 10:00",
+                     "2024-01-01 1a:00", "2024-01-01 10:0\u0660", "2024-01-01", ""]))
+
+
+@settings(max_examples=400, deadline=None)
+@given(st.lists(odd_times, min_size=1, max_size=6))
+def test_plain_minutes_read_from_bytes_are_what_strptime_reads(cells):
+    # Reference: Python's datetime.strptime with PLAIN_TIME_FORMAT on cells matching PLAIN_TIME (the pattern and
+    # format the byte reader stands for): every cell such a time gives the same minute, or the column is refused.
+    import re
+
+    from fleet.io.parse import PLAIN_TIME, PLAIN_TIME_FORMAT, plain_minutes
+
+    expected = []
+    for cell in cells:
+        try:
+            expected.append(datetime.strptime(cell, PLAIN_TIME_FORMAT) if re.search(PLAIN_TIME, cell, re.ASCII)
+                            else None)
+        except ValueError:
+            expected.append(None)
+    text = pa.array(cells, type=pa.string())
+    for column in (text, text.slice(1), pa.chunked_array([text[:1], text[1:]])):  # offsets of a slice or chunks
+        wanted = expected[1:] if len(column) < len(cells) else expected
+        got = plain_minutes(column)
+        if not wanted or any(value is None for value in wanted):
+            assert got is None
+        else:
+            assert got is not None and got.tolist() == wanted
+
+
 @settings(max_examples=100, deadline=None)
 @given(st.lists(st.datetimes(min_value=datetime(1970, 1, 1), max_value=datetime(2100, 12, 31, 23, 59, 59)),
                 min_size=1, max_size=50))
