@@ -233,6 +233,43 @@ def test_bulk_insert_stores_what_the_orm_reads_back(db):
     assert rows[1][1] is None and rows[1][2] is None and not math.isnan(rows[0][1])
 
 
+@settings(max_examples=60, deadline=None)
+@given(st.lists(st.tuples(st.floats(allow_infinity=False) | st.just(math.nan), st.integers(1, 2**40),
+                          st.datetimes(min_value=datetime(1970, 1, 1), max_value=datetime(2100, 12, 31)) | st.none(),
+                          st.text(max_size=5) | st.none()), max_size=130),
+       st.integers(1, 7))
+def test_sqlite_statement_parameters_are_each_cell_as_python_gives_it(rows, per):
+    # Reference: each cell made by hand with Python's own types (float, int, strftime's time text, str or None),
+    # row after row, then cut into groups of `per` rows: the parameters sqlite3 binds must be those, value and type.
+    from sqlalchemy import create_engine
+    from sqlalchemy.orm import Session
+
+    from fleet.services.transfer import bulk
+
+    frame = pd.DataFrame({"pump_id": pd.Series([r[1] for r in rows], dtype=np.int64),
+                          "hours": pd.Series([r[0] for r in rows], dtype=float),
+                          "taken_at": pd.Series([r[2] for r in rows], dtype="datetime64[ns]"),
+                          "note": pd.Series([r[3] for r in rows], dtype=object)})
+    made = datetime(2026, 1, 2, 3, 4, 5, 6)
+    with Session(create_engine("sqlite://")) as session:
+        writer = bulk.BulkInsert(session, Reading, ["pump_id", "hours", "taken_at", "note", "source", "created_at"])
+        writer.per = per
+        grouped, rest = writer.prepare(frame, {"source": "import", "created_at": pd.Timestamp(made)}).rows
+    expected = [[pump, float(hours), None if moment is None else moment.strftime("%Y-%m-%d %H:%M:%S.%f"), note,
+                 "import", "2026-01-02 03:04:05.000006"] for hours, pump, moment, note in rows]
+    whole = len(rows) // per * per
+    flat = [value for group in grouped for value in group]
+    assert [len(group) for group in grouped] == [6 * per] * (whole // per) and rest == [r for r in rest if len(r) == 6]
+    made_rows = [flat[i:i + 6] for i in range(0, len(flat), 6)] + rest
+
+    def same(a, b):
+        return type(a) is type(b) and (a == b or (isinstance(a, float) and math.isnan(a) and math.isnan(b)))
+
+    assert len(made_rows) == len(expected)
+    assert all(same(a, b) for got, want in zip(made_rows, expected, strict=True)
+               for a, b in zip(got, want, strict=True))
+
+
 def test_a_key_stored_twice_by_the_bulk_insert_is_the_error_the_write_unit_retries(db):
     # The bulk insert talks to the driver (sqlite3 executemany, psycopg COPY) below SQLAlchemy; its errors must still
     # be SQLAlchemy's, or the write unit cannot tell two devices saving the same reading at once from a crash.
