@@ -48,6 +48,7 @@ class BulkInsert:
         self.session, self.model, self.columns = session, model, list(columns)
         dialect = session.connection().dialect
         self.mode = dialect.name if _DRIVERS.get(dialect.name) == dialect.driver else "core"
+        self._same: dict[str, tuple] = {}  # column -> (a value every row holds, sqlite3's value for it)
         names = ", ".join(self.columns)
         table = model.__tablename__
         if self.mode == "sqlite":
@@ -109,11 +110,18 @@ class BulkInsert:
         cells = np.empty((count, width), dtype=object)
         for position, name in enumerate(self.columns):
             if name in same:
-                cells[:, position] = python_values(pd.Series([same[name]]))[0]
+                cells[:, position] = self._same_value(name, same[name])
             else:
                 cells[:, position] = _column_values(frame[name])
         whole = count // per * per
         return cells[:whole].reshape(-1, width * per).tolist(), cells[whole:].tolist()
+
+    def _same_value(self, name: str, value) -> object:
+        """sqlite3's value for a column holding ``value`` in every row, made once for all of a writer's blocks."""
+        made = self._same.get(name)
+        if made is None or made[0] is not value:
+            made = self._same[name] = (value, python_values(pd.Series([value]))[0])
+        return made[1]
 
     def _sqlite_rows(self, cursor, prepared: Prepared) -> None:
         """The rows by ``self.per`` (SQLITE_ROWS_PER_STATEMENT) to a statement, in their order (so their ids are as
