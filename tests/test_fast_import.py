@@ -145,6 +145,40 @@ def test_plain_times_parse_alike_from_arrow_text_and_python_text(rows):
             assert value.to_pydatetime() == wall.astimezone(ZoneInfo("UTC")).replace(tzinfo=None)
 
 
+odd_times = st.one_of(
+    st.tuples(st.integers(1, 9999), st.integers(0, 19), st.integers(0, 39), st.integers(0, 29), st.integers(0, 69))
+    .map(lambda t: "{:04d}-{:02d}-{:02d} {:02d}:{:02d}".format(*t)),
+    st.sampled_from(["2024-02-29 10:00", "2023-02-29 10:00", "2100-02-29 00:00", "2000-02-29 23:59",
+                     "2024-1-01 10:00", "2024-01-01T10:00", "2024-01-01 10:00 ", "2024/01/01 10:00",
+                     "2024-01-01 1a:00", "2024-01-01 10:0\u0660", "2024-01-01", ""]))
+
+
+@settings(max_examples=400, deadline=None)
+@given(st.lists(odd_times, min_size=1, max_size=6))
+def test_plain_minutes_read_from_bytes_are_what_strptime_reads(cells):
+    # Reference: Python's datetime.strptime with PLAIN_TIME_FORMAT on cells matching PLAIN_TIME (the pattern and
+    # format the byte reader stands for): every cell such a time gives the same minute, or the column is refused.
+    import re
+
+    from fleet.io.parse import PLAIN_TIME, PLAIN_TIME_FORMAT, plain_minutes
+
+    expected = []
+    for cell in cells:
+        try:
+            expected.append(datetime.strptime(cell, PLAIN_TIME_FORMAT) if re.search(PLAIN_TIME, cell, re.ASCII)
+                            else None)
+        except ValueError:
+            expected.append(None)
+    text = pa.array(cells, type=pa.string())
+    for column in (text, text.slice(1), pa.chunked_array([text[:1], text[1:]])):  # offsets of a slice or chunks
+        wanted = expected[1:] if len(column) < len(cells) else expected
+        got = plain_minutes(column)
+        if not wanted or any(value is None for value in wanted):
+            assert got is None
+        else:
+            assert got is not None and got.tolist() == wanted
+
+
 @settings(max_examples=100, deadline=None)
 @given(st.lists(st.datetimes(min_value=datetime(1970, 1, 1), max_value=datetime(2100, 12, 31, 23, 59, 59)),
                 min_size=1, max_size=50))
@@ -197,6 +231,43 @@ def test_bulk_insert_stores_what_the_orm_reads_back(db):
                                       Reading.source).order_by(Reading.taken_at)).all()
     assert rows[0] == (datetime(2024, 3, 1, 8, 0, 0, 123456), 63.1, "tab\there", "back\\slash", "import")
     assert rows[1][1] is None and rows[1][2] is None and not math.isnan(rows[0][1])
+
+
+@settings(max_examples=60, deadline=None)
+@given(st.lists(st.tuples(st.floats(allow_infinity=False) | st.just(math.nan), st.integers(1, 2**40),
+                          st.datetimes(min_value=datetime(1970, 1, 1), max_value=datetime(2100, 12, 31)) | st.none(),
+                          st.text(max_size=5) | st.none()), max_size=130),
+       st.integers(1, 7))
+def test_sqlite_statement_parameters_are_each_cell_as_python_gives_it(rows, per):
+    # Reference: each cell made by hand with Python's own types (float, int, strftime's time text, str or None),
+    # row after row, then cut into groups of `per` rows: the parameters sqlite3 binds must be those, value and type.
+    from sqlalchemy import create_engine
+    from sqlalchemy.orm import Session
+
+    from fleet.services.transfer import bulk
+
+    frame = pd.DataFrame({"pump_id": pd.Series([r[1] for r in rows], dtype=np.int64),
+                          "hours": pd.Series([r[0] for r in rows], dtype=float),
+                          "taken_at": pd.Series([r[2] for r in rows], dtype="datetime64[ns]"),
+                          "note": pd.Series([r[3] for r in rows], dtype=object)})
+    made = datetime(2026, 1, 2, 3, 4, 5, 6)
+    with Session(create_engine("sqlite://")) as session:
+        writer = bulk.BulkInsert(session, Reading, ["pump_id", "hours", "taken_at", "note", "source", "created_at"])
+        writer.per = per
+        grouped, rest = writer.prepare(frame, {"source": "import", "created_at": pd.Timestamp(made)}).rows
+    expected = [[pump, float(hours), None if moment is None else moment.strftime("%Y-%m-%d %H:%M:%S.%f"), note,
+                 "import", "2026-01-02 03:04:05.000006"] for hours, pump, moment, note in rows]
+    whole = len(rows) // per * per
+    flat = [value for group in grouped for value in group]
+    assert [len(group) for group in grouped] == [6 * per] * (whole // per) and rest == [r for r in rest if len(r) == 6]
+    made_rows = [flat[i:i + 6] for i in range(0, len(flat), 6)] + rest
+
+    def same(a, b):
+        return type(a) is type(b) and (a == b or (isinstance(a, float) and math.isnan(a) and math.isnan(b)))
+
+    assert len(made_rows) == len(expected)
+    assert all(same(a, b) for got, want in zip(made_rows, expected, strict=True)
+               for a, b in zip(got, want, strict=True))
 
 
 def test_a_key_stored_twice_by_the_bulk_insert_is_the_error_the_write_unit_retries(db):

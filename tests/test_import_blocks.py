@@ -74,6 +74,9 @@ CASES = {
     "already stored, in a late block": [_row("T-101", d, 10 * d) for d in range(1, 6)] + [_row("T-102", 1, 901)],
     "an unknown pump and a repeat": [_row("T-101", d, 10 * d) for d in range(1, 5)] + [_row("X-9", 3, 1)]
     + [_row("T-101", 4, 1)],
+    "clean, notes with the export's formula guard in a later block only": [_row("T-101", d, 10 * d)
+                                                                             for d in range(1, 6)]
+    + [_row("T-101", 6, 60, note="'=1+1"), _row("T-101", 7, 70, note="''=x"), _row("T-101", 8, 80, note="'plain")],
     "an unknown pump and a bad cell": [_row("X-9", 3, 1), _row("T-101", 3, 1)] + [_row("T-101", 4, 10)] * 3
     + [_row("T-101", 20, float("nan"))],
 }

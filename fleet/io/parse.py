@@ -410,21 +410,53 @@ def _plain_arrow_column(spec: Column, raw: pd.Series, unit: str | None,
     return None if stamps is None else (stamps, [])
 
 
+# Byte positions of a plain time's digits and separators ('YYYY-MM-DD HH:MM', 16 ASCII bytes).
+_TIME_DIGITS = np.array([0, 1, 2, 3, 5, 6, 8, 9, 11, 12, 14, 15])
+_TIME_MARKS = {4: ord("-"), 7: ord("-"), 10: ord(" "), 13: ord(":")}
+
+
+def plain_minutes(text) -> np.ndarray | None:
+    """Arrow text whose every cell is 'YYYY-MM-DD HH:MM' naming a real minute, as datetime64[us] read from the
+    cells' bytes (16 to a cell, so the column is a table of bytes); None when any cell is missing, written
+    otherwise, or names no real minute (a 13th month, 30 February, 24:00). What matching PLAIN_TIME and reading
+    PLAIN_TIME_FORMAT with strptime accepts and gives (tests/test_fast_import.py checks it against Python's
+    ``datetime.strptime``); about a tenth of the time of Arrow's pattern, strptime and write-back."""
+    if isinstance(text, pa.ChunkedArray):
+        text = text.combine_chunks()
+    count = len(text)
+    if count == 0 or text.null_count or not pa.types.is_string(text.type):
+        return None
+    _validity, offsets, data = text.buffers()
+    ends = np.frombuffer(offsets, dtype=np.int32, count=count + 1, offset=4 * text.offset)
+    if ends[-1] - ends[0] != 16 * count or (np.diff(ends) != 16).any():
+        return None
+    cells = np.frombuffer(data, dtype=np.uint8, count=16 * count, offset=int(ends[0])).reshape(count, 16)
+    for position, mark in _TIME_MARKS.items():
+        if (cells[:, position] != mark).any():
+            return None
+    digits = cells[:, _TIME_DIGITS].astype(np.int64) - ord("0")
+    if ((digits < 0) | (digits > 9)).any():
+        return None
+    year = digits[:, 0] * 1000 + digits[:, 1] * 100 + digits[:, 2] * 10 + digits[:, 3]
+    month, day = digits[:, 4] * 10 + digits[:, 5], digits[:, 6] * 10 + digits[:, 7]
+    hour, minute = digits[:, 8] * 10 + digits[:, 9], digits[:, 10] * 10 + digits[:, 11]
+    if ((month < 1) | (month > 12) | (day < 1) | (hour > 23) | (minute > 59)).any():
+        return None
+    months = ((year - 1970) * 12 + month - 1).astype("datetime64[M]")
+    first_day = months.astype("datetime64[D]")
+    if (day > ((months + 1).astype("datetime64[D]") - first_day).astype(np.int64)).any():
+        return None
+    return (first_day.astype("datetime64[m]") + ((day - 1) * 1440 + hour * 60 + minute)).astype("datetime64[us]")
+
+
 def _plain_arrow_times(text, index: pd.Index, zones: pd.Series | None) -> pd.Series | None:
     """Times written 'YYYY-MM-DD HH:MM' as naive UTC, or None when any cell is written otherwise, names no real
     minute (Arrow's strptime reads 30 February as 2 March, so each time must write back as its cell), falls outside
     EARLIEST..LATEST or in a gap or fold of its zone."""
-    if not pc.all(pc.match_substring_regex(text, PLAIN_TIME)).as_py():
+    wall = plain_minutes(text)
+    if wall is None:
         return None
-    try:
-        wall = pc.strptime(text, format=PLAIN_TIME_FORMAT, unit="us")
-    except (pa.ArrowInvalid, pa.ArrowNotImplementedError):
-        return None
-    # Arrow's cast writes 'YYYY-MM-DD HH:MM:SS.ffffff' (ten times quicker than its strftime): the first 16 are ours.
-    written = pc.utf8_slice_codeunits(pc.cast(wall, pa.string()), 0, len("YYYY-MM-DD HH:MM"))
-    if not pc.all(pc.equal(written, text)).as_py():
-        return None
-    naive = pd.Series(wall.to_numpy(zero_copy_only=False).astype("datetime64[ns]"), index=index)
+    naive = pd.Series(wall.astype("datetime64[ns]"), index=index)
     local, reasons = localize(naive, pd.Series("UTC", index=index) if zones is None else zones)
     if reasons:
         return None

@@ -48,12 +48,14 @@ class BulkInsert:
         self.session, self.model, self.columns = session, model, list(columns)
         dialect = session.connection().dialect
         self.mode = dialect.name if _DRIVERS.get(dialect.name) == dialect.driver else "core"
+        self._same: dict[str, tuple] = {}  # column -> (a value every row holds, sqlite3's value for it)
         names = ", ".join(self.columns)
         table = model.__tablename__
         if self.mode == "sqlite":
             row = f"({', '.join('?' * len(self.columns))})"
             self.statement = f"INSERT INTO {table} ({names}) VALUES {row}"
-            self.many_statement = f"INSERT INTO {table} ({names}) VALUES {', '.join([row] * SQLITE_ROWS_PER_STATEMENT)}"
+            self.per = SQLITE_ROWS_PER_STATEMENT
+            self.many_statement = f"INSERT INTO {table} ({names}) VALUES {', '.join([row] * self.per)}"
         else:
             self.statement = f"COPY {table} ({names}) FROM STDIN (FORMAT csv)"
 
@@ -63,10 +65,7 @@ class BulkInsert:
         same = same or {}
         pump_ids = {int(p) for p in pd.unique(frame["pump_id"])}
         if self.mode == "sqlite":
-            count = len(frame)
-            rows = [[_python_values(pd.Series([same[name]]))[0]] * count if name in same
-                    else _python_values(frame[name]) for name in self.columns]
-            return Prepared(rows, count, pump_ids)
+            return Prepared(self._sqlite_groups(frame, same), len(frame), pump_ids)
         frame = frame.assign(**{name: [value] * len(frame) for name, value in same.items()})[self.columns]
         if self.mode == "postgresql":
             rows = csv_bytes(frame)
@@ -101,19 +100,37 @@ class BulkInsert:
             cursor.close()
 
 
+    def _sqlite_groups(self, frame: pd.DataFrame, same: dict) -> tuple[list[list], list[list]]:
+        """The rows as sqlite3 binds them, in their order: the parameters of each INSERT of ``self.per`` rows, and
+        the last few rows one to a statement. The values are made once, column by column, straight into a table
+        of Python objects (numpy makes a float64 column's Python floats and an int64 column's ints in C, as
+        ``tolist`` does), which is then cut into the statements' parameter lists; the same values as
+        ``python_values`` gives each column (tests/test_fast_import.py)."""
+        count, width, per = len(frame), len(self.columns), self.per
+        cells = np.empty((count, width), dtype=object)
+        for position, name in enumerate(self.columns):
+            if name in same:
+                cells[:, position] = self._same_value(name, same[name])
+            else:
+                cells[:, position] = _column_values(frame[name])
+        whole = count // per * per
+        return cells[:whole].reshape(-1, width * per).tolist(), cells[whole:].tolist()
+
+    def _same_value(self, name: str, value) -> object:
+        """sqlite3's value for a column holding ``value`` in every row, made once for all of a writer's blocks."""
+        made = self._same.get(name)
+        if made is None or made[0] is not value:
+            made = self._same[name] = (value, python_values(pd.Series([value]))[0])
+        return made[1]
+
     def _sqlite_rows(self, cursor, prepared: Prepared) -> None:
-        """The rows by SQLITE_ROWS_PER_STATEMENT to a statement, in their order (so their ids are as one row to a
-        statement gives them), the last few one to a statement."""
-        width, per = len(self.columns), SQLITE_ROWS_PER_STATEMENT
-        whole = prepared.count // per * per
-        if whole:
-            cells = np.empty((whole, width), dtype=object)  # row by row, the columns' values as they are
-            for position, values in enumerate(prepared.rows):
-                cells[:, position] = values[:whole]
-            cursor.executemany(self.many_statement, cells.reshape(-1, width * per).tolist())
-        if whole < prepared.count:
-            # zip reuses its tuple once the driver let go of it (no allocation and garbage collection per row).
-            cursor.executemany(self.statement, zip(*(values[whole:] for values in prepared.rows), strict=True))
+        """The rows by ``self.per`` (SQLITE_ROWS_PER_STATEMENT) to a statement, in their order (so their ids are as
+        one row to a statement gives them), the last few one to a statement."""
+        grouped, rest = prepared.rows
+        if grouped:
+            cursor.executemany(self.many_statement, grouped)
+        if rest:
+            cursor.executemany(self.statement, rest)
 
 
 def insert_frame(session: Session, model, frame: pd.DataFrame) -> None:
@@ -123,27 +140,37 @@ def insert_frame(session: Session, model, frame: pd.DataFrame) -> None:
         writer.write(writer.prepare(frame))
 
 
-def _python_values(series: pd.Series) -> list:
+def python_values(series: pd.Series) -> list:
     """A column as sqlite3's values: floats (NaN, which sqlite3 binds as NULL), ints, text or None."""
+    return _column_values(series).tolist()
+
+
+def _column_values(series: pd.Series) -> np.ndarray:
+    """A column as an array whose items (``tolist``, or assigned into an object array) are sqlite3's values:
+    float64 (Python floats; NaN, which sqlite3 binds as NULL), int64 (ints), or objects (time text, text, None)."""
     if pd.api.types.is_datetime64_any_dtype(series):
         values = series.to_numpy(dtype="datetime64[us]")
         if len(values) and (values == values[0]).all():
-            return [time_texts(values[:1])[0]] * len(values)  # one moment for every row (created_at)
-        return time_texts(values)
+            return np.full(len(values), time_texts(values[:1])[0], dtype=object)  # one moment (created_at)
+        return _time_text_array(values)
     if pd.api.types.is_float_dtype(series):
-        return series.to_numpy(dtype=float).tolist()
+        return series.to_numpy(dtype=float)
     if pd.api.types.is_integer_dtype(series):
-        return series.to_numpy(dtype=np.int64).tolist()
+        return series.to_numpy(dtype=np.int64)
     values = series.astype(object)
-    return values.where(values.notna(), None).tolist()
+    return values.where(values.notna(), None).to_numpy(dtype=object)
 
 
 def time_texts(values: np.ndarray) -> list[str | None]:
     """Times as 'YYYY-MM-DD HH:MM:SS.ffffff', as SQLAlchemy stores a DateTime in SQLite (None for NaT): Arrow's
     cast of a microsecond timestamp writes exactly that (tests/test_fast_import.py checks it against strftime)."""
+    return _time_text_array(values).tolist()
+
+
+def _time_text_array(values: np.ndarray) -> np.ndarray:
     stamps = pa.array(np.asarray(values, dtype="datetime64[us]"), type=pa.timestamp("us"), from_pandas=True)
     # to_numpy makes the str objects in C (to_pylist makes an Arrow scalar per value first).
-    return pc.cast(stamps, pa.string()).to_numpy(zero_copy_only=False).tolist()
+    return pc.cast(stamps, pa.string()).to_numpy(zero_copy_only=False)
 
 
 def csv_bytes(frame: pd.DataFrame) -> bytes:

@@ -235,15 +235,17 @@ class _Blocks:
         parsed, problems = parse_rows(self.headers, rows, conventions, first)
         problems += rules.table_rules("readings", parsed.data, self.now)
         block = _Block()
+        serial_codes = None
         if has_pump:
-            block.ids = self._ids(parsed.data["pump"])
+            serial_codes = pd.factorize(parsed.data["pump"])  # each row's serial as a code, shared by the checks
+            block.ids = self._ids(parsed.data["pump"], serial_codes)
         self.cell_problems += problems
         if self.cells_wrong:
             self.refused = True
             return block
         data = parsed.data
         block.taken_at, block.serials = data["taken_at"], data["pump"]
-        self._repeats(data)
+        self._repeats(data, serial_codes)
         if self.file_problems:
             self.refused = True
         given = {"flow_lpm": "outlet_flow", "drain_lpm": "case_drain_flow", "stroke": "stroke", "note": "note",
@@ -267,9 +269,10 @@ class _Blocks:
             block.prepared = self.writer.prepare(frame, same)
         return block
 
-    def _ids(self, serials: pd.Series) -> np.ndarray:
-        """Pump ids (NaN for a serial the register lacks, which becomes a problem; a blank cell is one already)."""
-        codes, unique = pd.factorize(serials)
+    def _ids(self, serials: pd.Series, factorized: tuple) -> np.ndarray:
+        """Pump ids (NaN for a serial the register lacks, which becomes a problem; a blank cell is one already);
+        ``factorized`` is ``pd.factorize(serials)``."""
+        codes, unique = factorized
         found = np.array([self.pumps.ids.get(serial, np.nan) for serial in unique] + [np.nan], dtype=float)
         ids = found[codes]
         unknown = np.isnan(ids) & serials.notna().to_numpy()
@@ -279,9 +282,10 @@ class _Blocks:
             self.file_problems.append(problem)
         return ids
 
-    def _repeats(self, data: pd.DataFrame) -> None:
-        """Rows whose pump and time appear earlier in the file, in this block or an earlier one."""
-        codes, unique = pd.factorize(data["pump"])
+    def _repeats(self, data: pd.DataFrame, factorized: tuple) -> None:
+        """Rows whose pump and time appear earlier in the file, in this block or an earlier one; ``factorized``
+        is ``pd.factorize(data["pump"])``."""
+        codes, unique = factorized
         known = np.array([self.serial_codes.setdefault(serial, len(self.serial_codes)) for serial in unique],
                          dtype=np.int64)
         serial_codes = known[codes]
