@@ -86,6 +86,7 @@ _MEMBER_SHARE = np.array([m.share for m in MEMBERS])
 _FAMILY_POWERS = np.array([m.power for m in MEMBERS if m.law == "power"])
 _RUN_IN_TAUS = np.array(RUN_IN_TAUS)
 _RUN_IN_SHARES = np.array(RUN_IN_SHARES)
+_RUN_IN_SCALE = -np.expm1(-1.0 / _RUN_IN_TAUS)  # 1 - e^(-1/tau): a run-in member's rise at u = 1
 # _family_x lays the run-in members out time constant by time constant, as MEMBERS holds them
 assert [(m.tau, m.share) for m in MEMBERS if m.law == "run_in"] == [
     (t, sh) for t in RUN_IN_TAUS for sh in RUN_IN_SHARES]
@@ -320,9 +321,12 @@ def _family_x(family: str, u: np.ndarray, log_u: np.ndarray) -> np.ndarray:
     per time constant for all its shares (MEMBERS holds them time constant by time constant)."""
     if family == "power":
         return np.exp(log_u[:, None] * _FAMILY_POWERS[None, :])
-    rise = -np.expm1(-u[:, None] / _RUN_IN_TAUS[None, :])
-    x = (rise[:, :, None] * _RUN_IN_SHARES[None, None, :] / -np.expm1(-1.0 / _RUN_IN_TAUS)[None, :, None]
-         + u[:, None, None] * (1.0 - _RUN_IN_SHARES)[None, None, :])
+    rise = np.negative(np.expm1(np.divide(-u[:, None], _RUN_IN_TAUS[None, :])))
+    # rise s / (1 - e^(-1/tau)) + u (1 - s), each step in place (fresh blocks cost more than the arithmetic)
+    x = np.multiply(rise[:, :, None], _RUN_IN_SHARES[None, None, :])
+    np.divide(x, _RUN_IN_SCALE[None, :, None], out=x)
+    steady = np.multiply(u[:, None, None], (1.0 - _RUN_IN_SHARES)[None, None, :])
+    np.add(x, steady, out=x)
     return x.reshape(len(u), -1)
 
 
@@ -411,8 +415,15 @@ def _fit_family_members(family, group, hours, q, sigma, robust_w, clip, hours_sc
             b = np.where(spread > 1e-12 * s0_g, (sxy - sx * y_mean) / spread, np.nan)  # no spread: one hour value
             a = y_mean - b * x_mean
             # z2 = (q - a - b x)^2 m, in the scratch blocks
-            bx = np.multiply(np.take(b, local, axis=0, out=wx), x, out=wx)
-            z2 = np.subtract(np.subtract(qb, np.take(a, local, axis=0, out=part), out=part), bx, out=part)
+            if hi - lo >= 64 * len(edges):  # long segments: each group's a and b broadcast over its rows
+                for row, (start, end) in enumerate(edges):
+                    np.multiply(b[row], x[start:end], out=wx[start:end])
+                    np.subtract(qb[start:end], a[row], out=part[start:end])
+                bx = wx
+                z2 = np.subtract(part, bx, out=part)
+            else:  # many short ones: a and b picked per row
+                bx = np.multiply(np.take(b, local, axis=0, out=wx), x, out=wx)
+                z2 = np.subtract(np.subtract(qb, np.take(a, local, axis=0, out=part), out=part), bx, out=part)
             np.multiply(np.square(z2, out=z2), mb, out=z2)
             c2 = clip2[lo:hi, None]
             inside = _segment_sum(np.less_equal(z2, c2, out=wx), edges, cells)
