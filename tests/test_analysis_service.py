@@ -2,11 +2,13 @@
 
 import datetime as dt
 
+import pandas as pd
 import pytest
 from sqlalchemy import select, update
 
-from fleet.db.models import AnalysisResult, Pump, StatusChange
-from fleet.services.analysis import analysis_records, refresh_analysis, stored_priors
+from fleet.db.models import AnalysisResult, Pump, Reading, StatusChange
+from fleet.services.analysis import analysis_records, frames, refresh_analysis, stored_priors
+from fleet.services.analysis.frames import plain_query
 
 FIELDS = ("status", "eta_v_ref", "eta_v_decline_per_1000h", "drain_pct_ref", "hours_to_limit", "hours_to_limit_low",
           "hours_to_limit_high", "limit_date", "governing_limit", "prior_hours_to_overhaul", "energy_cost_per_year")
@@ -93,3 +95,29 @@ def test_samples_known_by_keeps_what_was_known_then():
         known = samples_known_by(given, moment).reset_index(drop=True)
         assert known.astype(object).where(known.notna(), None).to_dict("records") == pd.DataFrame(
             expected, columns=given.columns).astype(object).where(lambda f: f.notna(), None).to_dict("records"), rows
+
+
+def _readings_by_pandas(session, statement) -> pd.DataFrame:
+    """The reference: the driver's rows through pandas' own inference (DataFrame.from_records), times parsed and
+    numbers made floats after, as the loader did before it built each column at once."""
+    readings = plain_query(session, statement)
+    readings["taken_at"] = pd.to_datetime(readings["taken_at"], format="ISO8601")
+    return readings.astype({c: float for c in frames._READING_FLOATS})
+
+
+def test_the_readings_columns_equal_pandas_own_conversion(demo_db):
+    statement = select(Reading.id.label("reading_id"), Reading.pump_id, Reading.taken_at, Reading.hours,
+                       Reading.pressure_bar, Reading.speed_rpm, Reading.flow_lpm, Reading.drain_lpm,
+                       Reading.temp_c, Reading.stroke)
+    with demo_db.sessions.begin() as session:
+        # Blanks where the schema allows them (flow, drain, stroke), so NULL -> NaN is compared too.
+        first = session.scalars(select(Reading.id).order_by(Reading.id).limit(3)).all()
+        session.execute(update(Reading).where(Reading.id.in_(first)).values(flow_lpm=None, drain_lpm=None,
+                                                                             stroke=None))
+        for chosen in (statement, statement.where(Reading.pump_id.in_([1, 2])), statement.where(Reading.id < 0)):
+            expected = _readings_by_pandas(session, chosen)
+            got = frames._reading_columns(session, chosen)
+            pd.testing.assert_frame_equal(got, expected, check_exact=True)
+            assert len(got) > 0 or chosen is not statement
+        assert frames._reading_columns(session, statement)["stroke"].isna().sum() >= 3
+        session.rollback()

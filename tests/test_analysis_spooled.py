@@ -7,6 +7,9 @@ FLEET_TEST_DATABASE_URL is set. The demo plant's 41 pumps are cut into parts of 
 
 import datetime as dt
 import gc
+import json
+import math
+import struct
 import weakref
 
 import pytest
@@ -21,11 +24,13 @@ from fleet.db.models import (
     ServiceLife,
     StatusChange,
 )
+from fleet.jsonvalues import json_ready
 from fleet.services.analysis import compute as compute_module
 from fleet.services.analysis import refresh_analysis, spool, store_fleet
 from fleet.services.analysis.compute import compute
 from fleet.services.analysis.refresh import reanalyse
-from fleet.services.analysis.store import store
+from fleet.services.analysis.store import NOT_IN_DETAIL, store
+from fleet.trend.settings import AnalysisSettings
 from tests.frame_compare import plain as _plain
 
 NOW = dt.datetime(2026, 12, 1, 12)
@@ -116,3 +121,61 @@ def test_a_part_failing_to_store_leaves_the_stored_analysis_as_it_was(demo_db, s
         reanalyse(demo_db.sessions, now=NOW, workers=1)
     with demo_db.sessions() as session:
         _same_rows(before, _rows(session))  # the two parts stored before it are not kept either
+
+
+def _bits(value):
+    """A parsed JSON value with each float as its exact bits (so -0.0 and 0.0, or two floats a last bit apart,
+    differ), for comparing two encoders' texts by what they read back as."""
+    if isinstance(value, dict):
+        return {k: _bits(v) for k, v in value.items()}
+    if isinstance(value, list):
+        return [_bits(v) for v in value]
+    if isinstance(value, float):
+        return ("float", struct.pack("<d", value))
+    return (type(value).__name__, value)
+
+
+def _same_as_json_module(value) -> None:
+    """spool.json_text reads back (Python's json.loads) as exactly what json.dumps' text of the same value does."""
+    assert _bits(json.loads(spool.json_text(value))) == _bits(json.loads(json.dumps(value)))
+
+
+@pytest.mark.parametrize("value", [
+    0.1 + 0.2, 1e-5, 1e16, 1e22, 123456789.125, 5e-324, 2.2250738585072014e-308, 1.7976931348623157e308, -0.0, 0.0,
+    -1.5e-300, 2**53 + 1, -(2**63), 2**64 - 1, True, False, None, "", "slip \u00b5 \u2264 1 \"quoted\" \\ \n \t \x01",
+    {"a": [1, 2.5, None, {"b": "c"}], "d": []},
+])
+def test_the_spooled_json_text_reads_back_as_pythons_json(value):
+    # The reference is the standard library's json module (its text is what store.store's JSON columns hold).
+    _same_as_json_module(value)
+    if isinstance(value, float):
+        # json_ready leaves no NaN or infinity in what is spooled (orjson would write null for one)
+        _same_as_json_module([value * k for k in (1.0, 3.0, 1 / 3, 1e-7, 7e11) if math.isfinite(value * k)])
+
+
+def test_a_spooled_parts_json_texts_read_back_as_pythons_json(demo_db, small_parts, tmp_path):
+    # Every detail and every fit of the demo plant's parts, as the store would write them; the reference is the
+    # text of the standard library's json module (a NaN there reads back unequal to itself, so none may hide).
+    with demo_db.sessions() as session, session.begin():
+        analysed = spool.spool_fleet(session, tmp_path, NOW)
+    texts = 0
+    for path in analysed.parts:
+        part = spool.read_part(path)
+        for record, detail in zip(part.records, part.details, strict=True):
+            expected = json_ready({k: v for k, v in record.items() if k not in NOT_IN_DETAIL})
+            assert _bits(json.loads(detail)) == _bits(json.loads(json.dumps(expected)))
+            texts += 1
+        for fit_json in part.trends["fit_json"]:
+            assert "NaN" not in fit_json and "Infinity" not in fit_json
+            texts += 1
+    assert texts > 2 * 41
+
+
+def test_a_parts_fit_texts_read_back_as_pythons_json(demo_db):
+    # The fits of interval_trends (fleet.trend.interval_trends) as spool_part writes them, against json.dumps.
+    with demo_db.sessions() as session, session.begin():
+        part = compute_module.analyse_part(session, None, NOW, AnalysisSettings())
+    fits = part.trends["fit"].tolist()
+    assert len(fits) > 41
+    for fit in fits:
+        _same_as_json_module(fit)

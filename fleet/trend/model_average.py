@@ -71,6 +71,12 @@ def _weighed_pairs(fits: LawFits, confidence: float) -> dict:
 
 def _pairs_cdf(pairs: dict, hours: np.ndarray, value: np.ndarray) -> np.ndarray:
     """P(member's line at hours <= value) for every weighed pair; hours and value already picked per pair."""
+    return _pairs_cdf_at(pairs, _pairs_moments(pairs, hours), value)
+
+
+def _pairs_moments(pairs: dict, hours: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Each weighed pair's line at its hours (picked per pair): mean, standard deviation, and whether the line
+    is of ln q. A search over the value at fixed hours (value_quantile) takes them once for all its steps."""
     col = (slice(None), None) if hours.ndim == 2 else (slice(None),)
     x = hours.copy()
     with np.errstate(invalid="ignore", divide="ignore", over="ignore"):
@@ -81,7 +87,14 @@ def _pairs_cdf(pairs: dict, hours: np.ndarray, value: np.ndarray) -> np.ndarray:
         mean = pairs["a"][col] + pairs["b"][col] * x
         var = pairs["var_a"][col] + 2.0 * x * pairs["cov_ab"][col] + x * x * pairs["var_b"][col]
         sd = np.sqrt(np.maximum(var, 0.0))
-        log = np.broadcast_to(pairs["log"][col], hours.shape)
+    return mean, sd, np.broadcast_to(pairs["log"][col], hours.shape)
+
+
+def _pairs_cdf_at(pairs: dict, moments: tuple, value: np.ndarray) -> np.ndarray:
+    """_pairs_cdf from the pairs' moments at their hours (_pairs_moments)."""
+    mean, sd, log = moments
+    col = (slice(None), None) if mean.ndim == 2 else (slice(None),)
+    with np.errstate(invalid="ignore", divide="ignore", over="ignore"):
         level = np.where(log, np.log(np.where(value > 0, value, np.nan)), value)
         t = (level - mean) / sd
     t = np.where(sd > 0, t, np.where(level >= mean, np.inf, -np.inf))
@@ -98,15 +111,17 @@ def value_cdf(fits: LawFits, hours, value, confidence: float, pairs: dict | None
     return _mixture_cdf(pairs, hours, value)
 
 
-def _mixture_cdf(pairs: dict, hours: np.ndarray, value: np.ndarray) -> np.ndarray:
+def _mixture_cdf(pairs: dict, hours: np.ndarray, value: np.ndarray, moments: tuple | None = None) -> np.ndarray:
     """value_cdf on gathered pairs: per group (rows of hours and value), the weighed sum of its pairs' P. A group's
     sum depends on its own pairs alone (one reduce over its segment), so the pairs of some groups only
-    (_pairs_of) give those groups the same figures to the last bit."""
+    (_pairs_of) give those groups the same figures to the last bit. moments: the pairs' at these hours
+    (_pairs_moments), when the caller has them."""
     total = np.zeros(hours.shape)
     rows = pairs["rows"]
     if rows.size:
         col = (slice(None), None) if hours.ndim == 2 else (slice(None),)
-        p = _pairs_cdf(pairs, hours[rows], value[rows])
+        p = (_pairs_cdf(pairs, hours[rows], value[rows]) if moments is None
+             else _pairs_cdf_at(pairs, moments, value[rows]))
         total[rows[pairs["starts"]]] = np.add.reduceat(pairs["weight"][col] * p, pairs["starts"], axis=0)
     return total
 
@@ -142,9 +157,11 @@ def value_quantile(fits: LawFits, hours, level: float, confidence: float) -> np.
     fitted = np.isfinite(lo) & np.isfinite(hi)
     lo, hi = np.where(fitted, lo, 0.0), np.where(fitted, hi, 1.0)
     pairs = _weighed_pairs(fits, confidence)
+    # The pairs' lines at these hours, once: each step moves only the value (value_cdf's arithmetic otherwise).
+    moments = _pairs_moments(pairs, hours[pairs["rows"]]) if pairs["rows"].size else None
     for _ in range(44):  # the bracket shrinks to 1e-13 of its width
         mid = 0.5 * (lo + hi)
-        below = value_cdf(fits, hours, mid, confidence, pairs) < level
+        below = _mixture_cdf(pairs, hours, mid, moments) < level
         lo, hi = np.where(below, mid, lo), np.where(below, hi, mid)
     return np.where(fitted, 0.5 * (lo + hi), np.nan)
 

@@ -86,6 +86,7 @@ _MEMBER_SHARE = np.array([m.share for m in MEMBERS])
 _FAMILY_POWERS = np.array([m.power for m in MEMBERS if m.law == "power"])
 _RUN_IN_TAUS = np.array(RUN_IN_TAUS)
 _RUN_IN_SHARES = np.array(RUN_IN_SHARES)
+_RUN_IN_SCALE = -np.expm1(-1.0 / _RUN_IN_TAUS)  # 1 - e^(-1/tau): a run-in member's rise at u = 1
 # _family_x lays the run-in members out time constant by time constant, as MEMBERS holds them
 assert [(m.tau, m.share) for m in MEMBERS if m.law == "run_in"] == [
     (t, sh) for t in RUN_IN_TAUS for sh in RUN_IN_SHARES]
@@ -320,18 +321,39 @@ def _family_x(family: str, u: np.ndarray, log_u: np.ndarray) -> np.ndarray:
     per time constant for all its shares (MEMBERS holds them time constant by time constant)."""
     if family == "power":
         return np.exp(log_u[:, None] * _FAMILY_POWERS[None, :])
-    rise = -np.expm1(-u[:, None] / _RUN_IN_TAUS[None, :])
-    x = (rise[:, :, None] * _RUN_IN_SHARES[None, None, :] / -np.expm1(-1.0 / _RUN_IN_TAUS)[None, :, None]
-         + u[:, None, None] * (1.0 - _RUN_IN_SHARES)[None, None, :])
+    rise = np.negative(np.expm1(np.divide(-u[:, None], _RUN_IN_TAUS[None, :])))
+    # rise s / (1 - e^(-1/tau)) + u (1 - s), each step in place (fresh blocks cost more than the arithmetic)
+    x = np.multiply(rise[:, :, None], _RUN_IN_SHARES[None, None, :])
+    np.divide(x, _RUN_IN_SCALE[None, :, None], out=x)
+    steady = np.multiply(u[:, None, None], (1.0 - _RUN_IN_SHARES)[None, None, :])
+    np.add(x, steady, out=x)
     return x.reshape(len(u), -1)
 
 
-def _segment_sum(values: np.ndarray, edges: list[tuple[int, int]]) -> np.ndarray:
-    """Sums of the rows of `values` (readings x columns) over each segment (start, end) of `edges`. One reduce
-    along the rows per segment adds row after row, in the readings' order, as np.bincount does: the sums are the
-    per-member code's to the last bit (np.add.reduceat would add pairwise, which differs in the last bits, and a
-    fit's line can turn such a difference into a thousand times more)."""
-    return np.stack([np.add.reduce(values[start:end], axis=0) for start, end in edges])
+def _segment_sum(values: np.ndarray, edges: list[tuple[int, int]], cells: np.ndarray | None = None) -> np.ndarray:
+    """Sums of the rows of `values` (readings x columns) over each segment (start, end) of `edges`, each cell's
+    readings added one after the other in their own order, as np.bincount does: the sums are the per-member
+    code's to the last bit (np.add.reduceat would add pairwise, which differs in the last bits, and a fit's line
+    can turn such a difference into a thousand times more). Rows of few columns are summed by one np.bincount
+    over ``cells`` (_segment_cells: each cell's segment x columns + column), which adds in that same order; wider
+    ones by one reduce along the rows per segment."""
+    if cells is not None:
+        return np.bincount(cells, values.ravel(), minlength=len(edges) * values.shape[1]).reshape(len(edges), -1)
+    out = np.empty((len(edges), values.shape[1]))
+    for row, (start, end) in enumerate(edges):
+        np.add.reduce(values[start:end], axis=0, out=out[row])
+    return out
+
+
+_NARROW = 32  # up to this many columns a block's sums go by np.bincount (a row reduce pays its loop per row)
+
+
+def _segment_cells(local: np.ndarray, columns: int) -> np.ndarray | None:
+    """The bin of each cell of a block (readings x columns, C order) for _segment_sum: its segment x columns + its
+    column; None for a wide block."""
+    if columns > _NARROW:
+        return None
+    return (local[:, None] * columns + np.arange(columns)[None, :]).ravel()
 
 
 def _fit_family_members(family, group, hours, q, sigma, robust_w, clip, hours_scale, offset, n_groups, out,
@@ -375,16 +397,17 @@ def _fit_family_members(family, group, hours, q, sigma, robust_w, clip, hours_sc
         edges = list(zip((seg_start[first:last] - lo).tolist(), (seg_end[first:last] - lo).tolist(), strict=True))
         local = np.repeat(np.arange(last - first), count[gs].astype(np.int64))
         x = _family_x(family, u[lo:hi], log_u[lo:hi])
+        cells = _segment_cells(local, x.shape[1])
         qb, mb, wb = q[lo:hi, None], model_w[lo:hi, None], w[lo:hi, None]
         # two scratch blocks, reused for every product (fresh ones would cost more than the arithmetic)
         wx = wb * x
         part = np.multiply(wx, x)
-        sx = _segment_sum(wx, edges)
-        sxx = _segment_sum(part, edges)
-        sxy = _segment_sum(np.multiply(wx, qb, out=part), edges)
+        sx = _segment_sum(wx, edges, cells)
+        sxx = _segment_sum(part, edges, cells)
+        sxy = _segment_sum(np.multiply(wx, qb, out=part), edges, cells)
         mxb = np.multiply(mb, x, out=wx)
-        mx_sum = _segment_sum(mxb, edges)
-        mxx_sum = _segment_sum(np.multiply(mxb, x, out=part), edges)
+        mx_sum = _segment_sum(mxb, edges, cells)
+        mxx_sum = _segment_sum(np.multiply(mxb, x, out=part), edges, cells)
         n_g, s0_g, sy_g, m0_g = count[gs, None], s0[gs, None], sy[gs, None], m0[gs, None]
         with np.errstate(invalid="ignore", divide="ignore"):
             x_mean, y_mean = sx / s0_g, sy_g / s0_g
@@ -392,12 +415,19 @@ def _fit_family_members(family, group, hours, q, sigma, robust_w, clip, hours_sc
             b = np.where(spread > 1e-12 * s0_g, (sxy - sx * y_mean) / spread, np.nan)  # no spread: one hour value
             a = y_mean - b * x_mean
             # z2 = (q - a - b x)^2 m, in the scratch blocks
-            bx = np.multiply(np.take(b, local, axis=0, out=wx), x, out=wx)
-            z2 = np.subtract(np.subtract(qb, np.take(a, local, axis=0, out=part), out=part), bx, out=part)
+            if hi - lo >= 64 * len(edges):  # long segments: each group's a and b broadcast over its rows
+                for row, (start, end) in enumerate(edges):
+                    np.multiply(b[row], x[start:end], out=wx[start:end])
+                    np.subtract(qb[start:end], a[row], out=part[start:end])
+                bx = wx
+                z2 = np.subtract(part, bx, out=part)
+            else:  # many short ones: a and b picked per row
+                bx = np.multiply(np.take(b, local, axis=0, out=wx), x, out=wx)
+                z2 = np.subtract(np.subtract(qb, np.take(a, local, axis=0, out=part), out=part), bx, out=part)
             np.multiply(np.square(z2, out=z2), mb, out=z2)
             c2 = clip2[lo:hi, None]
-            inside = _segment_sum(np.less_equal(z2, c2, out=wx), edges)
-            psi2 = _segment_sum(np.minimum(z2, c2, out=z2), edges)
+            inside = _segment_sum(np.less_equal(z2, c2, out=wx), edges, cells)
+            psi2 = _segment_sum(np.minimum(z2, c2, out=z2), edges, cells)
             dof = n_g - n_params
             scale2 = np.where(dof > 0, psi2 / np.where(dof > 0, dof, 1.0), np.nan) / (inside / n_g) ** 2
             mx = mx_sum / m0_g
