@@ -2,6 +2,9 @@
 with Python's float(), numpy's time text with datetime.strftime, the column-wide meter check with the one rule,
 and COPY/executemany with what an ORM read sees."""
 
+import csv
+import io
+import itertools
 import json
 import math
 import os
@@ -65,6 +68,27 @@ def test_a_plain_file_is_read_as_arrow_text_and_a_ragged_one_by_pandas():
     for ragged in (b"pump,hours\nA-1,1,2\n", b"pump,hours,note\nA-1,1\n"):  # pyarrow refuses; pandas decides
         fast, plain = read_csv(ragged), _pandas_cells(ragged)
         assert not is_arrow_text(fast["pump"]) and fast.equals(plain)
+
+
+def test_a_semicolon_file_gives_the_cells_of_its_comma_twin():
+    """A spreadsheet where the comma is the decimal mark saves CSV with semicolons: read with the semicolon when the
+    header has semicolons and no comma, by pyarrow's reader, its streamed blocks and pandas' reader alike (Python's
+    csv module, the reference, reads the comma twin); a header with a comma stays comma-separated."""
+    from fleet.io.files import delimiter, stream_csv
+
+    comma = b'pump,taken_at,hours,outlet_flow,note\nA-1,2026-01-05 08:00,12,"12,5","a; b"\nA-2,2026-01-05 09:00,13,7,\n'
+    semi = b'pump;taken_at;hours;outlet_flow;note\nA-1;2026-01-05 08:00;12;12,5;"a; b"\nA-2;2026-01-05 09:00;13;7;\n'
+    expected = list(csv.reader(io.StringIO(comma.decode())))
+    for data in (semi, b"\xef\xbb\xbf" + semi, semi.replace(b';"a; b"', b'; "a; b"')):  # BOM; pandas' reader
+        cells = read_csv(data)
+        assert [list(cells.columns)] + cells.astype(object).values.tolist() == expected, data
+    streamed = stream_csv(semi)
+    try:
+        blocks = list(streamed.blocks(itertools.repeat(1)))
+    finally:
+        streamed.close()
+    assert sum((b.astype(object).values.tolist() for b in blocks), []) == expected[1:]
+    assert delimiter(b"pump,note\nA-1,x;y\n") == "," and delimiter(b"pump;note,x\n") == ","
 
 
 numbers = st.one_of(

@@ -31,13 +31,22 @@ UTF8_BOM = b"\xef\xbb\xbf"
 _READ_OPTIONS = {"use_threads": False, "block_size": 1 << 20}
 
 
+def delimiter(data: bytes) -> str:
+    """The CSV's column separator: a semicolon when its header line has semicolons and no comma (as spreadsheets
+    save CSV where the comma is the decimal mark), else the comma."""
+    body = data[len(UTF8_BOM):] if data.startswith(UTF8_BOM) else data
+    end = body.find(b"\n")
+    first_line = body if end < 0 else body[:end]
+    return ";" if b";" in first_line and b"," not in first_line else ","
+
+
 def read_csv(source: str | Path | bytes) -> pd.DataFrame:
     """A CSV as text cells (types are decided by the column specs, not guessed)."""
     data = source if isinstance(source, bytes) else Path(source).read_bytes()
     table = _read_arrow(data)
     if table is None:
         table = pd.read_csv(io.BytesIO(data), dtype=str, keep_default_na=False, skipinitialspace=True,
-                            encoding="utf-8-sig")
+                            encoding="utf-8-sig", sep=delimiter(data))
     return unguard_table(table)
 
 
@@ -64,8 +73,9 @@ def _arrow_plan(data: bytes) -> tuple[list[str], pa.Buffer, dict] | None:
     first_line = body if end < 0 else body[:end]
     if b'"' in first_line:
         return None  # a quoted header may hold a line break
+    separator = delimiter(data)
     try:
-        header = next(csv.reader([first_line.decode("utf-8").rstrip("\r")]))
+        header = next(csv.reader([first_line.decode("utf-8").rstrip("\r")], delimiter=separator))
     except (UnicodeDecodeError, StopIteration, csv.Error):
         return None
     names = [name.lstrip(" ") for name in header]
@@ -73,7 +83,7 @@ def _arrow_plan(data: bytes) -> tuple[list[str], pa.Buffer, dict] | None:
         return None  # pandas names repeated and blank headers its own way
     options = {
         "read_options": arrow_csv.ReadOptions(column_names=names, skip_rows=1, **_READ_OPTIONS),
-        "parse_options": arrow_csv.ParseOptions(newlines_in_values=b'"' in body),
+        "parse_options": arrow_csv.ParseOptions(delimiter=separator, newlines_in_values=b'"' in body),
         "convert_options": arrow_csv.ConvertOptions(column_types=dict.fromkeys(names, pa.string()),
                                                     strings_can_be_null=False, quoted_strings_can_be_null=False)}
     return names, pa.py_buffer(data)[len(data) - len(body):], options
