@@ -46,16 +46,21 @@ def _query(session: Session, statement) -> pd.DataFrame:
     return pd.DataFrame(result.all(), columns=list(result.keys()))
 
 
+def driver_rows(session: Session, statement) -> tuple[list[str], list[tuple]]:
+    """The column names and the driver's own rows of ``statement``, without SQLAlchemy's per-row Row and type
+    processing (on SQLite a time then arrives as text)."""
+    result = session.connection().execute(statement)
+    try:
+        return list(result.keys()), (result.cursor.fetchall() if result.cursor is not None else [])
+    finally:
+        result.close()
+
+
 def plain_query(session: Session, statement) -> pd.DataFrame:
     """As _query, but the driver's rows go straight into the frame, without SQLAlchemy's per-row Row and type
     processing (on SQLite a time then arrives as text; callers convert whole columns with pd.to_datetime).
     For the large tables only, whose columns are numbers and times."""
-    result = session.connection().execute(statement)
-    try:
-        keys = list(result.keys())
-        rows = result.cursor.fetchall() if result.cursor is not None else []
-    finally:
-        result.close()
+    keys, rows = driver_rows(session, statement)
     return pd.DataFrame.from_records(rows, columns=keys, coerce_float=True)
 
 
@@ -161,12 +166,7 @@ def _reading_columns(session: Session, statement) -> pd.DataFrame:
     the rest floats (NULL -> NaN). The driver's rows become one table of objects, each column of it an array at
     once, not through pandas' inference per cell (a third of the time); the frame equals plain_query's with those
     conversions (tests/test_analysis_service.py)."""
-    result = session.connection().execute(statement)
-    try:
-        keys = list(result.keys())
-        rows = result.cursor.fetchall() if result.cursor is not None else []
-    finally:
-        result.close()
+    keys, rows = driver_rows(session, statement)
     if not rows or not isinstance(rows[0][keys.index("taken_at")], str):  # no rows, or the driver's own times
         readings = pd.DataFrame.from_records(rows, columns=keys, coerce_float=True)
         readings["taken_at"] = pd.to_datetime(readings["taken_at"], format="ISO8601")

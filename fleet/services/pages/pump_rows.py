@@ -29,7 +29,7 @@ from fleet.db.models import (
 )
 from fleet.frames import EVENT_COLUMNS, FLOW_POINT_COLUMNS, PUMP_COLUMNS, READING_COLUMNS
 from fleet.physics.pump import theoretical_flow_lpm
-from fleet.services.analysis.frames import attach_oil, effective_limits
+from fleet.services.analysis.frames import attach_oil, driver_rows, effective_limits
 
 # The columns of the readings the page shows besides the core's.
 READING_EXTRAS = ("source", "taken_by")
@@ -131,12 +131,7 @@ def _driver_columns(session: Session, statement) -> dict[str, tuple]:
     """The driver's rows of ``statement`` as columns (name -> values), without SQLAlchemy's per-row Row and type
     processing or a frame built row by row: for one pump's few hundred rows the frame's own machinery costs more
     than the query."""
-    result = session.connection().execute(statement)
-    try:
-        keys = list(result.keys())
-        rows = result.cursor.fetchall() if result.cursor is not None else []
-    finally:
-        result.close()
+    keys, rows = driver_rows(session, statement)
     return dict(zip(keys, zip(*rows, strict=True) if rows else [()] * len(keys), strict=True))
 
 
