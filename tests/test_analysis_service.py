@@ -8,7 +8,7 @@ from sqlalchemy import select, update
 
 from fleet.db.models import AnalysisResult, Pump, Reading, StatusChange
 from fleet.services.analysis import analysis_records, frames, refresh_analysis, stored_priors
-from fleet.services.analysis.frames import plain_query
+from fleet.services.analysis.frames import driver_rows
 
 FIELDS = ("status", "eta_v_ref", "eta_v_decline_per_1000h", "drain_pct_ref", "hours_to_limit", "hours_to_limit_low",
           "hours_to_limit_high", "limit_date", "governing_limit", "prior_hours_to_overhaul", "energy_cost_per_year")
@@ -100,7 +100,8 @@ def test_samples_known_by_keeps_what_was_known_then():
 def _readings_by_pandas(session, statement) -> pd.DataFrame:
     """The reference: the driver's rows through pandas' own inference (DataFrame.from_records), times parsed and
     numbers made floats after, as the loader did before it built each column at once."""
-    readings = plain_query(session, statement)
+    keys, rows = driver_rows(session, statement)
+    readings = pd.DataFrame.from_records(rows, columns=keys, coerce_float=True)
     readings["taken_at"] = pd.to_datetime(readings["taken_at"], format="ISO8601")
     return readings.astype({c: float for c in frames._READING_FLOATS})
 

@@ -34,3 +34,5 @@ grouped_wls  # the closed-form weighted line per group, checked against statsmod
 fieller_crossing  # the wear-law tests take both as the reference of the exponential law's fit and crossing
 freeze_panes  # openpyxl reads these attributes of a sheet and a cell when it saves the workbook
 number_format
+hint  # a rounds form field's line under it, read by templates/rounds/walk.html
+value_cdf  # the averaged trend's distribution at given hours: the crossing searches' tests hold them to it

@@ -368,11 +368,6 @@ class _Flagger:
         self.positions.append(position)
 
 
-# A time as the plain form of ISO 8601 a round sheet or an export writes it, which _plain_arrow_times reads directly.
-PLAIN_TIME = r"^\d{4}-\d{2}-\d{2} \d{2}:\d{2}$"
-PLAIN_TIME_FORMAT = "%Y-%m-%d %H:%M"
-
-
 def _plain_arrow_column(spec: Column, raw: pd.Series, unit: str | None,
                         conventions: RowConventions) -> tuple[pd.Series, list[Problem]] | None:
     """A column of a CSV's Arrow text whose every cell is already plain, parsed without the steps only a blank,
@@ -418,8 +413,8 @@ _TIME_MARKS = {4: ord("-"), 7: ord("-"), 10: ord(" "), 13: ord(":")}
 def plain_minutes(text) -> np.ndarray | None:
     """Arrow text whose every cell is 'YYYY-MM-DD HH:MM' naming a real minute, as datetime64[us] read from the
     cells' bytes (16 to a cell, so the column is a table of bytes); None when any cell is missing, written
-    otherwise, or names no real minute (a 13th month, 30 February, 24:00). What matching PLAIN_TIME and reading
-    PLAIN_TIME_FORMAT with strptime accepts and gives (tests/test_fast_import.py checks it against Python's
+    otherwise, or names no real minute (a 13th month, 30 February, 24:00): what matching YYYY-MM-DD HH:MM and
+    reading it with strptime accepts and gives (tests/test_fast_import.py checks it against Python's
     ``datetime.strptime``); about a tenth of the time of Arrow's pattern, strptime and write-back."""
     if isinstance(text, pa.ChunkedArray):
         text = text.combine_chunks()

@@ -56,14 +56,6 @@ def driver_rows(session: Session, statement) -> tuple[list[str], list[tuple]]:
         result.close()
 
 
-def plain_query(session: Session, statement) -> pd.DataFrame:
-    """As _query, but the driver's rows go straight into the frame, without SQLAlchemy's per-row Row and type
-    processing (on SQLite a time then arrives as text; callers convert whole columns with pd.to_datetime).
-    For the large tables only, whose columns are numbers and times."""
-    keys, rows = driver_rows(session, statement)
-    return pd.DataFrame.from_records(rows, columns=keys, coerce_float=True)
-
-
 def _restrict(statement, column, pump_ids):
     return statement if pump_ids is None else statement.where(column.in_(list(pump_ids)))
 
@@ -164,8 +156,8 @@ _READING_FLOATS = ("hours", "pressure_bar", "speed_rpm", "flow_lpm", "drain_lpm"
 def _reading_columns(session: Session, statement) -> pd.DataFrame:
     """The readings of ``statement`` (load_readings' columns) as a frame: ids as integers, times as datetime64,
     the rest floats (NULL -> NaN). The driver's rows become one table of objects, each column of it an array at
-    once, not through pandas' inference per cell (a third of the time); the frame equals plain_query's with those
-    conversions (tests/test_analysis_service.py)."""
+    once, not through pandas' inference per cell (a third of the time); the frame equals pandas' own conversion of
+    the same rows (tests/test_analysis_service.py)."""
     keys, rows = driver_rows(session, statement)
     if not rows or not isinstance(rows[0][keys.index("taken_at")], str):  # no rows, or the driver's own times
         readings = pd.DataFrame.from_records(rows, columns=keys, coerce_float=True)
