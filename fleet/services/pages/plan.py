@@ -53,7 +53,8 @@ def overhaul_plan(session: Session, weeks: int = DEFAULT_WEEKS, now: datetime | 
     horizon_end = today + pd.Timedelta(weeks=weeks)
     pumps = _pump_frame(session)
     windows = _window_frame(session)
-    due = pumps[_inside(pumps, horizon_end)]
+    inside = _inside(pumps, horizon_end)
+    due = pumps[inside]
     fits = match_windows(due, windows, today) if len(due) else pd.DataFrame(columns=["fit", "window_id"])
     window_by_id = windows.set_index("window_id") if len(windows) else windows
     rows = []
@@ -86,7 +87,7 @@ def overhaul_plan(session: Session, weeks: int = DEFAULT_WEEKS, now: datetime | 
         "windows": _window_rows(windows, today),
         "fit_words": FIT_WORDS,
         "at_risk": [r["pump"] for r in rows if r["fit"] in ("at_risk", "past_limit")],
-        "without_forecast": _without_forecast(pumps[~_inside(pumps, horizon_end)]),
+        "without_forecast": _without_forecast(pumps[~inside]),
         "kinds": _kind_outlook(session, pumps, weeks),
         "spares_cover": DEFAULT_COVER,
         "totals": plan_totals(rows),
