@@ -26,6 +26,7 @@ import pandas as pd
 from fleet import units
 from fleet.io.formulas import guard, unguard
 from fleet.io.parse import ImportRejected, Problem
+from fleet.io.places import RowPlaces
 
 XLSX_SUFFIX = ".xlsx"
 XLSX_MIMETYPE = "application/vnd.openxmlformats-officedocument.spreadsheetml.sheet"
@@ -53,12 +54,16 @@ class Sheet:
                 by_name.setdefault(units.parse_header(str(header))[0], letter)
             except units.UnitError:
                 pass
-        located = []
+        places, located = RowPlaces(self.rows), []
         for problem in rejected.problems:
-            row = problem.row if problem.row < 2 or problem.row - 2 >= len(self.rows) else self.rows[problem.row - 2]
+            row = places.row(problem.row)
             letter = by_name.get(problem.column)
             located.append(replace(problem, row=row, cell=f"{letter}{row}" if letter and row >= 1 else None))
         return ImportRejected(located)
+
+    def locate_doubts(self, doubts: list[dict]) -> list[dict]:
+        """Doubts about stored rows with the sheet's own row numbers."""
+        return RowPlaces(self.rows).locate_doubts(doubts)
 
 
 def is_xlsx(data: bytes, filename: str | None = None) -> bool:

@@ -26,7 +26,7 @@ from fleet.db.models import (
 )
 from fleet.db.queries import pumps_on_machine
 from fleet.io import rules
-from fleet.io.files import StreamBroken, StreamedCsv, is_xlsx_path, read_file, stream_csv
+from fleet.io.files import NotUtf8, StreamBroken, StreamedCsv, is_xlsx_path, read_file, stream_csv
 from fleet.io.localtime import ZoneError, zone_name
 from fleet.io.parse import ImportRejected, ParsedTable, Problem, parse_table, row_numbers
 from fleet.io.spreadsheet import SpreadsheetError
@@ -75,20 +75,25 @@ def import_file(session: Session, kind: str, path: str | Path, **kwargs) -> Impo
                 return import_table(session, kind, streamed, **kwargs)
             except StreamBroken:
                 pass
-    table, sheet = read_readable(path)
+    table, places = read_readable(path)
     try:
-        return import_table(session, kind, table, **kwargs)
+        result = import_table(session, kind, table, **kwargs)
     except ImportRejected as rejected:
-        if sheet is None:
+        if places is None:
             raise
-        raise sheet.locate(rejected) from None
+        raise places.locate(rejected) from None
+    if places is not None:
+        result.doubts = places.locate_doubts(result.doubts)
+    return result
 
 
 def read_readable(source: str | Path | bytes, filename: str | None = None):
     """``fleet.io.files.read_file``, with a file that cannot be read at all as a problem of row 1."""
     try:
         return read_file(source, filename)
-    except ValueError as exc:  # a broken workbook, a CSV that is no CSV, bytes that are no UTF-8
+    except NotUtf8 as exc:
+        raise ImportRejected([Problem(exc.row, exc.column, str(exc))]) from None
+    except ValueError as exc:  # a broken workbook, a CSV that is no CSV
         kind = "an .xlsx workbook" if isinstance(exc, SpreadsheetError) else "a CSV file"
         detail = str(exc).splitlines()[0] if str(exc) else exc.__class__.__name__
         raise ImportRejected([Problem(1, "", f"the file is not readable as {kind} ({detail})")]) from None

@@ -28,17 +28,19 @@ def upload_file(sessions: sessionmaker[Session], kind: str, data: bytes | None, 
         reason = "no file chosen, or the file is empty"
         return _rejected(kind, [{"row": 1, "column": "", "cell": None, "reason": reason}], reason)
     try:
-        table, sheet = read_readable(data, filename)
+        table, places = read_readable(data, filename)
         try:
             outcome = perform(sessions, lambda session: import_table(session, kind, table, source="import"))
         except ImportRejected as rejected:
-            if sheet is None:
+            if places is None:
                 raise
-            raise sheet.locate(rejected) from None
+            raise places.locate(rejected) from None
     except ImportRejected as rejected:
         rows = [{"row": p.row, "column": p.column, "reason": p.reason, "cell": p.cell} for p in rejected.problems]
         return _rejected(kind, rows, rejected.report())
     result = outcome.value
+    if places is not None:
+        result.doubts = places.locate_doubts(result.doubts)
     return {
         "ok": True, "kind": kind, "summary": result.summary(), "problems": [], "report": "",
         "rows": result.rows, "created": result.created, "updated": result.updated, "skipped": result.skipped,
