@@ -113,6 +113,8 @@ def test_microscope_count_has_no_4_um_channel():
         ("22/20/>=12", (22, 20, 12), (False, False, True), "22/20/≥12"),
         (">28/27/20", (ABOVE_SCALE, 27, 20), (False, False, False), ">28/27/20"),
         ("0/0/0", (0, 0, 0), (False, False, False), "0/0/0"),
+        ("ISO 4406: 18/16/13", (18, 16, 13), (False, False, False), "18/16/13"),  # as lab reports print it
+        ("iso 17/15/12", (17, 15, 12), (False, False, False), "17/15/12"),
     ],
 )
 def test_parse_code_forms(text, channels, low, shown):
@@ -127,7 +129,8 @@ def test_parse_code_forms(text, channels, low, shown):
 @pytest.mark.parametrize(
     ("text", "message"),
     [
-        ("18/16", "three parts"),
+        ("18/16", "has two parts: .*'-/18/16'"),  # not read as a three-part code: the lab is asked or the '-' added
+        ("ISO 4406: 18/16/-", "14 um part '-'"),  # the standard named before the code, as lab reports print it
         ("18/16/13/11", "three parts"),
         ("", "three parts"),
         ("18-16-13", "three parts"),

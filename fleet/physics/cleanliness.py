@@ -127,6 +127,9 @@ def _parse_channel(part: str, size_um: int, text: str) -> tuple[int, bool]:
     return number, match.group("low") is not None
 
 
+_STANDARD_NAMED = re.compile(r"^ISO(?:\s*4406(?::\s*\d{4})?)?\s*:?\s*", re.IGNORECASE)
+
+
 def parse_code(text: str) -> Iso4406Code:
     """Read a code such as "18/16/13", "-/16/13" or "18/16/≥13" (">=" also accepted for "≥").
 
@@ -134,7 +137,12 @@ def parse_code(text: str) -> Iso4406Code:
     """
     if not isinstance(text, str):
         raise ValueError(f"ISO 4406 code must be text such as '18/16/13', got {text!r}")
-    parts = text.strip().split("/")
+    parts = _STANDARD_NAMED.sub("", text.strip()).split("/")  # "ISO 4406: 18/16/13", as lab reports print it
+    if len(parts) == 2:  # a microscope count, or a code of the standard's older two-number form (from memory)
+        raise ValueError(
+            f"ISO 4406 code {text!r} has two parts: the current notation writes a code without the 4 um channel "
+            f"with a '-' first ('-/{'/'.join(p.strip() for p in parts)}'); write it so if the lab counted no 4 um "
+            "particles, or ask the lab for the three-part code")
     if len(parts) != 3:
         raise ValueError(
             f"ISO 4406 code {text!r} must have three parts separated by '/', such as '18/16/13' or '-/16/13'"
