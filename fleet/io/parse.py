@@ -4,6 +4,7 @@ Every bad cell becomes a Problem naming its row, column and reason; nothing is d
 count as a spreadsheet does: the header is row 1, the first data row is row 2.
 """
 
+import re
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -16,6 +17,7 @@ from fleet.io.columns import KINDS, Column
 from fleet.io.localtime import localize
 from fleet.kinds import EVENT_KINDS, FAILURE_MODES, PUMP_KINDS, READING_SOURCES, normalise_kind
 from fleet.physics.cleanliness import parse_code
+from fleet.physics.oil import ISO_VG_GRADES
 
 # pandas 3 holds inferred text in Arrow when pyarrow is installed, and Arrow text cannot hold what a hostile form
 # or API body may send (an unpaired surrogate). Text from a form, a JSON body or the database is therefore held
@@ -99,6 +101,10 @@ def row_numbers(index: pd.Index) -> np.ndarray:
 def is_arrow_text(series: pd.Series) -> bool:
     """Cells held as Arrow text (a CSV read by fleet.io.files), whose string methods run as Arrow kernels."""
     return isinstance(series.dtype, pd.ArrowDtype) and pa.types.is_string(series.dtype.pyarrow_dtype)
+
+
+GRADE_COLUMNS = ("oil_grade", "iso_vg")  # ISO VG grade numbers (fleet.io.columns)
+_GRADE_PREFIX = r"(?i)^(?:ISO[\s-]*)?VG[\s-]*(\d)"  # RE2 (Arrow's kernels) has no look-ahead: keep the digit
 
 
 def _cells(series: pd.Series) -> pd.Series:
@@ -250,7 +256,7 @@ def _checked_numbers(spec: Column, numbers: pd.Series, blank: pd.Series, unit: s
     index = numbers.index
     numbers, blank = numbers.to_numpy(dtype=float), np.asarray(blank, dtype=bool)
     missing = np.isnan(numbers)
-    flag(~blank & missing, lambda cell: f"'{cell}' is not a number")
+    flag(~blank & missing, lambda cell: f"'{cell}' is not a number{_unit_in_cell(spec, cell)}")
     unit = unit if unit is not None else spec.default_unit
     # 'inf' and '1e999' parse as numbers; no reading or register value is infinite, or near it.
     with np.errstate(over="ignore", invalid="ignore"):
@@ -279,6 +285,23 @@ def _checked_numbers(spec: Column, numbers: pd.Series, blank: pd.Series, unit: s
         if spec.integer:
             flag(~np.isnan(values) & (values != np.round(values)), lambda cell: f"{cell} must be a whole number")
     return pd.Series(values, index=index)
+
+
+_NUMBER_THEN_WORD = re.compile(r"^[-+]?(?:\d+[.,]?\d*|[.,]\d+)(?:[eE][-+]?\d+)?\s*(?P<unit>\D.*)$")
+
+
+def _unit_in_cell(spec: Column, cell: str) -> str:
+    """A hint for a number written with its unit ('1.5 days'): a file's units go in the column's header, where
+    every row shares them (a form has its own unit choice); '' when the cell is no such pair."""
+    match = _NUMBER_THEN_WORD.match(str(cell).strip()) if spec.quantity else None
+    if match is None:
+        return ""
+    try:
+        units.resolve(match.group("unit"), spec.quantity)
+    except (units.UnitError, KeyError):
+        return ""
+    header = f"{spec.name} [{match.group('unit').strip()}]"
+    return f": give the number alone (a file names its unit in the column's header: '{header}')"
 
 
 def _floats(cells: pd.Series) -> np.ndarray:
@@ -463,6 +486,27 @@ def _plain_arrow_times(text, index: pd.Index, zones: pd.Series | None) -> pd.Ser
 
 def _parse_column(spec: Column, raw: pd.Series, unit: str | None,
                   conventions: RowConventions | None = None) -> tuple[pd.Series, list[Problem]]:
+    if spec.name in GRADE_COLUMNS:
+        return _parse_grades(spec, raw, unit, conventions)
+    return _parse_cells(spec, raw, unit, conventions)
+
+
+def _parse_grades(spec: Column, raw: pd.Series, unit: str | None,
+                  conventions: RowConventions | None) -> tuple[pd.Series, list[Problem]]:
+    """An ISO VG grade as oil drums and data sheets write it ('ISO VG 46', 'VG46' or 46), and one of the grades of
+    ISO 3448 only: a 47 is a slip, not a grade."""
+    cells = _cells(raw).str.replace(_GRADE_PREFIX, r"\1", regex=True)
+    values, problems = _parse_cells(spec, cells, unit, conventions)
+    numbers = pd.to_numeric(values, errors="coerce")
+    odd = numbers.notna() & ~numbers.isin(ISO_VG_GRADES)
+    grades = ", ".join(str(g) for g in ISO_VG_GRADES)
+    problems += [Problem(int(row), spec.name, f"{number:g} is not an ISO VG grade (ISO 3448: {grades})")
+                 for row, number in zip(row_numbers(values.index[odd]), numbers[odd], strict=True)]
+    return values.mask(odd, None), problems
+
+
+def _parse_cells(spec: Column, raw: pd.Series, unit: str | None,
+                 conventions: RowConventions | None = None) -> tuple[pd.Series, list[Problem]]:
     if is_arrow_text(raw):
         plain = _plain_arrow_column(spec, raw, unit, (conventions or RowConventions()).aligned(raw.index))
         if plain is not None:

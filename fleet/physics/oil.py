@@ -21,8 +21,11 @@ WALTHER_OFFSET_CST = 0.7
 DENSITY_EXPANSION_PER_K = 0.0007
 DENSITY_REFERENCE_TEMP_C = 15.0
 
-# ISO 3448: a viscosity grade is the midpoint kinematic viscosity at 40 degC, with limits +-10 %.
+# ISO 3448: a viscosity grade is the midpoint kinematic viscosity at 40 degC, with limits +-10 %. The grades:
+# the 18 of ISO 3448:1992 (2 to 1500, each about 1.5 times the one before), and 2200 and 3200, which wider grade
+# tables of the same series add (from memory) and which ISO_VG_MAX (fleet.io.columns) admitted before.
 ISO_VG_TOLERANCE = 0.10
+ISO_VG_GRADES = (2, 3, 5, 7, 10, 15, 22, 32, 46, 68, 100, 150, 220, 320, 460, 680, 1000, 1500, 2200, 3200)
 
 # Oil life halves for every 10 degC above 60 degC (common practice, no source; the Arrhenius rule of thumb
 # that oxidation rate doubles per 10 K). No extra credit is given for running colder than 60 degC.
