@@ -116,3 +116,25 @@ def test_a_file_that_is_not_utf8_is_refused_naming_its_row_and_column(pumps, tmp
     assert (problem["row"], problem["column"]) == (2, "taken_by")
     assert "0xFC" in problem["reason"] and "CSV UTF-8" in problem["reason"]
     assert _count(pumps) == 0
+
+
+def _workbook(path, first_day: int, second_hours: float) -> None:
+    import openpyxl
+
+    book = openpyxl.Workbook()
+    for row in [HEADER.split(","), ["T-101", f"2025-03-{first_day:02d} 08:00", 100, 230, 1490, 63.1, 48], [None] * 7,
+                ["T-101", f"2025-03-{first_day + 1:02d} 08:00", second_hours, 230, 1490, 63.1, 48]]:
+        book.active.append(row)
+    book.save(path)
+
+
+def test_a_workbooks_doubt_after_a_blank_row_names_the_sheet_row(pumps, tmp_path):
+    path = tmp_path / "readings.xlsx"
+    _workbook(path, 1, 50)  # sheet row 4: the meter ran backwards from 100 h
+    with pumps.sessions.begin() as session:
+        result = import_file(session, "readings", path, now=datetime(2026, 1, 1))
+    assert [(d["row"], d["field"]) for d in result.doubts] == [(4, "hours")]
+    # The upload page's path, two days on: row 2 jumps from the stored 50 h to 100 h in a day, row 4 runs back.
+    _workbook(path, 3, 40)
+    outcome = upload_file(pumps.sessions, "readings", path.read_bytes(), "readings.xlsx")
+    assert outcome["ok"] and [(d["row"], d["field"]) for d in outcome["doubts"]] == [(2, "hours"), (4, "hours")]
