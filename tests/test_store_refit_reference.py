@@ -1,7 +1,8 @@
 """A kind's refit (fleet.services.analysis.store.refit_kinds) reads its pumps, their stored ages and its service
 lives in two plain queries and fits on arrays; it must store exactly what the plainer code before it stored. That
 code is kept here as the reference: the kinds' pumps, their lives and their stored analyses read in three queries,
-framed with pandas, fitted by fleet.trend.weibull.fit_fleet_priors and summed by fleet.trend.engine.prior_figures.
+framed with pandas, fitted by the pandas loop per kind fit_fleet_priors ran before (also kept here, and
+fit_fleet_priors compared with it) and summed by fleet.trend.engine.prior_figures.
 The comparison is to the last bit (common practice, no source: a reference implementation kept beside the fast
 one). The demo plant is invented."""
 
@@ -17,11 +18,31 @@ from fleet.services.analysis import store
 from fleet.timeutil import utcnow
 from fleet.trend.engine import prior_figures
 from fleet.trend.settings import AnalysisSettings
-from fleet.trend.weibull import fit_fleet_priors
+from fleet.trend.weibull import fit_fleet_priors, fit_weibull
+
+
+def _reference_fit_fleet_priors(lives, kind_of_pump, min_failures=3):
+    """fit_fleet_priors as it stood before it handed plain arrays to fit_kind_priors: a pandas loop per kind."""
+    data = lives.assign(kind=lives["pump_id"].map(kind_of_pump))
+    rows = []
+    for kind in sorted(kind_of_pump.dropna().unique()):
+        d = data[data["kind"] == kind]
+        n_fail, n_susp = int(d["failed"].sum()), int((~d["failed"]).sum())
+        row = {"kind": kind, "beta": np.nan, "alpha": np.nan, "b10_hours": np.nan, "n_failures": n_fail,
+               "n_suspensions": n_susp, "note": None}
+        if n_fail < min_failures:
+            row["note"] = (f"No fleet life figures for {kind}: {n_fail} completed interval"
+                           f"{'s' if n_fail != 1 else ''} on record, {min_failures} needed.")
+        else:
+            fit = fit_weibull(d["life_hours"], d["failed"], d["entry_hours"])
+            row.update(beta=fit.beta, alpha=fit.alpha, b10_hours=fit.b10_hours)
+        rows.append(row)
+    columns = ["kind", "beta", "alpha", "b10_hours", "n_failures", "n_suspensions", "note"]
+    return pd.DataFrame(rows, columns=columns).set_index("kind")
 
 
 def _reference_refit(session, kinds, now, settings) -> None:
-    """refit_kinds as it stood before it read fewer queries and fitted on arrays."""
+    """refit_kinds as it stood before it read fewer queries and fitted on arrays (its fit the pandas loop)."""
     kinds = sorted(k for k in kinds if k)
     if not kinds:
         return
@@ -36,7 +57,7 @@ def _reference_refit(session, kinds, now, settings) -> None:
                           "entry_hours": np.array(entry, dtype=float)[order],
                           "life_hours": np.array(life, dtype=float)[order],
                           "failed": np.array(failed, dtype=bool)[order]})
-    priors = fit_fleet_priors(lives, kind_of, settings.min_weibull_failures)
+    priors = _reference_fit_fleet_priors(lives, kind_of, settings.min_weibull_failures)
     result = AnalysisResult.__table__
     stored = sorted(store._plain_rows(session, select(result.c.pump_id, Pump.kind, result.c.age_hours,
                                                       result.c.planning_horizon_hours)
@@ -117,3 +138,23 @@ def test_pumps_without_a_stored_analysis_or_lives_refit_as_the_reference(demo_db
     reference, mine = _both(demo_db, kinds, without_some)
     assert _same_bits(reference, mine), (reference, mine)
     assert mine[kinds[-1]]["n_failures"] == 0 and mine[kinds[-1]]["beta"] is None
+
+
+def test_fleet_priors_on_arrays_equal_the_pandas_loop():
+    # Invented lives drawn with scipy.stats.weibull_min, three kinds, some pumps without a kind, in any order.
+    from scipy import stats
+
+    rng = np.random.default_rng(5)
+    n = 600
+    lives = pd.DataFrame({"pump_id": rng.integers(0, 200, n), "entry_hours": np.where(rng.random(n) < 0.2, 50.0, 0.0),
+                          "life_hours": 60.0 + stats.weibull_min.rvs(1.8, scale=20_000.0, size=n, random_state=rng),
+                          "failed": rng.random(n) < 0.6})
+    kind_of = pd.Series(rng.choice(np.array(["vane", "external_gear", "lobe"], dtype=object), 200), dtype=object)
+    kind_of.iloc[::9] = None
+    kind_of.iloc[kind_of.index[kind_of == "lobe"][2:]] = "vane"  # lobe keeps two pumps: too few failures, maybe
+    for frame in (lives, lives.iloc[::-1].reset_index(drop=True), lives.iloc[:5]):
+        want = _reference_fit_fleet_priors(frame, kind_of, 3)
+        got = fit_fleet_priors(frame, kind_of, 3)
+        pd.testing.assert_frame_equal(got, want, check_exact=True)
+    assert want.index.tolist() == ["external_gear", "lobe", "vane"]
+    assert np.isfinite(_reference_fit_fleet_priors(lives, kind_of, 3).loc["vane", "beta"])
