@@ -69,37 +69,47 @@ def _weighed_pairs(fits: LawFits, confidence: float) -> dict:
     return pairs
 
 
-def _pairs_cdf(pairs: dict, hours: np.ndarray, value: np.ndarray) -> np.ndarray:
-    """P(member's line at hours <= value) for every weighed pair; hours and value already picked per pair."""
-    return _pairs_cdf_at(pairs, _pairs_moments(pairs, hours), value)
-
-
 def _pairs_moments(pairs: dict, hours: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Each weighed pair's line at its hours (picked per pair): mean, standard deviation, and whether the line
     is of ln q. A search over the value at fixed hours (value_quantile) takes them once for all its steps."""
+    with np.errstate(invalid="ignore", divide="ignore", over="ignore"):
+        return _moments_at(pairs, hours)
+
+
+def _moments_at(pairs: dict, hours: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """_pairs_moments without its error state (the caller's): a search takes one step after another, and each
+    step's fixed cost is most of a step for one pump's few pairs. A law no pair is of is not evaluated (its
+    assignment would move nothing)."""
     col = (slice(None), None) if hours.ndim == 2 else (slice(None),)
     x = hours.copy()
-    with np.errstate(invalid="ignore", divide="ignore", over="ignore"):
-        u = np.maximum((hours + pairs["offset"][col]) / pairs["scale"][col], 0.0)
-        power, run_in = pairs["kind"] == 1, pairs["kind"] == 2
+    u = np.maximum((hours + pairs["offset"][col]) / pairs["scale"][col], 0.0)
+    kind = pairs["kind"]
+    power, run_in = kind == 1, kind == 2
+    if power.any():
         x[power] = u[power] ** pairs["power"][power][col]
+    if run_in.any():
         x[run_in] = run_in_x(u[run_in], pairs["tau"][run_in][col], pairs["share"][run_in][col])
-        mean = pairs["a"][col] + pairs["b"][col] * x
-        var = pairs["var_a"][col] + 2.0 * x * pairs["cov_ab"][col] + x * x * pairs["var_b"][col]
-        sd = np.sqrt(np.maximum(var, 0.0))
+    mean = pairs["a"][col] + pairs["b"][col] * x
+    var = pairs["var_a"][col] + 2.0 * x * pairs["cov_ab"][col] + x * x * pairs["var_b"][col]
+    sd = np.sqrt(np.maximum(var, 0.0))
     return mean, sd, np.broadcast_to(pairs["log"][col], hours.shape)
 
 
-def _pairs_cdf_at(pairs: dict, moments: tuple, value: np.ndarray) -> np.ndarray:
-    """_pairs_cdf from the pairs' moments at their hours (_pairs_moments)."""
+def _cdf_at(pairs: dict, moments: tuple, value: np.ndarray) -> np.ndarray:
+    """P(member's line at its hours <= value) for every weighed pair, from the pairs' moments there
+    (_moments_at), without an error state of its own (the caller's). Where no pair is of ln q, the level is the
+    value and no pair is held above zero flow; P is 0.5 where the standard normal's CDF is NaN (it is never
+    infinite)."""
     mean, sd, log = moments
     col = (slice(None), None) if mean.ndim == 2 else (slice(None),)
-    with np.errstate(invalid="ignore", divide="ignore", over="ignore"):
-        level = np.where(log, np.log(np.where(value > 0, value, np.nan)), value)
-        t = (level - mean) / sd
+    any_log = pairs["log"].any()
+    level = np.where(log, np.log(np.where(value > 0, value, np.nan)), value) if any_log else value
+    t = (level - mean) / sd
     t = np.where(sd > 0, t, np.where(level >= mean, np.inf, -np.inf))
-    t = np.where(log & ~(value > 0), -np.inf, t)  # a log member never goes below zero flow
-    return np.nan_to_num(special.ndtr(t * pairs["ratio"][col]), nan=0.5)
+    if any_log:
+        t = np.where(log & ~(value > 0), -np.inf, t)  # a log member never goes below zero flow
+    p = special.ndtr(t * pairs["ratio"][col])
+    return np.where(np.isnan(p), 0.5, p)
 
 
 def value_cdf(fits: LawFits, hours, value, confidence: float, pairs: dict | None = None) -> np.ndarray:
@@ -120,8 +130,8 @@ def _mixture_cdf(pairs: dict, hours: np.ndarray, value: np.ndarray, moments: tup
     rows = pairs["rows"]
     if rows.size:
         col = (slice(None), None) if hours.ndim == 2 else (slice(None),)
-        p = (_pairs_cdf(pairs, hours[rows], value[rows]) if moments is None
-             else _pairs_cdf_at(pairs, moments, value[rows]))
+        with np.errstate(invalid="ignore", divide="ignore", over="ignore"):  # once for the step
+            p = _cdf_at(pairs, _moments_at(pairs, hours[rows]) if moments is None else moments, value[rows])
         total[rows[pairs["starts"]]] = np.add.reduceat(pairs["weight"][col] * p, pairs["starts"], axis=0)
     return total
 

@@ -97,13 +97,25 @@ def fit_fleet_priors(lives: pd.DataFrame, kind_of_pump: pd.Series, min_failures:
     """One row per pump kind: beta, alpha, b10_hours, n_failures, n_suspensions, note.
 
     lives: intervals.interval_lives output (pump_id, entry_hours, life_hours, failed). A kind with fewer
-    than min_failures completed intervals gets no fit and a note saying so. A loop per kind.
+    than min_failures completed intervals gets no fit and a note saying so. fit_kind_priors does the work.
     """
-    data = lives.assign(kind=lives["pump_id"].map(kind_of_pump))
+    return fit_kind_priors(sorted(kind_of_pump.dropna().unique()),
+                           lives["pump_id"].map(kind_of_pump).to_numpy(dtype=object), lives["entry_hours"],
+                           lives["life_hours"], lives["failed"], min_failures)
+
+
+def fit_kind_priors(kinds, life_kind, entry_hours, life_hours, failed, min_failures: int = 3) -> pd.DataFrame:
+    """fit_fleet_priors on plain arrays: one row per kind of ``kinds`` (in that order), fitted from the lives
+    whose kind (``life_kind``, one per life) is that kind, taken in the order given. A loop per kind."""
+    life_kind = np.asarray(life_kind, dtype=object)
+    entry = np.asarray(entry_hours, dtype=float)
+    life = np.asarray(life_hours, dtype=float)
+    failed = np.asarray(failed, dtype=bool)
     rows = []
-    for kind in sorted(kind_of_pump.dropna().unique()):
-        d = data[data["kind"] == kind]
-        n_fail, n_susp = int(d["failed"].sum()), int((~d["failed"]).sum())
+    for kind in kinds:
+        mine = life_kind == kind
+        kind_failed = failed[mine]
+        n_fail, n_susp = int(kind_failed.sum()), int((~kind_failed).sum())
         row = {
             "kind": kind,
             "beta": np.nan,
@@ -119,7 +131,7 @@ def fit_fleet_priors(lives: pd.DataFrame, kind_of_pump: pd.Series, min_failures:
                 f"{'s' if n_fail != 1 else ''} on record, {min_failures} needed."
             )
         else:
-            fit = fit_weibull(d["life_hours"], d["failed"], d["entry_hours"])
+            fit = fit_weibull(life[mine], kind_failed, entry[mine])
             row.update(beta=fit.beta, alpha=fit.alpha, b10_hours=fit.b10_hours)
         rows.append(row)
     columns = ["kind", "beta", "alpha", "b10_hours", "n_failures", "n_suspensions", "note"]

@@ -24,10 +24,10 @@ from fleet.jsonvalues import json_ready
 from fleet.services.analysis.compute import Computed
 from fleet.services.analysis.snapshots import keep_forecasts
 from fleet.services.mail.outbox import queue_alerts
-from fleet.trend.engine import prior_figures, results_to_records
+from fleet.trend.engine import results_to_records
 from fleet.trend.settings import AnalysisSettings
 from fleet.trend.status import service_order_keys
-from fleet.trend.weibull import conditional_failure_probability, fit_fleet_priors
+from fleet.trend.weibull import conditional_failure_probability, expected_overhauls, fit_kind_priors
 
 # The fields of the JSON contract (`fleet analyze --json`).
 CONTRACT_FIELDS = (
@@ -312,27 +312,31 @@ def refit_kinds(session: Session, kinds, now: datetime, settings: AnalysisSettin
     kinds = sorted(k for k in kinds if k)
     if not kinds:
         return
-    kind_of = pd.Series(dict(_plain_rows(session, select(Pump.id, Pump.kind).where(Pump.kind.in_(kinds)))),
-                        dtype=object)
+    result = AnalysisResult.__table__
+    # Every pump of the kinds, with its stored age and horizon where it has a stored analysis: one pass over the
+    # pumps gives the kinds that have pumps (each gets a row) and what the expected overhauls sum over.
+    pumps = _plain_rows(session, select(Pump.id, Pump.kind, result.c.pump_id, result.c.age_hours,
+                                        result.c.planning_horizon_hours)
+                        .outerjoin(result, result.c.pump_id == Pump.id).where(Pump.kind.in_(kinds)))
     # Sorted here, by pump and interval (a pump's intervals are unique), rather than by the query (which would scan
     # the tables in that order): a fixed order gives the same sums, so the same fit, however the rows lie on disk.
     rows = _plain_rows(session, select(
-        ServiceLife.pump_id, ServiceLife.interval_no, ServiceLife.entry_hours, ServiceLife.life_hours,
+        ServiceLife.pump_id, ServiceLife.interval_no, Pump.kind, ServiceLife.entry_hours, ServiceLife.life_hours,
         ServiceLife.failed).join(Pump, Pump.id == ServiceLife.pump_id).where(Pump.kind.in_(kinds)))
-    pump_id, interval_no, entry, life, failed = (list(c) for c in zip(*rows, strict=True)) if rows else ([],) * 5
+    pump_id, interval_no, life_kind, entry, life, failed = (
+        (list(c) for c in zip(*rows, strict=True)) if rows else ([],) * 6)
     order = np.lexsort((np.array(interval_no, dtype=np.int64), np.array(pump_id, dtype=np.int64)))
-    lives = pd.DataFrame({"pump_id": np.array(pump_id, dtype=np.int64)[order],
-                          "entry_hours": np.array(entry, dtype=float)[order],
-                          "life_hours": np.array(life, dtype=float)[order],
-                          "failed": np.array(failed, dtype=bool)[order]})
-    priors = fit_fleet_priors(lives, kind_of, settings.min_weibull_failures)
-    result = AnalysisResult.__table__
-    stored = sorted(_plain_rows(session, select(result.c.pump_id, Pump.kind, result.c.age_hours,
-                                                result.c.planning_horizon_hours)
-                                .join(Pump, Pump.id == result.c.pump_id).where(Pump.kind.in_(kinds))))
-    if stored:
-        _, kind, age, horizon = (np.array(c, dtype=object) for c in zip(*stored, strict=True))
-        _, _, priors = prior_figures(kind, age.astype(float), horizon.astype(float), priors)
+    priors = fit_kind_priors(sorted({row[1] for row in pumps}), np.array(life_kind, dtype=object)[order],
+                             np.array(entry, dtype=float)[order], np.array(life, dtype=float)[order],
+                             np.array(failed, dtype=bool)[order], settings.min_weibull_failures)
+    ids, kind, result_id, age, horizon = (np.array(c, dtype=object) for c in zip(*pumps, strict=True)) if pumps else (
+        np.array([], dtype=object),) * 5
+    stored = np.flatnonzero(result_id != None)  # noqa: E711 (elementwise: the pumps with a stored analysis)
+    if stored.size:
+        stored = stored[np.argsort(ids[stored].astype(np.int64), kind="stable")]  # by pump, as the fit's lives
+        # The expected overhauls as fleet.trend.engine.prior_figures sums them (its per-pump figures unused here).
+        expected = expected_overhauls(age[stored].astype(float), horizon[stored].astype(float), kind[stored], priors)
+        priors["expected_overhauls_in_horizon"] = expected.reindex(priors.index)
     else:
         priors["expected_overhauls_in_horizon"] = np.nan
     session.execute(delete(FleetPrior).where(FleetPrior.kind.in_(kinds)))

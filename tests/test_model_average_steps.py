@@ -1,0 +1,129 @@
+"""The searches of fleet.trend.model_average (crossings and value quantiles) take one step after another, and for
+one pump each step's fixed cost is most of it: a step now sets numpy's error state once, skips a law no weighed
+pair is of and the logarithm where no pair is of ln q, and maps a NaN probability to 0.5 with np.where rather
+than np.nan_to_num. The per-step code before is kept here as the reference; every search must give its figures
+to the last bit (common practice, no source: a reference implementation kept beside the faster one).
+The readings are invented."""
+
+import dataclasses
+
+import numpy as np
+import pytest
+from scipy import special
+
+from fleet.trend import model_average
+from fleet.trend.settings import AnalysisSettings
+from fleet.trend.wear_laws import fit_wear_laws, run_in_x
+
+CONVERGED = AnalysisSettings(irls_iterations=200, irls_tolerance=1e-13)
+
+
+def _reference_moments(pairs, hours):
+    col = (slice(None), None) if hours.ndim == 2 else (slice(None),)
+    x = hours.copy()
+    with np.errstate(invalid="ignore", divide="ignore", over="ignore"):
+        u = np.maximum((hours + pairs["offset"][col]) / pairs["scale"][col], 0.0)
+        power, run_in = pairs["kind"] == 1, pairs["kind"] == 2
+        x[power] = u[power] ** pairs["power"][power][col]
+        x[run_in] = run_in_x(u[run_in], pairs["tau"][run_in][col], pairs["share"][run_in][col])
+        mean = pairs["a"][col] + pairs["b"][col] * x
+        var = pairs["var_a"][col] + 2.0 * x * pairs["cov_ab"][col] + x * x * pairs["var_b"][col]
+        sd = np.sqrt(np.maximum(var, 0.0))
+    return mean, sd, np.broadcast_to(pairs["log"][col], hours.shape)
+
+
+def _reference_cdf_at(pairs, moments, value):
+    mean, sd, log = moments
+    col = (slice(None), None) if mean.ndim == 2 else (slice(None),)
+    with np.errstate(invalid="ignore", divide="ignore", over="ignore"):
+        level = np.where(log, np.log(np.where(value > 0, value, np.nan)), value)
+        t = (level - mean) / sd
+    t = np.where(sd > 0, t, np.where(level >= mean, np.inf, -np.inf))
+    t = np.where(log & ~(value > 0), -np.inf, t)
+    return np.nan_to_num(special.ndtr(t * pairs["ratio"][col]), nan=0.5)
+
+
+def _reference_mixture(pairs, hours, value, moments=None):
+    total = np.zeros(hours.shape)
+    rows = pairs["rows"]
+    if rows.size:
+        col = (slice(None), None) if hours.ndim == 2 else (slice(None),)
+        moments = _reference_moments(pairs, hours[rows]) if moments is None else moments
+        p = _reference_cdf_at(pairs, moments, value[rows])
+        total[rows[pairs["starts"]]] = np.add.reduceat(pairs["weight"][col] * p, pairs["starts"], axis=0)
+    return total
+
+
+def _laws():
+    """Groups of every wear shape (accelerating, steady, exponential, run-in, flat), each its own group, and the
+    same readings as one group each (a pump's few pairs), with limits and current hours."""
+    rng = np.random.default_rng(17)
+    shapes = [lambda h: 5.0 + 1.2e-3 * h + 3e-7 * h**2, lambda h: 5.0 + 2e-3 * h, lambda h: 5.0 * np.exp(2e-4 * h),
+              lambda h: 5.0 + 2.0 * (1.0 - np.exp(-h / 400.0)) + 5e-4 * h, lambda h: 5.0 + 0.0 * h,
+              lambda h: 4.0 + 4e-3 * h]
+    groups, hours, flows = [], [], []
+    for g, shape in enumerate(shapes):
+        h = np.linspace(0.0, 3000.0 + 600.0 * g, 20 + 2 * g)
+        groups.append(np.full(h.size, g))
+        hours.append(h)
+        flows.append(shape(h) + rng.normal(0.0, 0.1, h.size))
+    group, h, q = np.concatenate(groups), np.concatenate(hours), np.concatenate(flows)
+    laws = fit_wear_laws(group, h, q, lambda _f: np.full(q.size, 0.1), np.full(q.size, 1e-6), len(shapes),
+                         CONVERGED, np.zeros(len(shapes)))
+    now = np.array([3000.0 + 600.0 * g for g in range(len(shapes))])
+    limit = np.array([20.0, 15.0, 30.0, 14.0, 9.0, 3.0])  # the last is passed at the start
+    return laws, limit, now
+
+
+def _searches(laws, limit, now):
+    hours = now[:, None] * np.array([[0.0, 0.5, 1.0, 2.0, 10.0]])
+    return {
+        "crossing_band": model_average.crossing_band(laws, limit, now, 0.90),
+        "crossing_quantiles": model_average.crossing_quantiles(laws, limit, now, (0.05, 0.5, 0.95), 0.90),
+        "crossing_median": model_average.crossing_quantiles(laws, limit, now, (0.5,), 0.90),
+        "value_band": model_average.value_band(laws, hours, 0.90),
+        "value_quantile": model_average.value_quantile(laws, now, 0.5, 0.90),
+        "heaviest_law_median": model_average.heaviest_law_median(laws, hours, 0.90),
+        "value_cdf": model_average.value_cdf(laws, hours, limit[:, None], 0.90),
+    }
+
+
+def test_every_search_gives_the_reference_steps_figures_to_the_last_bit(monkeypatch):
+    laws, limit, now = _laws()
+    pairs = model_average._weighed_pairs(laws, 0.90)
+    # The cases are all there: pairs of the power and run-in families and of ln q, and pairs of plain lines.
+    assert {0, 1, 2} <= set(pairs["kind"].tolist()) and pairs["log"].any() and not pairs["log"].all()
+    cases = [(laws, limit, now)]
+    for g in range(len(now)):  # each group alone (the others unfitted): one pump's few pairs
+        alone = dataclasses.replace(laws, weight=np.where((np.arange(len(now)) == g)[:, None], laws.weight, 0.0),
+                                    _t_ratio={})
+        cases.append((alone, limit, now))
+    for law in ("linear", "exponential", "power", "run_in"):  # one law alone: some steps without log or run-in pairs
+        cases.append((model_average.law_alone(laws, law), limit, now))
+    mine = [_searches(*case) for case in cases]
+    monkeypatch.setattr(model_average, "_mixture_cdf", _reference_mixture)
+    monkeypatch.setattr(model_average, "_pairs_moments", _reference_moments)
+    reference = [_searches(*case) for case in cases]
+    finite = 0
+    for got, want in zip(mine, reference, strict=True):
+        for name in want:
+            for a, b in zip(np.atleast_1d(got[name]) if not isinstance(got[name], tuple | list) else got[name],
+                            np.atleast_1d(want[name]) if not isinstance(want[name], tuple | list) else want[name],
+                            strict=True):
+                assert np.array_equal(a, b, equal_nan=True), (name, a, b)
+                finite += int(np.isfinite(a).sum())
+    assert finite > 100
+
+
+def test_a_step_without_log_or_run_in_pairs_skips_them_and_agrees(monkeypatch):
+    laws, limit, now = _laws()
+    linear = model_average.law_alone(laws, "linear")
+    pairs = model_average._weighed_pairs(linear, 0.90)
+    assert not pairs["log"].any() and not (pairs["kind"] > 0).any()
+    hours = np.broadcast_to(now[:, None], (len(now), 3))
+    value = limit[:, None] * np.array([[0.5, 1.0, 2.0]])
+    got = model_average._mixture_cdf(pairs, hours, value)
+    want = _reference_mixture(pairs, hours, value)
+    assert np.array_equal(got, want, equal_nan=True)
+    assert got[0] == pytest.approx(want[0], abs=0)  # and a probability, not NaN
+    assert ((got >= 0) & (got <= 1)).all()
