@@ -28,7 +28,6 @@ from sqlalchemy.orm import Session
 
 import fleet.services.analysis.compute as compute_module
 from fleet.db.models import Pump
-from fleet.jsonvalues import json_ready
 from fleet.services.analysis.compute import analyse_part, data_versions
 from fleet.services.analysis.store import NOT_IN_DETAIL
 from fleet.timeutil import utcnow
@@ -76,9 +75,8 @@ def spool_part(session: Session, pump_ids: list[int], now: datetime, settings: A
                path: Path) -> PartSummary:
     """Analyse ``pump_ids`` and write the part to ``path`` (the same whether run here or in a worker)."""
     part = analyse_part(session, pump_ids, now, settings)
-    records = results_to_records(part.results)
-    details = [json_text(json_ready({k: v for k, v in record.items() if k not in NOT_IN_DETAIL}))
-               for record in records]
+    records = results_to_records(part.results)  # JSON-ready already: json_ready would give each value back as it is
+    details = [json_text({k: v for k, v in record.items() if k not in NOT_IN_DETAIL}) for record in records]
     trends = part.trends.drop(columns="fit")
     trends["fit_json"] = [json_text(fit) for fit in part.trends["fit"]]
     lives = interval_lives(part.intervals)
