@@ -28,7 +28,7 @@ from sqlalchemy.orm import Session
 
 import fleet.services.analysis.compute as compute_module
 from fleet.db.models import Pump
-from fleet.services.analysis.compute import analyse_part, data_versions
+from fleet.services.analysis.compute import analyse_part, data_versions, part_ids
 from fleet.services.analysis.store import NOT_IN_DETAIL
 from fleet.timeutil import utcnow
 from fleet.trend.engine import results_to_records
@@ -123,10 +123,10 @@ def spool_fleet(session: Session, folder: Path, now: datetime | None = None,
     versions = data_versions(session)  # first: the data read next is at least this new
     ids = list(session.scalars(select(Pump.id).order_by(Pump.id)))
     chunk_pumps = chunk_pumps or compute_module.CHUNK_PUMPS
-    id_parts = [ids[first:first + chunk_pumps] for first in range(0, len(ids), chunk_pumps)]
+    url = _shared_url(session) if workers > 1 and len(ids) > chunk_pumps else None
+    id_parts = part_ids(ids, chunk_pumps, workers if url is not None else 1)
     paths = [folder / f"part-{number:05d}.pickle" for number in range(len(id_parts))]
     peaks: dict[int, float] = {}
-    url = _shared_url(session) if workers > 1 and len(id_parts) > 1 else None
     if url is not None:
         from fleet.services.analysis.parallel import spool_in_workers
 
