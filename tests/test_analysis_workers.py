@@ -20,7 +20,7 @@ from tests.frame_compare import plain as _plain
 from tests.frame_compare import same_frames
 
 NOW = dt.datetime(2026, 12, 1, 12)
-PART = 7  # 41 demo pumps: six parts, the last one short
+PART = 7  # 41 demo pumps: six parts of 6 or 7 (compute.part_ids)
 
 
 def test_parts_in_two_workers_give_the_figures_of_one_process(demo_db):
@@ -93,3 +93,21 @@ def test_a_part_failing_in_a_worker_fails_the_run_and_nothing_is_returned(tmp_pa
     missing = f"sqlite:///{tmp_path / 'no such folder' / 'fleet.sqlite'}"
     with pytest.raises(Exception, match="unable to open database file"):
         parts_in_workers(missing, [[1, 2], [3, 4], [5]], NOW, AnalysisSettings(), 2)
+
+
+def test_parts_cut_even_and_a_multiple_of_the_workers():
+    # Common practice, no source: every pump once and in order, no part above the size, sizes within one of each
+    # other, and with workers the number of parts a multiple of theirs (the workers run out of parts together).
+    for pumps, size, workers in [(10_000, 400, 2), (10_000, 400, 1), (41, 7, 2), (41, 7, 3), (10_001, 400, 1),
+                                 (3, 7, 2), (8, 7, 2), (2, 1, 4), (1, 1, 2), (0, 5, 2)]:
+        ids = list(range(100, 100 + pumps))
+        parts = compute_module.part_ids(ids, size, workers)
+        assert [pump for part in parts for pump in part] == ids
+        sizes = [len(part) for part in parts]
+        assert all(0 < n <= size for n in sizes) and max(sizes, default=0) - min(sizes, default=0) <= 1
+        fewest = -(-pumps // size)
+        if workers > 1 and fewest > 1:
+            assert len(parts) % workers == 0 or len(parts) == pumps
+        else:
+            assert len(parts) == fewest
+    assert len(compute_module.part_ids(list(range(10_000)), 400, 2)) == 26  # 25 parts of 400 before

@@ -228,7 +228,26 @@ def reference_reweighted(
     return line, robust_w
 
 
+def reference_best_family_huber(family, group, hours, q, sigma, out, deviance, hours_scale, offset, n_groups,
+                                settings):
+    """The Huber weights about each group's best line of the family, as it was: one mask over every reading per
+    best member."""
+    of_family = np.array([m.law == family for m in wear_laws.MEMBERS])
+    family_dev = np.where(np.isfinite(deviance[:, of_family]), deviance[:, of_family], np.inf)
+    best = np.flatnonzero(of_family)[np.argmin(family_dev, axis=1)]
+    fitted = np.full(len(q), np.nan)
+    for j in np.unique(best):
+        at = best[group] == j
+        x = wear_laws.member_x(wear_laws.MEMBERS[j], hours[at], hours_scale[group[at]], offset[group[at]])
+        fitted[at] = out["a"][group[at], j] + out["b"][group[at], j] * x
+    z = (q - fitted) / sigma
+    u = np.abs(z) / robust.robust_scale(group, z, n_groups)[group]
+    with np.errstate(invalid="ignore", divide="ignore"):
+        return np.where(u > settings.huber_k, settings.huber_k / u, 1.0)
+
+
 REFERENCES = {
+    (wear_laws, "_best_family_huber"): reference_best_family_huber,
     (wear_laws, "_fit_family_members"): reference_family_members,
     (wear_laws, "run_in_identifiable"): reference_identifiable,
     (wear_laws.LawFits, "centred_on"): reference_centred_on,

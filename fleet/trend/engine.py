@@ -512,10 +512,50 @@ def _plain(value):
     return None if pd.isna(value) else str(value)
 
 
+# From this many rows a column of numbers, flags or times is made plain as a whole (_plain_column); fewer (the
+# one pump of a write) go value by value, which costs less than the column's numpy steps.
+_WHOLE_COLUMNS = 32
+
+
+def _plain_column(values: pd.Series) -> list:
+    """[_plain(v) for v in values.tolist()], a column at once where its dtype says what every cell is: numbers
+    (non-finite -> None), whole numbers and flags as they are, text (missing -> None), times from 1970 to 9999 as
+    'YYYY-MM-DD' by numpy (the text strftime gives for them; NaT -> None); any other column value by value."""
+    dtype = values.dtype
+    if isinstance(dtype, np.dtype) and dtype.kind in "iub":
+        return values.to_numpy().tolist()
+    if isinstance(dtype, np.dtype) and dtype.kind == "f":
+        array = values.to_numpy()
+        plain = array.tolist()
+        for at in np.flatnonzero(~np.isfinite(array)).tolist():
+            plain[at] = None
+        return plain
+    if isinstance(dtype, pd.StringDtype):
+        plain = values.tolist()  # str, or the dtype's missing value
+        for at in np.flatnonzero(values.isna().to_numpy()).tolist():
+            plain[at] = None
+        return plain
+    if isinstance(dtype, np.dtype) and dtype.kind == "M":
+        array = values.to_numpy()
+        missing = np.isnat(array)
+        days = array.astype("datetime64[D]")
+        known = days[~missing].view(np.int64)
+        # 1970-01-01 .. 9999-12-31: whole days from 1970 (no rounding of times before it), four-digit years
+        if not known.size or (known.min() >= 0 and known.max() <= 2932896):
+            plain = np.datetime_as_string(days, unit="D").tolist()
+            for at in np.flatnonzero(missing).tolist():
+                plain[at] = None
+            return plain
+    return [_plain(v) for v in values.tolist()]
+
+
 def results_to_records(results: pd.DataFrame) -> list[dict]:
     """Results rows as JSON-ready dicts (pump_id included)."""
     frame = results.reset_index()
     # Column by column as Python values (what to_dict gives, without its lookup per cell), then row by row.
     names = [str(k) for k in frame.columns]
-    columns = [[_plain(v) for v in values.tolist()] for _, values in frame.items()]
+    if len(frame) >= _WHOLE_COLUMNS:
+        columns = [_plain_column(values) for _, values in frame.items()]
+    else:
+        columns = [[_plain(v) for v in values.tolist()] for _, values in frame.items()]
     return [dict(zip(names, row, strict=True)) for row in zip(*columns, strict=True)]

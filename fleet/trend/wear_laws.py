@@ -455,10 +455,17 @@ def _best_family_huber(family, group, hours, q, sigma, out, deviance, hours_scal
     family_dev = np.where(np.isfinite(deviance[:, of_family]), deviance[:, of_family], np.inf)
     best = np.flatnonzero(of_family)[np.argmin(family_dev, axis=1)]
     fitted = np.full(len(q), np.nan)
-    for j in np.unique(best):
-        at = best[group] == j
-        x = member_x(MEMBERS[j], hours[at], hours_scale[group[at]], offset[group[at]])
-        fitted[at] = out["a"][group[at], j] + out["b"][group[at], j] * x
+    # The readings of each best member, in their own order (one stable sort by member, not a pass over every
+    # reading per member): member_x then gets the very arrays a mask per member would pick.
+    member = best[group].astype(np.int16)  # a small integer key: numpy's stable sort of it is a radix sort
+    order = np.argsort(member, kind="stable")
+    counts = np.bincount(member, minlength=len(MEMBERS))
+    ends = np.cumsum(counts)
+    for j in np.flatnonzero(counts).tolist():
+        at = order[ends[j] - counts[j]:ends[j]]
+        g = group[at]
+        x = member_x(MEMBERS[j], hours[at], hours_scale[g], offset[g])
+        fitted[at] = out["a"][g, j] + out["b"][g, j] * x
     z = (q - fitted) / sigma
     u = np.abs(z) / robust_scale(group, z, n_groups)[group]
     with np.errstate(invalid="ignore", divide="ignore"):

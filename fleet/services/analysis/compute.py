@@ -21,6 +21,18 @@ Progress = Callable[[int, int, str], None]
 CHUNK_PUMPS = 400  # pumps analysed at once in a full refresh: bounds its memory (measured in benchmarks/run.py)
 
 
+def part_ids(ids: list[int], chunk_pumps: int, workers: int = 1) -> list[list[int]]:
+    """``ids`` cut in order into parts of at most ``chunk_pumps``, their sizes as even as can be (they differ by one
+    at most), and with ``workers`` > 1 as many parts as a multiple of ``workers``: the workers then run out of parts
+    together, where 25 parts of 400 left one worker alone with the last part while the other core stood idle."""
+    if not ids:
+        return []
+    count = -(-len(ids) // chunk_pumps)
+    if workers > 1 and count > 1:
+        count = min(-(-count // workers) * workers, len(ids))
+    return [ids[n * len(ids) // count:(n + 1) * len(ids) // count] for n in range(count)]
+
+
 @dataclass
 class Computed:
     """An analysis ready to store: one row per pump, the service lives behind the fleet life figures, and the
@@ -128,8 +140,9 @@ def analyse_results(session: Session, pump_ids=None, now: datetime | None = None
         return part.results, interval_lives(part.intervals), interval_trends(part.fit_columns(),
                                                                              part.intervals, settings.confidence)
     chunk_pumps = chunk_pumps or CHUNK_PUMPS
-    id_parts = [ids[first:first + chunk_pumps] for first in range(0, len(ids), chunk_pumps)]
-    if workers > 1 and len(id_parts) > 1 and url is not None:
+    pooled = workers > 1 and len(ids) > chunk_pumps and url is not None
+    id_parts = part_ids(ids, chunk_pumps, workers if pooled else 1)
+    if pooled:
         from fleet.services.analysis.parallel import parts_in_workers
 
         parts = parts_in_workers(url, id_parts, now, settings, workers, worker_peaks_mb)

@@ -28,8 +28,7 @@ from sqlalchemy.orm import Session
 
 import fleet.services.analysis.compute as compute_module
 from fleet.db.models import Pump
-from fleet.jsonvalues import json_ready
-from fleet.services.analysis.compute import analyse_part, data_versions
+from fleet.services.analysis.compute import analyse_part, data_versions, part_ids
 from fleet.services.analysis.store import NOT_IN_DETAIL
 from fleet.timeutil import utcnow
 from fleet.trend.engine import results_to_records
@@ -76,9 +75,8 @@ def spool_part(session: Session, pump_ids: list[int], now: datetime, settings: A
                path: Path) -> PartSummary:
     """Analyse ``pump_ids`` and write the part to ``path`` (the same whether run here or in a worker)."""
     part = analyse_part(session, pump_ids, now, settings)
-    records = results_to_records(part.results)
-    details = [json_text(json_ready({k: v for k, v in record.items() if k not in NOT_IN_DETAIL}))
-               for record in records]
+    records = results_to_records(part.results)  # JSON-ready already: json_ready would give each value back as it is
+    details = [json_text({k: v for k, v in record.items() if k not in NOT_IN_DETAIL}) for record in records]
     trends = part.trends.drop(columns="fit")
     trends["fit_json"] = [json_text(fit) for fit in part.trends["fit"]]
     lives = interval_lives(part.intervals)
@@ -125,10 +123,10 @@ def spool_fleet(session: Session, folder: Path, now: datetime | None = None,
     versions = data_versions(session)  # first: the data read next is at least this new
     ids = list(session.scalars(select(Pump.id).order_by(Pump.id)))
     chunk_pumps = chunk_pumps or compute_module.CHUNK_PUMPS
-    id_parts = [ids[first:first + chunk_pumps] for first in range(0, len(ids), chunk_pumps)]
+    url = _shared_url(session) if workers > 1 and len(ids) > chunk_pumps else None
+    id_parts = part_ids(ids, chunk_pumps, workers if url is not None else 1)
     paths = [folder / f"part-{number:05d}.pickle" for number in range(len(id_parts))]
     peaks: dict[int, float] = {}
-    url = _shared_url(session) if workers > 1 and len(id_parts) > 1 else None
     if url is not None:
         from fleet.services.analysis.parallel import spool_in_workers
 
