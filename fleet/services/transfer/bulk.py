@@ -74,24 +74,8 @@ class BulkInsert:
             self.statement = f"COPY {model.__tablename__} ({self._names}) FROM STDIN (FORMAT csv)"
 
     def insert(self, shape: tuple[str, ...], rows: int) -> str:
-        """SQLite's INSERT of ``rows`` rows whose columns come in as ``shape`` says: the k-th ROW column of row r
-        is parameter r * (ROW columns) + k, the j-th ONCE column parameter rows * (ROW columns) + j of every row,
-        a NULL column the literal NULL (numbered parameters, so a shared value is bound once a statement)."""
-        bound = shape.count(ROW)
-        tuples = []
-        for row in range(rows):
-            own, shared, cells = row * bound, rows * bound, []
-            for kind in shape:
-                if kind == ROW:
-                    own += 1
-                    cells.append(f"?{own}")
-                elif kind == ONCE:
-                    shared += 1
-                    cells.append(f"?{shared}")
-                else:
-                    cells.append("NULL")
-            tuples.append(f"({', '.join(cells)})")
-        return f"INSERT INTO {self.model.__tablename__} ({self._names}) VALUES {', '.join(tuples)}"
+        """SQLite's INSERT of ``rows`` rows whose columns come in as ``shape`` says (``insert_statement``)."""
+        return insert_statement(self.model.__tablename__, self.columns, shape, rows)
 
     def prepare(self, frame: pd.DataFrame, same: dict | None = None) -> Prepared:
         """The frame's rows as the driver takes them, with ``same`` naming columns that hold one value in every
@@ -193,6 +177,28 @@ class BulkInsert:
 def _missing(value) -> bool:
     """A value sqlite3 would bind as NULL: None, or a float NaN."""
     return value is None or (isinstance(value, float) and value != value)
+
+
+def insert_statement(table: str, columns: list[str], shape: tuple[str, ...], rows: int) -> str:
+    """SQLite's INSERT of ``rows`` rows into ``columns`` of ``table``, each column coming in as ``shape`` says: the
+    k-th ROW column of row r is parameter r * (ROW columns) + k, the j-th ONCE column parameter rows * (ROW columns)
+    + j of every row, a NULL column the literal NULL (numbered parameters, so a shared value is bound once a
+    statement)."""
+    bound = shape.count(ROW)
+    tuples = []
+    for row in range(rows):
+        own, shared, cells = row * bound, rows * bound, []
+        for kind in shape:
+            if kind == ROW:
+                own += 1
+                cells.append(f"?{own}")
+            elif kind == ONCE:
+                shared += 1
+                cells.append(f"?{shared}")
+            else:
+                cells.append("NULL")
+        tuples.append(f"({', '.join(cells)})")
+    return f"INSERT INTO {table} ({', '.join(columns)}) VALUES {', '.join(tuples)}"
 
 
 def insert_frame(session: Session, model, frame: pd.DataFrame) -> None:
