@@ -209,13 +209,16 @@ def insert_frame(session: Session, model, frame: pd.DataFrame) -> None:
 
 
 def python_values(series: pd.Series) -> list:
-    """A column as sqlite3's values: floats (NaN, which sqlite3 binds as NULL), ints, text or None."""
+    """A column as sqlite3's values: floats (NaN, which sqlite3 binds as NULL), ints, text (NaN when missing), or
+    time text (None when missing)."""
     return _column_values(series).tolist()
 
 
 def _column_values(series: pd.Series) -> np.ndarray:
     """A column as an array whose items (``tolist``, or assigned into an object array) are sqlite3's values:
-    float64 (Python floats; NaN, which sqlite3 binds as NULL), int64 (ints), or objects (time text, text, None)."""
+    float64 (Python floats; NaN, which sqlite3 binds as NULL), int64 (ints), or objects (time text or None, text
+    or a float NaN for a missing text: sqlite3 binds it as NULL, as it binds None, without None's adapter look-up,
+    about 0.4 us a value)."""
     if pd.api.types.is_datetime64_any_dtype(series):
         values = series.to_numpy(dtype="datetime64[us]")
         if len(values) and (values == values[0]).all():
@@ -226,7 +229,7 @@ def _column_values(series: pd.Series) -> np.ndarray:
     if pd.api.types.is_integer_dtype(series):
         return series.to_numpy(dtype=np.int64)
     values = series.astype(object)
-    return values.where(values.notna(), None).to_numpy(dtype=object)
+    return values.where(values.notna(), np.nan).to_numpy(dtype=object)
 
 
 def time_texts(values: np.ndarray) -> list[str | None]:
