@@ -142,11 +142,10 @@ class BulkInsert:
         whole = count // per * per
         grouped = np.empty((whole // per, per * bound + len(once)), dtype=object)
         rest = np.empty((count - whole, bound + len(once)), dtype=object)
-        # Each statement's rows side by side in its parameter list: a view, never a copy (numpy raises otherwise).
-        cells = grouped[:, :per * bound].reshape(whole // per, per, bound, copy=False)
         for position, name in enumerate(own):
             values = _column_values(frame[name])
-            cells[:, :, position] = values[:whole].reshape(-1, per)
+            # Row r of a statement holds this column at r * bound + position of its parameter list (a strided view).
+            grouped[:, position:per * bound:bound] = values[:whole].reshape(-1, per)
             rest[:, position] = values[whole:]
         for position, value in enumerate(once):
             grouped[:, per * bound + position] = value
