@@ -5,6 +5,12 @@ the whole benchmark when only the import changed; ``benchmarks.run`` measures SQ
     python3 -m benchmarks.import_floors --size medium
     python3 -m benchmarks.import_floors --size medium --database postgresql+psycopg://postgres@127.0.0.1:5432/bench
     python3 -m benchmarks.import_floors --size medium --repeat 3    # three pairs, floor and import in turn
+    python3 -m benchmarks.import_floors --size medium --repeat 3 --shared-floor
+
+``--shared-floor`` also times, in each pair right after the floor, a floor that sends the statements as the import
+now shapes them (``benchmarks.run._floor_insert(shared=True)``: a column holding one value in all of an import's
+rows bound once a statement, or written NULL when missing), and reports the import against it as well
+(``import_shared_ratios``, ``import_shared_median_ratio``): the plain floor binds every cell, the import no longer.
 
 On SQLite the floor and the import take turns (floor, import, floor, import, ...), each into its own fresh copy of
 the same registered database, made and flushed to disk the same way just before it is timed; an import first, not
@@ -92,7 +98,7 @@ def _timed_import(path: Path, files: FleetFiles) -> float:
     return seconds
 
 
-def sqlite_imports(work: Path, files: FleetFiles, repeat: int = 1) -> list[dict]:
+def sqlite_imports(work: Path, files: FleetFiles, repeat: int = 1, shared: bool = False) -> list[dict]:
     """``repeat`` pairs, each the executemany floor and then the import, taking turns on fresh copies of one
     registered database; the rows the floor inserts come from an import run first (warm-up, not timed)."""
     from benchmarks.run import _checkpoint, _floor_insert
@@ -109,11 +115,17 @@ def sqlite_imports(work: Path, files: FleetFiles, repeat: int = 1) -> list[dict]
         _fresh_copy(base, floor)
         floor_s = _floor_insert(source, floor)
         _remove(floor)
+        if shared:
+            _fresh_copy(base, floor)
+            shared_s = _floor_insert(source, floor, shared=True)
+            _remove(floor)
         imported = work / "import.sqlite"
         _fresh_copy(base, imported)
         seconds = _timed_import(imported, files)
         _remove(imported)
         runs.append(_figures("import", seconds, floor_s, files.n_readings))
+        if shared:
+            runs[-1].update(_figures("import_shared", seconds, shared_s, files.n_readings))
     for leftover in (base, source):
         _remove(leftover)
     return runs
@@ -186,13 +198,18 @@ def main(argv: list[str] | None = None) -> dict:
     parser.add_argument("--repeat", type=int, default=1,
                         help="measure N pairs of floor and import, taking turns, and report each pair's ratio "
                              "and their median (other jobs on the machine slow single runs by chance)")
+    parser.add_argument("--shared-floor", action="store_true",
+                        help="also time a floor whose statements bind a column holding one value in every row once "
+                             "(as the import's do) and report the import against it")
     args = parser.parse_args(argv)
     figures: dict = {"size": args.size, "load_average": os.getloadavg()}
     with tempfile.TemporaryDirectory(prefix="fleet-import-") as folder:
         files = write_fleet(Path(folder) / "csv", SIZES[args.size])
         figures["readings"] = files.n_readings
-        runs = sqlite_imports(Path(folder), files, args.repeat)
+        runs = sqlite_imports(Path(folder), files, args.repeat, args.shared_floor)
         figures.update(_summary(runs, "import", files.n_readings))
+        if args.shared_floor:
+            figures.update(_summary(runs, "import_shared", files.n_readings))
         if args.database:
             runs = [postgres_import(args.database, files) for _ in range(args.repeat)]
             figures.update(_summary(runs, "pg_import", files.n_readings))

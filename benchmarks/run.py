@@ -197,11 +197,15 @@ def _import(sessions, kind: str, path: Path) -> int:
         return import_file(session, kind, path).created
 
 
-def _floor_insert(source: Path, floor: Path) -> float:
+def _floor_insert(source: Path, floor: Path, shared: bool = False) -> float:
     """Seconds plain sqlite3 executemany takes to insert every stored reading into ``floor``, one transaction, in
     the statements the import itself sends (fleet/services/transfer/bulk.py: SQLITE_ROWS_PER_STATEMENT rows to an
     INSERT, the last few one to a statement), as the PostgreSQL floor uses COPY as the import does. The rows are
-    laid out for those statements before the clock starts: the floor is the database's share alone."""
+    laid out for those statements before the clock starts: the floor is the database's share alone.
+
+    Every column is a parameter of every row unless ``shared``: then, as the import sends a block, a column holding
+    one value in every row of one import's rows (one ``created_at``) is bound once a statement, or written NULL
+    when that value is missing (``bulk.insert_statement``)."""
     from fleet.services.transfer.bulk import SQLITE_ROWS_PER_STATEMENT as per
 
     reader = sqlite3.connect(source)
@@ -214,11 +218,16 @@ def _floor_insert(source: Path, floor: Path) -> float:
     seconds = 0.0
     writer.execute("BEGIN")
     while rows := cursor.fetchmany(BATCH_ROWS):
-        whole = len(rows) // per * per
-        grouped = np.asarray(rows[:whole], dtype=object).reshape(-1, per * len(READING_COLUMNS)).tolist()
+        if shared:
+            statements = _shared_statements(np.asarray(rows, dtype=object), per)
+        else:
+            whole = len(rows) // per * per
+            grouped = np.asarray(rows[:whole], dtype=object).reshape(-1, per * len(READING_COLUMNS)).tolist()
+            statements = [(many, grouped, one, rows[whole:])]
         started = time.perf_counter()
-        writer.executemany(many, grouped)
-        writer.executemany(one, rows[whole:])
+        for many_rows, grouped, one_row, rest in statements:
+            writer.executemany(many_rows, grouped)
+            writer.executemany(one_row, rest)
         seconds += time.perf_counter() - started
     started = time.perf_counter()
     writer.execute("COMMIT")
@@ -226,6 +235,32 @@ def _floor_insert(source: Path, floor: Path) -> float:
     writer.close()
     reader.close()
     return seconds
+
+
+def _shared_statements(cells: np.ndarray, per: int) -> list[tuple[str, list, str, list]]:
+    """The rows (``cells``, a row of READING_COLUMNS each) as the import sends a block: cut where ``created_at``
+    changes (one import's rows), and in each part a column missing in every row written NULL, a column holding one
+    value in every row bound once a statement, the others row by row (``bulk.insert_statement``); each part's
+    INSERT of ``per`` rows with its parameter lists, and of one row with the last few rows'."""
+    from fleet.services.transfer.bulk import NULL, ONCE, ROW, insert_statement
+
+    made = cells[:, READING_COLUMNS.index("created_at")]
+    cuts = [0] + [i for i in range(1, len(made)) if made[i] != made[i - 1]] + [len(made)]
+    statements = []
+    for start, stop in zip(cuts[:-1], cuts[1:], strict=True):
+        part = cells[start:stop]
+        shape = tuple(NULL if all(v is None for v in column) else ONCE if all(v == column[0] for v in column)
+                      else ROW for column in part.T)
+        own = [position for position, kind in enumerate(shape) if kind == ROW]
+        once = [part[0, position] for position, kind in enumerate(shape) if kind == ONCE]
+        whole = len(part) // per * per
+        grouped = np.empty((whole // per, per * len(own) + len(once)), dtype=object)
+        grouped[:, :per * len(own)] = part[:whole][:, own].reshape(whole // per, per * len(own))
+        grouped[:, per * len(own):] = np.array(once, dtype=object)
+        rest = [cells_of_row + once for cells_of_row in part[whole:][:, own].tolist()]
+        statements.append((insert_statement("reading", list(READING_COLUMNS), shape, per), grouped.tolist(),
+                           insert_statement("reading", list(READING_COLUMNS), shape, 1), rest))
+    return statements
 
 
 def copy_rows(connection, table: str, rows) -> None:

@@ -266,37 +266,76 @@ def test_bulk_insert_stores_what_the_orm_reads_back(db):
 @given(st.lists(st.tuples(st.floats(allow_infinity=False) | st.just(math.nan), st.integers(1, 2**40),
                           st.datetimes(min_value=datetime(1970, 1, 1), max_value=datetime(2100, 12, 31)) | st.none(),
                           st.text(max_size=5) | st.none()), max_size=130),
-       st.integers(1, 7))
-def test_sqlite_statement_parameters_are_each_cell_as_python_gives_it(rows, per):
+       st.integers(1, 7), st.booleans())
+def test_sqlite_statement_parameters_are_each_cell_as_python_gives_it(rows, per, notes):
     # Reference: each cell made by hand with Python's own types (float, int, strftime's time text, str or None),
-    # row after row, then cut into groups of `per` rows: the parameters sqlite3 binds must be those, value and type.
+    # row after row: the cells the statements' parameters and shape give each row must be those, value and type
+    # (a NULL column missing in every row), and SQLite must store what the plain statement (one row, every column
+    # its own parameter, as sqlite3's executemany is documented to bind) stores: the same values and storage
+    # classes (typeof).
     from sqlalchemy import create_engine
     from sqlalchemy.orm import Session
 
     from fleet.services.transfer import bulk
 
+    if not notes:
+        rows = [(hours, pump, moment, None) for hours, pump, moment, _note in rows]
     frame = pd.DataFrame({"pump_id": pd.Series([r[1] for r in rows], dtype=np.int64),
                           "hours": pd.Series([r[0] for r in rows], dtype=float),
                           "taken_at": pd.Series([r[2] for r in rows], dtype="datetime64[ns]"),
                           "note": pd.Series([r[3] for r in rows], dtype=object)})
     made = datetime(2026, 1, 2, 3, 4, 5, 6)
-    with Session(create_engine("sqlite://")) as session:
-        writer = bulk.BulkInsert(session, Reading, ["pump_id", "hours", "taken_at", "note", "source", "created_at"])
-        writer.per = per
-        grouped, rest = writer.prepare(frame, {"source": "import", "created_at": pd.Timestamp(made)}).rows
+    columns = ["pump_id", "hours", "taken_at", "note", "source", "taken_by", "created_at"]
+    same = {"source": "import", "taken_by": None, "created_at": pd.Timestamp(made)}
     expected = [[pump, float(hours), None if moment is None else moment.strftime("%Y-%m-%d %H:%M:%S.%f"), note,
-                 "import", "2026-01-02 03:04:05.000006"] for hours, pump, moment, note in rows]
-    whole = len(rows) // per * per
-    flat = [value for group in grouped for value in group]
-    assert [len(group) for group in grouped] == [6 * per] * (whole // per) and rest == [r for r in rest if len(r) == 6]
-    made_rows = [flat[i:i + 6] for i in range(0, len(flat), 6)] + rest
+                 "import", None, "2026-01-02 03:04:05.000006"] for hours, pump, moment, note in rows]
+    with Session(create_engine("sqlite://")) as session:
+        writer = bulk.BulkInsert(session, Reading, columns)
+        writer.per = per
+        prepared = writer.prepare(frame, same)
+        shape = prepared.rows.shape
+        assert shape[columns.index("taken_by")] == bulk.NULL and shape[columns.index("source")] == bulk.ONCE
+        assert (shape[columns.index("note")] == bulk.NULL) == all(r[3] is None for r in rows)
 
-    def same(a, b):
-        return type(a) is type(b) and (a == b or (isinstance(a, float) and math.isnan(a) and math.isnan(b)))
+        def cells(parameters: list, count: int) -> list[list]:
+            bound, made_rows = shape.count(bulk.ROW), []
+            for row in range(count):
+                own, shared, cells = iter(parameters[row * bound:]), iter(parameters[count * bound:]), []
+                for kind in shape:
+                    cells.append(next(own) if kind == bulk.ROW else next(shared) if kind == bulk.ONCE else bulk.NULL)
+                made_rows.append(cells)
+            return made_rows
 
-    assert len(made_rows) == len(expected)
-    assert all(same(a, b) for got, want in zip(made_rows, expected, strict=True)
-               for a, b in zip(got, want, strict=True))
+        got = [cell for group in prepared.rows.grouped for cell in cells(group, per)]
+        got += [cell for one in prepared.rows.rest for cell in cells(one, 1)]
+        assert [len(group) for group in prepared.rows.grouped] == \
+            [per * shape.count(bulk.ROW) + shape.count(bulk.ONCE)] * (len(rows) // per)
+
+        def missing(value):  # what sqlite3 binds as NULL
+            return value is None or (isinstance(value, float) and math.isnan(value))
+
+        def same_cell(a, b):
+            if a is bulk.NULL:  # written NULL: the cell must be missing
+                return missing(b)
+            if b is None:  # a missing text may be bound as a NaN
+                return missing(a)
+            return type(a) is type(b) and (a == b or (isinstance(a, float) and math.isnan(a) and math.isnan(b)))
+
+        assert len(got) == len(expected)
+        assert all(same_cell(a, b) for cells_got, want in zip(got, expected, strict=True)
+                   for a, b in zip(cells_got, want, strict=True))
+
+        raw = session.connection().connection
+        raw.execute("CREATE TABLE reading (id INTEGER PRIMARY KEY, pump_id INTEGER, hours FLOAT, taken_at DATETIME, "
+                    "note TEXT, source VARCHAR(16), taken_by VARCHAR(120), created_at DATETIME)")
+        read = f"SELECT id, {', '.join(columns)}, {', '.join(f'typeof({c})' for c in columns)} FROM reading ORDER BY id"
+        cursor = raw.cursor()
+        writer._sqlite_rows(cursor, prepared)
+        stored = raw.execute(read).fetchall()
+        raw.execute("DELETE FROM reading")
+        cursor.executemany(f"INSERT INTO reading ({', '.join(columns)}) VALUES ({', '.join('?' * len(columns))})",
+                           expected)
+        assert stored == raw.execute(read).fetchall()
 
 
 def test_a_key_stored_twice_by_the_bulk_insert_is_the_error_the_write_unit_retries(db):

@@ -252,3 +252,44 @@ def test_rows_many_to_a_statement_are_stored_as_one_to_a_statement(pumps, monkey
         with pumps.sessions.begin() as session:
             session.execute(Reading.__table__.delete().where(Reading.hours != 900))  # the next ids as before
     assert len(stored[0]) == 81 and stored[0] == stored[1]
+
+
+def test_the_benchmark_floor_with_shared_columns_stores_what_the_plain_floor_stores(pumps, tmp_path, monkeypatch):
+    # Reference: benchmarks.run's plain floor (every cell of every row its own parameter, sqlite3's executemany)
+    # into a copy of the same database: the floor whose statements bind a column holding one value in all of an
+    # import's rows once (or write NULL) stores the same rows in the same order, values and storage classes
+    # (typeof), and both what the import stored.
+    import shutil
+    import sqlite3
+
+    from benchmarks.run import READING_COLUMNS, _checkpoint, _floor_insert
+    from fleet.services.transfer import bulk
+
+    if pumps.engine.dialect.name != "sqlite":
+        pytest.skip("the SQLite floor")
+    monkeypatch.setattr(bulk, "SQLITE_ROWS_PER_STATEMENT", 3)
+    for first in (2, 12):  # two imports: two created_at, notes in the second only, a missing flow in the first
+        rows = [_row(f"T-10{1 + d % 3}", first + d // 3, 10 * d, note="n" if first == 12 and d % 4 else "")
+                for d in range(25)]
+        if first == 2:
+            rows[4][5] = ""
+        with pumps.sessions.begin() as session:
+            import_table(session, "readings", _table(rows), now=NOW)
+    pumps.engine.dispose()
+    source = tmp_path / "source.sqlite"
+    _checkpoint(pumps.engine.url.database)
+    shutil.copyfile(pumps.engine.url.database, source)
+    read = (f"SELECT {', '.join(READING_COLUMNS)}, {', '.join(f'typeof({c})' for c in READING_COLUMNS)} "
+            "FROM reading ORDER BY id")
+    stored = []
+    for shared in (False, True):
+        floor = tmp_path / f"floor-{shared}.sqlite"
+        shutil.copyfile(source, floor)
+        with sqlite3.connect(floor) as connection:
+            connection.execute("DELETE FROM reading")
+        _floor_insert(source, floor, shared=shared)
+        with sqlite3.connect(floor) as connection:
+            stored.append(connection.execute(read).fetchall())
+    with sqlite3.connect(source) as connection:
+        imported = connection.execute(read).fetchall()
+    assert len(imported) == 51 and stored[0] == stored[1] == imported

@@ -6,7 +6,9 @@ it), and ``write`` sends it, in the session's own thread. On SQLite the rows are
 on PostgreSQL they are CSV text written by Arrow's CSV writer and streamed through COPY (psycopg 3's
 ``cursor.copy``), the server's own bulk path; any other database takes SQLAlchemy Core's executemany insert.
 Each column is converted once, over the whole column: times as the text each database keeps (SQLite) or reads
-(COPY), by Arrow's cast, never row by row.
+(COPY), by Arrow's cast, never row by row. On SQLite a column holding one value in every row of a block is not bound
+row by row: its value is one parameter of each statement, or the literal NULL when it is missing (sqlite3 binds each
+None through its adapter look-up, about 0.4 us a value, more than SQLite takes to store it).
 """
 
 import io
@@ -30,15 +32,29 @@ _DRIVERS = {"sqlite": "pysqlite", "postgresql": "psycopg"}
 # Rows per INSERT statement on SQLite (a VALUES list of that many rows): SQLite then runs its statement once per 50
 # rows rather than once per row, and sqlite3 steps it once (README, "Readings import against its floor").
 SQLITE_ROWS_PER_STATEMENT = 50
+# How a column's values reach an INSERT on SQLite: each row's own parameter, one parameter that every row of the
+# statement shares (a column holding one value in every row), or the literal NULL (a column missing in every row).
+ROW, ONCE, NULL = "row", "once", "null"
 
 
 @dataclass
 class Prepared:
     """One block's rows as the driver takes them."""
 
-    rows: object  # column lists (sqlite3, zipped into rows as it binds them), CSV bytes (COPY) or dicts (Core)
+    rows: object  # SqliteRows (sqlite3), CSV bytes (COPY) or dicts (Core)
     count: int
     pump_ids: set[int]
+
+
+@dataclass
+class SqliteRows:
+    """One block's rows for sqlite3: the parameter lists of each INSERT of ``per`` rows (``grouped``) and of each
+    of the last few rows, one to a statement (``rest``); ``shape`` is each column's way into the statements (ROW,
+    ONCE, NULL; ``BulkInsert.insert``): a list holds its rows' own values, row after row, then the ONCE columns'."""
+
+    shape: tuple[str, ...]
+    grouped: list[list]
+    rest: list[list]
 
 
 class BulkInsert:
@@ -49,15 +65,17 @@ class BulkInsert:
         dialect = session.connection().dialect
         self.mode = dialect.name if _DRIVERS.get(dialect.name) == dialect.driver else "core"
         self._same: dict[str, tuple] = {}  # column -> (a value every row holds, sqlite3's value for it)
-        names = ", ".join(self.columns)
-        table = model.__tablename__
+        self._statements: dict[tuple, tuple[str, str]] = {}  # (shape, per) -> INSERTs of `per` rows and of one row
+        self._names = ", ".join(self.columns)
         if self.mode == "sqlite":
-            row = f"({', '.join('?' * len(self.columns))})"
-            self.statement = f"INSERT INTO {table} ({names}) VALUES {row}"
             self.per = SQLITE_ROWS_PER_STATEMENT
-            self.many_statement = f"INSERT INTO {table} ({names}) VALUES {', '.join([row] * self.per)}"
+            self.statement = self.insert((ROW,) * len(self.columns), 1)
         else:
-            self.statement = f"COPY {table} ({names}) FROM STDIN (FORMAT csv)"
+            self.statement = f"COPY {model.__tablename__} ({self._names}) FROM STDIN (FORMAT csv)"
+
+    def insert(self, shape: tuple[str, ...], rows: int) -> str:
+        """SQLite's INSERT of ``rows`` rows whose columns come in as ``shape`` says (``insert_statement``)."""
+        return insert_statement(self.model.__tablename__, self.columns, shape, rows)
 
     def prepare(self, frame: pd.DataFrame, same: dict | None = None) -> Prepared:
         """The frame's rows as the driver takes them, with ``same`` naming columns that hold one value in every
@@ -100,21 +118,39 @@ class BulkInsert:
             cursor.close()
 
 
-    def _sqlite_groups(self, frame: pd.DataFrame, same: dict) -> tuple[list[list], list[list]]:
+    def _sqlite_groups(self, frame: pd.DataFrame, same: dict) -> SqliteRows:
         """The rows as sqlite3 binds them, in their order: the parameters of each INSERT of ``self.per`` rows, and
-        the last few rows one to a statement. The values are made once, column by column, straight into a table
-        of Python objects (numpy makes a float64 column's Python floats and an int64 column's ints in C, as
-        ``tolist`` does), which is then cut into the statements' parameter lists; the same values as
-        ``python_values`` gives each column (tests/test_fast_import.py)."""
-        count, width, per = len(frame), len(self.columns), self.per
-        cells = np.empty((count, width), dtype=object)
-        for position, name in enumerate(self.columns):
+        of the last few rows one to a statement. A column of ``same`` is bound once a statement (or written NULL,
+        when missing), as is a column missing in every row of the frame (NULL); the others row by row. The values
+        are made once, column by column, straight into tables of Python objects laid out as the statements take
+        them (numpy makes a float64 column's Python floats and an int64 column's ints in C, as ``tolist`` does),
+        which are then cut into parameter lists; the same values as ``python_values`` gives each column
+        (tests/test_fast_import.py)."""
+        shape, own, once = [], [], []
+        for name in self.columns:
             if name in same:
-                cells[:, position] = self._same_value(name, same[name])
+                value = self._same_value(name, same[name])
+                shape.append(NULL if _missing(value) else ONCE)
+                if shape[-1] == ONCE:
+                    once.append(value)
+            elif frame[name].isna().all():
+                shape.append(NULL)
             else:
-                cells[:, position] = _column_values(frame[name])
+                shape.append(ROW)
+                own.append(name)
+        count, bound, per = len(frame), len(own), self.per
         whole = count // per * per
-        return cells[:whole].reshape(-1, width * per).tolist(), cells[whole:].tolist()
+        grouped = np.empty((whole // per, per * bound + len(once)), dtype=object)
+        rest = np.empty((count - whole, bound + len(once)), dtype=object)
+        for position, name in enumerate(own):
+            values = _column_values(frame[name])
+            # Row r of a statement holds this column at r * bound + position of its parameter list (a strided view).
+            grouped[:, position:per * bound:bound] = values[:whole].reshape(-1, per)
+            rest[:, position] = values[whole:]
+        for position, value in enumerate(once):
+            grouped[:, per * bound + position] = value
+            rest[:, bound + position] = value
+        return SqliteRows(tuple(shape), grouped.tolist(), rest.tolist())
 
     def _same_value(self, name: str, value) -> object:
         """sqlite3's value for a column holding ``value`` in every row, made once for all of a writer's blocks."""
@@ -126,11 +162,42 @@ class BulkInsert:
     def _sqlite_rows(self, cursor, prepared: Prepared) -> None:
         """The rows by ``self.per`` (SQLITE_ROWS_PER_STATEMENT) to a statement, in their order (so their ids are as
         one row to a statement gives them), the last few one to a statement."""
-        grouped, rest = prepared.rows
-        if grouped:
-            cursor.executemany(self.many_statement, grouped)
-        if rest:
-            cursor.executemany(self.statement, rest)
+        rows: SqliteRows = prepared.rows
+        statements = self._statements.get((rows.shape, self.per))
+        if statements is None:
+            statements = (self.insert(rows.shape, self.per), self.insert(rows.shape, 1))
+            self._statements[rows.shape, self.per] = statements
+        if rows.grouped:
+            cursor.executemany(statements[0], rows.grouped)
+        if rows.rest:
+            cursor.executemany(statements[1], rows.rest)
+
+
+def _missing(value) -> bool:
+    """A value sqlite3 would bind as NULL: None, or a float NaN."""
+    return value is None or (isinstance(value, float) and value != value)
+
+
+def insert_statement(table: str, columns: list[str], shape: tuple[str, ...], rows: int) -> str:
+    """SQLite's INSERT of ``rows`` rows into ``columns`` of ``table``, each column coming in as ``shape`` says: the
+    k-th ROW column of row r is parameter r * (ROW columns) + k, the j-th ONCE column parameter rows * (ROW columns)
+    + j of every row, a NULL column the literal NULL (numbered parameters, so a shared value is bound once a
+    statement)."""
+    bound = shape.count(ROW)
+    tuples = []
+    for row in range(rows):
+        own, shared, cells = row * bound, rows * bound, []
+        for kind in shape:
+            if kind == ROW:
+                own += 1
+                cells.append(f"?{own}")
+            elif kind == ONCE:
+                shared += 1
+                cells.append(f"?{shared}")
+            else:
+                cells.append("NULL")
+        tuples.append(f"({', '.join(cells)})")
+    return f"INSERT INTO {table} ({', '.join(columns)}) VALUES {', '.join(tuples)}"
 
 
 def insert_frame(session: Session, model, frame: pd.DataFrame) -> None:
@@ -141,13 +208,16 @@ def insert_frame(session: Session, model, frame: pd.DataFrame) -> None:
 
 
 def python_values(series: pd.Series) -> list:
-    """A column as sqlite3's values: floats (NaN, which sqlite3 binds as NULL), ints, text or None."""
+    """A column as sqlite3's values: floats (NaN, which sqlite3 binds as NULL), ints, text (NaN when missing), or
+    time text (None when missing)."""
     return _column_values(series).tolist()
 
 
 def _column_values(series: pd.Series) -> np.ndarray:
     """A column as an array whose items (``tolist``, or assigned into an object array) are sqlite3's values:
-    float64 (Python floats; NaN, which sqlite3 binds as NULL), int64 (ints), or objects (time text, text, None)."""
+    float64 (Python floats; NaN, which sqlite3 binds as NULL), int64 (ints), or objects (time text or None, text
+    or a float NaN for a missing text: sqlite3 binds it as NULL, as it binds None, without None's adapter look-up,
+    about 0.4 us a value)."""
     if pd.api.types.is_datetime64_any_dtype(series):
         values = series.to_numpy(dtype="datetime64[us]")
         if len(values) and (values == values[0]).all():
@@ -158,7 +228,7 @@ def _column_values(series: pd.Series) -> np.ndarray:
     if pd.api.types.is_integer_dtype(series):
         return series.to_numpy(dtype=np.int64)
     values = series.astype(object)
-    return values.where(values.notna(), None).to_numpy(dtype=object)
+    return values.where(values.notna(), np.nan).to_numpy(dtype=object)
 
 
 def time_texts(values: np.ndarray) -> list[str | None]:
