@@ -97,6 +97,46 @@ def test_samples_known_by_keeps_what_was_known_then():
             expected, columns=given.columns).astype(object).where(lambda f: f.notna(), None).to_dict("records"), rows
 
 
+def _samples_known_by_pandas(samples, moment):
+    """The reference: the pandas steps samples_known_by took before it built its columns from arrays (mask rows,
+    then blank the pending results with .loc)."""
+    import numpy as np
+
+    samples = samples[samples["sampled_at"] <= moment]
+    pending = samples["reported_at"].isna() | (samples["reported_at"] > moment)
+    if not pending.any():
+        return samples
+    samples = samples.copy()
+    samples.loc[pending, ["reported_at", "code_4", "code_6", "code_14", "water_ppm", "viscosity_40"]] = np.nan
+    samples.loc[pending, "low_count"] = False
+    return samples
+
+
+def test_samples_known_by_equals_the_pandas_steps_on_the_demo_samples(demo_db):
+    # Reference: _samples_known_by_pandas above (frames, dtypes and index equal to the bit), at moments across the
+    # demo's sampling history, for all machines and for each machine alone (the one-pump path's case).
+    import pandas as pd
+    from pandas.testing import assert_frame_equal
+
+    from fleet.services.analysis.frames import load_samples, samples_known_by
+
+    with demo_db.sessions() as session:
+        samples = load_samples(session)
+        assert len(samples) > 10 and samples["reported_at"].notna().any()
+        first, last = samples["sampled_at"].min(), samples["reported_at"].max()
+        moments = [first - pd.Timedelta(days=1), *pd.date_range(first, last, periods=9),
+                   last + pd.Timedelta(days=1)]
+        blanked = 0
+        for machine_id in [None, *sorted(samples["machine_id"].unique())]:
+            given = samples if machine_id is None else load_samples(session, [int(machine_id)])
+            for moment in moments:
+                expected = _samples_known_by_pandas(given, moment)
+                got = samples_known_by(given, moment)
+                assert_frame_equal(got, expected, check_exact=True, obj=f"machine {machine_id} at {moment}")
+                blanked += int((got["reported_at"].isna() & given.loc[got.index, "reported_at"].notna()).sum())
+        assert blanked > 0  # the blanking branch ran
+
+
 def _readings_by_pandas(session, statement) -> pd.DataFrame:
     """The reference: the driver's rows through pandas' own inference (DataFrame.from_records), times parsed and
     numbers made floats after, as the loader did before it built each column at once."""
