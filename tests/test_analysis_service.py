@@ -137,6 +137,55 @@ def test_samples_known_by_equals_the_pandas_steps_on_the_demo_samples(demo_db):
         assert blanked > 0  # the blanking branch ran
 
 
+def _samples_by_pandas(session, machine_ids=None):
+    """The reference: load_samples as it was before it built its columns from the driver's rows (SQLAlchemy's rows,
+    pandas' own to_datetime and astype)."""
+    import pandas as pd
+
+    from fleet.db.models import OilSample
+    from fleet.frames import SAMPLE_COLUMNS
+
+    statement = select(OilSample.machine_id, OilSample.sampled_at, OilSample.reported_at, OilSample.code_4,
+                       OilSample.code_6, OilSample.code_14, OilSample.low_count, OilSample.water_ppm,
+                       OilSample.viscosity_40)
+    if machine_ids is not None:
+        statement = statement.where(OilSample.machine_id.in_([int(m) for m in machine_ids]))
+    result = session.execute(statement)
+    frame = pd.DataFrame(result.all(), columns=list(result.keys()))
+    for column in ("sampled_at", "reported_at"):
+        frame[column] = pd.to_datetime(frame[column])
+    frame = frame.astype({c: float for c in ("code_4", "code_6", "code_14", "water_ppm", "viscosity_40")})
+    frame["low_count"] = frame["low_count"].astype(bool)
+    return frame[list(SAMPLE_COLUMNS)]
+
+
+def test_load_samples_equals_pandas_own_conversion(demo_db):
+    # Reference: _samples_by_pandas above (frames and dtypes equal to the bit): the whole fleet, each machine
+    # alone (the one-pump path), none, and a machine whose results are all still at the lab (empty times column).
+    from pandas.testing import assert_frame_equal
+
+    from fleet.db.models import OilSample
+    from fleet.services.analysis.frames import load_samples
+
+    with demo_db.sessions() as session:
+        machines = sorted(set(session.scalars(select(OilSample.machine_id))))
+        assert len(machines) > 1
+        for machine_ids in (None, [], *([m] for m in machines), machines[:2]):
+            assert_frame_equal(load_samples(session, machine_ids), _samples_by_pandas(session, machine_ids),
+                               check_exact=True, obj=str(machine_ids))
+        got = load_samples(session)
+        assert got["reported_at"].isna().any()
+    with demo_db.sessions() as session:  # results of one machine not reported yet (rolled back, never committed)
+        session.query(OilSample).filter(OilSample.machine_id == machines[0]).update(
+            {OilSample.reported_at: None, OilSample.code_4: None, OilSample.low_count: True})
+        assert_frame_equal(load_samples(session, machines[:1]), _samples_by_pandas(session, machines[:1]),
+                           check_exact=True)
+        got = load_samples(session)
+        assert_frame_equal(got, _samples_by_pandas(session), check_exact=True)
+        assert got["code_4"].isna().any() and got["low_count"].any() and not got["low_count"].all()
+        session.rollback()
+
+
 def _readings_by_pandas(session, statement) -> pd.DataFrame:
     """The reference: the driver's rows through pandas' own inference (DataFrame.from_records), times parsed and
     numbers made floats after, as the loader did before it built each column at once."""

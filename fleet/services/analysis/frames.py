@@ -4,6 +4,7 @@ Set-based: one query per table, joined in pandas, never a query per pump.
 """
 
 from dataclasses import dataclass
+from datetime import datetime
 
 import numpy as np
 import pandas as pd
@@ -224,18 +225,51 @@ def load_events(session: Session, pump_ids=None) -> pd.DataFrame:
     return frame[list(EVENT_COLUMNS)]
 
 
+_SAMPLE_FLOATS = ("code_4", "code_6", "code_14", "water_ppm", "viscosity_40")
+_STORED_TIME = len("2021-01-04 08:00:00.000000")  # how SQLAlchemy writes a DateTime into SQLite's text
+
+
 def load_samples(session: Session, machine_ids=None) -> pd.DataFrame:
     statement = select(OilSample.machine_id, OilSample.sampled_at, OilSample.reported_at, OilSample.code_4,
                        OilSample.code_6, OilSample.code_14, OilSample.low_count, OilSample.water_ppm,
                        OilSample.viscosity_40)
     if machine_ids is not None:
         statement = statement.where(OilSample.machine_id.in_([int(m) for m in machine_ids]))
-    frame = _query(session, statement)
+    if session.get_bind().dialect.name == "sqlite":
+        keys, rows = driver_rows(session, statement)
+        frame = _sample_columns(keys, rows)
+        if frame is not None:
+            return frame
+        frame = pd.DataFrame(session.execute(statement).all(), columns=keys)
+    else:
+        frame = _query(session, statement)
     for column in ("sampled_at", "reported_at"):
         frame[column] = pd.to_datetime(frame[column])
-    frame = frame.astype({c: float for c in ("code_4", "code_6", "code_14", "water_ppm", "viscosity_40")})
+    frame = frame.astype({c: float for c in _SAMPLE_FLOATS})
     frame["low_count"] = frame["low_count"].astype(bool)
     return frame[list(SAMPLE_COLUMNS)]
+
+
+def _sample_columns(keys: list[str], rows: list[tuple]) -> pd.DataFrame | None:
+    """load_samples' frame from SQLite's own rows, each column an array at once (numpy reads SQLAlchemy's stored
+    time text exactly); None where that does not apply (no rows, a time column all empty, times in another form),
+    for the pandas steps. tests/test_analysis_service.py compares the two."""
+    if not rows:
+        return None
+    columns = dict(zip(keys, zip(*rows, strict=True), strict=True))
+    out = {}
+    for name in ("sampled_at", "reported_at"):
+        values = columns[name]
+        text = [v for v in values if v is not None]
+        if not text or not all(isinstance(v, str) and len(v) == _STORED_TIME for v in text):
+            return None
+        # In the unit pd.to_datetime gives the driver-processed datetimes (asked of the first one).
+        unit = pd.to_datetime(pd.Series([datetime.fromisoformat(text[0])], dtype=object)).dtype
+        out[name] = np.array(["NaT" if v is None else v for v in values], dtype="datetime64[us]").astype(unit)
+    frame = {"machine_id": np.array(columns["machine_id"], dtype=np.int64), **out,
+             **{c: np.array(columns[c], dtype=float) for c in _SAMPLE_FLOATS},
+             "low_count": np.array(columns["low_count"], dtype=bool)}
+    return pd.DataFrame({c: frame[c] for c in SAMPLE_COLUMNS})
 
 
 def load_frames(session: Session, pump_ids=None, as_of=None) -> FleetFrames:
