@@ -196,17 +196,23 @@ def attach_oil(readings: pd.DataFrame, history: pd.DataFrame) -> pd.DataFrame:
 
 
 def _attach_oil_of_one(left: pd.DataFrame, right: pd.DataFrame, oil_columns: list[str]) -> pd.DataFrame:
-    """attach_oil for the readings and stays of one pump, both in time order: each reading takes the latest
-    stay installed at or before it (as merge_asof backward), else, or where that stay's oil is unknown, the
-    first stay's."""
-    at = np.searchsorted(right["installed_at"].to_numpy(), left["taken_at"].to_numpy(), side="right") - 1
+    """attach_oil for the readings and stays of one pump, both in time order (see oil_of_one)."""
     placed = left.reset_index(drop=True)
+    oil = oil_of_one(left["taken_at"].to_numpy(), right["installed_at"].to_numpy(),
+                     {column: right[column].to_numpy(dtype=float) for column in oil_columns})
+    return pd.concat([placed, pd.DataFrame(oil, index=placed.index)], axis=1)
+
+
+def oil_of_one(taken_at: np.ndarray, installed_at: np.ndarray, oils: dict[str, np.ndarray]) -> dict[str, np.ndarray]:
+    """The oil columns of one pump's readings (times ``taken_at``), its stays in time order (``installed_at``, at
+    least one, with each oil column's values in ``oils``): each reading takes the latest stay installed at or
+    before it (as merge_asof backward), else, or where that stay's oil is unknown, the first stay's."""
+    at = np.searchsorted(installed_at, taken_at, side="right") - 1
     oil = {}
-    for column in oil_columns:
-        values = right[column].to_numpy(dtype=float)
+    for column, values in oils.items():
         found = np.where(at >= 0, values[np.maximum(at, 0)], np.nan)
         oil[column] = np.where(np.isnan(found), values[0], found)
-    return pd.concat([placed, pd.DataFrame(oil, index=placed.index)], axis=1)
+    return oil
 
 
 def load_flow_points(session: Session, pump_ids=None) -> pd.DataFrame:
