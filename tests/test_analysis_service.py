@@ -97,6 +97,95 @@ def test_samples_known_by_keeps_what_was_known_then():
             expected, columns=given.columns).astype(object).where(lambda f: f.notna(), None).to_dict("records"), rows
 
 
+def _samples_known_by_pandas(samples, moment):
+    """The reference: the pandas steps samples_known_by took before it built its columns from arrays (mask rows,
+    then blank the pending results with .loc)."""
+    import numpy as np
+
+    samples = samples[samples["sampled_at"] <= moment]
+    pending = samples["reported_at"].isna() | (samples["reported_at"] > moment)
+    if not pending.any():
+        return samples
+    samples = samples.copy()
+    samples.loc[pending, ["reported_at", "code_4", "code_6", "code_14", "water_ppm", "viscosity_40"]] = np.nan
+    samples.loc[pending, "low_count"] = False
+    return samples
+
+
+def test_samples_known_by_equals_the_pandas_steps_on_the_demo_samples(demo_db):
+    # Reference: _samples_known_by_pandas above (frames, dtypes and index equal to the bit), at moments across the
+    # demo's sampling history, for all machines and for each machine alone (the one-pump path's case).
+    import pandas as pd
+    from pandas.testing import assert_frame_equal
+
+    from fleet.services.analysis.frames import load_samples, samples_known_by
+
+    with demo_db.sessions() as session:
+        samples = load_samples(session)
+        assert len(samples) > 10 and samples["reported_at"].notna().any()
+        first, last = samples["sampled_at"].min(), samples["reported_at"].max()
+        moments = [first - pd.Timedelta(days=1), *pd.date_range(first, last, periods=9),
+                   last + pd.Timedelta(days=1)]
+        blanked = 0
+        for machine_id in [None, *sorted(samples["machine_id"].unique())]:
+            given = samples if machine_id is None else load_samples(session, [int(machine_id)])
+            for moment in moments:
+                expected = _samples_known_by_pandas(given, moment)
+                got = samples_known_by(given, moment)
+                assert_frame_equal(got, expected, check_exact=True, obj=f"machine {machine_id} at {moment}")
+                blanked += int((got["reported_at"].isna() & given.loc[got.index, "reported_at"].notna()).sum())
+        assert blanked > 0  # the blanking branch ran
+
+
+def _samples_by_pandas(session, machine_ids=None):
+    """The reference: load_samples as it was before it built its columns from the driver's rows (SQLAlchemy's rows,
+    pandas' own to_datetime and astype)."""
+    import pandas as pd
+
+    from fleet.db.models import OilSample
+    from fleet.frames import SAMPLE_COLUMNS
+
+    statement = select(OilSample.machine_id, OilSample.sampled_at, OilSample.reported_at, OilSample.code_4,
+                       OilSample.code_6, OilSample.code_14, OilSample.low_count, OilSample.water_ppm,
+                       OilSample.viscosity_40)
+    if machine_ids is not None:
+        statement = statement.where(OilSample.machine_id.in_([int(m) for m in machine_ids]))
+    result = session.execute(statement)
+    frame = pd.DataFrame(result.all(), columns=list(result.keys()))
+    for column in ("sampled_at", "reported_at"):
+        frame[column] = pd.to_datetime(frame[column])
+    frame = frame.astype({c: float for c in ("code_4", "code_6", "code_14", "water_ppm", "viscosity_40")})
+    frame["low_count"] = frame["low_count"].astype(bool)
+    return frame[list(SAMPLE_COLUMNS)]
+
+
+def test_load_samples_equals_pandas_own_conversion(demo_db):
+    # Reference: _samples_by_pandas above (frames and dtypes equal to the bit): the whole fleet, each machine
+    # alone (the one-pump path), none, and a machine whose results are all still at the lab (empty times column).
+    from pandas.testing import assert_frame_equal
+
+    from fleet.db.models import OilSample
+    from fleet.services.analysis.frames import load_samples
+
+    with demo_db.sessions() as session:
+        machines = sorted(set(session.scalars(select(OilSample.machine_id))))
+        assert len(machines) > 1
+        for machine_ids in (None, [], *([m] for m in machines), machines[:2]):
+            assert_frame_equal(load_samples(session, machine_ids), _samples_by_pandas(session, machine_ids),
+                               check_exact=True, obj=str(machine_ids))
+        got = load_samples(session)
+        assert got["reported_at"].isna().any()
+    with demo_db.sessions() as session:  # results of one machine not reported yet (rolled back, never committed)
+        session.query(OilSample).filter(OilSample.machine_id == machines[0]).update(
+            {OilSample.reported_at: None, OilSample.code_4: None, OilSample.low_count: True})
+        assert_frame_equal(load_samples(session, machines[:1]), _samples_by_pandas(session, machines[:1]),
+                           check_exact=True)
+        got = load_samples(session)
+        assert_frame_equal(got, _samples_by_pandas(session), check_exact=True)
+        assert got["code_4"].isna().any() and got["low_count"].any() and not got["low_count"].all()
+        session.rollback()
+
+
 def _readings_by_pandas(session, statement) -> pd.DataFrame:
     """The reference: the driver's rows through pandas' own inference (DataFrame.from_records), times parsed and
     numbers made floats after, as the loader did before it built each column at once."""

@@ -84,3 +84,21 @@ def test_a_new_reading_is_on_the_page_and_its_chart_at_once(client, demo_db):
     assert newest["reading_id"] == created.get_json()["readings"][0]["id"]
     assert newest["source"] == "api" and newest["hours"] == last_hours + 8 and newest["corrected"] is False
     assert _efficiency_points(client.get(f"/pumps/{FIXED_PUMP}").get_data(as_text=True)) == len(after)
+
+
+def test_each_readings_oil_is_the_fleet_merge_asofs(demo_db):
+    # Reference: the whole-fleet loader's attach_oil, which for many pumps places readings with pandas.merge_asof
+    # (backward, by pump) and its first-stay fallback; the one-pump search (frames.oil_of_one) must give the same
+    # oil to every reading, including pumps that moved between machines.
+    from fleet.services.analysis.frames import load_readings
+
+    with demo_db.sessions() as session:
+        fleet = load_readings(session)
+        assert fleet["pump_id"].nunique() > 30
+        moved = 0
+        for pump in session.scalars(select(Pump).order_by(Pump.id)).all():
+            rows = pump_rows(session, pump, utcnow())
+            expected = fleet[fleet["pump_id"] == pump.id].reset_index(drop=True)
+            assert_frame_equal(rows.all_readings, expected, check_exact=True, obj=pump.serial)
+            moved += len({stay.machine_id for stay in rows.stays}) > 1
+        assert moved > 0  # a pump whose oil changes with its machine is among them

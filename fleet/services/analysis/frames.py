@@ -4,6 +4,7 @@ Set-based: one query per table, joined in pandas, never a query per pump.
 """
 
 from dataclasses import dataclass
+from datetime import datetime
 
 import numpy as np
 import pandas as pd
@@ -195,17 +196,23 @@ def attach_oil(readings: pd.DataFrame, history: pd.DataFrame) -> pd.DataFrame:
 
 
 def _attach_oil_of_one(left: pd.DataFrame, right: pd.DataFrame, oil_columns: list[str]) -> pd.DataFrame:
-    """attach_oil for the readings and stays of one pump, both in time order: each reading takes the latest
-    stay installed at or before it (as merge_asof backward), else, or where that stay's oil is unknown, the
-    first stay's."""
-    at = np.searchsorted(right["installed_at"].to_numpy(), left["taken_at"].to_numpy(), side="right") - 1
+    """attach_oil for the readings and stays of one pump, both in time order (see oil_of_one)."""
     placed = left.reset_index(drop=True)
+    oil = oil_of_one(left["taken_at"].to_numpy(), right["installed_at"].to_numpy(),
+                     {column: right[column].to_numpy(dtype=float) for column in oil_columns})
+    return pd.concat([placed, pd.DataFrame(oil, index=placed.index)], axis=1)
+
+
+def oil_of_one(taken_at: np.ndarray, installed_at: np.ndarray, oils: dict[str, np.ndarray]) -> dict[str, np.ndarray]:
+    """The oil columns of one pump's readings (times ``taken_at``), its stays in time order (``installed_at``, at
+    least one, with each oil column's values in ``oils``): each reading takes the latest stay installed at or
+    before it (as merge_asof backward), else, or where that stay's oil is unknown, the first stay's."""
+    at = np.searchsorted(installed_at, taken_at, side="right") - 1
     oil = {}
-    for column in oil_columns:
-        values = right[column].to_numpy(dtype=float)
+    for column, values in oils.items():
         found = np.where(at >= 0, values[np.maximum(at, 0)], np.nan)
         oil[column] = np.where(np.isnan(found), values[0], found)
-    return pd.concat([placed, pd.DataFrame(oil, index=placed.index)], axis=1)
+    return oil
 
 
 def load_flow_points(session: Session, pump_ids=None) -> pd.DataFrame:
@@ -224,18 +231,51 @@ def load_events(session: Session, pump_ids=None) -> pd.DataFrame:
     return frame[list(EVENT_COLUMNS)]
 
 
+_SAMPLE_FLOATS = ("code_4", "code_6", "code_14", "water_ppm", "viscosity_40")
+_STORED_TIME = len("2021-01-04 08:00:00.000000")  # how SQLAlchemy writes a DateTime into SQLite's text
+
+
 def load_samples(session: Session, machine_ids=None) -> pd.DataFrame:
     statement = select(OilSample.machine_id, OilSample.sampled_at, OilSample.reported_at, OilSample.code_4,
                        OilSample.code_6, OilSample.code_14, OilSample.low_count, OilSample.water_ppm,
                        OilSample.viscosity_40)
     if machine_ids is not None:
         statement = statement.where(OilSample.machine_id.in_([int(m) for m in machine_ids]))
-    frame = _query(session, statement)
+    if session.get_bind().dialect.name == "sqlite":
+        keys, rows = driver_rows(session, statement)
+        frame = _sample_columns(keys, rows)
+        if frame is not None:
+            return frame
+        frame = pd.DataFrame(session.execute(statement).all(), columns=keys)
+    else:
+        frame = _query(session, statement)
     for column in ("sampled_at", "reported_at"):
         frame[column] = pd.to_datetime(frame[column])
-    frame = frame.astype({c: float for c in ("code_4", "code_6", "code_14", "water_ppm", "viscosity_40")})
+    frame = frame.astype({c: float for c in _SAMPLE_FLOATS})
     frame["low_count"] = frame["low_count"].astype(bool)
     return frame[list(SAMPLE_COLUMNS)]
+
+
+def _sample_columns(keys: list[str], rows: list[tuple]) -> pd.DataFrame | None:
+    """load_samples' frame from SQLite's own rows, each column an array at once (numpy reads SQLAlchemy's stored
+    time text exactly); None where that does not apply (no rows, a time column all empty, times in another form),
+    for the pandas steps. tests/test_analysis_service.py compares the two."""
+    if not rows:
+        return None
+    columns = dict(zip(keys, zip(*rows, strict=True), strict=True))
+    out = {}
+    for name in ("sampled_at", "reported_at"):
+        values = columns[name]
+        text = [v for v in values if v is not None]
+        if not text or not all(isinstance(v, str) and len(v) == _STORED_TIME for v in text):
+            return None
+        # In the unit pd.to_datetime gives the driver-processed datetimes (asked of the first one).
+        unit = pd.to_datetime(pd.Series([datetime.fromisoformat(text[0])], dtype=object)).dtype
+        out[name] = np.array(["NaT" if v is None else v for v in values], dtype="datetime64[us]").astype(unit)
+    frame = {"machine_id": np.array(columns["machine_id"], dtype=np.int64), **out,
+             **{c: np.array(columns[c], dtype=float) for c in _SAMPLE_FLOATS},
+             "low_count": np.array(columns["low_count"], dtype=bool)}
+    return pd.DataFrame({c: frame[c] for c in SAMPLE_COLUMNS})
 
 
 def load_frames(session: Session, pump_ids=None, as_of=None) -> FleetFrames:
@@ -268,19 +308,30 @@ def known_by(frames: FleetFrames, moment: pd.Timestamp) -> FleetFrames:
     )
 
 
+_LAB_RESULTS = ("reported_at", "code_4", "code_6", "code_14", "water_ppm", "viscosity_40")
+
+
 def samples_known_by(samples: pd.DataFrame, moment: pd.Timestamp) -> pd.DataFrame:
-    """The lab samples taken by ``moment``, with the results not reported by then blanked."""
+    """The lab samples taken by ``moment``, with the results not reported by then blanked.
+
+    Built column by column from arrays: two masked .loc assignments cost more than the rest of one pump's load
+    (tests/test_analysis_service.py compares this with the pandas steps it replaced)."""
     sampled = samples["sampled_at"].to_numpy()
     reported = samples["reported_at"].to_numpy()
     moment64 = np.datetime64(pd.Timestamp(moment).to_datetime64())
     taken = sampled <= moment64
-    if taken.all() and not (np.isnat(reported) | (reported > moment64)).any():
+    pending = np.isnat(reported) | (reported > moment64)
+    if taken.all() and not pending.any():
         return samples  # every sample taken and reported by then (the usual case for one machine's few samples)
-    samples = samples[taken]
-    pending = samples["reported_at"].isna() | (samples["reported_at"] > moment)
+    pending = pending[taken]
     if not pending.any():  # every result in: nothing to blank
-        return samples
-    samples = samples.copy()
-    samples.loc[pending, ["reported_at", "code_4", "code_6", "code_14", "water_ppm", "viscosity_40"]] = np.nan
-    samples.loc[pending, "low_count"] = False
-    return samples
+        return samples[taken]
+    columns = {}
+    for name in samples.columns:
+        values = samples[name].to_numpy()[taken]  # a fresh array (boolean indexing copies)
+        if name in _LAB_RESULTS:
+            values[pending] = np.datetime64("NaT") if values.dtype.kind == "M" else np.nan
+        elif name == "low_count":
+            values[pending] = False
+        columns[name] = values
+    return pd.DataFrame(columns, index=samples.index[taken], columns=samples.columns)

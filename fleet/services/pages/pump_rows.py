@@ -1,9 +1,10 @@
 """One pump's rows, as the pump page needs them: a few plain queries of this pump's columns.
 
 The frames handed to the core are those ``fleet.services.analysis.frames.load_frames`` gives for this pump (its
-effective limits and the oil of each reading by the same functions; tests/test_pump_page_rows.py compares them),
-without the whole-fleet loader's joins and maps. The rows the page shows beside them (who took a reading, the
-stays with their names, every maintenance record) come from the same queries, so nothing is read twice.
+effective limits and the oil of each reading by the same functions: effective_limits, attach_oil's search
+frames.oil_of_one; tests/test_pump_page_rows.py compares them), without the whole-fleet loader's joins and maps.
+The rows the page shows beside them (who took a reading, the stays with their names, every maintenance record)
+come from the same queries, so nothing is read twice.
 Nothing is kept between requests: a write shows on the next page.
 """
 
@@ -29,7 +30,7 @@ from fleet.db.models import (
 )
 from fleet.frames import EVENT_COLUMNS, FLOW_POINT_COLUMNS, PUMP_COLUMNS, READING_COLUMNS
 from fleet.physics.pump import theoretical_flow_lpm
-from fleet.services.analysis.frames import attach_oil, driver_rows, effective_limits
+from fleet.services.analysis.frames import driver_rows, effective_limits, oil_of_one
 
 # The columns of the readings the page shows besides the core's.
 READING_EXTRAS = ("source", "taken_by")
@@ -94,15 +95,17 @@ def _stays(session: Session, pump_id: int) -> list[Stay]:
         for row in rows]
 
 
-def _history(pump_id: int, stays: list[Stay]) -> pd.DataFrame:
-    """The stays as installation_history's columns that attach_oil reads."""
-    return pd.DataFrame({
-        "pump_id": np.full(len(stays), pump_id, dtype=np.int64),
-        "installed_at": pd.to_datetime([stay.installed_at for stay in stays]),
-        **{column: np.array([np.nan if stay.oil is None or stay.oil[key] is None else stay.oil[key]
-                             for stay in stays], dtype=float)
-           for column, key in (("nu40", "viscosity_40"), ("nu100", "viscosity_100"), ("density15", "density_15"))},
-    })
+def _oil(taken_at: np.ndarray, stays: list[Stay]) -> dict[str, np.ndarray]:
+    """attach_oil's oil columns for this pump's readings (in time order), from its stays, without a frame of
+    either: the stays in installation order as attach_oil sorts them, and the same search (frames.oil_of_one)."""
+    keys = (("nu40", "viscosity_40"), ("nu100", "viscosity_100"), ("density15", "density_15"))
+    if len(taken_at) == 0 or not stays:
+        return {column: np.full(len(taken_at), np.nan) for column, _ in keys}
+    installed = pd.to_datetime([stay.installed_at for stay in stays]).to_numpy()
+    by_time = np.argsort(installed, kind="stable")
+    oils = {column: np.array([np.nan if stay.oil is None or stay.oil[key] is None else stay.oil[key]
+                              for stay in stays], dtype=float)[by_time] for column, key in keys}
+    return oil_of_one(taken_at, installed[by_time], oils)
 
 
 def _pump_frame(session: Session, pump: Pump, here: Stay | None) -> pd.DataFrame:
@@ -165,8 +168,9 @@ def pump_rows(session: Session, pump: Pump, as_of: datetime) -> PumpRows:
     columns = {"reading_id": np.array(got["reading_id"], dtype=np.int64),
                "pump_id": np.array(got["pump_id"], dtype=np.int64), "taken_at": taken,
                **{c: _numbers(got[c]) for c in _NUMBERS}}
-    all_readings = attach_oil(pd.DataFrame({c: v[order] for c, v in columns.items()}), _history(pump.id, stays))
-    all_readings = all_readings[list(READING_COLUMNS)]
+    columns = {c: v[order] for c, v in columns.items()}
+    columns.update(_oil(columns["taken_at"], stays))
+    all_readings = pd.DataFrame({c: columns[c] for c in READING_COLUMNS})
     points = _driver_columns(session, select(FlowTestPoint.reading_id, FlowTestPoint.pressure_bar,
                                              FlowTestPoint.flow_lpm)
                              .join(Reading, Reading.id == FlowTestPoint.reading_id).where(Reading.pump_id == pump.id))
