@@ -161,7 +161,10 @@ def _arrow_plan(data: bytes) -> tuple[list[str], pa.Buffer, dict] | None:
                                                     strings_can_be_null=False, quoted_strings_can_be_null=False)}
     start = len(data) - len(body)
     # Line breaks at the very end make blank rows of nothing: left off here, so the streamed reader need not stop.
-    return names, pa.py_buffer(data)[start:start + len(body.rstrip(b"\r\n"))], options
+    end = len(data)
+    while end > start and data[end - 1] in b"\r\n":  # counted from the end: rstrip would copy a large file
+        end -= 1
+    return names, pa.py_buffer(data)[start:end], options
 
 
 def _unguarded_frame(table: pa.Table, names: list[str]) -> pd.DataFrame:
