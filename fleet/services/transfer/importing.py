@@ -76,6 +76,13 @@ def import_file(session: Session, kind: str, path: str | Path, **kwargs) -> Impo
             except StreamBroken:
                 pass
     table, places = read_readable(path)
+    return import_placed(session, kind, table, places, **kwargs)
+
+
+def import_placed(session: Session, kind: str, table: pd.DataFrame, places, **kwargs) -> ImportResult:
+    """``import_table`` of a file's table, its problems and doubts named by the file's own rows: ``places`` is
+    what ``read_readable`` gave with the table (a workbook's sheet, a CSV's rows when blank ones were left out, or
+    None when the table's rows are the file's)."""
     try:
         result = import_table(session, kind, table, **kwargs)
     except ImportRejected as rejected:
@@ -88,7 +95,8 @@ def import_file(session: Session, kind: str, path: str | Path, **kwargs) -> Impo
 
 
 def read_readable(source: str | Path | bytes, filename: str | None = None):
-    """``fleet.io.files.read_file``, with a file that cannot be read at all as a problem of row 1."""
+    """``fleet.io.files.read_file``, with a file that cannot be read at all as a problem (of row 1, or of the row
+    and column of its first byte that is not UTF-8)."""
     try:
         return read_file(source, filename)
     except NotUtf8 as exc:

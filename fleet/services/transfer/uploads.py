@@ -4,7 +4,7 @@ from sqlalchemy.orm import Session, sessionmaker
 
 from fleet.io.columns import KINDS
 from fleet.io.parse import ImportRejected
-from fleet.services.transfer.importing import import_table, read_readable
+from fleet.services.transfer.importing import import_placed, read_readable
 from fleet.services.writes import perform
 
 PROBLEM_COLUMNS = ("row", "column", "reason", "cell")  # cell: a spreadsheet's reference, e.g. B7
@@ -29,18 +29,11 @@ def upload_file(sessions: sessionmaker[Session], kind: str, data: bytes | None, 
         return _rejected(kind, [{"row": 1, "column": "", "cell": None, "reason": reason}], reason)
     try:
         table, places = read_readable(data, filename)
-        try:
-            outcome = perform(sessions, lambda session: import_table(session, kind, table, source="import"))
-        except ImportRejected as rejected:
-            if places is None:
-                raise
-            raise places.locate(rejected) from None
+        outcome = perform(sessions, lambda session: import_placed(session, kind, table, places, source="import"))
     except ImportRejected as rejected:
         rows = [{"row": p.row, "column": p.column, "reason": p.reason, "cell": p.cell} for p in rejected.problems]
         return _rejected(kind, rows, rejected.report())
     result = outcome.value
-    if places is not None:
-        result.doubts = places.locate_doubts(result.doubts)
     return {
         "ok": True, "kind": kind, "summary": result.summary(), "problems": [], "report": "",
         "rows": result.rows, "created": result.created, "updated": result.updated, "skipped": result.skipped,
