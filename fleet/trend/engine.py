@@ -22,7 +22,7 @@ from fleet.trend.degradation import (
     with_member_lines,
 )
 from fleet.trend.energy import leakage_energy, typical_pressure_bar
-from fleet.trend.grouped import group_median, pair_codes
+from fleet.trend.grouped import group_median, group_time_max, pair_codes
 from fleet.trend.intervals import assign_intervals, interval_lives
 from fleet.trend.linear import t_quantile
 from fleet.trend.oil_condition import OIL_COLUMNS, oil_condition
@@ -146,6 +146,17 @@ def _last_usable(referred: pd.DataFrame, current: pd.MultiIndex) -> pd.DataFrame
     }, index=index)
 
 
+def _latest_taken(referred: pd.DataFrame, pumps: pd.Index) -> pd.Series:
+    """Each pump's latest reading time (NaT for none), as referred.groupby("pump_id")["taken_at"].max() gives it
+    reindexed on ``pumps``: one numpy pass, not a groupby (a fixed cost that outweighs one pump's rows)."""
+    taken = referred["taken_at"]
+    if not (isinstance(taken.dtype, np.dtype) and taken.dtype.kind == "M"):  # times with a zone: pandas' way
+        return pd.to_datetime(referred.groupby("pump_id")["taken_at"].max().reindex(pumps))
+    pos = pumps.get_indexer(referred["pump_id"].to_numpy())
+    known = pos >= 0
+    return pd.Series(group_time_max(pos[known], taken.to_numpy()[known], len(pumps)), index=pumps)
+
+
 def _past_margin(fits: pd.DataFrame, limits: dict[str, np.ndarray], last: pd.DataFrame, pumps: pd.DataFrame):
     """How far beyond its limits a pump is, ln(value / limit) of the worst limit (fitted, else last reading)."""
     with np.errstate(divide="ignore", invalid="ignore"):
@@ -167,12 +178,16 @@ def _rows_of(values: np.ndarray, rows: np.ndarray) -> np.ndarray:
     return taken
 
 
-def _wear_law(cur: pd.DataFrame, member_weights: dict[str, np.ndarray]) -> pd.DataFrame:
+_POWER_AT = np.array([j for j, m in enumerate(MEMBERS) if m.law == "power"], dtype=np.intp)  # power-law members
+_POWERS = tuple(MEMBERS[j].power for j in _POWER_AT)
+
+
+def _wear_law(cur: pd.DataFrame, member_weights: dict[str, np.ndarray]) -> dict[str, np.ndarray | list]:
     """wear_law (the law with the most weight), wear_law_weights ({law: weight}) and wear_power (the power law's
     exponent, averaged over its members by weight) of each pump's current interval (member_weights: per quantity,
     per pump and member of MEMBERS, LawFits.weight of that interval). Slip and case drain are
     weighed jointly, so both trends carry the same weights; the slip's are read, the drain's where only the
-    drain has a trend. None (NaN) without a trend."""
+    drain has a trend. None (NaN) without a trend. The columns by name, on cur's rows."""
     slip_ok = cur["slip_enough_data"].to_numpy(bool)
     drain_ok = cur["drain_enough_data"].to_numpy(bool)
     source = np.where(slip_ok, "slip", "drain")
@@ -186,16 +201,21 @@ def _wear_law(cur: pd.DataFrame, member_weights: dict[str, np.ndarray]) -> pd.Da
         {name: float(weights[name][i]) for name in LAWS} if known[i] and law[i] is not None else None
         for i in range(len(cur))
     ]
-    # The power law's exponent, weighted over its members: above 1 accelerating, below 1 slowing down.
+    # The power law's exponent, weighted over its members: above 1 accelerating, below 1 slowing down. The
+    # members' weights gathered in one step, then summed member by member in MEMBERS' order (the sums' rounding).
+    weights_of = np.where((source == "slip")[:, None], member_weights["slip"][:, _POWER_AT],
+                          member_weights["drain"][:, _POWER_AT])
+    weights_of = np.nan_to_num(weights_of)
     power = np.zeros(len(cur))
     total = np.zeros(len(cur))
-    for j, m in enumerate(MEMBERS):
-        if m.law == "power":
-            w = np.where(source == "slip", member_weights["slip"][:, j], member_weights["drain"][:, j])
-            power, total = power + np.nan_to_num(w) * m.power, total + np.nan_to_num(w)
+    for k, exponent in enumerate(_POWERS):
+        power, total = power + weights_of[:, k] * exponent, total + weights_of[:, k]
     with np.errstate(invalid="ignore", divide="ignore"):
         wear_power = np.where(known & (total > 0), power / total, np.nan)
-    return pd.DataFrame({"wear_law": law, "wear_law_weights": as_dicts, "wear_power": wear_power}, index=cur.index)
+    return {"wear_law": law, "wear_law_weights": as_dicts, "wear_power": wear_power}
+
+
+_DATING_COLUMNS = ["pump_id", "interval_no", "interval_hours", "taken_at"]  # what dates_at_hours reads
 
 
 def _crossing_passed(cur: pd.DataFrame, current_iv: pd.DataFrame, referred: pd.DataFrame) -> pd.DataFrame:
@@ -214,7 +234,6 @@ def _crossing_passed(cur: pd.DataFrame, current_iv: pd.DataFrame, referred: pd.D
     first = np.argmin(stacked, axis=1)
     rows = np.arange(len(cur))
     start = current_iv["start_hours"].to_numpy(float)
-    keys = pd.DataFrame({"pump_id": cur.index.to_numpy(), "interval_no": current_iv["interval_no"].to_numpy()})
     per_day = cur["hours_per_day"].to_numpy(float)
     out = {"crossed_limit": np.where(past, names[first], None)}  # the columns, framed once
     suffixes = ("", "_low", "_high")
@@ -227,10 +246,12 @@ def _crossing_passed(cur: pd.DataFrame, current_iv: pd.DataFrame, referred: pd.D
         for suffix in suffixes:
             out[f"crossed_date{suffix}"] = np.full(len(cur), np.datetime64("NaT"), dtype="datetime64[ns]")
         return pd.DataFrame(out, index=cur.index)
-    near = referred[referred["pump_id"].isin(cur.index[past])]  # only past pumps' readings date a crossing
+    # Only past pumps' readings date a crossing, and only the columns the dating reads.
+    near = referred.loc[referred["pump_id"].isin(cur.index[past]).to_numpy(), _DATING_COLUMNS]
     # The three figures of every pump dated in one search.
-    dates = dates_at_hours(near, pd.concat([keys] * 3, ignore_index=True), np.concatenate(hours),
-                           np.tile(per_day, 3)).to_numpy()
+    keys = pd.DataFrame({"pump_id": np.tile(cur.index.to_numpy(), 3),
+                         "interval_no": np.tile(current_iv["interval_no"].to_numpy(), 3)})
+    dates = dates_at_hours(near, keys, np.concatenate(hours), np.tile(per_day, 3)).to_numpy()
     for i, suffix in enumerate(suffixes):
         out[f"crossed_date{suffix}"] = dates[i * len(cur):(i + 1) * len(cur)]
     return pd.DataFrame(out, index=cur.index)
@@ -355,8 +376,7 @@ def analyze_fleet(
     res["interval_start"] = pd.to_datetime(current_iv["start_at"])
     res["interval_start_kind"] = current_iv["start_kind"]
     res["interval_hours"] = cur["current_hours"]
-    all_last = referred.groupby("pump_id")["taken_at"].max()
-    res["last_reading_at"] = pd.to_datetime(all_last.reindex(pump_tab.index))
+    res["last_reading_at"] = _latest_taken(referred, pump_tab.index)
     res["days_since_reading"] = (now - res["last_reading_at"]).dt.total_seconds() / 86400.0
     res["installed"] = pump_tab["machine_id"].notna() if "machine_id" in pump_tab else True
     res.update(last.items())
@@ -386,7 +406,7 @@ def analyze_fleet(
     ):
         res[dst] = limit_dates(res["last_reading_at"], res[src], res["hours_per_day"]).to_numpy()
 
-    res.update(_wear_law(cur, {q: _rows_of(laws[q].weight, cur_rows) for q in QUANTITIES}).items())
+    res.update(_wear_law(cur, {q: _rows_of(laws[q].weight, cur_rows) for q in QUANTITIES}))
     res.update(_crossing_passed(cur, current_iv, referred).items())
     res["past_margin"] = _past_margin(cur, cur_limits, last, pump_tab)
     res["data_note"] = _data_note(res, current_iv, cur, s)
