@@ -55,8 +55,23 @@ class FleetAnalysis:
     laws: dict  # each quantity's fitted wear laws (LawFits), rows as fit_table's
     priors: pd.DataFrame
     intervals: pd.DataFrame
-    totals: dict = field(default_factory=dict)
     settings: AnalysisSettings = field(default_factory=AnalysisSettings)
+
+    @cached_property
+    def totals(self) -> dict:
+        """Fleet sums of the results (pumps, by status, energy cost per year by currency, leakage kW), summed when
+        first read: a write's one-pump analysis, and each part of a full one, never reads them."""
+        res = self.results
+        # currency is all missing, and so float, for a pump not installed at a site: group on text either way.
+        currency = res["currency"].astype(object).fillna("")
+        return {
+            "pumps": int(len(res)),
+            "by_status": {k: int(v) for k, v in res["status"].value_counts().items()},
+            "energy_cost_per_year": {
+                str(k): float(v) for k, v in res.groupby(currency)["energy_cost_per_year"].sum().items()
+            },
+            "leakage_kw": float(np.nansum(res["leakage_kw"])),
+        }
 
     def fit_columns(self) -> dict:
         """The columns of ``fits`` by name, in order, none of the members' hundreds of lines framed."""
@@ -445,19 +460,9 @@ def analyze_fleet(
     status = assess_status(res, now, s)
     res = pd.concat([res, status.set_axis(res.index)], axis=1)
     res.index.name = "pump_id"
-    # currency is all missing, and so float, for a pump not installed at a site: group on text either way.
-    currency = res["currency"].astype(object).fillna("")
-    totals = {
-        "pumps": int(len(res)),
-        "by_status": {k: int(v) for k, v in res["status"].value_counts().items()},
-        "energy_cost_per_year": {
-            str(k): float(v) for k, v in res.groupby(currency)["energy_cost_per_year"].sum().items()
-        },
-        "leakage_kw": float(np.nansum(res["leakage_kw"])),
-    }
     first_cols = ["rank", "pump", "kind", "status", "reasons"]
     res = res[first_cols + [c for c in res.columns if c not in first_cols]]
-    return FleetAnalysis(res, referred, fits, laws, fleet_priors, intervals, totals, s)
+    return FleetAnalysis(res, referred, fits, laws, fleet_priors, intervals, s)
 
 
 def fit_priors(intervals: pd.DataFrame, kind_of_pump: pd.Series, settings: AnalysisSettings) -> pd.DataFrame:
