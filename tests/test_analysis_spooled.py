@@ -105,9 +105,15 @@ def test_one_part_in_memory_at_a_time_and_the_files_removed(demo_db, small_parts
     assert list(spooled.iterdir()) == []  # the part files went with their folder
 
 
-def test_a_part_failing_to_store_leaves_the_stored_analysis_as_it_was(demo_db, small_parts, monkeypatch):
+def test_a_part_failing_to_store_keeps_the_parts_stored_before_it_and_leaves_the_rest_as_it_was(
+        demo_db, small_parts, monkeypatch):
+    # A refresh stores each part in its own write (refresh.fleet_afresh): the two parts before the failing one are
+    # stored whole, the failing part and those after it keep the analysis they had, and the fleet's refit is not
+    # run; the run fails with the part's error.
     with demo_db.sessions() as session:
         before = _rows(session)
+        results_before = {row.pump_id: row.computed_at for row in session.execute(
+            select(AnalysisResult.pump_id, AnalysisResult.computed_at))}
     read, calls = spool.read_part, []
 
     def failing_third(path):
@@ -117,10 +123,18 @@ def test_a_part_failing_to_store_leaves_the_stored_analysis_as_it_was(demo_db, s
         return read(path)
 
     monkeypatch.setattr(store_fleet, "read_part", failing_third)
+    later = NOW + dt.timedelta(days=1)
     with pytest.raises(OSError, match="disk gone"):
-        reanalyse(demo_db.sessions, now=NOW, workers=1)
+        reanalyse(demo_db.sessions, now=later, workers=1)
     with demo_db.sessions() as session:
-        _same_rows(before, _rows(session))  # the two parts stored before it are not kept either
+        after = {row.pump_id: row.computed_at for row in session.execute(
+            select(AnalysisResult.pump_id, AnalysisResult.computed_at))}
+        priors = _rows(session)["fleet_prior"]
+    ids = sorted(results_before)
+    assert len(ids) == 41  # parts of 6 or 7 (compute.part_ids): the first two hold 13 pumps
+    assert all(after[p] == later for p in ids[:13])
+    assert all(after[p] == results_before[p] for p in ids[13:])
+    _same_rows({"fleet_prior": before["fleet_prior"]}, {"fleet_prior": priors})
 
 
 def _bits(value):

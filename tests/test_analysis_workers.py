@@ -18,6 +18,7 @@ from fleet.services.analysis.parallel import WORKERS_ENV, shareable, worker_coun
 from fleet.trend.settings import AnalysisSettings
 from tests.frame_compare import plain as _plain
 from tests.frame_compare import same_frames
+from tests.parallel_work import released_by_the_caller
 
 NOW = dt.datetime(2026, 12, 1, 12)
 PART = 7  # 41 demo pumps: six parts of 6 or 7 (compute.part_ids)
@@ -93,6 +94,18 @@ def test_a_part_failing_in_a_worker_fails_the_run_and_nothing_is_returned(tmp_pa
     missing = f"sqlite:///{tmp_path / 'no such folder' / 'fleet.sqlite'}"
     with pytest.raises(Exception, match="unable to open database file"):
         parts_in_workers(missing, [[1, 2], [3, 4], [5]], NOW, AnalysisSettings(), 2)
+
+
+def test_each_part_is_given_back_as_soon_as_it_is_done_while_the_workers_go_on(demo_db, tmp_path):
+    # Each part after the first waits until the caller has taken the one before: had the pool given the parts back
+    # only when all were done, the second would wait in vain and the run fail.
+    from fleet.services.analysis.parallel import _each
+
+    taken = []
+    for number in _each(released_by_the_caller, demo_db.url, [(n, str(tmp_path)) for n in range(4)], 2, None):
+        taken.append(number)
+        (tmp_path / f"taken-{number}").touch()
+    assert taken == [0, 1, 2, 3]
 
 
 def test_parts_cut_even_and_a_multiple_of_the_workers():

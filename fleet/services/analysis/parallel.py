@@ -9,13 +9,14 @@ page faults and its engine's SQL compilation anew each time (about half a second
 on the benchmark's fleet), and a worker's memory stays near one part's whatever the number of parts. A worker makes
 its engine from the database URL once (the compiled statements cached with it), reads each part of the pumps in a
 read transaction of its own, with the engine's connections closed again after each part, runs the engine and
-writes the part to its file (fleet.services.analysis.spool), sending back only what the fleet priors need. The
-parent reads the data versions before any worker starts, so a write landing meanwhile leaves its pump stale, never
-hidden, and fits the fleet priors once from every part.
+writes the part to its file (fleet.services.analysis.spool), sending back only the file's name. The parent reads
+the data versions before any worker starts, so a write landing meanwhile leaves its pump stale, never hidden, and
+takes each part as soon as it is written (to store it while the workers go on).
 """
 
 import multiprocessing
 import os
+from collections.abc import Iterator
 from concurrent.futures import ProcessPoolExecutor
 from datetime import datetime
 from pathlib import Path
@@ -102,33 +103,32 @@ def _pool(workers: int, parts: int) -> ProcessPoolExecutor:
     return ProcessPoolExecutor(max_workers=min(workers, parts), mp_context=context)
 
 
-def _run(work, url: str, arguments: list[tuple], workers: int, peaks_mb: dict[int, float] | None) -> list:
-    """``work(session, *each)`` for each of ``arguments`` in the workers; the answers in the order given."""
-    answers = []
+def _each(work, url: str, arguments: list[tuple], workers: int, peaks_mb: dict[int, float] | None) -> Iterator:
+    """``work(session, *each)`` for each of ``arguments`` in the workers; each answer given back, in the order
+    given, as soon as it and those before it are done, while the workers go on with the rest."""
     with _pool(workers, len(arguments)) as pool:
         futures = [pool.submit(_in_worker, url, work, *each) for each in arguments]
         try:
             for future in futures:
                 answer, pid, peak = future.result()
-                answers.append(answer)
                 if peaks_mb is not None and peak is not None:
                     peaks_mb[pid] = max(peak, peaks_mb.get(pid, 0.0))
-        except BaseException:
-            pool.shutdown(wait=True, cancel_futures=True)  # one part failed: the rest is not wanted
+                yield answer
+        except BaseException:  # a part failed, or the caller stopped taking answers: the rest is not wanted
+            pool.shutdown(wait=True, cancel_futures=True)
             raise
-    return answers
 
 
 def parts_in_workers(url: str, id_parts: list[list[int]], now: datetime, settings: AnalysisSettings, workers: int,
                      peaks_mb: dict[int, float] | None = None) -> list[Part]:
     """Each list of pump ids analysed in one of ``workers`` processes; the parts in the order given."""
-    return _run(analyse_part, url, [(ids, now, settings) for ids in id_parts], workers, peaks_mb)
+    return list(_each(analyse_part, url, [(ids, now, settings) for ids in id_parts], workers, peaks_mb))
 
 
 def spool_in_workers(url: str, id_parts: list[list[int]], paths: list[Path], now: datetime,
                      settings: AnalysisSettings, workers: int,
-                     peaks_mb: dict[int, float] | None = None) -> list[PartSummary]:
+                     peaks_mb: dict[int, float] | None = None) -> Iterator[PartSummary]:
     """Each list of pump ids analysed in one of ``workers`` processes and written to its path
-    (fleet.services.analysis.spool.spool_part); their summaries in the order given."""
-    return _run(spool_part, url, [(ids, now, settings, path) for ids, path in zip(id_parts, paths, strict=True)],
-                workers, peaks_mb)
+    (fleet.services.analysis.spool.spool_part); their summaries in the order given, each as soon as it is done."""
+    return _each(spool_part, url, [(ids, now, settings, path) for ids, path in zip(id_parts, paths, strict=True)],
+                 workers, peaks_mb)

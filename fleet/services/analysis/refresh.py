@@ -5,6 +5,8 @@ analysis never holds up a technician's save. Data written meanwhile is caught by
 stay stale and are analysed again in the next round.
 """
 
+import time
+from contextlib import closing
 from datetime import datetime
 
 from sqlalchemy import func, or_, select
@@ -13,9 +15,9 @@ from sqlalchemy.orm import Session, sessionmaker
 from fleet.db.models import AnalysisResult, Pump, PumpDataVersion
 from fleet.db.transaction import run_write
 from fleet.services.analysis.compute import Progress, compute
-from fleet.services.analysis.spool import spool_fleet, spool_folder
+from fleet.services.analysis.spool import plan_fleet, spool_fleet, spool_folder, spool_parts
 from fleet.services.analysis.store import RefreshSummary, store
-from fleet.services.analysis.store_fleet import store_spooled
+from fleet.services.analysis.store_fleet import StoredParts, finish_fleet, store_part, store_spooled
 from fleet.services.mail.send import deliver_due
 from fleet.trend.settings import AnalysisSettings
 
@@ -65,7 +67,7 @@ def reanalyse(sessions: sessionmaker[Session], pump_ids=None, now: datetime | No
     (fleet.services.analysis.parallel): the read transaction here has written nothing, so they see what it sees
     or newer, and the data versions read first keep anything newer stale."""
     if pump_ids is None:
-        summary = _fleet_afresh(sessions, now, settings, progress, workers)
+        summary = fleet_afresh(sessions, now, settings, progress, workers)
     else:
         with sessions() as session, session.begin():
             computed = compute(session, pump_ids, now, settings, workers=workers)
@@ -80,14 +82,41 @@ def reanalyse(sessions: sessionmaker[Session], pump_ids=None, now: datetime | No
     return summary
 
 
-def _fleet_afresh(sessions: sessionmaker[Session], now: datetime | None, settings: AnalysisSettings | None,
-                  progress: Progress | None = None, workers: int = 1) -> RefreshSummary:
-    """The whole fleet analysed part by part into files in a read transaction, then stored part by part in one
-    write (fleet.services.analysis.spool, store_fleet): no process holds the whole fleet's results."""
+def fleet_afresh(sessions: sessionmaker[Session], now: datetime | None = None, settings: AnalysisSettings | None = None,
+                 progress: Progress | None = None, workers: int = 1, marks: dict | None = None) -> RefreshSummary:
+    """The whole fleet analysed part by part into files (fleet.services.analysis.spool), each part stored in a
+    write of its own as soon as it is computed, then every kind's fleet life figures refitted and the service order
+    checked in one more: no process holds the whole fleet's results, and no writer waits on more than one part.
+
+    With ``workers`` > 1 the workers compute the next parts while this process stores the last, each in its own
+    read transaction; in this process (one worker, or a private database) the parts are computed in one read
+    transaction first and stored after it. The data versions are read before any part: a write landing meanwhile
+    leaves its pump stale, and a part never overwrites a newer stored analysis. A run cut short keeps the parts it
+    stored, each whole; the rest keep their analysis until the next run. ``progress(pumps stored, pumps, label)``
+    after each part; ``marks`` (for a benchmark), when given, gets the moment the last part was computed
+    ("computed", time.perf_counter) and the workers' peak memory ("worker_peaks_mb").
+    """
+    settings = settings or AnalysisSettings()
     with spool_folder() as folder:
         with sessions() as session, session.begin():
-            spooled = spool_fleet(session, folder, now, settings, workers)
-        return run_write(sessions, lambda session: store_spooled(session, spooled, settings, progress),
+            plan = plan_fleet(session, folder, now, settings, workers)
+            computed = None if plan.url else list(spool_parts(session, plan, settings))
+        if computed is not None and marks is not None:
+            marks["computed"] = time.perf_counter()
+        parts = spool_parts(None, plan, settings) if computed is None else (part for part in computed)
+        stored = StoredParts()
+        with closing(parts):  # a store failing stops the workers: the parts left are not wanted
+            for number, part in enumerate(parts, start=1):
+                if marks is not None and number == len(plan.paths):
+                    marks.setdefault("computed", time.perf_counter())
+                stored.add(run_write(sessions, lambda session, path=part.path: store_part(
+                    session, path, plan.versions, plan.computed_at), exclusive=STORE_LOCK))
+                if progress:
+                    progress(stored.pumps, plan.pumps, "analysing and storing")
+        if marks is not None:
+            marks.setdefault("computed", time.perf_counter())  # a fleet without pumps
+            marks["worker_peaks_mb"] = plan.worker_peaks_mb
+        return run_write(sessions, lambda session: finish_fleet(session, stored, plan.computed_at, settings),
                          exclusive=STORE_LOCK)
 
 
@@ -109,7 +138,7 @@ def bring_up_to_date(sessions: sessionmaker[Session], now: datetime | None = Non
             full = len(stale) >= 2 and len(stale) >= FULL_SHARE * (session.scalar(select(func.count(Pump.id))) or 0)
             computed = None if full else compute(session, sorted(stale), now, settings)
         if full:
-            summary = _fleet_afresh(sessions, now, settings)
+            summary = fleet_afresh(sessions, now, settings)
         else:
             summary = run_write(sessions, lambda session, c=computed: store(session, c, settings),
                                 exclusive=STORE_LOCK)

@@ -5,17 +5,17 @@ worker (fleet.services.analysis.parallel), and written at once to its own file i
 the form the store inserts: each pump's record (fleet.trend.engine.results_to_records) with its stored detail
 already as JSON text, the service lives, and each interval's trend with its fit as JSON text (a fit holds every
 wear-law member's line, about 26 kB of JSON per interval). Turning figures into records and JSON where they were
-computed keeps that work on the workers, in parallel, and out of the main process, which stores alone. The prior
-figures are the one part of a record left to fill: only each part's service lives and pump kinds come back to the
-caller, which fits the fleet priors once from all of them (fleet.trend.engine.fit_priors); each pump gets its
-figures when its part is stored (fleet.services.analysis.store_fleet; nothing else in a record depends on the
-priors). The folder is removed when the caller is done with it.
+computed keeps that work on the workers, in parallel, and out of the main process, which stores. Nothing of a
+stored record depends on the fleet priors (each pump's prior figures are derived when read, from the kinds' fleet
+life figures that the store refits from the stored service lives), so a part can be stored as soon as it is
+written (fleet.services.analysis.refresh.fleet_afresh stores each in its own short write while the workers go on
+with the next). The folder is removed when the caller is done with it.
 """
 
 import pickle
 import shutil
 import tempfile
-from collections.abc import Iterator
+from collections.abc import Iterable, Iterator
 from contextlib import contextmanager
 from dataclasses import dataclass, field
 from datetime import datetime
@@ -34,7 +34,6 @@ from fleet.timeutil import utcnow
 from fleet.trend.engine import results_to_records
 from fleet.trend.intervals import interval_lives
 from fleet.trend.settings import AnalysisSettings
-from fleet.trend.weibull import fit_fleet_priors
 
 
 @dataclass
@@ -52,11 +51,25 @@ class SpooledPart:
 
 @dataclass
 class PartSummary:
-    """What comes back of a spooled part: its file, and what the fleet priors are fitted from."""
+    """What comes back of a spooled part: its file and how many pumps it holds."""
 
     path: Path
-    lives: pd.DataFrame
-    kinds: pd.Series  # pump_id -> kind
+    pumps: int
+
+
+@dataclass
+class FleetPlan:
+    """A full analysis's parts, before any is computed: the data versions read first, the parts' pumps and files,
+    and the database URL the workers open (None: the parts run in the caller's process)."""
+
+    computed_at: datetime
+    versions: dict[int, int]  # pump_id -> data version read before the data
+    id_parts: list[list[int]]
+    paths: list[Path]
+    url: str | None
+    workers: int
+    pumps: int
+    worker_peaks_mb: dict[int, float] = field(default_factory=dict)  # worker process id -> its peak memory
 
 
 @dataclass
@@ -64,7 +77,6 @@ class SpooledAnalysis:
     """A full analysis waiting in files to be stored (fleet.services.analysis.store_fleet.store_spooled)."""
 
     parts: list[Path]
-    priors: pd.DataFrame  # the fleet Weibull of each kind, fitted once from every part's service lives
     versions: dict[int, int]  # pump_id -> data version read before the data
     computed_at: datetime
     pumps: int
@@ -82,7 +94,7 @@ def spool_part(session: Session, pump_ids: list[int], now: datetime, settings: A
     lives = interval_lives(part.intervals)
     with open(path, "wb") as out:
         pickle.dump(SpooledPart(part.results, records, details, lives, trends), out, protocol=pickle.HIGHEST_PROTOCOL)
-    return PartSummary(path, lives, part.results["kind"])
+    return PartSummary(path, len(records))
 
 
 def json_text(value) -> str:
@@ -109,6 +121,34 @@ def spool_folder() -> Iterator[Path]:
         shutil.rmtree(folder, ignore_errors=True)
 
 
+def plan_fleet(session: Session, folder: Path, now: datetime | None = None, settings: AnalysisSettings | None = None,
+               workers: int = 1, chunk_pumps: int | None = None) -> FleetPlan:
+    """Read the data versions (first: the data read next is at least this new) and cut the fleet into parts, each
+    with its file in ``folder`` (spool_folder); with ``workers`` > 1 and a database other processes can open, the
+    parts go to that many worker processes."""
+    computed_at = now or utcnow()
+    versions = data_versions(session)
+    ids = list(session.scalars(select(Pump.id).order_by(Pump.id)))
+    chunk_pumps = chunk_pumps or compute_module.CHUNK_PUMPS
+    url = _shared_url(session) if workers > 1 and len(ids) > chunk_pumps else None
+    id_parts = part_ids(ids, chunk_pumps, workers if url is not None else 1)
+    paths = [folder / f"part-{number:05d}.pickle" for number in range(len(id_parts))]
+    return FleetPlan(computed_at, versions, id_parts, paths, url, workers, len(ids))
+
+
+def spool_parts(session: Session | None, plan: FleetPlan, settings: AnalysisSettings) -> Iterable[PartSummary]:
+    """Each part of ``plan`` analysed and written to its file, in the plan's order, each given back as soon as it is
+    written: by the workers (which read committed data in transactions of their own, so ``session`` may be None
+    and the caller free to store the parts meanwhile), else in ``session``'s read transaction, one after another."""
+    if plan.url is not None:
+        from fleet.services.analysis.parallel import spool_in_workers
+
+        return spool_in_workers(plan.url, plan.id_parts, plan.paths, plan.computed_at, settings, plan.workers,
+                                plan.worker_peaks_mb)
+    return (spool_part(session, part, plan.computed_at, settings, path)
+            for part, path in zip(plan.id_parts, plan.paths, strict=True))
+
+
 def spool_fleet(session: Session, folder: Path, now: datetime | None = None,
                 settings: AnalysisSettings | None = None, workers: int = 1,
                 chunk_pumps: int | None = None) -> SpooledAnalysis:
@@ -118,29 +158,11 @@ def spool_fleet(session: Session, folder: Path, now: datetime | None = None,
     ``workers`` > 1 runs the parts in that many worker processes reading committed data (only for a session that
     has written nothing itself; a private in-memory database stays in this process).
     """
-    computed_at = now or utcnow()
     settings = settings or AnalysisSettings()
-    versions = data_versions(session)  # first: the data read next is at least this new
-    ids = list(session.scalars(select(Pump.id).order_by(Pump.id)))
-    chunk_pumps = chunk_pumps or compute_module.CHUNK_PUMPS
-    url = _shared_url(session) if workers > 1 and len(ids) > chunk_pumps else None
-    id_parts = part_ids(ids, chunk_pumps, workers if url is not None else 1)
-    paths = [folder / f"part-{number:05d}.pickle" for number in range(len(id_parts))]
-    peaks: dict[int, float] = {}
-    if url is not None:
-        from fleet.services.analysis.parallel import spool_in_workers
-
-        summaries = spool_in_workers(url, id_parts, paths, computed_at, settings, workers, peaks)
-    else:
-        summaries = [spool_part(session, part, computed_at, settings, path)
-                     for part, path in zip(id_parts, paths, strict=True)]
-    if summaries:
-        lives = pd.concat([s.lives for s in summaries], ignore_index=True)
-        kinds = pd.concat([s.kinds for s in summaries])
-        priors = fit_fleet_priors(lives, kinds, settings.min_weibull_failures)
-    else:
-        priors = pd.DataFrame()
-    return SpooledAnalysis(paths, priors, versions, computed_at, len(ids), peaks)
+    plan = plan_fleet(session, folder, now, settings, workers, chunk_pumps)
+    summaries = list(spool_parts(session, plan, settings))
+    return SpooledAnalysis([summary.path for summary in summaries], plan.versions, plan.computed_at, plan.pumps,
+                           plan.worker_peaks_mb)
 
 
 def _shared_url(session: Session) -> str | None:
