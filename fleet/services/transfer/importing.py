@@ -67,7 +67,9 @@ def import_file(session: Session, kind: str, path: str | Path, **kwargs) -> Impo
 
     A CSV of readings is read in blocks as they are stored (``fleet.io.files.stream_csv``), unless pandas' reader
     must read it; when pyarrow's reader refuses a later part, what was stored of it is undone and the file is read
-    whole, as any other."""
+    whole, as any other. A file's readings equal to stored ones are counted as already stored (a file imported
+    again, or one that repeats rows imported before), unless ``skip_stored_same=False`` is given."""
+    kwargs.setdefault("skip_stored_same", True)
     if kind == "readings" and not is_xlsx_path(path):
         streamed = stream_csv(path)
         if streamed is not None:
@@ -108,10 +110,13 @@ def read_readable(source: str | Path | bytes, filename: str | None = None):
 
 
 def import_table(session: Session, kind: str, table: pd.DataFrame | StreamedCsv, *, now: datetime | None = None,
-                 source: str = "import", taken_by: str | None = None) -> ImportResult:
+                 source: str = "import", taken_by: str | None = None, skip_stored_same: bool = False) -> ImportResult:
+    """Import ``table`` of ``kind`` in the caller's transaction, whole or not at all (ImportRejected names every
+    problem). ``skip_stored_same``: readings equal to stored ones are counted as already stored, not refused (a
+    file imported again; fleet.services.transfer.reading_blocks.import_readings)."""
     now = now or utcnow()
     if kind == "readings":  # in blocks, parsed while the block before is stored
-        return _import_readings_table(session, table, now, source, taken_by)
+        return _import_readings_table(session, table, now, source, taken_by, skip_stored_same)
     parsed, problems = parse_table(kind, table, row_conventions(session, kind, table))
     problems += rules.table_rules(kind, parsed.data, now)  # every problem at once, not cell problems first
     if problems:
@@ -339,12 +344,12 @@ def check_readings(session: Session, table: pd.DataFrame, now: datetime | None =
 
 
 def _import_readings_table(session: Session, table: pd.DataFrame, now: datetime, source: str,
-                           taken_by: str | None) -> ImportResult:
-    outcome = import_readings(session, table, now, source, taken_by)
+                           taken_by: str | None, skip_stored_same: bool = False) -> ImportResult:
+    outcome = import_readings(session, table, now, source, taken_by, skip_stored_same=skip_stored_same)
     if outcome.problems:
         raise ImportRejected(outcome.problems)
-    return ImportResult("readings", outcome.rows, created=outcome.created, pump_ids=outcome.pump_ids,
-                        ignored_columns=outcome.ignored_columns, doubts=outcome.doubts)
+    return ImportResult("readings", outcome.rows, created=outcome.created, skipped=outcome.skipped,
+                        pump_ids=outcome.pump_ids, ignored_columns=outcome.ignored_columns, doubts=outcome.doubts)
 
 
 # --- flow tests --------------------------------------------------------------------------------------------

@@ -48,17 +48,23 @@ class Outcome:
     rows: int
     ignored_columns: list[str]
     created: int = 0
+    skipped: int = 0  # rows equal to a reading stored before (skip_stored_same)
     pump_ids: set[int] = field(default_factory=set)
     doubts: list[dict] = field(default_factory=list)
     problems: list[Problem] = field(default_factory=list)  # empty when the rows were stored
 
 
 def import_readings(session: Session, table: pd.DataFrame | StreamedCsv, now: datetime, source: str,
-                    taken_by: str | None, store: bool = True) -> Outcome:
+                    taken_by: str | None, store: bool = True, skip_stored_same: bool = False) -> Outcome:
     """Check the readings of ``table`` (a table of cells, or a CSV streamed in blocks) and, when ``store`` and no row
     has a problem, insert them all in the caller's transaction; on a problem nothing stays written and
     ``problems`` names every one. A streamed CSV that pyarrow's reader refuses further on raises StreamBroken,
-    with every block written before undone."""
+    with every block written before undone.
+
+    A row whose pump and time a stored reading has is refused; with ``skip_stored_same`` (a file imported again,
+    or one that repeats rows already imported), a row whose measured values and note equal the stored reading's
+    is the same reading: it is counted in ``skipped`` and not written again. A row with other values is refused
+    either way, naming the first value that differs: a stored reading is changed on its page, with a reason."""
     streamed = isinstance(table, StreamedCsv)
     headers = read_headers("readings", table.names if streamed else table.columns)
     pumps = _Pumps(session)
@@ -67,6 +73,7 @@ def import_readings(session: Session, table: pd.DataFrame | StreamedCsv, now: da
     # Rows this import writes must not count as stored before it: only ids up to the largest now are.
     before_id = session.scalar(select(func.coalesce(func.max(Reading.id), 0))) if store else None
     work = _Blocks(headers, pumps, now, source, taken_by, writer)
+    work.skip_stored_same = skip_stored_same
     outcome = Outcome(0, headers.ignored)
     raw = table.blocks(_sizes()) if streamed else _slices(table)
     try:
@@ -113,7 +120,11 @@ def _run(session: Session, work: "_Blocks", raw: Iterator[pd.DataFrame], before_
         for block in blocks:
             if work.cells_wrong:
                 continue  # only the cells are reported now: nothing more to check or store
-            stored_clash += _stored(session, block, before_id)
+            clash, same = _stored(session, block, before_id, work.skip_stored_same)
+            stored_clash += clash
+            if same is not None:  # rows equal to stored readings: counted, not written again
+                _leave_out(work, block, same)
+                outcome.skipped += int(same.sum())
             if stored_clash or work.file_problems:
                 work.refused = True  # stop converting rows that will not be stored
                 continue
@@ -129,7 +140,7 @@ def _run(session: Session, work: "_Blocks", raw: Iterator[pd.DataFrame], before_
     elif work.file_problems or stored_clash:
         outcome.problems = work.file_problems + stored_clash
     if outcome.problems:
-        outcome.created, outcome.pump_ids = 0, set()
+        outcome.created, outcome.skipped, outcome.pump_ids = 0, 0, set()
         return
     if outcome.created:
         outcome.doubts = _meter_doubts(session, pd.concat(new_rows) if len(new_rows) > 1 else new_rows[0],
@@ -165,6 +176,8 @@ class _Block:
     serials: pd.Series | None = None
     prepared: object = None  # the rows as the driver takes them (None: not to be stored)
     meter: pd.DataFrame | None = None  # pump_id, taken_at, hours of the block's rows
+    frame: pd.DataFrame | None = None  # the rows as stored (READING_COLUMNS the file gives), prepared from
+    same: dict | None = None  # the columns one value in every row (BulkInsert.prepare's ``same``)
 
 
 class _Pumps:
@@ -214,6 +227,7 @@ class _Blocks:
         self.unknown: list[Problem] = []  # serials the register does not hold
         self.file_problems: list[Problem] = []  # unknown pumps and repeated (pump, time) when the cells are right
         self.refused = bool(headers.problems)
+        self.skip_stored_same = False  # rows equal to stored readings skipped, not refused (import_readings)
         self.serial_codes: dict[str, int] = {}
         self.seen_codes: list[np.ndarray] = []  # the serial code and time of every earlier block's rows
         self.seen_micros: list[np.ndarray] = []
@@ -265,6 +279,7 @@ class _Blocks:
                 frame[name] = frame[name].where(frame[name].notna(), defaults[name])
         same = {name: defaults.get(name) for name in given if name not in frame} | {"created_at": self.created_at}
         block.meter = frame[["pump_id", "taken_at", "hours"]]
+        block.frame, block.same = frame, same
         if self.writer is not None and not self.refused:
             block.prepared = self.writer.prepare(frame, same)
         return block
@@ -312,31 +327,97 @@ class _Blocks:
         self.seen_micros.append(micros)
 
 
-def _stored(session: Session, block: _Block, before_id: int | None) -> list[Problem]:
-    """Rows of the block whose pump and time a reading stored before the import already has."""
+# The values that make a row the same reading as a stored one (fleet units), with how a problem names them.
+SAME_READING = {"hours": ("hours", "h"), "pressure_bar": ("outlet_pressure", "bar"), "speed_rpm": ("speed", "rpm"),
+                "flow_lpm": ("outlet_flow", "L/min"), "drain_lpm": ("case_drain_flow", "L/min"),
+                "temp_c": ("oil_temp", "degC"), "stroke": ("stroke", ""), "note": ("note", "")}
+
+
+def _stored(session: Session, block: _Block, before_id: int | None,
+            skip_same: bool = False) -> tuple[list[Problem], np.ndarray | None]:
+    """Rows of the block whose pump and time a reading stored before the import already has, as problems; with
+    ``skip_same``, the rows whose values equal that reading's are left out of the problems and marked instead
+    (the mask over the block's rows; None when there are none)."""
     if block.taken_at is None:
-        return []
+        return [], None
     known = ~np.isnan(block.ids)
     if not known.any():
-        return []
+        return [], None
     pump_ids = block.ids[known].astype(np.int64)
     stamps, serials = block.taken_at[known], block.serials[known]
-    query = select(Reading.pump_id, Reading.taken_at).where(
+    compared = [name for name in SAME_READING if skip_same and block.frame is not None and name in block.frame]
+    query = select(Reading.pump_id, Reading.taken_at, *(getattr(Reading, name) for name in compared)).where(
         Reading.pump_id.in_([int(x) for x in np.unique(pump_ids)]),
         Reading.taken_at >= stamps.min().to_pydatetime(), Reading.taken_at <= stamps.max().to_pydatetime())
     if before_id is not None:
         query = query.where(Reading.id <= before_id)
     rows = session.execute(query).all()
     if not rows:
-        return []
+        return [], None
     stored = pd.MultiIndex.from_arrays([np.array([r[0] for r in rows], dtype=np.int64),
                                         pd.to_datetime(pd.Series([r[1] for r in rows], dtype=object))
                                         .astype("datetime64[ns]")])
     keys = pd.MultiIndex.from_arrays([pump_ids, stamps.astype("datetime64[ns]").to_numpy()])
     clash = keys.isin(stored)
-    return [Problem(int(index) + 2, "taken_at", f"a reading of pump '{serial}' at {stamp:%Y-%m-%d %H:%M} is "
-                    "already stored")
-            for index, serial, stamp in zip(stamps.index[clash], serials[clash], stamps[clash], strict=True)]
+    if not clash.any():
+        return [], None
+    at = stamps.index[clash]
+    differs: list[str | None] = [""] * len(at)  # "": refused as before (not compared)
+    if compared:
+        values = pd.DataFrame([r[2:] for r in rows], columns=compared, index=stored)
+        differs = _first_difference(block.frame.loc[at, compared], values.loc[keys[clash]])
+    same = np.zeros(len(block.taken_at), dtype=bool)
+    problems = []
+    for index, serial, stamp, differ in zip(at, serials[clash], stamps[clash], differs, strict=True):
+        if differ is None:
+            same[block.taken_at.index.get_loc(index)] = True
+            continue
+        problems.append(Problem(int(index) + 2, "taken_at", f"a reading of pump '{serial}' at {stamp:%Y-%m-%d %H:%M} "
+                                f"is already stored{differ}"))
+    return problems, same if same.any() else None
+
+
+def _first_difference(given: pd.DataFrame, stored: pd.DataFrame) -> list[str | None]:
+    """Per row, None when each value of ``given`` equals the stored one (numbers to 1e-9 of their size, as a file
+    exported in other units and imported again brings them back; both missing is equal), else what names the first
+    that differs."""
+    out = []
+    for here, there in zip(given.itertuples(index=False), stored.itertuples(index=False), strict=True):
+        for name, a, b in zip(given.columns, here, there, strict=True):
+            if _equal(a, b):
+                continue
+            field, unit = SAME_READING[name]
+            shown = (f"{_shown(a)} {unit}".strip(), f"{_shown(b)} {unit}".strip())
+            out.append(f", with other values ({field}: {shown[0]} here, {shown[1]} stored); a stored reading is "
+                       "changed on its page, with a reason")
+            break
+        else:
+            out.append(None)
+    return out
+
+
+def _equal(a, b) -> bool:
+    missing_a, missing_b = a is None or (isinstance(a, float) and np.isnan(a)), b is None or (
+        isinstance(b, float) and np.isnan(b))
+    if missing_a or missing_b:
+        return missing_a and missing_b
+    if isinstance(a, str) or isinstance(b, str):
+        return str(a) == str(b)
+    return bool(np.isclose(float(a), float(b), rtol=1e-9, atol=0.0))
+
+
+def _shown(value) -> str:
+    if value is None or (isinstance(value, float) and np.isnan(value)):
+        return "none"
+    return f"{value:g}" if isinstance(value, float) else repr(str(value))
+
+
+def _leave_out(work: "_Blocks", block: _Block, same: np.ndarray) -> None:
+    """The block without the rows ``same`` marks: neither written nor asked about the hour meter."""
+    keep = ~same
+    block.meter = block.meter[keep]
+    if block.prepared is not None:
+        block.prepared = work.writer.prepare(block.frame[keep], block.same) if keep.any() else None
 
 
 def _meter_doubts(session: Session, frame: pd.DataFrame, before_id: int | None) -> list[dict]:

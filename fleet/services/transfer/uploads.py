@@ -29,7 +29,8 @@ def upload_file(sessions: sessionmaker[Session], kind: str, data: bytes | None, 
         return _rejected(kind, [{"row": 1, "column": "", "cell": None, "reason": reason}], reason)
     try:
         table, places = read_readable(data, filename)
-        outcome = perform(sessions, lambda session: import_placed(session, kind, table, places, source="import"))
+        outcome = perform(sessions, lambda session: import_placed(session, kind, table, places, source="import",
+                                                                      skip_stored_same=True))
     except ImportRejected as rejected:
         rows = [{"row": p.row, "column": p.column, "reason": p.reason, "cell": p.cell} for p in rejected.problems]
         return _rejected(kind, rows, rejected.report())
