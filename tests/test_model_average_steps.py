@@ -127,3 +127,67 @@ def test_a_step_without_log_or_run_in_pairs_skips_them_and_agrees(monkeypatch):
     assert np.array_equal(got, want, equal_nan=True)
     assert got[0] == pytest.approx(want[0], abs=0)  # and a probability, not NaN
     assert ((got >= 0) & (got <= 1)).all()
+
+
+def _reference_crossing_band(fits, limit, now_hours, confidence):
+    """crossing_band as it was: one crossing search per plausible law (and one more for the forecast's centred
+    law), each through crossing_quantiles (which tests/test_trend_wear_laws.py holds to the whole-grid search)."""
+    alpha = 1.0 - confidence
+    centred = fits.centred()
+    heaviest = model_average.heaviest_law(centred)
+    n = len(fits)
+    median, low, high = np.full(n, np.nan), np.full(n, np.nan), np.full(n, -np.inf)
+    open_high = np.zeros(n, dtype=bool)
+    for k, (law, rows) in enumerate(model_average.plausible_laws(fits, heaviest).items()):
+        if not rows.any():
+            continue
+        top = rows & (heaviest == k)
+        alone = model_average.law_alone(fits, law, rows)
+        if centred is fits:
+            lo, mid, hi = model_average.crossing_quantiles(alone, limit, now_hours, (alpha / 2, 0.5, 1 - alpha / 2),
+                                                           confidence)
+        else:
+            lo, hi = model_average.crossing_quantiles(alone, limit, now_hours, (alpha / 2, 1 - alpha / 2), confidence)
+            mid = np.full(n, np.nan)
+            if top.any():
+                (mid,) = model_average.crossing_quantiles(model_average.law_alone(centred, law, top), limit,
+                                                          now_hours, (0.5,), confidence)
+        median = np.where(top, mid, median)
+        low = np.where(rows, np.fmin(low, lo), low)
+        open_high |= rows & np.isnan(hi)
+        high = np.where(rows, np.fmax(high, hi), high)
+    low = np.fmin(low, median)
+    high = np.where(np.isfinite(high), np.fmax(high, median), high)
+    reached = np.isfinite(median) | np.isfinite(low)
+    return low, median, np.where(open_high | ~np.isfinite(high) | ~reached, np.nan, high)
+
+
+def _centred(laws, shift):
+    """The same fits with invented lines for the forecast to follow (as LawFits.centred_on sets them)."""
+    return dataclasses.replace(laws, centre_a=laws.a + shift, centre_b=laws.b * (1.0 + shift), _t_ratio={})
+
+
+def test_one_search_for_every_law_and_limit_gives_each_laws_own_searches_figures():
+    """crossing_bands finds every plausible law's crossings of several cases (the slip's and the case drain's
+    limits) in one search; each figure must be the one-search-per-law code's to the last bit (common practice, no
+    source: the code before kept here as the reference)."""
+    laws, limit, now = _laws()
+    cases = [(laws, limit, now), (_centred(laws, 0.02), limit, now), (_centred(laws, -0.05), 0.8 * limit, now)]
+    for g in range(len(now)):  # one pump's few pairs: each group alone, beside a fleet case
+        alone = dataclasses.replace(laws, weight=np.where((np.arange(len(now)) == g)[:, None], laws.weight, 0.0),
+                                    _t_ratio={})
+        cases.append((alone, limit, now))
+        cases.append((_centred(alone, 0.03), limit, now))
+    cases.append((laws, np.where(np.arange(len(now)) % 2 == 0, limit, np.nan), now))  # groups without a limit
+    stacked = model_average.crossing_bands(cases, 0.90)
+    finite = 0
+    for case, got in zip(cases, stacked, strict=True):
+        want = _reference_crossing_band(*case, 0.90)
+        alone = model_average.crossing_band(*case, 0.90)
+        for a, b, c in zip(got, want, alone, strict=True):
+            assert np.array_equal(a, b, equal_nan=True), (a, b)
+            assert np.array_equal(c, b, equal_nan=True), (c, b)
+            finite += int(np.isfinite(a).sum())
+    assert finite > 60
+    # The centred cases take the forecast from their own lines: it differs from the trend's median crossing.
+    assert not np.array_equal(stacked[0][1], stacked[1][1], equal_nan=True)

@@ -13,7 +13,7 @@ import pandas as pd
 from fleet.trend.degradation import QUANTITIES, not_enough_reason
 from fleet.trend.grouped import group_max, group_min, time_span_days, within_days_of_last
 from fleet.trend.linear import LineFit, line_variance, t_quantile
-from fleet.trend.model_average import crossing_band, value_band
+from fleet.trend.model_average import crossing_bands, value_band
 from fleet.trend.settings import AnalysisSettings
 from fleet.trend.wear_laws import LawFits
 
@@ -47,12 +47,16 @@ def hours_to_limits(fits: pd.DataFrame, laws: dict[str, LawFits], limits_lpm: di
     """
     out = {}  # the columns, framed once
     now_h = fits["current_hours"].to_numpy(dtype=float)
+    limits, usables = {}, {}
     for q in QUANTITIES:
-        limit = np.asarray(limits_lpm[q], dtype=float)
-        enough = fits[f"{q}_enough_data"].to_numpy(dtype=bool)
+        limits[q] = np.asarray(limits_lpm[q], dtype=float)
+        usables[q] = fits[f"{q}_enough_data"].to_numpy(dtype=bool) & np.isfinite(limits[q]) & (limits[q] > 0)
+    # Both limits' crossings, every law's, in one search (for one pump its steps' fixed cost is most of it).
+    bands = crossing_bands([(laws[q], np.where(usables[q], limits[q], np.nan), now_h) for q in QUANTITIES],
+                           settings.confidence)
+    for q, (x_low, x_hat, x_high) in zip(QUANTITIES, bands, strict=True):
+        limit, usable = limits[q], usables[q]
         has_limit = np.isfinite(limit) & (limit > 0)
-        usable = enough & has_limit
-        x_low, x_hat, x_high = crossing_band(laws[q], np.where(usable, limit, np.nan), now_h, settings.confidence)
         current = fits[f"{q}_current_lpm"].to_numpy(dtype=float)
         past = usable & (current >= limit)
 
