@@ -188,32 +188,66 @@ def dates_at_hours(readings: pd.DataFrame, keys: pd.DataFrame, interval_hours, p
     Between two readings the date is interpolated from their hour-meter values; before the first or after the
     last reading it is extrapolated at the interval's hours per day. keys: pump_id, interval_no per target
     (same length as interval_hours and per_day). NaT where a figure is missing.
+
+    The readings around each target are found on arrays (_readings_around: a pandas merge_asof's choice, ties
+    and all), and the arithmetic is pandas' own on them, so one pump's few targets pay no frame's overhead
+    (tests/test_trend_remaining_life.py keeps the merge_asof code as the reference it must equal).
     """
-    by = ["pump_id", "interval_no"]
-    # One key type on both sides (an empty frame comes as object): merge_asof refuses to match mixed types.
-    target = keys[by].reset_index(drop=True).astype(np.int64).assign(
-        h=np.asarray(interval_hours, dtype=float), rate=np.asarray(per_day, dtype=float), row=np.arange(len(keys))
-    )
-    r = readings.loc[
-        np.isfinite(pd.to_numeric(readings["interval_hours"], errors="coerce")) & readings["taken_at"].notna(),
-        ["pump_id", "interval_no", "interval_hours", "taken_at"],
-    ].rename(columns={"interval_hours": "h"})
-    r = r.astype({"pump_id": np.int64, "interval_no": np.int64})
-    r = r.assign(h=r["h"].astype(float), taken_at=pd.to_datetime(r["taken_at"])).sort_values("h", kind="stable")
-    known = target[np.isfinite(target["h"])].sort_values("h", kind="stable")
-    before = pd.merge_asof(known, r.rename(columns={"h": "h_b", "taken_at": "t_b"}), left_on="h", right_on="h_b",
-                           by=by, direction="backward")
-    after = pd.merge_asof(known, r.rename(columns={"h": "h_f", "taken_at": "t_f"}), left_on="h", right_on="h_f",
-                          by=by, direction="forward")
-    m = before.set_index("row")[["h", "rate", "h_b", "t_b"]].join(after.set_index("row")[["h_f", "t_f"]])
-    span_days = (m["t_f"] - m["t_b"]).dt.total_seconds() / 86400.0
+    h = np.asarray(interval_hours, dtype=float)
+    rate = np.asarray(per_day, dtype=float)
+    r_hours = pd.to_numeric(readings["interval_hours"], errors="coerce").to_numpy(dtype=float)
+    r_taken = pd.to_datetime(readings["taken_at"])
+    usable = np.isfinite(r_hours) & r_taken.notna().to_numpy()
+    r_taken = r_taken.to_numpy()[usable]
+    r_hours = r_hours[usable]
+    before, after = _readings_around(
+        readings["pump_id"].to_numpy()[usable].astype(np.int64), readings["interval_no"].to_numpy()[usable].astype(
+            np.int64), r_hours, keys["pump_id"].to_numpy().astype(np.int64),
+        keys["interval_no"].to_numpy().astype(np.int64), h)
+    known = np.isfinite(h)
+    h_b = np.where(before >= 0, r_hours[before], np.nan)
+    h_f = np.where(after >= 0, r_hours[after], np.nan)
+    t_b = np.where(before >= 0, r_taken[before], np.datetime64("NaT"))
+    t_f = np.where(after >= 0, r_taken[after], np.datetime64("NaT"))
+    span_days = pd.TimedeltaIndex(t_f - t_b).total_seconds().to_numpy() / 86400.0
     with np.errstate(invalid="ignore", divide="ignore"):
-        share = ((m["h"] - m["h_b"]) / (m["h_f"] - m["h_b"])).where(m["h_f"] > m["h_b"], 0.0)
-        inside = m["t_b"] + pd.to_timedelta(share * span_days.fillna(0.0), unit="D")
-        ahead = m["t_b"] + pd.to_timedelta(((m["h"] - m["h_b"]) / m["rate"]).where(m["rate"] > 0), unit="D")
-        behind = m["t_f"] - pd.to_timedelta(((m["h_f"] - m["h"]) / m["rate"]).where(m["rate"] > 0), unit="D")
-    date = inside.where(m["t_b"].notna() & m["t_f"].notna(), ahead.where(m["t_b"].notna(), behind))
-    return date.reindex(range(len(keys))).dt.normalize().reset_index(drop=True)
+        share = np.where(h_f > h_b, (h - h_b) / (h_f - h_b), 0.0)
+        inside = t_b + pd.to_timedelta(share * np.where(np.isnan(span_days), 0.0, span_days), unit="D").to_numpy()
+        ahead = t_b + pd.to_timedelta(np.where(rate > 0, (h - h_b) / rate, np.nan), unit="D").to_numpy()
+        behind = t_f - pd.to_timedelta(np.where(rate > 0, (h_f - h) / rate, np.nan), unit="D").to_numpy()
+    date = np.where(~np.isnat(t_b) & ~np.isnat(t_f), inside, np.where(~np.isnat(t_b), ahead, behind))
+    date = np.where(known, date, np.datetime64("NaT"))
+    return pd.Series(date.astype("datetime64[D]").astype(date.dtype))  # midnight of that day (dt.normalize)
+
+
+def _readings_around(r_pump, r_interval, r_hours, pump, interval, hours):
+    """Per target (pump, interval, hours): the index of its interval's reading at or before its hours (the last of
+    equal ones in the readings' order) and of the one at or after them (the first of equal ones); -1 for none.
+    A target whose hours are not finite gets -1 both ways."""
+    n = len(r_hours)
+    key1 = np.concatenate([r_pump, pump])
+    key2 = np.concatenate([r_interval, interval])
+    at = np.concatenate([r_hours, np.where(np.isfinite(hours), hours, np.nan)])
+    target = np.r_[np.zeros(n, dtype=bool), np.ones(len(hours), dtype=bool)]
+    found = []
+    for direction in ("before", "after"):
+        # Readings sorted beside the targets (before them at equal hours looking back, after them looking on),
+        # equal readings in their own order (lexsort is stable).
+        order = np.lexsort((target if direction == "before" else ~target, at, key2, key1))
+        place = np.arange(len(order))
+        is_reading = ~target[order]
+        if direction == "before":
+            near = np.maximum.accumulate(np.where(is_reading, place, -1))
+        else:
+            near = np.minimum.accumulate(np.where(is_reading, place, len(order))[::-1])[::-1]
+        valid = (near >= 0) & (near < len(order))
+        nearest = order[np.where(valid, near, 0)] if len(order) else order
+        same = valid & (key1[nearest] == key1[order]) & (key2[nearest] == key2[order]) if len(order) else valid
+        same &= np.isfinite(at[order])
+        pick = np.full(len(order), -1)
+        pick[order] = np.where(same, nearest, -1)
+        found.append(pick[n:])
+    return found[0], found[1]
 
 
 def averaged_band(fit, hours_grid, qmax, confidence: float = 0.90, quantity: str = "slip") -> pd.DataFrame:
