@@ -1,9 +1,10 @@
 """The searches of fleet.trend.model_average (crossings and value quantiles) take one step after another, and for
 one pump each step's fixed cost is most of it: a step now sets numpy's error state once, skips a law no weighed
 pair is of and the logarithm where no pair is of ln q, and maps a NaN probability to 0.5 with np.where rather
-than np.nan_to_num. The per-step code before is kept here as the reference; every search must give its figures
-to the last bit (common practice, no source: a reference implementation kept beside the faster one).
-The readings are invented."""
+than np.nan_to_num; the crossing's halvings take what the fixed limit gives (each pair's level) once per search,
+and one search finds every law's crossings of both limits. The per-step code before is kept here as the
+reference; every search must give its figures to the last bit (common practice, no source: a reference
+implementation kept beside the faster one). The readings are invented."""
 
 import dataclasses
 
@@ -103,6 +104,9 @@ def test_every_search_gives_the_reference_steps_figures_to_the_last_bit(monkeypa
     mine = [_searches(*case) for case in cases]
     monkeypatch.setattr(model_average, "_mixture_cdf", _reference_mixture)
     monkeypatch.setattr(model_average, "_pairs_moments", _reference_moments)
+    # The crossing's halvings take the step with what the value fixes taken once: the reference step instead.
+    monkeypatch.setattr(model_average, "_fixed_value_step",
+                        lambda pairs, value: lambda hours: _reference_mixture(pairs, hours, value))
     reference = [_searches(*case) for case in cases]
     finite = 0
     for got, want in zip(mine, reference, strict=True):

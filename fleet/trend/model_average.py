@@ -136,6 +136,49 @@ def _mixture_cdf(pairs: dict, hours: np.ndarray, value: np.ndarray, moments: tup
     return total
 
 
+def _fixed_value_step(pairs: dict, value: np.ndarray):
+    """_mixture_cdf(pairs, hours, value) as a function of the hours alone, for a search that moves only the hours
+    at a fixed value (the crossing's halvings): hours and value of shape (items, 1), each item with pairs of its
+    own, in order (_pairs_of_items). What does not move with the hours (the pairs' columns, the level of each
+    pair, which pairs are of which law) is taken once, and each step is the same arithmetic as _mixture_cdf's,
+    to the last bit (tests/test_model_average_steps.py), at a fraction of its fixed cost: for one pump a step's
+    numpy calls on a few dozen values are most of it. Call it within an error state that ignores invalid,
+    divide and over."""
+    rows, starts = pairs["rows"], pairs["starts"]
+    column = {name: pairs[name][:, None] for name in ("offset", "scale", "a", "b", "var_a", "cov_ab", "var_b",
+                                                      "ratio", "weight")}
+    offset, scale, a, b = column["offset"], column["scale"], column["a"], column["b"]
+    var_a, cov_ab, var_b, ratio, weight = (column[name] for name in ("var_a", "cov_ab", "var_b", "ratio", "weight"))
+    power = np.flatnonzero(pairs["kind"] == 1)
+    exponent = pairs["power"][power][:, None]
+    run_in = np.flatnonzero(pairs["kind"] == 2)
+    tau, share = pairs["tau"][run_in][:, None], pairs["share"][run_in][:, None]
+    value = value[rows]
+    log = pairs["log"][:, None]
+    any_log = bool(pairs["log"].any())
+    level = np.where(log, np.log(np.where(value > 0, value, np.nan)), value) if any_log else value
+    below_zero = log & ~(value > 0) if any_log else None  # a log member never goes below zero flow
+
+    def mixture(hours: np.ndarray) -> np.ndarray:
+        h = hours[rows]
+        x = h.copy()
+        u = np.maximum((h + offset) / scale, 0.0)
+        if power.size:
+            x[power] = u[power] ** exponent
+        if run_in.size:
+            x[run_in] = run_in_x(u[run_in], tau, share)
+        mean = a + b * x
+        sd = np.sqrt(np.maximum(var_a + 2.0 * x * cov_ab + x * x * var_b, 0.0))
+        t = (level - mean) / sd
+        t = np.where(sd > 0, t, np.where(level >= mean, np.inf, -np.inf))
+        if below_zero is not None:
+            t = np.where(below_zero, -np.inf, t)
+        p = special.ndtr(t * ratio)
+        return np.add.reduceat(weight * np.where(np.isnan(p), 0.5, p), starts, axis=0)
+
+    return mixture
+
+
 def _pairs_of(pairs: dict, groups: np.ndarray) -> dict:
     """The weighed pairs of the groups picked (a mask over groups), each group renumbered to its place among
     them: the mixture of those groups alone."""
@@ -270,12 +313,13 @@ def _crossing_search(pairs: dict, n: int, limit: np.ndarray, now: np.ndarray, gr
         span = now[group[halved], None]
         hi = span * CROSSING_GRID[f][:, None]
         lo = span * CROSSING_GRID[f - 1][:, None]
-        limit_s = limit[group[halved], None]
         level_s = level[halved, None]
-        for _ in range(_BISECTIONS):
-            mid = 0.5 * (lo + hi)
-            up = 1.0 - _mixture_cdf(picked, mid, limit_s) >= level_s
-            lo, hi = np.where(up, lo, mid), np.where(up, mid, hi)
+        with np.errstate(invalid="ignore", divide="ignore", over="ignore"):  # once for the halvings
+            mixture = _fixed_value_step(picked, limit[group[halved], None])
+            for _ in range(_BISECTIONS):
+                mid = 0.5 * (lo + hi)
+                up = 1.0 - mixture(mid) >= level_s
+                lo, hi = np.where(up, lo, mid), np.where(up, mid, hi)
         out[halved] = hi[:, 0]
     return out
 
