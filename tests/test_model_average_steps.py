@@ -1,7 +1,7 @@
 """The searches of fleet.trend.model_average (crossings and value quantiles) take one step after another, and for
 one pump each step's fixed cost is most of it: a step now sets numpy's error state once, skips a law no weighed
 pair is of and the logarithm where no pair is of ln q, and maps a NaN probability to 0.5 with np.where rather
-than np.nan_to_num; the crossing's halvings take what the fixed limit gives (each pair's level) once per search,
+than np.nan_to_num; the halvings take what stays fixed (a crossing's limit, a value quantile's hours) once per search,
 and one search finds every law's crossings of both limits. The per-step code before is kept here as the
 reference; every search must give its figures to the last bit (common practice, no source: a reference
 implementation kept beside the faster one). The readings are invented."""
@@ -107,6 +107,9 @@ def test_every_search_gives_the_reference_steps_figures_to_the_last_bit(monkeypa
     # The crossing's halvings take the step with what the value fixes taken once: the reference step instead.
     monkeypatch.setattr(model_average, "_fixed_value_step",
                         lambda pairs, value: lambda hours: _reference_mixture(pairs, hours, value))
+    # A value quantile's halvings take the step with the pairs' moments at its hours once: the reference step.
+    monkeypatch.setattr(model_average, "_fixed_hours_step", lambda pairs, moments, shape: lambda value:
+                        _reference_mixture(pairs, np.zeros(shape), value, moments))
     reference = [_searches(*case) for case in cases]
     finite = 0
     for got, want in zip(mine, reference, strict=True):

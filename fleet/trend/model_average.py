@@ -179,6 +179,34 @@ def _fixed_value_step(pairs: dict, value: np.ndarray):
     return mixture
 
 
+def _fixed_hours_step(pairs: dict, moments: tuple, shape: tuple):
+    """_mixture_cdf(pairs, hours, value, moments) as a function of the value alone, for a search that moves only
+    the value at fixed hours (a value quantile): the pairs' moments there (_pairs_moments) and what else does not
+    move taken once, each step the same arithmetic as _cdf_at's and _mixture_cdf's, to the last bit
+    (tests/test_model_average_steps.py). shape: the hours' (groups, or groups and points). Call it within an
+    error state that ignores invalid, divide and over."""
+    rows, starts = pairs["rows"], pairs["starts"]
+    col = (slice(None), None) if len(shape) == 2 else (slice(None),)
+    mean, sd, log = moments
+    spread = sd > 0
+    ratio, weight = pairs["ratio"][col], pairs["weight"][col]
+    any_log = bool(pairs["log"].any())
+    at = rows[starts]
+
+    def mixture(value: np.ndarray) -> np.ndarray:
+        total = np.zeros(shape)
+        v = value[rows]
+        level = np.where(log, np.log(np.where(v > 0, v, np.nan)), v) if any_log else v
+        t = np.where(spread, (level - mean) / sd, np.where(level >= mean, np.inf, -np.inf))
+        if any_log:
+            t = np.where(log & ~(v > 0), -np.inf, t)  # a log member never goes below zero flow
+        p = special.ndtr(t * ratio)
+        total[at] = np.add.reduceat(weight * np.where(np.isnan(p), 0.5, p), starts, axis=0)
+        return total
+
+    return mixture
+
+
 def _pairs_of(pairs: dict, groups: np.ndarray) -> dict:
     """The weighed pairs of the groups picked (a mask over groups), each group renumbered to its place among
     them: the mixture of those groups alone."""
@@ -211,11 +239,18 @@ def value_quantile(fits: LawFits, hours, level: float, confidence: float) -> np.
     lo, hi = np.where(fitted, lo, 0.0), np.where(fitted, hi, 1.0)
     pairs = _weighed_pairs(fits, confidence)
     # The pairs' lines at these hours, once: each step moves only the value (value_cdf's arithmetic otherwise).
-    moments = _pairs_moments(pairs, hours[pairs["rows"]]) if pairs["rows"].size else None
-    for _ in range(44):  # the bracket shrinks to 1e-13 of its width
-        mid = 0.5 * (lo + hi)
-        below = _mixture_cdf(pairs, hours, mid, moments) < level
-        lo, hi = np.where(below, mid, lo), np.where(below, hi, mid)
+    if pairs["rows"].size:
+        with np.errstate(invalid="ignore", divide="ignore", over="ignore"):  # once for the search
+            mixture = _fixed_hours_step(pairs, _pairs_moments(pairs, hours[pairs["rows"]]), hours.shape)
+            for _ in range(44):  # the bracket shrinks to 1e-13 of its width
+                mid = 0.5 * (lo + hi)
+                below = mixture(mid) < level
+                lo, hi = np.where(below, mid, lo), np.where(below, hi, mid)
+    else:  # no group is fitted: every P is 0
+        for _ in range(44):
+            mid = 0.5 * (lo + hi)
+            below = 0.0 < level
+            lo, hi = np.where(below, mid, lo), np.where(below, hi, mid)
     return np.where(fitted, 0.5 * (lo + hi), np.nan)
 
 

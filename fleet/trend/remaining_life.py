@@ -141,7 +141,10 @@ def limit_dates(last_reading_at: pd.Series, remaining_hours, per_day) -> pd.Seri
         days = np.where(ok, rem / np.where(ok, rate, 1.0), np.nan)
     days = np.minimum(days, 365.0 * 200)  # beyond any plan; keeps the timestamp in range
     offset = pd.to_timedelta(days, unit="D").to_numpy()  # pandas' rounding of days to its time unit
-    last = np.asarray(pd.to_datetime(last_reading_at))
+    if isinstance(last_reading_at, pd.Series) and last_reading_at.dtype.kind == "M":
+        last = last_reading_at.to_numpy()  # already times: pd.to_datetime would give them back as they are
+    else:
+        last = np.asarray(pd.to_datetime(last_reading_at))
     moved = last + offset  # plain arrays: numpy keeps the finer unit, as pandas' sum of the two does
     day = moved.astype("datetime64[D]").astype(moved.dtype)  # midnight of that day (dt.normalize); NaT stays
     return pd.Series(day)
