@@ -394,18 +394,28 @@ def heaviest_law(fits: LawFits) -> np.ndarray:
 
 def heaviest_law_median(fits: LawFits, hours, confidence: float) -> np.ndarray:
     """The heaviest law's median value (a flow, L/min) at `hours` (per group, or a (G, K) grid): the centre
-    line of value_band, and so the trend's value now that the pages show beside the forecast."""
+    line of value_band, and so the trend's value now that the pages show beside the forecast.
+
+    One search for every group, each group weighing its heaviest law's members alone (as law_alone does for
+    one law, row by row): a group's figures are those of a search for its law alone, to the last bit, as a
+    search's groups do not mix."""
     hours = np.asarray(hours, dtype=float)
     expand = (slice(None), None) if hours.ndim == 2 else (slice(None),)
     centred = fits.centred()
     heaviest = heaviest_law(centred)
-    median = np.full(hours.shape, np.nan)
-    for k, law in enumerate(LAWS):
-        rows = (heaviest == k) & (fits.weight.sum(axis=1) > 0)
-        if rows.any():
-            mid = value_quantile(law_alone(centred, law, rows), hours, 0.5, confidence)
-            median = np.where(rows[expand], mid, median)
-    return median
+    rows = fits.weight.sum(axis=1) > 0
+    if not rows.any():
+        return np.full(hours.shape, np.nan)
+    weight = np.where(_OF_LAW[heaviest], centred.weight, 0.0)
+    total = weight.sum(axis=1, keepdims=True)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        weight = np.where((total > 0) & rows[:, None], weight / np.where(total > 0, total, 1.0), 0.0)
+    alone = dataclasses.replace(centred, weight=weight, _t_ratio=centred._t_ratio)
+    return np.where(rows[expand], value_quantile(alone, hours, 0.5, confidence), np.nan)
+
+
+# Per law (rows, as LAWS) the members of that law (columns, as MEMBERS).
+_OF_LAW = np.array([[m.law == law for m in MEMBERS] for law in LAWS])
 
 
 def plausible_laws(fits: LawFits, forecast_law: np.ndarray | None = None) -> dict[str, np.ndarray]:
