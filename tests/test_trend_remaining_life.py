@@ -146,6 +146,23 @@ def test_dates_at_hours_on_arrays_equal_the_merge_asof_code():
                                    _reference_dates_at_hours(one, keys3, [400.0, 2500.5, np.nan], [9.0] * 3))
 
 
+def test_dates_at_hours_keeps_the_merge_asof_codes_time_unit_at_the_edges():
+    # Reference: the merge_asof code above (common practice, no source). pandas picks a time unit from the values
+    # (whole days from to_timedelta give a coarser one; Series.where keeps the first's where the others fit), so
+    # the unit of the answer follows the figures: whole-day offsets, no readings, one, none matching, no targets.
+    keys = pd.DataFrame({"pump_id": [1, 1, 2, 2, 2], "interval_no": [0, 0, 0, 0, 0]})
+    readings = pd.DataFrame({"pump_id": [2, 2], "interval_no": [0, 0], "interval_hours": [1.0, 5.0],
+                             "taken_at": pd.to_datetime(["2024-01-01", "2024-02-01"]).astype("datetime64[us]")})
+    for rows in (readings, readings.iloc[:0], readings.iloc[:1], readings.astype({"taken_at": "datetime64[ns]"})):
+        for targets in (keys, keys.iloc[:2], keys.iloc[:0], keys.iloc[2:4]):
+            hours = [3.0, np.nan, 0.5, 7.0, 5.0][:len(targets)]
+            rate = [2.0] * len(targets)
+            pd.testing.assert_series_equal(dates_at_hours(rows, targets, hours, rate),
+                                           _reference_dates_at_hours(rows, targets, hours, rate))
+    got = dates_at_hours(readings, keys, [3.0, np.nan, 0.5, 7.0, 5.0], [2.0] * 5)
+    assert got.iloc[4] == pd.Timestamp("2024-02-01") and got.iloc[3] == pd.Timestamp("2024-02-02")
+
+
 def test_service_rank_works_on_stored_records_with_text_dates():
     frame = pd.DataFrame(
         {

@@ -196,8 +196,10 @@ def dates_at_hours(readings: pd.DataFrame, keys: pd.DataFrame, interval_hours, p
     and all), and the arithmetic is pandas' own on them, so one pump's few targets pay no frame's overhead
     (tests/test_trend_remaining_life.py keeps the merge_asof code as the reference it must equal).
     """
-    h = np.asarray(interval_hours, dtype=float)
-    rate = np.asarray(per_day, dtype=float)
+    hours = np.asarray(interval_hours, dtype=float)
+    known = np.flatnonzero(np.isfinite(hours))  # the targets dated (the others NaT)
+    h = hours[known]
+    rate = np.asarray(per_day, dtype=float)[known]
     r_hours = pd.to_numeric(readings["interval_hours"], errors="coerce").to_numpy(dtype=float)
     r_taken = pd.to_datetime(readings["taken_at"])
     usable = np.isfinite(r_hours) & r_taken.notna().to_numpy()
@@ -205,22 +207,25 @@ def dates_at_hours(readings: pd.DataFrame, keys: pd.DataFrame, interval_hours, p
     r_hours = r_hours[usable]
     before, after = _readings_around(
         readings["pump_id"].to_numpy()[usable].astype(np.int64), readings["interval_no"].to_numpy()[usable].astype(
-            np.int64), r_hours, keys["pump_id"].to_numpy().astype(np.int64),
-        keys["interval_no"].to_numpy().astype(np.int64), h)
-    known = np.isfinite(h)
-    h_b = np.where(before >= 0, r_hours[before], np.nan)
-    h_f = np.where(after >= 0, r_hours[after], np.nan)
-    t_b = np.where(before >= 0, r_taken[before], np.datetime64("NaT"))
-    t_f = np.where(after >= 0, r_taken[after], np.datetime64("NaT"))
+            np.int64), r_hours, keys["pump_id"].to_numpy()[known].astype(np.int64),
+        keys["interval_no"].to_numpy()[known].astype(np.int64), h)
+    # None found (-1) takes the last place: a missing reading's NaN hours and NaT time, set after the readings.
+    r_hours, r_taken = np.append(r_hours, np.nan), np.append(r_taken, np.datetime64("NaT"))
+    h_b, h_f, t_b, t_f = r_hours[before], r_hours[after], r_taken[before], r_taken[after]
     span_days = pd.TimedeltaIndex(t_f - t_b).total_seconds().to_numpy() / 86400.0
     with np.errstate(invalid="ignore", divide="ignore"):
         share = np.where(h_f > h_b, (h - h_b) / (h_f - h_b), 0.0)
+        # pd.to_timedelta picks its unit from the values (whole days give a coarser one), and Series.where keeps
+        # the first's unit where the others' values fit it: both left to pandas, as the merge_asof code did.
         inside = t_b + pd.to_timedelta(share * np.where(np.isnan(span_days), 0.0, span_days), unit="D").to_numpy()
         ahead = t_b + pd.to_timedelta(np.where(rate > 0, (h - h_b) / rate, np.nan), unit="D").to_numpy()
         behind = t_f - pd.to_timedelta(np.where(rate > 0, (h_f - h) / rate, np.nan), unit="D").to_numpy()
-    date = np.where(~np.isnat(t_b) & ~np.isnat(t_f), inside, np.where(~np.isnat(t_b), ahead, behind))
-    date = np.where(known, date, np.datetime64("NaT"))
-    return pd.Series(date.astype("datetime64[D]").astype(date.dtype))  # midnight of that day (dt.normalize)
+    has_b = ~np.isnat(t_b)
+    date = pd.Series(inside).where(has_b & ~np.isnat(t_f), pd.Series(ahead).where(has_b, pd.Series(behind)))
+    date = date.to_numpy()
+    out = np.full(len(hours), np.datetime64("NaT"), dtype=date.dtype)
+    out[known] = date
+    return pd.Series(out.astype("datetime64[D]").astype(out.dtype))  # midnight of that day (dt.normalize)
 
 
 def _readings_around(r_pump, r_interval, r_hours, pump, interval, hours):
