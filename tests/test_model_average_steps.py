@@ -1,9 +1,10 @@
 """The searches of fleet.trend.model_average (crossings and value quantiles) take one step after another, and for
 one pump each step's fixed cost is most of it: a step now sets numpy's error state once, skips a law no weighed
 pair is of and the logarithm where no pair is of ln q, and maps a NaN probability to 0.5 with np.where rather
-than np.nan_to_num. The per-step code before is kept here as the reference; every search must give its figures
-to the last bit (common practice, no source: a reference implementation kept beside the faster one).
-The readings are invented."""
+than np.nan_to_num; the halvings take what stays fixed (a crossing's limit, a value quantile's hours) once per search,
+and one search finds every law's crossings of both limits. The per-step code before is kept here as the
+reference; every search must give its figures to the last bit (common practice, no source: a reference
+implementation kept beside the faster one). The readings are invented."""
 
 import dataclasses
 
@@ -103,6 +104,12 @@ def test_every_search_gives_the_reference_steps_figures_to_the_last_bit(monkeypa
     mine = [_searches(*case) for case in cases]
     monkeypatch.setattr(model_average, "_mixture_cdf", _reference_mixture)
     monkeypatch.setattr(model_average, "_pairs_moments", _reference_moments)
+    # The crossing's halvings take the step with what the value fixes taken once: the reference step instead.
+    monkeypatch.setattr(model_average, "_fixed_value_step",
+                        lambda pairs, value: lambda hours: _reference_mixture(pairs, hours, value))
+    # A value quantile's halvings take the step with the pairs' moments at its hours once: the reference step.
+    monkeypatch.setattr(model_average, "_fixed_hours_step", lambda pairs, moments, shape: lambda value:
+                        _reference_mixture(pairs, np.zeros(shape), value, moments))
     reference = [_searches(*case) for case in cases]
     finite = 0
     for got, want in zip(mine, reference, strict=True):
@@ -127,3 +134,103 @@ def test_a_step_without_log_or_run_in_pairs_skips_them_and_agrees(monkeypatch):
     assert np.array_equal(got, want, equal_nan=True)
     assert got[0] == pytest.approx(want[0], abs=0)  # and a probability, not NaN
     assert ((got >= 0) & (got <= 1)).all()
+
+
+def _reference_crossing_band(fits, limit, now_hours, confidence):
+    """crossing_band as it was: one crossing search per plausible law (and one more for the forecast's centred
+    law), each through crossing_quantiles (which tests/test_trend_wear_laws.py holds to the whole-grid search)."""
+    alpha = 1.0 - confidence
+    centred = fits.centred()
+    heaviest = model_average.heaviest_law(centred)
+    n = len(fits)
+    median, low, high = np.full(n, np.nan), np.full(n, np.nan), np.full(n, -np.inf)
+    open_high = np.zeros(n, dtype=bool)
+    for k, (law, rows) in enumerate(model_average.plausible_laws(fits, heaviest).items()):
+        if not rows.any():
+            continue
+        top = rows & (heaviest == k)
+        alone = model_average.law_alone(fits, law, rows)
+        if centred is fits:
+            lo, mid, hi = model_average.crossing_quantiles(alone, limit, now_hours, (alpha / 2, 0.5, 1 - alpha / 2),
+                                                           confidence)
+        else:
+            lo, hi = model_average.crossing_quantiles(alone, limit, now_hours, (alpha / 2, 1 - alpha / 2), confidence)
+            mid = np.full(n, np.nan)
+            if top.any():
+                (mid,) = model_average.crossing_quantiles(model_average.law_alone(centred, law, top), limit,
+                                                          now_hours, (0.5,), confidence)
+        median = np.where(top, mid, median)
+        low = np.where(rows, np.fmin(low, lo), low)
+        open_high |= rows & np.isnan(hi)
+        high = np.where(rows, np.fmax(high, hi), high)
+    low = np.fmin(low, median)
+    high = np.where(np.isfinite(high), np.fmax(high, median), high)
+    reached = np.isfinite(median) | np.isfinite(low)
+    return low, median, np.where(open_high | ~np.isfinite(high) | ~reached, np.nan, high)
+
+
+def _centred(laws, shift):
+    """The same fits with invented lines for the forecast to follow (as LawFits.centred_on sets them)."""
+    return dataclasses.replace(laws, centre_a=laws.a + shift, centre_b=laws.b * (1.0 + shift), _t_ratio={})
+
+
+def test_one_search_for_every_law_and_limit_gives_each_laws_own_searches_figures():
+    """crossing_bands finds every plausible law's crossings of several cases (the slip's and the case drain's
+    limits) in one search; each figure must be the one-search-per-law code's to the last bit (common practice, no
+    source: the code before kept here as the reference)."""
+    laws, limit, now = _laws()
+    cases = [(laws, limit, now), (_centred(laws, 0.02), limit, now), (_centred(laws, -0.05), 0.8 * limit, now)]
+    for g in range(len(now)):  # one pump's few pairs: each group alone, beside a fleet case
+        alone = dataclasses.replace(laws, weight=np.where((np.arange(len(now)) == g)[:, None], laws.weight, 0.0),
+                                    _t_ratio={})
+        cases.append((alone, limit, now))
+        cases.append((_centred(alone, 0.03), limit, now))
+    cases.append((laws, np.where(np.arange(len(now)) % 2 == 0, limit, np.nan), now))  # groups without a limit
+    stacked = model_average.crossing_bands(cases, 0.90)
+    finite = 0
+    for case, got in zip(cases, stacked, strict=True):
+        want = _reference_crossing_band(*case, 0.90)
+        alone = model_average.crossing_band(*case, 0.90)
+        for a, b, c in zip(got, want, alone, strict=True):
+            assert np.array_equal(a, b, equal_nan=True), (a, b)
+            assert np.array_equal(c, b, equal_nan=True), (c, b)
+            finite += int(np.isfinite(a).sum())
+    assert finite > 60
+    # The centred cases take the forecast from their own lines: it differs from the trend's median crossing.
+    assert not np.array_equal(stacked[0][1], stacked[1][1], equal_nan=True)
+
+
+def _reference_heaviest_law_median(fits, hours, confidence):
+    """heaviest_law_median as it was: one value search per law, over the groups that law is heaviest in."""
+    hours = np.asarray(hours, dtype=float)
+    expand = (slice(None), None) if hours.ndim == 2 else (slice(None),)
+    centred = fits.centred()
+    heaviest = model_average.heaviest_law(centred)
+    median = np.full(hours.shape, np.nan)
+    for k, law in enumerate(model_average.LAWS):
+        rows = (heaviest == k) & (fits.weight.sum(axis=1) > 0)
+        if rows.any():
+            mid = model_average.value_quantile(model_average.law_alone(centred, law, rows), hours, 0.5, confidence)
+            median = np.where(rows[expand], mid, median)
+    return median
+
+
+def test_one_value_search_for_every_groups_heaviest_law_gives_each_laws_own_searches_figures():
+    """heaviest_law_median searches every group's heaviest law at once; each figure must be the one-search-per-law
+    code's to the last bit (common practice, no source: the code before kept here as the reference)."""
+    laws, limit, now = _laws()
+    heaviest = model_average.heaviest_law(laws)
+    assert len(set(heaviest.tolist())) >= 3  # groups whose heaviest laws differ share the one search
+    grid = now[:, None] * np.array([[0.0, 0.5, 1.0, 2.0, 10.0]])
+    cases = [laws, _centred(laws, 0.02), _centred(laws, -0.05),
+             dataclasses.replace(laws, weight=np.where((np.arange(len(now)) % 2 == 0)[:, None], laws.weight, 0.0),
+                                 _t_ratio={}),
+             dataclasses.replace(laws, weight=np.zeros_like(laws.weight), _t_ratio={})]
+    finite = 0
+    for fits in cases:
+        for hours in (now, grid):
+            got = model_average.heaviest_law_median(fits, hours, 0.90)
+            want = _reference_heaviest_law_median(fits, hours, 0.90)
+            assert got.shape == want.shape and np.array_equal(got, want, equal_nan=True), (got, want)
+            finite += int(np.isfinite(got).sum())
+    assert finite > 50

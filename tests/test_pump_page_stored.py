@@ -18,7 +18,7 @@ PISTON_PUMP = "EY-101"  # invented demo plant: a variable axial piston pump with
 ENGINE = ("fleet.trend.engine.analyze_fleet", "fleet.services.analysis.compute.analyze_fleet",
           "fleet.trend.degradation.fit_degradation", "fleet.trend.engine.fit_degradation",
           "fleet.trend.wear_laws.fit_wear_laws", "fleet.trend.engine.hours_to_limits",
-          "fleet.trend.remaining_life.crossing_band", "fleet.trend.engine.assess_status")
+          "fleet.trend.remaining_life.crossing_bands", "fleet.trend.engine.assess_status")
 
 
 def _specs(html: str) -> dict[str, dict]:

@@ -9,7 +9,13 @@ import trend_synthetic as ts
 
 from fleet.trend.engine import analyze_fleet
 from fleet.trend.linear import grouped_wls
-from fleet.trend.remaining_life import interval_hours_per_day, limit_dates, limit_flows_lpm, trend_band
+from fleet.trend.remaining_life import (
+    dates_at_hours,
+    interval_hours_per_day,
+    limit_dates,
+    limit_flows_lpm,
+    trend_band,
+)
 from fleet.trend.settings import AnalysisSettings
 from fleet.trend.status import service_order_keys, service_rank
 
@@ -70,6 +76,91 @@ def test_limit_dates_on_plain_arrays_equal_pandas_sum_and_normalize():
         days = np.minimum(np.where(ok, hours / np.where(ok, rate, 1.0), np.nan), 365.0 * 200)
     expected = (last.reset_index(drop=True) + pd.Series(pd.to_timedelta(days, unit="D"))).dt.normalize()
     pd.testing.assert_series_equal(limit_dates(last, hours, rate), expected)
+
+
+def _reference_dates_at_hours(readings, keys, interval_hours, per_day):
+    """dates_at_hours as it was, on pandas' merge_asof (the readings before and after each target by hours)."""
+    by = ["pump_id", "interval_no"]
+    target = keys[by].reset_index(drop=True).astype(np.int64).assign(
+        h=np.asarray(interval_hours, dtype=float), rate=np.asarray(per_day, dtype=float), row=np.arange(len(keys))
+    )
+    r = readings.loc[
+        np.isfinite(pd.to_numeric(readings["interval_hours"], errors="coerce")) & readings["taken_at"].notna(),
+        ["pump_id", "interval_no", "interval_hours", "taken_at"],
+    ].rename(columns={"interval_hours": "h"})
+    r = r.astype({"pump_id": np.int64, "interval_no": np.int64})
+    r = r.assign(h=r["h"].astype(float), taken_at=pd.to_datetime(r["taken_at"])).sort_values("h", kind="stable")
+    known = target[np.isfinite(target["h"])].sort_values("h", kind="stable")
+    before = pd.merge_asof(known, r.rename(columns={"h": "h_b", "taken_at": "t_b"}), left_on="h", right_on="h_b",
+                           by=by, direction="backward")
+    after = pd.merge_asof(known, r.rename(columns={"h": "h_f", "taken_at": "t_f"}), left_on="h", right_on="h_f",
+                          by=by, direction="forward")
+    m = before.set_index("row")[["h", "rate", "h_b", "t_b"]].join(after.set_index("row")[["h_f", "t_f"]])
+    span_days = (m["t_f"] - m["t_b"]).dt.total_seconds() / 86400.0
+    with np.errstate(invalid="ignore", divide="ignore"):
+        share = ((m["h"] - m["h_b"]) / (m["h_f"] - m["h_b"])).where(m["h_f"] > m["h_b"], 0.0)
+        inside = m["t_b"] + pd.to_timedelta(share * span_days.fillna(0.0), unit="D")
+        ahead = m["t_b"] + pd.to_timedelta(((m["h"] - m["h_b"]) / m["rate"]).where(m["rate"] > 0), unit="D")
+        behind = m["t_f"] - pd.to_timedelta(((m["h_f"] - m["h"]) / m["rate"]).where(m["rate"] > 0), unit="D")
+    date = inside.where(m["t_b"].notna() & m["t_f"].notna(), ahead.where(m["t_b"].notna(), behind))
+    return date.reindex(range(len(keys))).dt.normalize().reset_index(drop=True)
+
+
+def test_dates_at_hours_on_arrays_equal_the_merge_asof_code():
+    # Reference: the merge_asof code dates_at_hours was before it found the readings around each target on
+    # arrays, kept above (common practice, no source). Invented readings of three pumps, two intervals each, with
+    # equal hour-meter values (the last before and the first after must be taken), readings without hours or
+    # time, and targets before the first reading, after the last, on a reading, between two, without hours, in an
+    # interval without readings, at rates of zero and missing.
+    rng = np.random.default_rng(31)
+    rows = []
+    for pump in (7, 3, 11):
+        for interval in (0, 1):
+            hours = np.sort(rng.uniform(0, 5000, 40)).round(0)
+            hours[10:13] = hours[10]  # equal hour-meter values
+            taken = pd.Timestamp("2024-01-01") + pd.to_timedelta(hours / 14.0 + rng.uniform(0, 0.2, 40), unit="D")
+            for h, t in zip(hours, taken, strict=True):
+                rows.append((pump, interval, h, t))
+    readings = pd.DataFrame(rows, columns=["pump_id", "interval_no", "interval_hours", "taken_at"])
+    readings = readings.sample(frac=1.0, random_state=4).reset_index(drop=True)  # not in hour order
+    readings.loc[3, "interval_hours"] = np.nan
+    readings.loc[5, "taken_at"] = pd.NaT
+    readings["taken_at"] = readings["taken_at"].astype("datetime64[us]")
+    n = 300
+    keys = pd.DataFrame({"pump_id": rng.choice([7, 3, 11, 5], n), "interval_no": rng.choice([0, 1, 2], n)})
+    hours = rng.uniform(-500, 7000, n)
+    hours[:6] = [np.nan, -10.0, 0.0, 9000.0, readings["interval_hours"].iloc[0], readings["interval_hours"].iloc[20]]
+    on_tie = readings.loc[readings.duplicated(["pump_id", "interval_no", "interval_hours"], keep=False)]
+    keys.loc[6:8, ["pump_id", "interval_no"]] = on_tie[["pump_id", "interval_no"]].to_numpy()[:3]
+    hours[6:9] = on_tie["interval_hours"].to_numpy()[:3]
+    rate = rng.uniform(0, 24, n)
+    rate[9:12] = [0.0, np.nan, -1.0]
+    got = dates_at_hours(readings, keys, hours, rate)
+    want = _reference_dates_at_hours(readings, keys, hours, rate)
+    pd.testing.assert_series_equal(got, want)
+    assert got.notna().sum() > 120 and got.isna().any()
+    # A pump's three figures alone, as the engine dates a crossing passed.
+    one = readings[readings["pump_id"] == 3]
+    keys3 = pd.DataFrame({"pump_id": [3, 3, 3], "interval_no": [1, 1, 1]})
+    pd.testing.assert_series_equal(dates_at_hours(one, keys3, [400.0, 2500.5, np.nan], [9.0] * 3),
+                                   _reference_dates_at_hours(one, keys3, [400.0, 2500.5, np.nan], [9.0] * 3))
+
+
+def test_dates_at_hours_keeps_the_merge_asof_codes_time_unit_at_the_edges():
+    # Reference: the merge_asof code above (common practice, no source). pandas picks a time unit from the values
+    # (whole days from to_timedelta give a coarser one; Series.where keeps the first's where the others fit), so
+    # the unit of the answer follows the figures: whole-day offsets, no readings, one, none matching, no targets.
+    keys = pd.DataFrame({"pump_id": [1, 1, 2, 2, 2], "interval_no": [0, 0, 0, 0, 0]})
+    readings = pd.DataFrame({"pump_id": [2, 2], "interval_no": [0, 0], "interval_hours": [1.0, 5.0],
+                             "taken_at": pd.to_datetime(["2024-01-01", "2024-02-01"]).astype("datetime64[us]")})
+    for rows in (readings, readings.iloc[:0], readings.iloc[:1], readings.astype({"taken_at": "datetime64[ns]"})):
+        for targets in (keys, keys.iloc[:2], keys.iloc[:0], keys.iloc[2:4]):
+            hours = [3.0, np.nan, 0.5, 7.0, 5.0][:len(targets)]
+            rate = [2.0] * len(targets)
+            pd.testing.assert_series_equal(dates_at_hours(rows, targets, hours, rate),
+                                           _reference_dates_at_hours(rows, targets, hours, rate))
+    got = dates_at_hours(readings, keys, [3.0, np.nan, 0.5, 7.0, 5.0], [2.0] * 5)
+    assert got.iloc[4] == pd.Timestamp("2024-02-01") and got.iloc[3] == pd.Timestamp("2024-02-02")
 
 
 def test_service_rank_works_on_stored_records_with_text_dates():

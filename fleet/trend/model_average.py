@@ -136,6 +136,77 @@ def _mixture_cdf(pairs: dict, hours: np.ndarray, value: np.ndarray, moments: tup
     return total
 
 
+def _fixed_value_step(pairs: dict, value: np.ndarray):
+    """_mixture_cdf(pairs, hours, value) as a function of the hours alone, for a search that moves only the hours
+    at a fixed value (the crossing's halvings): hours and value of shape (items, 1), each item with pairs of its
+    own, in order (_pairs_of_items). What does not move with the hours (the pairs' columns, the level of each
+    pair, which pairs are of which law) is taken once, and each step is the same arithmetic as _mixture_cdf's,
+    to the last bit (tests/test_model_average_steps.py), at a fraction of its fixed cost: for one pump a step's
+    numpy calls on a few dozen values are most of it. Call it within an error state that ignores invalid,
+    divide and over."""
+    rows, starts = pairs["rows"], pairs["starts"]
+    column = {name: pairs[name][:, None] for name in ("offset", "scale", "a", "b", "var_a", "cov_ab", "var_b",
+                                                      "ratio", "weight")}
+    offset, scale, a, b = column["offset"], column["scale"], column["a"], column["b"]
+    var_a, cov_ab, var_b, ratio, weight = (column[name] for name in ("var_a", "cov_ab", "var_b", "ratio", "weight"))
+    power = np.flatnonzero(pairs["kind"] == 1)
+    exponent = pairs["power"][power][:, None]
+    run_in = np.flatnonzero(pairs["kind"] == 2)
+    tau, share = pairs["tau"][run_in][:, None], pairs["share"][run_in][:, None]
+    value = value[rows]
+    log = pairs["log"][:, None]
+    any_log = bool(pairs["log"].any())
+    level = np.where(log, np.log(np.where(value > 0, value, np.nan)), value) if any_log else value
+    below_zero = log & ~(value > 0) if any_log else None  # a log member never goes below zero flow
+
+    def mixture(hours: np.ndarray) -> np.ndarray:
+        h = hours[rows]
+        x = h.copy()
+        u = np.maximum((h + offset) / scale, 0.0)
+        if power.size:
+            x[power] = u[power] ** exponent
+        if run_in.size:
+            x[run_in] = run_in_x(u[run_in], tau, share)
+        mean = a + b * x
+        sd = np.sqrt(np.maximum(var_a + 2.0 * x * cov_ab + x * x * var_b, 0.0))
+        t = (level - mean) / sd
+        t = np.where(sd > 0, t, np.where(level >= mean, np.inf, -np.inf))
+        if below_zero is not None:
+            t = np.where(below_zero, -np.inf, t)
+        p = special.ndtr(t * ratio)
+        return np.add.reduceat(weight * np.where(np.isnan(p), 0.5, p), starts, axis=0)
+
+    return mixture
+
+
+def _fixed_hours_step(pairs: dict, moments: tuple, shape: tuple):
+    """_mixture_cdf(pairs, hours, value, moments) as a function of the value alone, for a search that moves only
+    the value at fixed hours (a value quantile): the pairs' moments there (_pairs_moments) and what else does not
+    move taken once, each step the same arithmetic as _cdf_at's and _mixture_cdf's, to the last bit
+    (tests/test_model_average_steps.py). shape: the hours' (groups, or groups and points). Call it within an
+    error state that ignores invalid, divide and over."""
+    rows, starts = pairs["rows"], pairs["starts"]
+    col = (slice(None), None) if len(shape) == 2 else (slice(None),)
+    mean, sd, log = moments
+    spread = sd > 0
+    ratio, weight = pairs["ratio"][col], pairs["weight"][col]
+    any_log = bool(pairs["log"].any())
+    at = rows[starts]
+
+    def mixture(value: np.ndarray) -> np.ndarray:
+        total = np.zeros(shape)
+        v = value[rows]
+        level = np.where(log, np.log(np.where(v > 0, v, np.nan)), v) if any_log else v
+        t = np.where(spread, (level - mean) / sd, np.where(level >= mean, np.inf, -np.inf))
+        if any_log:
+            t = np.where(log & ~(v > 0), -np.inf, t)  # a log member never goes below zero flow
+        p = special.ndtr(t * ratio)
+        total[at] = np.add.reduceat(weight * np.where(np.isnan(p), 0.5, p), starts, axis=0)
+        return total
+
+    return mixture
+
+
 def _pairs_of(pairs: dict, groups: np.ndarray) -> dict:
     """The weighed pairs of the groups picked (a mask over groups), each group renumbered to its place among
     them: the mixture of those groups alone."""
@@ -168,11 +239,18 @@ def value_quantile(fits: LawFits, hours, level: float, confidence: float) -> np.
     lo, hi = np.where(fitted, lo, 0.0), np.where(fitted, hi, 1.0)
     pairs = _weighed_pairs(fits, confidence)
     # The pairs' lines at these hours, once: each step moves only the value (value_cdf's arithmetic otherwise).
-    moments = _pairs_moments(pairs, hours[pairs["rows"]]) if pairs["rows"].size else None
-    for _ in range(44):  # the bracket shrinks to 1e-13 of its width
-        mid = 0.5 * (lo + hi)
-        below = _mixture_cdf(pairs, hours, mid, moments) < level
-        lo, hi = np.where(below, mid, lo), np.where(below, hi, mid)
+    if pairs["rows"].size:
+        with np.errstate(invalid="ignore", divide="ignore", over="ignore"):  # once for the search
+            mixture = _fixed_hours_step(pairs, _pairs_moments(pairs, hours[pairs["rows"]]), hours.shape)
+            for _ in range(44):  # the bracket shrinks to 1e-13 of its width
+                mid = 0.5 * (lo + hi)
+                below = mixture(mid) < level
+                lo, hi = np.where(below, mid, lo), np.where(below, hi, mid)
+    else:  # no group is fitted: every P is 0
+        for _ in range(44):
+            mid = 0.5 * (lo + hi)
+            below = 0.0 < level
+            lo, hi = np.where(below, mid, lo), np.where(below, hi, mid)
     return np.where(fitted, 0.5 * (lo + hi), np.nan)
 
 
@@ -210,51 +288,89 @@ def crossing_quantiles(fits: LawFits, limit, now_hours, levels, confidence: floa
     at the interval start gives 0.
 
     The first point of the grid (CROSSING_GRID times the current hours) where each level is reached brackets the
-    crossing with the point before it, and _BISECTIONS halvings of that bracket find it. The grid is walked out
-    a block of columns at a time, each block only for the groups with a level not yet reached, and the halvings
-    only for the groups with a level reached: every P is the one the whole grid would give (_mixture_cdf), so
-    the crossings are those of evaluating every group everywhere, to the last bit
+    crossing with the point before it, and _BISECTIONS halvings of that bracket find it (_crossing_search, which
+    crossing_bands also runs for many laws and limits at once). Every P is the one the whole grid would give
+    (_mixture_cdf), so the crossings are those of evaluating every group everywhere, to the last bit
     (tests/test_trend_wear_laws.py keeps that search as the reference).
     """
     limit = np.asarray(limit, dtype=float)
     now = np.asarray(now_hours, dtype=float)
     levels = np.asarray(levels, dtype=float)
     n = len(now)
-    ok = np.isfinite(limit) & (limit > 0) & np.isfinite(now) & (now > 0) & (fits.weight.sum(axis=1) > 0)
+    ok = _searchable(fits, limit, now)
     out = np.full((n, len(levels)), np.nan)
     if not ok.any():
         return list(out.T)
-    pairs = _weighed_pairs(fits, confidence)
-    # The first grid column where each level is reached (-1: not yet), for the groups with a limit.
-    first = np.full((n, len(levels)), -1)
-    open_ = ok.copy()
+    group = np.repeat(np.flatnonzero(ok), len(levels))
+    level = np.tile(levels, int(ok.sum()))
+    out[ok] = _crossing_search(_weighed_pairs(fits, confidence), n, limit, now, group, level).reshape(-1, len(levels))
+    return list(out.T)
+
+
+def _searchable(fits: LawFits, limit: np.ndarray, now: np.ndarray) -> np.ndarray:
+    """The groups a crossing is searched for: a limit, current hours and some weight."""
+    return np.isfinite(limit) & (limit > 0) & np.isfinite(now) & (now > 0) & (fits.weight.sum(axis=1) > 0)
+
+
+def _crossing_search(pairs: dict, n: int, limit: np.ndarray, now: np.ndarray, group: np.ndarray,
+                     level: np.ndarray) -> np.ndarray:
+    """The crossing hours of every item of a search: an item is a group (of `n`, each with its weighed pairs, a
+    limit and current hours; groups in ascending order) and a level of P(crossed). Items of one group share its
+    walk out along the grid; each item is then halved alone, so an item's figure is the same whatever others
+    the search holds, to the last bit (each step is elementwise per group, and a group's sum over its pairs one
+    reduce over its own segment).
+
+    The grid is walked out a block of columns at a time, each block only for the groups with an item not yet
+    reached; the halvings are only for the items reached past the grid's first point (one reached there is 0,
+    one never reached NaN).
+    """
+    first = np.full(len(group), -1)  # the first grid column where the item's level is reached (-1: not yet)
+    open_ = np.zeros(n, dtype=bool)
+    open_[group] = True
     for start in range(0, len(CROSSING_GRID), _GRID_STEP):
         if not open_.any():
             break
         picked = _pairs_of(pairs, open_)
         grid = now[open_, None] * CROSSING_GRID[None, start:start + _GRID_STEP]
         crossed = 1.0 - _mixture_cdf(picked, grid, np.broadcast_to(limit[open_, None], grid.shape))
-        reached = crossed[:, :, None] >= levels[None, None, :]
+        place = np.cumsum(open_) - 1
+        items = np.flatnonzero(open_[group] & (first < 0))
+        reached = crossed[place[group[items]]] >= level[items, None]
         found = reached.any(axis=1)
-        at = np.flatnonzero(open_)
-        fresh = (first[at] < 0) & found
-        first[at] = np.where(fresh, start + np.argmax(reached, axis=1), first[at])
-        open_[at] = (first[at] < 0).any(axis=1)
-    searched = ok & (first >= 0).any(axis=1)
-    if searched.any():
-        picked = _pairs_of(pairs, searched)
-        f = np.maximum(first[searched], 0)
-        span = now[searched, None]
-        hi = span * CROSSING_GRID[f]
-        lo = span * CROSSING_GRID[np.maximum(f - 1, 0)]
-        limit_s = np.broadcast_to(limit[searched, None], hi.shape)
-        for _ in range(_BISECTIONS):
-            mid = 0.5 * (lo + hi)
-            up = 1.0 - _mixture_cdf(picked, mid, limit_s) >= levels[None, :]
-            lo, hi = np.where(up, lo, mid), np.where(up, mid, hi)
-        found = first[searched]
-        out[searched] = np.where(found >= 0, np.where(found == 0, 0.0, hi), np.nan)
-    return list(out.T)
+        first[items[found]] = start + np.argmax(reached[found], axis=1)
+        open_[:] = False
+        open_[group[first < 0]] = True
+    out = np.where(first == 0, 0.0, np.nan)
+    halved = np.flatnonzero(first > 0)
+    if halved.size:
+        picked = _pairs_of_items(pairs, n, group[halved])
+        f = first[halved]
+        span = now[group[halved], None]
+        hi = span * CROSSING_GRID[f][:, None]
+        lo = span * CROSSING_GRID[f - 1][:, None]
+        level_s = level[halved, None]
+        with np.errstate(invalid="ignore", divide="ignore", over="ignore"):  # once for the halvings
+            mixture = _fixed_value_step(picked, limit[group[halved], None])
+            for _ in range(_BISECTIONS):
+                mid = 0.5 * (lo + hi)
+                up = 1.0 - mixture(mid) >= level_s
+                lo, hi = np.where(up, lo, mid), np.where(up, mid, hi)
+        out[halved] = hi[:, 0]
+    return out
+
+
+def _pairs_of_items(pairs: dict, n: int, groups: np.ndarray) -> dict:
+    """The weighed pairs of each of `groups` (group numbers, ascending, a group more than once where it has
+    several items), the i-th item's pairs numbered i: the mixture per item."""
+    count = np.bincount(pairs["rows"], minlength=n)
+    seg = np.cumsum(count) - count  # each group's first pair
+    per = count[groups]
+    ends = np.cumsum(per)
+    take = np.repeat(seg[groups] - (ends - per), per) + np.arange(ends[-1] if per.size else 0)
+    picked = {name: values[take] for name, values in pairs.items() if name not in ("starts", "rows")}
+    picked["rows"] = np.repeat(np.arange(len(groups)), per)
+    picked["starts"] = ends - per
+    return picked
 
 
 def law_alone(fits: LawFits, law: str, rows: np.ndarray | None = None) -> LawFits:
@@ -278,18 +394,28 @@ def heaviest_law(fits: LawFits) -> np.ndarray:
 
 def heaviest_law_median(fits: LawFits, hours, confidence: float) -> np.ndarray:
     """The heaviest law's median value (a flow, L/min) at `hours` (per group, or a (G, K) grid): the centre
-    line of value_band, and so the trend's value now that the pages show beside the forecast."""
+    line of value_band, and so the trend's value now that the pages show beside the forecast.
+
+    One search for every group, each group weighing its heaviest law's members alone (as law_alone does for
+    one law, row by row): a group's figures are those of a search for its law alone, to the last bit, as a
+    search's groups do not mix."""
     hours = np.asarray(hours, dtype=float)
     expand = (slice(None), None) if hours.ndim == 2 else (slice(None),)
     centred = fits.centred()
     heaviest = heaviest_law(centred)
-    median = np.full(hours.shape, np.nan)
-    for k, law in enumerate(LAWS):
-        rows = (heaviest == k) & (fits.weight.sum(axis=1) > 0)
-        if rows.any():
-            mid = value_quantile(law_alone(centred, law, rows), hours, 0.5, confidence)
-            median = np.where(rows[expand], mid, median)
-    return median
+    rows = fits.weight.sum(axis=1) > 0
+    if not rows.any():
+        return np.full(hours.shape, np.nan)
+    weight = np.where(_OF_LAW[heaviest], centred.weight, 0.0)
+    total = weight.sum(axis=1, keepdims=True)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        weight = np.where((total > 0) & rows[:, None], weight / np.where(total > 0, total, 1.0), 0.0)
+    alone = dataclasses.replace(centred, weight=weight, _t_ratio=centred._t_ratio)
+    return np.where(rows[expand], value_quantile(alone, hours, 0.5, confidence), np.nan)
+
+
+# Per law (rows, as LAWS) the members of that law (columns, as MEMBERS).
+_OF_LAW = np.array([[m.law == law for m in MEMBERS] for law in LAWS])
 
 
 def plausible_laws(fits: LawFits, forecast_law: np.ndarray | None = None) -> dict[str, np.ndarray]:
@@ -320,35 +446,95 @@ def crossing_band(fits: LawFits, limit, now_hours, confidence: float) -> tuple[n
     heaviest law is plausible). The high bound is open (NaN) when any plausible law's is; the low bound is NaN
     only when no plausible law reaches the limit's low quantile.
     """
+    return crossing_bands([(fits, limit, now_hours)], confidence)[0]
+
+
+def crossing_bands(cases, confidence: float) -> list[tuple[np.ndarray, np.ndarray, np.ndarray]]:
+    """crossing_band of each case (fits, limit, now_hours), every law's crossings of every case found in one
+    search (_crossing_search): for one pump the search's steps cost about as much whatever they hold, so one
+    search for the slip's and the case drain's laws together costs about what one law's alone did."""
     alpha = 1.0 - confidence
-    centred = fits.centred()
-    heaviest = heaviest_law(centred)
-    median = np.full(len(fits), np.nan)
-    low = np.full(len(fits), np.nan)
-    high = np.full(len(fits), -np.inf)
-    open_high = np.zeros(len(fits), dtype=bool)
-    for k, (law, rows) in enumerate(plausible_laws(fits, heaviest).items()):
-        if not rows.any():
-            continue
-        top = rows & (heaviest == k)
-        if centred is fits:  # one search for the three levels
-            lo, mid, hi = crossing_quantiles(law_alone(fits, law, rows), limit, now_hours,
-                                             (alpha / 2, 0.5, 1 - alpha / 2), confidence)
-        else:  # the bounds on the trend's own lines, the forecast on the centred ones (the heaviest law only)
-            lo, hi = crossing_quantiles(law_alone(fits, law, rows), limit, now_hours, (alpha / 2, 1 - alpha / 2),
-                                        confidence)
-            mid = np.full(len(fits), np.nan)
+    searches = []  # per case and plausible law: (case, its rows, the forecast's rows, its blocks)
+    blocks = []  # the searched fits with their levels and the groups each level is wanted for
+    for c, (fits, _, _) in enumerate(cases):
+        centred = fits.centred()
+        heaviest = heaviest_law(centred)
+        for k, (law, rows) in enumerate(plausible_laws(fits, heaviest).items()):
+            if not rows.any():
+                continue
+            top = rows & (heaviest == k)
+            band = len(blocks)
+            if centred is fits:  # one walk for the three levels (the median wanted for the forecast's law only)
+                blocks.append((c, law_alone(fits, law, rows), (alpha / 2, 0.5, 1 - alpha / 2), (rows, top, rows)))
+                searches.append((c, rows, top, band, None))
+                continue
+            # the bounds on the trend's own lines, the forecast on the centred ones (the heaviest law only)
+            blocks.append((c, law_alone(fits, law, rows), (alpha / 2, 1 - alpha / 2), (rows, rows)))
+            median = None
             if top.any():
-                (mid,) = crossing_quantiles(law_alone(centred, law, top), limit, now_hours, (0.5,), confidence)
-        median = np.where(top, mid, median)
-        low = np.where(rows, np.fmin(low, lo), low)
-        open_high |= rows & np.isnan(hi)
-        high = np.where(rows, np.fmax(high, hi), high)
-    low = np.fmin(low, median)  # a forecast on a centred line may lie past its own trend's band: the band holds it
-    high = np.where(np.isfinite(high), np.fmax(high, median), high)
-    reached = np.isfinite(median) | np.isfinite(low)
-    high = np.where(open_high | ~np.isfinite(high) | ~reached, np.nan, high)
-    return low, median, high
+                median = len(blocks)
+                blocks.append((c, law_alone(centred, law, top), (0.5,), (top,)))
+            searches.append((c, rows, top, band, median))
+    found = _block_crossings(cases, blocks, confidence)
+    out = []
+    for c, (fits, _, _) in enumerate(cases):
+        n = len(fits)
+        median = np.full(n, np.nan)
+        low = np.full(n, np.nan)
+        high = np.full(n, -np.inf)
+        open_high = np.zeros(n, dtype=bool)
+        for case, rows, top, band, med in searches:
+            if case != c:
+                continue
+            if med is None and len(found[band]) == 3:
+                lo, mid, hi = found[band]
+            else:
+                (lo, hi), mid = found[band], (found[med][0] if med is not None else np.full(n, np.nan))
+            median = np.where(top, mid, median)
+            low = np.where(rows, np.fmin(low, lo), low)
+            open_high |= rows & np.isnan(hi)
+            high = np.where(rows, np.fmax(high, hi), high)
+        low = np.fmin(low, median)  # a forecast on a centred line may lie past its own trend's band: it holds it
+        high = np.where(np.isfinite(high), np.fmax(high, median), high)
+        reached = np.isfinite(median) | np.isfinite(low)
+        high = np.where(open_high | ~np.isfinite(high) | ~reached, np.nan, high)
+        out.append((low, median, high))
+    return out
+
+
+def _block_crossings(cases, blocks, confidence: float) -> list[list[np.ndarray]]:
+    """Per block (case, fits, levels, the groups each level is wanted for): crossing_quantiles' figures for the
+    groups wanted (NaN elsewhere), every block's groups stacked as the groups of one search."""
+    pairs, limits, nows, groups, levels, places = [], [], [], [], [], []
+    offset = 0
+    for c, fits, block_levels, wanted in blocks:
+        _, limit, now_hours = cases[c]
+        limit, now = np.asarray(limit, dtype=float), np.asarray(now_hours, dtype=float)
+        ok = _searchable(fits, limit, now)
+        block_pairs = _weighed_pairs(fits, confidence)
+        block_pairs["rows"] = block_pairs["rows"] + offset
+        pairs.append(block_pairs)
+        limits.append(limit)
+        nows.append(now)
+        want = np.column_stack([ok & w for w in wanted])  # (groups, levels)
+        g, j = np.nonzero(want)  # row-major: each group's levels together, groups in order
+        groups.append(g + offset)
+        levels.append(np.asarray(block_levels, dtype=float)[j])
+        places.append((g, j))
+        offset += len(now)
+    stacked = {name: np.concatenate([p[name] for p in pairs]) for name in pairs[0] if name != "starts"}
+    rows = stacked["rows"]
+    stacked["starts"] = np.flatnonzero(np.r_[True, rows[1:] != rows[:-1]]) if rows.size else rows
+    group, level = np.concatenate(groups), np.concatenate(levels)
+    found = _crossing_search(stacked, offset, np.concatenate(limits), np.concatenate(nows), group, level) \
+        if group.size else np.empty(0)
+    out, at = [], 0
+    for (_, fits, block_levels, _), (g, j) in zip(blocks, places, strict=True):
+        table = np.full((len(fits), len(block_levels)), np.nan)
+        table[g, j] = found[at:at + len(g)]
+        at += len(g)
+        out.append(list(table.T))
+    return out
 
 
 def value_band(fits: LawFits, hours, confidence: float) -> tuple[np.ndarray, np.ndarray, np.ndarray]:

@@ -13,7 +13,7 @@ import pandas as pd
 from fleet.trend.degradation import QUANTITIES, not_enough_reason
 from fleet.trend.grouped import group_max, group_min, time_span_days, within_days_of_last
 from fleet.trend.linear import LineFit, line_variance, t_quantile
-from fleet.trend.model_average import crossing_band, value_band
+from fleet.trend.model_average import crossing_bands, value_band
 from fleet.trend.settings import AnalysisSettings
 from fleet.trend.wear_laws import LawFits
 
@@ -47,12 +47,16 @@ def hours_to_limits(fits: pd.DataFrame, laws: dict[str, LawFits], limits_lpm: di
     """
     out = {}  # the columns, framed once
     now_h = fits["current_hours"].to_numpy(dtype=float)
+    limits, usables = {}, {}
     for q in QUANTITIES:
-        limit = np.asarray(limits_lpm[q], dtype=float)
-        enough = fits[f"{q}_enough_data"].to_numpy(dtype=bool)
+        limits[q] = np.asarray(limits_lpm[q], dtype=float)
+        usables[q] = fits[f"{q}_enough_data"].to_numpy(dtype=bool) & np.isfinite(limits[q]) & (limits[q] > 0)
+    # Both limits' crossings, every law's, in one search (for one pump its steps' fixed cost is most of it).
+    bands = crossing_bands([(laws[q], np.where(usables[q], limits[q], np.nan), now_h) for q in QUANTITIES],
+                           settings.confidence)
+    for q, (x_low, x_hat, x_high) in zip(QUANTITIES, bands, strict=True):
+        limit, usable = limits[q], usables[q]
         has_limit = np.isfinite(limit) & (limit > 0)
-        usable = enough & has_limit
-        x_low, x_hat, x_high = crossing_band(laws[q], np.where(usable, limit, np.nan), now_h, settings.confidence)
         current = fits[f"{q}_current_lpm"].to_numpy(dtype=float)
         past = usable & (current >= limit)
 
@@ -137,7 +141,10 @@ def limit_dates(last_reading_at: pd.Series, remaining_hours, per_day) -> pd.Seri
         days = np.where(ok, rem / np.where(ok, rate, 1.0), np.nan)
     days = np.minimum(days, 365.0 * 200)  # beyond any plan; keeps the timestamp in range
     offset = pd.to_timedelta(days, unit="D").to_numpy()  # pandas' rounding of days to its time unit
-    last = np.asarray(pd.to_datetime(last_reading_at))
+    if isinstance(last_reading_at, pd.Series) and last_reading_at.dtype.kind == "M":
+        last = last_reading_at.to_numpy()  # already times: pd.to_datetime would give them back as they are
+    else:
+        last = np.asarray(pd.to_datetime(last_reading_at))
     moved = last + offset  # plain arrays: numpy keeps the finer unit, as pandas' sum of the two does
     day = moved.astype("datetime64[D]").astype(moved.dtype)  # midnight of that day (dt.normalize); NaT stays
     return pd.Series(day)
@@ -184,32 +191,71 @@ def dates_at_hours(readings: pd.DataFrame, keys: pd.DataFrame, interval_hours, p
     Between two readings the date is interpolated from their hour-meter values; before the first or after the
     last reading it is extrapolated at the interval's hours per day. keys: pump_id, interval_no per target
     (same length as interval_hours and per_day). NaT where a figure is missing.
+
+    The readings around each target are found on arrays (_readings_around: a pandas merge_asof's choice, ties
+    and all), and the arithmetic is pandas' own on them, so one pump's few targets pay no frame's overhead
+    (tests/test_trend_remaining_life.py keeps the merge_asof code as the reference it must equal).
     """
-    by = ["pump_id", "interval_no"]
-    # One key type on both sides (an empty frame comes as object): merge_asof refuses to match mixed types.
-    target = keys[by].reset_index(drop=True).astype(np.int64).assign(
-        h=np.asarray(interval_hours, dtype=float), rate=np.asarray(per_day, dtype=float), row=np.arange(len(keys))
-    )
-    r = readings.loc[
-        np.isfinite(pd.to_numeric(readings["interval_hours"], errors="coerce")) & readings["taken_at"].notna(),
-        ["pump_id", "interval_no", "interval_hours", "taken_at"],
-    ].rename(columns={"interval_hours": "h"})
-    r = r.astype({"pump_id": np.int64, "interval_no": np.int64})
-    r = r.assign(h=r["h"].astype(float), taken_at=pd.to_datetime(r["taken_at"])).sort_values("h", kind="stable")
-    known = target[np.isfinite(target["h"])].sort_values("h", kind="stable")
-    before = pd.merge_asof(known, r.rename(columns={"h": "h_b", "taken_at": "t_b"}), left_on="h", right_on="h_b",
-                           by=by, direction="backward")
-    after = pd.merge_asof(known, r.rename(columns={"h": "h_f", "taken_at": "t_f"}), left_on="h", right_on="h_f",
-                          by=by, direction="forward")
-    m = before.set_index("row")[["h", "rate", "h_b", "t_b"]].join(after.set_index("row")[["h_f", "t_f"]])
-    span_days = (m["t_f"] - m["t_b"]).dt.total_seconds() / 86400.0
+    hours = np.asarray(interval_hours, dtype=float)
+    known = np.flatnonzero(np.isfinite(hours))  # the targets dated (the others NaT)
+    h = hours[known]
+    rate = np.asarray(per_day, dtype=float)[known]
+    r_hours = pd.to_numeric(readings["interval_hours"], errors="coerce").to_numpy(dtype=float)
+    r_taken = pd.to_datetime(readings["taken_at"])
+    usable = np.isfinite(r_hours) & r_taken.notna().to_numpy()
+    r_taken = r_taken.to_numpy()[usable]
+    r_hours = r_hours[usable]
+    before, after = _readings_around(
+        readings["pump_id"].to_numpy()[usable].astype(np.int64), readings["interval_no"].to_numpy()[usable].astype(
+            np.int64), r_hours, keys["pump_id"].to_numpy()[known].astype(np.int64),
+        keys["interval_no"].to_numpy()[known].astype(np.int64), h)
+    # None found (-1) takes the last place: a missing reading's NaN hours and NaT time, set after the readings.
+    r_hours, r_taken = np.append(r_hours, np.nan), np.append(r_taken, np.datetime64("NaT"))
+    h_b, h_f, t_b, t_f = r_hours[before], r_hours[after], r_taken[before], r_taken[after]
+    span_days = pd.TimedeltaIndex(t_f - t_b).total_seconds().to_numpy() / 86400.0
     with np.errstate(invalid="ignore", divide="ignore"):
-        share = ((m["h"] - m["h_b"]) / (m["h_f"] - m["h_b"])).where(m["h_f"] > m["h_b"], 0.0)
-        inside = m["t_b"] + pd.to_timedelta(share * span_days.fillna(0.0), unit="D")
-        ahead = m["t_b"] + pd.to_timedelta(((m["h"] - m["h_b"]) / m["rate"]).where(m["rate"] > 0), unit="D")
-        behind = m["t_f"] - pd.to_timedelta(((m["h_f"] - m["h"]) / m["rate"]).where(m["rate"] > 0), unit="D")
-    date = inside.where(m["t_b"].notna() & m["t_f"].notna(), ahead.where(m["t_b"].notna(), behind))
-    return date.reindex(range(len(keys))).dt.normalize().reset_index(drop=True)
+        share = np.where(h_f > h_b, (h - h_b) / (h_f - h_b), 0.0)
+        # pd.to_timedelta picks its unit from the values (whole days give a coarser one), and Series.where keeps
+        # the first's unit where the others' values fit it: both left to pandas, as the merge_asof code did.
+        inside = t_b + pd.to_timedelta(share * np.where(np.isnan(span_days), 0.0, span_days), unit="D").to_numpy()
+        ahead = t_b + pd.to_timedelta(np.where(rate > 0, (h - h_b) / rate, np.nan), unit="D").to_numpy()
+        behind = t_f - pd.to_timedelta(np.where(rate > 0, (h_f - h) / rate, np.nan), unit="D").to_numpy()
+    has_b = ~np.isnat(t_b)
+    date = pd.Series(inside).where(has_b & ~np.isnat(t_f), pd.Series(ahead).where(has_b, pd.Series(behind)))
+    date = date.to_numpy()
+    out = np.full(len(hours), np.datetime64("NaT"), dtype=date.dtype)
+    out[known] = date
+    return pd.Series(out.astype("datetime64[D]").astype(out.dtype))  # midnight of that day (dt.normalize)
+
+
+def _readings_around(r_pump, r_interval, r_hours, pump, interval, hours):
+    """Per target (pump, interval, hours): the index of its interval's reading at or before its hours (the last of
+    equal ones in the readings' order) and of the one at or after them (the first of equal ones); -1 for none.
+    A target whose hours are not finite gets -1 both ways."""
+    n = len(r_hours)
+    key1 = np.concatenate([r_pump, pump])
+    key2 = np.concatenate([r_interval, interval])
+    at = np.concatenate([r_hours, np.where(np.isfinite(hours), hours, np.nan)])
+    target = np.r_[np.zeros(n, dtype=bool), np.ones(len(hours), dtype=bool)]
+    found = []
+    for direction in ("before", "after"):
+        # Readings sorted beside the targets (before them at equal hours looking back, after them looking on),
+        # equal readings in their own order (lexsort is stable).
+        order = np.lexsort((target if direction == "before" else ~target, at, key2, key1))
+        place = np.arange(len(order))
+        is_reading = ~target[order]
+        if direction == "before":
+            near = np.maximum.accumulate(np.where(is_reading, place, -1))
+        else:
+            near = np.minimum.accumulate(np.where(is_reading, place, len(order))[::-1])[::-1]
+        valid = (near >= 0) & (near < len(order))
+        nearest = order[np.where(valid, near, 0)] if len(order) else order
+        same = valid & (key1[nearest] == key1[order]) & (key2[nearest] == key2[order]) if len(order) else valid
+        same &= np.isfinite(at[order])
+        pick = np.full(len(order), -1)
+        pick[order] = np.where(same, nearest, -1)
+        found.append(pick[n:])
+    return found[0], found[1]
 
 
 def averaged_band(fit, hours_grid, qmax, confidence: float = 0.90, quantity: str = "slip") -> pd.DataFrame:
