@@ -210,16 +210,21 @@ class LawFits:
             start = stop
         self.centre_a, self.centre_b = centre_a, centre_b
 
+    def line_fields(self) -> tuple:
+        """The fields to_columns writes of each member: FIELDS, and the centred lines and weights where set."""
+        centre = CENTRE_FIELDS if self.centre_a is not None else ()
+        if self.centre_weight is not None:
+            centre = (*centre, "centre_weight")
+        return (*FIELDS, *centre)
+
     def to_columns(self, prefix: str) -> dict[str, np.ndarray]:
         cols = {
             f"{prefix}_hours_scale": self.hours_scale,
             f"{prefix}_hours_offset": self.hours_offset,
         }
-        centre = CENTRE_FIELDS if self.centre_a is not None else ()
-        if self.centre_weight is not None:
-            centre = (*centre, "centre_weight")
+        fields = self.line_fields()
         for j, m in enumerate(MEMBERS):
-            for f in (*FIELDS, *centre):
+            for f in fields:
                 cols[f"{prefix}_{m.name}_{f}"] = getattr(self, f)[:, j]
         return cols
 
