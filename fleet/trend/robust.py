@@ -15,7 +15,9 @@ from fleet.trend.settings import AnalysisSettings
 def robust_scale(group: np.ndarray, z: np.ndarray, n_groups: int) -> np.ndarray:
     """Per group 1.4826 x median |z| (MAD about the line), never below 1: the error model's own scatter."""
     mad = group_median(group, np.abs(z), n_groups)
-    return np.maximum(1.4826 * np.nan_to_num(mad, nan=1.0), 1.0)
+    # a group without values has no median: 1 (as np.nan_to_num(mad, nan=1.0), whose checks cost more here; an
+    # infinite median stays infinite either way once scaled)
+    return np.maximum(1.4826 * np.where(np.isnan(mad), 1.0, mad), 1.0)
 
 
 def fit_reweighted(

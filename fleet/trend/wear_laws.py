@@ -33,6 +33,7 @@ slip's own readings refute that shape; the slip's band stays its own.
 import dataclasses
 import warnings
 from dataclasses import dataclass, field
+from functools import lru_cache
 
 import numpy as np
 import pandas as pd
@@ -91,6 +92,22 @@ _RUN_IN_SCALE = -np.expm1(-1.0 / _RUN_IN_TAUS)  # 1 - e^(-1/tau): a run-in membe
 assert [(m.tau, m.share) for m in MEMBERS if m.law == "run_in"] == [
     (t, sh) for t in RUN_IN_TAUS for sh in RUN_IN_SHARES]
 FAMILIES = ("power", "run_in")  # laws with many members, fitted in one weighted pass each
+# Each law's members as a mask over MEMBERS, made once (a list over the members per call costs more than the
+# arithmetic on one pump's few rows); read-only, shared by every call.
+OF_LAW = {law: np.array([m.law == law for m in MEMBERS]) for law in LAWS}
+for _mask in OF_LAW.values():
+    _mask.setflags(write=False)
+_RUN_IN_TAU_OF_MEMBER = np.array([m.tau if m.law == "run_in" else np.nan for m in MEMBERS])
+_N_PARAMS = np.array([m.n_params for m in MEMBERS], dtype=float)
+
+
+def _columns_of(law: str) -> slice:
+    cols = np.flatnonzero(OF_LAW[law])
+    assert np.array_equal(cols, np.arange(cols[0], cols[-1] + 1))  # a family's members stand together
+    return slice(int(cols[0]), int(cols[-1]) + 1)
+
+
+_FAMILY_COLUMNS = {family: _columns_of(family) for family in FAMILIES}
 FIELDS = ("a", "b", "var_a", "var_b", "cov_ab", "dof", "weight")
 CENTRE_FIELDS = ("centre_a", "centre_b")  # LawFits.centred_on
 
@@ -139,7 +156,7 @@ class LawFits:
         law_w = akaike_weights(law_score, fallback=LAWS.index(self.allowed[0]))
         weight = np.zeros(self.a.shape)
         for k, law in enumerate(LAWS):
-            of_law = np.array([m.law == law for m in MEMBERS])
+            of_law = OF_LAW[law]
             score = member_score[:, of_law] - (0.0 if log_prior is None else 2.0 * log_prior[:, of_law])
             within = akaike_weights(score) if law in FAMILIES else 1.0
             weight[:, of_law] = law_w[:, [k]] * within
@@ -156,7 +173,7 @@ class LawFits:
         return len(self.hours_scale)
 
     def law_weights(self) -> dict[str, np.ndarray]:
-        return {law: self.weight[:, [m.law == law for m in MEMBERS]].sum(axis=1) for law in LAWS}
+        return {law: self.weight[:, OF_LAW[law]].sum(axis=1) for law in LAWS}
 
     def centred(self) -> "LawFits":
         """The fits with each member's line moved to the line the forecast follows (centre_a, centre_b), its
@@ -375,10 +392,8 @@ def _fit_family_members(family, group, hours, q, sigma, robust_w, clip, hours_sc
     order = np.flatnonzero(keep)
     order = order[np.argsort(group[order], kind="stable")]
     group, hours, q, sigma, robust_w = group[order], hours[order], q[order], sigma[order], robust_w[order]
-    cols = np.flatnonzero([m.law == family for m in MEMBERS])
-    assert np.array_equal(cols, np.arange(cols[0], cols[-1] + 1))  # a family's members stand together
-    cols = slice(cols[0], cols[-1] + 1)
-    n_params = np.array([m.n_params for m in MEMBERS[cols]], dtype=float)
+    cols = _FAMILY_COLUMNS[family]
+    n_params = _N_PARAMS[cols]
     model_w = 1.0 / sigma**2
     w = model_w * robust_w
     count = np.bincount(group, minlength=n_groups).astype(float)
@@ -456,7 +471,7 @@ def _fit_family_members(family, group, hours, q, sigma, robust_w, clip, hours_sc
 
 def _best_family_huber(family, group, hours, q, sigma, out, deviance, hours_scale, offset, n_groups, settings):
     """Huber weights of each reading about its group's best-fitting line of the family (smallest deviance)."""
-    of_family = np.array([m.law == family for m in MEMBERS])
+    of_family = OF_LAW[family]
     family_dev = np.where(np.isfinite(deviance[:, of_family]), deviance[:, of_family], np.inf)
     best = np.flatnonzero(of_family)[np.argmin(family_dev, axis=1)]
     fitted = np.full(len(q), np.nan)
@@ -484,7 +499,7 @@ def run_in_identifiable(group, hours, hours_scale, offset, n_groups) -> np.ndarr
     ok = np.ones((n_groups, len(MEMBERS)), dtype=bool)
     with np.errstate(invalid="ignore", divide="ignore"):
         u = (hours + offset[group]) / hours_scale[group]
-    taus = np.array([m.tau if m.law == "run_in" else np.nan for m in MEMBERS])
+    taus = _RUN_IN_TAU_OF_MEMBER
     for tau in dict.fromkeys(taus[np.isfinite(taus)]):
         ok[:, taus == tau] = (np.bincount(group, u <= RUN_IN_REACH * tau, minlength=n_groups) >= 2)[:, None]
     return ok
@@ -625,11 +640,11 @@ def fit_wear_laws(
     # lose their weight).
     robust_w = np.fmax(huber["exponential"], huber["linear"])
     identifiable = run_in_identifiable(group, hours, hours_scale, offset, n_groups)
-    allowed = np.array([m.law in settings.wear_laws for m in MEMBERS])
+    allowed = _allowed_members(tuple(settings.wear_laws))
     for family in FAMILIES:
         if family not in settings.wear_laws:
             continue
-        of_family = np.array([m.law == family for m in MEMBERS])
+        of_family = OF_LAW[family]
         _fit_family_members(family, group, hours, q, sigma, robust_w, clip, hours_scale, offset, n_groups, out,
                             deviance)
         deviance = np.where(identifiable, deviance, np.nan)
@@ -675,16 +690,24 @@ def fit_wear_laws(
     return laws
 
 
+@lru_cache(maxsize=8)
+def _allowed_members(laws: tuple) -> np.ndarray:
+    """The members of the laws compared (AnalysisSettings.wear_laws), as a read-only mask over MEMBERS."""
+    allowed = np.array([m.law in laws for m in MEMBERS])
+    allowed.setflags(write=False)
+    return allowed
+
+
 def _law_aicc(law: str, count, deviance) -> np.ndarray:
     """AICc of a law on its best member's deviance (NaN where no member is usable)."""
-    of_law = np.array([m.law == law for m in MEMBERS])
+    of_law = OF_LAW[law]
     best = np.min(np.where(np.isfinite(deviance[:, of_law]), deviance[:, of_law], np.inf), axis=1)
     return aicc(count, LAW_PARAMS[law], np.where(np.isfinite(best), best, np.nan))
 
 
 def _family_criterion(member_crit, law: str) -> np.ndarray:
     """A law's held-back criterion: its one member's, or for a family -2 ln of its members' mean likelihood."""
-    of_law = np.array([m.law == law for m in MEMBERS])
+    of_law = OF_LAW[law]
     crit = member_crit[:, of_law]
     if crit.shape[1] == 1:
         return crit[:, 0]
