@@ -270,9 +270,11 @@ def fit_degradation(referred: pd.DataFrame, settings: AnalysisSettings | None = 
 
 def enough_data(n_points: np.ndarray, span_hours: np.ndarray, settings: AnalysisSettings) -> np.ndarray:
     """The minimum data for a pump's own trend: enough usable readings over enough running hours."""
-    n = np.nan_to_num(np.asarray(n_points, dtype=float))
-    span = np.nan_to_num(np.asarray(span_hours, dtype=float))
-    return (n >= settings.min_points) & (span >= settings.min_span_hours)
+    n = np.asarray(n_points, dtype=float)
+    span = np.asarray(span_hours, dtype=float)
+    # a missing count or span is none (np.nan_to_num's 0, without its checks: an infinite one compares alike)
+    return (np.where(np.isnan(n), 0.0, n) >= settings.min_points) & (
+        np.where(np.isnan(span), 0.0, span) >= settings.min_span_hours)
 
 
 def not_enough_reason(n_points: np.ndarray, span_hours: np.ndarray, settings: AnalysisSettings, what: str):
@@ -311,6 +313,7 @@ def summarise_fits(fits: pd.DataFrame, rated_flow_lpm: np.ndarray, max_flow_lpm:
         }
     # New columns joined once, not inserted one by one into a frame of some thousand columns.
     out = pd.concat([fits, pd.DataFrame(added, index=fits.index)], axis=1)
-    for q in QUANTITIES:  # a law is named only where there is a trend
-        out[f"{q}_wear_law"] = out[f"{q}_wear_law"].where(ok[q], None)
+    for q in QUANTITIES:  # a law is named only where there is a trend (as Series.where(ok, None), on the array)
+        name = f"{q}_wear_law"
+        out.isetitem(out.columns.get_loc(name), np.where(ok[q], fits[name].to_numpy(object), None))
     return out

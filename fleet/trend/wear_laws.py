@@ -159,7 +159,7 @@ class LawFits:
             of_law = OF_LAW[law]
             score = member_score[:, of_law] - (0.0 if log_prior is None else 2.0 * log_prior[:, of_law])
             within = akaike_weights(score) if law in FAMILIES else 1.0
-            weight[:, of_law] = law_w[:, [k]] * within
+            weight[:, of_law] = law_w[:, k:k + 1] * within
         weight = np.where(self.usable, weight, 0.0)
         # A member with under a millionth of the heaviest one's weight moves no forecast (all of them together
         # hold under 1e-4 of the probability); dropping them spares the forecasts their evaluation.
@@ -553,7 +553,7 @@ def _mad_scale(group, z, n_groups) -> np.ndarray:
 def aicc(n, n_params, deviance) -> np.ndarray:
     """Small-sample AIC of a least-squares fit: n ln(D / n) + 2K + 2K(K + 1) / (n - K - 1); NaN if n <= K + 1."""
     n = np.asarray(n, dtype=float)
-    k = float(n_params)
+    k = np.asarray(n_params, dtype=float)  # one K, or one per column
     ok = (n - k - 1.0 > 0) & np.isfinite(deviance) & (np.asarray(deviance) > 0)
     with np.errstate(invalid="ignore", divide="ignore"):
         value = n * np.log(np.asarray(deviance, dtype=float) / n) + 2 * k + 2 * k * (k + 1) / (n - k - 1)
@@ -662,7 +662,7 @@ def fit_wear_laws(
     deviance = np.where(usable, np.maximum(deviance, 1e-12 * count[:, None]), np.nan)
     with np.errstate(invalid="ignore", divide="ignore"):
         fit_term = count[:, None] * np.log(deviance / count[:, None])
-    law_score = np.column_stack([_law_aicc(law, count, deviance) for law in LAWS])
+    law_score = _law_scores(count, deviance)
     member_score = fit_term
     if settings.law_weighting == "held_back":
         held = _held_back_scores(
@@ -698,11 +698,19 @@ def _allowed_members(laws: tuple) -> np.ndarray:
     return allowed
 
 
-def _law_aicc(law: str, count, deviance) -> np.ndarray:
-    """AICc of a law on its best member's deviance (NaN where no member is usable)."""
-    of_law = OF_LAW[law]
-    best = np.min(np.where(np.isfinite(deviance[:, of_law]), deviance[:, of_law], np.inf), axis=1)
-    return aicc(count, LAW_PARAMS[law], np.where(np.isfinite(best), best, np.nan))
+# Where each law's members start in MEMBERS (they stand together, law after law) and each law's K (_law_scores).
+_LAW_STARTS = np.array([np.flatnonzero(OF_LAW[law])[0] for law in LAWS])
+assert all(np.array_equal(np.flatnonzero(OF_LAW[law]), np.arange(start, end)) for law, start, end in zip(
+    LAWS, _LAW_STARTS, [*_LAW_STARTS[1:], len(MEMBERS)], strict=True))
+_LAW_K = np.array([float(LAW_PARAMS[law]) for law in LAWS])
+
+
+def _law_scores(count, deviance) -> np.ndarray:
+    """Per group and law (columns as LAWS) the AICc of the law on its best member's deviance (NaN where no member is
+    usable): each law's best member by one reduce over its run of columns, every law's K side by side (the same
+    arithmetic per value as one law at a time, which tests/test_trend_law_scores.py keeps as the reference)."""
+    best = np.minimum.reduceat(np.where(np.isfinite(deviance), deviance, np.inf), _LAW_STARTS, axis=1)
+    return aicc(np.asarray(count, dtype=float)[:, None], _LAW_K[None, :], np.where(np.isfinite(best), best, np.nan))
 
 
 def _family_criterion(member_crit, law: str) -> np.ndarray:
