@@ -41,7 +41,7 @@ from scipy import special, stats
 
 from fleet.trend.grouped import group_max, group_min
 from fleet.trend.linear import t_quantile
-from fleet.trend.robust import fit_reweighted, robust_scale
+from fleet.trend.robust import fit_reweighted, huber_weights, robust_scale
 from fleet.trend.settings import AnalysisSettings
 
 LAWS = ("exponential", "linear", "power", "run_in")
@@ -488,8 +488,7 @@ def _best_family_huber(family, group, hours, q, sigma, out, deviance, hours_scal
         fitted[at] = out["a"][g, j] + out["b"][g, j] * x
     z = (q - fitted) / sigma
     u = np.abs(z) / robust_scale(group, z, n_groups)[group]
-    with np.errstate(invalid="ignore", divide="ignore"):
-        return np.where(u > settings.huber_k, settings.huber_k / u, 1.0)
+    return huber_weights(u, settings.huber_k)
 
 
 def run_in_identifiable(group, hours, hours_scale, offset, n_groups) -> np.ndarray:
