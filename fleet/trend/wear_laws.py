@@ -165,9 +165,8 @@ class LawFits:
         # hold under 1e-4 of the probability); dropping them spares the forecasts their evaluation.
         weight = np.where(weight >= 1e-6 * weight.max(axis=1, keepdims=True, initial=0.0), weight, 0.0)
         total = weight.sum(axis=1, keepdims=True)
-        with np.errstate(invalid="ignore", divide="ignore"):
-            fitted = self.usable.any(axis=1, keepdims=True) & (total > 0)
-            self.weight = np.where(fitted, weight / np.where(total > 0, total, 1.0), 0.0)
+        fitted = self.usable.any(axis=1, keepdims=True) & (total > 0)  # divided only by a positive total
+        self.weight = np.where(fitted, weight / np.where(total > 0, total, 1.0), 0.0)
 
     def __len__(self) -> int:
         return len(self.hours_scale)
@@ -567,13 +566,14 @@ def akaike_weights(criterion: np.ndarray, fallback: int = 0) -> np.ndarray:
     c = np.atleast_2d(np.asarray(criterion, dtype=float))
     finite = np.isfinite(c)
     best = np.min(np.where(finite, c, np.inf), axis=1, keepdims=True)
-    with np.errstate(invalid="ignore", over="ignore"):
-        raw = np.where(finite, np.exp(-0.5 * (c - np.where(np.isfinite(best), best, 0.0))), 0.0)
+    best = np.where(np.isfinite(best), best, 0.0)
+    # exp of each finite entry's -delta / 2 (<= 0: nothing can overflow), the others' weight 0; a sum of such
+    # terms divided only where it is positive: no error state need be entered
+    raw = np.where(finite, np.exp(-0.5 * (np.where(finite, c, best) - best)), 0.0)
     total = raw.sum(axis=1, keepdims=True)
     alone = np.zeros_like(c)
     alone[:, fallback] = 1.0
-    with np.errstate(invalid="ignore", divide="ignore"):
-        return np.where(total > 0, raw / np.where(total > 0, total, 1.0), alone)
+    return np.where(total > 0, raw / np.where(total > 0, total, 1.0), alone)
 
 
 def fit_wear_laws(
