@@ -19,7 +19,7 @@ from fleet.trend.grouped import group_first, group_max, group_min, pair_codes
 from fleet.trend.model_average import averaged_slope, heaviest_law_median
 from fleet.trend.settings import AnalysisSettings
 from fleet.trend.shape_prior import pool_shapes
-from fleet.trend.wear_laws import LAWS, MEMBERS, LawFits, fit_wear_laws, joint_score
+from fleet.trend.wear_laws import LAWS, LawFits, fit_wear_laws, joint_score, member_columns
 
 QUANTITIES = ("slip", "drain")
 
@@ -81,7 +81,7 @@ class FitColumns(Mapping):
         self._member = {}  # member column name -> (quantity, field, member index)
         for q in QUANTITIES:
             names += [f"{q}_{name}" for name in _FIGURES]
-            lines = _member_names(q, laws[q].line_fields())
+            lines = member_columns(q, laws[q].line_fields())
             self._member.update(lines)
             names += list(lines)
         seen = set(names)
@@ -135,7 +135,7 @@ def _float_plan(names: tuple, fields: tuple) -> tuple:
     own (position, name) and per quantity the positions and columns among its fields side by side."""
     member = {}
     for q, its_fields in fields:
-        member.update(_member_names(q, its_fields))
+        member.update(member_columns(q, its_fields))
     own, picks = [], {}
     for i, name in enumerate(names):
         where = member.get(name)
@@ -148,23 +148,10 @@ def _float_plan(names: tuple, fields: tuple) -> tuple:
     return tuple(own), tuple((q, np.array(at), np.array(columns)) for q, (at, columns) in picks.items())
 
 
-@lru_cache(maxsize=16)
-def _member_names(prefix: str, fields: tuple) -> dict:
-    """LawFits.to_columns' names, in its order, each with where its values are: (prefix, field, member index or
-    None for a per-group array, and a member's column among the fields' arrays side by side, as FitColumns.floats
-    lays them)."""
-    names = {f"{prefix}_hours_scale": (prefix, "hours_scale", None), f"{prefix}_hours_offset": (prefix, "hours_offset",
-                                                                                                  None)}
-    for j, m in enumerate(MEMBERS):
-        for k, f in enumerate(fields):
-            names[f"{prefix}_{m.name}_{f}"] = (prefix, f, j, k * len(MEMBERS) + j)
-    return names
-
-
 def fit_columns(table: pd.DataFrame, laws: dict[str, LawFits]) -> Mapping:
     """The columns of FleetAnalysis.fits in their order, without framing them (FitColumns): ``table``'s
     (fit_degradation's, with whatever columns were added after them) as Series, and after each quantity's figures
-    its members' lines (LawFits.to_columns: hundreds of float arrays per quantity)."""
+    its members' lines (wear_laws.member_columns: hundreds of float arrays per quantity)."""
     return FitColumns(table, laws)
 
 

@@ -227,26 +227,16 @@ class LawFits:
         self.centre_a, self.centre_b = centre_a, centre_b
 
     def line_fields(self) -> tuple:
-        """The fields to_columns writes of each member: FIELDS, and the centred lines and weights where set."""
+        """The fields kept of each member (member_columns): FIELDS, and the centred lines and weights where set."""
         centre = CENTRE_FIELDS if self.centre_a is not None else ()
         if self.centre_weight is not None:
             centre = (*centre, "centre_weight")
         return (*FIELDS, *centre)
 
-    def to_columns(self, prefix: str) -> dict[str, np.ndarray]:
-        cols = {
-            f"{prefix}_hours_scale": self.hours_scale,
-            f"{prefix}_hours_offset": self.hours_offset,
-        }
-        fields = self.line_fields()
-        for j, m in enumerate(MEMBERS):
-            for f in fields:
-                cols[f"{prefix}_{m.name}_{f}"] = getattr(self, f)[:, j]
-        return cols
-
     @classmethod
     def from_columns(cls, frame, prefix: str) -> "LawFits":
-        """Back from to_columns; `frame` may be a DataFrame (many groups) or one row (a Series or dict)."""
+        """Back from the columns of member_columns (FleetAnalysis.fits' members' lines); `frame` may be a DataFrame
+        (many groups) or one row (a Series or dict)."""
 
         def col(name):
             return np.atleast_1d(np.asarray(frame[f"{prefix}_{name}"], dtype=float))
@@ -266,6 +256,21 @@ class LawFits:
             hours_scale=col("hours_scale"),
             hours_offset=col("hours_offset"),
         )
+
+
+@lru_cache(maxsize=16)
+def member_columns(prefix: str, fields: tuple) -> dict:
+    """The columns of a trend's fitted laws in FleetAnalysis.fits, in order: <prefix>_hours_scale,
+    <prefix>_hours_offset, then <prefix>_<member>_<field> for every member and each of ``fields``
+    (LawFits.line_fields), each with where its values are: (prefix, field, member index or None for a per-group
+    array, and a member's column among the fields' arrays side by side, as degradation.FitColumns.floats lays
+    them). LawFits.from_columns reads them back."""
+    names = {f"{prefix}_hours_scale": (prefix, "hours_scale", None, None),
+             f"{prefix}_hours_offset": (prefix, "hours_offset", None, None)}
+    for j, m in enumerate(MEMBERS):
+        for k, f in enumerate(fields):
+            names[f"{prefix}_{m.name}_{f}"] = (prefix, f, j, k * len(MEMBERS) + j)
+    return names
 
 
 _PAIR_ROWS = 1 << 18  # readings x pairs worked on at once by LawFits.centred_on (bounds its memory)
