@@ -166,6 +166,13 @@ def with_member_lines(table: pd.DataFrame, laws: dict[str, LawFits]) -> pd.DataF
     return pd.concat(parts, axis=1)
 
 
+def _numbers(column: pd.Series) -> np.ndarray:
+    """A column as floats, what is not a number NaN (pd.to_numeric's coercion, skipped for a column of floats)."""
+    if isinstance(column.dtype, np.dtype) and column.dtype.kind == "f":  # numpy floats (not pandas' nullable ones)
+        return column.to_numpy(dtype=float)
+    return pd.to_numeric(column, errors="coerce").to_numpy(dtype=float)
+
+
 def fit_degradation(referred: pd.DataFrame, settings: AnalysisSettings | None = None,
                     kind_of_pump: pd.Series | None = None, shape_priors: pd.DataFrame | None = None,
                     ) -> tuple[pd.DataFrame, dict[str, LawFits]]:
@@ -198,14 +205,14 @@ def fit_degradation(referred: pd.DataFrame, settings: AnalysisSettings | None = 
     unique, group_all = pair_codes(referred["pump_id"].to_numpy(), referred["interval_no"].to_numpy())
     n_groups = len(unique)
 
-    hours = pd.to_numeric(referred["interval_hours"], errors="coerce").to_numpy(dtype=float)
+    hours = _numbers(referred["interval_hours"])
     valid_hours = np.isfinite(hours) & (hours >= 0)
     current_hours = group_max(group_all, np.where(valid_hours, hours, np.nan), n_groups)
     good = referred["flag"].isna().to_numpy() & valid_hours
 
     columns = {"pump_id": unique[:, 0], "interval_no": unique[:, 1], "current_hours": current_hours}
     # Hours run before the interval's hours count: the first interval's hour meter counts from new.
-    start_meter = pd.to_numeric(referred["interval_start_hours"], errors="coerce").to_numpy(dtype=float)
+    start_meter = _numbers(referred["interval_start_hours"])
     first_interval = referred["interval_no"].to_numpy() == 0
     offset = group_first(group_all, np.where(first_interval, start_meter, 0.0), n_groups)
     offset = np.maximum(np.where(np.isnan(offset), 0.0, offset), 0.0)
