@@ -43,3 +43,13 @@ def test_times_and_pairs_match_pandas():
     keys = pd.DataFrame({"p": pumps, "i": intervals}).drop_duplicates().sort_values(["p", "i"]).to_numpy()
     np.testing.assert_array_equal(pairs, keys)
     np.testing.assert_array_equal(pairs[codes], np.column_stack([pumps, intervals]))
+
+
+@pytest.mark.parametrize("size", [0, 1, 2, 7, 520])
+def test_one_groups_median_matches_pandas(size):
+    # one group (a pump with one interval) takes its own path: its values sorted once
+    rng = np.random.default_rng(size)
+    values = rng.normal(size=size).round(1)
+    values[::5] = np.nan
+    expected = pd.Series(values, dtype=float).median()  # pandas skips the missing values; NaN with none left
+    np.testing.assert_array_equal(group_median(np.zeros(size, dtype=np.int64), values, 1), [expected])

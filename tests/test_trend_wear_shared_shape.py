@@ -12,7 +12,7 @@ from scipy import optimize
 
 from fleet.trend.model_average import crossing_band, value_band
 from fleet.trend.settings import AnalysisSettings
-from fleet.trend.wear_laws import MEMBERS, LawFits, _through_origin, fit_wear_laws, joint_score
+from fleet.trend.wear_laws import MEMBERS, LawFits, _through_origin, fit_wear_laws, joint_score, member_columns
 
 SETTINGS = AnalysisSettings(irls_iterations=200, irls_tolerance=1e-13)
 EXP = 0  # MEMBERS[0] is the exponential law
@@ -97,15 +97,21 @@ def test_a_drifting_drain_share_is_refuted_and_the_slip_keeps_its_own_line():
     assert slip_laws.centre_b[0, EXP] == slip_laws.b[0, EXP]
 
 
+def _columns(laws: LawFits, prefix: str) -> dict:
+    """The trend's columns of FleetAnalysis.fits, as degradation.FitColumns reads them from the laws' arrays."""
+    return {name: getattr(laws, field) if j is None else getattr(laws, field)[:, j]
+            for name, (_, field, j, _) in member_columns(prefix, laws.line_fields()).items()}
+
+
 def test_centre_lines_survive_the_columns_they_are_stored_in():
     h, slip, sigma, slip_laws, drain_laws = _pair()
     slip_laws.centred_on(drain_laws, np.zeros(h.size, dtype=int), h, slip, sigma, SETTINGS)
-    columns = slip_laws.to_columns("slip")
+    columns = _columns(slip_laws, "slip")
     back = LawFits.from_columns(pd.DataFrame(columns), "slip")
     one = LawFits.from_columns({k: v[0] for k, v in columns.items()}, "slip")
     for fits in (back, one):
         assert np.array_equal(fits.centre_a, slip_laws.centre_a, equal_nan=True)
         assert np.array_equal(fits.centre_b, slip_laws.centre_b, equal_nan=True)
     # A trend never centred keeps no centre columns, and reads back without them.
-    assert not any(name.endswith("_centre_a") for name in drain_laws.to_columns("drain"))
-    assert LawFits.from_columns(pd.DataFrame(drain_laws.to_columns("drain")), "drain").centre_a is None
+    assert not any(name.endswith("_centre_a") for name in _columns(drain_laws, "drain"))
+    assert LawFits.from_columns(pd.DataFrame(_columns(drain_laws, "drain")), "drain").centre_a is None

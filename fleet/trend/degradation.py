@@ -8,6 +8,8 @@ figures people read come from the heaviest law and the laws the readings cannot 
 never one solver call per pump.
 """
 
+from collections.abc import Mapping
+from functools import lru_cache
 from itertools import groupby
 
 import numpy as np
@@ -17,7 +19,7 @@ from fleet.trend.grouped import group_first, group_max, group_min, pair_codes
 from fleet.trend.model_average import averaged_slope, heaviest_law_median
 from fleet.trend.settings import AnalysisSettings
 from fleet.trend.shape_prior import pool_shapes
-from fleet.trend.wear_laws import LAWS, LawFits, fit_wear_laws, joint_score
+from fleet.trend.wear_laws import LAWS, LawFits, fit_wear_laws, joint_score, member_columns
 
 QUANTITIES = ("slip", "drain")
 
@@ -62,17 +64,95 @@ def _figures(laws: LawFits, span: np.ndarray, current_hours: np.ndarray, prefix:
     return {f"{prefix}_{k}": v for k, v in cols.items()}
 
 
-def fit_columns(table: pd.DataFrame, laws: dict[str, LawFits]) -> dict:
-    """The columns of FleetAnalysis.fits in their order, without framing them: ``table``'s (fit_degradation's, with
-    whatever columns were added after them) as Series, and after each quantity's figures its members' lines
-    (LawFits.to_columns: hundreds of float arrays per quantity)."""
-    own = dict(table.items())  # each column once, without a lookup by name in the frame
-    columns = {name: own[name] for name in ("pump_id", "interval_no", "current_hours")}
-    for q in QUANTITIES:
-        columns.update((f"{q}_{name}", own[f"{q}_{name}"]) for name in _FIGURES)
-        columns.update(laws[q].to_columns(q))
-    columns.update((name, values) for name, values in own.items() if name not in columns)
-    return columns
+_FLOAT = np.dtype(float)
+
+
+class FitColumns(Mapping):
+    """The columns of FleetAnalysis.fits by name, in its order, none of them made until read: the table's own by
+    name from the table (as Series), each member's line as a column of its quantity's LawFits arrays. Reading a
+    few dozen of some 1,300 columns (as the kept interval trends do) costs those few, not a Series or a slice of
+    every column."""
+
+    def __init__(self, table: pd.DataFrame, laws: dict):
+        self._table, self._laws = table, laws
+        self._own = {}
+        own = table.columns.tolist()
+        names = ["pump_id", "interval_no", "current_hours"]
+        self._member = {}  # member column name -> (quantity, field, member index)
+        for q in QUANTITIES:
+            names += [f"{q}_{name}" for name in _FIGURES]
+            lines = member_columns(q, laws[q].line_fields())
+            self._member.update(lines)
+            names += list(lines)
+        seen = set(names)
+        names += [name for name in own if name not in seen]
+        self._names = names
+
+    def __getitem__(self, name):
+        where = self._member.get(name)
+        if where is None:
+            if name not in self._own:
+                if name not in self._table.columns:
+                    raise KeyError(name)
+                self._own[name] = self._table[name]  # each of the table's columns taken once
+            return self._own[name]
+        q, field, j = where[:3]
+        values = getattr(self._laws[q], field)
+        return values if j is None else values[:, j]
+
+    def column_dtype(self, name) -> np.dtype:
+        """The dtype of a column, without making it (a member's line is float)."""
+        return _FLOAT if name in self._member else self[name].dtype
+
+    def floats(self, names) -> np.ndarray:
+        """The columns ``names`` as one float block (rows x names), the members' lines taken per quantity by one
+        pick from its fields side by side, not a column at a time."""
+        out = np.empty((len(self._table), len(names)))
+        fields = tuple((q, self._laws[q].line_fields()) for q in QUANTITIES)
+        own, picks = _float_plan(tuple(names), fields)
+        for i, name in own:
+            out[:, i] = np.asarray(self[name], dtype=float)
+        for q, at, columns in picks:
+            laws = self._laws[q]
+            side_by_side = np.concatenate([np.asarray(getattr(laws, f), dtype=float) for f in laws.line_fields()],
+                                          axis=1)
+            out[:, at] = side_by_side[:, columns]
+        return out
+
+    def __iter__(self):
+        return iter(self._names)
+
+    def __len__(self) -> int:
+        return len(self._names)
+
+    def __contains__(self, name) -> bool:
+        return name in self._member or name in self._table.columns
+
+
+@lru_cache(maxsize=16)
+def _float_plan(names: tuple, fields: tuple) -> tuple:
+    """Where FitColumns.floats takes each of ``names`` from (the quantities' line fields as ``fields``): the table's
+    own (position, name) and per quantity the positions and columns among its fields side by side."""
+    member = {}
+    for q, its_fields in fields:
+        member.update(member_columns(q, its_fields))
+    own, picks = [], {}
+    for i, name in enumerate(names):
+        where = member.get(name)
+        if where is None or where[2] is None:
+            own.append((i, name))
+        else:
+            at, columns = picks.setdefault(where[0], ([], []))
+            at.append(i)
+            columns.append(where[3])
+    return tuple(own), tuple((q, np.array(at), np.array(columns)) for q, (at, columns) in picks.items())
+
+
+def fit_columns(table: pd.DataFrame, laws: dict[str, LawFits]) -> Mapping:
+    """The columns of FleetAnalysis.fits in their order, without framing them (FitColumns): ``table``'s
+    (fit_degradation's, with whatever columns were added after them) as Series, and after each quantity's figures
+    its members' lines (wear_laws.member_columns: hundreds of float arrays per quantity)."""
+    return FitColumns(table, laws)
 
 
 def with_member_lines(table: pd.DataFrame, laws: dict[str, LawFits]) -> pd.DataFrame:
@@ -84,6 +164,13 @@ def with_member_lines(table: pd.DataFrame, laws: dict[str, LawFits]) -> pd.DataF
         parts.append(table[list(run)] if own else pd.DataFrame(np.column_stack(list(run.values())), columns=list(run),
                                                                 index=table.index))
     return pd.concat(parts, axis=1)
+
+
+def _numbers(column: pd.Series) -> np.ndarray:
+    """A column as floats, what is not a number NaN (pd.to_numeric's coercion, skipped for a column of floats)."""
+    if isinstance(column.dtype, np.dtype) and column.dtype.kind == "f":  # numpy floats (not pandas' nullable ones)
+        return column.to_numpy(dtype=float)
+    return pd.to_numeric(column, errors="coerce").to_numpy(dtype=float)
 
 
 def fit_degradation(referred: pd.DataFrame, settings: AnalysisSettings | None = None,
@@ -118,14 +205,14 @@ def fit_degradation(referred: pd.DataFrame, settings: AnalysisSettings | None = 
     unique, group_all = pair_codes(referred["pump_id"].to_numpy(), referred["interval_no"].to_numpy())
     n_groups = len(unique)
 
-    hours = pd.to_numeric(referred["interval_hours"], errors="coerce").to_numpy(dtype=float)
+    hours = _numbers(referred["interval_hours"])
     valid_hours = np.isfinite(hours) & (hours >= 0)
     current_hours = group_max(group_all, np.where(valid_hours, hours, np.nan), n_groups)
     good = referred["flag"].isna().to_numpy() & valid_hours
 
     columns = {"pump_id": unique[:, 0], "interval_no": unique[:, 1], "current_hours": current_hours}
     # Hours run before the interval's hours count: the first interval's hour meter counts from new.
-    start_meter = pd.to_numeric(referred["interval_start_hours"], errors="coerce").to_numpy(dtype=float)
+    start_meter = _numbers(referred["interval_start_hours"])
     first_interval = referred["interval_no"].to_numpy() == 0
     offset = group_first(group_all, np.where(first_interval, start_meter, 0.0), n_groups)
     offset = np.maximum(np.where(np.isnan(offset), 0.0, offset), 0.0)
@@ -177,9 +264,11 @@ def fit_degradation(referred: pd.DataFrame, settings: AnalysisSettings | None = 
 
 def enough_data(n_points: np.ndarray, span_hours: np.ndarray, settings: AnalysisSettings) -> np.ndarray:
     """The minimum data for a pump's own trend: enough usable readings over enough running hours."""
-    n = np.nan_to_num(np.asarray(n_points, dtype=float))
-    span = np.nan_to_num(np.asarray(span_hours, dtype=float))
-    return (n >= settings.min_points) & (span >= settings.min_span_hours)
+    n = np.asarray(n_points, dtype=float)
+    span = np.asarray(span_hours, dtype=float)
+    # a missing count or span is none (np.nan_to_num's 0, without its checks: an infinite one compares alike)
+    return (np.where(np.isnan(n), 0.0, n) >= settings.min_points) & (
+        np.where(np.isnan(span), 0.0, span) >= settings.min_span_hours)
 
 
 def not_enough_reason(n_points: np.ndarray, span_hours: np.ndarray, settings: AnalysisSettings, what: str):
@@ -218,6 +307,7 @@ def summarise_fits(fits: pd.DataFrame, rated_flow_lpm: np.ndarray, max_flow_lpm:
         }
     # New columns joined once, not inserted one by one into a frame of some thousand columns.
     out = pd.concat([fits, pd.DataFrame(added, index=fits.index)], axis=1)
-    for q in QUANTITIES:  # a law is named only where there is a trend
-        out[f"{q}_wear_law"] = out[f"{q}_wear_law"].where(ok[q], None)
+    for q in QUANTITIES:  # a law is named only where there is a trend (as Series.where(ok, None), on the array)
+        name = f"{q}_wear_law"
+        out.isetitem(out.columns.get_loc(name), np.where(ok[q], fits[name].to_numpy(object), None))
     return out

@@ -82,8 +82,11 @@ def group_median(group: np.ndarray, values: np.ndarray, n_groups: int) -> np.nda
         return pd.Series(values).groupby(group).median().reindex(range(n_groups)).to_numpy(dtype=float)
     known = ~np.isnan(values)
     g, v = group[known], values[known]
-    by_value = np.argsort(v)  # then by group, stably: each group's values in order (two plain sorts)
-    v = v[by_value][np.argsort(g[by_value], kind="stable")]
+    if n_groups == 1:  # one group (a pump with one interval): its values sorted, its middle ones
+        v = np.sort(v)
+        n = len(v)
+        return np.array([(v[(n - 1) // 2] + v[n // 2]) / 2 if n else np.nan])
+    v = v[np.lexsort((v, g))]  # by group, then by value: each group's values in order
     counts = np.bincount(g, minlength=n_groups)
     starts = np.cumsum(counts) - counts
     has = counts > 0

@@ -6,15 +6,18 @@ trend crosses its limit, and the interval's hours; with these kept, the band is 
 """
 
 from collections.abc import Mapping
+from functools import lru_cache
 
 import numpy as np
 import pandas as pd
 
 from fleet.jsonvalues import json_ready
+from fleet.trend.grouped import pair_codes
 
 # Figures of the slip trend kept per interval besides its wear-law lines (columns of FleetAnalysis.fits).
 SLIP_FIGURES = ("n_points", "span_hours", "a", "b", "current_lpm", "start_lpm", "wear_law", "crossing_hours",
                 "crossing_low", "crossing_high", "enough_data")
+_BOOL = np.dtype(bool)
 DRAIN_FIGURES = ("n_points", "enough_data", "current_lpm", "crossing_hours", "crossing_low", "crossing_high")
 
 
@@ -30,25 +33,36 @@ def interval_trends(fits: Mapping, intervals: pd.DataFrame, confidence: float) -
     columns = ["pump_id", "interval_no", "is_current", "start_hours", "current_hours", "enough_data", "fit"]
     if len(fits["pump_id"]) == 0:
         return pd.DataFrame(columns=columns)
-    start = intervals.set_index(["pump_id", "interval_no"])[["start_hours", "is_current"]]
-    keys = pd.MultiIndex.from_arrays([np.asarray(fits["pump_id"]), np.asarray(fits["interval_no"])])
-    here = start.reindex(keys)
-    kept = [c for c in fits.keys() if c.startswith("slip_") and (
-        c.removeprefix("slip_") in SLIP_FIGURES or "_weight" in c or c.endswith(
-            ("_a", "_b", "_var_a", "_var_b", "_cov_ab", "_dof", "_hours_scale", "_hours_offset")))]
-    kept += [f"drain_{name}" for name in DRAIN_FIGURES if f"drain_{name}" in fits]
+    pump_id = np.asarray(fits["pump_id"], dtype=np.int64)
+    interval_no = np.asarray(fits["interval_no"], dtype=np.int64)
+    at = _rows_of(intervals["pump_id"].to_numpy(np.int64), intervals["interval_no"].to_numpy(np.int64), pump_id,
+                  interval_no)
+    found = at >= 0
+    pick = np.where(found, at, 0)  # a missing interval takes row 0's figures, then blanked (there is one if found)
+    if found.any():
+        is_current = found & _bools(intervals["is_current"])[pick]
+        start_hours = np.where(found, intervals["start_hours"].to_numpy(float)[pick], np.nan)
+    else:
+        is_current, start_hours = np.zeros(len(at), dtype=bool), np.full(len(at), np.nan)
+    kept = _kept(tuple(fits.keys()))
     # Every kept column as one object table (numbers NaN -> None, bools, JSON-ready text), numbers in one block:
     # a row's dict is then one zip, with no lookup or check per cell.
     n_rows = len(fits["pump_id"])
     table = np.empty((n_rows, len(kept)), dtype=object)
     # Each distinct dtype judged once (most columns are the members' float lines).
-    dtypes = [fits[name].dtype for name in kept]
+    # A mapping that knows its columns' dtypes and gives many float columns at once (degradation.FitColumns) is
+    # asked so; a frame, column by column.
+    column_dtype = getattr(fits, "column_dtype", None) or (lambda name: fits[name].dtype)
+    dtypes = [column_dtype(name) for name in kept]
     kinds = {dtype: ("bool" if pd.api.types.is_bool_dtype(dtype) else
                      "number" if pd.api.types.is_numeric_dtype(dtype) else "other") for dtype in set(dtypes)}
     kind = [kinds[dtype] for dtype in dtypes]
     numeric = [j for j, k in enumerate(kind) if k == "number"]
     if numeric:
-        numbers = np.column_stack([np.asarray(fits[kept[j]], dtype=float) for j in numeric])
+        if hasattr(fits, "floats"):
+            numbers = fits.floats([kept[j] for j in numeric])
+        else:
+            numbers = np.column_stack([np.asarray(fits[kept[j]], dtype=float) for j in numeric])
         table[:, numeric] = np.where(np.isfinite(numbers), numbers, None)
     for j, name in enumerate(kept):
         if kind[j] == "bool":
@@ -58,14 +72,45 @@ def interval_trends(fits: Mapping, intervals: pd.DataFrame, confidence: float) -
     keys = ["confidence", *kept]
     values = [dict(zip(keys, (confidence, *row), strict=True)) for row in table.tolist()]
     return pd.DataFrame({
-        "pump_id": np.asarray(fits["pump_id"], dtype=np.int64),
-        "interval_no": np.asarray(fits["interval_no"], dtype=np.int64),
-        "is_current": here["is_current"].astype("boolean").fillna(False).to_numpy(bool),
-        "start_hours": here["start_hours"].to_numpy(float),
+        "pump_id": pump_id,
+        "interval_no": interval_no,
+        "is_current": is_current,
+        "start_hours": start_hours,
         "current_hours": np.asarray(fits["current_hours"], dtype=float),
-        "enough_data": pd.Series(fits["slip_enough_data"]).astype("boolean").fillna(False).to_numpy(bool),
+        "enough_data": _bools(fits["slip_enough_data"]),
         "fit": values,
     }, columns=columns)
+
+
+@lru_cache(maxsize=8)
+def _kept(names: tuple) -> list:
+    """The columns of the fits kept per interval, in the fits' order: the slip's figures and wear-law lines, the
+    drain's summary figures."""
+    kept = [c for c in names if c.startswith("slip_") and (
+        c.removeprefix("slip_") in SLIP_FIGURES or "_weight" in c or c.endswith(
+            ("_a", "_b", "_var_a", "_var_b", "_cov_ab", "_dof", "_hours_scale", "_hours_offset")))]
+    present = set(names)
+    return kept + [f"drain_{name}" for name in DRAIN_FIGURES if f"drain_{name}" in present]
+
+
+def _bools(values) -> np.ndarray:
+    """Flags as plain bools, a missing one False (as pandas' nullable "boolean" filled with False)."""
+    if getattr(values, "dtype", None) == _BOOL:
+        return np.asarray(values, dtype=bool)
+    return pd.Series(values).astype("boolean").fillna(False).to_numpy(bool)
+
+
+def _rows_of(pump_ids: np.ndarray, interval_nos: np.ndarray, want_pump: np.ndarray, want_no: np.ndarray) -> np.ndarray:
+    """The row of each wanted (pump_id, interval_no) among the intervals' rows, -1 where there is none. The
+    intervals' keys are unique (a service interval is one row); a repeated key raises, as a reindex on it would."""
+    pairs, codes = pair_codes(np.concatenate([pump_ids, want_pump]), np.concatenate([interval_nos, want_no]))
+    own = codes[:len(pump_ids)]
+    if len(np.unique(own)) != len(own):
+        raise ValueError("cannot match the fits to the service intervals: an interval's (pump_id, interval_no) "
+                         "is repeated")
+    row = np.full(len(pairs), -1, dtype=np.int64)
+    row[own] = np.arange(len(own))
+    return row[codes[len(pump_ids):]]
 
 
 def fit_row(stored: dict, interval_no: int, start_hours, current_hours) -> pd.Series:

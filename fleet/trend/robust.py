@@ -15,7 +15,17 @@ from fleet.trend.settings import AnalysisSettings
 def robust_scale(group: np.ndarray, z: np.ndarray, n_groups: int) -> np.ndarray:
     """Per group 1.4826 x median |z| (MAD about the line), never below 1: the error model's own scatter."""
     mad = group_median(group, np.abs(z), n_groups)
-    return np.maximum(1.4826 * np.nan_to_num(mad, nan=1.0), 1.0)
+    # a group without values has no median: 1 (as np.nan_to_num(mad, nan=1.0), whose checks cost more here; an
+    # infinite median stays infinite either way once scaled)
+    return np.maximum(1.4826 * np.where(np.isnan(mad), 1.0, mad), 1.0)
+
+
+def huber_weights(u: np.ndarray, k: float) -> np.ndarray:
+    """Huber's weights of scaled residuals u: k / u beyond k, 1 within (and for a missing u). Divided only where
+    u is beyond k, so nothing can warn and no error state need be entered (on one pump's few hundred readings
+    that costs more than the division)."""
+    beyond = u > k
+    return np.where(beyond, k / np.where(beyond, u, 1.0), 1.0)
 
 
 def fit_reweighted(
@@ -76,8 +86,7 @@ def fit_reweighted(
             moving = np.flatnonzero(~done[group]) if done.any() else slice(None)
             g_m, z_m = group[moving], z[moving]
             u = np.abs(z_m) / robust_scale(g_m, z_m, n_groups)[g_m]
-            with np.errstate(divide="ignore", invalid="ignore"):
-                pass_w = np.where(u > k, k / u, 1.0)
+            pass_w = huber_weights(u, k)
             a_new, b_new, x_mean_new = grouped_line(g_m, x[moving], y_used[moving], model_w[moving] * pass_w,
                                                     n_groups)
             a, b, x_mean = np.where(done, a, a_new), np.where(done, b, b_new), np.where(done, x_mean, x_mean_new)
@@ -90,8 +99,7 @@ def fit_reweighted(
         y_used = y + bias * variance
         z = (y_used - np.where(ok, fitted, y_used)) * np.sqrt(model_w)
         u = np.abs(z) / robust_scale(group, z, n_groups)[group]
-        with np.errstate(divide="ignore", invalid="ignore"):
-            robust_w = np.where(u > k, k / u, 1.0)
+        robust_w = huber_weights(u, k)
 
     z = (y_used - (a[group] + b[group] * x)) * np.sqrt(model_w)
     clip_at = k * robust_scale(group, z, n_groups)[group]

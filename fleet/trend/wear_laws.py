@@ -33,6 +33,7 @@ slip's own readings refute that shape; the slip's band stays its own.
 import dataclasses
 import warnings
 from dataclasses import dataclass, field
+from functools import lru_cache
 
 import numpy as np
 import pandas as pd
@@ -40,7 +41,7 @@ from scipy import special, stats
 
 from fleet.trend.grouped import group_max, group_min
 from fleet.trend.linear import t_quantile
-from fleet.trend.robust import fit_reweighted, robust_scale
+from fleet.trend.robust import fit_reweighted, huber_weights, robust_scale
 from fleet.trend.settings import AnalysisSettings
 
 LAWS = ("exponential", "linear", "power", "run_in")
@@ -91,6 +92,22 @@ _RUN_IN_SCALE = -np.expm1(-1.0 / _RUN_IN_TAUS)  # 1 - e^(-1/tau): a run-in membe
 assert [(m.tau, m.share) for m in MEMBERS if m.law == "run_in"] == [
     (t, sh) for t in RUN_IN_TAUS for sh in RUN_IN_SHARES]
 FAMILIES = ("power", "run_in")  # laws with many members, fitted in one weighted pass each
+# Each law's members as a mask over MEMBERS, made once (a list over the members per call costs more than the
+# arithmetic on one pump's few rows); read-only, shared by every call.
+OF_LAW = {law: np.array([m.law == law for m in MEMBERS]) for law in LAWS}
+for _mask in OF_LAW.values():
+    _mask.setflags(write=False)
+_RUN_IN_TAU_OF_MEMBER = np.array([m.tau if m.law == "run_in" else np.nan for m in MEMBERS])
+_N_PARAMS = np.array([m.n_params for m in MEMBERS], dtype=float)
+
+
+def _columns_of(law: str) -> slice:
+    cols = np.flatnonzero(OF_LAW[law])
+    assert np.array_equal(cols, np.arange(cols[0], cols[-1] + 1))  # a family's members stand together
+    return slice(int(cols[0]), int(cols[-1]) + 1)
+
+
+_FAMILY_COLUMNS = {family: _columns_of(family) for family in FAMILIES}
 FIELDS = ("a", "b", "var_a", "var_b", "cov_ab", "dof", "weight")
 CENTRE_FIELDS = ("centre_a", "centre_b")  # LawFits.centred_on
 
@@ -139,24 +156,23 @@ class LawFits:
         law_w = akaike_weights(law_score, fallback=LAWS.index(self.allowed[0]))
         weight = np.zeros(self.a.shape)
         for k, law in enumerate(LAWS):
-            of_law = np.array([m.law == law for m in MEMBERS])
+            of_law = OF_LAW[law]
             score = member_score[:, of_law] - (0.0 if log_prior is None else 2.0 * log_prior[:, of_law])
             within = akaike_weights(score) if law in FAMILIES else 1.0
-            weight[:, of_law] = law_w[:, [k]] * within
+            weight[:, of_law] = law_w[:, k:k + 1] * within
         weight = np.where(self.usable, weight, 0.0)
         # A member with under a millionth of the heaviest one's weight moves no forecast (all of them together
         # hold under 1e-4 of the probability); dropping them spares the forecasts their evaluation.
         weight = np.where(weight >= 1e-6 * weight.max(axis=1, keepdims=True, initial=0.0), weight, 0.0)
         total = weight.sum(axis=1, keepdims=True)
-        with np.errstate(invalid="ignore", divide="ignore"):
-            fitted = self.usable.any(axis=1, keepdims=True) & (total > 0)
-            self.weight = np.where(fitted, weight / np.where(total > 0, total, 1.0), 0.0)
+        fitted = self.usable.any(axis=1, keepdims=True) & (total > 0)  # divided only by a positive total
+        self.weight = np.where(fitted, weight / np.where(total > 0, total, 1.0), 0.0)
 
     def __len__(self) -> int:
         return len(self.hours_scale)
 
     def law_weights(self) -> dict[str, np.ndarray]:
-        return {law: self.weight[:, [m.law == law for m in MEMBERS]].sum(axis=1) for law in LAWS}
+        return {law: self.weight[:, OF_LAW[law]].sum(axis=1) for law in LAWS}
 
     def centred(self) -> "LawFits":
         """The fits with each member's line moved to the line the forecast follows (centre_a, centre_b), its
@@ -210,22 +226,17 @@ class LawFits:
             start = stop
         self.centre_a, self.centre_b = centre_a, centre_b
 
-    def to_columns(self, prefix: str) -> dict[str, np.ndarray]:
-        cols = {
-            f"{prefix}_hours_scale": self.hours_scale,
-            f"{prefix}_hours_offset": self.hours_offset,
-        }
+    def line_fields(self) -> tuple:
+        """The fields kept of each member (member_columns): FIELDS, and the centred lines and weights where set."""
         centre = CENTRE_FIELDS if self.centre_a is not None else ()
         if self.centre_weight is not None:
             centre = (*centre, "centre_weight")
-        for j, m in enumerate(MEMBERS):
-            for f in (*FIELDS, *centre):
-                cols[f"{prefix}_{m.name}_{f}"] = getattr(self, f)[:, j]
-        return cols
+        return (*FIELDS, *centre)
 
     @classmethod
     def from_columns(cls, frame, prefix: str) -> "LawFits":
-        """Back from to_columns; `frame` may be a DataFrame (many groups) or one row (a Series or dict)."""
+        """Back from the columns of member_columns (FleetAnalysis.fits' members' lines); `frame` may be a DataFrame
+        (many groups) or one row (a Series or dict)."""
 
         def col(name):
             return np.atleast_1d(np.asarray(frame[f"{prefix}_{name}"], dtype=float))
@@ -245,6 +256,21 @@ class LawFits:
             hours_scale=col("hours_scale"),
             hours_offset=col("hours_offset"),
         )
+
+
+@lru_cache(maxsize=16)
+def member_columns(prefix: str, fields: tuple) -> dict:
+    """The columns of a trend's fitted laws in FleetAnalysis.fits, in order: <prefix>_hours_scale,
+    <prefix>_hours_offset, then <prefix>_<member>_<field> for every member and each of ``fields``
+    (LawFits.line_fields), each with where its values are: (prefix, field, member index or None for a per-group
+    array, and a member's column among the fields' arrays side by side, as degradation.FitColumns.floats lays
+    them). LawFits.from_columns reads them back."""
+    names = {f"{prefix}_hours_scale": (prefix, "hours_scale", None, None),
+             f"{prefix}_hours_offset": (prefix, "hours_offset", None, None)}
+    for j, m in enumerate(MEMBERS):
+        for k, f in enumerate(fields):
+            names[f"{prefix}_{m.name}_{f}"] = (prefix, f, j, k * len(MEMBERS) + j)
+    return names
 
 
 _PAIR_ROWS = 1 << 18  # readings x pairs worked on at once by LawFits.centred_on (bounds its memory)
@@ -370,10 +396,8 @@ def _fit_family_members(family, group, hours, q, sigma, robust_w, clip, hours_sc
     order = np.flatnonzero(keep)
     order = order[np.argsort(group[order], kind="stable")]
     group, hours, q, sigma, robust_w = group[order], hours[order], q[order], sigma[order], robust_w[order]
-    cols = np.flatnonzero([m.law == family for m in MEMBERS])
-    assert np.array_equal(cols, np.arange(cols[0], cols[-1] + 1))  # a family's members stand together
-    cols = slice(cols[0], cols[-1] + 1)
-    n_params = np.array([m.n_params for m in MEMBERS[cols]], dtype=float)
+    cols = _FAMILY_COLUMNS[family]
+    n_params = _N_PARAMS[cols]
     model_w = 1.0 / sigma**2
     w = model_w * robust_w
     count = np.bincount(group, minlength=n_groups).astype(float)
@@ -451,7 +475,7 @@ def _fit_family_members(family, group, hours, q, sigma, robust_w, clip, hours_sc
 
 def _best_family_huber(family, group, hours, q, sigma, out, deviance, hours_scale, offset, n_groups, settings):
     """Huber weights of each reading about its group's best-fitting line of the family (smallest deviance)."""
-    of_family = np.array([m.law == family for m in MEMBERS])
+    of_family = OF_LAW[family]
     family_dev = np.where(np.isfinite(deviance[:, of_family]), deviance[:, of_family], np.inf)
     best = np.flatnonzero(of_family)[np.argmin(family_dev, axis=1)]
     fitted = np.full(len(q), np.nan)
@@ -468,8 +492,7 @@ def _best_family_huber(family, group, hours, q, sigma, out, deviance, hours_scal
         fitted[at] = out["a"][g, j] + out["b"][g, j] * x
     z = (q - fitted) / sigma
     u = np.abs(z) / robust_scale(group, z, n_groups)[group]
-    with np.errstate(invalid="ignore", divide="ignore"):
-        return np.where(u > settings.huber_k, settings.huber_k / u, 1.0)
+    return huber_weights(u, settings.huber_k)
 
 
 def run_in_identifiable(group, hours, hours_scale, offset, n_groups) -> np.ndarray:
@@ -479,7 +502,7 @@ def run_in_identifiable(group, hours, hours_scale, offset, n_groups) -> np.ndarr
     ok = np.ones((n_groups, len(MEMBERS)), dtype=bool)
     with np.errstate(invalid="ignore", divide="ignore"):
         u = (hours + offset[group]) / hours_scale[group]
-    taus = np.array([m.tau if m.law == "run_in" else np.nan for m in MEMBERS])
+    taus = _RUN_IN_TAU_OF_MEMBER
     for tau in dict.fromkeys(taus[np.isfinite(taus)]):
         ok[:, taus == tau] = (np.bincount(group, u <= RUN_IN_REACH * tau, minlength=n_groups) >= 2)[:, None]
     return ok
@@ -533,7 +556,7 @@ def _mad_scale(group, z, n_groups) -> np.ndarray:
 def aicc(n, n_params, deviance) -> np.ndarray:
     """Small-sample AIC of a least-squares fit: n ln(D / n) + 2K + 2K(K + 1) / (n - K - 1); NaN if n <= K + 1."""
     n = np.asarray(n, dtype=float)
-    k = float(n_params)
+    k = np.asarray(n_params, dtype=float)  # one K, or one per column
     ok = (n - k - 1.0 > 0) & np.isfinite(deviance) & (np.asarray(deviance) > 0)
     with np.errstate(invalid="ignore", divide="ignore"):
         value = n * np.log(np.asarray(deviance, dtype=float) / n) + 2 * k + 2 * k * (k + 1) / (n - k - 1)
@@ -548,13 +571,14 @@ def akaike_weights(criterion: np.ndarray, fallback: int = 0) -> np.ndarray:
     c = np.atleast_2d(np.asarray(criterion, dtype=float))
     finite = np.isfinite(c)
     best = np.min(np.where(finite, c, np.inf), axis=1, keepdims=True)
-    with np.errstate(invalid="ignore", over="ignore"):
-        raw = np.where(finite, np.exp(-0.5 * (c - np.where(np.isfinite(best), best, 0.0))), 0.0)
+    best = np.where(np.isfinite(best), best, 0.0)
+    # exp of each finite entry's -delta / 2 (<= 0: nothing can overflow), the others' weight 0; a sum of such
+    # terms divided only where it is positive: no error state need be entered
+    raw = np.where(finite, np.exp(-0.5 * (np.where(finite, c, best) - best)), 0.0)
     total = raw.sum(axis=1, keepdims=True)
     alone = np.zeros_like(c)
     alone[:, fallback] = 1.0
-    with np.errstate(invalid="ignore", divide="ignore"):
-        return np.where(total > 0, raw / np.where(total > 0, total, 1.0), alone)
+    return np.where(total > 0, raw / np.where(total > 0, total, 1.0), alone)
 
 
 def fit_wear_laws(
@@ -620,11 +644,11 @@ def fit_wear_laws(
     # lose their weight).
     robust_w = np.fmax(huber["exponential"], huber["linear"])
     identifiable = run_in_identifiable(group, hours, hours_scale, offset, n_groups)
-    allowed = np.array([m.law in settings.wear_laws for m in MEMBERS])
+    allowed = _allowed_members(tuple(settings.wear_laws))
     for family in FAMILIES:
         if family not in settings.wear_laws:
             continue
-        of_family = np.array([m.law == family for m in MEMBERS])
+        of_family = OF_LAW[family]
         _fit_family_members(family, group, hours, q, sigma, robust_w, clip, hours_scale, offset, n_groups, out,
                             deviance)
         deviance = np.where(identifiable, deviance, np.nan)
@@ -642,7 +666,7 @@ def fit_wear_laws(
     deviance = np.where(usable, np.maximum(deviance, 1e-12 * count[:, None]), np.nan)
     with np.errstate(invalid="ignore", divide="ignore"):
         fit_term = count[:, None] * np.log(deviance / count[:, None])
-    law_score = np.column_stack([_law_aicc(law, count, deviance) for law in LAWS])
+    law_score = _law_scores(count, deviance)
     member_score = fit_term
     if settings.law_weighting == "held_back":
         held = _held_back_scores(
@@ -670,16 +694,32 @@ def fit_wear_laws(
     return laws
 
 
-def _law_aicc(law: str, count, deviance) -> np.ndarray:
-    """AICc of a law on its best member's deviance (NaN where no member is usable)."""
-    of_law = np.array([m.law == law for m in MEMBERS])
-    best = np.min(np.where(np.isfinite(deviance[:, of_law]), deviance[:, of_law], np.inf), axis=1)
-    return aicc(count, LAW_PARAMS[law], np.where(np.isfinite(best), best, np.nan))
+@lru_cache(maxsize=8)
+def _allowed_members(laws: tuple) -> np.ndarray:
+    """The members of the laws compared (AnalysisSettings.wear_laws), as a read-only mask over MEMBERS."""
+    allowed = np.array([m.law in laws for m in MEMBERS])
+    allowed.setflags(write=False)
+    return allowed
+
+
+# Where each law's members start in MEMBERS (they stand together, law after law) and each law's K (_law_scores).
+_LAW_STARTS = np.array([np.flatnonzero(OF_LAW[law])[0] for law in LAWS])
+assert all(np.array_equal(np.flatnonzero(OF_LAW[law]), np.arange(start, end)) for law, start, end in zip(
+    LAWS, _LAW_STARTS, [*_LAW_STARTS[1:], len(MEMBERS)], strict=True))
+_LAW_K = np.array([float(LAW_PARAMS[law]) for law in LAWS])
+
+
+def _law_scores(count, deviance) -> np.ndarray:
+    """Per group and law (columns as LAWS) the AICc of the law on its best member's deviance (NaN where no member is
+    usable): each law's best member by one reduce over its run of columns, every law's K side by side (the same
+    arithmetic per value as one law at a time, which tests/test_trend_law_scores.py keeps as the reference)."""
+    best = np.minimum.reduceat(np.where(np.isfinite(deviance), deviance, np.inf), _LAW_STARTS, axis=1)
+    return aicc(np.asarray(count, dtype=float)[:, None], _LAW_K[None, :], np.where(np.isfinite(best), best, np.nan))
 
 
 def _family_criterion(member_crit, law: str) -> np.ndarray:
     """A law's held-back criterion: its one member's, or for a family -2 ln of its members' mean likelihood."""
-    of_law = np.array([m.law == law for m in MEMBERS])
+    of_law = OF_LAW[law]
     crit = member_crit[:, of_law]
     if crit.shape[1] == 1:
         return crit[:, 0]
