@@ -38,7 +38,13 @@ from fleet.trend.remaining_life import (
 from fleet.trend.settings import AnalysisSettings
 from fleet.trend.status import assess_status, horizon_remaining_hours
 from fleet.trend.wear_laws import LAWS, MEMBERS
-from fleet.trend.weibull import expected_overhauls, fit_fleet_priors, mean_residual_life
+from fleet.trend.weibull import (
+    expected_overhauls_per_prior,
+    fit_fleet_priors,
+    kind_rows,
+    mean_residual_life,
+    per_pump,
+)
 
 KEYS = ["pump_id", "interval_no"]
 
@@ -472,11 +478,11 @@ def prior_figures(kinds, age_hours, horizon_hours, priors: pd.DataFrame):
     fleet_priors = priors.copy()
     kinds = np.asarray(kinds, dtype=object)
     age = np.asarray(age_hours, dtype=float)
-    kind_prior = fleet_priors.reindex(kinds)
-    hours = mean_residual_life(age, kind_prior["beta"].to_numpy(float), kind_prior["alpha"].to_numpy(float))
-    expected = expected_overhauls(age, np.asarray(horizon_hours, dtype=float), kinds, fleet_priors)
-    fleet_priors["expected_overhauls_in_horizon"] = expected.reindex(fleet_priors.index)
-    return hours, kind_prior["b10_hours"].to_numpy(float), fleet_priors
+    rows = kind_rows(fleet_priors, kinds)  # each pump's kind among the priors (-1: none, NaN figures)
+    hours = mean_residual_life(age, per_pump(fleet_priors, "beta", rows), per_pump(fleet_priors, "alpha", rows))
+    fleet_priors["expected_overhauls_in_horizon"] = expected_overhauls_per_prior(
+        age, np.asarray(horizon_hours, dtype=float), kinds, fleet_priors, rows)
+    return hours, per_pump(fleet_priors, "b10_hours", rows), fleet_priors
 
 
 def _data_note(res: Mapping, current_iv: pd.DataFrame, cur: pd.DataFrame, s: AnalysisSettings) -> np.ndarray:
