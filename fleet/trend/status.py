@@ -9,7 +9,7 @@ import numpy as np
 import pandas as pd
 
 from fleet.horizon import BEYOND_WORDS, is_beyond
-from fleet.trend.oil_condition import lab_days_waiting, lab_late_sentence
+from fleet.trend.oil_condition import column_floats, lab_days_waiting, lab_late_sentence
 from fleet.trend.referral import NO_LEAKAGE_MEASURED
 from fleet.trend.settings import AnalysisSettings
 
@@ -29,27 +29,8 @@ def _col(frame: pd.DataFrame, name: str, default=np.nan) -> np.ndarray:
     return np.full(len(frame), default, dtype=dtype)
 
 
-_PLAIN_NUMBER_TYPES = frozenset({float, int, type(None), np.float64, np.int64})
-
-
-def _numbers(values: np.ndarray) -> np.ndarray:
-    """Values as floats, as pd.to_numeric(errors="coerce") reads them: numpy numbers and object columns of plain
-    numbers and None (a setting per pump) by a cast, anything else through pandas."""
-    if values.dtype.kind in "fiub":
-        return values.astype(float)
-    if values.dtype == object and all(type(v) in _PLAIN_NUMBER_TYPES for v in values):
-        return values.astype(float)
-    return pd.to_numeric(pd.Series(values, dtype=values.dtype if values.dtype.kind != "U" else object),
-                         errors="coerce").to_numpy(dtype=float)
-
-
 def _num(frame: pd.DataFrame, name: str) -> np.ndarray:
-    if name not in frame:
-        return np.full(len(frame), np.nan)
-    column = frame[name]
-    if isinstance(column.dtype, np.dtype):
-        return _numbers(column.to_numpy())
-    return pd.to_numeric(column, errors="coerce").to_numpy(dtype=float)
+    return column_floats(frame[name]) if name in frame else np.full(len(frame), np.nan)
 
 
 def _flag(frame: pd.DataFrame, name: str, missing: bool = False) -> np.ndarray:
