@@ -364,3 +364,23 @@ def test_horizon_hours_equal_the_series_reference(unit):
     as_text = frame.assign(last_reading_at=frame["last_reading_at"].astype(str).where(frame["last_reading_at"].notna()))
     left, _ = horizon_remaining_hours(as_text, now)
     assert left.tobytes() == _reference_horizon(as_text, now)[0].tobytes()
+
+
+def test_status_and_priors_of_a_mapping_of_columns_are_those_of_the_frame(fleet):
+    """Reference: the same results as a frame. The engine may give its columns before it frames them, as a dict
+    of Series or of arrays; apply_priors sets its columns into the dict as into the frame."""
+    from fleet.trend.engine import apply_priors
+
+    analysis, now = fleet
+    res = analysis.results.drop(columns=STATUS_COLUMNS)
+    want = assess_status(res, now, AnalysisSettings())
+    for columns in ({name: column for name, column in res.items()},
+                    {name: column.to_numpy() for name, column in res.items()}):
+        got = assess_status(columns, now, AnalysisSettings())
+        pd.testing.assert_frame_equal(got.set_axis(res.index), want, check_exact=True)
+        framed = res.copy()
+        want_priors = apply_priors(framed, analysis.priors, now)
+        got_priors = apply_priors(columns, analysis.priors, now)
+        pd.testing.assert_frame_equal(got_priors, want_priors, check_exact=True)
+        for name in ("planning_horizon_hours", "prior_hours_to_overhaul", "prior_b10_hours"):
+            assert np.asarray(columns[name]).tobytes() == framed[name].to_numpy().tobytes()

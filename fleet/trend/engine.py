@@ -451,17 +451,18 @@ def fit_priors(intervals: pd.DataFrame, kind_of_pump: pd.Series, settings: Analy
     return fit_fleet_priors(interval_lives(intervals), kind_of_pump, settings.min_weibull_failures)
 
 
-def apply_priors(res: pd.DataFrame, priors: pd.DataFrame, now) -> pd.DataFrame:
+def apply_priors(res: pd.DataFrame | dict, priors: pd.DataFrame, now) -> pd.DataFrame:
     """Set each pump's prior figures (in place) from its kind's fleet Weibull, and its planning horizon in running
     hours; return the priors with the expected overhauls of ``res``'s pumps in their planning horizon.
 
-    res needs kind, age_hours and what horizon_remaining_hours reads. Nothing else of a pump's analysis
-    depends on the priors, so a fleet analysed in parts can be given the whole fleet's priors afterwards.
+    res (a frame, or a dict of column names to Series or arrays) needs kind, age_hours and what
+    horizon_remaining_hours reads. Nothing else of a pump's analysis depends on the priors, so a fleet analysed in
+    parts can be given the whole fleet's priors afterwards.
     """
     _, horizon_h = horizon_remaining_hours(res, pd.Timestamp(now))
     res["planning_horizon_hours"] = horizon_h
-    hours, b10, fleet_priors = prior_figures(res["kind"].to_numpy(), res["age_hours"].to_numpy(float), horizon_h,
-                                             priors)
+    hours, b10, fleet_priors = prior_figures(np.asarray(res["kind"], dtype=object),
+                                             np.asarray(res["age_hours"], dtype=float), horizon_h, priors)
     res["prior_hours_to_overhaul"], res["prior_b10_hours"] = hours, b10
     return fleet_priors
 

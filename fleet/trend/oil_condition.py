@@ -118,11 +118,12 @@ def plain_floats(values: np.ndarray) -> np.ndarray:
                          errors="coerce").to_numpy(dtype=float)
 
 
-def column_floats(column: pd.Series) -> np.ndarray:
-    """A column as floats, as pd.to_numeric(errors="coerce") reads it (numbers already: no parse)."""
+def column_floats(column) -> np.ndarray:
+    """A column (a Series or an array) as floats, as pd.to_numeric(errors="coerce") reads it (numbers already: no
+    parse)."""
     if isinstance(column.dtype, np.dtype):
-        return plain_floats(column.to_numpy())
-    return pd.to_numeric(column, errors="coerce").to_numpy(float)
+        return plain_floats(np.asarray(column))
+    return pd.to_numeric(pd.Series(column), errors="coerce").to_numpy(float)
 
 
 def oil_temperatures(readings: pd.DataFrame, settings: AnalysisSettings) -> tuple[np.ndarray, dict]:

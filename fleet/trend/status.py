@@ -5,6 +5,8 @@ watch: something needs a look (fast decline, case drain jump, oil, overdue readi
 little data). healthy: none of these, said with the figures that show it.
 """
 
+from collections.abc import Mapping
+
 import numpy as np
 import pandas as pd
 
@@ -18,29 +20,38 @@ LIMIT_WORDS = {"eta_v": "volumetric efficiency", "case_drain": "case drain"}
 FALLBACK_HOURS_PER_DAY = 24.0  # with no hour-meter history, assume continuous running (the earliest date)
 
 
-def _col(frame: pd.DataFrame, name: str, default=np.nan) -> np.ndarray:
+def _rows(frame: Mapping) -> int:
+    """How many pumps: a frame's rows, or the length of a mapping's columns."""
+    if isinstance(frame, pd.DataFrame):
+        return len(frame)
+    return len(next(iter(frame.values()))) if len(frame) else 0
+
+
+def _col(frame: Mapping, name: str, default=np.nan) -> np.ndarray:
     """A column's values as an array (``default`` in every row when the frame has no such column).
 
     Taken once per column and worked on as arrays: for the one pump of a write, a pandas operation on a Series of
-    one row costs far more than its arithmetic, and for a fleet the arrays are what pandas would work on anyway."""
+    one row costs far more than its arithmetic, and for a fleet the arrays are what pandas would work on anyway.
+    ``frame``: a DataFrame, or a mapping of column names to Series or arrays (the engine's columns before it frames
+    them)."""
     if name in frame:
-        return frame[name].to_numpy()
+        return np.asarray(frame[name])
     dtype = float if isinstance(default, float) else bool if isinstance(default, bool) else object
-    return np.full(len(frame), default, dtype=dtype)
+    return np.full(_rows(frame), default, dtype=dtype)
 
 
-def _num(frame: pd.DataFrame, name: str) -> np.ndarray:
-    return column_floats(frame[name]) if name in frame else np.full(len(frame), np.nan)
+def _num(frame: Mapping, name: str) -> np.ndarray:
+    return column_floats(frame[name]) if name in frame else np.full(_rows(frame), np.nan)
 
 
-def _flag(frame: pd.DataFrame, name: str, missing: bool = False) -> np.ndarray:
+def _flag(frame: Mapping, name: str, missing: bool = False) -> np.ndarray:
     """A column as bools, a missing value (and a missing column) read as ``missing``."""
     if name not in frame:
-        return np.full(len(frame), missing, dtype=bool)
+        return np.full(_rows(frame), missing, dtype=bool)
     column = frame[name]
     if column.dtype == np.bool_:  # plain numpy bools have no missing value to fill
-        return column.to_numpy(dtype=bool)
-    return column.astype("boolean").fillna(missing).to_numpy(dtype=bool)
+        return np.asarray(column, dtype=bool)
+    return pd.Series(column).astype("boolean").fillna(missing).to_numpy(dtype=bool)
 
 
 def _date(value) -> str:
@@ -97,7 +108,7 @@ def _days_since(last_at: np.ndarray, now) -> np.ndarray:
     return ((stamp - times).dt.total_seconds() / 86400.0).to_numpy(dtype=float)
 
 
-def horizon_remaining_hours(results: pd.DataFrame, now) -> tuple[np.ndarray, np.ndarray]:
+def horizon_remaining_hours(results: Mapping, now) -> tuple[np.ndarray, np.ndarray]:
     """(hours left from now to the governing limit, hours in the planning horizon) per pump."""
     return _horizon_hours(_num(results, "hours_per_day"), _col(results, "last_reading_at", pd.NaT),
                           _num(results, "hours_to_limit"), _num(results, "planning_horizon_weeks"), now)
@@ -113,8 +124,9 @@ def _horizon_hours(per_day, last_at, hours_to_limit, horizon_weeks, now) -> tupl
     return left, horizon
 
 
-def assess_status(results: pd.DataFrame, now, settings: AnalysisSettings) -> pd.DataFrame:
-    """status, reasons (list of sentences) and rank (1..N, the service-list order) for every pump."""
+def assess_status(results: Mapping, now, settings: AnalysisSettings) -> pd.DataFrame:
+    """status, reasons (list of sentences) and rank (1..N, the service-list order) for every pump; ``results``: a
+    frame (its index kept), or a mapping of column names to Series or arrays (an index 0..N-1)."""
     r = results
     eta, eta_lim = _num(r, "eta_v_ref"), _num(r, "eta_v_limit")
     drain, drain_lim = _num(r, "drain_pct_ref"), _num(r, "drain_limit_pct")
@@ -331,11 +343,12 @@ def assess_status(results: pd.DataFrame, now, settings: AnalysisSettings) -> pd.
         )
     ]
     all_reasons = reasons_past + reasons_crossed + reasons_due + reasons_shape + reasons_watch + reasons_healthy
-    reasons = [[s for s in row if s is not None] for row in zip(*all_reasons, strict=True)] if len(r) else []
+    reasons = [[s for s in row if s is not None] for row in zip(*all_reasons, strict=True)] if _rows(r) else []
 
     keys = _order_keys(status, _num(r, "past_margin"), _col(r, "limit_date_low", pd.NaT), hours_to_limit,
                        _col(r, "pump", ""))
-    return pd.DataFrame({"status": status, "reasons": reasons, "rank": _ranks(keys)}, index=r.index)
+    return pd.DataFrame({"status": status, "reasons": reasons, "rank": _ranks(keys)},
+                        index=r.index if isinstance(r, pd.DataFrame) else None)
 
 
 def _sortable_float(values: np.ndarray) -> np.ndarray:
