@@ -182,10 +182,20 @@ def oil_condition(
     A lab result belongs to a reservoir (machine), so each pump takes its current machine's latest result.
     Water above the limit: common practice, no source (about 400-500 ppm for mineral oil).
 
-    Plain arrays per pump (taken by position from the machines' and the readings' figures), framed once.
+    Plain arrays per pump (taken by position from the machines' and the readings' figures, oil_columns), framed
+    once.
     """
     index = pd.Index(pumps["pump_id"].to_numpy(), name="pump_id")
-    n = len(index)
+    columns = oil_columns(pumps, readings, samples, now, settings)
+    columns["cleanliness_target"] = columns["cleanliness_target"].set_axis(index)
+    return pd.DataFrame(columns, index=index)
+
+
+def oil_columns(pumps: pd.DataFrame, readings: pd.DataFrame, samples, now, settings: AnalysisSettings) -> dict:
+    """oil_condition's OIL_COLUMNS as a dict, in the pumps' order: arrays, and the pumps' cleanliness_target
+    column as they have it (a Series, its dtype kept)."""
+    pump_ids = pumps["pump_id"].to_numpy()
+    n = len(pump_ids)
     if samples is None or len(samples) == 0:
         no_time = np.full(n, np.datetime64("NaT"), dtype=_no_time_dtype())
         lab = {"sample_sampled_at": no_time, "sample_reported_at": no_time, "lab_pending_since": no_time,
@@ -198,7 +208,7 @@ def oil_condition(
                             np.datetime64("NaT") if values.dtype.kind == "M" else np.nan)
                for name, values in columns.items()}
     with_temps, temps = oil_temperatures(readings, settings)
-    at = _positions(with_temps, index.to_numpy())
+    at = _positions(with_temps, pump_ids)
     temps = {name: _taken(values, at, np.nan) for name, values in temps.items()}
 
     codes = np.column_stack([lab["c4"], lab["c6"], lab["c14"]])
@@ -213,25 +223,22 @@ def oil_condition(
     nu_typical = np.asarray(kinematic_viscosity_cst(typical, temps["nu40"], temps["nu100"]))
     last_temp = temps["oil_temp_c"]
     water = lab["water_ppm"]
-    return pd.DataFrame(
-        {
-            "sample_sampled_at": lab["sample_sampled_at"],
-            "sample_reported_at": lab["sample_reported_at"],
-            "cleanliness_code": code_text,
-            "cleanliness_target": target.set_axis(index),
-            "cleanliness_steps_over": steps,
-            "low_count": lab["low_count"],
-            "water_ppm": water,
-            "water_high": water > settings.water_limit_ppm,
-            "lab_late": lab["lab_late"],
-            "lab_pending_since": lab["lab_pending_since"],
-            "oil_temp_c": last_temp,
-            "oil_temp_typical_c": typical,
-            "oil_hot": last_temp > column_floats(pumps["oil_temp_max_c"]),
-            "oil_cold": last_temp < column_floats(pumps["oil_temp_min_c"]),
-            "oil_life_factor": np.asarray(oil_life_factor(typical), dtype=float),
-            "viscosity_typical_cst": nu_typical,
-            "viscosity_window": np.where(np.isfinite(nu_typical), np.asarray(viscosity_window_flag(nu_typical)), None),
-        },
-        index=index,
-    )
+    return {
+        "sample_sampled_at": lab["sample_sampled_at"],
+        "sample_reported_at": lab["sample_reported_at"],
+        "cleanliness_code": code_text,
+        "cleanliness_target": target,
+        "cleanliness_steps_over": steps,
+        "low_count": lab["low_count"],
+        "water_ppm": water,
+        "water_high": water > settings.water_limit_ppm,
+        "lab_late": lab["lab_late"],
+        "lab_pending_since": lab["lab_pending_since"],
+        "oil_temp_c": last_temp,
+        "oil_temp_typical_c": typical,
+        "oil_hot": last_temp > column_floats(pumps["oil_temp_max_c"]),
+        "oil_cold": last_temp < column_floats(pumps["oil_temp_min_c"]),
+        "oil_life_factor": np.asarray(oil_life_factor(typical), dtype=float),
+        "viscosity_typical_cst": nu_typical,
+        "viscosity_window": np.where(np.isfinite(nu_typical), np.asarray(viscosity_window_flag(nu_typical)), None),
+    }
