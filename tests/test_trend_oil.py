@@ -4,7 +4,7 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from fleet.trend.oil_condition import latest_lab_results, oil_condition
+from fleet.trend.oil_condition import _positions, column_floats, latest_lab_results, oil_condition, plain_floats
 from fleet.trend.settings import AnalysisSettings
 
 NOW = pd.Timestamp("2025-06-30")
@@ -68,3 +68,29 @@ def test_pump_takes_its_machines_result_against_its_own_target():
     assert oil.loc[10, "viscosity_window"] == "thin"
     assert pd.isna(oil.loc[11, "cleanliness_code"]) and oil.loc[11, "lab_late"]
     assert oil.loc[11, "oil_life_factor"] == 1.0  # no credit below 60 degC
+
+
+def test_numbers_read_as_pandas_to_numeric_reads_them():
+    """Reference: pd.to_numeric(errors="coerce"), which the plain casts stand in for (numpy numbers, objects that
+    are all plain numbers or None) and which reads everything else itself."""
+    columns = [
+        pd.Series([1.5, np.nan, -0.0]), pd.Series([3, 4, 5]), pd.Series([True, False, True]),
+        pd.Series([None, 2, 7.25], dtype=object), pd.Series([np.int64(2), np.float64(0.1), None], dtype=object),
+        pd.Series(["1.5", None, "x"], dtype=object), pd.Series([True, None, 1.0], dtype=object),
+        pd.Series([1.0, None, 3.0], dtype="Float64"), pd.Series([], dtype=object),
+    ]
+    for column in columns:
+        want = pd.to_numeric(column, errors="coerce").to_numpy(dtype=float)
+        assert column_floats(column).tobytes() == want.tobytes(), column.tolist()
+        if isinstance(column.dtype, np.dtype):
+            assert plain_floats(column.to_numpy()).tobytes() == want.tobytes(), column.tolist()
+
+
+def test_positions_are_those_of_get_indexer():
+    """Reference: pandas' Index.get_indexer, which each pump's machine and readings were found by."""
+    rng = np.random.default_rng(3)
+    for size in (0, 1, 2, 50):
+        keys = np.unique(rng.integers(0, 80, size))
+        for targets in (rng.integers(-5, 90, 40), rng.integers(0, 80, 40).astype(float),
+                        np.array([np.nan, 1.5, 3.0, 79.0, 80.0])):
+            assert _positions(keys, targets).tolist() == pd.Index(keys).get_indexer(targets).tolist()

@@ -12,6 +12,8 @@ import trend_synthetic as ts
 
 from fleet.frames import READING_COLUMNS
 from fleet.trend.engine import analyze_fleet, results_to_records
+from fleet.trend.settings import AnalysisSettings
+from fleet.trend.status import assess_status, horizon_remaining_hours, service_order_keys, service_rank
 from fleet.trend.weibull import mean_residual_life
 
 HPD = 16.0
@@ -246,3 +248,139 @@ def test_core_imports_no_web_or_database_code():
     )
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
     assert out.stdout.strip() == "[]"
+
+
+# The status works on each column's array, read once (for the one pump of a write a pandas operation on a Series of
+# one row costs more than its arithmetic). What it did on Series before is kept here as the reference: the arrays
+# must give the same figures, order and words to the last bit, whatever types the columns come in.
+
+STATUS_COLUMNS = ["status", "reasons", "rank"]
+
+
+def _reference_order_keys(frame: pd.DataFrame) -> np.ndarray:
+    """service_order_keys as it was written on Series (pandas' Categorical codes and datetime conversion)."""
+    def col(name, default):
+        return frame[name] if name in frame else pd.Series(default, index=frame.index)
+
+    def num(name):
+        return pd.to_numeric(col(name, np.nan), errors="coerce").to_numpy(dtype=float)
+
+    def sortable(values):
+        bits = (np.asarray(values, dtype=np.float64) + 0.0).view(np.uint64)
+        negative = (bits >> np.uint64(63)).astype(bool)
+        bits = np.where(negative, ~bits, bits | np.uint64(1 << 63))
+        return bits.astype(">u8").view(np.uint8).reshape(-1, 8)
+
+    status = col("status", "healthy").astype(str).to_numpy()
+    group = pd.Categorical(status, categories=["past_limit", "due_soon", "watch", "healthy"], ordered=True).codes + 1
+    margin = -np.nan_to_num(num("past_margin"), nan=-np.inf)
+    date_low = pd.to_datetime(col("limit_date_low", pd.NaT)).where(status == "due_soon")
+    no_date = date_low.isna().to_numpy()
+    date_ns = np.where(no_date, 0, date_low.to_numpy(dtype="datetime64[ns]").view(np.int64))
+    date_bits = (date_ns.astype(np.int64).view(np.uint64) ^ np.uint64(1 << 63)).astype(">u8").view(np.uint8)
+    hours = np.nan_to_num(num("hours_to_limit"), nan=np.inf)
+    fixed = np.concatenate([group.astype(np.uint8).reshape(-1, 1), sortable(margin), no_date.astype(np.uint8)
+                            .reshape(-1, 1), date_bits.reshape(-1, 8), sortable(hours)], axis=1)
+    names = col("pump", "").astype(str).to_numpy()
+    return np.array([row.tobytes() + name.encode() for row, name in zip(fixed, names, strict=True)], dtype=object)
+
+
+def _reference_horizon(frame: pd.DataFrame, now) -> tuple[np.ndarray, np.ndarray]:
+    """horizon_remaining_hours as it was written on Series (pandas' to_datetime and total_seconds)."""
+    per_day = pd.to_numeric(frame["hours_per_day"], errors="coerce").to_numpy(dtype=float)
+    per_day = np.where(np.isfinite(per_day) & (per_day > 0), per_day, 24.0)
+    last_at = pd.to_datetime(frame["last_reading_at"])
+    since_days = ((pd.Timestamp(now) - last_at).dt.total_seconds() / 86400.0).to_numpy(dtype=float)
+    since_days = np.where(np.isfinite(since_days), np.maximum(since_days, 0.0), 0.0)
+    left = pd.to_numeric(frame["hours_to_limit"], errors="coerce").to_numpy(dtype=float) - per_day * since_days
+    weeks = pd.to_numeric(frame["planning_horizon_weeks"], errors="coerce").to_numpy(dtype=float)
+    return left, weeks * 7.0 * per_day
+
+
+def _as_plain_objects(res: pd.DataFrame) -> pd.DataFrame:
+    """The same results with every column in the types pandas' slower paths take: numbers as objects (None for a
+    missing one), flags as nullable booleans, times as ISO text or Timestamps, text as objects."""
+    out = {}
+    for name, column in res.items():
+        if column.dtype == bool:
+            out[name] = column.astype("boolean")
+        elif column.dtype.kind == "f":
+            out[name] = pd.Series([None if v != v else v for v in column.tolist()], index=res.index, dtype=object)
+        elif column.dtype.kind == "M":
+            as_text = name in ("last_reading_at", "limit_date_low")
+            out[name] = pd.Series([None if pd.isna(v) else (v.isoformat() if as_text else v) for v in column],
+                                  index=res.index, dtype=object)
+        else:
+            out[name] = column.astype(object)
+    return pd.DataFrame(out, index=res.index)
+
+
+def test_status_of_columns_in_any_types_is_the_same(fleet):
+    """Reference: the same pumps with their columns in pandas' general types (objects, nullable flags, ISO text)."""
+    analysis, now = fleet
+    res = analysis.results.drop(columns=STATUS_COLUMNS)
+    native = assess_status(res, now, AnalysisSettings())
+    plain = assess_status(_as_plain_objects(res), now, AnalysisSettings())
+    pd.testing.assert_frame_equal(plain, native, check_exact=True)
+    assert set(native["status"]) == {"past_limit", "due_soon", "watch", "healthy"}
+    pd.testing.assert_frame_equal(native, analysis.results[STATUS_COLUMNS], check_exact=True)
+
+
+def test_order_keys_equal_the_series_reference(fleet):
+    """Reference: the Series code above, on the results, on them in general types and on their JSON records (dates
+    as text), and on a frame lacking every column it reads."""
+    analysis, now = fleet
+    res = analysis.results
+    for frame in (res, _as_plain_objects(res), pd.DataFrame(results_to_records(res)),
+                  pd.DataFrame({"other": [1, 2]})):
+        keys = service_order_keys(frame)
+        assert keys.tolist() == _reference_order_keys(frame).tolist()
+        reference_rank = np.empty(len(keys), dtype=np.int64)
+        reference_rank[np.argsort(_reference_order_keys(frame), kind="stable")] = np.arange(1, len(keys) + 1)
+        assert service_rank(frame).tolist() == reference_rank.tolist()
+    assert assess_status(res.drop(columns=STATUS_COLUMNS), now, AnalysisSettings())["rank"].tolist() == \
+        service_rank(res).tolist()
+
+
+@pytest.mark.parametrize("unit", ["s", "ms", "us", "ns"])
+def test_horizon_hours_equal_the_series_reference(unit):
+    """Reference: pandas' own (now - times).dt.total_seconds() on a Series, times in each unit, NaT among them,
+    a time after now, fractions of a second."""
+    rng = np.random.default_rng(7)
+    now = pd.Timestamp("2026-03-01 10:15:00.123456")
+    offsets = rng.integers(-5 * 10**15, 10**17, 300).astype("timedelta64[ns]")
+    times = (np.datetime64(now.to_datetime64(), "ns") - offsets).astype(f"datetime64[{unit}]")
+    times[::17] = np.datetime64("NaT")
+    frame = pd.DataFrame({
+        "hours_per_day": np.where(rng.random(300) < 0.1, np.nan, rng.uniform(0, 24, 300)),
+        "last_reading_at": times,
+        "hours_to_limit": rng.uniform(-100, 20000, 300),
+        "planning_horizon_weeks": rng.choice([np.nan, 4.0, 26.0], 300),
+    })
+    for at in (now, now.as_unit("ns"), now.to_pydatetime()):
+        left, horizon = horizon_remaining_hours(frame, at)
+        want_left, want_horizon = _reference_horizon(frame, at)
+        assert left.tobytes() == want_left.tobytes() and horizon.tobytes() == want_horizon.tobytes()
+    as_text = frame.assign(last_reading_at=frame["last_reading_at"].astype(str).where(frame["last_reading_at"].notna()))
+    left, _ = horizon_remaining_hours(as_text, now)
+    assert left.tobytes() == _reference_horizon(as_text, now)[0].tobytes()
+
+
+def test_status_and_priors_of_a_mapping_of_columns_are_those_of_the_frame(fleet):
+    """Reference: the same results as a frame. The engine may give its columns before it frames them, as a dict
+    of Series or of arrays; apply_priors sets its columns into the dict as into the frame."""
+    from fleet.trend.engine import apply_priors
+
+    analysis, now = fleet
+    res = analysis.results.drop(columns=STATUS_COLUMNS)
+    want = assess_status(res, now, AnalysisSettings())
+    for columns in ({name: column for name, column in res.items()},
+                    {name: column.to_numpy() for name, column in res.items()}):
+        got = assess_status(columns, now, AnalysisSettings())
+        pd.testing.assert_frame_equal(got.set_axis(res.index), want, check_exact=True)
+        framed = res.copy()
+        want_priors = apply_priors(framed, analysis.priors, now)
+        got_priors = apply_priors(columns, analysis.priors, now)
+        pd.testing.assert_frame_equal(got_priors, want_priors, check_exact=True)
+        for name in ("planning_horizon_hours", "prior_hours_to_overhaul", "prior_b10_hours"):
+            assert np.asarray(columns[name]).tobytes() == framed[name].to_numpy().tobytes()

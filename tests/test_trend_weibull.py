@@ -137,3 +137,44 @@ def test_engine_fits_the_fleet_prior_from_overhaul_history():
     horizon_h = 12 * 7 * res["hours_per_day"].to_numpy()
     expected = conditional_failure_probability(age, horizon_h, prior["beta"], prior["alpha"]).sum()
     assert prior["expected_overhauls_in_horizon"] == pytest.approx(expected)
+
+
+def _reference_prior_figures(kinds, age, horizon, priors):
+    """fleet.trend.engine.prior_figures as it was written on frames (a reindex per pump kind, a grouped sum
+    reindexed to the priors): the reference the array code must equal to the last bit."""
+    fleet_priors = priors.copy()
+    kinds = np.asarray(kinds, dtype=object)
+    kind_prior = fleet_priors.reindex(kinds)
+    hours = mean_residual_life(age, kind_prior["beta"].to_numpy(float), kind_prior["alpha"].to_numpy(float))
+    p = fleet_priors.reindex(kinds)
+    prob = conditional_failure_probability(age, horizon, p["beta"].to_numpy(), p["alpha"].to_numpy())
+    expected = pd.Series(prob).groupby(kinds).sum(min_count=1)
+    fleet_priors["expected_overhauls_in_horizon"] = expected.reindex(fleet_priors.index)
+    return hours, kind_prior["b10_hours"].to_numpy(float), fleet_priors
+
+
+@pytest.mark.parametrize("n", [1, 2, 3, 40, 400])
+def test_prior_figures_equal_the_frame_reference(n):
+    """Reference: the frame code above; pumps of fitted kinds, of a kind without a fit, of a kind the priors lack
+    and without a kind, one pump alone (its own chance, a zero horizon giving -0.0) or many."""
+    from fleet.trend.engine import prior_figures
+
+    priors = pd.DataFrame({"beta": [1.4, np.nan, 2.2], "alpha": [40000.0, np.nan, 25000.0],
+                           "b10_hours": [8000.0, np.nan, 9000.0], "n_failures": [9, 1, 5],
+                           "n_suspensions": [3, 0, 2], "note": [None, "too few", None]},
+                          index=pd.Index(["vane", "radial_piston", "axial_piston"], name="kind"))
+    rng = np.random.default_rng(n)
+    choices = np.array(["vane", "radial_piston", "axial_piston", "screw", None], dtype=object)
+    for trial in range(30):
+        kinds = rng.choice(choices, n, p=[0.35, 0.15, 0.3, 0.1, 0.1])
+        if n == 1:
+            kinds = choices[[trial % len(choices)]]
+        age = rng.uniform(0.0, 60000.0, n)
+        horizon = np.where(rng.random(n) < 0.2, 0.0, rng.uniform(0.0, 5000.0, n))
+        got = prior_figures(kinds, age, horizon, priors)
+        want = _reference_prior_figures(kinds, age, horizon, priors)
+        assert got[0].tobytes() == want[0].tobytes() and got[1].tobytes() == want[1].tobytes()
+        pd.testing.assert_frame_equal(got[2], want[2], check_exact=True)
+        assert np.signbit(got[2]["expected_overhauls_in_horizon"]).tolist() == \
+            np.signbit(want[2]["expected_overhauls_in_horizon"]).tolist()
+    assert "expected_overhauls_in_horizon" not in priors  # the priors given are left as they were

@@ -38,7 +38,13 @@ from fleet.trend.remaining_life import (
 from fleet.trend.settings import AnalysisSettings
 from fleet.trend.status import assess_status, horizon_remaining_hours
 from fleet.trend.wear_laws import LAWS, MEMBERS
-from fleet.trend.weibull import expected_overhauls, fit_fleet_priors, mean_residual_life
+from fleet.trend.weibull import (
+    expected_overhauls_per_prior,
+    fit_fleet_priors,
+    kind_rows,
+    mean_residual_life,
+    per_pump,
+)
 
 KEYS = ["pump_id", "interval_no"]
 
@@ -470,17 +476,18 @@ def fit_priors(intervals: pd.DataFrame, kind_of_pump: pd.Series, settings: Analy
     return fit_fleet_priors(interval_lives(intervals), kind_of_pump, settings.min_weibull_failures)
 
 
-def apply_priors(res: pd.DataFrame, priors: pd.DataFrame, now) -> pd.DataFrame:
+def apply_priors(res: pd.DataFrame | dict, priors: pd.DataFrame, now) -> pd.DataFrame:
     """Set each pump's prior figures (in place) from its kind's fleet Weibull, and its planning horizon in running
     hours; return the priors with the expected overhauls of ``res``'s pumps in their planning horizon.
 
-    res needs kind, age_hours and what horizon_remaining_hours reads. Nothing else of a pump's analysis
-    depends on the priors, so a fleet analysed in parts can be given the whole fleet's priors afterwards.
+    res (a frame, or a dict of column names to Series or arrays) needs kind, age_hours and what
+    horizon_remaining_hours reads. Nothing else of a pump's analysis depends on the priors, so a fleet analysed in
+    parts can be given the whole fleet's priors afterwards.
     """
     _, horizon_h = horizon_remaining_hours(res, pd.Timestamp(now))
     res["planning_horizon_hours"] = horizon_h
-    hours, b10, fleet_priors = prior_figures(res["kind"].to_numpy(), res["age_hours"].to_numpy(float), horizon_h,
-                                             priors)
+    hours, b10, fleet_priors = prior_figures(np.asarray(res["kind"], dtype=object),
+                                             np.asarray(res["age_hours"], dtype=float), horizon_h, priors)
     res["prior_hours_to_overhaul"], res["prior_b10_hours"] = hours, b10
     return fleet_priors
 
@@ -497,11 +504,11 @@ def prior_figures(kinds, age_hours, horizon_hours, priors: pd.DataFrame):
     fleet_priors = priors.copy()
     kinds = np.asarray(kinds, dtype=object)
     age = np.asarray(age_hours, dtype=float)
-    kind_prior = fleet_priors.reindex(kinds)
-    hours = mean_residual_life(age, kind_prior["beta"].to_numpy(float), kind_prior["alpha"].to_numpy(float))
-    expected = expected_overhauls(age, np.asarray(horizon_hours, dtype=float), kinds, fleet_priors)
-    fleet_priors["expected_overhauls_in_horizon"] = expected.reindex(fleet_priors.index)
-    return hours, kind_prior["b10_hours"].to_numpy(float), fleet_priors
+    rows = kind_rows(fleet_priors, kinds)  # each pump's kind among the priors (-1: none, NaN figures)
+    hours = mean_residual_life(age, per_pump(fleet_priors, "beta", rows), per_pump(fleet_priors, "alpha", rows))
+    fleet_priors["expected_overhauls_in_horizon"] = expected_overhauls_per_prior(
+        age, np.asarray(horizon_hours, dtype=float), kinds, fleet_priors, rows)
+    return hours, per_pump(fleet_priors, "b10_hours", rows), fleet_priors
 
 
 def _data_note(res: Mapping, current_iv: pd.DataFrame, cur: pd.DataFrame, s: AnalysisSettings) -> np.ndarray:

@@ -81,7 +81,7 @@ def latest_lab_results(samples: pd.DataFrame, now, settings: AnalysisSettings) -
     at = np.maximum(latest, 0)
 
     def pick(column: str) -> np.ndarray:
-        return np.where(has, _floats(samples[column])[at], np.nan)
+        return np.where(has, column_floats(samples[column])[at], np.nan)
 
     low = samples["low_count"]
     low = low.to_numpy() if low.dtype == bool else low.astype("boolean").fillna(False).to_numpy(bool)
@@ -104,11 +104,26 @@ def _times(column: pd.Series) -> np.ndarray:
     return (column if column.dtype.kind == "M" else pd.to_datetime(column)).to_numpy()
 
 
-def _floats(column: pd.Series) -> np.ndarray:
-    """A column as floats, as pd.to_numeric(errors="coerce") reads it (numbers already: no parse)."""
-    if column.dtype.kind in "fiu":
-        return column.to_numpy(dtype=float)
-    return pd.to_numeric(column, errors="coerce").to_numpy(float)
+_PLAIN_NUMBER_TYPES = frozenset({float, int, type(None), np.float64, np.int64})
+
+
+def plain_floats(values: np.ndarray) -> np.ndarray:
+    """Values as floats, as pd.to_numeric(errors="coerce") reads them: numpy numbers, and objects that are all plain
+    numbers or None (a setting per pump), by a cast; anything else through pandas."""
+    if values.dtype.kind in "fiub":
+        return values.astype(float)
+    if values.dtype == object and all(type(v) in _PLAIN_NUMBER_TYPES for v in values.tolist()):
+        return values.astype(float)
+    return pd.to_numeric(pd.Series(values, dtype=values.dtype if values.dtype.kind != "U" else object),
+                         errors="coerce").to_numpy(dtype=float)
+
+
+def column_floats(column) -> np.ndarray:
+    """A column (a Series or an array) as floats, as pd.to_numeric(errors="coerce") reads it (numbers already: no
+    parse)."""
+    if isinstance(column.dtype, np.dtype):
+        return plain_floats(np.asarray(column))
+    return pd.to_numeric(pd.Series(column), errors="coerce").to_numpy(float)
 
 
 def oil_temperatures(readings: pd.DataFrame, settings: AnalysisSettings) -> tuple[np.ndarray, dict]:
@@ -118,12 +133,12 @@ def oil_temperatures(readings: pd.DataFrame, settings: AnalysisSettings) -> tupl
     Plain arrays, sorted once by pump and time (a grouped frame costs more than the sums, for one pump as for many).
     """
     lo, hi = settings.temp_range_c
-    t = _floats(readings["temp_c"])
+    t = column_floats(readings["temp_c"])
     keep = np.flatnonzero((t >= lo) & (t <= hi))
-    pump, taken = readings["pump_id"].to_numpy()[keep], readings["taken_at"].to_numpy()[keep]
-    order = keep[np.lexsort((taken, pump))]  # stable: by pump, then time
-    pumps, group = np.unique(readings["pump_id"].to_numpy()[order], return_inverse=True)
-    taken = readings["taken_at"].to_numpy()[order]
+    pump_ids, taken_at = readings["pump_id"].to_numpy(), readings["taken_at"].to_numpy()
+    order = keep[np.lexsort((taken_at[keep], pump_ids[keep]))]  # stable: by pump, then time
+    pumps, group = np.unique(pump_ids[order], return_inverse=True)
+    taken = taken_at[order]
     last = np.flatnonzero(np.r_[group[1:] != group[:-1], True]) if len(order) else np.zeros(0, dtype=np.int64)
     window = pd.Timedelta(days=settings.typical_window_days).to_timedelta64()
     recent = taken >= (taken[last] - window)[group]
@@ -134,6 +149,16 @@ def oil_temperatures(readings: pd.DataFrame, settings: AnalysisSettings) -> tupl
         "nu40": readings["nu40"].to_numpy(dtype=float)[order][last],
         "nu100": readings["nu100"].to_numpy(dtype=float)[order][last],
     }
+
+
+def _positions(keys: np.ndarray, targets: np.ndarray) -> np.ndarray:
+    """Each target's position among ``keys`` (sorted and unique, as np.unique gives them), -1 where it is not one
+    of them (a missing target too): what pd.Index(keys).get_indexer(targets) gives, with no index built."""
+    targets = np.asarray(targets)
+    if len(keys) == 0:
+        return np.full(len(targets), -1, dtype=np.intp)
+    at = np.minimum(np.searchsorted(keys, targets), len(keys) - 1)
+    return np.where(keys[at] == targets, at, -1).astype(np.intp)
 
 
 def _taken(values: np.ndarray, at: np.ndarray, missing) -> np.ndarray:
@@ -157,10 +182,20 @@ def oil_condition(
     A lab result belongs to a reservoir (machine), so each pump takes its current machine's latest result.
     Water above the limit: common practice, no source (about 400-500 ppm for mineral oil).
 
-    Plain arrays per pump (taken by position from the machines' and the readings' figures), framed once.
+    Plain arrays per pump (taken by position from the machines' and the readings' figures, oil_columns), framed
+    once.
     """
     index = pd.Index(pumps["pump_id"].to_numpy(), name="pump_id")
-    n = len(index)
+    columns = oil_columns(pumps, readings, samples, now, settings)
+    columns["cleanliness_target"] = columns["cleanliness_target"].set_axis(index)
+    return pd.DataFrame(columns, index=index)
+
+
+def oil_columns(pumps: pd.DataFrame, readings: pd.DataFrame, samples, now, settings: AnalysisSettings) -> dict:
+    """oil_condition's OIL_COLUMNS as a dict, in the pumps' order: arrays, and the pumps' cleanliness_target
+    column as they have it (a Series, its dtype kept)."""
+    pump_ids = pumps["pump_id"].to_numpy()
+    n = len(pump_ids)
     if samples is None or len(samples) == 0:
         no_time = np.full(n, np.datetime64("NaT"), dtype=_no_time_dtype())
         lab = {"sample_sampled_at": no_time, "sample_reported_at": no_time, "lab_pending_since": no_time,
@@ -168,12 +203,12 @@ def oil_condition(
                "water_ppm": np.full(n, np.nan), "low_count": np.zeros(n, bool), "lab_late": np.zeros(n, bool)}
     else:
         machines, columns = latest_lab_results(samples, now, settings)
-        at = pd.Index(machines).get_indexer(_floats(pumps["machine_id"]))
+        at = _positions(machines, column_floats(pumps["machine_id"]))
         lab = {name: _taken(values, at, False if values.dtype == bool else
                             np.datetime64("NaT") if values.dtype.kind == "M" else np.nan)
                for name, values in columns.items()}
     with_temps, temps = oil_temperatures(readings, settings)
-    at = pd.Index(with_temps).get_indexer(index)
+    at = _positions(with_temps, pump_ids)
     temps = {name: _taken(values, at, np.nan) for name, values in temps.items()}
 
     codes = np.column_stack([lab["c4"], lab["c6"], lab["c14"]])
@@ -188,26 +223,22 @@ def oil_condition(
     nu_typical = np.asarray(kinematic_viscosity_cst(typical, temps["nu40"], temps["nu100"]))
     last_temp = temps["oil_temp_c"]
     water = lab["water_ppm"]
-    out = pd.DataFrame(
-        {
-            "sample_sampled_at": lab["sample_sampled_at"],
-            "sample_reported_at": lab["sample_reported_at"],
-            "cleanliness_code": code_text,
-            "cleanliness_target": target.set_axis(index),
-            "cleanliness_steps_over": steps,
-            "low_count": lab["low_count"],
-            "water_ppm": water,
-            "water_high": water > settings.water_limit_ppm,
-            "lab_late": lab["lab_late"],
-            "lab_pending_since": lab["lab_pending_since"],
-            "oil_temp_c": last_temp,
-            "oil_temp_typical_c": typical,
-            "oil_hot": last_temp > _floats(pumps["oil_temp_max_c"]),
-            "oil_cold": last_temp < _floats(pumps["oil_temp_min_c"]),
-            "oil_life_factor": np.asarray(oil_life_factor(typical), dtype=float),
-            "viscosity_typical_cst": nu_typical,
-            "viscosity_window": np.where(np.isfinite(nu_typical), np.asarray(viscosity_window_flag(nu_typical)), None),
-        },
-        index=index,
-    )
-    return out[OIL_COLUMNS]
+    return {
+        "sample_sampled_at": lab["sample_sampled_at"],
+        "sample_reported_at": lab["sample_reported_at"],
+        "cleanliness_code": code_text,
+        "cleanliness_target": target,
+        "cleanliness_steps_over": steps,
+        "low_count": lab["low_count"],
+        "water_ppm": water,
+        "water_high": water > settings.water_limit_ppm,
+        "lab_late": lab["lab_late"],
+        "lab_pending_since": lab["lab_pending_since"],
+        "oil_temp_c": last_temp,
+        "oil_temp_typical_c": typical,
+        "oil_hot": last_temp > column_floats(pumps["oil_temp_max_c"]),
+        "oil_cold": last_temp < column_floats(pumps["oil_temp_min_c"]),
+        "oil_life_factor": np.asarray(oil_life_factor(typical), dtype=float),
+        "viscosity_typical_cst": nu_typical,
+        "viscosity_window": np.where(np.isfinite(nu_typical), np.asarray(viscosity_window_flag(nu_typical)), None),
+    }

@@ -138,8 +138,55 @@ def fit_kind_priors(kinds, life_kind, entry_hours, life_hours, failed, min_failu
     return pd.DataFrame(rows, columns=columns).set_index("kind")
 
 
+def per_pump(priors: pd.DataFrame, column: str, rows) -> np.ndarray:
+    """A column of the priors (as floats) for each pump, by its kind's row (``rows``, kind_rows), NaN for -1 (as a
+    reindex by the pumps' kinds gives it)."""
+    rows = np.asarray(rows, dtype=np.int64)
+    values = priors[column].to_numpy(dtype=float)
+    if len(values) == 0:
+        return np.full(len(rows), np.nan)
+    return np.where(rows >= 0, values[np.maximum(rows, 0)], np.nan)
+
+
+def overhaul_chances(age_hours, horizon_hours, rows, priors: pd.DataFrame) -> np.ndarray:
+    """Each pump's chance of an interval reset within its horizon under its kind's fit (``rows``: kind_rows)."""
+    return conditional_failure_probability(age_hours, horizon_hours, per_pump(priors, "beta", rows),
+                                           per_pump(priors, "alpha", rows))
+
+
+def sum_by_kind(chances, kind) -> pd.Series:
+    """Per kind (sorted; pumps without a kind left out) the sum of its pumps' chances, NaN where none is known:
+    pandas' grouped sum (min_count=1), in its own order of adding."""
+    return pd.Series(chances).groupby(np.asarray(kind)).sum(min_count=1).rename("expected_overhauls")
+
+
 def expected_overhauls(age_hours, horizon_hours, kind, priors: pd.DataFrame) -> pd.Series:
     """Expected number of interval resets per kind within the horizon: sum of conditional probabilities."""
-    p = priors.reindex(np.asarray(kind))
-    prob = conditional_failure_probability(age_hours, horizon_hours, p["beta"].to_numpy(), p["alpha"].to_numpy())
-    return pd.Series(prob).groupby(np.asarray(kind)).sum(min_count=1).rename("expected_overhauls")
+    kind = np.asarray(kind)
+    return sum_by_kind(overhaul_chances(age_hours, horizon_hours, kind_rows(priors, kind), priors), kind)
+
+
+def kind_rows(priors: pd.DataFrame, kind) -> np.ndarray:
+    """Each pump's kind as its position among the priors' rows, -1 for a kind they lack (as get_indexer gives it;
+    by a dict for a few pumps, as get_indexer's fixed cost is most of it for one)."""
+    kind = np.asarray(kind, dtype=object)
+    index = priors.index
+    if len(kind) > 32 or not index.is_unique or index.hasnans:
+        return index.get_indexer(kind)
+    position = {name: row for row, name in enumerate(index.tolist())}
+    return np.array([position.get(name, -1) for name in kind.tolist()], dtype=np.intp)
+
+
+def expected_overhauls_per_prior(age_hours, horizon_hours, kind, priors: pd.DataFrame, rows=None) -> np.ndarray:
+    """expected_overhauls in the order of the priors' rows (NaN for a kind without pumps); ``rows``: kind_rows,
+    when known. A lone pump's expected overhauls are its own chance, the sum of one value, taken as it is with no
+    grouping made."""
+    kind = np.asarray(kind, dtype=object)
+    rows = kind_rows(priors, kind) if rows is None else rows
+    chances = overhaul_chances(age_hours, horizon_hours, rows, priors)
+    if len(kind) == 1:
+        out = np.full(len(priors), np.nan)
+        if rows[0] >= 0 and chances[0] == chances[0]:  # a missing chance sums to pandas' NaN
+            out[rows[0]] = chances[0]
+        return out
+    return sum_by_kind(chances, kind).reindex(priors.index).to_numpy(dtype=float)
