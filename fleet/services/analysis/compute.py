@@ -87,12 +87,12 @@ def one_pump_frames(session: Session, pump_id: int, now: datetime) -> FleetFrame
     """load_frames of one pump, from the pump page's few plain queries of that pump's rows
     (fleet.services.pages.pump_rows; tests/test_pump_page_rows.py holds them equal), without the fleet loader's
     joins and maps; None for a pump not on record."""
-    from fleet.services.pages.pump_rows import pump_rows  # that module reads this package's frames: import late
+    from fleet.services.pages.pump_rows import core_rows  # that module reads this package's frames: import late
 
     pump = session.get(Pump, int(pump_id))
     if pump is None:
         return None
-    rows = pump_rows(session, pump, now)
+    rows = core_rows(session, pump, now)  # the page's queries, without the rows only the page shows
     machine_id = rows.pumps["machine_id"].iloc[0]
     samples = load_samples(session, [] if pd.isna(machine_id) else [int(machine_id)])
     # pump_rows keeps what was known by ``now`` already; the lab results are kept so here.

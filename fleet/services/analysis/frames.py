@@ -78,17 +78,33 @@ def installation_history(session: Session, pump_ids=None) -> pd.DataFrame:
     return frame.sort_values(["installed_at", "pump_id"], kind="stable").reset_index(drop=True)
 
 
+def kind_limits(defaults: list[dict]) -> dict[str, dict]:
+    """Each limit field's value per pump kind (name -> kind -> value): the kind's stored default where set
+    (``defaults``: the limit_default rows as dicts), else the built-in one."""
+    stored = {row["kind"]: row for row in defaults}
+    return {name: {kind: (stored[kind][name] if kind in stored and pd.notna(stored[kind][name])
+                          else getattr(limits, name)) for kind, limits in DEFAULT_LIMITS.items()}
+            for name in LIMIT_FIELDS}
+
+
+def lifts_target(variable: bool, kind, own_target, target) -> bool:
+    """Whether a pump's cleanliness target becomes VARIABLE_PISTON_TARGET: a variable piston pump without its own
+    target (``own_target`` missing), whose ``target`` is its kind's default never edited, wants the cleaner code
+    (common practice, no source)."""
+    default = DEFAULT_LIMITS[kind].cleanliness_target if kind in DEFAULT_LIMITS else None
+    return bool(variable) and kind in PISTON_KINDS and pd.isna(own_target) and isinstance(default, str) \
+        and target == default
+
+
 def effective_limits(pumps: pd.DataFrame, defaults: pd.DataFrame) -> pd.DataFrame:
     """Per-pump limits: the pump's override where set, else its kind's stored default, else the built-in one."""
     columns = list(defaults.columns)  # rows as plain dicts, without to_dict's per-cell boxing
-    stored = {row["kind"]: row for row in (dict(zip(columns, values, strict=True))
-                                           for values in zip(*(defaults[c].tolist() for c in columns), strict=True))}
+    by_field = kind_limits([dict(zip(columns, values, strict=True))
+                            for values in zip(*(defaults[c].tolist() for c in columns), strict=True)])
     kinds = pumps["kind"].tolist()
     filled = {}  # the limit columns, set in one step (each set alone copies the frame's block again)
     for name in LIMIT_FIELDS:
-        # Per kind: the stored default where set, else the built-in one (plain dicts: this runs per page load).
-        by_kind = {kind: (stored[kind][name] if kind in stored and pd.notna(stored[kind][name])
-                          else getattr(limits, name)) for kind, limits in DEFAULT_LIMITS.items()}
+        by_kind = by_field[name]
         override = pumps[name] if name in pumps else pd.Series(np.nan, index=pumps.index)
         given = override.notna().to_numpy()
         if given.all():  # every pump sets its own: nothing to fill (a Series.where costs as much as the rest)
@@ -100,19 +116,37 @@ def effective_limits(pumps: pd.DataFrame, defaults: pd.DataFrame) -> pd.DataFram
         else:
             filled[name] = override.where(given, of_kind)
     out = pumps.assign(**filled)
-    # A variable piston pump without its own target, under a kind default that was never edited, wants the
-    # cleaner code (common practice, no source).
     # (Plain lists: a handful of pandas steps here cost more than the rest for the one pump of a write.)
-    variable_piston = out["variable"].astype(bool).to_numpy() & np.array([k in PISTON_KINDS for k in kinds], bool)
-    untouched = (pumps["cleanliness_target"].isna().to_numpy() if "cleanliness_target" in pumps
-                 else np.ones(len(out), dtype=bool))
-    default_target = [DEFAULT_LIMITS[k].cleanliness_target if k in DEFAULT_LIMITS else None for k in kinds]
-    plain = np.array([isinstance(d, str) and t == d
-                      for t, d in zip(out["cleanliness_target"].tolist(), default_target, strict=True)], dtype=bool)
-    lift = variable_piston & untouched & plain
+    own = pumps["cleanliness_target"].tolist() if "cleanliness_target" in pumps else [None] * len(out)
+    lift = np.array([lifts_target(v, k, o, t) for v, k, o, t in zip(
+        out["variable"].astype(bool).tolist(), kinds, own, out["cleanliness_target"].tolist(), strict=True)],
+        dtype=bool)
     if lift.any():
         out.loc[lift, "cleanliness_target"] = VARIABLE_PISTON_TARGET
     return out
+
+
+def effective_limits_of_one(row: dict, defaults: list[dict]) -> pd.DataFrame | None:
+    """effective_limits(pd.DataFrame([row]), defaults) of one pump's row (its fields as Python values, a limit
+    not set None), framed once: the same rules (kind_limits, lifts_target) on the row's values, the limits
+    filled in object columns as effective_limits fills a column of one row. None for a row it does not cover
+    (a limit given as a float NaN), which the frame path then takes."""
+    values, filled = dict(row), {}
+    by_field = kind_limits(defaults)
+    for name in LIMIT_FIELDS:
+        own = row.get(name)
+        if own is None:
+            filled[name] = by_field[name].get(row["kind"], np.nan)
+        elif pd.isna(own):
+            return None
+    values.update(filled)
+    if lifts_target(row["variable"], row["kind"], row.get("cleanliness_target"), values["cleanliness_target"]):
+        values["cleanliness_target"] = filled["cleanliness_target"] = VARIABLE_PISTON_TARGET
+    frame = pd.DataFrame({name: (np.array([value], dtype=object) if name in filled else [value])
+                          for name, value in values.items()})
+    if isinstance(filled.get("cleanliness_target"), str):  # numpy's object text is read as str: keep it object
+        frame["cleanliness_target"] = frame["cleanliness_target"].astype(object)
+    return frame
 
 
 def load_pumps(session: Session, pump_ids=None, history: pd.DataFrame | None = None) -> pd.DataFrame:
