@@ -9,7 +9,7 @@ from sqlalchemy import select
 from sqlalchemy.orm import Session
 
 from fleet.db.models import FleetPrior, Pump, PumpDataVersion
-from fleet.services.analysis.frames import FleetFrames, load_frames, load_samples, samples_known_by
+from fleet.services.analysis.frames import FleetFrames, load_frames, load_samples
 from fleet.timeutil import utcnow
 from fleet.trend.engine import FleetAnalysis, analyze_fleet, apply_priors, fit_priors
 from fleet.trend.interval_trends import interval_trends
@@ -94,10 +94,10 @@ def one_pump_frames(session: Session, pump_id: int, now: datetime) -> FleetFrame
         return None
     rows = core_rows(session, pump, now)  # the page's queries, without the rows only the page shows
     machine_id = rows.pumps["machine_id"].iloc[0]
-    samples = load_samples(session, [] if pd.isna(machine_id) else [int(machine_id)])
-    # pump_rows keeps what was known by ``now`` already; the lab results are kept so here.
+    # core_rows keeps what was known by ``now`` already; the lab results are kept so here.
+    samples = load_samples(session, [] if pd.isna(machine_id) else [int(machine_id)], known_by=pd.Timestamp(now))
     return FleetFrames(pumps=rows.pumps, readings=rows.readings, flow_points=rows.flow_points, events=rows.events,
-                       samples=samples_known_by(samples, pd.Timestamp(now)))
+                       samples=samples)
 
 
 @dataclass

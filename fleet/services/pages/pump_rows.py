@@ -8,6 +8,7 @@ come from the same queries, so nothing is read twice.
 Nothing is kept between requests: a write shows on the next page.
 """
 
+import functools
 from dataclasses import dataclass
 from datetime import datetime
 
@@ -147,10 +148,14 @@ def _times(values: tuple) -> np.ndarray:
     """Times from the driver as pd.to_datetime(format="ISO8601") reads them. SQLite gives SQLAlchemy's text, all
     of one fixed form, which numpy parses exactly and many times faster; anything else goes to pandas."""
     if values and all(isinstance(v, str) and len(v) == _STORED_TIME for v in values):
-        # In the unit pandas gives such text (asked of the first value: it has changed between versions).
-        unit = pd.to_datetime(pd.Series(values[:1], dtype=object), format="ISO8601").dtype
-        return np.array(values, dtype="datetime64[us]").astype(unit)
+        return np.array(values, dtype="datetime64[us]").astype(_text_unit())
     return pd.to_datetime(pd.Series(values, dtype=object), format="ISO8601").to_numpy()
+
+
+@functools.cache
+def _text_unit() -> np.dtype:
+    """The unit pandas reads SQLAlchemy's time text in (it has changed between versions; asked once)."""
+    return pd.to_datetime(pd.Series(["2021-01-04 08:00:00.000000"], dtype=object), format="ISO8601").dtype
 
 
 def _numbers(values: tuple) -> np.ndarray:
@@ -160,19 +165,19 @@ def _numbers(values: tuple) -> np.ndarray:
 
 @dataclass
 class CoreRows:
-    """The core's frames of one pump as known at a moment (what its analysis reads), with the page's rows they
-    are made from (``_read``)."""
+    """The core's frames of one pump as known at a moment (what its analysis reads), with the rows the page
+    makes its own from."""
 
     pumps: pd.DataFrame
     readings: pd.DataFrame
     events: pd.DataFrame
     flow_points: pd.DataFrame
     all_readings: pd.DataFrame
-    all_events: pd.DataFrame  # every maintenance record, with the page's fields, in the stored order
     all_flow_points: pd.DataFrame
     stays: list[Stay]
     reading_id: np.ndarray  # the readings' ids in the stored order (that of ``got``)
     got: dict[str, tuple]  # the readings' columns as the driver gave them
+    got_events: dict[str, tuple]  # the maintenance records' columns (with the page's fields) as the driver gave them
 
 
 def core_rows(session: Session, pump: Pump, as_of: datetime) -> CoreRows:
@@ -196,8 +201,13 @@ def core_rows(session: Session, pump: Pump, as_of: datetime) -> CoreRows:
                                              FlowTestPoint.flow_lpm)
                              .join(Reading, Reading.id == FlowTestPoint.reading_id).where(Reading.pump_id == pump.id))
     points = pd.DataFrame({"reading_id": np.array(points["reading_id"], dtype=np.int64),
-                           "pressure_bar": _numbers(points["pressure_bar"]), "flow_lpm": _numbers(points["flow_lpm"])})
-    events = _events(session, pump.id)
+                           "pressure_bar": _numbers(points["pressure_bar"]), "flow_lpm": _numbers(points["flow_lpm"])},
+                          columns=list(FLOW_POINT_COLUMNS))
+    got_events = _driver_columns(session, select(
+        MaintenanceEvent.pump_id, MaintenanceEvent.date, MaintenanceEvent.hours, MaintenanceEvent.kind,
+        MaintenanceEvent.cost, MaintenanceEvent.id.label("event_id"), MaintenanceEvent.downtime_h,
+        MaintenanceEvent.failure_mode, MaintenanceEvent.note).where(MaintenanceEvent.pump_id == pump.id))
+    events = _events(got_events, list(EVENT_COLUMNS))
 
     moment = np.datetime64(pd.Timestamp(as_of).to_datetime64())  # what was known by then, as frames.known_by keeps
     known = columns["taken_at"] <= moment
@@ -207,27 +217,22 @@ def core_rows(session: Session, pump: Pump, as_of: datetime) -> CoreRows:
         pumps=_pump_frame(session, pump, _here(stays)),
         readings=readings,
         # A frame kept whole is the frame itself: a mask of all true would copy it (frames.known_by's rows).
-        events=events[list(EVENT_COLUMNS)] if done.all() else events.loc[done, list(EVENT_COLUMNS)],
-        flow_points=(points if known.all() else points.loc[points["reading_id"].isin(readings["reading_id"])])[
-            list(FLOW_POINT_COLUMNS)],
-        all_readings=all_readings, all_events=events, all_flow_points=points, stays=stays, reading_id=reading_id,
-        got=got)
+        events=events if done.all() else events.loc[done],
+        flow_points=points if known.all() else points.loc[points["reading_id"].isin(readings["reading_id"])],
+        all_readings=all_readings, all_flow_points=points, stays=stays, reading_id=reading_id, got=got,
+        got_events=got_events)
 
 
-def _events(session: Session, pump_id: int) -> pd.DataFrame:
-    """The pump's maintenance records with the page's fields, in the stored order: times as load_events reads
-    them (_times), hours and cost floats, the other columns as a frame infers them from the rows."""
-    got = _driver_columns(session, select(
-        MaintenanceEvent.pump_id, MaintenanceEvent.date, MaintenanceEvent.hours, MaintenanceEvent.kind,
-        MaintenanceEvent.cost, MaintenanceEvent.id.label("event_id"), MaintenanceEvent.downtime_h,
-        MaintenanceEvent.failure_mode, MaintenanceEvent.note).where(MaintenanceEvent.pump_id == pump_id))
+def _events(got: dict[str, tuple], names: list[str]) -> pd.DataFrame:
+    """The maintenance records' columns ``names`` from the driver's (``got``), in the stored order: times as
+    load_events reads them (_times), hours and cost floats, the other columns as a frame infers them from the
+    rows."""
     if not got["pump_id"]:  # none: the empty frame's object columns, as load_events makes them
-        events = pd.DataFrame([], columns=[*EVENT_COLUMNS, *EVENT_EXTRAS])
+        events = pd.DataFrame([], columns=names)
         events["date"] = pd.to_datetime(events["date"])
         return events.astype({"hours": float, "cost": float})
-    return pd.DataFrame({name: (_times(values) if name == "date" else _numbers(values) if name in ("hours", "cost")
-                                else list(values)) for name, values in got.items()},
-                        columns=[*EVENT_COLUMNS, *EVENT_EXTRAS])
+    return pd.DataFrame({name: (_times(got[name]) if name == "date" else _numbers(got[name])
+                                if name in ("hours", "cost") else list(got[name])) for name in names}, columns=names)
 
 
 def pump_rows(session: Session, pump: Pump, as_of: datetime) -> PumpRows:
@@ -239,7 +244,8 @@ def pump_rows(session: Session, pump: Pump, as_of: datetime) -> PumpRows:
         pumps=core.pumps, readings=core.readings, events=core.events, flow_points=core.flow_points,
         reading_extras=extras,
         all_readings=core.all_readings,
-        all_events=core.all_events.sort_values("date", kind="stable").reset_index(drop=True),
+        all_events=_events(core.got_events, [*EVENT_COLUMNS, *EVENT_EXTRAS]).sort_values(
+            "date", kind="stable").reset_index(drop=True),
         all_flow_points=core.all_flow_points,
         stays=core.stays,
     )
