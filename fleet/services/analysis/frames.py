@@ -295,7 +295,7 @@ def load_samples(session: Session, machine_ids=None, known_by: pd.Timestamp | No
 
 
 @functools.cache
-def _datetime_unit() -> np.dtype:
+def datetime_unit() -> np.dtype:
     """The unit pd.to_datetime gives Python datetimes in (it has changed between pandas versions; asked once)."""
     return pd.to_datetime(pd.Series([datetime(2021, 1, 4, 8)], dtype=object)).dtype
 
@@ -316,7 +316,7 @@ def _sample_columns(keys: list[str], rows: list[tuple], known_by: pd.Timestamp |
             return None
         # In the unit pd.to_datetime gives the driver-processed datetimes.
         out[name] = np.array(["NaT" if v is None else v for v in values], dtype="datetime64[us]").astype(
-            _datetime_unit())
+            datetime_unit())
     frame = {"machine_id": np.array(columns["machine_id"], dtype=np.int64), **out,
              **{c: np.array(columns[c], dtype=float) for c in _SAMPLE_FLOATS},
              "low_count": np.array(columns["low_count"], dtype=bool)}

@@ -31,7 +31,13 @@ from fleet.db.models import (
 )
 from fleet.frames import EVENT_COLUMNS, FLOW_POINT_COLUMNS, PUMP_COLUMNS, READING_COLUMNS
 from fleet.physics.pump import theoretical_flow_lpm
-from fleet.services.analysis.frames import driver_rows, effective_limits, effective_limits_of_one, oil_of_one
+from fleet.services.analysis.frames import (
+    datetime_unit,
+    driver_rows,
+    effective_limits,
+    effective_limits_of_one,
+    oil_of_one,
+)
 
 # The columns of the readings the page shows besides the core's.
 READING_EXTRAS = ("source", "taken_by")
@@ -225,13 +231,13 @@ def core_rows(session: Session, pump: Pump, as_of: datetime) -> CoreRows:
 
 def _events(got: dict[str, tuple], names: list[str]) -> pd.DataFrame:
     """The maintenance records' columns ``names`` from the driver's (``got``), in the stored order: times as
-    load_events reads them (_times), hours and cost floats, the other columns as a frame infers them from the
-    rows."""
+    load_events reads them (_times, in the unit pandas gives the datetimes load_events reads, whatever form the
+    driver's times came in), hours and cost floats, the other columns as a frame infers them from the rows."""
     if not got["pump_id"]:  # none: the empty frame's object columns, as load_events makes them
         events = pd.DataFrame([], columns=names)
         events["date"] = pd.to_datetime(events["date"])
         return events.astype({"hours": float, "cost": float})
-    return pd.DataFrame({name: (_times(got[name]) if name == "date" else _numbers(got[name])
+    return pd.DataFrame({name: (_times(got[name]).astype(datetime_unit()) if name == "date" else _numbers(got[name])
                                 if name in ("hours", "cost") else list(got[name])) for name in names}, columns=names)
 
 
