@@ -211,3 +211,34 @@ def test_the_readings_columns_equal_pandas_own_conversion(demo_db):
             assert len(got) > 0 or chosen is not statement
         assert frames._reading_columns(session, statement)["stroke"].isna().sum() >= 3
         session.rollback()
+
+
+def _priors_by_frame(rows):
+    """The reference: stored_priors' steps before it made number columns at once (a frame of the details, then
+    each column that is not float made numbers where every value is one)."""
+    frame = pd.DataFrame([{**detail} for _, detail in rows], index=pd.Index([kind for kind, _ in rows], name="kind"))
+    for column in frame.columns:
+        if frame[column].dtype == float:
+            continue
+        numbers = pd.to_numeric(frame[column], errors="coerce")
+        if numbers.notna().sum() == frame[column].notna().sum():
+            frame[column] = numbers.astype(float)
+    return frame
+
+
+def test_priors_frame_equals_the_frame_steps_it_replaced(demo_db):
+    # Reference: _priors_by_frame above, to the bit and dtype, on the demo's stored figures and on details with
+    # ints, missing fields, an all-None field, a note in text and a flag (those two take the frame steps).
+    from pandas.testing import assert_frame_equal
+
+    from fleet.db.models import FleetPrior
+    from fleet.services.analysis.compute import priors_frame
+
+    with demo_db.sessions() as session:
+        stored = [tuple(row) for row in session.execute(select(FleetPrior.kind, FleetPrior.detail))]
+    made = [("a", {"beta": 1.5, "alpha": 4.0e4, "n_failures": 12, "note": None}),
+            ("b", {"beta": None, "alpha": None, "n_failures": 0, "note": None, "exposure_moved_since_fit": 1e-7}),
+            ("c", {"alpha": 3, "beta": 2})]
+    for rows in (stored, made, made[1:], [*made, ("d", {"beta": 1.0, "note": "fewer than 5 failures"})],
+                 [*made, ("e", {"beta": 1.0, "flag": True})], [("f", {})]):
+        assert_frame_equal(priors_frame(rows), _priors_by_frame(rows), check_exact=True, obj=str(rows))

@@ -63,3 +63,25 @@ def test_one_pumps_row_gets_what_it_gets_among_many_and_a_missing_column_is_fill
     without = effective_limits(pumps.drop(columns=["cleanliness_target", "eta_v_limit"]), defaults)
     assert without["cleanliness_target"].tolist()[3] == DEFAULT_LIMITS["external_gear"].cleanliness_target
     assert np.allclose(without["eta_v_limit"].astype(float), [DEFAULT_LIMITS[k].eta_v_limit for k in pumps["kind"]])
+
+
+def test_one_rows_limits_framed_once_are_the_frame_paths_to_the_dtype():
+    """effective_limits_of_one (the analysis after a write, the pump page) against effective_limits of a frame of
+    that one row, the reference: every value and every column's dtype, own values given or not, edited kind
+    defaults or not, a kind without built-in limits, a variable piston pump lifted or keeping its own target."""
+    from pandas.testing import assert_frame_equal
+
+    from fleet.services.analysis.frames import effective_limits_of_one
+
+    for edited in ({}, {("axial_piston", "cleanliness_target"): "16/14/11", ("radial_piston", "eta_v_limit"): 0.82,
+                        ("axial_piston", "reading_interval_days"): 7}):
+        defaults = _defaults(edited)
+        rows = [dict(zip(defaults.columns, values, strict=True)) for values in defaults.itertuples(index=False)]
+        rows = [{k: (None if not isinstance(v, str) and pd.isna(v) else v) for k, v in row.items()} for row in rows]
+        for _, pump in _pumps().iterrows():
+            for kind in (pump["kind"], "no_such_kind"):
+                row = {**{k: (None if not isinstance(v, str) and pd.isna(v) else v) for k, v in pump.items()},
+                       "kind": kind, "displacement_cc": 28.0, "note": None}
+                expected = effective_limits(pd.DataFrame([row]), pd.DataFrame(rows, columns=list(defaults.columns)))
+                assert_frame_equal(effective_limits_of_one(row, rows), expected, check_exact=True, obj=str(row))
+    assert effective_limits_of_one({**_pumps().iloc[0].to_dict(), "eta_v_limit": float("nan")}, []) is None

@@ -102,3 +102,20 @@ def test_each_readings_oil_is_the_fleet_merge_asofs(demo_db):
             assert_frame_equal(rows.all_readings, expected, check_exact=True, obj=pump.serial)
             moved += len({stay.machine_id for stay in rows.stays}) > 1
         assert moved > 0  # a pump whose oil changes with its machine is among them
+
+
+def test_maintenance_dates_in_any_form_the_driver_gives_read_as_the_fleet_loader_reads_them():
+    # Reference: pandas' reading of the datetimes SQLAlchemy makes of them (what load_events frames), dtype included,
+    # whether the driver gives SQLAlchemy's stored text, text without fractions, or datetimes (PostgreSQL).
+    from datetime import datetime
+
+    from fleet.frames import EVENT_COLUMNS
+    from fleet.services.pages.pump_rows import _events
+
+    times = [datetime(2024, 3, 1, 8, 30), datetime(2025, 11, 30, 23, 59, 1)]
+    expected = pd.to_datetime(pd.Series(times, dtype=object))
+    for given in ([t.strftime("%Y-%m-%d %H:%M:%S.%f") for t in times], [str(t) for t in times], times):
+        got = {"pump_id": (1, 1), "date": tuple(given), "hours": (100.0, None), "kind": ("overhaul", "inspection"),
+               "cost": (None, 5.0)}
+        events = _events(got, list(EVENT_COLUMNS))
+        pd.testing.assert_series_equal(events["date"], expected, check_names=False, obj=str(given))

@@ -178,10 +178,13 @@ def refer_readings(
         "leakage_kw": np.asarray(leakage_power_kw(p, slip), dtype=float),
         "flag": flag,
     }
+    no_tests = flow_points is None or len(flow_points) == 0 or "reading_id" not in r
+    if no_tests:  # no flow tests: NaN columns, framed with the rest (an assign after would copy the frame again)
+        added.update({name: np.full(len(r), np.nan) for name in FLOW_TEST_COLUMNS})
     # The added columns framed once beside the readings (not inserted one by one, a copy each time).
     out = pd.concat([r, pd.DataFrame(added, index=r.index)], axis=1)
-    if flow_points is None or len(flow_points) == 0 or "reading_id" not in out:  # no flow tests: NaN columns
-        return out.assign(**dict.fromkeys(FLOW_TEST_COLUMNS, np.nan))
+    if no_tests:
+        return out
     tests = flow_test_leakage(out, flow_points)
     return out.join(tests, on="reading_id")
 

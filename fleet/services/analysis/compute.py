@@ -4,12 +4,13 @@ from collections.abc import Callable
 from dataclasses import dataclass, field
 from datetime import datetime
 
+import numpy as np
 import pandas as pd
 from sqlalchemy import select
 from sqlalchemy.orm import Session
 
 from fleet.db.models import FleetPrior, Pump, PumpDataVersion
-from fleet.services.analysis.frames import FleetFrames, load_frames, load_samples, samples_known_by
+from fleet.services.analysis.frames import FleetFrames, load_frames, load_samples
 from fleet.timeutil import utcnow
 from fleet.trend.engine import FleetAnalysis, analyze_fleet, apply_priors, fit_priors
 from fleet.trend.interval_trends import interval_trends
@@ -57,9 +58,18 @@ def data_versions(session: Session, pump_ids=None) -> dict[int, int]:
 
 def stored_priors(session: Session) -> pd.DataFrame | None:
     rows = session.execute(select(FleetPrior.kind, FleetPrior.detail)).all()  # plain rows, no ORM objects
-    if not rows:
-        return None
-    frame = pd.DataFrame([{**detail} for _, detail in rows], index=pd.Index([kind for kind, _ in rows], name="kind"))
+    return priors_frame([(kind, detail) for kind, detail in rows]) if rows else None
+
+
+def priors_frame(rows: list[tuple]) -> pd.DataFrame:
+    """The kinds' stored fleet life figures (``rows``: kind, detail) as the engine's priors frame, one row per kind.
+    When every figure is a number or None (the usual case: a fit's figures, an empty note) the columns are made
+    as floats at once (_number_columns); otherwise a frame of the details, each column of numbers made floats."""
+    index = pd.Index([kind for kind, _ in rows], name="kind")
+    numbers = _number_columns([detail for _, detail in rows])
+    if numbers is not None:
+        return pd.DataFrame(numbers, index=index)
+    frame = pd.DataFrame([{**detail} for _, detail in rows], index=index)
     # JSON gives None for a kind without a fit; the engine wants NaN in float columns.
     for column in frame.columns:
         if frame[column].dtype == float:  # numbers already (most figures)
@@ -68,6 +78,21 @@ def stored_priors(session: Session) -> pd.DataFrame | None:
         if numbers.notna().sum() == frame[column].notna().sum():
             frame[column] = numbers.astype(float)
     return frame
+
+
+def _number_columns(details: list[dict]) -> dict[str, np.ndarray] | None:
+    """The details' fields as float columns (a field a detail lacks, or None: NaN), in the order a frame of the
+    details gives its columns, when every value is an int, a float or None: what priors_frame's frame steps make
+    of them, without a frame's inference per column. None otherwise (text, a flag, no fields), for those steps."""
+    names: dict[str, None] = {}
+    for detail in details:
+        for name, value in detail.items():
+            if value is not None and type(value) is not float and type(value) is not int:
+                return None
+            names[name] = None
+    if not names:
+        return None
+    return {name: np.array([detail.get(name) for detail in details], dtype=float) for name in names}
 
 
 def analyse(session: Session, pump_ids=None, now: datetime | None = None,
@@ -87,17 +112,17 @@ def one_pump_frames(session: Session, pump_id: int, now: datetime) -> FleetFrame
     """load_frames of one pump, from the pump page's few plain queries of that pump's rows
     (fleet.services.pages.pump_rows; tests/test_pump_page_rows.py holds them equal), without the fleet loader's
     joins and maps; None for a pump not on record."""
-    from fleet.services.pages.pump_rows import pump_rows  # that module reads this package's frames: import late
+    from fleet.services.pages.pump_rows import core_rows  # that module reads this package's frames: import late
 
     pump = session.get(Pump, int(pump_id))
     if pump is None:
         return None
-    rows = pump_rows(session, pump, now)
+    rows = core_rows(session, pump, now)  # the page's queries, without the rows only the page shows
     machine_id = rows.pumps["machine_id"].iloc[0]
-    samples = load_samples(session, [] if pd.isna(machine_id) else [int(machine_id)])
-    # pump_rows keeps what was known by ``now`` already; the lab results are kept so here.
+    # core_rows keeps what was known by ``now`` already; the lab results are kept so here.
+    samples = load_samples(session, [] if pd.isna(machine_id) else [int(machine_id)], known_by=pd.Timestamp(now))
     return FleetFrames(pumps=rows.pumps, readings=rows.readings, flow_points=rows.flow_points, events=rows.events,
-                       samples=samples_known_by(samples, pd.Timestamp(now)))
+                       samples=samples)
 
 
 @dataclass

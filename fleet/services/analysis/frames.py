@@ -3,6 +3,7 @@
 Set-based: one query per table, joined in pandas, never a query per pump.
 """
 
+import functools
 from dataclasses import dataclass
 from datetime import datetime
 
@@ -78,17 +79,33 @@ def installation_history(session: Session, pump_ids=None) -> pd.DataFrame:
     return frame.sort_values(["installed_at", "pump_id"], kind="stable").reset_index(drop=True)
 
 
+def kind_limits(defaults: list[dict]) -> dict[str, dict]:
+    """Each limit field's value per pump kind (name -> kind -> value): the kind's stored default where set
+    (``defaults``: the limit_default rows as dicts), else the built-in one."""
+    stored = {row["kind"]: row for row in defaults}
+    return {name: {kind: (stored[kind][name] if kind in stored and pd.notna(stored[kind][name])
+                          else getattr(limits, name)) for kind, limits in DEFAULT_LIMITS.items()}
+            for name in LIMIT_FIELDS}
+
+
+def lifts_target(variable: bool, kind, own_target, target) -> bool:
+    """Whether a pump's cleanliness target becomes VARIABLE_PISTON_TARGET: a variable piston pump without its own
+    target (``own_target`` missing), whose ``target`` is its kind's default never edited, wants the cleaner code
+    (common practice, no source)."""
+    default = DEFAULT_LIMITS[kind].cleanliness_target if kind in DEFAULT_LIMITS else None
+    return bool(variable) and kind in PISTON_KINDS and pd.isna(own_target) and isinstance(default, str) \
+        and target == default
+
+
 def effective_limits(pumps: pd.DataFrame, defaults: pd.DataFrame) -> pd.DataFrame:
     """Per-pump limits: the pump's override where set, else its kind's stored default, else the built-in one."""
     columns = list(defaults.columns)  # rows as plain dicts, without to_dict's per-cell boxing
-    stored = {row["kind"]: row for row in (dict(zip(columns, values, strict=True))
-                                           for values in zip(*(defaults[c].tolist() for c in columns), strict=True))}
+    by_field = kind_limits([dict(zip(columns, values, strict=True))
+                            for values in zip(*(defaults[c].tolist() for c in columns), strict=True)])
     kinds = pumps["kind"].tolist()
     filled = {}  # the limit columns, set in one step (each set alone copies the frame's block again)
     for name in LIMIT_FIELDS:
-        # Per kind: the stored default where set, else the built-in one (plain dicts: this runs per page load).
-        by_kind = {kind: (stored[kind][name] if kind in stored and pd.notna(stored[kind][name])
-                          else getattr(limits, name)) for kind, limits in DEFAULT_LIMITS.items()}
+        by_kind = by_field[name]
         override = pumps[name] if name in pumps else pd.Series(np.nan, index=pumps.index)
         given = override.notna().to_numpy()
         if given.all():  # every pump sets its own: nothing to fill (a Series.where costs as much as the rest)
@@ -100,19 +117,37 @@ def effective_limits(pumps: pd.DataFrame, defaults: pd.DataFrame) -> pd.DataFram
         else:
             filled[name] = override.where(given, of_kind)
     out = pumps.assign(**filled)
-    # A variable piston pump without its own target, under a kind default that was never edited, wants the
-    # cleaner code (common practice, no source).
     # (Plain lists: a handful of pandas steps here cost more than the rest for the one pump of a write.)
-    variable_piston = out["variable"].astype(bool).to_numpy() & np.array([k in PISTON_KINDS for k in kinds], bool)
-    untouched = (pumps["cleanliness_target"].isna().to_numpy() if "cleanliness_target" in pumps
-                 else np.ones(len(out), dtype=bool))
-    default_target = [DEFAULT_LIMITS[k].cleanliness_target if k in DEFAULT_LIMITS else None for k in kinds]
-    plain = np.array([isinstance(d, str) and t == d
-                      for t, d in zip(out["cleanliness_target"].tolist(), default_target, strict=True)], dtype=bool)
-    lift = variable_piston & untouched & plain
+    own = pumps["cleanliness_target"].tolist() if "cleanliness_target" in pumps else [None] * len(out)
+    lift = np.array([lifts_target(v, k, o, t) for v, k, o, t in zip(
+        out["variable"].astype(bool).tolist(), kinds, own, out["cleanliness_target"].tolist(), strict=True)],
+        dtype=bool)
     if lift.any():
         out.loc[lift, "cleanliness_target"] = VARIABLE_PISTON_TARGET
     return out
+
+
+def effective_limits_of_one(row: dict, defaults: list[dict]) -> pd.DataFrame | None:
+    """effective_limits(pd.DataFrame([row]), defaults) of one pump's row (its fields as Python values, a limit
+    not set None), framed once: the same rules (kind_limits, lifts_target) on the row's values, the limits
+    filled in object columns as effective_limits fills a column of one row. None for a row it does not cover
+    (a limit given as a float NaN), which the frame path then takes."""
+    values, filled = dict(row), {}
+    by_field = kind_limits(defaults)
+    for name in LIMIT_FIELDS:
+        own = row.get(name)
+        if own is None:
+            filled[name] = by_field[name].get(row["kind"], np.nan)
+        elif pd.isna(own):
+            return None
+    values.update(filled)
+    if lifts_target(row["variable"], row["kind"], row.get("cleanliness_target"), values["cleanliness_target"]):
+        values["cleanliness_target"] = filled["cleanliness_target"] = VARIABLE_PISTON_TARGET
+    frame = pd.DataFrame({name: (np.array([value], dtype=object) if name in filled else [value])
+                          for name, value in values.items()})
+    if isinstance(filled.get("cleanliness_target"), str):  # numpy's object text is read as str: keep it object
+        frame["cleanliness_target"] = frame["cleanliness_target"].astype(object)
+    return frame
 
 
 def load_pumps(session: Session, pump_ids=None, history: pd.DataFrame | None = None) -> pd.DataFrame:
@@ -235,7 +270,9 @@ _SAMPLE_FLOATS = ("code_4", "code_6", "code_14", "water_ppm", "viscosity_40")
 _STORED_TIME = len("2021-01-04 08:00:00.000000")  # how SQLAlchemy writes a DateTime into SQLite's text
 
 
-def load_samples(session: Session, machine_ids=None) -> pd.DataFrame:
+def load_samples(session: Session, machine_ids=None, known_by: pd.Timestamp | None = None) -> pd.DataFrame:
+    """The lab samples of ``machine_ids`` (None: every machine); with ``known_by``, as samples_known_by keeps
+    them at that moment (on SQLite applied to the columns before the frame is made: the same frame)."""
     statement = select(OilSample.machine_id, OilSample.sampled_at, OilSample.reported_at, OilSample.code_4,
                        OilSample.code_6, OilSample.code_14, OilSample.low_count, OilSample.water_ppm,
                        OilSample.viscosity_40)
@@ -243,7 +280,7 @@ def load_samples(session: Session, machine_ids=None) -> pd.DataFrame:
         statement = statement.where(OilSample.machine_id.in_([int(m) for m in machine_ids]))
     if session.get_bind().dialect.name == "sqlite":
         keys, rows = driver_rows(session, statement)
-        frame = _sample_columns(keys, rows)
+        frame = _sample_columns(keys, rows, known_by)
         if frame is not None:
             return frame
         frame = pd.DataFrame(session.execute(statement).all(), columns=keys)
@@ -253,13 +290,21 @@ def load_samples(session: Session, machine_ids=None) -> pd.DataFrame:
         frame[column] = pd.to_datetime(frame[column])
     frame = frame.astype({c: float for c in _SAMPLE_FLOATS})
     frame["low_count"] = frame["low_count"].astype(bool)
-    return frame[list(SAMPLE_COLUMNS)]
+    frame = frame[list(SAMPLE_COLUMNS)]
+    return frame if known_by is None else samples_known_by(frame, known_by)
 
 
-def _sample_columns(keys: list[str], rows: list[tuple]) -> pd.DataFrame | None:
+@functools.cache
+def datetime_unit() -> np.dtype:
+    """The unit pd.to_datetime gives Python datetimes in (it has changed between pandas versions; asked once)."""
+    return pd.to_datetime(pd.Series([datetime(2021, 1, 4, 8)], dtype=object)).dtype
+
+
+def _sample_columns(keys: list[str], rows: list[tuple], known_by: pd.Timestamp | None = None) -> pd.DataFrame | None:
     """load_samples' frame from SQLite's own rows, each column an array at once (numpy reads SQLAlchemy's stored
-    time text exactly); None where that does not apply (no rows, a time column all empty, times in another form),
-    for the pandas steps. tests/test_analysis_service.py compares the two."""
+    time text exactly), with ``known_by`` kept as samples_known_by keeps them; None where that does not apply (no
+    rows, a time column all empty, times in another form), for the pandas steps. tests/test_analysis_service.py
+    compares the two."""
     if not rows:
         return None
     columns = dict(zip(keys, zip(*rows, strict=True), strict=True))
@@ -269,13 +314,17 @@ def _sample_columns(keys: list[str], rows: list[tuple]) -> pd.DataFrame | None:
         text = [v for v in values if v is not None]
         if not text or not all(isinstance(v, str) and len(v) == _STORED_TIME for v in text):
             return None
-        # In the unit pd.to_datetime gives the driver-processed datetimes (asked of the first one).
-        unit = pd.to_datetime(pd.Series([datetime.fromisoformat(text[0])], dtype=object)).dtype
-        out[name] = np.array(["NaT" if v is None else v for v in values], dtype="datetime64[us]").astype(unit)
+        # In the unit pd.to_datetime gives the driver-processed datetimes.
+        out[name] = np.array(["NaT" if v is None else v for v in values], dtype="datetime64[us]").astype(
+            datetime_unit())
     frame = {"machine_id": np.array(columns["machine_id"], dtype=np.int64), **out,
              **{c: np.array(columns[c], dtype=float) for c in _SAMPLE_FLOATS},
              "low_count": np.array(columns["low_count"], dtype=bool)}
-    return pd.DataFrame({c: frame[c] for c in SAMPLE_COLUMNS})
+    frame = {c: frame[c] for c in SAMPLE_COLUMNS}
+    taken = None if known_by is None else _known_columns(frame, known_by)
+    if taken is None:
+        return pd.DataFrame(frame)
+    return pd.DataFrame(taken[0], index=pd.RangeIndex(len(rows))[taken[1]])  # the rows samples_known_by keeps
 
 
 def load_frames(session: Session, pump_ids=None, as_of=None) -> FleetFrames:
@@ -314,24 +363,32 @@ _LAB_RESULTS = ("reported_at", "code_4", "code_6", "code_14", "water_ppm", "visc
 def samples_known_by(samples: pd.DataFrame, moment: pd.Timestamp) -> pd.DataFrame:
     """The lab samples taken by ``moment``, with the results not reported by then blanked.
 
-    Built column by column from arrays: two masked .loc assignments cost more than the rest of one pump's load
-    (tests/test_analysis_service.py compares this with the pandas steps it replaced)."""
-    sampled = samples["sampled_at"].to_numpy()
-    reported = samples["reported_at"].to_numpy()
+    Built column by column from arrays (_known_columns): two masked .loc assignments cost more than the rest of one
+    pump's load (tests/test_analysis_service.py compares this with the pandas steps it replaced)."""
+    known = _known_columns({name: samples[name].to_numpy() for name in samples.columns}, moment)
+    if known is None:
+        return samples  # every sample taken and reported by then (the usual case for one machine's few samples)
+    return pd.DataFrame(known[0], index=samples.index[known[1]], columns=samples.columns)
+
+
+def _known_columns(columns: dict[str, np.ndarray], moment: pd.Timestamp) -> tuple[dict, np.ndarray] | None:
+    """samples_known_by on the samples' columns (name -> array): the columns of the samples taken by ``moment``
+    (fresh arrays) with the results not reported by then blanked, and the mask of the samples taken; None when
+    every sample is taken and reported by then (nothing to change)."""
+    sampled, reported = columns["sampled_at"], columns["reported_at"]
     moment64 = np.datetime64(pd.Timestamp(moment).to_datetime64())
     taken = sampled <= moment64
     pending = np.isnat(reported) | (reported > moment64)
     if taken.all() and not pending.any():
-        return samples  # every sample taken and reported by then (the usual case for one machine's few samples)
+        return None
     pending = pending[taken]
-    if not pending.any():  # every result in: nothing to blank
-        return samples[taken]
-    columns = {}
-    for name in samples.columns:
-        values = samples[name].to_numpy()[taken]  # a fresh array (boolean indexing copies)
-        if name in _LAB_RESULTS:
+    blank = pending.any()  # else every result in: nothing to blank
+    known = {}
+    for name, values in columns.items():
+        values = values[taken]  # a fresh array (boolean indexing copies)
+        if blank and name in _LAB_RESULTS:
             values[pending] = np.datetime64("NaT") if values.dtype.kind == "M" else np.nan
-        elif name == "low_count":
+        elif blank and name == "low_count":
             values[pending] = False
-        columns[name] = values
-    return pd.DataFrame(columns, index=samples.index[taken], columns=samples.columns)
+        known[name] = values
+    return known, taken

@@ -40,18 +40,21 @@ def snapshot_values(record: dict) -> dict:
     return values
 
 
-def _moved(before: ForecastSnapshot, after: dict) -> bool:
+def _moved(before, after: dict) -> bool:
     return any(getattr(before, name) != after[name] for name in MOVED_WHEN)
 
 
-def latest_snapshots(session: Session, pump_ids: list[int]) -> dict[int, ForecastSnapshot]:
-    """pump_id -> its latest snapshot, for the pumps that have one."""
+def latest_snapshots(session: Session, pump_ids: list[int]) -> dict:
+    """pump_id -> its latest snapshot's id, pump, time and the fields the rule compares (MOVED_WHEN), as a row
+    (plain columns, not the ORM object: a store asks this of every pump it writes), for the pumps that have one."""
     out = {}
     for first in range(0, len(pump_ids), _IN_CHUNK):
         part = pump_ids[first:first + _IN_CHUNK]
         newest = (select(ForecastSnapshot.pump_id, func.max(ForecastSnapshot.made_at).label("made_at"))
                   .where(ForecastSnapshot.pump_id.in_(part)).group_by(ForecastSnapshot.pump_id).subquery())
-        rows = session.scalars(select(ForecastSnapshot).join(
+        rows = session.execute(select(
+            ForecastSnapshot.id, ForecastSnapshot.pump_id, ForecastSnapshot.made_at,
+            *(getattr(ForecastSnapshot, name) for name in MOVED_WHEN)).join(
             newest, (newest.c.pump_id == ForecastSnapshot.pump_id) & (newest.c.made_at == ForecastSnapshot.made_at)))
         out.update({row.pump_id: row for row in rows})
     return out

@@ -11,6 +11,7 @@ rewritten, no pump's row. Each stored pump's forecast is also kept
 in the forecast record when it moved (fleet.services.analysis.snapshots states the rule).
 """
 
+from collections import Counter
 from dataclasses import dataclass
 from datetime import datetime
 
@@ -98,9 +99,10 @@ def store(session: Session, computed: Computed, settings: AnalysisSettings | Non
             if version is not None:
                 before[pump_id] = _Stored(version, (kind, age, horizon), status, reasons)
     keep = [p for p in ids if p in existing and computed.versions.get(p, 0) >= getattr(before.get(p), "version", -1)]
-    kept = results.loc[keep]
+    whole = len(keep) == len(ids)  # every pump kept (the usual case): the frames as they are, no masks copying them
+    kept = results if whole else results.loc[keep]
     records = results_to_records(kept)
-    lives = computed.lives[computed.lives["pump_id"].isin(keep)]
+    lives = computed.lives if whole else computed.lives[computed.lives["pump_id"].isin(keep)]
     kind_changes = _kind_changes(session, records, lives, before)
     refit, lives_moved = kind_changes.refit, kind_changes.lives_moved
     known = set(session.scalars(select(FleetPrior.kind)))
@@ -116,7 +118,8 @@ def store(session: Session, computed: Computed, settings: AnalysisSettings | Non
     for part in _chunks(sorted(lives_moved)):
         session.execute(delete(ServiceLife).where(ServiceLife.pump_id.in_(part)))
     _insert_results(session, records, computed)
-    _insert_trends(session, computed.trends[computed.trends["pump_id"].isin(keep)], computed.computed_at)
+    _insert_trends(session, computed.trends if whole else computed.trends[computed.trends["pump_id"].isin(keep)],
+                   computed.computed_at)
     keep_forecasts(session, records, computed.computed_at)
     moved_lives = lives[lives["pump_id"].isin(lives_moved)]
     if len(moved_lives):
@@ -130,9 +133,8 @@ def store(session: Session, computed: Computed, settings: AnalysisSettings | Non
     if computed.full or session.scalar(select(AnalysisResult.pump_id).where(AnalysisResult.order_key.is_(None))
                                        .limit(1)) is not None:
         rerank(session)  # rows stored before keys existed (an indexed look-up finds none once keyed)
-    by_status = kept["status"].value_counts().to_dict()
-    return RefreshSummary(len(records), {str(k): int(v) for k, v in by_status.items()}, computed.full,
-                          computed.computed_at, alerts)
+    by_status = Counter(str(record["status"]) for record in records if record.get("status") is not None)
+    return RefreshSummary(len(records), dict(by_status), computed.full, computed.computed_at, alerts)
 
 
 @dataclass

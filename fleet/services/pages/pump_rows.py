@@ -8,6 +8,7 @@ come from the same queries, so nothing is read twice.
 Nothing is kept between requests: a write shows on the next page.
 """
 
+import functools
 from dataclasses import dataclass
 from datetime import datetime
 
@@ -30,7 +31,13 @@ from fleet.db.models import (
 )
 from fleet.frames import EVENT_COLUMNS, FLOW_POINT_COLUMNS, PUMP_COLUMNS, READING_COLUMNS
 from fleet.physics.pump import theoretical_flow_lpm
-from fleet.services.analysis.frames import driver_rows, effective_limits, oil_of_one
+from fleet.services.analysis.frames import (
+    datetime_unit,
+    driver_rows,
+    effective_limits,
+    effective_limits_of_one,
+    oil_of_one,
+)
 
 # The columns of the readings the page shows besides the core's.
 READING_EXTRAS = ("source", "taken_by")
@@ -122,9 +129,11 @@ def _pump_frame(session: Session, pump: Pump, here: Stay | None) -> pd.DataFrame
                    currency=site.currency)
     if row["max_flow_lpm"] is None:
         row["max_flow_lpm"] = theoretical_flow_lpm(pump.displacement_cc, pump.rated_speed_rpm)
-    defaults = pd.DataFrame(session.execute(select(LimitDefault.__table__)).mappings().all(),
-                            columns=[c.key for c in LimitDefault.__table__.columns])
-    frame = effective_limits(pd.DataFrame([row]), defaults)
+    keys, rows = driver_rows(session, select(LimitDefault.__table__))
+    defaults = [dict(zip(keys, values, strict=True)) for values in rows]
+    frame = effective_limits_of_one(row, defaults)
+    if frame is None:  # a row the one-row path does not cover: the frame path
+        frame = effective_limits(pd.DataFrame([row]), pd.DataFrame(defaults, columns=keys))
     missing = [c for c in PUMP_COLUMNS if c not in frame]
     assert not missing, missing
     return frame
@@ -145,10 +154,14 @@ def _times(values: tuple) -> np.ndarray:
     """Times from the driver as pd.to_datetime(format="ISO8601") reads them. SQLite gives SQLAlchemy's text, all
     of one fixed form, which numpy parses exactly and many times faster; anything else goes to pandas."""
     if values and all(isinstance(v, str) and len(v) == _STORED_TIME for v in values):
-        # In the unit pandas gives such text (asked of the first value: it has changed between versions).
-        unit = pd.to_datetime(pd.Series(values[:1], dtype=object), format="ISO8601").dtype
-        return np.array(values, dtype="datetime64[us]").astype(unit)
+        return np.array(values, dtype="datetime64[us]").astype(_text_unit())
     return pd.to_datetime(pd.Series(values, dtype=object), format="ISO8601").to_numpy()
+
+
+@functools.cache
+def _text_unit() -> np.dtype:
+    """The unit pandas reads SQLAlchemy's time text in (it has changed between versions; asked once)."""
+    return pd.to_datetime(pd.Series(["2021-01-04 08:00:00.000000"], dtype=object), format="ISO8601").dtype
 
 
 def _numbers(values: tuple) -> np.ndarray:
@@ -156,8 +169,26 @@ def _numbers(values: tuple) -> np.ndarray:
     return np.array(values, dtype=float)
 
 
-def pump_rows(session: Session, pump: Pump, as_of: datetime) -> PumpRows:
-    """Everything about ``pump`` the page draws, with the core's frames as known at ``as_of``."""
+@dataclass
+class CoreRows:
+    """The core's frames of one pump as known at a moment (what its analysis reads), with the rows the page
+    makes its own from."""
+
+    pumps: pd.DataFrame
+    readings: pd.DataFrame
+    events: pd.DataFrame
+    flow_points: pd.DataFrame
+    all_readings: pd.DataFrame
+    all_flow_points: pd.DataFrame
+    stays: list[Stay]
+    reading_id: np.ndarray  # the readings' ids in the stored order (that of ``got``)
+    got: dict[str, tuple]  # the readings' columns as the driver gave them
+    got_events: dict[str, tuple]  # the maintenance records' columns (with the page's fields) as the driver gave them
+
+
+def core_rows(session: Session, pump: Pump, as_of: datetime) -> CoreRows:
+    """The frames of ``pump`` the core reads, as known at ``as_of`` (load_frames' for this pump), from the few
+    queries the page reads too; each frame made once from its columns."""
     stays = _stays(session, pump.id)
     got = _driver_columns(session, select(
         Reading.id.label("reading_id"), Reading.pump_id, Reading.taken_at, Reading.hours, Reading.pressure_bar,
@@ -168,6 +199,7 @@ def pump_rows(session: Session, pump: Pump, as_of: datetime) -> PumpRows:
     columns = {"reading_id": np.array(got["reading_id"], dtype=np.int64),
                "pump_id": np.array(got["pump_id"], dtype=np.int64), "taken_at": taken,
                **{c: _numbers(got[c]) for c in _NUMBERS}}
+    reading_id = columns["reading_id"]
     columns = {c: v[order] for c, v in columns.items()}
     columns.update(_oil(columns["taken_at"], stays))
     all_readings = pd.DataFrame({c: columns[c] for c in READING_COLUMNS})
@@ -175,30 +207,53 @@ def pump_rows(session: Session, pump: Pump, as_of: datetime) -> PumpRows:
                                              FlowTestPoint.flow_lpm)
                              .join(Reading, Reading.id == FlowTestPoint.reading_id).where(Reading.pump_id == pump.id))
     points = pd.DataFrame({"reading_id": np.array(points["reading_id"], dtype=np.int64),
-                           "pressure_bar": _numbers(points["pressure_bar"]), "flow_lpm": _numbers(points["flow_lpm"])})
-    events = pd.DataFrame(session.execute(
-        select(MaintenanceEvent.pump_id, MaintenanceEvent.date, MaintenanceEvent.hours, MaintenanceEvent.kind,
-               MaintenanceEvent.cost, MaintenanceEvent.id.label("event_id"), MaintenanceEvent.downtime_h,
-               MaintenanceEvent.failure_mode, MaintenanceEvent.note)
-        .where(MaintenanceEvent.pump_id == pump.id)).all(), columns=[*EVENT_COLUMNS, *EVENT_EXTRAS])
-    events["date"] = pd.to_datetime(events["date"])
-    events = events.astype({"hours": float, "cost": float})
+                           "pressure_bar": _numbers(points["pressure_bar"]), "flow_lpm": _numbers(points["flow_lpm"])},
+                          columns=list(FLOW_POINT_COLUMNS))
+    got_events = _driver_columns(session, select(
+        MaintenanceEvent.pump_id, MaintenanceEvent.date, MaintenanceEvent.hours, MaintenanceEvent.kind,
+        MaintenanceEvent.cost, MaintenanceEvent.id.label("event_id"), MaintenanceEvent.downtime_h,
+        MaintenanceEvent.failure_mode, MaintenanceEvent.note).where(MaintenanceEvent.pump_id == pump.id))
+    events = _events(got_events, list(EVENT_COLUMNS))
 
     moment = np.datetime64(pd.Timestamp(as_of).to_datetime64())  # what was known by then, as frames.known_by keeps
-    known = all_readings["taken_at"].to_numpy() <= moment
+    known = columns["taken_at"] <= moment
     readings = all_readings if known.all() else all_readings[known]
-    extras = pd.DataFrame({c: pd.Series(list(got[c])) for c in READING_EXTRAS})  # types as a frame infers them
-    extras.index = pd.Index(columns["reading_id"], name="reading_id")
-    return PumpRows(
+    done = events["date"].to_numpy() <= moment
+    return CoreRows(
         pumps=_pump_frame(session, pump, _here(stays)),
         readings=readings,
-        events=events.loc[events["date"] <= moment, list(EVENT_COLUMNS)],
-        flow_points=points.loc[points["reading_id"].isin(readings["reading_id"]), list(FLOW_POINT_COLUMNS)],
+        # A frame kept whole is the frame itself: a mask of all true would copy it (frames.known_by's rows).
+        events=events if done.all() else events.loc[done],
+        flow_points=points if known.all() else points.loc[points["reading_id"].isin(readings["reading_id"])],
+        all_readings=all_readings, all_flow_points=points, stays=stays, reading_id=reading_id, got=got,
+        got_events=got_events)
+
+
+def _events(got: dict[str, tuple], names: list[str]) -> pd.DataFrame:
+    """The maintenance records' columns ``names`` from the driver's (``got``), in the stored order: times as
+    load_events reads them (_times, in the unit pandas gives the datetimes load_events reads, whatever form the
+    driver's times came in), hours and cost floats, the other columns as a frame infers them from the rows."""
+    if not got["pump_id"]:  # none: the empty frame's object columns, as load_events makes them
+        events = pd.DataFrame([], columns=names)
+        events["date"] = pd.to_datetime(events["date"])
+        return events.astype({"hours": float, "cost": float})
+    return pd.DataFrame({name: (_times(got[name]).astype(datetime_unit()) if name == "date" else _numbers(got[name])
+                                if name in ("hours", "cost") else list(got[name])) for name in names}, columns=names)
+
+
+def pump_rows(session: Session, pump: Pump, as_of: datetime) -> PumpRows:
+    """Everything about ``pump`` the page draws, with the core's frames as known at ``as_of`` (core_rows)."""
+    core = core_rows(session, pump, as_of)
+    extras = pd.DataFrame({c: pd.Series(list(core.got[c])) for c in READING_EXTRAS})  # types as a frame infers them
+    extras.index = pd.Index(core.reading_id, name="reading_id")
+    return PumpRows(
+        pumps=core.pumps, readings=core.readings, events=core.events, flow_points=core.flow_points,
         reading_extras=extras,
-        all_readings=all_readings,
-        all_events=events.sort_values("date", kind="stable").reset_index(drop=True),
-        all_flow_points=points,
-        stays=stays,
+        all_readings=core.all_readings,
+        all_events=_events(core.got_events, [*EVENT_COLUMNS, *EVENT_EXTRAS]).sort_values(
+            "date", kind="stable").reset_index(drop=True),
+        all_flow_points=core.all_flow_points,
+        stays=core.stays,
     )
 
 
