@@ -36,3 +36,6 @@ freeze_panes  # openpyxl reads these attributes of a sheet and a cell when it sa
 number_format
 hint  # a rounds form field's line under it, read by templates/rounds/walk.html
 value_cdf  # the averaged trend's distribution at given hours: the crossing searches' tests hold them to it
+# The crossing searches' one-case forms, which the tests use as the references crossing_bands is held to.
+crossing_quantiles  # tests/test_model_average_steps.py builds the per-law reference from it
+crossing_band  # one case of crossing_bands; tests/test_trend_wear_shared_shape.py reads a band through it
