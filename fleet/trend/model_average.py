@@ -505,6 +505,8 @@ def crossing_bands(cases, confidence: float) -> list[tuple[np.ndarray, np.ndarra
 def _block_crossings(cases, blocks, confidence: float) -> list[list[np.ndarray]]:
     """Per block (case, fits, levels, the groups each level is wanted for): crossing_quantiles' figures for the
     groups wanted (NaN elsewhere), every block's groups stacked as the groups of one search."""
+    if not blocks:  # no plausible law in any case (no fitted interval, or an empty fleet)
+        return []
     pairs, limits, nows, groups, levels, places = [], [], [], [], [], []
     offset = 0
     for c, fits, block_levels, wanted in blocks:
