@@ -108,6 +108,7 @@ def main(argv: list[str] | None = None) -> dict:
             recorded = pickle.load(file)
     else:
         recorded = _record(sessions)
+    sessions.kw["bind"].dispose()  # the app's engine: no connection left open for the garbage collector to find
     if args.save:
         with open(args.save, "wb") as file:
             pickle.dump(recorded, file)
