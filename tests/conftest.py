@@ -10,7 +10,7 @@ from dataclasses import dataclass
 from pathlib import Path
 
 import pytest
-from sqlalchemy import Engine, select, text
+from sqlalchemy import Engine, func, select, text
 from sqlalchemy.engine import make_url
 from sqlalchemy.orm import Session, sessionmaker
 from sqlalchemy.pool import NullPool
@@ -60,6 +60,24 @@ def db(empty_database_url) -> TestDatabase:
         ensure_limit_defaults(session)
     yield TestDatabase(empty_database_url, engine, sessions)
     engine.dispose()
+
+
+@pytest.fixture
+def small_register(db) -> "TestDatabase":
+    """The migrated database with the small invented register of tests/data/pumps_small.csv (T-101 to T-103)."""
+    from fleet.services.transfer.importing import import_file
+
+    with db.sessions.begin() as session:
+        import_file(session, "pumps", DATA / "pumps_small.csv")
+    return db
+
+
+def readings_stored(db) -> int:
+    """How many readings ``db`` holds."""
+    from fleet.db.models import Reading
+
+    with db.sessions() as session:
+        return session.scalar(select(func.count()).select_from(Reading))
 
 
 @pytest.fixture
