@@ -249,7 +249,13 @@ def _insert_results(session: Session, records: list[dict], computed: Computed) -
 def order_keys(records: list[dict]) -> np.ndarray:
     """The records' service order keys, from the few fields the order reads (a frame of every field costs more
     than the keys)."""
-    return service_order_keys(pd.DataFrame({name: [record.get(name) for record in records] for name in ORDER_FIELDS}))
+    text = {"pump", "status", "limit_date_low"}
+    # Each field as the array a frame of the records would hold (floats; text with NaN where it is missing), without
+    # the frame: for a write's pump or two, the frame's own machinery costs more than the keys.
+    return service_order_keys({
+        name: np.array([np.nan if record.get(name) is None else record[name] for record in records],
+                       dtype=object if name in text else float)
+        for name in ORDER_FIELDS})
 
 
 def _insert_trends(session: Session, trends: pd.DataFrame, computed_at: datetime) -> None:
