@@ -81,7 +81,7 @@ def keep_forecasts(session: Session, records: list[dict], made_at: datetime) -> 
                 continue
         inserts.append({"pump_id": int(record["pump_id"]), "made_at": made_at, **values})
     if inserts:
-        session.execute(insert(ForecastSnapshot), inserts)
+        session.execute(insert(ForecastSnapshot.__table__), inserts)
     if updates:
         session.execute(update(ForecastSnapshot), updates)
     return len(inserts) + len(updates)

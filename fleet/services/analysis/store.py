@@ -136,7 +136,7 @@ def store(session: Session, computed: Computed, settings: AnalysisSettings | Non
     keep_forecasts(session, records, computed.computed_at)
     moved_lives = lives[lives["pump_id"].isin(lives_moved)]
     if len(moved_lives):
-        session.execute(insert(ServiceLife), [
+        session.execute(insert(ServiceLife.__table__), [
             {"pump_id": int(p), "interval_no": int(n), "entry_hours": float(e), "life_hours": float(h),
              "failed": bool(f)}
             for p, n, e, h, f in zip(moved_lives["pump_id"], moved_lives["interval_no"], moved_lives["entry_hours"],
@@ -253,7 +253,7 @@ def _insert_results(session: Session, records: list[dict], computed: Computed) -
             "detail": json_ready(detail), "data_version": computed.versions.get(record["pump_id"], 0),
             **{k: record.get(k) for k in (*COLUMNS, *ORDER_COLUMNS, *PRIOR_COLUMNS)},
         })
-    session.execute(insert(AnalysisResult), rows)
+    session.execute(insert(AnalysisResult.__table__), rows)
 
 
 def order_keys(records: list[dict]) -> np.ndarray:
@@ -270,7 +270,7 @@ def order_keys(records: list[dict]) -> np.ndarray:
 
 def _insert_trends(session: Session, trends: pd.DataFrame, computed_at: datetime) -> None:
     if len(trends):
-        session.execute(insert(IntervalTrend), [
+        session.execute(insert(IntervalTrend.__table__), [
             {"pump_id": int(p), "interval_no": int(n), "computed_at": computed_at, "is_current": bool(c),
              "start_hours": json_ready(s), "current_hours": json_ready(h), "enough_data": bool(e), "fit": fit}
             for p, n, c, s, h, e, fit in zip(trends["pump_id"], trends["interval_no"], trends["is_current"],
@@ -359,7 +359,7 @@ def refit_kinds(session: Session, kinds, now: datetime, settings: AnalysisSettin
         priors["expected_overhauls_in_horizon"] = np.nan
     session.execute(delete(FleetPrior).where(FleetPrior.kind.in_(kinds)))
     if len(priors):
-        session.execute(insert(FleetPrior), [
+        session.execute(insert(FleetPrior.__table__), [
             {"kind": str(kind), "computed_at": now, "detail": json_ready(row.to_dict())}
             for kind, row in priors.iterrows()])
     session.flush()
