@@ -354,9 +354,12 @@ def _round_body(session, serial: str, at: pd.Timestamp) -> dict:
 
     from fleet.db.models import Pump, Reading
 
-    last, before = session.execute(select(Reading).join(Pump).where(Pump.serial == serial)
-                                   .order_by(Reading.taken_at.desc()).limit(2)).scalars().all()
-    per_day = (last.hours - before.hours) / max((last.taken_at - before.taken_at).total_seconds() / 86400.0, 1e-9)
+    last, *before = session.execute(select(Reading).join(Pump).where(Pump.serial == serial)
+                                    .order_by(Reading.taken_at.desc()).limit(2)).scalars().all()
+    per_day = 24.0  # a pump with one reading: running all day since
+    if before:
+        per_day = (last.hours - before[0].hours) / max((last.taken_at - before[0].taken_at).total_seconds() / 86400.0,
+                                                        1e-9)
     days = (at - pd.Timestamp(last.taken_at)).total_seconds() / 86400.0
     body = {"pump": serial, "taken_at": at.strftime("%Y-%m-%d %H:%M"), "hours": last.hours + max(per_day, 0.0) * days,
             "outlet_pressure": last.pressure_bar, "speed": last.speed_rpm, "oil_temp": last.temp_c}
