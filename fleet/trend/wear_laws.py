@@ -513,11 +513,13 @@ def _through_origin(group, x, y, w, n_groups, huber_k: float) -> tuple[np.ndarra
     Huber weights about the line (the scale as fleet.trend.robust.robust_scale), so that a gross outlier of y
     moves k little; returns k and the last Huber weights."""
     robust = np.ones_like(y)
+    root_w = np.sqrt(w)
     for _ in range(4):
-        sxx = np.bincount(group, w * robust * x * x, minlength=n_groups)
+        wx = w * robust * x  # the common factor of both sums, multiplied in the same order as each of them
+        sxx = np.bincount(group, wx * x, minlength=n_groups)
         with np.errstate(invalid="ignore", divide="ignore"):
-            k = np.where(sxx > 0, np.bincount(group, w * robust * x * y, minlength=n_groups) / sxx, np.nan)
-            z = (y - k[group] * x) * np.sqrt(w)
+            k = np.where(sxx > 0, np.bincount(group, wx * y, minlength=n_groups) / sxx, np.nan)
+            z = (y - k[group] * x) * root_w
             u = np.abs(z) / _mad_scale(group, np.nan_to_num(z), n_groups)[group]
             robust = np.where(u > huber_k, huber_k / u, 1.0)
     return k, robust
@@ -539,7 +541,9 @@ def _mad_scale(group, z, n_groups) -> np.ndarray:
             by_group = np.argsort(group, kind="stable")
             group, a = group[by_group], a[by_group]
         block = np.full((n_groups, width), np.inf)
-        block[group, np.arange(a.size) - (np.cumsum(count) - count)[group]] = a
+        # each value at its group's row, in the place after its group's earlier ones (one flat index)
+        block.ravel()[np.arange(a.size) + np.repeat(np.arange(n_groups) * width - (np.cumsum(count) - count),
+                                                    count)] = a
         block.sort(axis=1)
         picks = np.arange(n_groups)
         lo = block[picks, np.maximum((count - 1) // 2, 0)]
