@@ -142,9 +142,11 @@ class LawFits:
 
     def t_ratio(self, confidence: float) -> np.ndarray:
         """z / t per group and member at the two-sided level: Phi(T z / t) then has the member's t quantiles
-        there (computed once; t quantiles are slow)."""
+        there (computed once; t quantiles are slow: one per distinct dof, the counts of readings being few)."""
         if confidence not in self._t_ratio:
-            self._t_ratio[confidence] = special.ndtri(0.5 + confidence / 2.0) / t_quantile(confidence, self.dof)
+            distinct, at = np.unique(self.dof, return_inverse=True)
+            t = t_quantile(confidence, distinct)[at.reshape(self.dof.shape)]
+            self._t_ratio[confidence] = special.ndtri(0.5 + confidence / 2.0) / t
         return self._t_ratio[confidence]
 
     def weigh(self, law_score: np.ndarray, member_score: np.ndarray, log_prior: np.ndarray | None = None) -> None:
