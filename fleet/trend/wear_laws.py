@@ -343,19 +343,23 @@ def run_in_dx_du(u, tau: float, share: float) -> np.ndarray:
 _BLOCK_CELLS = 1 << 16
 
 
-def _family_x(family: str, u: np.ndarray, log_u: np.ndarray) -> np.ndarray:
+def _family_x(family: str, u: np.ndarray, log_u: np.ndarray, out: np.ndarray | None = None) -> np.ndarray:
     """x of every member of a family at u (readings x the family's members, in MEMBERS' order), each column as
     member_x gives it: the power law's u^p by one outer product of ln u, the run-in law's saturating part once
-    per time constant for all its shares (MEMBERS holds them time constant by time constant)."""
+    per time constant for all its shares (MEMBERS holds them time constant by time constant). out: a block of
+    that shape to fill (every step in place: a fresh block of this size costs more than the arithmetic)."""
+    if out is None:
+        out = np.empty((len(u), len(_FAMILY_POWERS) if family == "power" else _RUN_IN_SCALE.size * _RUN_IN_SHARES.size))
     if family == "power":
-        return np.exp(log_u[:, None] * _FAMILY_POWERS[None, :])
+        return np.exp(np.multiply(log_u[:, None], _FAMILY_POWERS[None, :], out=out), out=out)
     rise = np.negative(np.expm1(np.divide(-u[:, None], _RUN_IN_TAUS[None, :])))
-    # rise s / (1 - e^(-1/tau)) + u (1 - s), each step in place (fresh blocks cost more than the arithmetic)
-    x = np.multiply(rise[:, :, None], _RUN_IN_SHARES[None, None, :])
+    # rise s / (1 - e^(-1/tau)) + u (1 - s)
+    x = out.reshape(len(u), _RUN_IN_TAUS.size, _RUN_IN_SHARES.size)
+    np.multiply(rise[:, :, None], _RUN_IN_SHARES[None, None, :], out=x)
     np.divide(x, _RUN_IN_SCALE[None, :, None], out=x)
     steady = np.multiply(u[:, None, None], (1.0 - _RUN_IN_SHARES)[None, None, :])
     np.add(x, steady, out=x)
-    return x.reshape(len(u), -1)
+    return out
 
 
 def _segment_sum(values: np.ndarray, edges: list[tuple[int, int]], cells: np.ndarray | None = None) -> np.ndarray:
@@ -376,12 +380,14 @@ def _segment_sum(values: np.ndarray, edges: list[tuple[int, int]], cells: np.nda
 _NARROW = 32  # up to this many columns a block's sums go by np.bincount (a row reduce pays its loop per row)
 
 
-def _segment_cells(local: np.ndarray, columns: int) -> np.ndarray | None:
+def _segment_cells(local: np.ndarray, columns: int, out: np.ndarray | None = None) -> np.ndarray | None:
     """The bin of each cell of a block (readings x columns, C order) for _segment_sum: its segment x columns + its
-    column; None for a wide block."""
+    column; None for a wide block. out: a block of integers (readings x columns) to fill."""
     if columns > _NARROW:
         return None
-    return (local[:, None] * columns + np.arange(columns)[None, :]).ravel()
+    if out is None:
+        out = np.empty((len(local), columns), dtype=np.int64)
+    return np.add((local * columns)[:, None], np.arange(columns)[None, :], out=out).ravel()
 
 
 def _fit_family_members(family, group, hours, q, sigma, robust_w, clip, hours_scale, offset, n_groups, out,
@@ -414,20 +420,30 @@ def _fit_family_members(family, group, hours, q, sigma, robust_w, clip, hours_sc
     seg_start = np.concatenate([[0], np.cumsum(count[fitted])[:-1]]).astype(np.int64)
     seg_end = seg_start + count[fitted].astype(np.int64)
     per_block = max(_BLOCK_CELLS // len(n_params), 1)
+    blocks = []  # whole groups up to about per_block readings (at least one group)
     first = 0
     while first < len(fitted):
-        # whole groups up to about per_block readings (at least one group)
         last = max(int(np.searchsorted(seg_end, seg_start[first] + per_block, side="right")), first + 1)
+        blocks.append((first, last))
+        first = last
+    # The blocks' x, two scratch blocks for every product, and the sums' bins: made once for the largest block
+    # and filled in place (fresh blocks of this size cost more than the arithmetic on them)
+    columns = len(n_params)
+    most = max((int(seg_end[last - 1] - seg_start[first]) for first, last in blocks), default=0) * columns
+    x_cells, wx_cells, part_cells = np.empty(most), np.empty(most), np.empty(most)
+    bin_cells = np.empty(most if columns <= _NARROW else 0, dtype=np.int64)
+    for first, last in blocks:
         lo, hi = seg_start[first], seg_end[last - 1]
+        shape = (int(hi - lo), columns)
         gs = fitted[first:last]
         edges = list(zip((seg_start[first:last] - lo).tolist(), (seg_end[first:last] - lo).tolist(), strict=True))
         local = np.repeat(np.arange(last - first), count[gs].astype(np.int64))
-        x = _family_x(family, u[lo:hi], log_u[lo:hi])
-        cells = _segment_cells(local, x.shape[1])
+        size = shape[0] * columns
+        x = _family_x(family, u[lo:hi], log_u[lo:hi], out=x_cells[:size].reshape(shape))
+        cells = _segment_cells(local, columns, bin_cells[:size].reshape(shape) if bin_cells.size else None)
         qb, mb, wb = q[lo:hi, None], model_w[lo:hi, None], w[lo:hi, None]
-        # two scratch blocks, reused for every product (fresh ones would cost more than the arithmetic)
-        wx = wb * x
-        part = np.multiply(wx, x)
+        wx = np.multiply(wb, x, out=wx_cells[:size].reshape(shape))
+        part = np.multiply(wx, x, out=part_cells[:size].reshape(shape))
         sx = _segment_sum(wx, edges, cells)
         sxx = _segment_sum(part, edges, cells)
         sxy = _segment_sum(np.multiply(wx, qb, out=part), edges, cells)
@@ -465,7 +481,6 @@ def _fit_family_members(family, group, hours, q, sigma, robust_w, clip, hours_sc
         for name, value in values.items():
             out[name][gs, cols] = value
         deviance[gs, cols] = psi2
-        first = last
     # A group without readings (among those refitted) has no line: as the sums over nothing give.
     empty = np.flatnonzero((count == 0) & (np.ones(n_groups, dtype=bool) if only is None else only))
     if empty.size:
