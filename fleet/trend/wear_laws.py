@@ -88,6 +88,10 @@ _FAMILY_POWERS = np.array([m.power for m in MEMBERS if m.law == "power"])
 _RUN_IN_TAUS = np.array(RUN_IN_TAUS)
 _RUN_IN_SHARES = np.array(RUN_IN_SHARES)
 _RUN_IN_SCALE = -np.expm1(-1.0 / _RUN_IN_TAUS)  # 1 - e^(-1/tau): a run-in member's rise at u = 1
+# ... per run-in member (time constant by time constant, each with every share), as _family_x's columns
+_RUN_IN_SHARE_COLUMNS = np.tile(_RUN_IN_SHARES, _RUN_IN_TAUS.size)
+_RUN_IN_SCALE_COLUMNS = np.repeat(_RUN_IN_SCALE, _RUN_IN_SHARES.size)
+_RUN_IN_STEADY_COLUMNS = np.tile(1.0 - _RUN_IN_SHARES, _RUN_IN_TAUS.size)
 # _family_x lays the run-in members out time constant by time constant, as MEMBERS holds them
 assert [(m.tau, m.share) for m in MEMBERS if m.law == "run_in"] == [
     (t, sh) for t in RUN_IN_TAUS for sh in RUN_IN_SHARES]
@@ -353,13 +357,11 @@ def _family_x(family: str, u: np.ndarray, log_u: np.ndarray, out: np.ndarray | N
     if family == "power":
         return np.exp(np.multiply(log_u[:, None], _FAMILY_POWERS[None, :], out=out), out=out)
     rise = np.negative(np.expm1(np.divide(-u[:, None], _RUN_IN_TAUS[None, :])))
-    # rise s / (1 - e^(-1/tau)) + u (1 - s)
-    x = out.reshape(len(u), _RUN_IN_TAUS.size, _RUN_IN_SHARES.size)
-    np.multiply(rise[:, :, None], _RUN_IN_SHARES[None, None, :], out=x)
-    np.divide(x, _RUN_IN_SCALE[None, :, None], out=x)
-    steady = np.multiply(u[:, None, None], (1.0 - _RUN_IN_SHARES)[None, None, :])
-    np.add(x, steady, out=x)
-    return out
+    # rise s / (1 - e^(-1/tau)) + u (1 - s), each step over whole rows of the block (the members' shares, scales
+    # and steady shares laid out as its columns: numpy's loops then run along the rows, not nine columns at a time)
+    np.multiply(np.repeat(rise, _RUN_IN_SHARES.size, axis=1), _RUN_IN_SHARE_COLUMNS, out=out)
+    np.divide(out, _RUN_IN_SCALE_COLUMNS, out=out)
+    return np.add(out, np.multiply(u[:, None], _RUN_IN_STEADY_COLUMNS), out=out)
 
 
 def _segment_sum(values: np.ndarray, edges: list[tuple[int, int]], cells: np.ndarray | None = None) -> np.ndarray:
