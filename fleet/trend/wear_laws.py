@@ -533,22 +533,28 @@ def _through_origin(group, x, y, w, n_groups, huber_k: float) -> tuple[np.ndarra
     moves k little; returns k and the last Huber weights."""
     robust = np.ones_like(y)
     root_w = np.sqrt(w)
+    # scratch arrays filled in place in every pass (fresh ones of a part's size fault their pages in afresh)
+    wx, term, z = np.empty_like(y), np.empty_like(y), np.empty_like(y)
+    block = []
     for _ in range(4):
-        wx = w * robust * x  # the common factor of both sums, multiplied in the same order as each of them
-        sxx = np.bincount(group, wx * x, minlength=n_groups)
+        # the common factor of both sums, w x robust x, multiplied in the same order as each of them
+        np.multiply(np.multiply(w, robust, out=wx), x, out=wx)
+        sxx = np.bincount(group, np.multiply(wx, x, out=term), minlength=n_groups)
         with np.errstate(invalid="ignore", divide="ignore"):
-            k = np.where(sxx > 0, np.bincount(group, wx * y, minlength=n_groups) / sxx, np.nan)
-            z = (y - k[group] * x) * root_w
-            u = np.abs(z) / _mad_scale(group, np.nan_to_num(z), n_groups)[group]
+            k = np.where(sxx > 0, np.bincount(group, np.multiply(wx, y, out=term), minlength=n_groups) / sxx, np.nan)
+            np.multiply(np.subtract(y, np.multiply(k[group], x, out=z), out=z), root_w, out=z)
+            scale = _mad_scale(group, np.nan_to_num(z, copy=True), n_groups, block)
+            u = np.divide(np.abs(z, out=term), scale[group], out=term)
             robust = np.where(u > huber_k, huber_k / u, 1.0)
     return k, robust
 
 
-def _mad_scale(group, z, n_groups) -> np.ndarray:
+def _mad_scale(group, z, n_groups, scratch: list | None = None) -> np.ndarray:
     """fleet.trend.robust.robust_scale (1.4826 x median |z| per group, never below 1) by one sort: called on the
     readings of many (group, member) pairs, where a grouped median's fixed cost would dominate. Each group's
     values sorted in a row of their own (padded), a far cheaper sort than one of every value by group; a lexical
-    sort where one group is so much longer than the rest that the rows would be mostly padding."""
+    sort where one group is so much longer than the rest that the rows would be mostly padding. scratch: a list
+    that keeps the padded block between calls of one shape (a caller's passes), refilled rather than made anew."""
     a = np.abs(z)
     count = np.bincount(group, minlength=n_groups)
     has = count > 0
@@ -559,7 +565,13 @@ def _mad_scale(group, z, n_groups) -> np.ndarray:
         if np.any(group[1:] < group[:-1]):
             by_group = np.argsort(group, kind="stable")
             group, a = group[by_group], a[by_group]
-        block = np.full((n_groups, width), np.inf)
+        if scratch is not None and scratch and scratch[0].size == n_groups * width:  # the caller's block, again
+            block = scratch[0].reshape(n_groups, width)
+            block.fill(np.inf)
+        else:
+            block = np.full((n_groups, width), np.inf)
+            if scratch is not None:
+                scratch[:] = [block]
         # each value at its group's row, in the place after its group's earlier ones (one flat index)
         block.ravel()[np.arange(a.size) + np.repeat(np.arange(n_groups) * width - (np.cumsum(count) - count),
                                                     count)] = a
