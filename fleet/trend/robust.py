@@ -116,11 +116,17 @@ def fit_reweighted(
         model_w = 1.0 / variance
         y_used = y + bias * variance
         z = (y_used - np.where(ok, fitted, y_used)) * np.sqrt(model_w)
-        u = np.abs(z) / robust_scale(group, z, n_groups)[group]
+        scale = robust_scale(group, z, n_groups)
+        u = np.abs(z) / scale[group]
         robust_w = huber_weights(u, k)
+        # Where every fitted value is finite these are the residuals about the line below, to the last bit: their
+        # scale is taken once.
+        about_line = ok.all()
 
-    z = (y_used - (a[group] + b[group] * x)) * np.sqrt(model_w)
-    clip_at = k * robust_scale(group, z, n_groups)[group]
+    if fixed or not about_line:
+        z = (y_used - (a[group] + b[group] * x)) * np.sqrt(model_w)
+        scale = robust_scale(group, z, n_groups)
+    clip_at = k * scale[group]
     count = np.bincount(group, minlength=n_groups).astype(float)
     psi2 = np.bincount(group, np.minimum(z * z, clip_at * clip_at), minlength=n_groups)
     inside = np.bincount(group, (np.abs(z) <= clip_at).astype(float), minlength=n_groups)
