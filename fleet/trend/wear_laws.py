@@ -402,10 +402,11 @@ def _fit_family_members(family, group, hours, q, sigma, robust_w, clip, hours_sc
     Every member at once: the readings sorted by group (stably, so each group's sums add in the readings' own
     order), the members' x as the columns of a block of readings, and each sum one segment sum over the block's
     rows; blocks of whole groups keep each pass in cache."""
-    keep = np.ones(len(group), dtype=bool) if only is None else only[group]
-    order = np.flatnonzero(keep)
-    order = order[np.argsort(group[order], kind="stable")]
-    group, hours, q, sigma, robust_w = group[order], hours[order], q[order], sigma[order], robust_w[order]
+    if only is not None or np.any(group[1:] < group[:-1]):  # (a part's readings come in order: taken as they are)
+        keep = np.ones(len(group), dtype=bool) if only is None else only[group]
+        order = np.flatnonzero(keep)
+        order = order[np.argsort(group[order], kind="stable")]
+        group, hours, q, sigma, robust_w = group[order], hours[order], q[order], sigma[order], robust_w[order]
     cols = _FAMILY_COLUMNS[family]
     n_params = _N_PARAMS[cols]
     model_w = 1.0 / sigma**2
