@@ -243,3 +243,27 @@ def test_lab_days_waiting_agree_between_sentence_and_table(client, demo_db):
     reasons = [r for p in late["pumps"] for c in data["status_changes"] + data["reason_changes"] if c["pump"] == p
                for r in c["reasons"] if "invented" not in r and "has waited" in r]
     assert reasons and all("has waited 17 days" in r for r in reasons)
+
+
+def test_status_changes_show_no_last_reading_date_as_a_limit_date_nor_a_far_date(client, demo_db):
+    """A pump past its limit has no date ahead: its stored limit_date is its last reading's, which the other pages
+    never show as its limit date (they show when its trend crossed, under Limits crossed here). A date more than
+    10 years ahead is 'beyond 10 years', as on the service list and the plan (fleet.horizon)."""
+    today = utcnow().date()
+    far, near = (today + timedelta(days=365 * 12)).isoformat(), (today + timedelta(days=60)).isoformat()
+    last_reading = (today - timedelta(days=1)).isoformat()
+    with demo_db.sessions.begin() as s:
+        s.execute(delete(StatusChange))
+        pumps = s.scalars(select(Pump.id).order_by(Pump.serial).limit(3)).all()
+        now = utcnow().replace(tzinfo=None) - timedelta(hours=1)
+        changes = zip(pumps, ("past_limit", "watch", "due_soon"), ("due_soon", "healthy", "watch"),
+                      (last_reading, far, near), strict=True)
+        for pump_id, status, previous, when in changes:
+            s.add(StatusChange(pump_id=pump_id, at=now, status=status, previous_status=previous, reasons=["r"],
+                               new_reasons=[], eta_v_ref=0.85, hours_to_limit=100.0, limit_date=when))
+    data = client.get("/review.json").get_json()
+    assert sorted(c["limit_date"] for c in data["status_changes"]) == sorted([last_reading, far, near])  # kept
+    html = client.get("/review").get_data(as_text=True)
+    changes = html.split('id="s-status_change"')[1].split("</section>")[0]
+    assert last_reading not in changes and far not in changes
+    assert "beyond 10 years" in changes and near in changes and 'href="#s-limit_crossed"' in changes
