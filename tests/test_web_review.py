@@ -267,3 +267,29 @@ def test_status_changes_show_no_last_reading_date_as_a_limit_date_nor_a_far_date
     changes = html.split('id="s-status_change"')[1].split("</section>")[0]
     assert last_reading not in changes and far not in changes
     assert "beyond 10 years" in changes and near in changes and 'href="#s-limit_crossed"' in changes
+
+
+def test_a_new_reason_that_sends_someone_to_the_pump_carries_the_caution(client, demo_db):
+    """As on the service list and in `fleet review`: a reason saying 'check the pump now' comes with the caution
+    before anyone opens the circuit (fleet.safety), and names the pump with a link to its page."""
+    from markupsafe import escape
+
+    from fleet.safety import CHECK_NOW
+    from fleet.safety import CHECK_NOW_CAUTION as caution
+
+    caution = str(escape(caution))
+    urgent = f"Case drain jumped to 2.2 times the median of this interval's earlier readings: {CHECK_NOW}."
+    calm = "Volumetric efficiency at reference 91.7 %; no limit expected within 12 weeks."
+    with demo_db.sessions.begin() as s:
+        s.execute(delete(StatusChange))
+        first, second = s.execute(select(Pump.id, Pump.serial).order_by(Pump.serial).limit(2)).all()
+        at = utcnow().replace(tzinfo=None) - timedelta(hours=1)
+        for (pump_id, _), reason in ((first, urgent), (second, calm)):
+            s.add(StatusChange(pump_id=pump_id, at=at, status="watch", previous_status="watch", reasons=[reason],
+                               new_reasons=[reason], eta_v_ref=0.9, hours_to_limit=None, limit_date=None))
+    html = client.get("/review").get_data(as_text=True)
+    section = html.split('id="s-new_reason"')[1].split("</section>")[0]
+    assert section.count(caution) == 1
+    urgent_item, calm_item = section.split("<li>")[1:]
+    assert caution in urgent_item and f'href="/pumps/{first[1]}#caution"' in urgent_item
+    assert caution not in calm_item and f'href="/pumps/{second[1]}"' in calm_item
