@@ -109,6 +109,12 @@ def test_plan_at_the_terminal_and_as_json(demo_db):
     assert data["weeks"] == 12
     for row in data["pumps"]:
         assert row["pump"] in text.output
+    # The limit in words, as the pages and `fleet analyze` write it, never the JSON's key.
+    lines = {line.split()[0]: line for line in text.output.splitlines() if line.startswith("  ") and line.split()}
+    words = {"eta_v": "η_v", "case_drain": "case drain"}
+    for row in data["pumps"]:
+        limit = row.get("crossed_limit") or row.get("governing_limit")
+        assert limit in words and words[limit] in lines[row["pump"]] and limit not in lines[row["pump"]]
     assert "invented: winter maintenance stop" in text.output  # the demo's shutdown windows
     fitted = [k for k in data["kinds"] if k["beta"] is not None]
     assert fitted and all(f"hold {k['spares_to_hold']} spare(s)" in text.output for k in fitted)

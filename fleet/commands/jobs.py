@@ -149,6 +149,7 @@ def plan_text(data: dict) -> str:
     if data["at_risk"]:
         lines.append(_wrap(f"At risk before the next window: {', '.join(data['at_risk'])}.", indent=""))
     from fleet.horizon import date_text
+    from fleet.textreport import LIMIT_SHORT
 
     lines.append(f"\nPumps inside the horizon ({len(data['pumps'])}); dates are expected (early - late bound),")
     lines.append("or for a limit already passed, when the trend crossed it (crossed ~)")
@@ -164,7 +165,8 @@ def plan_text(data: dict) -> str:
                     f"({date_text(item.get('limit_date_low'), data['today'], '-')} - "
                     f"{date_text(item.get('limit_date_high'), data['today'], 'open')})")
             limit = item.get("governing_limit")
-        lines.append(f"  {item['pump']:<10} {_label(item['status']):<11} {str(limit or '-'):<11}{when}")
+        lines.append(f"  {item['pump']:<10} {_label(item['status']):<11} {LIMIT_SHORT.get(limit, limit or '-'):<11}"
+                     f"{when}")
         extra = [item.get("window_label") or data["fit_words"].get(item.get("fit"), item.get("fit") or "")]
         if cost is not None:
             extra.append(f"overhaul {cost:,.0f} {item.get('currency') or ''}".rstrip())
