@@ -98,13 +98,15 @@ def init(db: Database) -> None:
 
 
 @main.command("import")
-@click.argument("kind", type=click.Choice(list(KINDS)))
+@click.argument("kind", metavar="KIND", type=click.Choice(list(KINDS)))
 @click.argument("file", type=click.Path(exists=True, dir_okay=False, path_type=Path))
 @click.option("--no-analysis", is_flag=True, help="leave the analysis of the pumps touched marked stale, for the next "
               "read or 'fleet analyze' (a bulk load in several files)")
 @click.pass_obj
 def import_(db: Database, kind: str, file: Path, no_analysis: bool) -> None:
     """Import a CSV or .xlsx file of KIND, whole or not at all.
+
+    KIND: sites, pumps, installations, readings, flowtests, samples or events.
 
     Headers may carry a unit in brackets, e.g. 'outlet_flow [gal/min]'. A FILE ending in .xlsx is read as a
     spreadsheet (its first sheet, the same headers). On any bad row nothing is written and every problem is listed
@@ -132,7 +134,7 @@ def import_(db: Database, kind: str, file: Path, no_analysis: bool) -> None:
 
 
 @main.command("export")
-@click.argument("kind", type=click.Choice(list(KINDS)))
+@click.argument("kind", metavar="KIND", type=click.Choice(list(KINDS)))
 @click.argument("file", type=click.Path(dir_okay=False, allow_dash=True))
 @click.option("--units", "unit_mode", type=click.Choice(["canonical", "site"]), default="canonical",
               show_default=True, help="'site': pressure, flow and temperature in the units of the rows' site")
@@ -141,7 +143,9 @@ def import_(db: Database, kind: str, file: Path, no_analysis: bool) -> None:
 def export(db: Database, kind: str, file: str, unit_mode: str, site: str | None) -> None:
     """Write KIND to FILE as CSV (canonical units in the headers unless --units site; times in each row's site's
     local time with the offset), as an .xlsx spreadsheet when FILE ends in .xlsx, or as CSV to standard output for
-    '-'. Text that a spreadsheet would run as a formula gets a leading quote."""
+    '-'. Text that a spreadsheet would run as a formula gets a leading quote.
+
+    KIND: sites, pumps, installations, readings, flowtests, samples or events."""
     from fleet.io.files import is_xlsx_path
     from fleet.services.transfer.exporting import ExportError, export_csv, export_xlsx
 

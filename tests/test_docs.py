@@ -36,3 +36,15 @@ def test_readme_has_the_two_commands_and_the_safety_section():
 def test_help_runs():
     result = CliRunner().invoke(main, ["--help"])
     assert result.exit_code == 0 and "import" in result.output
+
+
+def test_import_and_export_read_as_the_readme_writes_them():
+    """`fleet import KIND FILE` in the README is what `--help` shows (not click's list of choices, wrapped
+    mid-word), and the help names every KIND."""
+    for command in ("import", "export"):
+        assert f"| `fleet {command} KIND FILE" in README
+        result = CliRunner().invoke(main, [command, "--help"], prog_name="fleet", terminal_width=80)
+        assert result.exit_code == 0
+        assert result.output.splitlines()[0] == f"Usage: fleet {command} [OPTIONS] KIND FILE"
+        listed = re.search(r"KIND: ([\w ,]+)\.", " ".join(result.output.split())).group(1)
+        assert set(re.split(r", | or ", listed)) == set(KINDS)
