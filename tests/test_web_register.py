@@ -318,3 +318,26 @@ def test_upload_of_a_good_file_imports_and_reanalyses(client, demo_db):
         assert s.get(AnalysisResult, pump.id).computed_at > computed_before
     assert client.post("/register/upload", data={"kind": "readings"},
                        content_type="multipart/form-data").status_code == 400
+
+
+@pytest.mark.parametrize("role", ["viewer", "technician", "engineer"])
+def test_the_register_offers_each_role_only_what_it_may_open(web_app, role):
+    """Every link of the register page opens for the role that sees it: no 'Not allowed' behind a button. A
+    viewer or technician reads the register; the engineer records and edits (fleet.web.register._role_for)."""
+    import re
+
+    from tests.conftest import sign_in
+
+    with web_app.test_client() as browser:
+        sign_in(browser, role)
+        html = browser.get("/register").get_data(as_text=True)
+        links = sorted(set(re.findall(r'href="(/register/[^"#?]+)"', html)))
+        refused = [link for link in links if browser.get(link).status_code != 200]
+    assert refused == []
+    sample = "/register/sample/new" in links
+    edits = {link for link in links if link.endswith("/edit") or link.endswith("/new") or link == "/register/upload"}
+    if role == "engineer":
+        assert sample and "/register/pump/new" in edits and "/register/upload" in edits and len(edits) > 50
+    else:
+        assert sample == (role == "technician") and edits <= {"/register/sample/new"}
+        assert 'id="register-read-only"' in html and "an engineer's" in html
