@@ -36,6 +36,13 @@ SAMPLING_CAUTIONS = (
 HOT_OIL_CAUTION = ("Oil this hot, and the pipes, fittings and pump body it runs through, burn skin in seconds. "
                    "Let it cool before any hands-on work, and wear heat-resistant gloves and eye protection.")
 
+# Beside a warning that the outlet pressure is above the pump's rated pressure (the round form, `fleet round`): a
+# gauge that reads so high may be a slip, or a relief valve set too high or stuck, with every hose on the outlet
+# loaded past its design.
+OVER_PRESSURE_CAUTION = ("Above its rated pressure every hose and fitting on the pump's outlet is loaded past its "
+                         "design and can burst: stay out of line with them, and have the relief valve setting "
+                         "checked before anyone works on the circuit.")
+
 # A reason that sends someone to the pump at once carries this phrase (fleet.trend.status writes it).
 CHECK_NOW = "check the pump now"
 CHECK_NOW_CAUTION = ("Before anyone opens this pump's circuit: lock out the drive, relieve all pressure "

@@ -177,3 +177,23 @@ def test_with_no_signal_the_device_reads_the_sites_clock_and_asks_about_a_fast_m
         stored = session.scalar(select(Reading.taken_at).join(Pump, Pump.id == Reading.pump_id)
                                 .where(Pump.serial == FIRST, Reading.hours == float(values["hours"])))
     assert stored == moment.replace(tzinfo=None)
+
+
+def test_with_no_signal_a_pressure_above_rated_carries_its_caution(live_app, page, context, base_url, demo_db,
+                                                                  browser_login):
+    """The device asks the server's look-again question about a pressure above rated, with the same caution the
+    server shows beside it (fleet.safety, sent in the route's rules); a hot pump keeps its own caution only."""
+    from fleet.safety import HOT_OIL_CAUTION, OVER_PRESSURE_CAUTION
+
+    browser_login("technician")
+    _open_route_then_lose_signal(page, context, base_url, "Pressure walk")
+    values = _facts(demo_db, FIRST)
+    _fill(page, {**values, "outlet_pressure": f"{1.3 * float(values['outlet_pressure']) / 0.8:.0f}"})
+    page.click("button[value=check]")
+    page.wait_for_selector("#device-doubts", timeout=10000)
+    doubts = page.inner_text("#device-doubts")
+    assert "above the rated" in doubts and OVER_PRESSURE_CAUTION in doubts and HOT_OIL_CAUTION not in doubts
+    _fill(page, {**values, "oil_temp": "95"})
+    page.click("button[value=check]")
+    page.wait_for_selector(f"#device-doubts:has-text('{HOT_OIL_CAUTION[:30]}')", timeout=10000)
+    assert OVER_PRESSURE_CAUTION not in page.inner_text("#device-doubts")

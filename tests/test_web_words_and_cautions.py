@@ -13,6 +13,7 @@ from fleet.safety import (
     CAUTIONS,
     CHECK_NOW_CAUTION,
     HOT_OIL_CAUTION,
+    OVER_PRESSURE_CAUTION,
     RUNNING_CAUTIONS,
     RUNNING_REMINDER,
     SAMPLING_CAUTIONS,
@@ -135,6 +136,28 @@ def test_round_form_shows_the_running_caution_and_hot_oil_caution(client, demo_d
     cold = client.post(f"{location}/stops/1", data=_plausible_form(demo_db, FIRST, oil_temp="2"))
     page = cold.get_data(as_text=True)
     assert "Please look again before saving." in page and not _has(page, HOT_OIL_CAUTION)
+
+
+def test_round_form_shows_the_over_pressure_caution_beside_a_pressure_above_rated(client, demo_db):
+    """A gauge above the pump's rated pressure: the look-again question carries the caution about hoses and
+    fittings loaded past their design (fleet.safety), on the page and in the rules the device checks with."""
+    from sqlalchemy import select
+
+    from fleet.db.models import Pump
+
+    location = _make_route(client)
+    with demo_db.sessions() as session:
+        rated = session.scalar(select(Pump.rated_pressure_bar).where(Pump.serial == FIRST))
+    high = client.post(f"{location}/stops/1", data=_plausible_form(demo_db, FIRST,
+                                                                    outlet_pressure=f"{1.3 * rated:.0f}"))
+    assert high.status_code == 200
+    page = high.get_data(as_text=True)
+    notice = page[page.index('id="form-doubts"'):page.index("</div>", page.index('id="form-doubts"'))]
+    assert "above the rated" in notice and _has(notice, OVER_PRESSURE_CAUTION) and not _has(notice, HOT_OIL_CAUTION)
+    within = client.post(f"{location}/stops/1", data=_plausible_form(demo_db, FIRST, oil_temp="95"))
+    assert not _has(within.get_data(as_text=True), OVER_PRESSURE_CAUTION)
+    route_id = int(location.rstrip("/").split("/")[-1])
+    assert client.get(f"/rounds/{route_id}/rules.json").get_json()["over_pressure_caution"] == OVER_PRESSURE_CAUTION
 
 
 def _flat(text: str) -> str:

@@ -23,7 +23,7 @@ from fleet.io.rules import FUTURE_TOLERANCE
 from fleet.jsonvalues import plain
 from fleet.kinds import PUMP_KINDS
 from fleet.physics.pump import theoretical_flow_lpm
-from fleet.safety import HOT_OIL_CAUTION
+from fleet.safety import HOT_OIL_CAUTION, OVER_PRESSURE_CAUTION
 from fleet.services.analysis.frames import load_pumps
 from fleet.services.sitelocal import UTC_CANONICAL, Conventions, of_pump, of_site, pump_sites, row_conventions
 from fleet.services.transfer.importing import ImportResult, check_readings, import_table
@@ -247,7 +247,7 @@ def plausibility_warnings(facts: PumpFacts, reading: dict, now: datetime, site: 
         pressure, rated = (_in(v, "pressure", site.pressure_unit, d) for v, d in
                            ((reading["outlet_pressure"], 1), (facts.rated_pressure_bar, 0)))
         warnings.append(Doubt("pressure_above_rated", "outlet_pressure",
-                              f"Outlet pressure {pressure} is above the rated {rated}."))
+                              f"Outlet pressure {pressure} is above the rated {rated}.", OVER_PRESSURE_CAUTION))
     temp = reading.get("oil_temp")
     if known["oil_temp"] and not facts.oil_temp_min_c <= temp <= facts.oil_temp_max_c:
         shown_temp, low, high = (_in(v, "temperature", site.temperature_unit, d) for v, d in
@@ -341,7 +341,8 @@ def device_rules(session: Session, route_id: int, now: datetime | None = None) -
     return {"route": walk["route"]["id"], "fields": fields, "pumps": pumps,
             "future_tolerance_s": FUTURE_TOLERANCE.total_seconds(),
             "meter": {"allowance_h": FAST_ALLOWANCE_H, "allowance_fraction": FAST_ALLOWANCE_FRACTION},
-            "hot_oil_caution": HOT_OIL_CAUTION, "made_at": (now or utcnow()).isoformat(timespec="seconds")}
+            "hot_oil_caution": HOT_OIL_CAUTION, "over_pressure_caution": OVER_PRESSURE_CAUTION,
+            "made_at": (now or utcnow()).isoformat(timespec="seconds")}
 
 
 def unit_choices() -> dict[str, tuple[str, ...]]:

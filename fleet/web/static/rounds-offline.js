@@ -150,7 +150,7 @@
     }
     if ("outlet_pressure" in canonical && canonical.outlet_pressure > pumpRules.rated_pressure_bar) {
       doubts.push({field: "outlet_pressure", message: `Outlet pressure ${canonical.outlet_pressure.toFixed(1)} bar is ` +
-        `above the rated ${pumpRules.rated_pressure_bar.toFixed(0)} bar.`});
+        `above the rated ${pumpRules.rated_pressure_bar.toFixed(0)} bar.`, caution: rules.over_pressure_caution});
     }
     if ("oil_temp" in canonical) {
       const t = canonical.oil_temp;
