@@ -55,3 +55,22 @@ def test_overhaul_plan_chart_draws(live_app, page, base_url, artifacts, browser_
     page.locator("#plan-chart .main-svg").first.wait_for()
     assert _no_sideways_scroll(page)
     page.screenshot(path=str(artifacts / "plan-phone.png"), full_page=True)
+
+
+def _lines(page, selector: str) -> list[int]:
+    """How many lines each inline element matched takes (a word broken over two lines has two boxes)."""
+    return page.evaluate(f"""() => Array.from(document.querySelectorAll({selector!r}))
+        .map(e => new Set(Array.from(e.getClientRects()).map(r => Math.round(r.top))).size)""")
+
+
+def test_serials_and_dates_are_never_broken_at_their_hyphen(live_app, page, base_url, browser_login):
+    """At a desk's width the narrow columns used to read 'EY-' / '203' and '2025-' / '08-08'."""
+    browser_login("viewer")
+    page.set_viewport_size({"width": 1366, "height": 900})
+    for path in ("/review", "/", "/plan"):
+        page.goto(base_url + path)
+        serials = _lines(page, "table th[scope=row] > a:first-child")
+        assert serials and set(serials) == {1}, (path, serials)
+    page.goto(base_url + "/")
+    dates = _lines(page, "table .day")
+    assert dates and set(dates) == {1}, dates
