@@ -90,3 +90,27 @@ def test_a_pump_past_its_limit_is_listed_with_when_it_crossed(client):
     for pump in both:
         row = html[html.index(f"crossed around {pump['crossed_date']}"):][:200]
         assert ("case drain" if pump["crossed_limit"] == "case_drain" else "η_v") in row
+
+
+def test_phone_cards_say_what_the_table_says_of_past_and_far_limits(client):
+    """The phone's cards once showed a pump past its limit as '0 h' to a 'limit date' that was its last reading's,
+    and a trend 200,000 h away as a date in the 2070s. They now say what the table says: when the trend crossed
+    (the engine's crossed_date), and 'beyond 10 years' for a date past the horizon (fleet.horizon)."""
+    from fleet.horizon import BEYOND_WORDS, is_beyond
+
+    pumps = client.get("/index.json?page_size=500").get_json()["pumps"]
+    html = client.get("/?page_size=500").get_data(as_text=True)
+    cards = html[html.index('<ol class="pump-cards"'):]
+    card = {p["pump"]: cards[cards.index(f'>{p["pump"]}</a>'):].split("</dl>")[0] for p in pumps}
+    crossed = [p for p in pumps if p["crossed_date"]]
+    far = [p for p in pumps if not p["crossed_date"] and p["hours_to_limit"] is not None
+           and is_beyond(p["limit_date"], p["hours_to_limit"])]
+    near = [p for p in pumps if not p["crossed_date"] and p["limit_date"] and p not in far]
+    assert crossed and far and near  # the invented demo has all three
+    for p in crossed:
+        shown = card[p["pump"]]
+        assert f'crossed around <span class="day">{p["crossed_date"]}</span>' in shown and p["limit_date"] not in shown
+    for p in far:
+        assert BEYOND_WORDS in card[p["pump"]] and p["limit_date"] not in card[p["pump"]]
+    for p in near:
+        assert p["limit_date"] in card[p["pump"]] and BEYOND_WORDS not in card[p["pump"]]
