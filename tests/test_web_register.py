@@ -94,7 +94,9 @@ def test_pump_form_errors_keep_what_was_typed_and_save_nothing(client, demo_db):
     assert response.status_code == 400
     html = response.get_data(as_text=True)
     assert "Nothing was saved" in html
-    assert "position_id: a value is required" in html
+    label = next(f["label"] for f in client.get("/register/pump/new.json").get_json()["fields"]
+                 if f["name"] == "position_id")
+    assert f'<a href="#f-position_id">{label}</a>: a value is required' in html  # named as the form labels it
     assert 'value="TYPO-1"' in html and 'value="1450"' in html and 'value="abc"' in html
     assert _count(demo_db, Pump) == before
 
@@ -341,3 +343,22 @@ def test_the_register_offers_each_role_only_what_it_may_open(web_app, role):
     else:
         assert sample == (role == "technician") and edits <= {"/register/sample/new"}
         assert 'id="register-read-only"' in html and "an engineer's" in html
+
+
+def test_a_refused_form_names_each_field_as_the_form_labels_it(client):
+    """'Nothing was saved' listed 'iso4406: ...' and 'water: ...', the program's names; it now names each field by
+    the label it has on the form, with a link to it, and every problem still appears."""
+    import re
+
+    labels = {f["name"]: f["label"] for f in client.get("/register/sample/new.json").get_json()["fields"]}
+    response = client.post("/register/sample/new", data={"machine_id": "1", "sampled_at": "2026-01-05T10:00",
+                                                          "iso4406": "18/16", "water": "-5"})
+    assert response.status_code == 400
+    html = response.get_data(as_text=True)
+    summary = html[html.index('id="problems"'):html.index("</div>", html.index('id="problems"'))]
+    listed = re.findall(r'<li><a href="#f-(\w+)">([^<]+)</a>: ', summary)
+    assert {"iso4406", "water"} <= {name for name, _ in listed}
+    assert all(label == labels[name] for name, label in listed)
+    assert "<li>iso4406:" not in summary and "<li>water:" not in summary
+    assert summary.count("<li>") == len(client.post("/register/sample/new.json", data={
+        "machine_id": "1", "sampled_at": "2026-01-05T10:00", "iso4406": "18/16", "water": "-5"}).get_json()["problems"])
