@@ -74,7 +74,7 @@ SAMPLE_COLUMNS = {
     "machine_id": "int",
     "sampled_at": "datetime64",
     "reported_at": "datetime64 or NaT (still at the lab)",
-    "code_4": "float or NaN (microscope counts have no 4 um channel)",
+    "code_4": "float or NaN (microscope counts have no 4 µm channel)",
     "code_6": "float or NaN",
     "code_14": "float or NaN",
     "low_count": "bool, a channel counted fewer than 20 particles (code shown with '>=')",

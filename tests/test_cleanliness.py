@@ -84,7 +84,7 @@ def test_worked_example_per_100_ml():
 
 def test_few_particles_counted_are_flagged_low():
     # ISO 4406: fewer than 20 particles counted in a channel -> the number is reported with ">=" (from memory)
-    # 7 per mL in 2 mL counted = 14 particles at >= 14 um: low; 500 per mL x 2 mL = 1000 at >= 6 um: fine
+    # 7 per mL in 2 mL counted = 14 particles at >= 14 µm: low; 500 per mL x 2 mL = 1000 at >= 6 µm: fine
     code = code_from_counts(3000.0, 500.0, 7.0, volume_ml=2.0)
     assert code.low_channels == (False, False, True)
     assert str(code) == "19/16/≥10"
@@ -97,7 +97,7 @@ def test_microscope_count_has_no_4_um_channel():
     code = code_from_counts(None, 500.0, 7.0)
     assert code.c4 is None and str(code) == "-/16/10"
     assert str(code_from_counts(np.nan, 500.0, 7.0)) == "-/16/10"
-    with pytest.raises(ValueError, match="6 and 14 um"):
+    with pytest.raises(ValueError, match="6 and 14 µm"):
         code_from_counts(3000.0, np.nan, 7.0)
     with pytest.raises(ValueError, match="non-negative"):
         code_from_counts(3000.0, 500.0, -1.0)
@@ -118,7 +118,7 @@ def test_microscope_count_has_no_4_um_channel():
     ],
 )
 def test_parse_code_forms(text, channels, low, shown):
-    # ISO 4406:2021 notation (domain.md sec. 6): three numbers, "-" for a missing 4 um channel, ">=" marks
+    # ISO 4406:2021 notation (domain.md sec. 6): three numbers, "-" for a missing 4 µm channel, ">=" marks
     code = parse_code(text)
     assert (code.c4, code.c6, code.c14) == channels
     assert code.low_channels == low and code.low_count == any(low)
@@ -130,15 +130,15 @@ def test_parse_code_forms(text, channels, low, shown):
     ("text", "message"),
     [
         ("18/16", "has two parts: .*'-/18/16'"),  # not read as a three-part code: the lab is asked or the '-' added
-        ("ISO 4406: 18/16/-", "14 um part '-'"),  # the standard named before the code, as lab reports print it
+        ("ISO 4406: 18/16/-", "14 µm part '-'"),  # the standard named before the code, as lab reports print it
         ("18/16/13/11", "three parts"),
         ("", "three parts"),
         ("18-16-13", "three parts"),
-        ("a/16/13", "4 um part 'a'"),
-        ("18//13", "6 um part ''"),
-        ("18/16/-", "14 um part '-'"),
+        ("a/16/13", "4 µm part 'a'"),
+        ("18//13", "6 µm part ''"),
+        ("18/16/-", "14 µm part '-'"),
         ("18/16/29", "off the table"),
-        ("18/16/>29", "14 um part '>29'"),
+        ("18/16/>29", "14 µm part '>29'"),
         ("13/16/18", "cumulative"),
     ],
 )
@@ -153,23 +153,23 @@ def test_parse_code_needs_text():
 
 
 def test_code_record_checks_its_numbers():
-    with pytest.raises(ValueError, match="14 um"):
+    with pytest.raises(ValueError, match="14 µm"):
         Iso4406Code(18, 16, 30)
     with pytest.raises(ValueError, match="not counted"):
         Iso4406Code(None, 16, 13, low_channels=(True, False, False))
-    # low_count alone flags the 14 um channel: cumulative counts make it the smallest, so it is low if any is
+    # low_count alone flags the 14 µm channel: cumulative counts make it the smallest, so it is low if any is
     assert str(Iso4406Code(18, 16, 13, low_count=True)) == "18/16/≥13"
 
 
 def test_steps_over_target():
     # Target codes (domain.md sec. 6, common practice, filter-industry guideline charts): vane 18/16/13,
     # variable piston 17/15/12, gear 19/17/14. The worked example 19/16/10 is one step dirtier than the vane
-    # target (4 um channel), two steps than variable piston, and meets the gear target.
+    # target (4 µm channel), two steps than variable piston, and meets the gear target.
     assert steps_over("19/16/10", "18/16/13") == 1
     assert steps_over("19/16/10", "17/15/12") == 2
     assert steps_over("19/16/10", "19/17/14") <= 0
     assert steps_over(parse_code("17/15/12"), "19/17/14") == -2
-    # a microscope count skips the 4 um channel on either side
+    # a microscope count skips the 4 µm channel on either side
     assert steps_over("-/16/14", "18/16/13") == 1
     assert steps_over("22/16/13", "-/16/13") == 0
 

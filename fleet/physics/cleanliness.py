@@ -1,7 +1,7 @@
 """Oil cleanliness by ISO 4406:2021: counts per mL <-> scale numbers, reading and comparing codes.
 
-A code such as 18/16/13 gives the scale numbers of the cumulative counts per mL at >= 4, >= 6 and >= 14 um(c).
-Microscope counts have no 4 um channel and are written -/16/13. Scale numbers are returned as floats so that
+A code such as 18/16/13 gives the scale numbers of the cumulative counts per mL at >= 4, >= 6 and >= 14 µm(c).
+Microscope counts have no 4 µm channel and are written -/16/13. Scale numbers are returned as floats so that
 NaN can mark "no count"; code 29 stands for ">28" (more than 2 500 000 per mL, off the top of the table).
 """
 
@@ -68,7 +68,7 @@ class Iso4406Code:
     """One ISO 4406 code. c4 is None for a microscope count ("-/16/13").
 
     low_count is True when any channel rests on fewer than 20 particles counted; low_channels says which
-    (4, 6, 14 um). Given low_count alone, the 14 um channel is flagged: counts are cumulative, so it always
+    (4, 6, 14 µm). Given low_count alone, the 14 µm channel is flagged: counts are cumulative, so it always
     has the fewest particles and is low whenever any channel is.
     """
 
@@ -83,23 +83,23 @@ class Iso4406Code:
             if value is None and name == "4":
                 continue
             if not isinstance(value, int | np.integer) or not 0 <= value <= ABOVE_SCALE:
-                raise ValueError(f"ISO 4406 scale number for {name} um must be whole, 0..29 (29: >28), got {value!r}")
+                raise ValueError(f"ISO 4406 scale number for {name} µm must be whole, 0..29 (29: >28), got {value!r}")
         present = [c for c in (self.c4, self.c6, self.c14) if c is not None]
         if any(a < b for a, b in zip(present, present[1:], strict=False)):
             raise ValueError(
                 f"ISO 4406 code {self.c4}/{self.c6}/{self.c14}: counts are cumulative, so the scale numbers "
-                "cannot rise from 4 to 6 to 14 um"
+                "cannot rise from 4 to 6 to 14 µm"
             )
         channels = tuple(bool(x) for x in self.low_channels)
         if self.low_count and not any(channels):
             channels = (False, False, True)
         if self.c4 is None and channels[0]:
-            raise ValueError("ISO 4406 code: the 4 um channel cannot be flagged low when it was not counted")
+            raise ValueError("ISO 4406 code: the 4 µm channel cannot be flagged low when it was not counted")
         object.__setattr__(self, "low_channels", channels)
         object.__setattr__(self, "low_count", any(channels))
 
     def channels(self) -> tuple[float, float, float]:
-        """The three scale numbers as floats, NaN for a missing 4 um channel (for vectorised use)."""
+        """The three scale numbers as floats, NaN for a missing 4 µm channel (for vectorised use)."""
         return (np.nan if self.c4 is None else float(self.c4), float(self.c6), float(self.c14))
 
     def __str__(self) -> str:
@@ -115,14 +115,14 @@ def _parse_channel(part: str, size_um: int, text: str) -> tuple[int, bool]:
     match = _CHANNEL_PATTERN.match(part.strip())
     if match is None:
         raise ValueError(
-            f"ISO 4406 code {text!r}: the {size_um} um part {part.strip()!r} is not a scale number "
+            f"ISO 4406 code {text!r}: the {size_um} µm part {part.strip()!r} is not a scale number "
             "(expected 0..28 or '>28', optionally with a leading '≥')"
         )
     number_text = match.group("number").replace(" ", "")
     number = ABOVE_SCALE if number_text.startswith(">") else int(number_text)
     if number_text[0].isdigit() and number > MAX_SCALE_NUMBER:
         raise ValueError(
-            f"ISO 4406 code {text!r}: scale number {number} for {size_um} um is off the table (write '>28')"
+            f"ISO 4406 code {text!r}: scale number {number} for {size_um} µm is off the table (write '>28')"
         )
     return number, match.group("low") is not None
 
@@ -140,8 +140,8 @@ def parse_code(text: str) -> Iso4406Code:
     parts = _STANDARD_NAMED.sub("", text.strip()).split("/")  # "ISO 4406: 18/16/13", as lab reports print it
     if len(parts) == 2:  # a microscope count, or a code of the standard's older two-number form (from memory)
         raise ValueError(
-            f"ISO 4406 code {text!r} has two parts: the current notation writes a code without the 4 um channel "
-            f"with a '-' first ('-/{'/'.join(p.strip() for p in parts)}'); write it so if the lab counted no 4 um "
+            f"ISO 4406 code {text!r} has two parts: the current notation writes a code without the 4 µm channel "
+            f"with a '-' first ('-/{'/'.join(p.strip() for p in parts)}'); write it so if the lab counted no 4 µm "
             "particles, or ask the lab for the three-part code")
     if len(parts) != 3:
         raise ValueError(
@@ -166,7 +166,7 @@ def code_from_counts(count4_per_ml, count6_per_ml, count14_per_ml, volume_ml=Non
     raw = (count4_per_ml, count6_per_ml, count14_per_ml)
     counts = np.array([np.nan if c is None else c for c in raw], dtype=float)
     if np.isnan(counts[1:]).any() or (counts[~np.isnan(counts)] < 0).any():
-        raise ValueError(f"ISO 4406 needs non-negative 6 and 14 um counts per mL, got {counts.tolist()}")
+        raise ValueError(f"ISO 4406 needs non-negative 6 and 14 µm counts per mL, got {counts.tolist()}")
     codes = np.asarray(code_for_count(counts))
     if volume_ml is None:
         low = (False, False, False)
@@ -180,7 +180,7 @@ def code_from_counts(count4_per_ml, count6_per_ml, count14_per_ml, volume_ml=Non
 def steps_over_channels(codes, targets):
     """Vectorised: scale steps the worst channel is above target, per row.
 
-    codes and targets: arrays of shape (..., 3) holding the 4, 6, 14 um scale numbers (NaN where missing).
+    codes and targets: arrays of shape (..., 3) holding the 4, 6, 14 µm scale numbers (NaN where missing).
     Channels missing on either side are skipped; a row with nothing to compare gives NaN.
     Positive means dirtier than the target; <= 0 means it meets it.
     """
@@ -195,7 +195,7 @@ def _as_code(code) -> Iso4406Code:
 def steps_over(code, target) -> int:
     """Scale steps the worst channel of code is above target (text or Iso4406Code); <= 0 meets the target.
 
-    A channel missing on either side (the 4 um channel of a microscope count) is skipped.
+    A channel missing on either side (the 4 µm channel of a microscope count) is skipped.
     """
     steps = steps_over_channels(_as_code(code).channels(), _as_code(target).channels())
-    return int(steps)  # the 6 and 14 um channels always exist, so there is always something to compare
+    return int(steps)  # the 6 and 14 µm channels always exist, so there is always something to compare

@@ -432,7 +432,7 @@ def _import_samples(ctx: _Context, parsed: ParsedTable, result: ImportResult) ->
                 problems.append(Problem(number, "count_6", str(exc)))
                 continue
         elif code is None and any(c is not None for c in counts):
-            problems.append(Problem(number, "count_6", "particle counts need at least the 6 and 14 um channels"))
+            problems.append(Problem(number, "count_6", "particle counts need at least the 6 and 14 µm channels"))
             continue
         if reported is not None and code is None and _value(row, "water") is None \
                 and _value(row, "viscosity_40") is None:
