@@ -18,7 +18,7 @@ from fleet.services.analysis.parallel import WORKERS_ENV, shareable, worker_coun
 from fleet.trend.settings import AnalysisSettings
 from tests.frame_compare import plain as _plain
 from tests.frame_compare import same_frames
-from tests.parallel_work import released_by_the_caller
+from tests.parallel_work import number_and_process, released_by_the_caller
 
 NOW = dt.datetime(2026, 12, 1, 12)
 PART = 7  # 41 demo pumps: six parts of 6 or 7 (compute.part_ids)
@@ -124,3 +124,55 @@ def test_parts_cut_even_and_a_multiple_of_the_workers():
         else:
             assert len(parts) == fewest
     assert len(compute_module.part_ids(list(range(10_000)), 400, 2)) == 26  # 25 parts of 400 before
+
+
+def test_while_the_workers_start_this_process_works_the_first_parts_and_every_part_is_done_once(demo_db):
+    # Common practice, no source: every part once; this process's parts (the first ones, in order) come back first,
+    # then the workers' in the order handed over: the last part (handed at once), then those this process had not
+    # begun when the first worker was up. How many this process takes depends on how long the workers take to
+    # start (the fork server may be up already), so any split is right if it keeps those rules.
+    from fleet.services.analysis.parallel import _each
+
+    here_pid = os.getpid()
+    peaks: dict[int, float] = {}
+    for count in (2, 5, 9):
+        answers = list(_each(number_and_process, demo_db.url, [(n,) for n in range(count)], 2, peaks,
+                             here=lambda number: (number, here_pid)))
+        numbers = [number for number, _ in answers]
+        assert sorted(numbers) == list(range(count))
+        here = [number for number, pid in answers if pid == here_pid]
+        assert here == list(range(len(here))) and numbers[:len(here)] == here  # the first parts, first
+        workers = numbers[len(here):]
+        assert workers == [count - 1, *range(len(here), count - 1)]  # the last one at once, then the rest in order
+    assert peaks and here_pid not in peaks
+
+
+def test_a_part_failing_in_this_process_fails_the_run_and_stops_the_workers(demo_db):
+    from fleet.services.analysis.parallel import _each
+
+    def failing(number):
+        raise ValueError(f"part {number}: no such pump")
+
+    with pytest.raises(ValueError, match="part 0: no such pump"):
+        list(_each(number_and_process, demo_db.url, [(n,) for n in range(6)], 2, None, here=failing))
+
+
+def test_this_process_takes_parts_from_the_front_until_the_pool_takes_the_rest():
+    # Common practice, no source: the pool's first part is the last, which it claims at once; this process takes
+    # from the front until the first worker is up; then the pool has every part left, and this process none.
+    from fleet.services.analysis.parallel import _Claims
+
+    claims = _Claims(6)
+    pool = claims.for_the_pool()
+    assert next(pool) == 5
+    assert [claims.here(), claims.here()] == [0, 1]
+    assert list(pool) == [2, 3, 4] and claims.here() is None
+    claims = _Claims(2)
+    pool = claims.for_the_pool()
+    assert next(pool) == 1 and claims.here() == 0 and claims.here() is None and list(pool) == []
+    claims = _Claims(3)
+    pool = claims.for_the_pool()
+    assert next(pool) == 2
+    claims.stop()  # the run failed: nothing more for anyone
+    assert claims.here() is None and list(pool) == []
+    assert list(_Claims(0).for_the_pool()) == []

@@ -11,11 +11,18 @@ its engine from the database URL once (the compiled statements cached with it), 
 read transaction of its own, with the engine's connections closed again after each part, runs the engine and
 writes the part to its file (fleet.services.analysis.spool), sending back only the file's name. The parent reads
 the data versions before any worker starts, so a write landing meanwhile leaves its pump stale, never hidden, and
-takes each part as soon as it is written (to store it while the workers go on).
+takes each part as soon as it is written (to store it while the workers go on). The fork server's imports take
+seconds in which no worker computes; a full analysis (fleet.services.analysis.refresh.fleet_afresh) has the parent,
+which has those libraries imported already, spool the first parts itself meanwhile (_each's ``here``). A worker
+gives the memory a part freed back to the system before its next (_give_back_memory), and so does the parent
+after its own parts: the run's peak is the sum over its processes.
 """
 
+import ctypes
 import multiprocessing
 import os
+import sys
+import threading
 from collections.abc import Iterator
 from concurrent.futures import ProcessPoolExecutor
 from datetime import datetime
@@ -28,8 +35,9 @@ from fleet.services.analysis.spool import PartSummary, spool_part
 from fleet.trend.settings import AnalysisSettings
 
 WORKERS_ENV = "FLEET_ANALYSIS_WORKERS"
-# Imported once by the fork server, so every worker forked from it shares these modules' pages.
-PRELOAD = ("numpy", "pandas", "scipy.stats", "scipy.optimize", "sqlalchemy.orm", "sqlalchemy.dialects.sqlite",
+# Imported once by the fork server, so every worker forked from it shares these modules' pages (scipy.stats only
+# where the engine's modules import it).
+PRELOAD = ("numpy", "pandas", "scipy.special", "scipy.optimize", "sqlalchemy.orm", "sqlalchemy.dialects.sqlite",
            "sqlalchemy.dialects.postgresql.psycopg", "fleet.db.engine",
            "fleet.services.analysis.spool")
 
@@ -76,7 +84,8 @@ _ENGINES: dict = {}
 
 def _in_worker(url: str, work, *arguments):
     """``work(session, *arguments)`` in a read transaction of the worker's own engine; with the worker's id and
-    its peak memory. The engine is kept for the worker's next part, its connections closed after each."""
+    its peak memory. The engine is kept for the worker's next part, its connections closed after each, and the memory
+    the part freed given back."""
     from sqlalchemy.orm import Session
 
     from fleet.db.engine import make_engine
@@ -89,7 +98,9 @@ def _in_worker(url: str, work, *arguments):
             done = work(session, *arguments)
     finally:
         engine.dispose()  # no connection held between parts; the engine keeps its compiled statements
-    return done, os.getpid(), peak_resident_mb()
+    peak = peak_resident_mb()
+    _give_back_memory()  # the worker waits for its next part, or for the end, with only what it uses
+    return done, os.getpid(), peak
 
 
 def _pool(workers: int, parts: int) -> ProcessPoolExecutor:
@@ -103,20 +114,117 @@ def _pool(workers: int, parts: int) -> ProcessPoolExecutor:
     return ProcessPoolExecutor(max_workers=min(workers, parts), mp_context=context)
 
 
-def _each(work, url: str, arguments: list[tuple], workers: int, peaks_mb: dict[int, float] | None) -> Iterator:
+def _each(work, url: str, arguments: list[tuple], workers: int, peaks_mb: dict[int, float] | None,
+          here=None) -> Iterator:
     """``work(session, *each)`` for each of ``arguments`` in the workers; each answer given back, in the order
-    given, as soon as it and those before it are done, while the workers go on with the rest."""
+    given, as soon as it and those before it are done, while the workers go on with the rest.
+
+    ``here`` (``here(*each)``, the same work in this process), when given, starts the workers in a helper thread
+    and has this process work the first arguments itself while the fork server imports its libraries (seconds in
+    which no worker can compute, while this process has them imported already): the helper hands the last of the
+    arguments to the pool at once (the fork server starts the first worker when its preload is done), and every
+    argument this process has not begun when the first worker is up; this process's answers come first, then the
+    workers' in the order handed over. Its memory is given back to the system after (_give_back_memory)."""
+    if here is None:
+        with _pool(workers, len(arguments)) as pool:
+            futures = [pool.submit(_in_worker, url, work, *each) for each in arguments]
+            yield from _answers(pool, futures, peaks_mb)
+        return
     with _pool(workers, len(arguments)) as pool:
-        futures = [pool.submit(_in_worker, url, work, *each) for each in arguments]
+        claims = _Claims(len(arguments))
+        futures: list = []
+        failed: list[BaseException] = []
+
+        def hand_over() -> None:
+            try:
+                for number in claims.for_the_pool():
+                    futures.append(pool.submit(_in_worker, url, work, *arguments[number]))
+            except BaseException as error:  # raised in the caller's thread, after the parts computed here
+                failed.append(error)
+
+        starter = threading.Thread(target=hand_over, name="fleet-analysis-workers", daemon=True)
+        starter.start()
         try:
-            for future in futures:
-                answer, pid, peak = future.result()
-                if peaks_mb is not None and peak is not None:
-                    peaks_mb[pid] = max(peak, peaks_mb.get(pid, 0.0))
-                yield answer
-        except BaseException:  # a part failed, or the caller stopped taking answers: the rest is not wanted
+            while (number := claims.here()) is not None:
+                yield here(*arguments[number])
+            _give_back_memory()
+            starter.join()
+            if failed:
+                raise failed[0]
+        except BaseException:  # a part failed here, or the caller stopped taking answers: the rest is not wanted
+            claims.stop()
+            starter.join()
             pool.shutdown(wait=True, cancel_futures=True)
             raise
+        yield from _answers(pool, futures, peaks_mb)
+
+
+def _answers(pool: ProcessPoolExecutor, futures: list, peaks_mb: dict[int, float] | None) -> Iterator:
+    """Each future's answer in the order given, noting each worker's peak memory; the rest cancelled if one fails
+    or the caller stops taking them."""
+    try:
+        for future in futures:
+            answer, pid, peak = future.result()
+            if peaks_mb is not None and peak is not None:
+                peaks_mb[pid] = max(peak, peaks_mb.get(pid, 0.0))
+            yield answer
+    except BaseException:  # a part failed, or the caller stopped taking answers: the rest is not wanted
+        pool.shutdown(wait=True, cancel_futures=True)
+        raise
+
+
+class _Claims:
+    """Which of ``count`` arguments this process works and which the pool does, decided under a lock: this process
+    takes them from the front until the first worker is up; the pool the last one at once (its submit waits for
+    the fork server), then every one not yet taken."""
+
+    def __init__(self, count: int):
+        self._lock = threading.Lock()
+        self._front, self._end = 0, count
+        self._handed = self._stopped = False
+
+    def here(self) -> int | None:
+        """The next argument for this process, None once the workers are up (or none is left)."""
+        with self._lock:
+            if self._handed or self._stopped or self._front >= self._end:
+                return None
+            self._front += 1
+            return self._front - 1
+
+    def for_the_pool(self) -> Iterator[int]:
+        """The last argument, then (when the caller goes on after its submit, i.e. the first worker is up) every
+        one this process has not taken; nothing once stopped."""
+        with self._lock:
+            if self._stopped or self._front >= self._end:
+                return
+            self._end -= 1
+            last = self._end
+        yield last
+        with self._lock:
+            self._handed = True
+            rest = [] if self._stopped else list(range(self._front, self._end))
+            self._front = self._end
+        yield from rest
+
+    def stop(self) -> None:
+        with self._lock:
+            self._stopped = True
+
+
+def _give_back_memory() -> None:
+    """Hand the memory a part freed back to the system: Arrow's pool keeps what it freed for its next allocation
+    (about 50 MB after a part of the benchmark's fleet) and glibc's heap its free pages (malloc_trim; nothing on
+    another C library). A few milliseconds. A full analysis's peak memory is the sum over its processes at one
+    moment, so neither a worker between parts nor this process, storing while the workers compute, should hold
+    more than it uses (a part leaves no garbage in cycles worth a collection, which costs 0.1 s)."""
+    arrow = sys.modules.get("pyarrow")  # only where the part's work imported it
+    if arrow is not None:
+        arrow.default_memory_pool().release_unused()
+    try:
+        trim = ctypes.CDLL(None).malloc_trim
+    except (OSError, AttributeError):  # not glibc
+        return
+    trim(0)
 
 
 def parts_in_workers(url: str, id_parts: list[list[int]], now: datetime, settings: AnalysisSettings, workers: int,
@@ -126,9 +234,11 @@ def parts_in_workers(url: str, id_parts: list[list[int]], now: datetime, setting
 
 
 def spool_in_workers(url: str, id_parts: list[list[int]], paths: list[Path], now: datetime,
-                     settings: AnalysisSettings, workers: int,
-                     peaks_mb: dict[int, float] | None = None) -> Iterator[PartSummary]:
+                     settings: AnalysisSettings, workers: int, peaks_mb: dict[int, float] | None = None,
+                     here=None) -> Iterator[PartSummary]:
     """Each list of pump ids analysed in one of ``workers`` processes and written to its path
-    (fleet.services.analysis.spool.spool_part); their summaries in the order given, each as soon as it is done."""
+    (fleet.services.analysis.spool.spool_part); their summaries in the order given, each as soon as it is done.
+    ``here(ids, now, settings, path)``, when given, spools the first parts in this process while the workers
+    start (_each)."""
     return _each(spool_part, url, [(ids, now, settings, path) for ids, path in zip(id_parts, paths, strict=True)],
-                 workers, peaks_mb)
+                 workers, peaks_mb, here)

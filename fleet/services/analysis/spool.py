@@ -15,10 +15,11 @@ with the next). The folder is removed when the caller is done with it.
 import pickle
 import shutil
 import tempfile
-from collections.abc import Iterable, Iterator
+from collections.abc import Callable, Iterable, Iterator
 from contextlib import contextmanager
 from dataclasses import dataclass, field
 from datetime import datetime
+from functools import partial
 from pathlib import Path
 
 import orjson
@@ -136,17 +137,28 @@ def plan_fleet(session: Session, folder: Path, now: datetime | None = None, sett
     return FleetPlan(computed_at, versions, id_parts, paths, url, workers, len(ids))
 
 
-def spool_parts(session: Session | None, plan: FleetPlan, settings: AnalysisSettings) -> Iterable[PartSummary]:
-    """Each part of ``plan`` analysed and written to its file, in the plan's order, each given back as soon as it is
-    written: by the workers (which read committed data in transactions of their own, so ``session`` may be None
-    and the caller free to store the parts meanwhile), else in ``session``'s read transaction, one after another."""
+def spool_parts(session: Session | None, plan: FleetPlan, settings: AnalysisSettings,
+                sessions: Callable[[], Session] | None = None) -> Iterable[PartSummary]:
+    """Each part of ``plan`` analysed and written to its file, each given back as soon as it is written: by the
+    workers (which read committed data in transactions of their own, so ``session`` may be None and the caller free
+    to store the parts meanwhile), else in ``session``'s read transaction, one after another, in the plan's order.
+    With workers and ``sessions`` (a session factory), this process spools the first parts itself, each in a read
+    transaction of its own, while the workers start (fleet.services.analysis.parallel._each); those come first."""
     if plan.url is not None:
         from fleet.services.analysis.parallel import spool_in_workers
 
+        here = None if sessions is None else partial(_spool_here, sessions)
         return spool_in_workers(plan.url, plan.id_parts, plan.paths, plan.computed_at, settings, plan.workers,
-                                plan.worker_peaks_mb)
+                                plan.worker_peaks_mb, here)
     return (spool_part(session, part, plan.computed_at, settings, path)
             for part, path in zip(plan.id_parts, plan.paths, strict=True))
+
+
+def _spool_here(sessions: Callable[[], Session], pump_ids: list[int], now: datetime, settings: AnalysisSettings,
+                path: Path) -> PartSummary:
+    """spool_part in this process, in a read transaction of its own (as a worker reads each part)."""
+    with sessions() as session, session.begin():
+        return spool_part(session, pump_ids, now, settings, path)
 
 
 def spool_fleet(session: Session, folder: Path, now: datetime | None = None,
