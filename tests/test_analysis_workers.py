@@ -176,3 +176,19 @@ def test_this_process_takes_parts_from_the_front_until_the_pool_takes_the_rest()
     claims.stop()  # the run failed: nothing more for anyone
     assert claims.here() is None and list(pool) == []
     assert list(_Claims(0).for_the_pool()) == []
+
+
+def test_the_fork_server_preloads_the_dialect_of_the_database_it_serves():
+    # SQLAlchemy's own dialect lookup (make_url(...).get_dialect()) is the reference; PostgreSQL's package loads
+    # every driver's dialect, which a SQLite run does not need.
+    import importlib
+
+    from sqlalchemy.engine import make_url
+
+    from fleet.services.analysis.parallel import PRELOAD, _preload
+
+    for url in ("sqlite:////tmp/fleet.sqlite", "postgresql+psycopg://u@127.0.0.1:5432/fleet"):
+        modules = _preload(url)
+        assert modules[:-1] == list(PRELOAD) and modules[-1] == make_url(url).get_dialect().__module__
+        importlib.import_module(modules[-1])
+    assert not any("postgresql" in module for module in _preload("sqlite:////tmp/fleet.sqlite"))

@@ -14,7 +14,7 @@ the data versions before any worker starts, so a write landing meanwhile leaves 
 takes each part as soon as it is written (to store it while the workers go on). The fork server's imports take
 seconds in which no worker computes; a full analysis (fleet.services.analysis.refresh.fleet_afresh) has the parent,
 which has those libraries imported already, spool the first parts itself meanwhile (_each's ``here``). A worker
-gives the memory a part freed back to the system before its next (_give_back_memory), and so does the parent
+gives back the memory Arrow kept of a part before its next (_give_back_memory), and the parent its heap too
 after its own parts: the run's peak is the sum over its processes.
 """
 
@@ -36,9 +36,9 @@ from fleet.trend.settings import AnalysisSettings
 
 WORKERS_ENV = "FLEET_ANALYSIS_WORKERS"
 # Imported once by the fork server, so every worker forked from it shares these modules' pages (scipy.stats only
-# where the engine's modules import it).
-PRELOAD = ("numpy", "pandas", "scipy.special", "scipy.optimize", "sqlalchemy.orm", "sqlalchemy.dialects.sqlite",
-           "sqlalchemy.dialects.postgresql.psycopg", "fleet.db.engine",
+# where the engine's modules import it), with the database's dialect (_preload): only the one the URL names, as
+# PostgreSQL's package loads every driver's dialect (about 0.15 s a SQLite run would spend for nothing).
+PRELOAD = ("numpy", "pandas", "scipy.special", "scipy.optimize", "sqlalchemy.orm", "fleet.db.engine",
            "fleet.services.analysis.spool")
 
 
@@ -85,7 +85,7 @@ _ENGINES: dict = {}
 def _in_worker(url: str, work, *arguments):
     """``work(session, *arguments)`` in a read transaction of the worker's own engine; with the worker's id and
     its peak memory. The engine is kept for the worker's next part, its connections closed after each, and the memory
-    the part freed given back."""
+    Arrow kept of the part given back."""
     from sqlalchemy.orm import Session
 
     from fleet.db.engine import make_engine
@@ -99,16 +99,22 @@ def _in_worker(url: str, work, *arguments):
     finally:
         engine.dispose()  # no connection held between parts; the engine keeps its compiled statements
     peak = peak_resident_mb()
-    _give_back_memory()  # the worker waits for its next part, or for the end, with only what it uses
+    _give_back_memory(heap=False)  # the worker waits for its next part, or for the end, without Arrow's spare pages
     return done, os.getpid(), peak
 
 
-def _pool(workers: int, parts: int) -> ProcessPoolExecutor:
+def _preload(url: str) -> list[str]:
+    """The modules the fork server imports for workers that open ``url``: PRELOAD and the URL's dialect."""
+    return [*PRELOAD, make_url(url).get_dialect().__module__]
+
+
+def _pool(workers: int, parts: int, url: str) -> ProcessPoolExecutor:
     """Up to ``workers`` processes forked from the preloaded fork server where there is one (Linux), each taking
-    parts until none is left; elsewhere fresh interpreters ('spawn')."""
+    parts until none is left; elsewhere fresh interpreters ('spawn'). The fork server is this process's one, started
+    by its first pool: a later pool's workers open another kind of database with its dialect imported by each."""
     if "forkserver" in multiprocessing.get_all_start_methods():
         context = multiprocessing.get_context("forkserver")
-        context.set_forkserver_preload(list(PRELOAD))
+        context.set_forkserver_preload(_preload(url))
     else:
         context = multiprocessing.get_context("spawn")
     return ProcessPoolExecutor(max_workers=min(workers, parts), mp_context=context)
@@ -126,11 +132,11 @@ def _each(work, url: str, arguments: list[tuple], workers: int, peaks_mb: dict[i
     argument this process has not begun when the first worker is up; this process's answers come first, then the
     workers' in the order handed over. Its memory is given back to the system after (_give_back_memory)."""
     if here is None:
-        with _pool(workers, len(arguments)) as pool:
+        with _pool(workers, len(arguments), url) as pool:
             futures = [pool.submit(_in_worker, url, work, *each) for each in arguments]
             yield from _answers(pool, futures, peaks_mb)
         return
-    with _pool(workers, len(arguments)) as pool:
+    with _pool(workers, len(arguments), url) as pool:
         claims = _Claims(len(arguments))
         futures: list = []
         failed: list[BaseException] = []
@@ -211,15 +217,19 @@ class _Claims:
             self._stopped = True
 
 
-def _give_back_memory() -> None:
+def _give_back_memory(heap: bool = True) -> None:
     """Hand the memory a part freed back to the system: Arrow's pool keeps what it freed for its next allocation
-    (about 50 MB after a part of the benchmark's fleet) and glibc's heap its free pages (malloc_trim; nothing on
-    another C library). A few milliseconds. A full analysis's peak memory is the sum over its processes at one
-    moment, so neither a worker between parts nor this process, storing while the workers compute, should hold
-    more than it uses (a part leaves no garbage in cycles worth a collection, which costs 0.1 s)."""
+    (about 60 MB after a part of the benchmark's fleet), and with ``heap`` glibc's heap its free pages (malloc_trim,
+    a few milliseconds; nothing on another C library). A full analysis's peak memory is the sum over its processes
+    at one moment, so neither a worker between parts nor this process, storing while the workers compute, should
+    hold more than it uses. A worker keeps its heap (``heap=False``): faulting the pages in again costs its next
+    part about 50 ms of CPU (3 %), where Arrow's pool comes back for nothing measurable. A part leaves no garbage in
+    cycles worth a collection (0.1 s)."""
     arrow = sys.modules.get("pyarrow")  # only where the part's work imported it
     if arrow is not None:
         arrow.default_memory_pool().release_unused()
+    if not heap:
+        return
     try:
         trim = ctypes.CDLL(None).malloc_trim
     except (OSError, AttributeError):  # not glibc
