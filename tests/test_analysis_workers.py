@@ -123,28 +123,33 @@ def test_parts_cut_even_and_a_multiple_of_the_workers():
             assert len(parts) % workers == 0 or len(parts) == pumps
         else:
             assert len(parts) == fewest
+        # The first part computed by the caller's process while the workers start: one more than a multiple.
+        first_here = compute_module.part_ids(ids, size, workers, first_here=True)
+        assert [pump for part in first_here for pump in part] == ids
+        sizes = [len(part) for part in first_here]
+        assert all(0 < n <= size for n in sizes) and max(sizes, default=0) - min(sizes, default=0) <= 1
+        if workers > 1 and fewest > 1:
+            assert (len(first_here) - 1) % workers == 0 or len(first_here) == pumps
+            assert fewest <= len(first_here) < fewest + workers
+        else:
+            assert len(first_here) == fewest
     assert len(compute_module.part_ids(list(range(10_000)), 400, 2)) == 26  # 25 parts of 400 before
+    assert len(compute_module.part_ids(list(range(10_000)), 400, 2, first_here=True)) == 25  # 1 here, 12 each
 
 
-def test_while_the_workers_start_this_process_works_the_first_parts_and_every_part_is_done_once(demo_db):
-    # Common practice, no source: every part once; this process's parts (the first ones, in order) come back first,
-    # then the workers' in the order handed over: the last part (handed at once), then those this process had not
-    # begun when the first worker was up. How many this process takes depends on how long the workers take to
-    # start (the fork server may be up already), so any split is right if it keeps those rules.
+def test_while_the_workers_start_this_process_works_the_first_part_and_every_part_is_done_once(demo_db):
+    # Common practice, no source: every part once and in the order given, the first by this process, the rest by
+    # the workers (each noting its peak memory).
     from fleet.services.analysis.parallel import _each
 
     here_pid = os.getpid()
     peaks: dict[int, float] = {}
-    for count in (2, 5, 9):
+    for count in (1, 2, 5):
         answers = list(_each(number_and_process, demo_db.url, [(n,) for n in range(count)], 2, peaks,
                              here=lambda number: (number, here_pid)))
-        numbers = [number for number, _ in answers]
-        assert sorted(numbers) == list(range(count))
-        here = [number for number, pid in answers if pid == here_pid]
-        assert here == list(range(len(here))) and numbers[:len(here)] == here  # the first parts, first
-        workers = numbers[len(here):]
-        assert workers == [count - 1, *range(len(here), count - 1)]  # the last one at once, then the rest in order
-    assert peaks and here_pid not in peaks
+        assert [number for number, _ in answers] == list(range(count))
+        assert [pid == here_pid for _, pid in answers] == [True] + [False] * (count - 1)
+    assert 1 <= len(peaks) <= 2 and here_pid not in peaks
 
 
 def test_a_part_failing_in_this_process_fails_the_run_and_stops_the_workers(demo_db):
@@ -155,27 +160,6 @@ def test_a_part_failing_in_this_process_fails_the_run_and_stops_the_workers(demo
 
     with pytest.raises(ValueError, match="part 0: no such pump"):
         list(_each(number_and_process, demo_db.url, [(n,) for n in range(6)], 2, None, here=failing))
-
-
-def test_this_process_takes_parts_from_the_front_until_the_pool_takes_the_rest():
-    # Common practice, no source: the pool's first part is the last, which it claims at once; this process takes
-    # from the front until the first worker is up; then the pool has every part left, and this process none.
-    from fleet.services.analysis.parallel import _Claims
-
-    claims = _Claims(6)
-    pool = claims.for_the_pool()
-    assert next(pool) == 5
-    assert [claims.here(), claims.here()] == [0, 1]
-    assert list(pool) == [2, 3, 4] and claims.here() is None
-    claims = _Claims(2)
-    pool = claims.for_the_pool()
-    assert next(pool) == 1 and claims.here() == 0 and claims.here() is None and list(pool) == []
-    claims = _Claims(3)
-    pool = claims.for_the_pool()
-    assert next(pool) == 2
-    claims.stop()  # the run failed: nothing more for anyone
-    assert claims.here() is None and list(pool) == []
-    assert list(_Claims(0).for_the_pool()) == []
 
 
 def test_the_fork_server_preloads_the_dialect_of_the_database_it_serves():

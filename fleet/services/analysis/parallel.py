@@ -13,7 +13,7 @@ writes the part to its file (fleet.services.analysis.spool), sending back only t
 the data versions before any worker starts, so a write landing meanwhile leaves its pump stale, never hidden, and
 takes each part as soon as it is written (to store it while the workers go on). The fork server's imports take
 seconds in which no worker computes; a full analysis (fleet.services.analysis.refresh.fleet_afresh) has the parent,
-which has those libraries imported already, spool the first parts itself meanwhile (_each's ``here``). A worker
+which has those libraries imported already, spool the first part itself meanwhile (_each's ``here``). A worker
 gives back the memory Arrow kept of a part before its next (_give_back_memory), and the parent its heap too
 after its own parts: the run's peak is the sum over its processes.
 """
@@ -125,40 +125,38 @@ def _each(work, url: str, arguments: list[tuple], workers: int, peaks_mb: dict[i
     """``work(session, *each)`` for each of ``arguments`` in the workers; each answer given back, in the order
     given, as soon as it and those before it are done, while the workers go on with the rest.
 
-    ``here`` (``here(*each)``, the same work in this process), when given, starts the workers in a helper thread
-    and has this process work the first arguments itself while the fork server imports its libraries (seconds in
-    which no worker can compute, while this process has them imported already): the helper hands the last of the
-    arguments to the pool at once (the fork server starts the first worker when its preload is done), and every
-    argument this process has not begun when the first worker is up; this process's answers come first, then the
-    workers' in the order handed over. Its memory is given back to the system after (_give_back_memory)."""
-    if here is None:
-        with _pool(workers, len(arguments), url) as pool:
-            futures = [pool.submit(_in_worker, url, work, *each) for each in arguments]
-            yield from _answers(pool, futures, peaks_mb)
-        return
+    ``here`` (``here(*each)``, the same work in this process), when given, works the first of the arguments in
+    this process while a helper thread hands the rest to the pool, whose first submit waits seconds for the fork
+    server to import its libraries (which this process has already): no core waits for the imports. One only: a
+    second would run beside the workers' first parts, three parts' memory at once (the run's peak is the sum over
+    its processes). This process gives its memory back to the system after it (_give_back_memory)."""
     with _pool(workers, len(arguments), url) as pool:
-        claims = _Claims(len(arguments))
+        if here is None:
+            yield from _answers(pool, [pool.submit(_in_worker, url, work, *each) for each in arguments], peaks_mb)
+            return
         futures: list = []
         failed: list[BaseException] = []
+        stop = threading.Event()
 
         def hand_over() -> None:
             try:
-                for number in claims.for_the_pool():
-                    futures.append(pool.submit(_in_worker, url, work, *arguments[number]))
-            except BaseException as error:  # raised in the caller's thread, after the parts computed here
+                for each in arguments[1:]:
+                    if stop.is_set():
+                        return
+                    futures.append(pool.submit(_in_worker, url, work, *each))
+            except BaseException as error:  # raised in the caller's thread, after the part computed here
                 failed.append(error)
 
         starter = threading.Thread(target=hand_over, name="fleet-analysis-workers", daemon=True)
         starter.start()
         try:
-            while (number := claims.here()) is not None:
-                yield here(*arguments[number])
+            yield here(*arguments[0])
             _give_back_memory()
             starter.join()
             if failed:
                 raise failed[0]
-        except BaseException:  # a part failed here, or the caller stopped taking answers: the rest is not wanted
-            claims.stop()
+        except BaseException:  # the part failed here, or the caller stopped taking answers: the rest is not wanted
+            stop.set()
             starter.join()
             pool.shutdown(wait=True, cancel_futures=True)
             raise
@@ -177,44 +175,6 @@ def _answers(pool: ProcessPoolExecutor, futures: list, peaks_mb: dict[int, float
     except BaseException:  # a part failed, or the caller stopped taking answers: the rest is not wanted
         pool.shutdown(wait=True, cancel_futures=True)
         raise
-
-
-class _Claims:
-    """Which of ``count`` arguments this process works and which the pool does, decided under a lock: this process
-    takes them from the front until the first worker is up; the pool the last one at once (its submit waits for
-    the fork server), then every one not yet taken."""
-
-    def __init__(self, count: int):
-        self._lock = threading.Lock()
-        self._front, self._end = 0, count
-        self._handed = self._stopped = False
-
-    def here(self) -> int | None:
-        """The next argument for this process, None once the workers are up (or none is left)."""
-        with self._lock:
-            if self._handed or self._stopped or self._front >= self._end:
-                return None
-            self._front += 1
-            return self._front - 1
-
-    def for_the_pool(self) -> Iterator[int]:
-        """The last argument, then (when the caller goes on after its submit, i.e. the first worker is up) every
-        one this process has not taken; nothing once stopped."""
-        with self._lock:
-            if self._stopped or self._front >= self._end:
-                return
-            self._end -= 1
-            last = self._end
-        yield last
-        with self._lock:
-            self._handed = True
-            rest = [] if self._stopped else list(range(self._front, self._end))
-            self._front = self._end
-        yield from rest
-
-    def stop(self) -> None:
-        with self._lock:
-            self._stopped = True
 
 
 def _give_back_memory(heap: bool = True) -> None:
@@ -248,7 +208,7 @@ def spool_in_workers(url: str, id_parts: list[list[int]], paths: list[Path], now
                      here=None) -> Iterator[PartSummary]:
     """Each list of pump ids analysed in one of ``workers`` processes and written to its path
     (fleet.services.analysis.spool.spool_part); their summaries in the order given, each as soon as it is done.
-    ``here(ids, now, settings, path)``, when given, spools the first parts in this process while the workers
-    start (_each)."""
+    ``here(ids, now, settings, path)``, when given, spools the first part in this process while the workers start
+    (_each)."""
     return _each(spool_part, url, [(ids, now, settings, path) for ids, path in zip(id_parts, paths, strict=True)],
                  workers, peaks_mb, here)

@@ -89,7 +89,7 @@ def fleet_afresh(sessions: sessionmaker[Session], now: datetime | None = None, s
     checked in one more: no process holds the whole fleet's results, and no writer waits on more than one part.
 
     With ``workers`` > 1 the workers compute the next parts while this process stores the last, each in its own read
-    transaction; this process computes the first parts itself (each in a read transaction of its own) while the
+    transaction; this process computes the first part itself (in a read transaction of its own) while the
     workers start, in the seconds the fork server takes to import the libraries this process has already
     (fleet.services.analysis.parallel). ``fleet analyze`` runs so; a web server's bring_up_to_date runs the parts in
     its own process (one worker) anyway. In this process alone (one worker, or a private database) the parts are
@@ -102,7 +102,7 @@ def fleet_afresh(sessions: sessionmaker[Session], now: datetime | None = None, s
     settings = settings or AnalysisSettings()
     with spool_folder() as folder:
         with sessions() as session, session.begin():
-            plan = plan_fleet(session, folder, now, settings, workers)
+            plan = plan_fleet(session, folder, now, settings, workers, first_here=True)
             computed = None if plan.url else list(spool_parts(session, plan, settings))
         if computed is not None and marks is not None:
             marks["computed"] = time.perf_counter()

@@ -123,16 +123,17 @@ def spool_folder() -> Iterator[Path]:
 
 
 def plan_fleet(session: Session, folder: Path, now: datetime | None = None, settings: AnalysisSettings | None = None,
-               workers: int = 1, chunk_pumps: int | None = None) -> FleetPlan:
+               workers: int = 1, chunk_pumps: int | None = None, first_here: bool = False) -> FleetPlan:
     """Read the data versions (first: the data read next is at least this new) and cut the fleet into parts, each
     with its file in ``folder`` (spool_folder); with ``workers`` > 1 and a database other processes can open, the
-    parts go to that many worker processes."""
+    parts go to that many worker processes, and with ``first_here`` the first part to this process while they start
+    (spool_parts with ``sessions``: one part more than a multiple of the workers, compute.part_ids)."""
     computed_at = now or utcnow()
     versions = data_versions(session)
     ids = list(session.scalars(select(Pump.id).order_by(Pump.id)))
     chunk_pumps = chunk_pumps or compute_module.CHUNK_PUMPS
     url = _shared_url(session) if workers > 1 and len(ids) > chunk_pumps else None
-    id_parts = part_ids(ids, chunk_pumps, workers if url is not None else 1)
+    id_parts = part_ids(ids, chunk_pumps, workers if url is not None else 1, first_here)
     paths = [folder / f"part-{number:05d}.pickle" for number in range(len(id_parts))]
     return FleetPlan(computed_at, versions, id_parts, paths, url, workers, len(ids))
 
@@ -142,8 +143,8 @@ def spool_parts(session: Session | None, plan: FleetPlan, settings: AnalysisSett
     """Each part of ``plan`` analysed and written to its file, each given back as soon as it is written: by the
     workers (which read committed data in transactions of their own, so ``session`` may be None and the caller free
     to store the parts meanwhile), else in ``session``'s read transaction, one after another, in the plan's order.
-    With workers and ``sessions`` (a session factory), this process spools the first parts itself, each in a read
-    transaction of its own, while the workers start (fleet.services.analysis.parallel._each); those come first."""
+    With workers and ``sessions`` (a session factory), this process spools the first part itself, in a read
+    transaction of its own, while the workers start (fleet.services.analysis.parallel._each); it comes first."""
     if plan.url is not None:
         from fleet.services.analysis.parallel import spool_in_workers
 
