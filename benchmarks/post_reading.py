@@ -7,8 +7,9 @@ Run it on a copy of a benchmark database (``python3 -m benchmarks.run --size ful
 invented reading on each of ``--posts`` + 1 pumps spread over the fleet (the first post warms up and is not
 counted), a day after the pump's last reading (or now, if that is sooner). By default each reading is the
 benchmark's (benchmarks.run: 60,000 h, 150 bar, 1,500 rpm, 40 L/min, 48 degC), which moves most pumps far in the
-service list and moves their kind's fleet life figures; ``--few-hours`` posts 8 h on from the pump's last
-reading instead, as a round would. Prints
+service list and moves their kind's fleet life figures; ``--few-hours`` posts the next reading of a round instead
+(benchmarks.run._round_body: the last reading's values, the hour meter moved on at the pump's own rate), as the
+full benchmark's "new reading" does. Prints
 the median and the largest wall time, the median CPU time of this process (less swayed by other jobs on the
 machine than the wall time) and the load average.
 """
@@ -21,7 +22,7 @@ import time
 import pandas as pd
 from sqlalchemy import func, select
 
-from benchmarks.run import _sign_in
+from benchmarks.run import _round_body, _sign_in
 
 
 def main(argv: list[str] | None = None) -> dict:
@@ -48,13 +49,12 @@ def main(argv: list[str] | None = None) -> dict:
     walls, cpus = [], []
     for number, serial in enumerate(serials):
         with sessions() as session:
-            last_at, last_hours = session.execute(select(func.max(Reading.taken_at), func.max(Reading.hours))
-                                                  .join(Pump).where(Pump.serial == serial)).one()
-        soon = pd.Timestamp(utcnow()).floor("min") - pd.Timedelta(minutes=1)
-        at = min(pd.Timestamp(last_at) + pd.Timedelta(days=1), soon)
-        body = {"pump": serial, "taken_at": at.strftime("%Y-%m-%d %H:%M"),
-                "hours": last_hours + 8.0 if args.few_hours else 60_000.0 + number, "outlet_pressure": 150.0,
-                "speed": 1500, "outlet_flow": 40.0, "oil_temp": 48.0}
+            last_at = session.scalar(select(func.max(Reading.taken_at)).join(Pump).where(Pump.serial == serial))
+            soon = pd.Timestamp(utcnow()).floor("min") - pd.Timedelta(minutes=1)
+            at = min(pd.Timestamp(last_at) + pd.Timedelta(days=1), soon)
+            body = (_round_body(session, serial, at) if args.few_hours else
+                    {"pump": serial, "taken_at": at.strftime("%Y-%m-%d %H:%M"), "hours": 60_000.0 + number,
+                     "outlet_pressure": 150.0, "speed": 1500, "outlet_flow": 40.0, "oil_temp": 48.0})
         wall, cpu = time.perf_counter(), time.process_time()
         response = client.post("/api/readings", json=body, headers=headers)
         if response.status_code != 201:

@@ -347,8 +347,36 @@ def _pages(url: str, serial: str) -> dict:
     return {"service_list_ms": _median_ms(client, "/", 20), "pump_page_ms": _median_ms(client, f"/pumps/{serial}", 5)}
 
 
-def _reading_visible(url: str, serials: list[str], after: pd.Timestamp) -> dict:
-    """Per pump: post one new reading to the API, then poll another session until its new analysis is stored."""
+def _round_body(session, serial: str, at: pd.Timestamp) -> dict:
+    """The next reading a round would take on ``serial`` at ``at``: its last reading's operating point and values,
+    the hour meter moved on at the rate of its last two readings."""
+    from sqlalchemy import select
+
+    from fleet.db.models import Pump, Reading
+
+    last, *before = session.execute(select(Reading).join(Pump).where(Pump.serial == serial)
+                                    .order_by(Reading.taken_at.desc()).limit(2)).scalars().all()
+    per_day = 24.0  # a pump with one reading: running all day since
+    if before:
+        per_day = (last.hours - before[0].hours) / max((last.taken_at - before[0].taken_at).total_seconds() / 86400.0,
+                                                        1e-9)
+    days = (at - pd.Timestamp(last.taken_at)).total_seconds() / 86400.0
+    body = {"pump": serial, "taken_at": at.strftime("%Y-%m-%d %H:%M"), "hours": last.hours + max(per_day, 0.0) * days,
+            "outlet_pressure": last.pressure_bar, "speed": last.speed_rpm, "oil_temp": last.temp_c}
+    if last.flow_lpm is not None:
+        body["outlet_flow"] = last.flow_lpm
+    if last.drain_lpm is not None:
+        body["case_drain_flow"] = last.drain_lpm
+    return body
+
+
+def _reading_visible(url: str, serials: list[str], after: pd.Timestamp, kind_refit: bool = False) -> dict:
+    """Per pump: post one new reading to the API, then poll another session until its new analysis is stored.
+
+    By default the reading is the next one of a round (_round_body). ``kind_refit``: the benchmark's earlier
+    reading instead (60,000 h, 150 bar, 1,500 rpm, 40 L/min, 48 degC), an hour meter far beyond the pump's, which
+    moves its kind's fleet life figures past the bound where they are refitted from every stored life of the kind
+    (fleet.services.analysis.store) on every post: the slowest a single reading gets."""
     from sqlalchemy import select
 
     from fleet.db.models import AnalysisResult, Pump
@@ -360,11 +388,12 @@ def _reading_visible(url: str, serials: list[str], after: pd.Timestamp) -> dict:
     sessions = app.extensions["fleet_db"]
     samples = []
     for number, serial in enumerate(serials):
+        at = after + pd.Timedelta(hours=number)
         with sessions() as session:
             before = session.scalar(select(AnalysisResult.computed_at).join(Pump).where(Pump.serial == serial))
-        body = {"pump": serial, "taken_at": (after + pd.Timedelta(hours=number)).strftime("%Y-%m-%d %H:%M"),
-                "hours": 60_000 + number, "outlet_pressure": 150.0, "speed": 1500, "outlet_flow": 40.0,
-                "oil_temp": 48.0}
+            body = ({"pump": serial, "taken_at": at.strftime("%Y-%m-%d %H:%M"), "hours": 60_000 + number,
+                     "outlet_pressure": 150.0, "speed": 1500, "outlet_flow": 40.0, "oil_temp": 48.0}
+                    if kind_refit else _round_body(session, serial, at))
         started = time.perf_counter()
         response = client.post("/api/readings", json=body, headers=headers)
         if response.status_code != 201:
@@ -375,7 +404,9 @@ def _reading_visible(url: str, serials: list[str], after: pd.Timestamp) -> dict:
             if now is not None and now != before:
                 break
         samples.append(1000.0 * (time.perf_counter() - started))
-    return {"reading_visible_ms": statistics.median(samples), "reading_visible_max_ms": max(samples)}
+    prefix = "refit_" if kind_refit else ""
+    return {f"{prefix}reading_visible_ms": statistics.median(samples),
+            f"{prefix}reading_visible_max_ms": max(samples)}
 
 
 def _partial_refreshes(sessions, serials: list[str], machine: tuple[str, str], day: pd.Timestamp) -> dict:
@@ -472,6 +503,9 @@ def run(size_name: str, work: Path, database: str | None = None, workers: int | 
     after = files.last_reading_at + pd.Timedelta(days=2)
     picks = serials["pump"].iloc[np.linspace(0, len(serials) - 1, 10).astype(int)].tolist()
     figures.update(_reading_visible(url, picks, after))
+    # Other pumps for the refit case: a pump's second post would follow the first one's 60,000 h.
+    refit_picks = serials["pump"].iloc[np.linspace(1, len(serials) - 2, 10).astype(int)].tolist()
+    figures.update(_reading_visible(url, refit_picks, after + pd.Timedelta(days=1), kind_refit=True))
     engine = make_engine(url)
     sessions = make_session_factory(engine)
     figures.update(_partial_refreshes(sessions, picks[:1], tuple(serials[["site", "machine"]].iloc[-1]),
@@ -506,8 +540,10 @@ def table(figures: dict) -> str:
          f"target <= {TARGETS['service_list_ms']:.0f} ms"),
         ("pump page, 5 years of readings", f"{figures['pump_page_ms']:.0f} ms", "",
          f"target <= {TARGETS['pump_page_ms']:.0f} ms"),
-        ("new reading -> analysis visible", f"{figures['reading_visible_ms']:.0f} ms "
+        ("new reading (a round's) -> analysis visible, median of 10", f"{figures['reading_visible_ms']:.0f} ms "
          f"(max {figures['reading_visible_max_ms']:.0f})", "", f"target <= {TARGETS['reading_visible_ms']:.0f} ms"),
+        ("a reading that refits its kind (60,000 h) -> visible", f"{figures['refit_reading_visible_ms']:.0f} ms "
+         f"(max {figures['refit_reading_visible_max_ms']:.0f})", "", ""),
         ("overhaul imported -> refreshed", f"{figures['overhaul_refresh_ms']:.0f} ms", "", ""),
         ("oil sample imported -> refreshed", f"{figures['sample_refresh_ms']:.0f} ms", "", ""),
         (f"command line start (`fleet --help`), median of {figures['help_runs']}", f"{figures['help_ms']:.0f} ms",

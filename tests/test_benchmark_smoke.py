@@ -52,7 +52,7 @@ def _check_figures(figures: dict, stdout: str) -> None:
     assert set(figures["analysis_by_status"]) <= {"past_limit", "due_soon", "watch", "healthy"}
     for name in ("import_s", "import_floor_s", "import_ratio", "analysis_s", "load_floor_s", "analysis_ratio",
                  "analysis_peak_mb", "service_list_ms", "pump_page_ms", "reading_visible_ms",
-                 "overhaul_refresh_ms", "sample_refresh_ms", "help_ms", "help_floor_ms"):
+                 "refit_reading_visible_ms", "overhaul_refresh_ms", "sample_refresh_ms", "help_ms", "help_floor_ms"):
         assert math.isfinite(figures[name]) and figures[name] > 0, name
     assert figures["load_floor_rows"] == figures["readings"]
     assert set(figures["met"]) == set(figures["targets"])

@@ -295,3 +295,43 @@ def test_a_fleet_of_mixed_wear_laws_gets_the_plain_codes_figures(monkeypatch, we
     laws = set(plain.fits["slip_wear_law"].dropna())
     assert {"power", "run_in"} <= laws  # both families decide some forecasts
     _same_analysis(plain, fast)
+
+
+@pytest.mark.parametrize("log_scale", [False, True])
+@pytest.mark.parametrize("unfitted", [False, True])
+def test_reweighting_on_the_moving_groups_alone_gives_the_plain_passes_figures_exactly(monkeypatch, log_scale,
+                                                                                       unfitted):
+    # fit_reweighted leaves the readings of settled groups out of later passes, and takes the residuals' scale
+    # about the final line once where every fitted value is finite; the plain code (every reading in every pass,
+    # kept above) is the reference, to the last bit. Invented groups: straight lines with noise, a few gross
+    # outliers in some (they take more passes), one group without readings; `unfitted`: one group of a single
+    # hour too (no line, so no finite fitted values).
+    rng = np.random.default_rng(5)
+    n_groups = 120
+    sizes = rng.integers(6, 60, n_groups)
+    sizes[17] = 0
+    group = np.repeat(np.arange(n_groups), sizes)
+    x = rng.uniform(0.0, 5000.0, group.size)
+    if unfitted:
+        x[group == 40] = 1200.0  # no spread: no line
+    level = np.exp(rng.normal(0.0, 0.3, n_groups))[group] * (1.0 + 2e-4 * x)
+    y = level * (1.0 + 0.02 * rng.normal(size=group.size))
+    wild = (rng.random(group.size) < 0.04) & (group % 3 == 0)
+    y[wild] *= rng.uniform(1.5, 3.0, int(wild.sum()))
+    if log_scale:
+        y = np.log(y)
+
+    def variance_of_fit(fitted):  # a relative error model that follows the fitted line, as the case drain's
+        centre = y if fitted is None else fitted
+        return (0.02 * (np.exp(centre) if log_scale else centre)) ** 2 + 1e-6
+
+    sizes_seen = []
+    scale = robust.robust_scale
+    monkeypatch.setattr(robust, "robust_scale", lambda g, z, n: sizes_seen.append(len(z)) or scale(g, z, n))
+    settings = AnalysisSettings()
+    got, got_w = robust.fit_reweighted(group, x, y, variance_of_fit, n_groups, settings, log_scale)
+    assert min(sizes_seen) < group.size  # some passes ran on the moving groups alone
+    expected, expected_w = reference_reweighted(group, x, y, variance_of_fit, n_groups, settings, log_scale)
+    for name in ("a", "b", "var_a", "var_b", "cov_ab", "scale", "dof", "n_points", "x_mean"):
+        np.testing.assert_array_equal(getattr(got, name), getattr(expected, name), err_msg=name)
+    np.testing.assert_array_equal(got_w, expected_w)

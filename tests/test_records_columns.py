@@ -92,3 +92,13 @@ def test_a_part_of_the_demo_plant_gives_the_value_by_value_records_and_details(d
     for record in records:  # the spool's detail text: as it was with json_ready, now without
         detail = {k: v for k, v in record.items() if k not in NOT_IN_DETAIL}
         assert spool.json_text(detail) == spool.json_text(json_ready(detail))
+
+
+def test_one_pump_at_a_time_gives_the_value_by_value_records(demo_db):
+    # A write's analysis holds one pump or a few: its rows go cell by cell from one object array (results_to_records'
+    # few-rows path), which must give what the value-by-value reference gives.
+    with demo_db.sessions() as session, session.begin():
+        parts = [analyse_part(session, ids, NOW, AnalysisSettings()) for ids in ([1], [2], [7, 8, 9], [40, 41])]
+    for part in parts:
+        assert len(part.results) < engine._WHOLE_COLUMNS
+        assert _typed(results_to_records(part.results)) == _typed(reference_records(part.results))

@@ -53,3 +53,23 @@ def test_one_groups_median_matches_pandas(size):
     values[::5] = np.nan
     expected = pd.Series(values, dtype=float).median()  # pandas skips the missing values; NaN with none left
     np.testing.assert_array_equal(group_median(np.zeros(size, dtype=np.int64), values, 1), [expected])
+
+
+@pytest.mark.parametrize("case", ["fleet", "late_pass", "one_long_group", "infinite"])
+def test_median_of_groups_in_order_matches_pandas(case):
+    # Group codes in order (a part's readings pump by pump, or the few groups a late reweighting pass keeps)
+    # take a path of their own: each group's values sorted in a row. Reference: pandas' grouped median, exactly.
+    rng = np.random.default_rng(len(case))
+    n_groups = 600
+    sizes = rng.integers(1, 40, n_groups)
+    if case == "late_pass":  # a few groups left, codes with gaps between them
+        sizes[rng.random(n_groups) < 0.97] = 0
+    if case == "one_long_group":  # rows would be mostly padding: pandas' own path
+        sizes[7] = 5000
+    group = np.repeat(np.arange(n_groups), sizes)
+    values = np.abs(rng.normal(size=len(group))).round(1)  # ties, as repeated readings make
+    values[::7] = np.nan
+    if case == "infinite":
+        values[::11] = np.inf
+    expected = pd.Series(values).groupby(group).median().reindex(range(n_groups + 2)).to_numpy(dtype=float)
+    np.testing.assert_array_equal(group_median(group, values, n_groups + 2), expected)

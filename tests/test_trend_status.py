@@ -342,6 +342,29 @@ def test_order_keys_equal_the_series_reference(fleet):
         service_rank(res).tolist()
 
 
+def test_a_stores_keys_from_its_records_equal_the_frames(fleet):
+    """fleet.services.analysis.store.order_keys reads the records' fields as arrays (dates as numpy days) rather
+    than a frame of them: the same keys as the frame gives, here on the synthetic fleet's records (every status,
+    dates and missing ones), one record at a time as a write stores them, and on records whose dates numpy does
+    not read as ISO days (pandas then reads them)."""
+    from fleet.services.analysis.store import ORDER_FIELDS, order_keys
+
+    analysis, _ = fleet
+    records = results_to_records(analysis.results)
+    assert {r["status"] for r in records} == {"past_limit", "due_soon", "watch", "healthy"}
+
+    def framed(rows):
+        return service_order_keys(pd.DataFrame({n: [r.get(n) for r in rows] for n in ORDER_FIELDS})).tolist()
+
+    assert order_keys(records).tolist() == framed(records)
+    for record in records[:40]:
+        assert order_keys([record]).tolist() == framed([record])
+    due = next(r for r in records if r["status"] == "due_soon")
+    for odd in ("2026-1-5", "2026-01-05T10:00", "05/01/2026", None):
+        rows = [{**due, "limit_date_low": odd}, {**due, "pump": "X-2", "limit_date_low": None}]
+        assert order_keys(rows).tolist() == framed(rows), odd
+
+
 @pytest.mark.parametrize("unit", ["s", "ms", "us", "ns"])
 def test_horizon_hours_equal_the_series_reference(unit):
     """Reference: pandas' own (now - times).dt.total_seconds() on a Series, times in each unit, NaT among them,

@@ -13,7 +13,7 @@ from datetime import datetime, timedelta
 
 from argon2 import PasswordHasher
 from argon2.exceptions import InvalidHashError, VerificationError
-from sqlalchemy import func, select, update
+from sqlalchemy import bindparam, func, select, update
 from sqlalchemy.orm import Session
 
 from fleet.db.models import ApiToken, AuditRecord, User, UserSession
@@ -274,12 +274,16 @@ def revoke_token(session: Session, token_id: int) -> ApiToken:
     return token
 
 
+# Built once: every API request asks it.
+_TOKEN_OWNER = (select(User, ApiToken).join(ApiToken, ApiToken.user_id == User.id)
+                .where(ApiToken.token_hash == bindparam("token_hash")))
+
+
 def user_for_token(session: Session, secret: str) -> tuple[User, ApiToken] | None:
     """The active user and live token that ``secret`` belongs to, else None (unknown, revoked, user disabled)."""
     if not secret.startswith(TOKEN_PREFIX):
         return None
-    row = session.execute(select(User, ApiToken).join(ApiToken, ApiToken.user_id == User.id)
-                          .where(ApiToken.token_hash == token_hash(secret))).first()
+    row = session.execute(_TOKEN_OWNER, {"token_hash": token_hash(secret)}).first()
     if row is None:
         return None
     user, token = row

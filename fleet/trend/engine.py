@@ -583,6 +583,16 @@ def _plain_column(values: pd.Series) -> list:
 
 def results_to_records(results: pd.DataFrame) -> list[dict]:
     """Results rows as JSON-ready dicts (pump_id included)."""
+    index = results.index
+    if len(results) < _WHOLE_COLUMNS and index.nlevels == 1 and index.name is not None \
+            and index.name not in results.columns:
+        # A write's few pumps: every cell as a Python object in one step (the values Series.tolist gives: floats,
+        # ints, Timestamps, text or its missing value), then value by value; a column at a time would pay pandas'
+        # Series per column, about a hundred of them, for a row or two.
+        names = [str(index.name), *(str(k) for k in results.columns)]
+        cells = results.to_numpy(dtype=object).tolist()
+        return [dict(zip(names, [_plain(pump), *(_plain(v) for v in row)], strict=True))
+                for pump, row in zip(index.tolist(), cells, strict=True)]
     frame = results.reset_index()
     # Column by column as Python values (what to_dict gives, without its lookup per cell), then row by row.
     names = [str(k) for k in frame.columns]

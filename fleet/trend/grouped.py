@@ -78,7 +78,11 @@ def within_days_of_last(group: np.ndarray, times: np.ndarray, n_groups: int, day
 
 def group_median(group: np.ndarray, values: np.ndarray, n_groups: int) -> np.ndarray:
     """The median of each group: the middle value, or the mean of the two middle ones, of its sorted values."""
-    if n_groups > _FEW_GROUPS:  # many groups (a fleet): pandas' grouped median needs no sort of all the values
+    if n_groups > _FEW_GROUPS:  # many groups (a fleet)
+        out = _sorted_groups_median(group, values, n_groups)
+        if out is not None:
+            return out
+        # pandas' grouped median needs no sort of all the values
         return pd.Series(values).groupby(group).median().reindex(range(n_groups)).to_numpy(dtype=float)
     known = ~np.isnan(values)
     g, v = group[known], values[known]
@@ -93,4 +97,33 @@ def group_median(group: np.ndarray, values: np.ndarray, n_groups: int) -> np.nda
     out = np.full(n_groups, np.nan)
     low, high = (starts + (counts - 1) // 2)[has], (starts + counts // 2)[has]
     out[has] = (v[low] + v[high]) / 2
+    return out
+
+
+def _sorted_groups_median(group: np.ndarray, values: np.ndarray, n_groups: int) -> np.ndarray | None:
+    """group_median where the group codes run in order (as a part's readings do, pump by pump, and any subset of
+    them): each group's values in a row of its own (padded with +inf after them), the rows sorted, each row's
+    middle ones picked; None where the codes are not in order or the rows would be mostly padding. The median is
+    the middle value (odd count) or the mean of the two middle ones (even), as pandas takes it, so the figures are
+    pandas' to the last bit; on a fleet's readings the sorts cost less than pandas' grouper, and on the few groups
+    of a late reweighting pass far less."""
+    known = ~np.isnan(values)
+    if not known.all():
+        group, values = group[known], values[known]
+    out = np.full(n_groups, np.nan)
+    if not len(values):
+        return out
+    if np.any(group[1:] < group[:-1]):
+        return None
+    starts = np.flatnonzero(np.concatenate(([True], group[1:] != group[:-1])))
+    counts = np.diff(np.append(starts, len(values)))
+    width = int(counts.max())
+    if width * len(starts) > 4 * len(values) + 4096:
+        return None
+    block = np.full((len(starts), width), np.inf)  # a real +inf sorts among the padding: the same value
+    block.ravel()[np.arange(len(values)) + np.repeat(np.arange(len(starts)) * width - starts, counts)] = values
+    block.sort(axis=1)
+    rows = np.arange(len(starts))
+    low, high = block[rows, (counts - 1) // 2], block[rows, counts // 2]
+    out[group[starts]] = np.where(counts % 2 == 1, high, (low + high) / 2)
     return out

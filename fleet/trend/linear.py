@@ -37,8 +37,14 @@ def _safe_div(num, den):
 
 def _spread(g, x, w, dx, n_groups):
     """Weighted sum of squares of x about its group mean; NaN where the x values do not spread."""
-    sxx = np.bincount(g, w * dx * dx, minlength=n_groups)
-    return np.where(sxx > 1e-12 * np.maximum(np.bincount(g, w * x * x, minlength=n_groups), 1e-300), sxx, np.nan)
+    return _spread_of(g, x, w * x, dx, w * dx, n_groups)
+
+
+def _spread_of(g, x, wx, dx, wdx, n_groups):
+    """_spread from the products w x and w dx a caller has made already (w * dx * dx is (w * dx) * dx: the same
+    products, so the same sums)."""
+    sxx = np.bincount(g, wdx * dx, minlength=n_groups)
+    return np.where(sxx > 1e-12 * np.maximum(np.bincount(g, wx * x, minlength=n_groups), 1e-300), sxx, np.nan)
 
 
 def inverse_design(group: np.ndarray, x: np.ndarray, w: np.ndarray, n_groups: int):
@@ -46,8 +52,10 @@ def inverse_design(group: np.ndarray, x: np.ndarray, w: np.ndarray, n_groups: in
     use = np.isfinite(x) & np.isfinite(w) & (w > 0)
     g, x, w = group[use], x[use], w[use]
     s0 = np.bincount(g, w, minlength=n_groups)
-    x_mean = _safe_div(np.bincount(g, w * x, minlength=n_groups), s0)
-    inv_sxx = _safe_div(1.0, _spread(g, x, w, x - x_mean[g], n_groups))
+    wx = w * x
+    x_mean = _safe_div(np.bincount(g, wx, minlength=n_groups), s0)
+    dx = x - x_mean[g]
+    inv_sxx = _safe_div(1.0, _spread_of(g, x, wx, dx, w * dx, n_groups))
     return _safe_div(1.0, s0) + x_mean**2 * inv_sxx, -x_mean * inv_sxx, inv_sxx
 
 
@@ -59,11 +67,13 @@ def grouped_line(group: np.ndarray, x: np.ndarray, y: np.ndarray, w: np.ndarray,
     if not use.all():
         group, x, y, w = group[use], x[use], y[use], w[use]
     s0 = np.bincount(group, w, minlength=n_groups)
-    x_mean = _safe_div(np.bincount(group, w * x, minlength=n_groups), s0)
+    wx = w * x  # each product made once and shared by the sums that hold it, multiplied in their order
+    x_mean = _safe_div(np.bincount(group, wx, minlength=n_groups), s0)
     y_mean = _safe_div(np.bincount(group, w * y, minlength=n_groups), s0)
     dx = x - x_mean[group]
-    sxx = _spread(group, x, w, dx, n_groups)
-    b = _safe_div(np.bincount(group, w * dx * (y - y_mean[group]), minlength=n_groups), sxx)
+    wdx = w * dx
+    sxx = _spread_of(group, x, wx, dx, wdx, n_groups)
+    b = _safe_div(np.bincount(group, wdx * (y - y_mean[group]), minlength=n_groups), sxx)
     return y_mean - b * x_mean, b, x_mean
 
 

@@ -66,29 +66,47 @@ def fit_reweighted(
     if not fixed:
         previous = None
         done = np.zeros(n_groups, dtype=bool)
+        # Each pass works on the readings of the groups still moving (`rows`, None for every reading): a settled
+        # group's line, error model and weights no longer change, so its readings are left as they are; only the
+        # error model is evaluated over every reading (variance_of_fit takes whole arrays), at each reading's
+        # latest fitted value (`at`), and read at the moving ones.
+        rows = None
+        at = None
         for _ in range(settings.irls_iterations):
-            fitted = a[group] + b[group] * x
+            g_r, x_r, y_r = (group, x, y) if rows is None else (group[rows], x[rows], y[rows])
+            fitted = a[g_r] + b[g_r] * x_r
             ok = np.isfinite(fitted)
             if previous is not None:
                 # A group whose fitted values moved less than the tolerance keeps its line from now on; each
                 # group's result depends on its own readings only, whichever pumps are analysed with it.
-                moved = ok & (np.abs(fitted - previous) > settings.irls_tolerance * (1.0 + np.abs(fitted)))
-                done |= np.bincount(group, moved, minlength=n_groups) == 0
+                before = previous if rows is None else previous[rows]
+                moved = ok & (np.abs(fitted - before) > settings.irls_tolerance * (1.0 + np.abs(fitted)))
+                done |= np.bincount(g_r, moved, minlength=n_groups) == 0
                 if done.all():
                     break
-            previous = fitted
-            variance = np.where(ok, variance_of_fit(np.where(ok, fitted, y)), variance)
-            model_w = 1.0 / variance
-            y_used = y + bias * variance
-            z = (y_used - np.where(ok, fitted, y_used)) * np.sqrt(model_w)
+            fitted_or_y = np.where(ok, fitted, y_r)
+            if rows is None:
+                previous, at = fitted, fitted_or_y
+                variance = np.where(ok, variance_of_fit(at), variance)
+                var_r = variance
+            else:
+                previous[rows] = fitted
+                at[rows] = fitted_or_y
+                var_r = np.where(ok, variance_of_fit(at)[rows], variance[rows])
+                variance[rows] = var_r
+            model_w_r = 1.0 / var_r
+            y_used_r = y_r + bias * var_r
+            z = (y_used_r - np.where(ok, fitted, y_used_r)) * np.sqrt(model_w_r)
             # Only the groups still moving are refitted: each group's scale and line come from its own readings,
             # so leaving the settled ones out changes no figure and spares most of the later passes.
-            moving = np.flatnonzero(~done[group]) if done.any() else slice(None)
-            g_m, z_m = group[moving], z[moving]
-            u = np.abs(z_m) / robust_scale(g_m, z_m, n_groups)[g_m]
+            if done.any():
+                moving = np.flatnonzero(~done[g_r])
+                rows = moving if rows is None else rows[moving]
+                g_r, x_r, y_used_r, model_w_r, z = (g_r[moving], x_r[moving], y_used_r[moving], model_w_r[moving],
+                                                    z[moving])
+            u = np.abs(z) / robust_scale(g_r, z, n_groups)[g_r]
             pass_w = huber_weights(u, k)
-            a_new, b_new, x_mean_new = grouped_line(g_m, x[moving], y_used[moving], model_w[moving] * pass_w,
-                                                    n_groups)
+            a_new, b_new, x_mean_new = grouped_line(g_r, x_r, y_used_r, model_w_r * pass_w, n_groups)
             a, b, x_mean = np.where(done, a, a_new), np.where(done, b, b_new), np.where(done, x_mean, x_mean_new)
         # The error model and the Huber weights at the final line, so that they depend on it alone (not on
         # whether the passes stopped because this group or the last one had converged).
@@ -98,11 +116,17 @@ def fit_reweighted(
         model_w = 1.0 / variance
         y_used = y + bias * variance
         z = (y_used - np.where(ok, fitted, y_used)) * np.sqrt(model_w)
-        u = np.abs(z) / robust_scale(group, z, n_groups)[group]
+        scale = robust_scale(group, z, n_groups)
+        u = np.abs(z) / scale[group]
         robust_w = huber_weights(u, k)
+        # Where every fitted value is finite these are the residuals about the line below, to the last bit: their
+        # scale is taken once.
+        about_line = ok.all()
 
-    z = (y_used - (a[group] + b[group] * x)) * np.sqrt(model_w)
-    clip_at = k * robust_scale(group, z, n_groups)[group]
+    if fixed or not about_line:
+        z = (y_used - (a[group] + b[group] * x)) * np.sqrt(model_w)
+        scale = robust_scale(group, z, n_groups)
+    clip_at = k * scale[group]
     count = np.bincount(group, minlength=n_groups).astype(float)
     psi2 = np.bincount(group, np.minimum(z * z, clip_at * clip_at), minlength=n_groups)
     inside = np.bincount(group, (np.abs(z) <= clip_at).astype(float), minlength=n_groups)

@@ -88,6 +88,10 @@ _FAMILY_POWERS = np.array([m.power for m in MEMBERS if m.law == "power"])
 _RUN_IN_TAUS = np.array(RUN_IN_TAUS)
 _RUN_IN_SHARES = np.array(RUN_IN_SHARES)
 _RUN_IN_SCALE = -np.expm1(-1.0 / _RUN_IN_TAUS)  # 1 - e^(-1/tau): a run-in member's rise at u = 1
+# ... per run-in member (time constant by time constant, each with every share), as _family_x's columns
+_RUN_IN_SHARE_COLUMNS = np.tile(_RUN_IN_SHARES, _RUN_IN_TAUS.size)
+_RUN_IN_SCALE_COLUMNS = np.repeat(_RUN_IN_SCALE, _RUN_IN_SHARES.size)
+_RUN_IN_STEADY_COLUMNS = np.tile(1.0 - _RUN_IN_SHARES, _RUN_IN_TAUS.size)
 # _family_x lays the run-in members out time constant by time constant, as MEMBERS holds them
 assert [(m.tau, m.share) for m in MEMBERS if m.law == "run_in"] == [
     (t, sh) for t in RUN_IN_TAUS for sh in RUN_IN_SHARES]
@@ -142,9 +146,11 @@ class LawFits:
 
     def t_ratio(self, confidence: float) -> np.ndarray:
         """z / t per group and member at the two-sided level: Phi(T z / t) then has the member's t quantiles
-        there (computed once; t quantiles are slow)."""
+        there (computed once; t quantiles are slow: one per distinct dof, the counts of readings being few)."""
         if confidence not in self._t_ratio:
-            self._t_ratio[confidence] = special.ndtri(0.5 + confidence / 2.0) / t_quantile(confidence, self.dof)
+            distinct, at = np.unique(self.dof, return_inverse=True)
+            t = t_quantile(confidence, distinct)[at.reshape(self.dof.shape)]
+            self._t_ratio[confidence] = special.ndtri(0.5 + confidence / 2.0) / t
         return self._t_ratio[confidence]
 
     def weigh(self, law_score: np.ndarray, member_score: np.ndarray, log_prior: np.ndarray | None = None) -> None:
@@ -341,19 +347,21 @@ def run_in_dx_du(u, tau: float, share: float) -> np.ndarray:
 _BLOCK_CELLS = 1 << 16
 
 
-def _family_x(family: str, u: np.ndarray, log_u: np.ndarray) -> np.ndarray:
+def _family_x(family: str, u: np.ndarray, log_u: np.ndarray, out: np.ndarray | None = None) -> np.ndarray:
     """x of every member of a family at u (readings x the family's members, in MEMBERS' order), each column as
     member_x gives it: the power law's u^p by one outer product of ln u, the run-in law's saturating part once
-    per time constant for all its shares (MEMBERS holds them time constant by time constant)."""
+    per time constant for all its shares (MEMBERS holds them time constant by time constant). out: a block of
+    that shape to fill (every step in place: a fresh block of this size costs more than the arithmetic)."""
+    if out is None:
+        out = np.empty((len(u), len(_FAMILY_POWERS) if family == "power" else _RUN_IN_SCALE.size * _RUN_IN_SHARES.size))
     if family == "power":
-        return np.exp(log_u[:, None] * _FAMILY_POWERS[None, :])
+        return np.exp(np.multiply(log_u[:, None], _FAMILY_POWERS[None, :], out=out), out=out)
     rise = np.negative(np.expm1(np.divide(-u[:, None], _RUN_IN_TAUS[None, :])))
-    # rise s / (1 - e^(-1/tau)) + u (1 - s), each step in place (fresh blocks cost more than the arithmetic)
-    x = np.multiply(rise[:, :, None], _RUN_IN_SHARES[None, None, :])
-    np.divide(x, _RUN_IN_SCALE[None, :, None], out=x)
-    steady = np.multiply(u[:, None, None], (1.0 - _RUN_IN_SHARES)[None, None, :])
-    np.add(x, steady, out=x)
-    return x.reshape(len(u), -1)
+    # rise s / (1 - e^(-1/tau)) + u (1 - s), each step over whole rows of the block (the members' shares, scales
+    # and steady shares laid out as its columns: numpy's loops then run along the rows, not nine columns at a time)
+    np.multiply(np.repeat(rise, _RUN_IN_SHARES.size, axis=1), _RUN_IN_SHARE_COLUMNS, out=out)
+    np.divide(out, _RUN_IN_SCALE_COLUMNS, out=out)
+    return np.add(out, np.multiply(u[:, None], _RUN_IN_STEADY_COLUMNS), out=out)
 
 
 def _segment_sum(values: np.ndarray, edges: list[tuple[int, int]], cells: np.ndarray | None = None) -> np.ndarray:
@@ -374,12 +382,14 @@ def _segment_sum(values: np.ndarray, edges: list[tuple[int, int]], cells: np.nda
 _NARROW = 32  # up to this many columns a block's sums go by np.bincount (a row reduce pays its loop per row)
 
 
-def _segment_cells(local: np.ndarray, columns: int) -> np.ndarray | None:
+def _segment_cells(local: np.ndarray, columns: int, out: np.ndarray | None = None) -> np.ndarray | None:
     """The bin of each cell of a block (readings x columns, C order) for _segment_sum: its segment x columns + its
-    column; None for a wide block."""
+    column; None for a wide block. out: a block of integers (readings x columns) to fill."""
     if columns > _NARROW:
         return None
-    return (local[:, None] * columns + np.arange(columns)[None, :]).ravel()
+    if out is None:
+        out = np.empty((len(local), columns), dtype=np.int64)
+    return np.add((local * columns)[:, None], np.arange(columns)[None, :], out=out).ravel()
 
 
 def _fit_family_members(family, group, hours, q, sigma, robust_w, clip, hours_scale, offset, n_groups, out,
@@ -392,10 +402,11 @@ def _fit_family_members(family, group, hours, q, sigma, robust_w, clip, hours_sc
     Every member at once: the readings sorted by group (stably, so each group's sums add in the readings' own
     order), the members' x as the columns of a block of readings, and each sum one segment sum over the block's
     rows; blocks of whole groups keep each pass in cache."""
-    keep = np.ones(len(group), dtype=bool) if only is None else only[group]
-    order = np.flatnonzero(keep)
-    order = order[np.argsort(group[order], kind="stable")]
-    group, hours, q, sigma, robust_w = group[order], hours[order], q[order], sigma[order], robust_w[order]
+    if only is not None or np.any(group[1:] < group[:-1]):  # (a part's readings come in order: taken as they are)
+        keep = np.ones(len(group), dtype=bool) if only is None else only[group]
+        order = np.flatnonzero(keep)
+        order = order[np.argsort(group[order], kind="stable")]
+        group, hours, q, sigma, robust_w = group[order], hours[order], q[order], sigma[order], robust_w[order]
     cols = _FAMILY_COLUMNS[family]
     n_params = _N_PARAMS[cols]
     model_w = 1.0 / sigma**2
@@ -412,20 +423,30 @@ def _fit_family_members(family, group, hours, q, sigma, robust_w, clip, hours_sc
     seg_start = np.concatenate([[0], np.cumsum(count[fitted])[:-1]]).astype(np.int64)
     seg_end = seg_start + count[fitted].astype(np.int64)
     per_block = max(_BLOCK_CELLS // len(n_params), 1)
+    blocks = []  # whole groups up to about per_block readings (at least one group)
     first = 0
     while first < len(fitted):
-        # whole groups up to about per_block readings (at least one group)
         last = max(int(np.searchsorted(seg_end, seg_start[first] + per_block, side="right")), first + 1)
+        blocks.append((first, last))
+        first = last
+    # The blocks' x, two scratch blocks for every product, and the sums' bins: made once for the largest block
+    # and filled in place (fresh blocks of this size cost more than the arithmetic on them)
+    columns = len(n_params)
+    most = max((int(seg_end[last - 1] - seg_start[first]) for first, last in blocks), default=0) * columns
+    x_cells, wx_cells, part_cells = np.empty(most), np.empty(most), np.empty(most)
+    bin_cells = np.empty(most if columns <= _NARROW else 0, dtype=np.int64)
+    for first, last in blocks:
         lo, hi = seg_start[first], seg_end[last - 1]
+        shape = (int(hi - lo), columns)
         gs = fitted[first:last]
         edges = list(zip((seg_start[first:last] - lo).tolist(), (seg_end[first:last] - lo).tolist(), strict=True))
         local = np.repeat(np.arange(last - first), count[gs].astype(np.int64))
-        x = _family_x(family, u[lo:hi], log_u[lo:hi])
-        cells = _segment_cells(local, x.shape[1])
+        size = shape[0] * columns
+        x = _family_x(family, u[lo:hi], log_u[lo:hi], out=x_cells[:size].reshape(shape))
+        cells = _segment_cells(local, columns, bin_cells[:size].reshape(shape) if bin_cells.size else None)
         qb, mb, wb = q[lo:hi, None], model_w[lo:hi, None], w[lo:hi, None]
-        # two scratch blocks, reused for every product (fresh ones would cost more than the arithmetic)
-        wx = wb * x
-        part = np.multiply(wx, x)
+        wx = np.multiply(wb, x, out=wx_cells[:size].reshape(shape))
+        part = np.multiply(wx, x, out=part_cells[:size].reshape(shape))
         sx = _segment_sum(wx, edges, cells)
         sxx = _segment_sum(part, edges, cells)
         sxy = _segment_sum(np.multiply(wx, qb, out=part), edges, cells)
@@ -463,7 +484,6 @@ def _fit_family_members(family, group, hours, q, sigma, robust_w, clip, hours_sc
         for name, value in values.items():
             out[name][gs, cols] = value
         deviance[gs, cols] = psi2
-        first = last
     # A group without readings (among those refitted) has no line: as the sums over nothing give.
     empty = np.flatnonzero((count == 0) & (np.ones(n_groups, dtype=bool) if only is None else only))
     if empty.size:
@@ -513,21 +533,29 @@ def _through_origin(group, x, y, w, n_groups, huber_k: float) -> tuple[np.ndarra
     Huber weights about the line (the scale as fleet.trend.robust.robust_scale), so that a gross outlier of y
     moves k little; returns k and the last Huber weights."""
     robust = np.ones_like(y)
+    root_w = np.sqrt(w)
+    # scratch arrays filled in place in every pass (fresh ones of a part's size fault their pages in afresh)
+    wx, term, z = np.empty_like(y), np.empty_like(y), np.empty_like(y)
+    block = []
     for _ in range(4):
-        sxx = np.bincount(group, w * robust * x * x, minlength=n_groups)
+        # the common factor of both sums, w x robust x, multiplied in the same order as each of them
+        np.multiply(np.multiply(w, robust, out=wx), x, out=wx)
+        sxx = np.bincount(group, np.multiply(wx, x, out=term), minlength=n_groups)
         with np.errstate(invalid="ignore", divide="ignore"):
-            k = np.where(sxx > 0, np.bincount(group, w * robust * x * y, minlength=n_groups) / sxx, np.nan)
-            z = (y - k[group] * x) * np.sqrt(w)
-            u = np.abs(z) / _mad_scale(group, np.nan_to_num(z), n_groups)[group]
+            k = np.where(sxx > 0, np.bincount(group, np.multiply(wx, y, out=term), minlength=n_groups) / sxx, np.nan)
+            np.multiply(np.subtract(y, np.multiply(k[group], x, out=z), out=z), root_w, out=z)
+            scale = _mad_scale(group, np.nan_to_num(z, copy=True), n_groups, block)
+            u = np.divide(np.abs(z, out=term), scale[group], out=term)
             robust = np.where(u > huber_k, huber_k / u, 1.0)
     return k, robust
 
 
-def _mad_scale(group, z, n_groups) -> np.ndarray:
+def _mad_scale(group, z, n_groups, scratch: list | None = None) -> np.ndarray:
     """fleet.trend.robust.robust_scale (1.4826 x median |z| per group, never below 1) by one sort: called on the
     readings of many (group, member) pairs, where a grouped median's fixed cost would dominate. Each group's
     values sorted in a row of their own (padded), a far cheaper sort than one of every value by group; a lexical
-    sort where one group is so much longer than the rest that the rows would be mostly padding."""
+    sort where one group is so much longer than the rest that the rows would be mostly padding. scratch: a list
+    that keeps the padded block between calls of one shape (a caller's passes), refilled rather than made anew."""
     a = np.abs(z)
     count = np.bincount(group, minlength=n_groups)
     has = count > 0
@@ -538,8 +566,16 @@ def _mad_scale(group, z, n_groups) -> np.ndarray:
         if np.any(group[1:] < group[:-1]):
             by_group = np.argsort(group, kind="stable")
             group, a = group[by_group], a[by_group]
-        block = np.full((n_groups, width), np.inf)
-        block[group, np.arange(a.size) - (np.cumsum(count) - count)[group]] = a
+        if scratch is not None and scratch and scratch[0].size == n_groups * width:  # the caller's block, again
+            block = scratch[0].reshape(n_groups, width)
+            block.fill(np.inf)
+        else:
+            block = np.full((n_groups, width), np.inf)
+            if scratch is not None:
+                scratch[:] = [block]
+        # each value at its group's row, in the place after its group's earlier ones (one flat index)
+        block.ravel()[np.arange(a.size) + np.repeat(np.arange(n_groups) * width - (np.cumsum(count) - count),
+                                                    count)] = a
         block.sort(axis=1)
         picks = np.arange(n_groups)
         lo = block[picks, np.maximum((count - 1) // 2, 0)]

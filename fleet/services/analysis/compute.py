@@ -6,7 +6,7 @@ from datetime import datetime
 
 import numpy as np
 import pandas as pd
-from sqlalchemy import select
+from sqlalchemy import bindparam, select
 from sqlalchemy.orm import Session
 
 from fleet.db.models import FleetPrior, Pump, PumpDataVersion
@@ -51,16 +51,23 @@ class Computed:
     worker_peaks_mb: dict[int, float] = field(default_factory=dict)  # worker process id -> its peak memory
 
 
+# Built once: building a statement costs more than running it for a write's pump or two.
+_VERSIONS = select(Pump.id, PumpDataVersion.version).outerjoin(PumpDataVersion, PumpDataVersion.pump_id == Pump.id)
+_VERSIONS_OF = _VERSIONS.where(Pump.id.in_(bindparam("ids", expanding=True)))
+_PRIORS = select(FleetPrior.kind, FleetPrior.detail)
+
+
 def data_versions(session: Session, pump_ids=None) -> dict[int, int]:
     """pump_id -> data version (0 for a pump no write has counted yet)."""
-    statement = select(Pump.id, PumpDataVersion.version).outerjoin(PumpDataVersion, PumpDataVersion.pump_id == Pump.id)
-    if pump_ids is not None:
-        statement = statement.where(Pump.id.in_([int(p) for p in pump_ids]))
-    return {pump_id: version or 0 for pump_id, version in session.execute(statement)}
+    if pump_ids is None:
+        rows = session.execute(_VERSIONS)
+    else:
+        rows = session.execute(_VERSIONS_OF, {"ids": [int(p) for p in pump_ids]})
+    return {pump_id: version or 0 for pump_id, version in rows}
 
 
 def stored_priors(session: Session) -> pd.DataFrame | None:
-    rows = session.execute(select(FleetPrior.kind, FleetPrior.detail)).all()  # plain rows, no ORM objects
+    rows = session.execute(_PRIORS).all()  # plain rows, no ORM objects
     return priors_frame([(kind, detail) for kind, detail in rows]) if rows else None
 
 

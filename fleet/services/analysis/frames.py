@@ -9,7 +9,7 @@ from datetime import datetime
 
 import numpy as np
 import pandas as pd
-from sqlalchemy import select
+from sqlalchemy import bindparam, select
 from sqlalchemy.orm import Session
 
 from fleet.db.models import (
@@ -43,15 +43,15 @@ class FleetFrames:
     samples: pd.DataFrame
 
 
-def _query(session: Session, statement) -> pd.DataFrame:
-    result = session.execute(statement)
+def _query(session: Session, statement, parameters: dict | None = None) -> pd.DataFrame:
+    result = session.execute(statement, parameters)
     return pd.DataFrame(result.all(), columns=list(result.keys()))
 
 
-def driver_rows(session: Session, statement) -> tuple[list[str], list[tuple]]:
-    """The column names and the driver's own rows of ``statement``, without SQLAlchemy's per-row Row and type
-    processing (on SQLite a time then arrives as text)."""
-    result = session.connection().execute(statement)
+def driver_rows(session: Session, statement, parameters: dict | None = None) -> tuple[list[str], list[tuple]]:
+    """The column names and the driver's own rows of ``statement`` (with its bound ``parameters``), without
+    SQLAlchemy's per-row Row and type processing (on SQLite a time then arrives as text)."""
+    result = session.connection().execute(statement, parameters)
     try:
         return list(result.keys()), (result.cursor.fetchall() if result.cursor is not None else [])
     finally:
@@ -270,22 +270,27 @@ _SAMPLE_FLOATS = ("code_4", "code_6", "code_14", "water_ppm", "viscosity_40")
 _STORED_TIME = len("2021-01-04 08:00:00.000000")  # how SQLAlchemy writes a DateTime into SQLite's text
 
 
+# The lab samples' columns, of every machine or of some (built once: a write's one pump asks for its machine's).
+_SAMPLES = select(OilSample.machine_id, OilSample.sampled_at, OilSample.reported_at, OilSample.code_4,
+                  OilSample.code_6, OilSample.code_14, OilSample.low_count, OilSample.water_ppm,
+                  OilSample.viscosity_40)
+_SAMPLES_OF = _SAMPLES.where(OilSample.machine_id.in_(bindparam("machines", expanding=True)))
+
+
 def load_samples(session: Session, machine_ids=None, known_by: pd.Timestamp | None = None) -> pd.DataFrame:
     """The lab samples of ``machine_ids`` (None: every machine); with ``known_by``, as samples_known_by keeps
     them at that moment (on SQLite applied to the columns before the frame is made: the same frame)."""
-    statement = select(OilSample.machine_id, OilSample.sampled_at, OilSample.reported_at, OilSample.code_4,
-                       OilSample.code_6, OilSample.code_14, OilSample.low_count, OilSample.water_ppm,
-                       OilSample.viscosity_40)
+    statement, parameters = _SAMPLES, None
     if machine_ids is not None:
-        statement = statement.where(OilSample.machine_id.in_([int(m) for m in machine_ids]))
+        statement, parameters = _SAMPLES_OF, {"machines": [int(m) for m in machine_ids]}
     if session.get_bind().dialect.name == "sqlite":
-        keys, rows = driver_rows(session, statement)
+        keys, rows = driver_rows(session, statement, parameters)
         frame = _sample_columns(keys, rows, known_by)
         if frame is not None:
             return frame
-        frame = pd.DataFrame(session.execute(statement).all(), columns=keys)
+        frame = pd.DataFrame(session.execute(statement, parameters).all(), columns=keys)
     else:
-        frame = _query(session, statement)
+        frame = _query(session, statement, parameters)
     for column in ("sampled_at", "reported_at"):
         frame[column] = pd.to_datetime(frame[column])
     frame = frame.astype({c: float for c in _SAMPLE_FLOATS})

@@ -2,7 +2,7 @@
 
 from collections.abc import Iterable
 
-from sqlalchemy import select
+from sqlalchemy import bindparam, select
 from sqlalchemy.orm import Session
 
 from fleet.db.models import AnalysisResult, Pump
@@ -45,7 +45,14 @@ def analysis_records(session: Session, pump_ids=None) -> list[dict]:
 
 def statuses(session: Session, pump_ids) -> list[dict]:
     """The headline of each pump's stored analysis (what the readings API answers after a post)."""
-    rows = session.execute(select(Pump.serial, AnalysisResult).join(AnalysisResult, AnalysisResult.pump_id == Pump.id)
-                           .where(Pump.id.in_(list(pump_ids))).order_by(Pump.serial))
-    return [{"pump": serial, "status": r.status, "reasons": r.reasons, "eta_v_ref": r.eta_v_ref,
-             "hours_to_limit": r.hours_to_limit, "limit_date": r.limit_date} for serial, r in rows]
+    rows = session.execute(_HEADLINES, {"ids": list(pump_ids)})
+    return [{"pump": serial, "status": status, "reasons": reasons, "eta_v_ref": eta_v_ref,
+             "hours_to_limit": hours_to_limit, "limit_date": limit_date}
+            for serial, status, reasons, eta_v_ref, hours_to_limit, limit_date in rows]
+
+
+# The headline's columns only, built once: the whole stored row would parse its detail (every figure) for nothing.
+_HEADLINES = (select(Pump.serial, AnalysisResult.status, AnalysisResult.reasons, AnalysisResult.eta_v_ref,
+                     AnalysisResult.hours_to_limit, AnalysisResult.limit_date)
+              .join(AnalysisResult, AnalysisResult.pump_id == Pump.id)
+              .where(Pump.id.in_(bindparam("ids", expanding=True))).order_by(Pump.serial))

@@ -9,7 +9,7 @@ import time
 from contextlib import closing
 from datetime import datetime
 
-from sqlalchemy import func, or_, select
+from sqlalchemy import bindparam, func, or_, select
 from sqlalchemy.orm import Session, sessionmaker
 
 from fleet.db.models import AnalysisResult, Pump, PumpDataVersion
@@ -33,6 +33,9 @@ def _stale():
     return (select(Pump.id).outerjoin(PumpDataVersion, PumpDataVersion.pump_id == Pump.id)
             .outerjoin(AnalysisResult, AnalysisResult.pump_id == Pump.id)
             .where(or_(AnalysisResult.pump_id.is_(None), AnalysisResult.data_version < version)))
+
+
+_STALE_AMONG = _stale().where(Pump.id.in_(bindparam("ids", expanding=True)))  # built once: a write asks it each time
 
 
 def stale_pumps(session: Session) -> set[int]:
@@ -156,4 +159,4 @@ def _stale_among(session: Session, among: set[int] | None) -> set[int]:
         return stale_pumps(session) if any_stale(session) else set()
     if not among:
         return set()
-    return set(session.scalars(_stale().where(Pump.id.in_(sorted(among)))))
+    return set(session.scalars(_STALE_AMONG, {"ids": sorted(among)}))

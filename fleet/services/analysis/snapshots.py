@@ -13,7 +13,7 @@ analysis then said about when the limit was reached.
 
 from datetime import datetime
 
-from sqlalchemy import func, insert, select, update
+from sqlalchemy import bindparam, func, insert, select, update
 from sqlalchemy.orm import Session
 
 from fleet.db.models import ForecastSnapshot
@@ -49,15 +49,21 @@ def latest_snapshots(session: Session, pump_ids: list[int]) -> dict:
     (plain columns, not the ORM object: a store asks this of every pump it writes), for the pumps that have one."""
     out = {}
     for first in range(0, len(pump_ids), _IN_CHUNK):
-        part = pump_ids[first:first + _IN_CHUNK]
-        newest = (select(ForecastSnapshot.pump_id, func.max(ForecastSnapshot.made_at).label("made_at"))
-                  .where(ForecastSnapshot.pump_id.in_(part)).group_by(ForecastSnapshot.pump_id).subquery())
-        rows = session.execute(select(
-            ForecastSnapshot.id, ForecastSnapshot.pump_id, ForecastSnapshot.made_at,
-            *(getattr(ForecastSnapshot, name) for name in MOVED_WHEN)).join(
-            newest, (newest.c.pump_id == ForecastSnapshot.pump_id) & (newest.c.made_at == ForecastSnapshot.made_at)))
+        rows = session.execute(_LATEST, {"ids": pump_ids[first:first + _IN_CHUNK]})
         out.update({row.pump_id: row for row in rows})
     return out
+
+
+def _latest_statement():
+    newest = (select(ForecastSnapshot.pump_id, func.max(ForecastSnapshot.made_at).label("made_at"))
+              .where(ForecastSnapshot.pump_id.in_(bindparam("ids", expanding=True)))
+              .group_by(ForecastSnapshot.pump_id).subquery())
+    return select(ForecastSnapshot.id, ForecastSnapshot.pump_id, ForecastSnapshot.made_at,
+                  *(getattr(ForecastSnapshot, name) for name in MOVED_WHEN)).join(
+        newest, (newest.c.pump_id == ForecastSnapshot.pump_id) & (newest.c.made_at == ForecastSnapshot.made_at))
+
+
+_LATEST = _latest_statement()  # built once: building it costs more than running it for a write's pump or two
 
 
 def keep_forecasts(session: Session, records: list[dict], made_at: datetime) -> int:
@@ -75,7 +81,7 @@ def keep_forecasts(session: Session, records: list[dict], made_at: datetime) -> 
                 continue
         inserts.append({"pump_id": int(record["pump_id"]), "made_at": made_at, **values})
     if inserts:
-        session.execute(insert(ForecastSnapshot), inserts)
+        session.execute(insert(ForecastSnapshot.__table__), inserts)
     if updates:
         session.execute(update(ForecastSnapshot), updates)
     return len(inserts) + len(updates)

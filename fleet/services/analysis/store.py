@@ -17,7 +17,7 @@ from datetime import datetime
 
 import numpy as np
 import pandas as pd
-from sqlalchemy import delete, insert, select, update
+from sqlalchemy import bindparam, delete, insert, select, update
 from sqlalchemy.orm import Session
 
 from fleet.db.models import AnalysisResult, FleetPrior, IntervalTrend, Pump, ServiceLife, StatusChange
@@ -55,6 +55,23 @@ FIT_DRIFT = 1e-6
 FIT_DRIFT_FIELD = "exposure_moved_since_fit"
 
 
+# The statements a write's store runs, built once: building one (its clauses, then its cache key) costs several
+# times what running it costs for a pump or two. Lists of ids go in as expanding parameters.
+_IDS = bindparam("ids", expanding=True)
+_STORED_OF = (select(Pump.id, AnalysisResult.data_version, AnalysisResult.detail["kind"].as_string(),
+                     AnalysisResult.age_hours, AnalysisResult.planning_horizon_hours, AnalysisResult.status,
+                     AnalysisResult.reasons)
+              .outerjoin(AnalysisResult, AnalysisResult.pump_id == Pump.id).where(Pump.id.in_(_IDS)))
+_KINDS_FITTED = select(FleetPrior.kind)
+_PRIORS_OF = select(FleetPrior.kind, FleetPrior.detail).where(FleetPrior.kind.in_(bindparam("kinds", expanding=True)))
+_LIVES_OF = (select(ServiceLife.pump_id, ServiceLife.interval_no, ServiceLife.entry_hours, ServiceLife.life_hours,
+                    ServiceLife.failed).where(ServiceLife.pump_id.in_(_IDS)).order_by(ServiceLife.interval_no))
+_DELETE_RESULTS = delete(AnalysisResult).where(AnalysisResult.pump_id.in_(_IDS))
+_DELETE_TRENDS = delete(IntervalTrend).where(IntervalTrend.pump_id.in_(_IDS))
+_DELETE_LIVES = delete(ServiceLife).where(ServiceLife.pump_id.in_(_IDS))
+_ANY_UNKEYED = select(AnalysisResult.pump_id).where(AnalysisResult.order_key.is_(None)).limit(1)
+
+
 @dataclass
 class RefreshSummary:
     pumps: int
@@ -90,11 +107,7 @@ def store(session: Session, computed: Computed, settings: AnalysisSettings | Non
     ids = [int(p) for p in results.index]
     existing, before = set(), {}
     for part in _chunks(ids):  # one read: which pumps still exist, and what is stored of them
-        for pump_id, version, kind, age, horizon, status, reasons in session.execute(
-                select(Pump.id, AnalysisResult.data_version, AnalysisResult.detail["kind"].as_string(),
-                       AnalysisResult.age_hours, AnalysisResult.planning_horizon_hours, AnalysisResult.status,
-                       AnalysisResult.reasons)
-                .outerjoin(AnalysisResult, AnalysisResult.pump_id == Pump.id).where(Pump.id.in_(part))):
+        for pump_id, version, kind, age, horizon, status, reasons in session.execute(_STORED_OF, {"ids": part}):
             existing.add(pump_id)
             if version is not None:
                 before[pump_id] = _Stored(version, (kind, age, horizon), status, reasons)
@@ -105,7 +118,7 @@ def store(session: Session, computed: Computed, settings: AnalysisSettings | Non
     lives = computed.lives if whole else computed.lives[computed.lives["pump_id"].isin(keep)]
     kind_changes = _kind_changes(session, records, lives, before)
     refit, lives_moved = kind_changes.refit, kind_changes.lives_moved
-    known = set(session.scalars(select(FleetPrior.kind)))
+    known = set(session.scalars(_KINDS_FITTED))
     refit |= {r["kind"] for r in records if r.get("kind") and r["kind"] not in known}  # none stored yet
     if computed.full:
         refit |= set(kept["kind"].dropna()) | known
@@ -113,25 +126,24 @@ def store(session: Session, computed: Computed, settings: AnalysisSettings | Non
                               {p: (s.status, s.reasons) for p, s in before.items()})
     alerts = queue_alerts(session, changes)  # in this transaction: stored with the analysis they follow from
     for part in _chunks(keep):
-        session.execute(delete(AnalysisResult).where(AnalysisResult.pump_id.in_(part)))
-        session.execute(delete(IntervalTrend).where(IntervalTrend.pump_id.in_(part)))
+        session.execute(_DELETE_RESULTS, {"ids": part})
+        session.execute(_DELETE_TRENDS, {"ids": part})
     for part in _chunks(sorted(lives_moved)):
-        session.execute(delete(ServiceLife).where(ServiceLife.pump_id.in_(part)))
+        session.execute(_DELETE_LIVES, {"ids": part})
     _insert_results(session, records, computed)
     _insert_trends(session, computed.trends if whole else computed.trends[computed.trends["pump_id"].isin(keep)],
                    computed.computed_at)
     keep_forecasts(session, records, computed.computed_at)
     moved_lives = lives[lives["pump_id"].isin(lives_moved)]
     if len(moved_lives):
-        session.execute(insert(ServiceLife), [
+        session.execute(insert(ServiceLife.__table__), [
             {"pump_id": int(p), "interval_no": int(n), "entry_hours": float(e), "life_hours": float(h),
              "failed": bool(f)}
             for p, n, e, h, f in zip(moved_lives["pump_id"], moved_lives["interval_no"], moved_lives["entry_hours"],
                                      moved_lives["life_hours"], moved_lives["failed"], strict=True)])
     refit |= _defer_or_refit(session, kind_changes)
     refit_kinds(session, refit, computed.computed_at, settings)
-    if computed.full or session.scalar(select(AnalysisResult.pump_id).where(AnalysisResult.order_key.is_(None))
-                                       .limit(1)) is not None:
+    if computed.full or session.scalar(_ANY_UNKEYED) is not None:
         rerank(session)  # rows stored before keys existed (an indexed look-up finds none once keyed)
     by_status = Counter(str(record["status"]) for record in records if record.get("status") is not None)
     return RefreshSummary(len(records), dict(by_status), computed.full, computed.computed_at, alerts)
@@ -156,9 +168,7 @@ def _kind_changes(session: Session, records: list[dict], lives: pd.DataFrame,
     ids = [record["pump_id"] for record in records]
     stored_lives: dict[int, list] = {}
     for part in _chunks(ids):
-        for row in session.execute(select(ServiceLife.pump_id, ServiceLife.interval_no, ServiceLife.entry_hours,
-                                          ServiceLife.life_hours, ServiceLife.failed)
-                                   .where(ServiceLife.pump_id.in_(part)).order_by(ServiceLife.interval_no)):
+        for row in session.execute(_LIVES_OF, {"ids": part}):
             stored_lives.setdefault(row[0], []).append(tuple(row))
     new_lives: dict[int, list] = {}
     for row in sorted(zip(lives["pump_id"], lives["interval_no"], lives["entry_hours"], lives["life_hours"],
@@ -202,7 +212,7 @@ def _defer_or_refit(session: Session, changes: _KindChanges) -> set[str]:
     kinds = {kind for kind, *_ in changes.grown + changes.shares} - changes.refit
     if not kinds:
         return set()
-    details = dict(session.execute(select(FleetPrior.kind, FleetPrior.detail).where(FleetPrior.kind.in_(kinds))).all())
+    details = dict(session.execute(_PRIORS_OF, {"kinds": sorted(kinds)}).all())
     refit = set()
     for kind in sorted(kinds):
         detail = details.get(kind) or {}
@@ -243,18 +253,24 @@ def _insert_results(session: Session, records: list[dict], computed: Computed) -
             "detail": json_ready(detail), "data_version": computed.versions.get(record["pump_id"], 0),
             **{k: record.get(k) for k in (*COLUMNS, *ORDER_COLUMNS, *PRIOR_COLUMNS)},
         })
-    session.execute(insert(AnalysisResult), rows)
+    session.execute(insert(AnalysisResult.__table__), rows)
 
 
 def order_keys(records: list[dict]) -> np.ndarray:
     """The records' service order keys, from the few fields the order reads (a frame of every field costs more
     than the keys)."""
-    return service_order_keys(pd.DataFrame({name: [record.get(name) for record in records] for name in ORDER_FIELDS}))
+    text = {"pump", "status", "limit_date_low"}
+    # Each field as the array a frame of the records would hold (floats; text with NaN where it is missing), without
+    # the frame: for a write's pump or two, the frame's own machinery costs more than the keys.
+    return service_order_keys({
+        name: np.array([np.nan if record.get(name) is None else record[name] for record in records],
+                       dtype=object if name in text else float)
+        for name in ORDER_FIELDS})
 
 
 def _insert_trends(session: Session, trends: pd.DataFrame, computed_at: datetime) -> None:
     if len(trends):
-        session.execute(insert(IntervalTrend), [
+        session.execute(insert(IntervalTrend.__table__), [
             {"pump_id": int(p), "interval_no": int(n), "computed_at": computed_at, "is_current": bool(c),
              "start_hours": json_ready(s), "current_hours": json_ready(h), "enough_data": bool(e), "fit": fit}
             for p, n, c, s, h, e, fit in zip(trends["pump_id"], trends["interval_no"], trends["is_current"],
@@ -343,7 +359,7 @@ def refit_kinds(session: Session, kinds, now: datetime, settings: AnalysisSettin
         priors["expected_overhauls_in_horizon"] = np.nan
     session.execute(delete(FleetPrior).where(FleetPrior.kind.in_(kinds)))
     if len(priors):
-        session.execute(insert(FleetPrior), [
+        session.execute(insert(FleetPrior.__table__), [
             {"kind": str(kind), "computed_at": now, "detail": json_ready(row.to_dict())}
             for kind, row in priors.iterrows()])
     session.flush()

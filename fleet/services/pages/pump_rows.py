@@ -14,7 +14,7 @@ from datetime import datetime
 
 import numpy as np
 import pandas as pd
-from sqlalchemy import select
+from sqlalchemy import bindparam, select
 from sqlalchemy.orm import Session
 
 from fleet.db.models import (
@@ -89,14 +89,17 @@ class PumpRows:
         return max(self.stays, key=lambda stay: stay.installed_at).site_id if self.stays else None
 
 
+# The pump's installations with their places and oils, built once (building it costs more than running it).
+_STAYS = (select(Installation.installed_at, Installation.removed_at, Installation.installed_hours,
+                 Installation.removed_hours, Position.name, Machine.id, Machine.name, Site.id, Site.name,
+                 Oil.id, Oil.name, Oil.iso_vg, Oil.viscosity_40, Oil.viscosity_100, Oil.density_15)
+          .join(Position, Position.id == Installation.position_id).join(Machine, Machine.id == Position.machine_id)
+          .join(Site, Site.id == Machine.site_id).outerjoin(Oil, Oil.id == Machine.oil_id)
+          .where(Installation.pump_id == bindparam("pump_id")).order_by(Installation.installed_at))
+
+
 def _stays(session: Session, pump_id: int) -> list[Stay]:
-    rows = session.execute(
-        select(Installation.installed_at, Installation.removed_at, Installation.installed_hours,
-               Installation.removed_hours, Position.name, Machine.id, Machine.name, Site.id, Site.name,
-               Oil.id, Oil.name, Oil.iso_vg, Oil.viscosity_40, Oil.viscosity_100, Oil.density_15)
-        .join(Position, Position.id == Installation.position_id).join(Machine, Machine.id == Position.machine_id)
-        .join(Site, Site.id == Machine.site_id).outerjoin(Oil, Oil.id == Machine.oil_id)
-        .where(Installation.pump_id == pump_id).order_by(Installation.installed_at))
+    rows = session.execute(_STAYS, {"pump_id": pump_id})
     return [Stay(*row[:9], oil=None if row[9] is None else dict(
         zip(("name", "iso_vg", "viscosity_40", "viscosity_100", "density_15"), row[10:], strict=True)))
         for row in rows]
@@ -115,6 +118,9 @@ def _oil(taken_at: np.ndarray, stays: list[Stay]) -> dict[str, np.ndarray]:
     return oil_of_one(taken_at, installed[by_time], oils)
 
 
+_LIMIT_DEFAULTS = select(LimitDefault.__table__)
+
+
 def _pump_frame(session: Session, pump: Pump, here: Stay | None) -> pd.DataFrame:
     """load_pumps' row for this pump: its columns, where it sits now, its site's energy figures, its limits."""
     row = {column.key: getattr(pump, column.key) for column in Pump.__table__.columns}
@@ -129,7 +135,7 @@ def _pump_frame(session: Session, pump: Pump, here: Stay | None) -> pd.DataFrame
                    currency=site.currency)
     if row["max_flow_lpm"] is None:
         row["max_flow_lpm"] = theoretical_flow_lpm(pump.displacement_cc, pump.rated_speed_rpm)
-    keys, rows = driver_rows(session, select(LimitDefault.__table__))
+    keys, rows = driver_rows(session, _LIMIT_DEFAULTS)
     defaults = [dict(zip(keys, values, strict=True)) for values in rows]
     frame = effective_limits_of_one(row, defaults)
     if frame is None:  # a row the one-row path does not cover: the frame path
@@ -139,11 +145,11 @@ def _pump_frame(session: Session, pump: Pump, here: Stay | None) -> pd.DataFrame
     return frame
 
 
-def _driver_columns(session: Session, statement) -> dict[str, tuple]:
+def _driver_columns(session: Session, statement, parameters: dict | None = None) -> dict[str, tuple]:
     """The driver's rows of ``statement`` as columns (name -> values), without SQLAlchemy's per-row Row and type
     processing or a frame built row by row: for one pump's few hundred rows the frame's own machinery costs more
     than the query."""
-    keys, rows = driver_rows(session, statement)
+    keys, rows = driver_rows(session, statement, parameters)
     return dict(zip(keys, zip(*rows, strict=True) if rows else [()] * len(keys), strict=True))
 
 
@@ -186,14 +192,24 @@ class CoreRows:
     got_events: dict[str, tuple]  # the maintenance records' columns (with the page's fields) as the driver gave them
 
 
+# One pump's readings, flow test points and maintenance records, each statement built once.
+_READINGS = select(
+    Reading.id.label("reading_id"), Reading.pump_id, Reading.taken_at, Reading.hours, Reading.pressure_bar,
+    Reading.speed_rpm, Reading.flow_lpm, Reading.drain_lpm, Reading.temp_c, Reading.stroke, Reading.source,
+    Reading.taken_by).where(Reading.pump_id == bindparam("pump_id"))
+_FLOW_POINTS = (select(FlowTestPoint.reading_id, FlowTestPoint.pressure_bar, FlowTestPoint.flow_lpm)
+                .join(Reading, Reading.id == FlowTestPoint.reading_id).where(Reading.pump_id == bindparam("pump_id")))
+_EVENTS = select(
+    MaintenanceEvent.pump_id, MaintenanceEvent.date, MaintenanceEvent.hours, MaintenanceEvent.kind,
+    MaintenanceEvent.cost, MaintenanceEvent.id.label("event_id"), MaintenanceEvent.downtime_h,
+    MaintenanceEvent.failure_mode, MaintenanceEvent.note).where(MaintenanceEvent.pump_id == bindparam("pump_id"))
+
+
 def core_rows(session: Session, pump: Pump, as_of: datetime) -> CoreRows:
     """The frames of ``pump`` the core reads, as known at ``as_of`` (load_frames' for this pump), from the few
     queries the page reads too; each frame made once from its columns."""
     stays = _stays(session, pump.id)
-    got = _driver_columns(session, select(
-        Reading.id.label("reading_id"), Reading.pump_id, Reading.taken_at, Reading.hours, Reading.pressure_bar,
-        Reading.speed_rpm, Reading.flow_lpm, Reading.drain_lpm, Reading.temp_c, Reading.stroke, Reading.source,
-        Reading.taken_by).where(Reading.pump_id == pump.id))
+    got = _driver_columns(session, _READINGS, {"pump_id": pump.id})
     taken = _times(got["taken_at"])
     order = np.argsort(taken, kind="stable")  # the readings in time order, as the loader sorts them
     columns = {"reading_id": np.array(got["reading_id"], dtype=np.int64),
@@ -203,16 +219,11 @@ def core_rows(session: Session, pump: Pump, as_of: datetime) -> CoreRows:
     columns = {c: v[order] for c, v in columns.items()}
     columns.update(_oil(columns["taken_at"], stays))
     all_readings = pd.DataFrame({c: columns[c] for c in READING_COLUMNS})
-    points = _driver_columns(session, select(FlowTestPoint.reading_id, FlowTestPoint.pressure_bar,
-                                             FlowTestPoint.flow_lpm)
-                             .join(Reading, Reading.id == FlowTestPoint.reading_id).where(Reading.pump_id == pump.id))
+    points = _driver_columns(session, _FLOW_POINTS, {"pump_id": pump.id})
     points = pd.DataFrame({"reading_id": np.array(points["reading_id"], dtype=np.int64),
                            "pressure_bar": _numbers(points["pressure_bar"]), "flow_lpm": _numbers(points["flow_lpm"])},
                           columns=list(FLOW_POINT_COLUMNS))
-    got_events = _driver_columns(session, select(
-        MaintenanceEvent.pump_id, MaintenanceEvent.date, MaintenanceEvent.hours, MaintenanceEvent.kind,
-        MaintenanceEvent.cost, MaintenanceEvent.id.label("event_id"), MaintenanceEvent.downtime_h,
-        MaintenanceEvent.failure_mode, MaintenanceEvent.note).where(MaintenanceEvent.pump_id == pump.id))
+    got_events = _driver_columns(session, _EVENTS, {"pump_id": pump.id})
     events = _events(got_events, list(EVENT_COLUMNS))
 
     moment = np.datetime64(pd.Timestamp(as_of).to_datetime64())  # what was known by then, as frames.known_by keeps

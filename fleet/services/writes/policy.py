@@ -18,7 +18,9 @@ whenever a re-analysed pump of that kind has other service lives, age or plannin
 interval.
 """
 
-from sqlalchemy import select
+import functools
+
+from sqlalchemy import bindparam, select
 from sqlalchemy.dialects import postgresql, sqlite
 from sqlalchemy.orm import Session
 
@@ -61,13 +63,19 @@ def bump_versions(session: Session, pump_ids) -> None:
     ids = sorted({int(p) for p in pump_ids})
     if not ids:
         return
-    dialect = session.get_bind().dialect.name
-    insert = {"sqlite": sqlite.insert, "postgresql": postgresql.insert}[dialect]
     # Existing pumps only: a deleted pump has nothing left to analyse.
-    ids = list(session.scalars(select(Pump.id).where(Pump.id.in_(ids))))
-    for first in range(0, len(ids), 5000):
-        part = ids[first:first + 5000]
-        statement = insert(PumpDataVersion).values([{"pump_id": p, "version": 1} for p in part])
-        statement = statement.on_conflict_do_update(index_elements=[PumpDataVersion.pump_id],
-                                                    set_={"version": PumpDataVersion.version + 1})
-        session.execute(statement)
+    ids = list(session.scalars(_EXISTING, {"ids": ids}))
+    if ids:
+        session.execute(_bump_statement(session.get_bind().dialect.name), [{"pump_id": p} for p in ids])
+
+
+_EXISTING = select(Pump.id).where(Pump.id.in_(bindparam("ids", expanding=True)))
+
+
+@functools.cache
+def _bump_statement(dialect: str):
+    """A pump's version inserted as 1, or moved on by one where it has one: built once per dialect and run with
+    each pump's id (a write's statements cost more to build than to run for its pump or two)."""
+    insert = {"sqlite": sqlite.insert, "postgresql": postgresql.insert}[dialect]
+    return insert(PumpDataVersion.__table__).values(pump_id=bindparam("pump_id"), version=1).on_conflict_do_update(
+        index_elements=[PumpDataVersion.pump_id], set_={"version": PumpDataVersion.version + 1})
