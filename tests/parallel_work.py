@@ -14,3 +14,10 @@ def released_by_the_caller(session, number: int, folder: str) -> int:
                 raise TimeoutError(f"part {number - 1} was not given to the caller while part {number} waited")
             time.sleep(0.02)
     return number
+
+
+def number_and_process(session, number: int) -> tuple[int, int]:
+    """The number given and the process that took it."""
+    import os
+
+    return number, os.getpid()

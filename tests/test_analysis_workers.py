@@ -18,7 +18,7 @@ from fleet.services.analysis.parallel import WORKERS_ENV, shareable, worker_coun
 from fleet.trend.settings import AnalysisSettings
 from tests.frame_compare import plain as _plain
 from tests.frame_compare import same_frames
-from tests.parallel_work import released_by_the_caller
+from tests.parallel_work import number_and_process, released_by_the_caller
 
 NOW = dt.datetime(2026, 12, 1, 12)
 PART = 7  # 41 demo pumps: six parts of 6 or 7 (compute.part_ids)
@@ -123,4 +123,57 @@ def test_parts_cut_even_and_a_multiple_of_the_workers():
             assert len(parts) % workers == 0 or len(parts) == pumps
         else:
             assert len(parts) == fewest
+        # The first part computed by the caller's process while the workers start: one more than a multiple.
+        first_here = compute_module.part_ids(ids, size, workers, first_here=True)
+        assert [pump for part in first_here for pump in part] == ids
+        sizes = [len(part) for part in first_here]
+        assert all(0 < n <= size for n in sizes) and max(sizes, default=0) - min(sizes, default=0) <= 1
+        if workers > 1 and fewest > 1:
+            assert (len(first_here) - 1) % workers == 0 or len(first_here) == pumps
+            assert fewest <= len(first_here) < fewest + workers
+        else:
+            assert len(first_here) == fewest
     assert len(compute_module.part_ids(list(range(10_000)), 400, 2)) == 26  # 25 parts of 400 before
+    assert len(compute_module.part_ids(list(range(10_000)), 400, 2, first_here=True)) == 25  # 1 here, 12 each
+
+
+def test_while_the_workers_start_this_process_works_the_first_part_and_every_part_is_done_once(demo_db):
+    # Common practice, no source: every part once and in the order given, the first by this process, the rest by
+    # the workers (each noting its peak memory).
+    from fleet.services.analysis.parallel import _each
+
+    here_pid = os.getpid()
+    for count in (1, 2, 5):
+        peaks: dict[int, float] = {}
+        answers = list(_each(number_and_process, demo_db.url, [(n,) for n in range(count)], 2, peaks,
+                             here=lambda number: (number, here_pid)))
+        assert [number for number, _ in answers] == list(range(count))
+        assert [pid == here_pid for _, pid in answers] == [True] + [False] * (count - 1)
+        workers = {pid for _, pid in answers[1:]}  # each run's own pool: at most its 2 workers
+        assert set(peaks) == workers and len(workers) <= 2 and all(peak > 0 for peak in peaks.values())
+
+
+def test_a_part_failing_in_this_process_fails_the_run_and_stops_the_workers(demo_db):
+    from fleet.services.analysis.parallel import _each
+
+    def failing(number):
+        raise ValueError(f"part {number}: no such pump")
+
+    with pytest.raises(ValueError, match="part 0: no such pump"):
+        list(_each(number_and_process, demo_db.url, [(n,) for n in range(6)], 2, None, here=failing))
+
+
+def test_the_fork_server_preloads_the_dialect_of_the_database_it_serves():
+    # SQLAlchemy's own dialect lookup (make_url(...).get_dialect()) is the reference; PostgreSQL's package loads
+    # every driver's dialect, which a SQLite run does not need.
+    import importlib
+
+    from sqlalchemy.engine import make_url
+
+    from fleet.services.analysis.parallel import PRELOAD, _preload
+
+    for url in ("sqlite:////tmp/fleet.sqlite", "postgresql+psycopg://u@127.0.0.1:5432/fleet"):
+        modules = _preload(url)
+        assert modules[:-1] == list(PRELOAD) and modules[-1] == make_url(url).get_dialect().__module__
+        importlib.import_module(modules[-1])
+    assert not any("postgresql" in module for module in _preload("sqlite:////tmp/fleet.sqlite"))

@@ -112,3 +112,17 @@ def test_group_without_spread_or_points_is_nan_not_a_warning():
     fit = grouped_wls(g, x, y, np.ones(6), 3)
     assert np.isnan(fit.b[0]) and np.isnan(fit.b[1])
     assert fit.b[2] == pytest.approx(1.0)
+
+
+def test_t_quantile_is_scipy_stats_t_ppf_to_the_bit():
+    # Reference: scipy.stats.t.ppf (the two-sided multiplier is its quantile at 0.5 + confidence / 2), compared
+    # bit for bit over whole and fractional degrees of freedom, and the t table's 2.228 for 95 % and 10 dof
+    # (NIST/SEMATECH e-Handbook of Statistical Methods, 1.3.6.7.2, upper critical value at 0.025, 10 dof).
+    dof = np.concatenate([np.arange(1.0, 2001.0), np.linspace(0.05, 60.0, 1201), [1e6, 1e12, np.inf]])
+    for confidence in (0.5, 0.8, 0.9, 0.95, 0.975, 0.99, 0.999):
+        expected = stats.t.ppf(0.5 + confidence / 2.0, dof)
+        got = t_quantile(confidence, dof)
+        assert np.array_equal(got.view(np.int64), expected.view(np.int64)), confidence
+    assert t_quantile(0.95, 10.0) == pytest.approx(2.228, abs=5e-4)
+    # No degrees of freedom, or none known: no multiplier.
+    assert np.isnan(t_quantile(0.9, np.array([0.0, -3.0, np.nan]))).all()

@@ -8,7 +8,7 @@ weighted residuals, so the bounds use a t distribution with n - 2 degrees of fre
 from dataclasses import dataclass
 
 import numpy as np
-from scipy import stats
+from scipy import special
 
 
 @dataclass(frozen=True)
@@ -109,10 +109,12 @@ def grouped_wls(
 
 
 def t_quantile(confidence: float, dof) -> np.ndarray:
-    """Two-sided t multiplier for a confidence level (NaN where dof <= 0)."""
+    """Two-sided t multiplier for a confidence level (NaN where dof <= 0): Student's t quantile at
+    0.5 + confidence / 2 by scipy.special.stdtrit, the function scipy.stats.t.ppf evaluates after its argument
+    checks (to the same bits, tests/test_trend_linear.py), without loading scipy.stats and its checks' cost."""
     dof = np.asarray(dof, dtype=float)
     ok = dof > 0
-    return np.where(ok, stats.t.ppf(0.5 + confidence / 2.0, np.where(ok, dof, 1.0)), np.nan)
+    return np.where(ok, special.stdtrit(np.where(ok, dof, 1.0), 0.5 + confidence / 2.0), np.nan)
 
 
 def line_variance(fit: LineFit, x, index=None) -> np.ndarray:
