@@ -49,9 +49,11 @@ NOT_IN_DETAIL = (*COLUMNS, *DERIVED, "pump_id", "rank", "planning_horizon_hours"
 _IN_CHUNK = 5000  # ids per IN (...) list
 # A kind's Weibull is refitted once the running intervals that grew since its fit moved more than this share of
 # its exposure (_defer_or_refit). Its figures then move by a few times this at most (measured on one of the
-# benchmark's 2,000-pump kinds: beta, alpha, B10 and the mean residual life moved 0.3 to 2.5 times the share),
-# far inside the promise that stored figures match a full analysis to 1 part in 10,000.
-FIT_DRIFT = 1e-6
+# benchmark's 2,000-pump kinds: beta, alpha, B10 and the mean residual life moved 0.3 to 2.5 times the share;
+# tests/test_store_fit_deferred.py bounds it at 5 times), inside the promise that stored figures match a full
+# analysis to 1 part in 10,000 (tests/test_write_invariant.py). At 1e-6 a round's reading (a few days' hours on one
+# of 2,000 pumps) passed the bound in most posts, and the refit (about 20 ms) then cost as much as half the rest.
+FIT_DRIFT = 1e-5
 FIT_DRIFT_FIELD = "exposure_moved_since_fit"
 
 
