@@ -118,7 +118,9 @@ def test_a_longer_horizon_holds_at_least_the_same_pumps(client):
 def test_totals_add_up_cost_and_payback(client):
     data = client.get("/plan.json").get_json()
     (total,) = data["totals"]  # the demo plant keeps one currency
-    costed = [r for r in data["pumps"] if r["overhaul_cost"] is not None]
+    planned = [r for r in data["pumps"] if r["fit"] != "beyond_horizon"]
+    assert total["pumps"] == len(planned)
+    costed = [r for r in planned if r["overhaul_cost"] is not None]
     assert total["overhaul_cost"] == pytest.approx(sum(r["overhaul_cost"] for r in costed))
     saving = sum(r["overhaul_saving_per_year"] or 0 for r in costed)
     # Payback = cost / yearly saving (simple payback, engineering-economics definition).
@@ -237,3 +239,26 @@ def test_kind_outlook_uses_the_stored_fleet_weibull(client, demo_db):
     assert vane["b10_hours"] == 1564.0
     html = client.get("/plan?weeks=8").get_data(as_text=True)
     assert f"{vane['expected_overhauls']:,.2f}" in html
+
+
+def test_a_pump_expected_after_the_horizon_gets_no_window():
+    """On the plan only because its band's early bound falls inside the horizon: no overhaul is planned for it."""
+    pumps = pd.DataFrame({"pump_id": [1, 2], "site_id": [1, 1], "machine_id": [10, 10],
+                          "limit_date": ["2033-08-08", "2027-03-01"], "limit_date_low": ["2027-02-01", "2027-02-15"],
+                          "past_limit": [False, False]})
+    windows = pd.DataFrame({"window_id": [100], "site_id": [1.0], "machine_id": [np.nan],
+                            "starts_at": pd.to_datetime(["2027-01-15"]), "ends_at": pd.to_datetime(["2027-01-16"])})
+    fits = match_windows(pumps, windows, "2026-12-01", horizon_end="2027-06-01")
+    assert fits.loc[1, "fit"] == "beyond_horizon" and np.isnan(fits.loc[1, "window_id"])
+    assert fits.loc[2, "fit"] == "in_time" and fits.loc[2, "window_id"] == 100
+    assert match_windows(pumps, windows, "2026-12-01").loc[1, "fit"] == "in_time"  # no horizon given
+
+
+def test_the_plan_puts_no_window_on_a_pump_expected_after_its_horizon(client):
+    for weeks in (26, 52):
+        data = client.get(f"/plan.json?weeks={weeks}").get_json()
+        for row in data["pumps"]:
+            later = row["status"] != "past_limit" and row["limit_date"] and row["limit_date"][:10] > data["horizon_end"]
+            assert (row["fit"] == "beyond_horizon") == bool(later), row
+            if later:
+                assert row["window"] is None and row["pump"] not in data["at_risk"]

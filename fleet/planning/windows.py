@@ -3,7 +3,9 @@
 A window covers a pump when it is for the pump's machine, or for the pump's whole site. The best window is the
 last one that still starts before the early bound of the forecast limit date (it uses most of the pump's life at
 little risk); failing that, the last one before the expected date; failing that, the pump is at risk of reaching
-its limit before any window.
+its limit before any window. A pump expected after the plan's horizon, on it only because the early bound of a wide
+band falls inside, gets no window: overhauling it now would throw away most of its life on the strength of the
+band's tail, and the band narrows as its readings come in.
 """
 
 import numpy as np
@@ -15,12 +17,13 @@ FIT_WORDS = {
     "tight": "window before the expected date, after the early bound",
     "at_risk": "no window before the expected date: may reach its limit first",
     "past_limit": "already past its limit: take the next window or stop sooner",
+    "beyond_horizon": "expected after this horizon, only its early bound inside: no window yet; keep up its readings",
     "no_forecast": "no forecast date",
 }
 
 
-def match_windows(pumps: pd.DataFrame, windows: pd.DataFrame, today) -> pd.DataFrame:
-    """Fit of every pump to the windows.
+def match_windows(pumps: pd.DataFrame, windows: pd.DataFrame, today, horizon_end=None) -> pd.DataFrame:
+    """Fit of every pump to the windows; with ``horizon_end``, a pump expected after it is 'beyond_horizon'.
 
     pumps: pump_id, site_id, machine_id, limit_date, limit_date_low, past_limit (bool).
     windows: window_id, site_id (or NaN), machine_id (or NaN), starts_at, ends_at.
@@ -45,16 +48,18 @@ def match_windows(pumps: pd.DataFrame, windows: pd.DataFrame, today) -> pd.DataF
     before_expected = pairs[pairs["starts_at"] <= pairs["expected"]].groupby("pump_id")["window_id"].last()
 
     has_date = ~pd.isna(expected)
+    beyond = has_date & (expected > np.datetime64(pd.Timestamp(horizon_end).normalize()) if horizon_end is not None
+                         else np.zeros(len(out), dtype=bool))
     in_time = before_early.reindex(out.index)
     tight = before_expected.reindex(out.index)
     fit = np.select(
-        [past, ~has_date, in_time.notna().to_numpy(), tight.notna().to_numpy()],
-        ["past_limit", "no_forecast", "in_time", "tight"],
+        [past, ~has_date, beyond, in_time.notna().to_numpy(), tight.notna().to_numpy()],
+        ["past_limit", "no_forecast", "beyond_horizon", "in_time", "tight"],
         default="at_risk",
     )
     chosen = np.where(fit == "in_time", in_time, np.where(fit == "tight", tight, out["next_window_id"]))
     out["fit"] = fit
-    out["window_id"] = np.where(fit == "no_forecast", np.nan, chosen.astype(float))
+    out["window_id"] = np.where(np.isin(fit, ["no_forecast", "beyond_horizon"]), np.nan, chosen.astype(float))
     return out
 
 

@@ -55,7 +55,8 @@ def overhaul_plan(session: Session, weeks: int = DEFAULT_WEEKS, now: datetime | 
     windows = _window_frame(session)
     inside = _inside(pumps, horizon_end)
     due = pumps[inside]
-    fits = match_windows(due, windows, today) if len(due) else pd.DataFrame(columns=["fit", "window_id"])
+    fits = (match_windows(due, windows, today, horizon_end) if len(due)
+            else pd.DataFrame(columns=["fit", "window_id"]))
     window_by_id = windows.set_index("window_id") if len(windows) else windows
     rows = []
     for pump_id, pump in due.set_index("pump_id").iterrows():
@@ -90,7 +91,7 @@ def overhaul_plan(session: Session, weeks: int = DEFAULT_WEEKS, now: datetime | 
         "without_forecast": _without_forecast(pumps[~inside]),
         "kinds": _kind_outlook(session, pumps, weeks),
         "spares_cover": DEFAULT_COVER,
-        "totals": plan_totals(rows),
+        "totals": plan_totals([r for r in rows if r["fit"] != "beyond_horizon"]),  # overhauls planned
         "scopes": _scope_options(session),
     }
 
