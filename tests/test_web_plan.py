@@ -262,3 +262,6 @@ def test_the_plan_puts_no_window_on_a_pump_expected_after_its_horizon(client):
             assert (row["fit"] == "beyond_horizon") == bool(later), row
             if later:
                 assert row["window"] is None and row["pump"] not in data["at_risk"]
+        later = sum(row["fit"] == "beyond_horizon" for row in data["pumps"])
+        html = client.get(f"/plan?weeks={weeks}").get_data(as_text=True)
+        assert (f"; {later} pump(s) expected after the horizon not counted" in html) == bool(later and data["totals"])
