@@ -2,6 +2,7 @@
 with an address who has not opted out."""
 
 import json
+from html import unescape
 
 import pytest
 from click.testing import CliRunner
@@ -9,6 +10,7 @@ from sqlalchemy import select
 
 from fleet.cli import main
 from fleet.db.models import OutboxMail, User
+from fleet.safety import CAUTION_TITLE, CAUTIONS, CHECK_NOW_CAUTION, calls_for_work
 from fleet.services import users
 from fleet.services.writes import perform
 from fleet.timeutil import utcnow
@@ -55,6 +57,14 @@ def test_the_digest_reaches_readers_with_an_address_except_those_opted_out(demo_
         assert f">{title} (" in html
     for item in data["items"]:
         assert item["pump"] in html
+    # The cautions of the review page (fleet.safety): beside each reason that sends someone to the pump now, and
+    # the whole list at the end.
+    plain_html = unescape(html)
+    sending = [item for item in data["new_reasons"] if calls_for_work([item["reason"]])]
+    assert plain_html.count(CHECK_NOW_CAUTION) == sum(calls_for_work([item.get("what")]) for item in data["items"])
+    assert sending, "the invented demo plant has a pump to check now this week"
+    assert plain_html.count(CHECK_NOW_CAUTION) >= len(sending)
+    assert CAUTION_TITLE in plain_html and all(line in plain_html for line in CAUTIONS)
     lowered = html.lower()
     assert "<img" not in lowered and "src=" not in lowered and "url(" not in lowered and "<link" not in lowered
     [row] = outbox(demo_db)

@@ -10,7 +10,7 @@ from urllib.parse import quote
 from jinja2 import Environment, FileSystemLoader, StrictUndefined, select_autoescape
 
 from fleet.resources import folder
-from fleet.safety import CAUTION_TITLE, CAUTIONS
+from fleet.safety import CAUTION_TITLE, CAUTIONS, CHECK_NOW_CAUTION, calls_for_work
 from fleet.services.mail.settings import link
 from fleet.status_words import STATUS_LABELS
 
@@ -81,7 +81,9 @@ def digest(data: dict, text: str) -> tuple[str, str, str]:
         rows = [item for item in data.get("items", []) if item.get("section") == key]
         sections.append({"title": title, "count": counts.get(key, len(rows)), "rows": rows})
     html = _templates().get_template("digest.html").render(
-        week=week, sections=sections, review_link=review_link, account_link=link("account"), label=label)
+        week=week, sections=sections, review_link=review_link, account_link=link("account"), label=label,
+        calls_for_work=calls_for_work, check_now_caution=CHECK_NOW_CAUTION, caution_title=CAUTION_TITLE,
+        cautions=CAUTIONS)  # as the review page: a reason that sends someone to the pump, and the cautions
     body = (f"{text.rstrip()}\n\nThe review on the dashboard: {review_link}\n"
             f"No more weekly mail: untick it at {link('account')}\n")
     return subject, body, html
