@@ -121,6 +121,13 @@ def test_the_lab_result_form_carries_the_work_and_sampling_cautions(client):
     assert not _has(_html(client, "/register/event/new"), SAMPLING_CAUTIONS[0])
 
 
+def test_the_routes_come_before_the_whole_cautions_on_the_rounds_page(client):
+    """A technician on a phone sees the routes first; a reminder line above them points to the cautions below."""
+    html = _html(client, "/rounds")
+    assert html.index(str(escape(RUNNING_REMINDER))) < html.index('id="routes-title"') < html.index('id="caution-running"')
+    assert 'href="#caution-running"' in html and all(_has(html, line) for line in RUNNING_CAUTIONS)
+
+
 def test_round_form_shows_the_running_caution_and_hot_oil_caution(client, demo_db):
     location = _make_route(client)
     html = _html(client, location)
