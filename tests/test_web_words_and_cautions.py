@@ -124,7 +124,8 @@ def test_the_lab_result_form_carries_the_work_and_sampling_cautions(client):
 def test_the_routes_come_before_the_whole_cautions_on_the_rounds_page(client):
     """A technician on a phone sees the routes first; a reminder line above them points to the cautions below."""
     html = _html(client, "/rounds")
-    assert html.index(str(escape(RUNNING_REMINDER))) < html.index('id="routes-title"') < html.index('id="caution-running"')
+    reminder, routes = html.index(str(escape(RUNNING_REMINDER))), html.index('id="routes-title"')
+    assert reminder < routes < html.index('id="caution-running"')
     assert 'href="#caution-running"' in html and all(_has(html, line) for line in RUNNING_CAUTIONS)
 
 
