@@ -113,7 +113,7 @@ def test_the_device_reads_a_decimal_comma_only_where_the_form_allows_it(live_app
     _fill(page, {**values, "oil_temp": "48,5"})
     page.click("button[value=check]")
     page.wait_for_selector("#device-errors")
-    assert "oil temp: '48,5' is not a number" in page.inner_text("#device-errors")  # the default: no comma
+    assert "Oil temperature: '48,5' is not a number" in page.inner_text("#device-errors")  # the default: no comma
     page.evaluate("() => document.querySelector('form.reading-form').setAttribute('data-decimal-comma', '')")
     page.click("button[value=check]")
     page.wait_for_selector("text=All values look plausible. Nothing kept yet.")
@@ -197,3 +197,59 @@ def test_with_no_signal_a_pressure_above_rated_carries_its_caution(live_app, pag
     page.click("button[value=check]")
     page.wait_for_selector(f"#device-doubts:has-text('{HOT_OIL_CAUTION[:30]}')", timeout=10000)
     assert OVER_PRESSURE_CAUTION not in page.inner_text("#device-doubts")
+
+
+def test_with_no_signal_a_refused_value_is_named_by_its_label_and_so_is_the_servers_verdict(
+        live_app, page, context, base_url, demo_db, browser_login):
+    """The device listed 'outlet pressure: ...', 'speed: ...', 'taken at: ...' (the program's names), and so did the
+    server's verdict on a kept reading; both now name each field as the form's own <label> does, the device's list
+    linking to the field. A refused time is not asked about as well."""
+    from datetime import timedelta
+
+    from fleet.services.rounds import LABELS
+    from fleet.timeutil import utcnow
+
+    browser_login("technician")
+    _open_route_then_lose_signal(page, context, base_url, "Label walk")
+    page.wait_for_function("!navigator.onLine")
+    values = _facts(demo_db, FIRST)
+    later = (utcnow() + timedelta(days=2)).strftime("%Y-%m-%dT%H:%M")
+    bad = {"outlet_pressure": "-5", "speed": "0", "oil_temp": "warm", "taken_at": later}
+    _fill(page, {**values, **bad})
+    page.click("button[value=check]")
+    page.wait_for_selector("#device-errors")
+    listed = page.eval_on_selector_all("#device-errors li", """items => items.map((li) => {
+      const link = li.querySelector('a');
+      return [link ? link.getAttribute('href') : null, link ? link.textContent : null, li.textContent];
+    })""")
+    assert sorted(href or "" for href, _, _ in listed) == sorted(f"#f-{name}" for name in bad)
+    for href, label, text in listed:
+        name = href[len("#f-"):]
+        assert label == LABELS[name] == page.eval_on_selector(
+            f"label[for=f-{name}]", "l => l.firstChild.textContent.trim()")  # the words the form shows
+        assert text.startswith(f"{label}: ") and not text.startswith(name.replace("_", " "))
+    assert page.locator("#device-doubts").count() == 0  # the time refused, not also asked about
+    assert page.locator("#device-queue li").count() == 0
+
+    # A kept reading the server refuses (kept by a device with older rules): its verdict names the fields too.
+    context.set_offline(False)
+    page.evaluate("""([place, hours]) => new Promise((resolve, reject) => {
+      const open = indexedDB.open('fleet-rounds', 1);
+      open.onsuccess = () => {
+        const tx = open.result.transaction('readings', 'readwrite');
+        tx.objectStore('readings').put({client_id: crypto.randomUUID(), route: Number(location.pathname.split('/')[2]),
+          stop: 1, pump: 'EY-104', state: 'waiting', verdict: '', kept_at: new Date().toISOString(),
+          body: {pump: 'EY-104', taken_at: new Date().toISOString().slice(0, 16).replace('T', ' '), place,
+                 hours: {value: hours, unit: 'h'}, outlet_pressure: {value: -5, unit: 'bar'},
+                 speed: {value: 0, unit: 'rpm'}, oil_temp: {value: 48, unit: 'degC'}}});
+        tx.oncomplete = () => resolve(true);
+        tx.onerror = () => reject(tx.error);
+      };
+    })""", [page.eval_on_selector("form.reading-form", "f => JSON.parse(f.dataset.place)"), float(values["hours"])])
+    page.reload()
+    page.wait_for_selector("#device-queue li[data-state=refused]", timeout=30000)
+    verdict = page.inner_text("#device-queue li[data-state=refused]")
+    assert f"{LABELS['outlet_pressure']}: -5 is below the lowest allowed value" in verdict
+    assert f"{LABELS['speed']}: 0 is below the lowest allowed value" in verdict
+    assert not any(f"{sep}{name}:" in verdict for sep in (": ", "; ") for name in ("outlet pressure", "speed"))
+    assert _stored(demo_db, FIRST, values["hours"]) == []

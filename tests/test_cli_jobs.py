@@ -69,7 +69,10 @@ def test_units_doubts_and_errors_at_the_terminal(demo_db):
     lines = bad + fixed + ["y"] + ["skip"] * len(others)
     result = _run(demo_db, "round", ROUTE, "--unit", "outlet_pressure=psi", input="\n".join(lines) + "\n")
     assert result.exit_code == 0, result.output
-    assert "problem: speed: -5 is below the lowest allowed value (10 rpm)" in result.output
+    # Named by the prompt it was typed at (the form's label), not the program's name of the field.
+    label = next(f.label for f in fields_for(pump) if f.name == "speed")
+    assert f"problem: {label}: -5 is below the lowest allowed value (10 rpm)" in result.output
+    assert f"  {label} [rpm]" in result.output and "problem: speed" not in result.output
     assert "check: Oil temperature 95.0 °C is outside" in result.output
     with demo_db.sessions() as session:
         stored = session.scalars(select(Reading).join(Pump).where(Pump.serial == first)

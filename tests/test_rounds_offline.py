@@ -134,3 +134,21 @@ def test_doubts_skip_the_values_that_were_refused():
     reading = {"taken_at": None, "hours": 900.0, "outlet_pressure": None, "speed": None, "outlet_flow": 80.0,
                "oil_temp": None, "stroke": None}
     assert [d.code for d in plausibility_warnings(facts, reading, utcnow())] == ["hours_backwards"]
+
+
+def test_every_rounds_page_gives_the_device_the_forms_labels(client):
+    """The offline form names a refused field by the labels the page carries (data-labels), the server's one list:
+    on a walk, where it checks a reading, and on the list of routes, where it shows the server's verdicts."""
+    import html as html_text
+    import re
+
+    from fleet.services.rounds import LABELS
+
+    route_id = _route(client)
+    for url in ("/rounds", f"/rounds/{route_id}?stop=1", f"/rounds/{route_id}?stop=2&done=1"):
+        page = client.get(url).get_data(as_text=True)
+        carried = re.search(r"data-labels='([^']*)'", page)
+        assert carried and json.loads(html_text.unescape(carried.group(1))) == LABELS, url
+    walk = client.get(f"/rounds/{route_id}?stop=1").get_data(as_text=True)
+    for name in ("taken_at", "hours", "outlet_pressure", "speed", "oil_temp", "taken_by", "note"):
+        assert f'<label for="f-{name}">{LABELS[name]}' in walk, name  # the same words as the form's labels

@@ -232,3 +232,39 @@ def test_unknown_route_and_stop_are_404(client):
     assert client.get("/rounds/999").status_code == 404
     location = _make_route(client)
     assert client.post(f"{location}/stops/3", data={}).status_code == 404
+
+
+def test_a_refused_reading_names_each_field_as_the_form_labels_it(client, demo_db):
+    """'Not saved' listed 'outlet pressure: ...', 'oil temp: ...', 'taken at: ...', the program's names; each
+    problem is now listed under the label its field has on the form, linked to the field."""
+    import re
+
+    from fleet.services.rounds import LABELS
+
+    location = _make_route(client, pumps=(FIRST,))
+    later = (utcnow() + timedelta(days=2)).strftime("%Y-%m-%dT%H:%M")
+    bad = {"outlet_pressure": "-5", "speed": "0", "oil_temp": "warm", "outlet_flow": "abc", "taken_at": later,
+           "hours": ""}
+    response = client.post(f"{location}/stops/1", data=_plausible_form(demo_db, FIRST, **bad))
+    assert response.status_code == 422
+    html = response.get_data(as_text=True)
+    summary = html[html.index('id="form-errors"'):html.index("</div>", html.index('id="form-errors"'))]
+    listed = re.findall(r'<li><a href="#f-(\w+)">([^<]+)</a>: ', summary)
+    assert sorted(name for name, _ in listed) == sorted(bad)  # every refused value once
+    for name, label in listed:
+        assert label == LABELS[name]  # the words of the field's own <label>
+        assert re.search(rf'<label for="f-{name}">{re.escape(label)}[ <]', html), name
+    for program_name in ("outlet pressure", "oil temp", "outlet flow", "taken at", "hours", "speed"):
+        assert f">{program_name}</a>" not in summary and f"<li>{program_name}:" not in summary
+    # Each problem also stands beside its field.
+    assert re.search(r'id="n-outlet_pressure">-5 is below the lowest allowed value', html)
+
+
+
+def test_a_problems_column_is_named_by_its_label_with_or_without_a_unit():
+    from fleet.services.rounds import FORM_FIELDS, label_of
+
+    flow = next(f.label for f in FORM_FIELDS if f.name == "outlet_flow")
+    assert label_of("outlet_flow [gal/min]") == label_of("outlet_flow") == flow
+    assert label_of("taken_at") == "Local time"
+    assert label_of("place") is None and label_of("pump") is None and label_of("") is None  # no input of the form

@@ -227,7 +227,7 @@ def round_(db, route: str, taken_by: str, units_given: tuple[str, ...]) -> None:
     """
     from fleet.db.queries import pump_by_serial
     from fleet.io.parse import ImportRejected
-    from fleet.services.rounds import check_reading, fields_for, reading_table, save_readings
+    from fleet.services.rounds import check_reading, fields_for, label_of, reading_table, save_readings
     from fleet.services.sitelocal import of_pump
     from fleet.timeutil import utcnow
 
@@ -254,8 +254,9 @@ def round_(db, route: str, taken_by: str, units_given: tuple[str, ...]) -> None:
                                       taken_by=taken_by)
                 outcome = check_reading(session, pump, table)
                 if outcome.problems:
-                    for problem in outcome.problems:
-                        click.echo(f"  problem: {problem.column}: {problem.reason}")
+                    for problem in outcome.problems:  # named by the prompt it was typed at
+                        where = label_of(problem.column) or problem.column
+                        click.echo(f"  problem: {where}: {problem.reason}" if where else f"  problem: {problem.reason}")
                     values = _ask_values(fields_for(pump), chosen, values)
                     if values is None:
                         break

@@ -53,6 +53,20 @@ FORM_FIELDS = (
               hint="Without it this reading's flow cannot be judged: it is kept, but left out of the trends."),
 )
 STROKE_UNIT = "%"
+# The round form's other inputs: with FORM_FIELDS, the one place each input's label is written. The form, the
+# offline form (from the page's data), the messages and `fleet round` all name a field by these words.
+TIME_LABEL = "Local time"
+LABELS = {"taken_at": TIME_LABEL, **{f.name: f.label for f in FORM_FIELDS}, "taken_by": "Taken by", "note": "Note"}
+
+
+def label_of(column: str) -> str | None:
+    """The form's label of a problem's column ('outlet_flow [gal/min]' -> 'Outlet flow'); None for a column that
+    is no input of the form (the pump, its place)."""
+    try:
+        name = units.parse_header(column)[0] if column else ""
+    except units.UnitError:
+        return None
+    return LABELS.get(name)
 
 
 class RouteError(ValueError):
@@ -224,7 +238,9 @@ def _in(value: float, quantity: str, unit_text: str | None, digits: int) -> str:
 
 def plausibility_warnings(facts: PumpFacts, reading: dict, now: datetime, site: Conventions = UTC_CANONICAL
                           ) -> list[Doubt]:
-    """Readings that can be right but often are a slip of the finger: shown before saving, never refused.
+    """Readings that can be right but often are a slip of the finger: shown before saving, never refused. Each
+    message names its value by the form's label (LABELS; the hour meter's words are fleet.io.meter's, which
+    imports share).
 
     ``reading`` holds canonical values: taken_at, hours, outlet_pressure (bar), speed (rpm), outlet_flow (L/min),
     oil_temp (degC), stroke (fraction; None = full). The messages speak the pump's site's zone and units.
@@ -240,20 +256,22 @@ def plausibility_warnings(facts: PumpFacts, reading: dict, now: datetime, site: 
                                                  1.0 if _blank(stroke) else stroke))
         if flow > theoretical:
             warnings.append(Doubt("flow_above_theoretical", "outlet_flow",
-                                  f"Outlet flow {_in(flow, 'flow', site.flow_unit, 1)} is above the theoretical "
-                                  f"{_in(theoretical, 'flow', site.flow_unit, 1)} at {reading['speed']:.0f} rpm: "
+                                  f"{LABELS['outlet_flow']} {_in(flow, 'flow', site.flow_unit, 1)} is above the "
+                                  f"theoretical {_in(theoretical, 'flow', site.flow_unit, 1)} at "
+                                  f"{reading['speed']:.0f} rpm: "
                                   "a pump cannot deliver more than its displacement."))
     if known["outlet_pressure"] and reading["outlet_pressure"] > facts.rated_pressure_bar:
         pressure, rated = (_in(v, "pressure", site.pressure_unit, d) for v, d in
                            ((reading["outlet_pressure"], 1), (facts.rated_pressure_bar, 0)))
         warnings.append(Doubt("pressure_above_rated", "outlet_pressure",
-                              f"Outlet pressure {pressure} is above the rated {rated}.", OVER_PRESSURE_CAUTION))
+                              f"{LABELS['outlet_pressure']} {pressure} is above the rated {rated}.",
+                              OVER_PRESSURE_CAUTION))
     temp = reading.get("oil_temp")
     if known["oil_temp"] and not facts.oil_temp_min_c <= temp <= facts.oil_temp_max_c:
         shown_temp, low, high = (_in(v, "temperature", site.temperature_unit, d) for v, d in
                                  ((temp, 1), (facts.oil_temp_min_c, 0), (facts.oil_temp_max_c, 0)))
         warnings.append(Doubt("temperature_outside_limits", "oil_temp",
-                              f"Oil temperature {shown_temp} is outside this pump's limits "
+                              f"{LABELS['oil_temp']} {shown_temp} is outside this pump's limits "
                               f"({low.split()[0]}–{high}).",
                               HOT_OIL_CAUTION if temp > facts.oil_temp_max_c else None))
     if known["hours"] and facts.last_taken_at is not None:
@@ -269,7 +287,7 @@ def plausibility_warnings(facts: PumpFacts, reading: dict, now: datetime, site: 
     if known["taken_at"] and reading["taken_at"] > now:
         taken, clock = to_local(reading["taken_at"], zone_text), to_local(now, zone_text)
         warnings.append(Doubt("time_in_future", "taken_at",
-                              f"The time {taken:%Y-%m-%d %H:%M} is later than now "
+                              f"{TIME_LABEL} {taken:%Y-%m-%d %H:%M} is later than now "
                               f"({clock:%Y-%m-%d %H:%M}, UTC{offset_text(clock.utcoffset())})."))
     return warnings
 

@@ -53,7 +53,7 @@ def index(fmt):
     if wants_json(fmt) or is_table_format(fmt):
         return respond(data, "rounds/index.html", fmt, "rows", ROUTE_COLUMNS, "routes")
     return render_template("rounds/index.html", twins=twin_urls_for_index(), keep_urls=[url_for("rounds.index")],
-                           rules_url=None, **data)
+                           rules_url=None, labels=rounds.LABELS, **data)
 
 
 @bp.post("/rounds")
@@ -69,7 +69,7 @@ def create():
         if wants_json(None):
             return {"problems": error.problems}, 422
         return render_template("rounds/index.html", twins=twin_urls_for_index(), errors=error.problems,
-                               form=form, keep_urls=[], rules_url=None, **data), 422
+                               form=form, keep_urls=[], rules_url=None, labels=rounds.LABELS, **data), 422
     flash(f"Route '{route.name}' saved with {len(route.stops)} pump(s).", "info")
     return redirect(url_for("rounds.walk", route_id=route.id))
 
@@ -144,9 +144,13 @@ def _render_walk(data: dict, number: int, values: dict, chosen: dict | None, twi
     conventions = sitelocal.of_pump(session(), pump) if pump else sitelocal.UTC_CANONICAL
     if chosen is None:
         chosen = {**_site_units(conventions), **_remembered_units(conventions)}
-    errors: dict[str, list[str]] = {}
+    errors: dict[str, list[str]] = {}  # a form input's problems, listed under its label
+    unplaced: list[str] = []  # problems of no input (the pump, its place), as stated
     for problem in (outcome.problems if outcome else []):
-        errors.setdefault(_field_of(problem.column), []).append(problem.reason)
+        if rounds.label_of(problem.column):
+            errors.setdefault(_field_of(problem.column), []).append(problem.reason)
+        else:
+            unplaced.append(f"{problem.column}: {problem.reason}" if problem.column else problem.reason)
     doubts: dict[str, list[str]] = {}
     for doubt in (outcome.warnings if outcome else []):
         doubts.setdefault(doubt.field, []).append(doubt.message)
@@ -165,7 +169,8 @@ def _render_walk(data: dict, number: int, values: dict, chosen: dict | None, twi
         fields=rounds.fields_for(pump) if pump else [], choices=units.CHOICES, stroke_unit=rounds.STROKE_UNIT,
         values=values, chosen=chosen, default_time=form_value(utcnow(), conventions.time_zone), outcome=outcome,
         conventions=conventions, zone_label=sitelocal.zone_label(conventions),
-        errors=errors, doubts=doubts, checked=checked, done=request.args.get("done") == "1",
+        errors=errors, unplaced=unplaced, labels=rounds.LABELS, doubts=doubts, checked=checked,
+        done=request.args.get("done") == "1",
         confirm_codes=",".join(sorted({d.code for d in outcome.warnings})) if outcome else "",
     )
 

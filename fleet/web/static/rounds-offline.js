@@ -15,6 +15,10 @@
   const form = document.querySelector("form.reading-form");
   let rules = null;
   let sending = false;
+  // The form's labels, written by the page from the server's one list (_app.html): a message names a field as
+  // the form labels it. A column that is no input of the form (the pump, its place) keeps its own name.
+  const labels = JSON.parse(app.dataset.labels || "{}");
+  const labelOf = (column) => labels[String(column || "").replace(/\s*\[.*\]\s*$/, "").trim().toLowerCase()];
 
   // --- the one reader of typed numbers --------------------------------------------------------------------
   // null for a blank cell, NaN for text that is not a number. A decimal comma ("120,5") is read only where the
@@ -143,19 +147,20 @@
     if ("speed" in canonical && "outlet_flow" in canonical) {
       const theoretical = pumpRules.flow_per_rpm_lpm * canonical.speed * ("stroke" in canonical ? canonical.stroke : 1);
       if (canonical.outlet_flow > theoretical) {
-        doubts.push({field: "outlet_flow", message: `Outlet flow ${canonical.outlet_flow.toFixed(1)} L/min is above the ` +
-          `theoretical ${theoretical.toFixed(1)} L/min at ${canonical.speed.toFixed(0)} rpm: a pump cannot deliver ` +
+        doubts.push({field: "outlet_flow", message: `${labels.outlet_flow} ${canonical.outlet_flow.toFixed(1)} L/min ` +
+          `is above the theoretical ${theoretical.toFixed(1)} L/min at ${canonical.speed.toFixed(0)} rpm: a pump cannot deliver ` +
           "more than its displacement."});
       }
     }
     if ("outlet_pressure" in canonical && canonical.outlet_pressure > pumpRules.rated_pressure_bar) {
-      doubts.push({field: "outlet_pressure", message: `Outlet pressure ${canonical.outlet_pressure.toFixed(1)} bar is ` +
-        `above the rated ${pumpRules.rated_pressure_bar.toFixed(0)} bar.`, caution: rules.over_pressure_caution});
+      doubts.push({field: "outlet_pressure", message: `${labels.outlet_pressure} ` +
+        `${canonical.outlet_pressure.toFixed(1)} bar is above the rated ${pumpRules.rated_pressure_bar.toFixed(0)} bar.`,
+      caution: rules.over_pressure_caution});
     }
     if ("oil_temp" in canonical) {
       const t = canonical.oil_temp;
       if (t < pumpRules.oil_temp_min_c || t > pumpRules.oil_temp_max_c) {
-        doubts.push({field: "oil_temp", message: `Oil temperature ${t.toFixed(1)} °C is outside this pump's limits ` +
+        doubts.push({field: "oil_temp", message: `${labels.oil_temp} ${t.toFixed(1)} °C is outside this pump's limits ` +
           `(${pumpRules.oil_temp_min_c.toFixed(0)}–${pumpRules.oil_temp_max_c.toFixed(0)} °C).`,
         caution: t > pumpRules.oil_temp_max_c ? rules.hot_oil_caution : null});
       }
@@ -175,8 +180,8 @@
           "look again. Is it the right pump, or a misread hour meter?"});
       }
     }
-    if (at && at > now) {
-      doubts.push({field: "taken_at", message: `The time ${stamp(at)} is later than now (${stamp(now)}, ${zone}).`});
+    if (at && at > now && !problems.some((p) => p.field === "taken_at")) {  // a refused time is not asked about too
+      doubts.push({field: "taken_at", message: `${labels.taken_at} ${stamp(at)} is later than now (${stamp(now)}, ${zone}).`});
     }
     return {problems, doubts};
   }
@@ -206,7 +211,13 @@
       notice.appendChild(element("p", "Not kept. Please correct:"));
       const list = element("ul");
       outcome.problems.forEach((p) => {
-        list.appendChild(element("li", `${p.field.replace(/_/g, " ")}: ${p.reason}`));
+        const item = element("li");
+        if (labelOf(p.field)) {  // under the form's label, linked to the field, as the server's page lists it
+          item.append(element("a", labelOf(p.field), {href: `#f-${p.field}`}), `: ${p.reason}`);
+        } else {
+          item.textContent = p.reason;
+        }
+        list.appendChild(item);
         mark(p.field, p.reason, "has-error");
       });
       notice.appendChild(list);
@@ -257,7 +268,7 @@
   function keepOffline(action) {
     const pumpRules = rules && rules.pumps[form.dataset.pump];
     if (!pumpRules) {
-      showOutcome({problems: [{field: "taken_at", reason: "this route's rules are not kept on this device: open " +
+      showOutcome({problems: [{field: "", reason: "this route's rules are not kept on this device: open " +
         "the route once with signal"}], doubts: []}, action);
       return;
     }
@@ -284,7 +295,7 @@
   function verdictOf(status, data) {
     if (status === 201) return ["stored", "stored"];
     if (status === 200 && data.repeat) return ["stored", "stored (it had reached the server before)"];
-    const reasons = (data.problems || []).map((p) => (p.column ? `${p.column.replace(/_/g, " ")}: ` : "") + p.reason);
+    const reasons = (data.problems || []).map((p) => (p.column ? `${labelOf(p.column) || p.column.replace(/_/g, " ")}: ` : "") + p.reason);
     return ["refused", `refused by the server: ${reasons.join("; ") || `answer ${status}`}`];
   }
 
