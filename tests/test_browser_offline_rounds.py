@@ -144,6 +144,27 @@ def test_the_servers_verdict_on_a_kept_reading_is_shown(live_app, page, context,
     assert _stored(demo_db, FIRST, values["hours"]) == []
 
 
+def test_a_browser_that_claims_signal_keeps_the_reading_when_the_server_does_not_answer(live_app, page, context,
+                                                                                        base_url, demo_db,
+                                                                                        browser_login):
+    """navigator.onLine is true on a Wi-Fi with no way to the server: the form asks the server before it posts, and
+    keeps the reading on the device when no answer comes, rather than posting into nothing and losing what was
+    typed; it is sent once the server answers, with no 'online' event."""
+    browser_login("technician")
+    context.add_init_script("Object.defineProperty(Navigator.prototype, 'onLine', {get: () => true});")
+    _open_route_then_lose_signal(page, context, base_url, "Wi-Fi without a way out")
+    page.reload()  # the page as the device keeps it, with the browser saying it is online
+    assert page.evaluate("navigator.onLine") is True
+    values = _facts(demo_db, FIRST)
+    _fill(page, values)
+    page.click("button[value=save]")
+    page.wait_for_selector("#device-queue li[data-state=waiting]")
+    assert _stored(demo_db, FIRST, values["hours"]) == []
+    context.set_offline(False)
+    page.wait_for_selector("#device-queue li[data-state=stored]", timeout=30000)
+    assert len(_stored(demo_db, FIRST, values["hours"])) == 1
+
+
 def test_with_no_signal_the_device_reads_the_sites_clock_and_asks_about_a_fast_meter(live_app, page, context,
                                                                                       base_url, demo_db, browser_login):
     """A site six hours behind UTC (America/Chicago in winter; reference: Python's zoneinfo, IANA tz database):

@@ -1,6 +1,9 @@
 /* The round form with no signal.
 
-   With signal the form posts to the server as it does without script. With none, the checks that can run here
+   With signal the form posts to the server as it does without script. "Signal" means the server answers: the
+   browser's navigator.onLine says only that some network is there (a plant's Wi-Fi with no way to the server says
+   true, and so does a page opened from this device's copy), so before the form goes, the server is asked
+   (reachable); if it does not answer, the reading is kept here as with no network at all. With none, the checks that can run here
    do (from the server's own rules, fetched as data from /rounds/<id>/rules.json), and the reading waits on this
    device (IndexedDB) under an id made here. When the connection is back each waiting reading is sent to
    POST /api/readings with that id as client_id, so sending twice never stores twice; the server's answer is
@@ -299,13 +302,28 @@
     return ["refused", `refused by the server: ${reasons.join("; ") || `answer ${status}`}`];
   }
 
+  // Whether the server answers now (the session's page is never answered from this device's copy).
+  async function reachable() {
+    try {
+      await fetch(app.dataset.sessionUrl, {credentials: "same-origin", cache: "no-store"});
+      return true;
+    } catch (lost) {
+      return false;
+    }
+  }
+
   async function sendWaiting() {
     if (sending || !navigator.onLine) return;
     sending = true;
     try {
       const waiting = (await allKept()).filter((r) => r.state === "waiting");
       if (!waiting.length) return;
-      const answer = await fetch(app.dataset.sessionUrl, {credentials: "same-origin", cache: "no-store"});
+      let answer;
+      try {
+        answer = await fetch(app.dataset.sessionUrl, {credentials: "same-origin", cache: "no-store"});
+      } catch (lost) {
+        return;  // no answer from the server yet (navigator.onLine can say otherwise): the next try comes
+      }
       if (!answer.ok || answer.redirected) {
         showQueueNote("Sign in again to send the readings waiting here; they stay on this device.");
         return;
@@ -392,12 +410,21 @@
     showQueue().then(sendWaiting);
   }
   if (form) {
+    let passing = false;
     form.addEventListener("submit", (event) => {
-      if (navigator.onLine) return;  // with signal the server checks and saves, as without script
+      if (passing) return;  // the server answered just now: it checks and saves, as without script
       event.preventDefault();
-      keepOffline(event.submitter ? event.submitter.value : "save");
+      const submitter = event.submitter;
+      const action = submitter ? submitter.value : "save";
+      (navigator.onLine ? reachable() : Promise.resolve(false)).then((yes) => {
+        if (!yes) { keepOffline(action); return; }
+        passing = true;
+        form.requestSubmit(submitter || undefined);
+      });
     });
   }
   window.addEventListener("online", sendWaiting);
-  window.setInterval(sendWaiting, 30000);
+  // Also on a timer: a page that believed it had signal all along gets no 'online' event when the server answers
+  // again. Every 10 s asks the server only while readings wait here.
+  window.setInterval(sendWaiting, 10000);
 }());
