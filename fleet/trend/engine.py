@@ -457,18 +457,36 @@ def analyze_fleet(
     res["age_hours"] = np.where(
         current_iv["interval_no"] == 0, current_iv["last_hours"], current_iv["last_hours"] - current_iv["start_hours"]
     )
-    # A column already on the pumps' index goes in as its array: no alignment per column (object columns stay
-    # Series, which keep their dtype where an array of text would be read as strings).
-    res = pd.DataFrame({k: v.array if isinstance(v, pd.Series) and v.dtype != object and v.index.equals(pump_tab.index)
-                        else v for k, v in res.items()}, index=pump_tab.index)
+    # The priors and the status read the columns as the frame will hold them, and the pump rows are framed once,
+    # in the order shown: a frame read column by column and grown by the priors' and the status' columns pays
+    # pandas' lookup and insert for each, on every call.
+    res = {k: _as_column(v, pump_tab.index) for k, v in res.items()}
     fleet_priors = apply_priors(res, fleet_priors, now)
-
     status = assess_status(res, now, s)
-    res = pd.concat([res, status.set_axis(res.index)], axis=1)
-    res.index.name = "pump_id"
+    res.update((k, v.array if v.dtype != object else v.to_numpy()) for k, v in status.items())
     first_cols = ["rank", "pump", "kind", "status", "reasons"]
-    res = res[first_cols + [c for c in res.columns if c not in first_cols]]
+    order = first_cols + [c for c in res if c not in first_cols]
+    res = pd.DataFrame({k: res[k] for k in order}, index=pump_tab.index.rename("pump_id"))
     return FleetAnalysis(res, referred, fits, laws, fleet_priors, intervals, s)
+
+
+def _as_column(value, index: pd.Index):
+    """One of the pump rows' columns as the frame on ``index`` will hold it, read the same before it is framed: a
+    Series of numbers, flags or times as its array (on the pumps' index already: no alignment), text or other
+    objects as pandas infers their dtype (an object array of text is read as strings; missing then NaN, not
+    None), a single value repeated on every row."""
+    if isinstance(value, pd.Series):
+        if not value.index.equals(index):
+            value = value.reindex(index)  # aligned, as the frame would
+        if value.dtype == object:
+            return value  # object columns keep their dtype
+        return value.to_numpy() if isinstance(value.dtype, np.dtype) else value.array
+    if isinstance(value, np.ndarray) and value.dtype != object:
+        return value
+    if isinstance(value, bool | float):
+        return np.full(len(index), value)
+    inferred = pd.Series(value, index=index)
+    return inferred if inferred.dtype == object else inferred.array
 
 
 def fit_priors(intervals: pd.DataFrame, kind_of_pump: pd.Series, settings: AnalysisSettings) -> pd.DataFrame:
