@@ -36,7 +36,7 @@ from fleet.trend.remaining_life import (
     limit_flows_lpm,
 )
 from fleet.trend.settings import AnalysisSettings
-from fleet.trend.status import assess_status, horizon_remaining_hours
+from fleet.trend.status import assess_status, days_since, horizon_remaining_hours
 from fleet.trend.wear_laws import LAWS, MEMBERS
 from fleet.trend.weibull import (
     expected_overhauls_per_prior,
@@ -45,8 +45,6 @@ from fleet.trend.weibull import (
     mean_residual_life,
     per_pump,
 )
-
-KEYS = ["pump_id", "interval_no"]
 
 
 @dataclass
@@ -128,12 +126,23 @@ def _last_in_group(group: np.ndarray, keep: np.ndarray, n_groups: int) -> np.nda
     return last
 
 
-def _last_usable(referred: pd.DataFrame, current: pd.MultiIndex) -> pd.DataFrame:
-    """Per pump: last reading of its current interval (flag), last usable eta/drain, case drain jump ratio."""
-    pumps = current.get_level_values(0)
+def _current_rows(pumps: pd.Index, interval: np.ndarray, fit_pumps: np.ndarray, fit_intervals: np.ndarray):
+    """Each pump's row among the fits (-1: none) whose interval is its ``interval``, as a MultiIndex of the fits'
+    keys would find it (get_indexer; the fits' pump intervals are unique): by the pumps' positions, no MultiIndex
+    built on either side."""
+    pos = pumps.get_indexer(fit_pumps)
+    match = np.flatnonzero((pos >= 0) & (fit_intervals == interval[np.maximum(pos, 0)]))
+    rows = np.full(len(pumps), -1, dtype=np.intp)
+    rows[pos[match]] = match
+    return rows
+
+
+def _last_usable(referred: pd.DataFrame, pumps: pd.Index, interval: np.ndarray) -> pd.DataFrame:
+    """Per pump (``pumps``, each in its current ``interval``): last reading of that interval (flag), last usable
+    eta/drain, case drain jump ratio."""
     n = len(pumps)
     pos = pumps.get_indexer(referred["pump_id"].to_numpy())
-    interval = np.asarray(current.get_level_values(1), dtype=np.int64)
+    interval = np.asarray(interval, dtype=np.int64)
     in_current = (pos >= 0) & (referred["interval_no"].to_numpy(np.int64) == interval[np.maximum(pos, 0)])
     rows = np.flatnonzero(in_current)
     rows = rows[np.lexsort((referred["taken_at"].to_numpy()[rows], pos[rows]))]  # stable: by pump, then time
@@ -338,11 +347,12 @@ def analyze_fleet(
     # One row per pump: its current interval.
     current_iv = intervals[intervals["is_current"]].set_index("pump_id").reindex(pump_tab.index)
     current_iv["interval_no"] = current_iv["interval_no"].fillna(0).astype(np.int64)
-    cur_keys = pd.MultiIndex.from_arrays([pump_tab.index, current_iv["interval_no"]])
+    cur_interval = current_iv["interval_no"].to_numpy()
     # Each pump's current interval's row of the fits (-1: none), and those rows (a missing one all NaN, as a
     # reindex on the keys gives it): taken by position, the fits are not indexed on their keys.
-    cur_rows = pd.MultiIndex.from_arrays([fits["pump_id"], fits["interval_no"]]).get_indexer(cur_keys)
-    cur = fits.set_axis(pd.RangeIndex(len(fits))).drop(columns=KEYS).reindex(cur_rows)
+    cur_rows = _current_rows(pump_tab.index, cur_interval, fits["pump_id"].to_numpy(), fits["interval_no"].to_numpy())
+    # (The keys' columns ride along, unread: dropping them would copy every block of the fits.)
+    cur = fits.set_axis(pd.RangeIndex(len(fits))).reindex(cur_rows)
     cur.index = pump_tab.index
     cur_limits = {
         q: limit_flows_lpm(
@@ -362,7 +372,7 @@ def analyze_fleet(
     ):
         if cur[col].dtype != bool:  # a pump without a fitted current interval: NaN rows
             cur[col] = _bools(cur[col])
-    last = _last_usable(referred, cur_keys)
+    last = _last_usable(referred, pump_tab.index, cur_interval)
     last.index = pump_tab.index
 
     # The pump rows gathered as one dict of columns (in the order they are shown) and framed once: a frame
@@ -398,14 +408,15 @@ def analyze_fleet(
     res["interval_start_kind"] = current_iv["start_kind"]
     res["interval_hours"] = cur["current_hours"]
     res["last_reading_at"] = _latest_taken(referred, pump_tab.index)
-    res["days_since_reading"] = (now - res["last_reading_at"]).dt.total_seconds() / 86400.0
+    res["days_since_reading"] = days_since(res["last_reading_at"].to_numpy(), now)
     res["installed"] = pump_tab["machine_id"].notna() if "machine_id" in pump_tab else True
     res.update(last.items())
     # With too little for a trend, the current value is the last usable reading's; *_source says which.
     for col, last_col in (("eta_v_ref", "last_eta_v_ref"), ("drain_pct_ref", "last_drain_pct_ref")):
-        from_trend = res[col].notna()
-        res[f"{col}_source"] = np.where(from_trend, "trend", np.where(res[last_col].notna(), "last_reading", None))
-        res[col] = res[col].where(from_trend, res[last_col])
+        trend_value, last_value = res[col].to_numpy(), res[last_col].to_numpy()  # both on the pumps' index
+        from_trend = ~pd.isna(trend_value)
+        res[f"{col}_source"] = np.where(from_trend, "trend", np.where(~pd.isna(last_value), "last_reading", None))
+        res[col] = np.where(from_trend, trend_value, last_value)
     for col in (
         "eta_v_limit",
         "drain_limit_pct",
@@ -454,9 +465,8 @@ def analyze_fleet(
     # Fleet life figures: the separate, labelled prior.
     kind_of = pump_tab["kind"]
     fleet_priors = fit_priors(intervals, kind_of, s) if priors is None else priors.copy()
-    res["age_hours"] = np.where(
-        current_iv["interval_no"] == 0, current_iv["last_hours"], current_iv["last_hours"] - current_iv["start_hours"]
-    )
+    last_hours = current_iv["last_hours"].to_numpy()
+    res["age_hours"] = np.where(cur_interval == 0, last_hours, last_hours - current_iv["start_hours"].to_numpy())
     # The priors and the status read the columns as the frame will hold them, and the pump rows are framed once,
     # in the order shown: a frame read column by column and grown by the priors' and the status' columns pays
     # pandas' lookup and insert for each, on every call.
