@@ -25,7 +25,7 @@ from fleet.trend.energy import leakage_energy, typical_pressure_bar
 from fleet.trend.grouped import group_median, group_time_max, pair_codes
 from fleet.trend.intervals import assign_intervals, interval_lives
 from fleet.trend.linear import t_quantile
-from fleet.trend.oil_condition import OIL_COLUMNS, oil_condition
+from fleet.trend.oil_condition import OIL_COLUMNS, oil_columns
 from fleet.trend.referral import refer_readings
 from fleet.trend.remaining_life import (
     LIMIT_NAMES,
@@ -118,6 +118,13 @@ def _pump_table(pumps: pd.DataFrame) -> pd.DataFrame:
                     drain_limit_pct=drain_limit)
 
 
+def _at_positions(values: np.ndarray, pos: np.ndarray) -> np.ndarray:
+    """values[pos] as floats, NaN where a position is -1 (as a reindex gives a missing label)."""
+    taken = values[np.maximum(pos, 0)] if len(values) else np.full(len(pos), np.nan)
+    taken[pos < 0] = np.nan
+    return taken
+
+
 def _last_in_group(group: np.ndarray, keep: np.ndarray, n_groups: int) -> np.ndarray:
     """Per group, the position of its last row among those kept (rows already in time order); -1 if none."""
     at = np.flatnonzero(keep)
@@ -187,13 +194,14 @@ def _latest_taken(referred: pd.DataFrame, pumps: pd.Index) -> pd.Series:
     return pd.Series(group_time_max(pos[known], taken.to_numpy()[known], len(pumps)), index=pumps)
 
 
-def _past_margin(fits: pd.DataFrame, limits: dict[str, np.ndarray], last: pd.DataFrame, pumps: pd.DataFrame):
+def _past_margin(fits: pd.DataFrame, limits: dict[str, np.ndarray], last: pd.DataFrame, eta_v_limit: np.ndarray,
+                 drain_limit_pct: np.ndarray):
     """How far beyond its limits a pump is, ln(value / limit) of the worst limit (fitted, else last reading)."""
     with np.errstate(divide="ignore", invalid="ignore"):
         slip = np.log(fits["slip_current_lpm"].to_numpy(float) / limits["slip"])
         drain = np.log(fits["drain_current_lpm"].to_numpy(float) / limits["drain"])
-        raw_slip = np.log((1.0 - last["last_eta_v_ref"].to_numpy(float)) / (1.0 - pumps["eta_v_limit"].to_numpy(float)))
-        raw_drain = np.log(last["last_drain_pct_ref"].to_numpy(float) / pumps["drain_limit_pct"].to_numpy(float))
+        raw_slip = np.log((1.0 - last["last_eta_v_ref"].to_numpy(float)) / (1.0 - eta_v_limit))
+        raw_drain = np.log(last["last_drain_pct_ref"].to_numpy(float) / drain_limit_pct)
     slip = np.where(fits["slip_enough_data"].to_numpy(bool), slip, raw_slip)
     drain = np.where(fits["drain_enough_data"].to_numpy(bool), drain, raw_drain)
     return np.fmax(slip, drain)
@@ -323,11 +331,14 @@ def analyze_fleet(
     # The fits' figures as a narrow table (a few dozen columns) and the laws as arrays; the members' lines (most
     # of the columns of FleetAnalysis.fits) are framed only when that is read.
     fits, laws = fit_degradation(referred, s, pump_tab["kind"], shape_priors)
-    fit_pump = pump_tab.reindex(fits["pump_id"])
-    fits = summarise_fits(fits, fit_pump["rated_flow_lpm"].to_numpy(float), fit_pump["max_flow_lpm"].to_numpy(float), s)
-    limits = limit_flows_lpm(
-        fit_pump["eta_v_limit"], fit_pump["drain_limit_pct"], fit_pump["rated_flow_lpm"], fit_pump["max_flow_lpm"]
-    )
+    # The pump figures the limits read, as floats once; each fit row's pump's taken by position (NaN for a pump
+    # not in the table, as a reindex on the fits' pumps gives it).
+    limit_inputs = {c: pump_tab[c].to_numpy(float)
+                    for c in ("eta_v_limit", "drain_limit_pct", "rated_flow_lpm", "max_flow_lpm")}
+    fit_pump = {c: _at_positions(v, pump_tab.index.get_indexer(fits["pump_id"].to_numpy()))
+                for c, v in limit_inputs.items()}
+    fits = summarise_fits(fits, fit_pump["rated_flow_lpm"], fit_pump["max_flow_lpm"], s)
+    limits = limit_flows_lpm(**fit_pump)
     t = t_quantile(s.confidence, fits["slip_dof"].to_numpy(float))
     with np.errstate(invalid="ignore"):
         significant = fits["slip_b"].to_numpy(float) > t * np.sqrt(fits["slip_var_b"].to_numpy(float))
@@ -354,12 +365,7 @@ def analyze_fleet(
     # (The keys' columns ride along, unread: dropping them would copy every block of the fits.)
     cur = fits.set_axis(pd.RangeIndex(len(fits))).reindex(cur_rows)
     cur.index = pump_tab.index
-    cur_limits = {
-        q: limit_flows_lpm(
-            pump_tab["eta_v_limit"], pump_tab["drain_limit_pct"], pump_tab["rated_flow_lpm"], pump_tab["max_flow_lpm"]
-        )[q]
-        for q in ("slip", "drain")
-    }
+    cur_limits = limit_flows_lpm(**limit_inputs)
     for col in (
         "slip_enough_data",
         "drain_enough_data",
@@ -390,7 +396,9 @@ def analyze_fleet(
         "hours_per_day",
     ):
         res[col] = cur[col]
-    res["governing_limit"] = res["governing_limit"].astype(object).where(res["governing_limit"].notna(), None)
+    governing = np.array(res["governing_limit"].to_numpy(), dtype=object)  # a copy: text, a missing one as None
+    governing[pd.isna(governing)] = None
+    res["governing_limit"] = pd.Series(governing, index=pump_tab.index, dtype=object)
     res["confidence"] = np.where(np.isfinite(res["hours_to_limit_low"]), s.confidence, np.nan)
     res["n_points"] = cur["slip_n_points"].fillna(0).astype(np.int64)
     res["n_drain_points"] = cur["drain_n_points"].fillna(0).astype(np.int64)
@@ -440,11 +448,12 @@ def analyze_fleet(
 
     res.update(_wear_law(cur, {q: _rows_of(laws[q].weight, cur_rows) for q in QUANTITIES}))
     res.update(_crossing_passed(cur, current_iv, referred).items())
-    res["past_margin"] = _past_margin(cur, cur_limits, last, pump_tab)
+    res["past_margin"] = _past_margin(cur, cur_limits, last, limit_inputs["eta_v_limit"],
+                                    limit_inputs["drain_limit_pct"])
     res["data_note"] = _data_note(res, current_iv, cur, s)
 
     # Oil condition and the cost of leakage.
-    oil = oil_condition(pump_tab.reset_index(drop=True), referred, samples, now, s)
+    oil = oil_columns(pump_tab, referred, samples, now, s)  # arrays in the pumps' order, framed with the rest
     res.update((c, oil[c]) for c in OIL_COLUMNS if c != "cleanliness_target")
     res["cleanliness_target"] = pump_tab["cleanliness_target"]
     slip_start = cur["slip_start_lpm"].to_numpy(float)
