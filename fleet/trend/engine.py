@@ -256,7 +256,8 @@ def _wear_law(cur: pd.DataFrame, member_weights: dict[str, np.ndarray]) -> dict[
 _DATING_COLUMNS = ["pump_id", "interval_no", "interval_hours", "taken_at"]  # what dates_at_hours reads
 
 
-def _crossing_passed(cur: pd.DataFrame, current_iv: pd.DataFrame, referred: pd.DataFrame) -> pd.DataFrame:
+def _crossing_passed(cur: pd.DataFrame, current_iv: pd.DataFrame, cur_interval: np.ndarray,
+                     referred: pd.DataFrame) -> pd.DataFrame:
     """For a pump whose trend is already past a limit: when its trend crossed it, estimated from its readings.
 
     crossed_limit names the limit crossed first; crossed_at_hours (hour meter) with _low/_high bounds at the
@@ -288,7 +289,7 @@ def _crossing_passed(cur: pd.DataFrame, current_iv: pd.DataFrame, referred: pd.D
     near = referred.loc[referred["pump_id"].isin(cur.index[past]).to_numpy(), _DATING_COLUMNS]
     # The three figures of every pump dated in one search.
     keys = pd.DataFrame({"pump_id": np.tile(cur.index.to_numpy(), 3),
-                         "interval_no": np.tile(current_iv["interval_no"].to_numpy(), 3)})
+                         "interval_no": np.tile(cur_interval, 3)})
     dates = dates_at_hours(near, keys, np.concatenate(hours), np.tile(per_day, 3)).to_numpy()
     for i, suffix in enumerate(suffixes):
         out[f"crossed_date{suffix}"] = dates[i * len(cur):(i + 1) * len(cur)]
@@ -356,9 +357,16 @@ def analyze_fleet(
     fits = pd.concat([fits, hours_to_limits(fits, laws, limits, s), per_interval], axis=1)  # joined once
 
     # One row per pump: its current interval.
-    current_iv = intervals[intervals["is_current"]].set_index("pump_id").reindex(pump_tab.index)
-    current_iv["interval_no"] = current_iv["interval_no"].fillna(0).astype(np.int64)
-    cur_interval = current_iv["interval_no"].to_numpy()
+    # By position, as intervals[is_current].set_index("pump_id").reindex(pump_tab.index) gives it (a pump has one
+    # current interval): its rows all NaN for a pump with none, its interval number then 0. (The pump_id column
+    # rides along, unread.)
+    iv_pos = pump_tab.index.get_indexer(intervals["pump_id"].to_numpy())
+    iv_current = np.flatnonzero(intervals["is_current"].to_numpy(bool) & (iv_pos >= 0))
+    iv_rows = np.full(len(pump_tab), -1, dtype=np.intp)
+    iv_rows[iv_pos[iv_current]] = iv_current
+    current_iv = intervals.set_axis(pd.RangeIndex(len(intervals))).reindex(iv_rows)
+    current_iv.index = pump_tab.index
+    cur_interval = current_iv["interval_no"].fillna(0).to_numpy().astype(np.int64)
     # Each pump's current interval's row of the fits (-1: none), and those rows (a missing one all NaN, as a
     # reindex on the keys gives it): taken by position, the fits are not indexed on their keys.
     cur_rows = _current_rows(pump_tab.index, cur_interval, fits["pump_id"].to_numpy(), fits["interval_no"].to_numpy())
@@ -411,7 +419,7 @@ def analyze_fleet(
         res[f"{name}_hours_low"] = cur[f"{q}_hours_low"]
         res[f"{name}_hours_high"] = cur[f"{q}_hours_high"]
         res[f"{name}_note"] = cur[f"{q}_note"]
-    res["interval_no"] = current_iv["interval_no"]
+    res["interval_no"] = cur_interval
     res["interval_start"] = pd.to_datetime(current_iv["start_at"])
     res["interval_start_kind"] = current_iv["start_kind"]
     res["interval_hours"] = cur["current_hours"]
@@ -447,7 +455,7 @@ def analyze_fleet(
         res[dst] = limit_dates(res["last_reading_at"], res[src], res["hours_per_day"]).to_numpy()
 
     res.update(_wear_law(cur, {q: _rows_of(laws[q].weight, cur_rows) for q in QUANTITIES}))
-    res.update(_crossing_passed(cur, current_iv, referred).items())
+    res.update(_crossing_passed(cur, current_iv, cur_interval, referred).items())
     res["past_margin"] = _past_margin(cur, cur_limits, last, limit_inputs["eta_v_limit"],
                                     limit_inputs["drain_limit_pct"])
     res["data_note"] = _data_note(res, current_iv, cur, s)
