@@ -25,7 +25,7 @@ from fleet.trend.energy import leakage_energy, typical_pressure_bar
 from fleet.trend.grouped import group_median, group_time_max, pair_codes
 from fleet.trend.intervals import assign_intervals, interval_lives
 from fleet.trend.linear import t_quantile
-from fleet.trend.oil_condition import OIL_COLUMNS, oil_columns
+from fleet.trend.oil_condition import OIL_COLUMNS, oil_condition
 from fleet.trend.referral import refer_readings
 from fleet.trend.remaining_life import (
     LIMIT_NAMES,
@@ -461,7 +461,7 @@ def analyze_fleet(
     res["data_note"] = _data_note(res, current_iv, cur, s)
 
     # Oil condition and the cost of leakage.
-    oil = oil_columns(pump_tab, referred, samples, now, s)  # arrays in the pumps' order, framed with the rest
+    oil = oil_condition(pump_tab.reset_index(drop=True), referred, samples, now, s)
     res.update((c, oil[c]) for c in OIL_COLUMNS if c != "cleanliness_target")
     res["cleanliness_target"] = pump_tab["cleanliness_target"]
     slip_start = cur["slip_start_lpm"].to_numpy(float)
