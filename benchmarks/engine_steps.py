@@ -87,6 +87,8 @@ def _same(a, b, where: str) -> None:
         assert a.keys() == b.keys(), where
         for key in a:
             _same(a[key], b[key], f"{where}.{key}")
+    elif isinstance(a, pd.api.extensions.ExtensionArray):  # a column's array (the engine's columns before framing)
+        pd.testing.assert_extension_array_equal(a, b, check_exact=True, obj=where)
     elif isinstance(a, np.ndarray):
         assert a.dtype == b.dtype and a.shape == b.shape, where
         assert a.tobytes() == b.tobytes() if a.dtype != object else pd.Series(a).equals(pd.Series(b)), where

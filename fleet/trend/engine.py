@@ -36,7 +36,7 @@ from fleet.trend.remaining_life import (
     limit_flows_lpm,
 )
 from fleet.trend.settings import AnalysisSettings
-from fleet.trend.status import assess_status, horizon_remaining_hours
+from fleet.trend.status import assess_status, days_since, horizon_remaining_hours
 from fleet.trend.wear_laws import LAWS, MEMBERS
 from fleet.trend.weibull import (
     expected_overhauls_per_prior,
@@ -45,8 +45,6 @@ from fleet.trend.weibull import (
     mean_residual_life,
     per_pump,
 )
-
-KEYS = ["pump_id", "interval_no"]
 
 
 @dataclass
@@ -120,6 +118,13 @@ def _pump_table(pumps: pd.DataFrame) -> pd.DataFrame:
                     drain_limit_pct=drain_limit)
 
 
+def _at_positions(values: np.ndarray, pos: np.ndarray) -> np.ndarray:
+    """values[pos] as floats, NaN where a position is -1 (as a reindex gives a missing label)."""
+    taken = values[np.maximum(pos, 0)] if len(values) else np.full(len(pos), np.nan)
+    taken[pos < 0] = np.nan
+    return taken
+
+
 def _last_in_group(group: np.ndarray, keep: np.ndarray, n_groups: int) -> np.ndarray:
     """Per group, the position of its last row among those kept (rows already in time order); -1 if none."""
     at = np.flatnonzero(keep)
@@ -128,12 +133,23 @@ def _last_in_group(group: np.ndarray, keep: np.ndarray, n_groups: int) -> np.nda
     return last
 
 
-def _last_usable(referred: pd.DataFrame, current: pd.MultiIndex) -> pd.DataFrame:
-    """Per pump: last reading of its current interval (flag), last usable eta/drain, case drain jump ratio."""
-    pumps = current.get_level_values(0)
+def _current_rows(pumps: pd.Index, interval: np.ndarray, fit_pumps: np.ndarray, fit_intervals: np.ndarray):
+    """Each pump's row among the fits (-1: none) whose interval is its ``interval``, as a MultiIndex of the fits'
+    keys would find it (get_indexer; the fits' pump intervals are unique): by the pumps' positions, no MultiIndex
+    built on either side."""
+    pos = pumps.get_indexer(fit_pumps)
+    match = np.flatnonzero((pos >= 0) & (fit_intervals == interval[np.maximum(pos, 0)]))
+    rows = np.full(len(pumps), -1, dtype=np.intp)
+    rows[pos[match]] = match
+    return rows
+
+
+def _last_usable(referred: pd.DataFrame, pumps: pd.Index, interval: np.ndarray) -> pd.DataFrame:
+    """Per pump (``pumps``, each in its current ``interval``): last reading of that interval (flag), last usable
+    eta/drain, case drain jump ratio."""
     n = len(pumps)
     pos = pumps.get_indexer(referred["pump_id"].to_numpy())
-    interval = np.asarray(current.get_level_values(1), dtype=np.int64)
+    interval = np.asarray(interval, dtype=np.int64)
     in_current = (pos >= 0) & (referred["interval_no"].to_numpy(np.int64) == interval[np.maximum(pos, 0)])
     rows = np.flatnonzero(in_current)
     rows = rows[np.lexsort((referred["taken_at"].to_numpy()[rows], pos[rows]))]  # stable: by pump, then time
@@ -178,13 +194,14 @@ def _latest_taken(referred: pd.DataFrame, pumps: pd.Index) -> pd.Series:
     return pd.Series(group_time_max(pos[known], taken.to_numpy()[known], len(pumps)), index=pumps)
 
 
-def _past_margin(fits: pd.DataFrame, limits: dict[str, np.ndarray], last: pd.DataFrame, pumps: pd.DataFrame):
+def _past_margin(fits: pd.DataFrame, limits: dict[str, np.ndarray], last: pd.DataFrame, eta_v_limit: np.ndarray,
+                 drain_limit_pct: np.ndarray):
     """How far beyond its limits a pump is, ln(value / limit) of the worst limit (fitted, else last reading)."""
     with np.errstate(divide="ignore", invalid="ignore"):
         slip = np.log(fits["slip_current_lpm"].to_numpy(float) / limits["slip"])
         drain = np.log(fits["drain_current_lpm"].to_numpy(float) / limits["drain"])
-        raw_slip = np.log((1.0 - last["last_eta_v_ref"].to_numpy(float)) / (1.0 - pumps["eta_v_limit"].to_numpy(float)))
-        raw_drain = np.log(last["last_drain_pct_ref"].to_numpy(float) / pumps["drain_limit_pct"].to_numpy(float))
+        raw_slip = np.log((1.0 - last["last_eta_v_ref"].to_numpy(float)) / (1.0 - eta_v_limit))
+        raw_drain = np.log(last["last_drain_pct_ref"].to_numpy(float) / drain_limit_pct)
     slip = np.where(fits["slip_enough_data"].to_numpy(bool), slip, raw_slip)
     drain = np.where(fits["drain_enough_data"].to_numpy(bool), drain, raw_drain)
     return np.fmax(slip, drain)
@@ -239,7 +256,8 @@ def _wear_law(cur: pd.DataFrame, member_weights: dict[str, np.ndarray]) -> dict[
 _DATING_COLUMNS = ["pump_id", "interval_no", "interval_hours", "taken_at"]  # what dates_at_hours reads
 
 
-def _crossing_passed(cur: pd.DataFrame, current_iv: pd.DataFrame, referred: pd.DataFrame) -> pd.DataFrame:
+def _crossing_passed(cur: pd.DataFrame, current_iv: pd.DataFrame, cur_interval: np.ndarray,
+                     referred: pd.DataFrame) -> pd.DataFrame:
     """For a pump whose trend is already past a limit: when its trend crossed it, estimated from its readings.
 
     crossed_limit names the limit crossed first; crossed_at_hours (hour meter) with _low/_high bounds at the
@@ -271,7 +289,7 @@ def _crossing_passed(cur: pd.DataFrame, current_iv: pd.DataFrame, referred: pd.D
     near = referred.loc[referred["pump_id"].isin(cur.index[past]).to_numpy(), _DATING_COLUMNS]
     # The three figures of every pump dated in one search.
     keys = pd.DataFrame({"pump_id": np.tile(cur.index.to_numpy(), 3),
-                         "interval_no": np.tile(current_iv["interval_no"].to_numpy(), 3)})
+                         "interval_no": np.tile(cur_interval, 3)})
     dates = dates_at_hours(near, keys, np.concatenate(hours), np.tile(per_day, 3)).to_numpy()
     for i, suffix in enumerate(suffixes):
         out[f"crossed_date{suffix}"] = dates[i * len(cur):(i + 1) * len(cur)]
@@ -314,11 +332,14 @@ def analyze_fleet(
     # The fits' figures as a narrow table (a few dozen columns) and the laws as arrays; the members' lines (most
     # of the columns of FleetAnalysis.fits) are framed only when that is read.
     fits, laws = fit_degradation(referred, s, pump_tab["kind"], shape_priors)
-    fit_pump = pump_tab.reindex(fits["pump_id"])
-    fits = summarise_fits(fits, fit_pump["rated_flow_lpm"].to_numpy(float), fit_pump["max_flow_lpm"].to_numpy(float), s)
-    limits = limit_flows_lpm(
-        fit_pump["eta_v_limit"], fit_pump["drain_limit_pct"], fit_pump["rated_flow_lpm"], fit_pump["max_flow_lpm"]
-    )
+    # The pump figures the limits read, as floats once; each fit row's pump's taken by position (NaN for a pump
+    # not in the table, as a reindex on the fits' pumps gives it).
+    limit_inputs = {c: pump_tab[c].to_numpy(float)
+                    for c in ("eta_v_limit", "drain_limit_pct", "rated_flow_lpm", "max_flow_lpm")}
+    fit_pump = {c: _at_positions(v, pump_tab.index.get_indexer(fits["pump_id"].to_numpy()))
+                for c, v in limit_inputs.items()}
+    fits = summarise_fits(fits, fit_pump["rated_flow_lpm"], fit_pump["max_flow_lpm"], s)
+    limits = limit_flows_lpm(**fit_pump)
     t = t_quantile(s.confidence, fits["slip_dof"].to_numpy(float))
     with np.errstate(invalid="ignore"):
         significant = fits["slip_b"].to_numpy(float) > t * np.sqrt(fits["slip_var_b"].to_numpy(float))
@@ -336,20 +357,23 @@ def analyze_fleet(
     fits = pd.concat([fits, hours_to_limits(fits, laws, limits, s), per_interval], axis=1)  # joined once
 
     # One row per pump: its current interval.
-    current_iv = intervals[intervals["is_current"]].set_index("pump_id").reindex(pump_tab.index)
-    current_iv["interval_no"] = current_iv["interval_no"].fillna(0).astype(np.int64)
-    cur_keys = pd.MultiIndex.from_arrays([pump_tab.index, current_iv["interval_no"]])
+    # By position, as intervals[is_current].set_index("pump_id").reindex(pump_tab.index) gives it (a pump has one
+    # current interval): its rows all NaN for a pump with none, its interval number then 0. (The pump_id column
+    # rides along, unread.)
+    iv_pos = pump_tab.index.get_indexer(intervals["pump_id"].to_numpy())
+    iv_current = np.flatnonzero(intervals["is_current"].to_numpy(bool) & (iv_pos >= 0))
+    iv_rows = np.full(len(pump_tab), -1, dtype=np.intp)
+    iv_rows[iv_pos[iv_current]] = iv_current
+    current_iv = intervals.set_axis(pd.RangeIndex(len(intervals))).reindex(iv_rows)
+    current_iv.index = pump_tab.index
+    cur_interval = current_iv["interval_no"].fillna(0).to_numpy().astype(np.int64)
     # Each pump's current interval's row of the fits (-1: none), and those rows (a missing one all NaN, as a
     # reindex on the keys gives it): taken by position, the fits are not indexed on their keys.
-    cur_rows = pd.MultiIndex.from_arrays([fits["pump_id"], fits["interval_no"]]).get_indexer(cur_keys)
-    cur = fits.set_axis(pd.RangeIndex(len(fits))).drop(columns=KEYS).reindex(cur_rows)
+    cur_rows = _current_rows(pump_tab.index, cur_interval, fits["pump_id"].to_numpy(), fits["interval_no"].to_numpy())
+    # (The keys' columns ride along, unread: dropping them would copy every block of the fits.)
+    cur = fits.set_axis(pd.RangeIndex(len(fits))).reindex(cur_rows)
     cur.index = pump_tab.index
-    cur_limits = {
-        q: limit_flows_lpm(
-            pump_tab["eta_v_limit"], pump_tab["drain_limit_pct"], pump_tab["rated_flow_lpm"], pump_tab["max_flow_lpm"]
-        )[q]
-        for q in ("slip", "drain")
-    }
+    cur_limits = limit_flows_lpm(**limit_inputs)
     for col in (
         "slip_enough_data",
         "drain_enough_data",
@@ -362,7 +386,7 @@ def analyze_fleet(
     ):
         if cur[col].dtype != bool:  # a pump without a fitted current interval: NaN rows
             cur[col] = _bools(cur[col])
-    last = _last_usable(referred, cur_keys)
+    last = _last_usable(referred, pump_tab.index, cur_interval)
     last.index = pump_tab.index
 
     # The pump rows gathered as one dict of columns (in the order they are shown) and framed once: a frame
@@ -380,7 +404,9 @@ def analyze_fleet(
         "hours_per_day",
     ):
         res[col] = cur[col]
-    res["governing_limit"] = res["governing_limit"].astype(object).where(res["governing_limit"].notna(), None)
+    governing = np.array(res["governing_limit"].to_numpy(), dtype=object)  # a copy: text, a missing one as None
+    governing[pd.isna(governing)] = None
+    res["governing_limit"] = pd.Series(governing, index=pump_tab.index, dtype=object)
     res["confidence"] = np.where(np.isfinite(res["hours_to_limit_low"]), s.confidence, np.nan)
     res["n_points"] = cur["slip_n_points"].fillna(0).astype(np.int64)
     res["n_drain_points"] = cur["drain_n_points"].fillna(0).astype(np.int64)
@@ -393,19 +419,20 @@ def analyze_fleet(
         res[f"{name}_hours_low"] = cur[f"{q}_hours_low"]
         res[f"{name}_hours_high"] = cur[f"{q}_hours_high"]
         res[f"{name}_note"] = cur[f"{q}_note"]
-    res["interval_no"] = current_iv["interval_no"]
+    res["interval_no"] = cur_interval
     res["interval_start"] = pd.to_datetime(current_iv["start_at"])
     res["interval_start_kind"] = current_iv["start_kind"]
     res["interval_hours"] = cur["current_hours"]
     res["last_reading_at"] = _latest_taken(referred, pump_tab.index)
-    res["days_since_reading"] = (now - res["last_reading_at"]).dt.total_seconds() / 86400.0
+    res["days_since_reading"] = days_since(res["last_reading_at"].to_numpy(), now)
     res["installed"] = pump_tab["machine_id"].notna() if "machine_id" in pump_tab else True
     res.update(last.items())
     # With too little for a trend, the current value is the last usable reading's; *_source says which.
     for col, last_col in (("eta_v_ref", "last_eta_v_ref"), ("drain_pct_ref", "last_drain_pct_ref")):
-        from_trend = res[col].notna()
-        res[f"{col}_source"] = np.where(from_trend, "trend", np.where(res[last_col].notna(), "last_reading", None))
-        res[col] = res[col].where(from_trend, res[last_col])
+        trend_value, last_value = res[col].to_numpy(), res[last_col].to_numpy()  # both on the pumps' index
+        from_trend = ~pd.isna(trend_value)
+        res[f"{col}_source"] = np.where(from_trend, "trend", np.where(~pd.isna(last_value), "last_reading", None))
+        res[col] = np.where(from_trend, trend_value, last_value)
     for col in (
         "eta_v_limit",
         "drain_limit_pct",
@@ -428,8 +455,9 @@ def analyze_fleet(
         res[dst] = limit_dates(res["last_reading_at"], res[src], res["hours_per_day"]).to_numpy()
 
     res.update(_wear_law(cur, {q: _rows_of(laws[q].weight, cur_rows) for q in QUANTITIES}))
-    res.update(_crossing_passed(cur, current_iv, referred).items())
-    res["past_margin"] = _past_margin(cur, cur_limits, last, pump_tab)
+    res.update(_crossing_passed(cur, current_iv, cur_interval, referred).items())
+    res["past_margin"] = _past_margin(cur, cur_limits, last, limit_inputs["eta_v_limit"],
+                                    limit_inputs["drain_limit_pct"])
     res["data_note"] = _data_note(res, current_iv, cur, s)
 
     # Oil condition and the cost of leakage.
@@ -454,21 +482,38 @@ def analyze_fleet(
     # Fleet life figures: the separate, labelled prior.
     kind_of = pump_tab["kind"]
     fleet_priors = fit_priors(intervals, kind_of, s) if priors is None else priors.copy()
-    res["age_hours"] = np.where(
-        current_iv["interval_no"] == 0, current_iv["last_hours"], current_iv["last_hours"] - current_iv["start_hours"]
-    )
-    # A column already on the pumps' index goes in as its array: no alignment per column (object columns stay
-    # Series, which keep their dtype where an array of text would be read as strings).
-    res = pd.DataFrame({k: v.array if isinstance(v, pd.Series) and v.dtype != object and v.index.equals(pump_tab.index)
-                        else v for k, v in res.items()}, index=pump_tab.index)
+    last_hours = current_iv["last_hours"].to_numpy()
+    res["age_hours"] = np.where(cur_interval == 0, last_hours, last_hours - current_iv["start_hours"].to_numpy())
+    # The priors and the status read the columns as the frame will hold them, and the pump rows are framed once,
+    # in the order shown: a frame read column by column and grown by the priors' and the status' columns pays
+    # pandas' lookup and insert for each, on every call.
+    res = {k: _as_column(v, pump_tab.index) for k, v in res.items()}
     fleet_priors = apply_priors(res, fleet_priors, now)
-
     status = assess_status(res, now, s)
-    res = pd.concat([res, status.set_axis(res.index)], axis=1)
-    res.index.name = "pump_id"
+    res.update((k, v.array if v.dtype != object else v.to_numpy()) for k, v in status.items())
     first_cols = ["rank", "pump", "kind", "status", "reasons"]
-    res = res[first_cols + [c for c in res.columns if c not in first_cols]]
+    order = first_cols + [c for c in res if c not in first_cols]
+    res = pd.DataFrame({k: res[k] for k in order}, index=pump_tab.index.rename("pump_id"))
     return FleetAnalysis(res, referred, fits, laws, fleet_priors, intervals, s)
+
+
+def _as_column(value, index: pd.Index):
+    """One of the pump rows' columns as the frame on ``index`` will hold it, read the same before it is framed: a
+    Series of numbers, flags or times as its array (on the pumps' index already: no alignment), text or other
+    objects as pandas infers their dtype (an object array of text is read as strings; missing then NaN, not
+    None), a single value repeated on every row."""
+    if isinstance(value, pd.Series):
+        if not value.index.equals(index):
+            value = value.reindex(index)  # aligned, as the frame would
+        if value.dtype == object:
+            return value  # object columns keep their dtype
+        return value.to_numpy() if isinstance(value.dtype, np.dtype) else value.array
+    if isinstance(value, np.ndarray) and value.dtype != object:
+        return value
+    if isinstance(value, bool | float):
+        return np.full(len(index), value)
+    inferred = pd.Series(value, index=index)
+    return inferred if inferred.dtype == object else inferred.array
 
 
 def fit_priors(intervals: pd.DataFrame, kind_of_pump: pd.Series, settings: AnalysisSettings) -> pd.DataFrame:

@@ -96,7 +96,7 @@ def wear_shape_sentence(law: str, weights: dict | None, power: float) -> str:
     return shape + how_sure + "."
 
 
-def _days_since(last_at: np.ndarray, now) -> np.ndarray:
+def days_since(last_at: np.ndarray, now) -> np.ndarray:
     """Days from each time to ``now`` (NaN for a missing time), as (now - times).dt.total_seconds() / 86400 gives
     them: the difference taken by numpy in the finer unit of the two (as pandas takes it), its seconds by pandas'
     own TimedeltaArray, with no Series around it."""
@@ -117,7 +117,7 @@ def horizon_remaining_hours(results: Mapping, now) -> tuple[np.ndarray, np.ndarr
 def _horizon_hours(per_day, last_at, hours_to_limit, horizon_weeks, now) -> tuple[np.ndarray, np.ndarray]:
     """horizon_remaining_hours on the columns' arrays."""
     per_day = np.where(np.isfinite(per_day) & (per_day > 0), per_day, FALLBACK_HOURS_PER_DAY)
-    since_days = _days_since(last_at, now)
+    since_days = days_since(last_at, now)
     since_days = np.where(np.isfinite(since_days), np.maximum(since_days, 0.0), 0.0)
     left = hours_to_limit - per_day * since_days
     horizon = horizon_weeks * 7.0 * per_day
