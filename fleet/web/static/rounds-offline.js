@@ -3,11 +3,11 @@
    With signal the form posts to the server as it does without script. "Signal" means the server answers: the
    browser's navigator.onLine says only that some network is there (a plant's Wi-Fi with no way to the server says
    true, and so does a page opened from this device's copy), so before the form goes, the server is asked
-   (reachable); if it does not answer, the reading is kept here as with no network at all. With none, the checks that can run here
-   do (from the server's own rules, fetched as data from /rounds/<id>/rules.json), and the reading waits on this
-   device (IndexedDB) under an id made here. When the connection is back each waiting reading is sent to
-   POST /api/readings with that id as client_id, so sending twice never stores twice; the server's answer is
-   shown beside it. */
+   (reachable); if it does not answer, the reading is kept here as with no network at all. With none, the checks
+   that can run here do (from the server's own rules, fetched as data from /rounds/<id>/rules.json), and the
+   reading waits on this device (IndexedDB) under an id made here. When the connection is back each waiting
+   reading is sent to POST /api/readings with that id as client_id, so sending twice never stores twice; the
+   server's answer is shown beside it. */
 (function () {
   "use strict";
 
