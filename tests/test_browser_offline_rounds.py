@@ -153,7 +153,8 @@ def test_a_browser_that_claims_signal_keeps_the_reading_when_the_server_does_not
     browser_login("technician")
     context.add_init_script("Object.defineProperty(Navigator.prototype, 'onLine', {get: () => true});")
     _open_route_then_lose_signal(page, context, base_url, "Wi-Fi without a way out")
-    page.reload()  # the page as the device keeps it, with the browser saying it is online
+    page.goto(page.url.split("?")[0] + "?stop=1")  # the stop as the device keeps it; the browser says online
+    page.wait_for_selector(f"text=Stop 1 of 1: pump {FIRST}")
     assert page.evaluate("navigator.onLine") is True
     values = _facts(demo_db, FIRST)
     _fill(page, values)
