@@ -88,9 +88,9 @@ def child_analysis(url: str) -> dict:
     part by part into files, the parts in $FLEET_ANALYSIS_WORKERS processes, each part stored in its own write as
     soon as it is computed while the workers go on, then the fleet's refit and service order in one more write.
 
-    Peak memory is the largest sum of the PSS of this process and all its descendants (the fork server and the
-    workers) sampled every 0.5 s (benchmarks/tree_memory.py): PSS counts the library pages the workers share with
-    the fork server once in all. Beside it, the same samples' RSS sum (shared pages once per process) and each
+    Peak memory is the largest sum of the PSS of this process and all its descendants (the workers, forked from
+    it, or the fork server and its workers) sampled every 0.5 s by a watcher process (benchmarks/tree_memory.py):
+    PSS counts the library pages the workers share with the process they were forked from once in all. Beside it, the same samples' RSS sum (shared pages once per process) and each
     process's own high-water mark (VmHWM, RSS): this process's, and the largest of the workers' (each takes parts
     until none is left)."""
     from benchmarks.tree_memory import TreeMemory
@@ -114,7 +114,8 @@ def child_analysis(url: str) -> dict:
     return {"seconds": seconds, "compute_s": marks["computed"] - started, "peak_mb": memory.peak_pss_mb,
             "peak_rss_sum_mb": memory.peak_rss_mb, "processes_at_peak": memory.processes_at_peak,
             "own_peak_mb": own_mb, "worker_peak_mb": max(worker_mb, default=0.0),
-            "worker_processes": len(worker_mb), "workers": workers, "start_mb": start_mb, "pumps": summary.pumps,
+            "worker_processes": len(worker_mb), "workers": workers, "forked": marks["forked"], "start_mb": start_mb,
+            "pumps": summary.pumps,
             "by_status": summary.by_status}
 
 
@@ -493,6 +494,7 @@ def run(size_name: str, work: Path, database: str | None = None, workers: int | 
                     "analysis_peak_rss_sum_mb": analysis["peak_rss_sum_mb"],
                     "analysis_worker_peak_mb": analysis["worker_peak_mb"],
                     "analysis_worker_processes": analysis["worker_processes"],
+                    "analysis_workers_forked": analysis["forked"],
                     "analysis_start_mb": analysis["start_mb"], "analysis_by_status": analysis["by_status"],
                     "analysis_pumps": analysis["pumps"], "load_floor_rows": load["rows"],
                     "load_floor_s": load["seconds"], "load_floor_peak_mb": load["peak_mb"],
@@ -534,7 +536,8 @@ def table(figures: dict) -> str:
          f"RSS summed "
          f"{figures['analysis_peak_rss_sum_mb']:,.0f} MB; main's own peak {figures['analysis_own_peak_mb']:,.0f} MB, "
          f"a worker's "
-         f"{figures['analysis_worker_peak_mb']:,.0f} MB ({figures['analysis_worker_processes']} worker processes)",
+         f"{figures['analysis_worker_peak_mb']:,.0f} MB ({figures['analysis_worker_processes']} worker processes, "
+         f"{'forked from it' if figures['analysis_workers_forked'] else 'from the fork server'})",
          f"target <= {TARGETS['analysis_peak_mb']:,.0f} MB"),
         ("service list page, median of 20", f"{figures['service_list_ms']:.0f} ms", "",
          f"target <= {TARGETS['service_list_ms']:.0f} ms"),

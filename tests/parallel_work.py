@@ -16,8 +16,8 @@ def released_by_the_caller(session, number: int, folder: str) -> int:
     return number
 
 
-def number_and_process(session, number: int) -> tuple[int, int]:
-    """The number given and the process that took it."""
+def number_process_and_parent(session, number: int) -> tuple[int, int, int]:
+    """The number given, the process that took it and that process's parent."""
     import os
 
-    return number, os.getpid()
+    return number, os.getpid(), os.getppid()

@@ -6,7 +6,13 @@ to the workers; SQLite, or PostgreSQL when FLEET_TEST_DATABASE_URL is set (each 
 """
 
 import datetime as dt
+import json
 import os
+import subprocess
+import sys
+import textwrap
+import threading
+from pathlib import Path
 
 import pytest
 from click.testing import CliRunner
@@ -18,7 +24,7 @@ from fleet.services.analysis.parallel import WORKERS_ENV, shareable, worker_coun
 from fleet.trend.settings import AnalysisSettings
 from tests.frame_compare import plain as _plain
 from tests.frame_compare import same_frames
-from tests.parallel_work import number_and_process, released_by_the_caller
+from tests.parallel_work import number_process_and_parent, released_by_the_caller
 
 NOW = dt.datetime(2026, 12, 1, 12)
 PART = 7  # 41 demo pumps: six parts of 6 or 7 (compute.part_ids)
@@ -123,44 +129,58 @@ def test_parts_cut_even_and_a_multiple_of_the_workers():
             assert len(parts) % workers == 0 or len(parts) == pumps
         else:
             assert len(parts) == fewest
-        # The first part computed by the caller's process while the workers start: one more than a multiple.
-        first_here = compute_module.part_ids(ids, size, workers, first_here=True)
-        assert [pump for part in first_here for pump in part] == ids
-        sizes = [len(part) for part in first_here]
-        assert all(0 < n <= size for n in sizes) and max(sizes, default=0) - min(sizes, default=0) <= 1
-        if workers > 1 and fewest > 1:
-            assert (len(first_here) - 1) % workers == 0 or len(first_here) == pumps
-            assert fewest <= len(first_here) < fewest + workers
-        else:
-            assert len(first_here) == fewest
     assert len(compute_module.part_ids(list(range(10_000)), 400, 2)) == 26  # 25 parts of 400 before
-    assert len(compute_module.part_ids(list(range(10_000)), 400, 2, first_here=True)) == 25  # 1 here, 12 each
 
 
-def test_while_the_workers_start_this_process_works_the_first_part_and_every_part_is_done_once(demo_db):
-    # Common practice, no source: every part once and in the order given, the first by this process, the rest by
-    # the workers (each noting its peak memory).
-    from fleet.services.analysis.parallel import _each
+def test_workers_are_forked_from_this_process_only_when_no_other_thread_runs(demo_db):
+    # Common practice, no source: a lock another thread holds at a fork stays held in the child, so with a second
+    # thread running the workers come from the fork server (or fresh interpreters), whose parent is not this one.
+    from fleet.services.analysis.parallel import _each, fork_ready
 
-    here_pid = os.getpid()
-    for count in (1, 2, 5):
-        peaks: dict[int, float] = {}
-        answers = list(_each(number_and_process, demo_db.url, [(n,) for n in range(count)], 2, peaks,
-                             here=lambda number: (number, here_pid)))
-        assert [number for number, _ in answers] == list(range(count))
-        assert [pid == here_pid for _, pid in answers] == [True] + [False] * (count - 1)
-        workers = {pid for _, pid in answers[1:]}  # each run's own pool: at most its 2 workers
-        assert set(peaks) == workers and len(workers) <= 2 and all(peak > 0 for peak in peaks.values())
+    release = threading.Event()
+    other = threading.Thread(target=release.wait, daemon=True)
+    other.start()
+    try:
+        assert not fork_ready()
+        answers = list(_each(number_process_and_parent, demo_db.url, [(n,) for n in range(4)], 2, None, fork=True))
+    finally:
+        release.set()
+        other.join()
+    assert [number for number, _, _ in answers] == [0, 1, 2, 3]
+    assert all(pid != os.getpid() and parent != os.getpid() for _, pid, parent in answers)
 
 
-def test_a_part_failing_in_this_process_fails_the_run_and_stops_the_workers(demo_db):
-    from fleet.services.analysis.parallel import _each
+def test_a_full_analysis_in_a_process_of_one_thread_forks_its_workers_and_stores_what_one_process_stores(
+        demo_db, monkeypatch):
+    # The run goes in a fresh Python process, as `fleet analyze` runs (this test process may hold other threads);
+    # the one-process run here is the reference.
+    monkeypatch.setattr(compute_module, "CHUNK_PUMPS", PART)
+    reanalyse(demo_db.sessions, now=NOW, workers=1)
+    with demo_db.sessions() as session:
+        serial = analysis_records(session)
+    script = textwrap.dedent(f"""
+        import json, os
+        from fleet.db.engine import make_engine, make_session_factory
+        from fleet.services.analysis import compute, parallel, refresh
+        from tests.parallel_work import number_process_and_parent
 
-    def failing(number):
-        raise ValueError(f"part {number}: no such pump")
-
-    with pytest.raises(ValueError, match="part 0: no such pump"):
-        list(_each(number_and_process, demo_db.url, [(n,) for n in range(6)], 2, None, here=failing))
+        compute.CHUNK_PUMPS = {PART}
+        parents = {{parent for _, _, parent in parallel._each(number_process_and_parent, {demo_db.url!r},
+                                                             [(n,) for n in range(4)], 2, None, fork=True)}}
+        engine = make_engine({demo_db.url!r})
+        marks = {{}}
+        summary = refresh.fleet_afresh(make_session_factory(engine), now={NOW!r}, workers=2, marks=marks)
+        print(json.dumps({{"forked": marks["forked"], "workers": len(marks["worker_peaks_mb"]),
+                          "parents_are_me": parents == {{os.getpid()}}, "pumps": summary.pumps}}))
+    """)
+    done = subprocess.run([sys.executable, "-c", "import datetime\n" + script], capture_output=True, text=True,
+                          cwd=Path(__file__).parent.parent, timeout=300)
+    assert done.returncode == 0, done.stderr
+    said = json.loads(done.stdout.strip().splitlines()[-1])
+    assert said == {"forked": True, "workers": 2, "parents_are_me": True, "pumps": 41}
+    with demo_db.sessions() as session:
+        pooled = analysis_records(session)
+    assert [_plain(record) for record in pooled] == [_plain(record) for record in serial]
 
 
 def test_the_fork_server_preloads_the_dialect_of_the_database_it_serves():

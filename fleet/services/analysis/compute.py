@@ -22,18 +22,15 @@ Progress = Callable[[int, int, str], None]
 CHUNK_PUMPS = 400  # pumps analysed at once in a full refresh: bounds its memory (measured in benchmarks/run.py)
 
 
-def part_ids(ids: list[int], chunk_pumps: int, workers: int = 1, first_here: bool = False) -> list[list[int]]:
+def part_ids(ids: list[int], chunk_pumps: int, workers: int = 1) -> list[list[int]]:
     """``ids`` cut in order into parts of at most ``chunk_pumps``, their sizes as even as can be (they differ by one
     at most), and with ``workers`` > 1 as many parts as a multiple of ``workers``: the workers then run out of parts
-    together, where 25 parts of 400 left one worker alone with the last part while the other core stood idle.
-    With ``first_here`` (the caller's process computes the first part while the workers start,
-    fleet.services.analysis.parallel), one part more than a multiple of ``workers``."""
+    together, where 25 parts of 400 left one worker alone with the last part while the other core stood idle."""
     if not ids:
         return []
     count = -(-len(ids) // chunk_pumps)
     if workers > 1 and count > 1:
-        first = 1 if first_here else 0
-        count = min(first + -(-(count - first) // workers) * workers, len(ids))
+        count = min(-(-count // workers) * workers, len(ids))
     return [ids[n * len(ids) // count:(n + 1) * len(ids) // count] for n in range(count)]
 
 

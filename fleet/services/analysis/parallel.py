@@ -1,24 +1,24 @@
 """Run the parts of a full analysis in worker processes, so a fleet run uses every core of the server.
 
-Workers are forked from a server process ('forkserver') that was started fresh and has imported the analysis's
-libraries once, before any database was opened: nothing of the parent's engine, pool or connections crosses
-into a worker (a connection shared across fork corrupts both ends), and the libraries' memory (about 190 MB of
-numpy, pandas, scipy and SQLAlchemy) is shared between the workers until one writes to it, instead of loaded
-again by each. Each worker analyses part after part until none is left: a fresh fork per part paid for its heap's
-page faults and its engine's SQL compilation anew each time (about half a second of CPU in a part of 3 s, measured
-on the benchmark's fleet), and a worker's memory stays near one part's whatever the number of parts. A worker makes
-its engine from the database URL once (the compiled statements cached with it), reads each part of the pumps in a
-read transaction of its own, with the engine's connections closed again after each part, runs the engine and
-writes the part to its file (fleet.services.analysis.spool), sending back only the file's name. The parent reads
-the data versions before any worker starts, so a write landing meanwhile leaves its pump stale, never hidden, and
-takes each part as soon as it is written (to store it while the workers go on). The fork server's imports take
-seconds in which no worker computes; a full analysis (fleet.services.analysis.refresh.fleet_afresh) has the parent,
-which has those libraries imported already, spool the first part itself meanwhile (_each's ``here``). A worker
-gives back the memory Arrow kept of a part before its next (_give_back_memory), and the parent its heap too
-after its own parts: the run's peak is the sum over its processes.
+A full analysis (fleet.services.analysis.refresh.fleet_afresh) forks its workers from its own process ('fork'),
+which has the analysis's libraries imported already: the workers start at once and share those pages (about 190 MB
+of numpy, pandas, scipy and SQLAlchemy) until one writes to them. It forks only where that is safe: the caller has
+closed every connection of its engine first (a connection shared across fork corrupts both ends; SQLite keeps its
+locks per process) and runs no other thread (a lock another thread held at the fork stays held in the child for
+good); otherwise (fork_ready false, or another caller) the workers are forked from a server process that was
+started fresh and imports the libraries once ('forkserver'; seconds in which no worker computes), and where
+neither exists they are fresh interpreters ('spawn'). Each worker analyses part after part until none is left: a
+fresh fork per part paid for its heap's page faults and its engine's SQL compilation anew each time (about half a
+second of CPU in a part of 3 s, measured on the benchmark's fleet), and a worker's memory stays near one part's
+whatever the number of parts. A worker makes its engine from the database URL once (the compiled statements cached
+with it), reads each part of the pumps in a read transaction of its own, with the engine's connections closed
+again after each part, runs the engine and writes the part to its file (fleet.services.analysis.spool), sending
+back only the file's name. The parent reads the data versions before any worker starts, so a write landing
+meanwhile leaves its pump stale, never hidden, and takes each part as soon as it is written (to store it while the
+workers go on). A worker gives back the memory Arrow kept of a part before its next (_give_back_memory): the
+run's peak is the sum over its processes.
 """
 
-import ctypes
 import multiprocessing
 import os
 import sys
@@ -99,7 +99,7 @@ def _in_worker(url: str, work, *arguments):
     finally:
         engine.dispose()  # no connection held between parts; the engine keeps its compiled statements
     peak = peak_resident_mb()
-    _give_back_memory(heap=False)  # the worker waits for its next part, or for the end, without Arrow's spare pages
+    _give_back_memory()  # the worker waits for its next part, or for the end, without Arrow's spare pages
     return done, os.getpid(), peak
 
 
@@ -108,11 +108,23 @@ def _preload(url: str) -> list[str]:
     return [*PRELOAD, make_url(url).get_dialect().__module__]
 
 
-def _pool(workers: int, parts: int, url: str) -> ProcessPoolExecutor:
-    """Up to ``workers`` processes forked from the preloaded fork server where there is one (Linux), each taking
-    parts until none is left; elsewhere fresh interpreters ('spawn'). The fork server is this process's one, started
-    by its first pool: a later pool's workers open another kind of database with its dialect imported by each."""
-    if "forkserver" in multiprocessing.get_all_start_methods():
+def fork_ready() -> bool:
+    """Whether workers can be forked from this process: the platform forks ('fork' is a start method) and this
+    process runs no thread but the one asking. The caller must also hold no database connection open (dispose its
+    engine) before the workers start."""
+    return "fork" in multiprocessing.get_all_start_methods() and threading.active_count() == 1
+
+
+def _pool(workers: int, parts: int, url: str, fork: bool = False) -> ProcessPoolExecutor:
+    """Up to ``workers`` processes, each taking parts until none is left: with ``fork`` (the caller disposed its
+    engine) and where fork_ready, forked from this process at the pool's first submit, all at once, before the
+    pool's own thread starts; else forked from the preloaded fork server (Linux), else fresh interpreters
+    ('spawn'). The fork server is this process's one, started by its first pool: a later pool's workers open
+    another kind of database with its dialect imported by each."""
+    methods = multiprocessing.get_all_start_methods()
+    if fork and fork_ready():
+        context = multiprocessing.get_context("fork")
+    elif "forkserver" in methods:
         context = multiprocessing.get_context("forkserver")
         context.set_forkserver_preload(_preload(url))
     else:
@@ -121,46 +133,12 @@ def _pool(workers: int, parts: int, url: str) -> ProcessPoolExecutor:
 
 
 def _each(work, url: str, arguments: list[tuple], workers: int, peaks_mb: dict[int, float] | None,
-          here=None) -> Iterator:
-    """``work(session, *each)`` for each of ``arguments`` in the workers; each answer given back, in the order
-    given, as soon as it and those before it are done, while the workers go on with the rest.
-
-    ``here`` (``here(*each)``, the same work in this process), when given, works the first of the arguments in
-    this process while a helper thread hands the rest to the pool, whose first submit waits seconds for the fork
-    server to import its libraries (which this process has already): no core waits for the imports. One only: a
-    second would run beside the workers' first parts, three parts' memory at once (the run's peak is the sum over
-    its processes). This process gives its memory back to the system after it (_give_back_memory)."""
-    with _pool(workers, len(arguments), url) as pool:
-        if here is None:
-            yield from _answers(pool, [pool.submit(_in_worker, url, work, *each) for each in arguments], peaks_mb)
-            return
-        futures: list = []
-        failed: list[BaseException] = []
-        stop = threading.Event()
-
-        def hand_over() -> None:
-            try:
-                for each in arguments[1:]:
-                    if stop.is_set():
-                        return
-                    futures.append(pool.submit(_in_worker, url, work, *each))
-            except BaseException as error:  # raised in the caller's thread, after the part computed here
-                failed.append(error)
-
-        starter = threading.Thread(target=hand_over, name="fleet-analysis-workers", daemon=True)
-        starter.start()
-        try:
-            yield here(*arguments[0])
-            _give_back_memory()
-            starter.join()
-            if failed:
-                raise failed[0]
-        except BaseException:  # the part failed here, or the caller stopped taking answers: the rest is not wanted
-            stop.set()
-            starter.join()
-            pool.shutdown(wait=True, cancel_futures=True)
-            raise
-        yield from _answers(pool, futures, peaks_mb)
+          fork: bool = False) -> Iterator:
+    """``work(session, *each)`` for each of ``arguments`` in the workers (forked from this process with ``fork``,
+    _pool); each answer given back, in the order given, as soon as it and those before it are done, while the
+    workers go on with the rest. Every part is submitted at once, from the caller's thread."""
+    with _pool(workers, len(arguments), url, fork) as pool:
+        yield from _answers(pool, [pool.submit(_in_worker, url, work, *each) for each in arguments], peaks_mb)
 
 
 def _answers(pool: ProcessPoolExecutor, futures: list, peaks_mb: dict[int, float] | None) -> Iterator:
@@ -177,24 +155,15 @@ def _answers(pool: ProcessPoolExecutor, futures: list, peaks_mb: dict[int, float
         raise
 
 
-def _give_back_memory(heap: bool = True) -> None:
-    """Hand the memory a part freed back to the system: Arrow's pool keeps what it freed for its next allocation
-    (about 60 MB after a part of the benchmark's fleet), and with ``heap`` glibc's heap its free pages (malloc_trim,
-    a few milliseconds; nothing on another C library). A full analysis's peak memory is the sum over its processes
-    at one moment, so neither a worker between parts nor this process, storing while the workers compute, should
-    hold more than it uses. A worker keeps its heap (``heap=False``): faulting the pages in again costs its next
-    part about 50 ms of CPU (3 %), where Arrow's pool comes back for nothing measurable. A part leaves no garbage in
-    cycles worth a collection (0.1 s)."""
+def _give_back_memory() -> None:
+    """Hand back to the system the memory Arrow's pool keeps of a part for its next allocation (about 60 MB after a
+    part of the benchmark's fleet): a full analysis's peak memory is the sum over its processes at one moment, so a
+    worker between parts should not hold more than it uses. The worker keeps its heap (no malloc_trim): faulting
+    the pages in again cost its next part about 50 ms of CPU (3 %), where Arrow's pool comes back for nothing
+    measurable. A part leaves no garbage in cycles worth a collection (0.1 s)."""
     arrow = sys.modules.get("pyarrow")  # only where the part's work imported it
     if arrow is not None:
         arrow.default_memory_pool().release_unused()
-    if not heap:
-        return
-    try:
-        trim = ctypes.CDLL(None).malloc_trim
-    except (OSError, AttributeError):  # not glibc
-        return
-    trim(0)
 
 
 def parts_in_workers(url: str, id_parts: list[list[int]], now: datetime, settings: AnalysisSettings, workers: int,
@@ -205,10 +174,9 @@ def parts_in_workers(url: str, id_parts: list[list[int]], now: datetime, setting
 
 def spool_in_workers(url: str, id_parts: list[list[int]], paths: list[Path], now: datetime,
                      settings: AnalysisSettings, workers: int, peaks_mb: dict[int, float] | None = None,
-                     here=None) -> Iterator[PartSummary]:
-    """Each list of pump ids analysed in one of ``workers`` processes and written to its path
-    (fleet.services.analysis.spool.spool_part); their summaries in the order given, each as soon as it is done.
-    ``here(ids, now, settings, path)``, when given, spools the first part in this process while the workers start
-    (_each)."""
+                     fork: bool = False) -> Iterator[PartSummary]:
+    """Each list of pump ids analysed in one of ``workers`` processes (forked from this one with ``fork``: the
+    caller holds no connection open, _pool) and written to its path (fleet.services.analysis.spool.spool_part);
+    their summaries in the order given, each as soon as it is done."""
     return _each(spool_part, url, [(ids, now, settings, path) for ids, path in zip(id_parts, paths, strict=True)],
-                 workers, peaks_mb, here)
+                 workers, peaks_mb, fork)

@@ -92,24 +92,33 @@ def fleet_afresh(sessions: sessionmaker[Session], now: datetime | None = None, s
     checked in one more: no process holds the whole fleet's results, and no writer waits on more than one part.
 
     With ``workers`` > 1 the workers compute the next parts while this process stores the last, each in its own read
-    transaction; this process computes the first part itself (in a read transaction of its own) while the
-    workers start, in the seconds the fork server takes to import the libraries this process has already
-    (fleet.services.analysis.parallel). ``fleet analyze`` runs so; a web server's bring_up_to_date runs the parts in
-    its own process (one worker) anyway. In this process alone (one worker, or a private database) the parts are
-    computed in one read transaction first and stored after it. The data versions are read before any part: a write
-    landing meanwhile leaves its pump stale, and a part never overwrites a newer stored analysis. A run cut short
-    keeps the parts it stored, each whole; the rest keep their analysis until the next run. ``progress(pumps stored,
-    pumps, label)`` after each part; ``marks`` (for a benchmark), when given, gets the moment the last part was
-    computed ("computed", time.perf_counter) and the workers' peak memory ("worker_peaks_mb").
+    transaction. Where this process runs no other thread (``fleet analyze``), its engine's connections are closed
+    and the workers forked from it, so they start at once with the libraries it has imported
+    (fleet.services.analysis.parallel). A web server's bring_up_to_date runs the parts in its own process (one
+    worker) anyway. In this process alone (one worker, or a private database) the parts are computed in one read
+    transaction first and stored after it. The data versions are read before any part: a write landing meanwhile
+    leaves its pump stale, and a part never overwrites a newer stored analysis. A run cut short keeps the parts it
+    stored, each whole; the rest keep their analysis until the next run. ``progress(pumps stored, pumps, label)``
+    after each part; ``marks`` (for a benchmark), when given, gets the moment the last part was computed
+    ("computed", time.perf_counter), the workers' peak memory ("worker_peaks_mb") and whether they were forked from
+    this process ("forked").
     """
     settings = settings or AnalysisSettings()
     with spool_folder() as folder:
         with sessions() as session, session.begin():
-            plan = plan_fleet(session, folder, now, settings, workers, first_here=True)
+            plan = plan_fleet(session, folder, now, settings, workers)
+            engine = session.get_bind()
             computed = None if plan.url else list(spool_parts(session, plan, settings))
+        fork = False
+        if computed is None:
+            from fleet.services.analysis.parallel import fork_ready
+
+            fork = fork_ready()
+            if fork:
+                engine.dispose()  # no connection of this process is open when the workers are forked from it
         if computed is not None and marks is not None:
             marks["computed"] = time.perf_counter()
-        parts = spool_parts(None, plan, settings, sessions) if computed is None else (part for part in computed)
+        parts = spool_parts(None, plan, settings, fork) if computed is None else (part for part in computed)
         stored = StoredParts()
         with closing(parts):  # a store failing stops the workers: the parts left are not wanted
             for number, part in enumerate(parts, start=1):
@@ -122,6 +131,7 @@ def fleet_afresh(sessions: sessionmaker[Session], now: datetime | None = None, s
         if marks is not None:
             marks.setdefault("computed", time.perf_counter())  # a fleet without pumps
             marks["worker_peaks_mb"] = plan.worker_peaks_mb
+            marks["forked"] = fork
         return run_write(sessions, lambda session: finish_fleet(session, stored, plan.computed_at, settings),
                          exclusive=STORE_LOCK)
 

@@ -15,11 +15,10 @@ with the next). The folder is removed when the caller is done with it.
 import pickle
 import shutil
 import tempfile
-from collections.abc import Callable, Iterable, Iterator
+from collections.abc import Iterable, Iterator
 from contextlib import contextmanager
 from dataclasses import dataclass, field
 from datetime import datetime
-from functools import partial
 from pathlib import Path
 
 import orjson
@@ -123,43 +122,34 @@ def spool_folder() -> Iterator[Path]:
 
 
 def plan_fleet(session: Session, folder: Path, now: datetime | None = None, settings: AnalysisSettings | None = None,
-               workers: int = 1, chunk_pumps: int | None = None, first_here: bool = False) -> FleetPlan:
+               workers: int = 1, chunk_pumps: int | None = None) -> FleetPlan:
     """Read the data versions (first: the data read next is at least this new) and cut the fleet into parts, each
     with its file in ``folder`` (spool_folder); with ``workers`` > 1 and a database other processes can open, the
-    parts go to that many worker processes, and with ``first_here`` the first part to this process while they start
-    (spool_parts with ``sessions``: one part more than a multiple of the workers, compute.part_ids)."""
+    parts go to that many worker processes (as many parts as a multiple of theirs, compute.part_ids)."""
     computed_at = now or utcnow()
     versions = data_versions(session)
     ids = list(session.scalars(select(Pump.id).order_by(Pump.id)))
     chunk_pumps = chunk_pumps or compute_module.CHUNK_PUMPS
     url = _shared_url(session) if workers > 1 and len(ids) > chunk_pumps else None
-    id_parts = part_ids(ids, chunk_pumps, workers if url is not None else 1, first_here)
+    id_parts = part_ids(ids, chunk_pumps, workers if url is not None else 1)
     paths = [folder / f"part-{number:05d}.pickle" for number in range(len(id_parts))]
     return FleetPlan(computed_at, versions, id_parts, paths, url, workers, len(ids))
 
 
 def spool_parts(session: Session | None, plan: FleetPlan, settings: AnalysisSettings,
-                sessions: Callable[[], Session] | None = None) -> Iterable[PartSummary]:
+                fork: bool = False) -> Iterable[PartSummary]:
     """Each part of ``plan`` analysed and written to its file, each given back as soon as it is written: by the
     workers (which read committed data in transactions of their own, so ``session`` may be None and the caller free
-    to store the parts meanwhile), else in ``session``'s read transaction, one after another, in the plan's order.
-    With workers and ``sessions`` (a session factory), this process spools the first part itself, in a read
-    transaction of its own, while the workers start (fleet.services.analysis.parallel._each); it comes first."""
+    to store the parts meanwhile; forked from this process with ``fork``, for a caller that holds no connection
+    open: fleet.services.analysis.parallel), else in ``session``'s read transaction, one after another, in the
+    plan's order."""
     if plan.url is not None:
         from fleet.services.analysis.parallel import spool_in_workers
 
-        here = None if sessions is None else partial(_spool_here, sessions)
         return spool_in_workers(plan.url, plan.id_parts, plan.paths, plan.computed_at, settings, plan.workers,
-                                plan.worker_peaks_mb, here)
+                                plan.worker_peaks_mb, fork)
     return (spool_part(session, part, plan.computed_at, settings, path)
             for part, path in zip(plan.id_parts, plan.paths, strict=True))
-
-
-def _spool_here(sessions: Callable[[], Session], pump_ids: list[int], now: datetime, settings: AnalysisSettings,
-                path: Path) -> PartSummary:
-    """spool_part in this process, in a read transaction of its own (as a worker reads each part)."""
-    with sessions() as session, session.begin():
-        return spool_part(session, pump_ids, now, settings, path)
 
 
 def spool_fleet(session: Session, folder: Path, now: datetime | None = None,
