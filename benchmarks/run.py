@@ -90,9 +90,9 @@ def child_analysis(url: str) -> dict:
 
     Peak memory is the largest sum of the PSS of this process and all its descendants (the workers, forked from
     it, or the fork server and its workers) sampled every 0.5 s by a watcher process (benchmarks/tree_memory.py):
-    PSS counts the library pages the workers share with the process they were forked from once in all. Beside it, the same samples' RSS sum (shared pages once per process) and each
-    process's own high-water mark (VmHWM, RSS): this process's, and the largest of the workers' (each takes parts
-    until none is left)."""
+    PSS counts the library pages the workers share with the process they were forked from once in all. Beside it,
+    the same samples' RSS sum (shared pages once per process) and each process's own high-water mark (VmHWM, RSS):
+    this process's, and the largest of the workers' (each takes parts until none is left)."""
     from benchmarks.tree_memory import TreeMemory
     from fleet.db.engine import make_engine, make_session_factory
     from fleet.services.analysis.parallel import worker_count

@@ -275,3 +275,50 @@ def test_with_no_signal_a_refused_value_is_named_by_its_label_and_so_is_the_serv
     assert f"{LABELS['speed']}: 0 is below the lowest allowed value" in verdict
     assert not any(f"{sep}{name}:" in verdict for sep in (": ", "; ") for name in ("outlet pressure", "speed"))
     assert _stored(demo_db, FIRST, values["hours"]) == []
+
+
+def test_with_no_signal_the_devices_doubts_are_the_servers_words_in_the_sites_units(live_app, page, context,
+                                                                                   base_url, demo_db, browser_login):
+    """At a site that works in psi, US gal/min and °F, the device's look-again questions are the server's own
+    messages (fleet.services.rounds.plausibility_warnings) word for word, each value in the unit it was typed in,
+    its decimals as the server writes them. The typed values are converted to the canonical ones the server checks
+    by pint (the reference, after NIST SP 811)."""
+    from datetime import datetime
+
+    import pandas as pd
+    from pint import UnitRegistry
+
+    from fleet.services.rounds import plausibility_warnings, pump_facts
+    from fleet.services.sitelocal import of_pump
+    from fleet.services.transfer.importing import import_table
+    from fleet.services.writes import perform
+
+    ureg = UnitRegistry()
+    row = {"site": "East Yard", "pressure_unit": "psi", "flow_unit": "gal/min", "temperature_unit": "degF"}
+    perform(demo_db.sessions, lambda s: import_table(s, "sites", pd.DataFrame([row], dtype=str)))
+    browser_login("technician")
+    _open_route_then_lose_signal(page, context, base_url, "Walk in psi")
+    with demo_db.sessions() as session:
+        pump = session.scalar(select(Pump).where(Pump.serial == FIRST))
+        facts = pump_facts(session, pump)
+        site = of_pump(session, pump)
+    psi = ureg.Quantity(1.25 * facts.rated_pressure_bar, "bar").to("psi").magnitude
+    gpm = ureg.Quantity(1.1 * pump.displacement_cc * pump.rated_speed_rpm / 1000, "L/min").to("gal/min").magnitude
+    degf = ureg.Quantity(facts.oil_temp_max_c + 8, "degC").to("degF").magnitude
+    typed = {"hours": f"{facts.last_hours + 5000:.0f}", "speed": f"{pump.rated_speed_rpm:.0f}",
+             "outlet_pressure": f"{psi:.1f}", "outlet_flow": f"{gpm:.2f}", "oil_temp": f"{degf:.1f}"}
+    _fill(page, typed)
+    page.click("button[value=check]")
+    page.wait_for_selector("#device-doubts", timeout=10000)
+    shown = page.inner_text("#device-doubts")
+    wall = datetime.strptime(page.input_value("#f-taken_at"), "%Y-%m-%dT%H:%M")  # the site's clock: UTC here
+    reading = {"taken_at": wall, "hours": float(typed["hours"]), "speed": float(typed["speed"]), "stroke": None,
+               "outlet_pressure": ureg.Quantity(float(typed["outlet_pressure"]), "psi").to("bar").magnitude,
+               "outlet_flow": ureg.Quantity(float(typed["outlet_flow"]), "gal/min").to("L/min").magnitude,
+               "oil_temp": ureg.Quantity(float(typed["oil_temp"]), "degF").to("degC").magnitude}
+    expected = plausibility_warnings(facts, reading, wall, site)
+    assert {d.code for d in expected} == {"flow_above_theoretical", "pressure_above_rated",
+                                          "temperature_outside_limits", "hours_faster_than_clock"}
+    for doubt in expected:
+        assert doubt.message in shown, (doubt.message, shown)
+    assert all(unit in shown for unit in ("psi", "°F", "US gal/min"))

@@ -72,6 +72,23 @@
     return Number.isInteger(value) ? String(value) : String(Number(value.toPrecision(6)));
   }
 
+  // A number with ``digits`` decimals as the server's messages write it (Python's format): the binary value
+  // rounded, an exact tie to the even digit, where toFixed takes the larger (36.25 L/min: 36.2, not 36.3).
+  function fixed(value, digits) {
+    const rounded = value.toFixed(digits);
+    const [whole, fraction] = Math.abs(value).toFixed(100).split(".");  // the binary value's every decimal
+    if (fraction[digits] !== "5" || /[1-9]/.test(fraction.slice(digits + 1))) return rounded;
+    const kept = digits ? `${whole}.${fraction.slice(0, digits)}` : whole;
+    return Number(kept.slice(-1)) % 2 ? rounded : (value < 0 ? "-" : "") + kept;
+  }
+
+  // A canonical value in the unit its field was typed in, with that unit as a screen writes it (2200.0 psi).
+  function inUnit(value, name, unit, digits) {
+    const spec = rules.fields[name];
+    const [factor, offset] = spec.units[unit] || [1, 0];
+    return `${fixed((value - offset) / factor, digits)} ${(spec.shown_units || {})[unit] || spec.canonical_unit}`;
+  }
+
   // --- the site's clock: the form's times are the site's wall-clock time (data-time-zone), as on the server ----
   const zone = (form && form.dataset.timeZone) || "UTC";
   const wallFormat = new Intl.DateTimeFormat("en-CA", {timeZone: zone, hourCycle: "h23", year: "numeric",
@@ -146,25 +163,33 @@
       }
       if (ok) canonical[name] = value;
     }
-    // The doubts of fleet.services.rounds.plausibility_warnings, on the values that passed.
+    // The doubts of fleet.services.rounds.plausibility_warnings, on the values that passed, in its words, each
+    // value in the unit its field was typed in.
+    const unitOf = (name) => values[name].unit;
     if ("speed" in canonical && "outlet_flow" in canonical) {
       const theoretical = pumpRules.flow_per_rpm_lpm * canonical.speed * ("stroke" in canonical ? canonical.stroke : 1);
       if (canonical.outlet_flow > theoretical) {
-        doubts.push({field: "outlet_flow", message: `${labels.outlet_flow} ${canonical.outlet_flow.toFixed(1)} L/min ` +
-          `is above the theoretical ${theoretical.toFixed(1)} L/min at ${canonical.speed.toFixed(0)} rpm: a pump cannot deliver ` +
-          "more than its displacement."});
+        const flowUnit = unitOf("outlet_flow");
+        doubts.push({field: "outlet_flow", message: `${labels.outlet_flow} ` +
+          `${inUnit(canonical.outlet_flow, "outlet_flow", flowUnit, 1)} is above the theoretical ` +
+          `${inUnit(theoretical, "outlet_flow", flowUnit, 1)} at ${fixed(canonical.speed, 0)} rpm: a pump cannot ` +
+          "deliver more than its displacement."});
       }
     }
     if ("outlet_pressure" in canonical && canonical.outlet_pressure > pumpRules.rated_pressure_bar) {
+      const pressureUnit = unitOf("outlet_pressure");
       doubts.push({field: "outlet_pressure", message: `${labels.outlet_pressure} ` +
-        `${canonical.outlet_pressure.toFixed(1)} bar is above the rated ${pumpRules.rated_pressure_bar.toFixed(0)} bar.`,
+        `${inUnit(canonical.outlet_pressure, "outlet_pressure", pressureUnit, 1)} is above the rated ` +
+        `${inUnit(pumpRules.rated_pressure_bar, "outlet_pressure", pressureUnit, 0)}.`,
       caution: rules.over_pressure_caution});
     }
     if ("oil_temp" in canonical) {
       const t = canonical.oil_temp;
       if (t < pumpRules.oil_temp_min_c || t > pumpRules.oil_temp_max_c) {
-        doubts.push({field: "oil_temp", message: `${labels.oil_temp} ${t.toFixed(1)} °C is outside this pump's limits ` +
-          `(${pumpRules.oil_temp_min_c.toFixed(0)}–${pumpRules.oil_temp_max_c.toFixed(0)} °C).`,
+        const tempUnit = unitOf("oil_temp");
+        doubts.push({field: "oil_temp", message: `${labels.oil_temp} ${inUnit(t, "oil_temp", tempUnit, 1)} is ` +
+          `outside this pump's limits (${inUnit(pumpRules.oil_temp_min_c, "oil_temp", tempUnit, 0).split(" ")[0]}` +
+          `–${inUnit(pumpRules.oil_temp_max_c, "oil_temp", tempUnit, 0)}).`,
         caution: t > pumpRules.oil_temp_max_c ? rules.hot_oil_caution : null});
       }
     }
@@ -173,14 +198,14 @@
     if ("hours" in canonical && pumpRules.last_hours !== null && lastAt) {
       const clockH = at ? Math.max((at - lastAt) / 3600000, 0) : null;
       if (canonical.hours < pumpRules.last_hours) {
-        doubts.push({field: "hours", message: `Running hours ${canonical.hours.toFixed(0)} h are below the last ` +
-          `reading's ${pumpRules.last_hours.toFixed(0)} h (${stamp(lastAt).slice(0, 10)}): look again. Is it the ` +
+        doubts.push({field: "hours", message: `Running hours ${fixed(canonical.hours, 0)} h are below the last ` +
+          `reading's ${fixed(pumpRules.last_hours, 0)} h (${stamp(lastAt).slice(0, 10)}): look again. Is it the ` +
           "right pump, or a new hour meter?"});
       } else if (clockH !== null && canonical.hours > pumpRules.last_hours
                  + clockH * (1 + rules.meter.allowance_fraction) + rules.meter.allowance_h) {
-        doubts.push({field: "hours", message: `Running hours advanced ${(canonical.hours - pumpRules.last_hours)
-          .toFixed(0)} h in ${clockH.toFixed(1)} h of clock time since the last reading (${stamp(lastAt)}): ` +
-          "look again. Is it the right pump, or a misread hour meter?"});
+        doubts.push({field: "hours", message: `Running hours advanced ${fixed(canonical.hours - pumpRules.last_hours,
+          0)} h in ${fixed(clockH, 1)} h of clock time since the last reading (${stamp(lastAt)}, ` +
+          `${fixed(pumpRules.last_hours, 0)} h): look again. Is it the right pump, a slip of the finger, or the time?`});
       }
     }
     if (at && at > now && !problems.some((p) => p.field === "taken_at")) {  // a refused time is not asked about too
