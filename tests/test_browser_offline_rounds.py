@@ -279,11 +279,12 @@ def test_with_no_signal_a_refused_value_is_named_by_its_label_and_so_is_the_serv
 
 def test_with_no_signal_the_devices_doubts_are_the_servers_words_in_the_sites_units(live_app, page, context,
                                                                                    base_url, demo_db, browser_login):
-    """At a site that works in psi, US gal/min and °F, the device's look-again questions are the server's own
-    messages (fleet.services.rounds.plausibility_warnings) word for word, each value in the unit it was typed in,
-    its decimals as the server writes them. The typed values are converted to the canonical ones the server checks
-    by pint (the reference, after NIST SP 811)."""
-    from datetime import datetime
+    """At a site that works in psi, US gal/min and °F on Chicago time, the device's look-again questions are the
+    server's own messages (fleet.services.rounds.plausibility_warnings) word for word, each value in the unit it was
+    typed in, its decimals as the server writes them. The typed values are converted to the canonical ones the
+    server checks by pint (the reference, after NIST SP 811), the site's time by zoneinfo (IANA tz database)."""
+    from datetime import UTC, datetime, timedelta
+    from zoneinfo import ZoneInfo
 
     import pandas as pd
     from pint import UnitRegistry
@@ -294,7 +295,8 @@ def test_with_no_signal_the_devices_doubts_are_the_servers_words_in_the_sites_un
     from fleet.services.writes import perform
 
     ureg = UnitRegistry()
-    row = {"site": "East Yard", "pressure_unit": "psi", "flow_unit": "gal/min", "temperature_unit": "degF"}
+    row = {"site": "East Yard", "pressure_unit": "psi", "flow_unit": "gal/min", "temperature_unit": "degF",
+           "time_zone": "America/Chicago"}
     perform(demo_db.sessions, lambda s: import_table(s, "sites", pd.DataFrame([row], dtype=str)))
     browser_login("technician")
     _open_route_then_lose_signal(page, context, base_url, "Walk in psi")
@@ -311,14 +313,26 @@ def test_with_no_signal_the_devices_doubts_are_the_servers_words_in_the_sites_un
     page.click("button[value=check]")
     page.wait_for_selector("#device-doubts", timeout=10000)
     shown = page.inner_text("#device-doubts")
-    wall = datetime.strptime(page.input_value("#f-taken_at"), "%Y-%m-%dT%H:%M")  # the site's clock: UTC here
-    reading = {"taken_at": wall, "hours": float(typed["hours"]), "speed": float(typed["speed"]), "stroke": None,
+    wall = datetime.strptime(page.input_value("#f-taken_at"), "%Y-%m-%dT%H:%M")  # the site's clock
+    at = wall.replace(tzinfo=ZoneInfo(site.time_zone or "UTC")).astimezone(UTC).replace(tzinfo=None)
+    reading = {"taken_at": at, "hours": float(typed["hours"]), "speed": float(typed["speed"]), "stroke": None,
                "outlet_pressure": ureg.Quantity(float(typed["outlet_pressure"]), "psi").to("bar").magnitude,
                "outlet_flow": ureg.Quantity(float(typed["outlet_flow"]), "gal/min").to("L/min").magnitude,
                "oil_temp": ureg.Quantity(float(typed["oil_temp"]), "degF").to("degC").magnitude}
-    expected = plausibility_warnings(facts, reading, wall, site)
+    expected = plausibility_warnings(facts, reading, at, site)
     assert {d.code for d in expected} == {"flow_above_theoretical", "pressure_above_rated",
                                           "temperature_outside_limits", "hours_faster_than_clock"}
     for doubt in expected:
         assert doubt.message in shown, (doubt.message, shown)
     assert all(unit in shown for unit in ("psi", "°F", "US gal/min"))
+    # A time half an hour ahead of the site's clock (inside the hour allowed): the same question, with the site's
+    # offset from UTC written as the server writes it (the device's minute, or the one before if it turned).
+    _fill(page, {"taken_at": f"{wall + timedelta(minutes=30):%Y-%m-%dT%H:%M}"})
+    page.click("button[value=check]")
+    page.wait_for_selector("#device-doubts:has-text('is later than now')", timeout=10000)
+    shown = page.inner_text("#device-doubts")
+    checked = datetime.now(UTC).replace(tzinfo=None, second=0, microsecond=0)
+    ahead = {**reading, "taken_at": at + timedelta(minutes=30)}
+    future = [[d.message for d in plausibility_warnings(facts, ahead, moment, site) if d.code == "time_in_future"]
+              for moment in (checked, checked - timedelta(minutes=1))]
+    assert any(messages and messages[0] in shown for messages in future), (future, shown)

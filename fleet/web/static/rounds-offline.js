@@ -103,6 +103,14 @@
 
   function stamp(date) { return wallOf(date).replace("T", " "); }
 
+  // The site's offset from UTC at ``date`` as the server writes it: "+01:00", "-06:00", "+05:30".
+  function offsetText(date) {
+    const minute = Math.floor(date.getTime() / 60000) * 60000;
+    const minutes = Math.round((Date.parse(wallOf(new Date(minute)) + ":00Z") - minute) / 60000);
+    const whole = Math.abs(minutes);
+    return `${minutes < 0 ? "-" : "+"}${pad(Math.floor(whole / 60))}:${pad(whole % 60)}`;
+  }
+
   // The moment a wall-clock text names, or why there is none: clocks skip it (spring) or pass it twice
   // (autumn); the server refuses both too, so the device asks at once.
   function utcOf(text) {
@@ -209,7 +217,8 @@
       }
     }
     if (at && at > now && !problems.some((p) => p.field === "taken_at")) {  // a refused time is not asked about too
-      doubts.push({field: "taken_at", message: `${labels.taken_at} ${stamp(at)} is later than now (${stamp(now)}, ${zone}).`});
+      doubts.push({field: "taken_at", message: `${labels.taken_at} ${stamp(at)} is later than now (${stamp(now)}, ` +
+        `UTC${offsetText(now)}).`});
     }
     return {problems, doubts};
   }
