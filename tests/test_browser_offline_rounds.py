@@ -336,3 +336,28 @@ def test_with_no_signal_the_devices_doubts_are_the_servers_words_in_the_sites_un
     future = [[d.message for d in plausibility_warnings(facts, ahead, moment, site) if d.code == "time_in_future"]
               for moment in (checked, checked - timedelta(minutes=1))]
     assert any(messages and messages[0] in shown for messages in future), (future, shown)
+
+
+def test_with_no_signal_a_theoretical_flow_on_a_tie_is_written_as_the_server_writes_it(live_app, page, context,
+                                                                                      base_url, demo_db,
+                                                                                      browser_login):
+    """25 cm3/rev at 1450 rpm is exactly 36.25 L/min (Q = Vg n / 1000): Python's format writes the tie to the even
+    digit, 36.2, where JavaScript's toFixed writes 36.3; the device's question is the server's, to the digit."""
+    from fleet.services.rounds import plausibility_warnings, pump_facts
+    from fleet.services.sitelocal import of_pump
+
+    with demo_db.sessions() as session:
+        pump = session.scalar(select(Pump).where(Pump.serial == FIRST))
+        facts, site = pump_facts(session, pump), of_pump(session, pump)
+    assert pump.displacement_cc == 25.0  # the invented demo pump this check is built on
+    browser_login("technician")
+    _open_route_then_lose_signal(page, context, base_url, "Walk on a tie")
+    values = {**_facts(demo_db, FIRST), "speed": "1450", "outlet_flow": "40"}
+    _fill(page, values)
+    page.click("button[value=check]")
+    page.wait_for_selector("#device-doubts", timeout=10000)
+    reading = {"taken_at": None, "hours": None, "outlet_pressure": None, "oil_temp": None, "stroke": None,
+               "speed": 1450.0, "outlet_flow": 40.0}
+    [expected] = plausibility_warnings(facts, reading, facts.last_taken_at, site)
+    assert "theoretical 36.2 L/min" in expected.message
+    assert expected.message in page.inner_text("#device-doubts")

@@ -48,8 +48,9 @@ def test_the_rules_a_device_checks_are_the_servers(client, demo_db):
     assert units["hours"]["h"] == [1.0, 0.0]
     displacement, rated_pressure, _speed, hours = _pump(demo_db, FIRST)
     first = rules["pumps"][FIRST]
-    # Theoretical flow Q = Vg * n / 1000 (L/min from cm3/rev and rpm), the handbook formula of fleet.physics.
-    assert math.isclose(first["flow_per_rpm_lpm"], displacement / 1000)
+    # The device works out the theoretical flow Q = Vg * n / 1000 (L/min from cm3/rev and rpm, the handbook
+    # formula of fleet.physics) from the displacement, in the server's order of steps.
+    assert first["displacement_cc"] == displacement
     assert first["rated_pressure_bar"] == rated_pressure and first["last_hours"] == hours
     assert first["fields"] == ["hours", "outlet_pressure", "speed", "outlet_flow", "oil_temp"]
     assert rules["future_tolerance_s"] == 3600

@@ -348,7 +348,8 @@ def device_rules(session: Session, route_id: int, now: datetime | None = None) -
     for pump in session.scalars(select(Pump).where(Pump.serial.in_(serials))):
         facts = pump_facts(session, pump)
         pumps[pump.serial] = {
-            "flow_per_rpm_lpm": float(theoretical_flow_lpm(pump.displacement_cc, 1.0)),
+            # the displacement itself: the device multiplies as theoretical_flow_lpm does, to the same last bit
+            "displacement_cc": float(pump.displacement_cc),
             "rated_pressure_bar": facts.rated_pressure_bar,
             "oil_temp_min_c": facts.oil_temp_min_c, "oil_temp_max_c": facts.oil_temp_max_c,
             "last_hours": facts.last_hours,

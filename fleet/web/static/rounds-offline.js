@@ -175,7 +175,9 @@
     // value in the unit its field was typed in.
     const unitOf = (name) => values[name].unit;
     if ("speed" in canonical && "outlet_flow" in canonical) {
-      const theoretical = pumpRules.flow_per_rpm_lpm * canonical.speed * ("stroke" in canonical ? canonical.stroke : 1);
+      // fleet.physics.pump.theoretical_flow_lpm's own steps, in its order: the same double as the server's
+      const theoretical = pumpRules.displacement_cc * canonical.speed * ("stroke" in canonical ? canonical.stroke : 1)
+        / 1000;
       if (canonical.outlet_flow > theoretical) {
         const flowUnit = unitOf("outlet_flow");
         doubts.push({field: "outlet_flow", message: `${labels.outlet_flow} ` +
