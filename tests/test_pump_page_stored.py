@@ -79,3 +79,39 @@ def test_the_charts_are_valid_plotly_specs_with_compact_arrays(client):
                     assert isinstance(values, list) and not any(isinstance(v, dict | list) for v in values)
     efficiency = specs["chart-efficiency"]["data"]
     assert isinstance(efficiency[0]["x"], dict)  # the readings' hours: numbers, so a typed array
+
+
+@pytest.mark.parametrize("shape_prior", ["flat", "pooled"])
+def test_a_kept_fit_leaves_out_the_members_without_weight_and_draws_the_same_band(demo_db, shape_prior):
+    # A member whose weight (and centre weight, with the pooled shape prior) is exactly 0 moves neither forecast
+    # nor band, so the kept fit leaves its line out; read back, every band must be the full fit's to the last bit.
+    import orjson
+
+    from fleet.trend.interval_trends import fit_row, interval_trends
+    from fleet.trend.settings import AnalysisSettings
+    from fleet.trend.wear_laws import MEMBERS
+
+    with demo_db.sessions() as session:
+        pumps = list(session.scalars(select(Pump.id)))
+        fresh = analyse(session, pumps, settings=AnalysisSettings(shape_prior=shape_prior))
+    trends = interval_trends(fresh.fit_columns(), fresh.intervals, 0.9)
+    fits = fresh.fits
+    assert list(trends["pump_id"]) == list(fits["pump_id"]) and any("centre_weight" in c for c in fits) == (
+        shape_prior == "pooled")
+    left_out = banded = 0
+    for i, kept in enumerate(trends["fit"]):
+        full = fits.iloc[i]
+        stored = orjson.loads(orjson.dumps(kept))  # as the database gives it back
+        for member in MEMBERS:
+            weighed = any(float(full.get(f"slip_{member.name}_{w}", 0.0)) != 0.0 for w in ("weight", "centre_weight"))
+            assert (f"slip_{member.name}_a" in stored) == (weighed or member is MEMBERS[0]), (i, member.name)
+            left_out += not weighed
+        if not trends["enough_data"].iloc[i]:
+            continue
+        back = fit_row(stored, int(full["interval_no"]), trends["start_hours"].iloc[i], full["current_hours"])
+        grid = np.linspace(0.0, 3.0 * max(float(full["current_hours"]), 100.0), 40)
+        ours, theirs = trend_band(back.to_dict(), grid, 100.0, 0.9), trend_band(full, grid, 100.0, 0.9)
+        for column in ("mean", "low", "high"):
+            np.testing.assert_array_equal(ours[column].to_numpy(float), theirs[column].to_numpy(float))
+        banded += 1
+    assert banded > 20 and left_out > len(trends) * len(MEMBERS) // 4  # over a third of the lines, on this plant

@@ -2,7 +2,10 @@
 
 A chart of a pump's trend needs the fitted lines (every wear law's, fleet.trend.wear_laws), where the averaged
 trend crosses its limit, and the interval's hours; with these kept, the band is drawn from the kept lines alone
-(fleet.trend.remaining_life.trend_band), with no readings and no fitting.
+(fleet.trend.remaining_life.trend_band), with no readings and no fitting. A member of the wear laws whose weight is
+exactly 0 (in the band's weights and the forecast's) moves neither, so its line is not kept: most members of a
+fit carry none, and a whole fleet's kept fits shrink to about a third. fit_row gives such a member back with weight
+0 and no line.
 """
 
 from collections.abc import Mapping
@@ -13,12 +16,16 @@ import pandas as pd
 
 from fleet.jsonvalues import json_ready
 from fleet.trend.grouped import pair_codes
+from fleet.trend.wear_laws import CENTRE_FIELDS, FIELDS, MEMBERS
 
 # Figures of the slip trend kept per interval besides its wear-law lines (columns of FleetAnalysis.fits).
 SLIP_FIGURES = ("n_points", "span_hours", "a", "b", "current_lpm", "start_lpm", "wear_law", "crossing_hours",
                 "crossing_low", "crossing_high", "enough_data")
 _BOOL = np.dtype(bool)
 DRAIN_FIGURES = ("n_points", "enough_data", "current_lpm", "crossing_hours", "crossing_low", "crossing_high")
+# A member's fields a fit may keep (LawFits.line_fields): all of them where the member has weight, else none.
+MEMBER_FIELDS = (*FIELDS, *CENTRE_FIELDS, "centre_weight")
+_WEIGHTS = ("weight", "centre_weight")
 
 
 def interval_trends(fits: Mapping, intervals: pd.DataFrame, confidence: float) -> pd.DataFrame:
@@ -70,7 +77,14 @@ def interval_trends(fits: Mapping, intervals: pd.DataFrame, confidence: float) -
         elif kind[j] == "other":
             table[:, j] = json_ready(fits[name].tolist())
     keys = ["confidence", *kept]
-    values = [dict(zip(keys, (confidence, *row), strict=True)) for row in table.tolist()]
+    held = _held_cells(kept, numbers if numeric else np.empty((n_rows, 0)), [kept[j] for j in numeric])
+    if held is None:
+        values = [dict(zip(keys, (confidence, *row), strict=True)) for row in table.tolist()]
+    else:  # each row with only its weighed members' lines (a row of an object table, picked by its mask)
+        names = np.array(keys, dtype=object)
+        table = np.column_stack([np.full(n_rows, confidence, dtype=object), table])
+        values = [dict(zip(names[at].tolist(), row[at].tolist(), strict=True))
+                  for row, at in zip(table, np.column_stack([np.ones(n_rows, dtype=bool), held]), strict=True)]
     return pd.DataFrame({
         "pump_id": pump_id,
         "interval_no": interval_no,
@@ -91,6 +105,33 @@ def _kept(names: tuple) -> list:
             ("_a", "_b", "_var_a", "_var_b", "_cov_ab", "_dof", "_hours_scale", "_hours_offset")))]
     present = set(names)
     return kept + [f"drain_{name}" for name in DRAIN_FIGURES if f"drain_{name}" in present]
+
+
+@lru_cache(maxsize=8)
+def _member_of(kept: tuple) -> np.ndarray:
+    """Per kept column the index in MEMBERS of the member whose line it holds; -1 for the interval's figures."""
+    where = {f"slip_{m.name}_{f}": j for j, m in enumerate(MEMBERS) for f in MEMBER_FIELDS}
+    return np.array([where.get(name, -1) for name in kept], dtype=np.int64)
+
+
+def _held_cells(kept: list, numbers: np.ndarray, numeric: list) -> np.ndarray | None:
+    """Per row and kept column: whether the row keeps it (False for the fields of a member whose weight, and
+    centre weight where there is one, is exactly 0); None where the fits hold no member's line. The first member
+    (the exponential law) is always kept: LawFits.from_columns reads from its fields which fields a fit has."""
+    member_of = _member_of(tuple(kept))
+    if not (member_of >= 0).any():
+        return None
+    at = {name: k for k, name in enumerate(numeric)}
+    live = np.zeros((len(numbers), len(MEMBERS)), dtype=bool)
+    live[:, 0] = True
+    for j, member in enumerate(MEMBERS):
+        for weight in _WEIGHTS:
+            k = at.get(f"slip_{member.name}_{weight}")
+            if k is not None:
+                live[:, j] |= numbers[:, k] != 0.0  # a missing (NaN) weight is kept as it is
+        if f"slip_{member.name}_weight" not in at:
+            live[:, j] = True  # no weight to judge by: kept
+    return np.where(member_of >= 0, live[:, np.maximum(member_of, 0)], True)
 
 
 def _bools(values) -> np.ndarray:
@@ -116,6 +157,16 @@ def _rows_of(pump_ids: np.ndarray, interval_nos: np.ndarray, want_pump: np.ndarr
 def fit_row(stored: dict, interval_no: int, start_hours, current_hours) -> pd.Series:
     """A kept fit back as one row of FleetAnalysis.fits, as trend_band and the pump page read it (missing -> NaN)."""
     row = {k: (np.nan if v is None else v) for k, v in stored.items()}
+    _unweighed_members_back(row)
     row.update(interval_no=interval_no, start_hours=np.nan if start_hours is None else start_hours,
                current_hours=np.nan if current_hours is None else current_hours)
     return pd.Series(row, dtype=object)
+
+
+def _unweighed_members_back(row: dict) -> None:
+    """The members a kept fit left out (interval_trends: no weight) back in ``row`` with weight 0 and no line
+    (NaN), each with the fields the first member has: every member in the arrays LawFits.from_columns builds."""
+    fields = [f for f in MEMBER_FIELDS if f"slip_{MEMBERS[0].name}_{f}" in row]
+    for member in MEMBERS[1:]:
+        if fields and f"slip_{member.name}_weight" not in row:
+            row.update({f"slip_{member.name}_{f}": 0.0 if f in _WEIGHTS else np.nan for f in fields})

@@ -1,15 +1,15 @@
 """A full analysis computed part by part into files, so no process ever holds the whole fleet's results.
 
 Each part of the fleet (CHUNK_PUMPS pumps, fleet.services.analysis.compute) is analysed, in this process or in a
-worker (fleet.services.analysis.parallel), and written at once to its own file in a private temporary folder, in
-the form the store inserts: each pump's record (fleet.trend.engine.results_to_records) with its stored detail
-already as JSON text, the service lives, and each interval's trend with its fit as JSON text (a fit holds every
-wear-law member's line, about 26 kB of JSON per interval). Turning figures into records and JSON where they were
-computed keeps that work on the workers, in parallel, and out of the main process, which stores. Nothing of a
-stored record depends on the fleet priors (each pump's prior figures are derived when read, from the kinds' fleet
-life figures that the store refits from the stored service lives), so a part can be stored as soon as it is
-written (fleet.services.analysis.refresh.fleet_afresh stores each in its own short write while the workers go on
-with the next). The folder is removed when the caller is done with it.
+worker (fleet.services.analysis.parallel), and written at once to its own file in a private temporary folder, in the
+form the store inserts: each pump's record (fleet.trend.engine.results_to_records) with its stored detail already as
+JSON text, the service lives, and each interval's trend with its fit as JSON text (a fit holds the line of every
+wear-law member with weight, about 8 kB of JSON per interval at 10,000 pumps). Turning figures into records and JSON
+where they were computed keeps that work on the workers, in parallel, and out of the main process, which stores.
+Nothing of a stored record depends on the fleet priors (each pump's prior figures are derived when read, from the
+kinds' fleet life figures that the store refits from the stored service lives), so a part can be stored as soon as
+it is written (fleet.services.analysis.refresh.fleet_afresh stores each in its own short write while the workers go
+on with the next). The folder is removed when the caller is done with it.
 """
 
 import pickle
