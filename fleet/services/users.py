@@ -292,10 +292,13 @@ def user_for_token(session: Session, secret: str) -> tuple[User, ApiToken] | Non
     return user, token
 
 
+# One statement in the caller's write, with no load and flush of the token's row (every API write runs it).
+_MARK_USED = (update(ApiToken).where(ApiToken.id == bindparam("token_id")).values(last_used_at=bindparam("at"))
+              .execution_options(synchronize_session=False))
+
+
 def mark_token_used(session: Session, token_id: int) -> None:
-    token = session.get(ApiToken, token_id)
-    if token is not None:
-        token.last_used_at = utcnow()
+    session.execute(_MARK_USED, {"token_id": token_id, "at": utcnow()})
 
 
 def list_tokens(session: Session) -> list[dict]:

@@ -121,17 +121,21 @@ def _held_cells(kept: list, numbers: np.ndarray, numeric: list) -> np.ndarray | 
     member_of = _member_of(tuple(kept))
     if not (member_of >= 0).any():
         return None
-    at = {name: k for k, name in enumerate(numeric)}
-    live = np.zeros((len(numbers), len(MEMBERS)), dtype=bool)
+    weight, centre = _weight_columns(tuple(numeric))
+    # a member without a weight column is kept; a missing (NaN) weight too, as it is
+    live = (weight < 0)[None, :] | (numbers[:, weight] != 0.0)
+    if (centre >= 0).any():
+        live |= (centre >= 0)[None, :] & (numbers[:, centre] != 0.0)
     live[:, 0] = True
-    for j, member in enumerate(MEMBERS):
-        for weight in _WEIGHTS:
-            k = at.get(f"slip_{member.name}_{weight}")
-            if k is not None:
-                live[:, j] |= numbers[:, k] != 0.0  # a missing (NaN) weight is kept as it is
-        if f"slip_{member.name}_weight" not in at:
-            live[:, j] = True  # no weight to judge by: kept
     return np.where(member_of >= 0, live[:, np.maximum(member_of, 0)], True)
+
+
+@lru_cache(maxsize=8)
+def _weight_columns(numeric: tuple) -> tuple[np.ndarray, np.ndarray]:
+    """Per member (MEMBERS' order) the place among the numeric columns of its weight and of its centre weight,
+    -1 where the fits have none."""
+    at = {name: k for k, name in enumerate(numeric)}
+    return tuple(np.array([at.get(f"slip_{m.name}_{w}", -1) for m in MEMBERS], dtype=np.int64) for w in _WEIGHTS)
 
 
 def _bools(values) -> np.ndarray:
