@@ -2,6 +2,7 @@
 
     python3 -m benchmarks.post_reading sqlite:////tmp/copy/fleet.sqlite --posts 10
     python3 -m benchmarks.post_reading sqlite:////tmp/copy/fleet.sqlite --posts 10 --few-hours
+    python3 -m benchmarks.post_reading sqlite:////tmp/copy/fleet.sqlite --posts 150 --few-hours --offset 7
 
 Run it on a copy of a benchmark database (``python3 -m benchmarks.run --size full --work DIR``): it stores one
 invented reading on each of ``--posts`` + 1 pumps spread over the fleet (the first post warms up and is not
@@ -30,6 +31,9 @@ def main(argv: list[str] | None = None) -> dict:
     parser.add_argument("url", help="the database (a copy: readings are added to it)")
     parser.add_argument("--posts", type=int, default=10)
     parser.add_argument("--few-hours", action="store_true", help="a round's reading, not the benchmark's")
+    parser.add_argument("--offset", type=int, default=None,
+                        help="the first pump's place (default: from the clock, so each run takes other pumps); "
+                             "the same offset on fresh copies posts to the same pumps, for comparing two versions")
     args = parser.parse_args(argv)
 
     from fleet.db.models import Pump, Reading
@@ -43,7 +47,7 @@ def main(argv: list[str] | None = None) -> dict:
     with sessions() as session:
         total = session.scalar(select(func.count(Pump.id)))
         step = max(total // (args.posts + 1), 1)
-        offset = int(time.time()) % step  # another run, other pumps
+        offset = int(time.time()) % step if args.offset is None else args.offset % step  # default: other pumps
         serials = [session.scalar(select(Pump.serial).order_by(Pump.id).offset(offset + n * step).limit(1))
                    for n in range(args.posts + 1)]
     walls, cpus = [], []
