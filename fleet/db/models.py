@@ -279,7 +279,8 @@ class AnalysisResult(Base):
     # NULL only on rows stored before the column existed, until the next store keys them all.
     order_key: Mapped[bytes | None] = mapped_column(LargeBinary, index=True)
     # The pump's data version (PumpDataVersion) these figures were computed from: older than the pump's means stale.
-    data_version: Mapped[int] = mapped_column(Integer, default=0, server_default="0")
+    # Indexed: the check before every page sums it (fleet.services.analysis.refresh.any_stale).
+    data_version: Mapped[int] = mapped_column(Integer, default=0, server_default="0", index=True)
 
 
 class PumpDataVersion(Base):

@@ -43,8 +43,23 @@ def stale_pumps(session: Session) -> set[int]:
     return set(session.scalars(_stale()))
 
 
+# Four totals, each a count or a sum over one index: any_stale.
+_TOTALS = select(select(func.count()).select_from(Pump).scalar_subquery(),
+                 select(func.count()).select_from(AnalysisResult).scalar_subquery(),
+                 select(func.coalesce(func.sum(PumpDataVersion.version), 0)).scalar_subquery(),
+                 select(func.coalesce(func.sum(AnalysisResult.data_version), 0)).scalar_subquery())
+
+
 def any_stale(session: Session) -> bool:
-    return session.scalar(_stale().limit(1)) is not None
+    """Whether some pump's stored analysis is missing or older than its data (stale_pumps names them), from four
+    totals: asked before every page, where a look at every pump's rows took 13 ms at 10,000 pumps and 70 ms at
+    50,000. Exact because a stored analysis never carries a version newer than its pump's: it carries the version
+    read before its data (compute.data_versions), a pump's version only moves on (writes.policy), a pump without
+    a version row is at 0, and both rows go with their pump. So every pump has its analysis exactly when the counts
+    agree, and then each stored version equals its pump's exactly when the sums do. Totals that disagree any other
+    way also answer True: stale_pumps then looks pump by pump."""
+    pumps, analysed, versions, analysed_versions = session.execute(_TOTALS).one()
+    return analysed != pumps or analysed_versions != versions
 
 
 def refresh_analysis(session: Session, pump_ids=None, now: datetime | None = None,
