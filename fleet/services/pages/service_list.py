@@ -63,10 +63,14 @@ def service_list(session: Session, query: ListQuery) -> dict:
     total = _count(session, statement, query)
     order = SORTS.get(query.sort, SORTS["urgency"])
     page = max(1, query.page)
-    rows = session.execute(
-        statement.order_by(*[o.nulls_last() if hasattr(o, "nulls_last") else o for o in order])
-        .limit(query.page_size).offset((page - 1) * query.page_size)
-    ).all()
+    ordered = statement.order_by(*[o.nulls_last() if hasattr(o, "nulls_last") else o for o in order])
+    if order is SORTS["urgency"] and not (query.site or query.machine or query.kind or query.status):
+        # The whole list in the service order: the page's pumps found on the order keys' index first, and only
+        # they joined (the joins over every pump, sorted for one page, grew with the fleet)
+        ids = _urgency_page(session, (page - 1) * query.page_size, query.page_size)
+        rows = session.execute(ordered.where(Pump.id.in_(ids))).all() if ids else []
+    else:
+        rows = session.execute(ordered.limit(query.page_size).offset((page - 1) * query.page_size)).all()
     analysed = [(pump, result) for pump, result, *_ in rows if result is not None]
     if order is SORTS["urgency"] and not (query.site or query.machine or query.kind or query.status):
         # The whole list in key order, keyless rows last: each keyed row's rank is its place in it.
@@ -89,6 +93,21 @@ def service_list(session: Session, query: ListQuery) -> dict:
         "counts": {status: counts.get(status, 0) for status in STATUS_LABELS},
         "choices": _choices(session),
     }
+
+
+def _urgency_page(session: Session, first: int, size: int) -> list[int]:
+    """The pumps in places first + 1 .. first + size of the whole list in the service order (SORTS["urgency"]):
+    the pumps with an order key by key (a key ends with the pump's name, so it alone orders them as key and
+    serial do), read from the keys' index; then those without one, by serial."""
+    keyed = list(session.scalars(select(AnalysisResult.pump_id).where(AnalysisResult.order_key.is_not(None))
+                                 .order_by(AnalysisResult.order_key).offset(first).limit(size)))
+    if len(keyed) == size:
+        return keyed
+    n_keyed = session.scalar(select(func.count()).where(AnalysisResult.order_key.is_not(None)))
+    unkeyed = (select(Pump.id).outerjoin(AnalysisResult, AnalysisResult.pump_id == Pump.id)
+               .where(AnalysisResult.order_key.is_(None)).order_by(Pump.serial)
+               .offset(max(first - n_keyed, 0)).limit(size - len(keyed)))
+    return keyed + list(session.scalars(unkeyed))
 
 
 def _count(session: Session, statement, query: ListQuery) -> int:
