@@ -64,7 +64,8 @@ def service_list(session: Session, query: ListQuery) -> dict:
     order = SORTS.get(query.sort, SORTS["urgency"])
     page = max(1, query.page)
     ordered = statement.order_by(*[o.nulls_last() if hasattr(o, "nulls_last") else o for o in order])
-    if order is SORTS["urgency"] and not (query.site or query.machine or query.kind or query.status):
+    whole_in_order = order is SORTS["urgency"] and not (query.site or query.machine or query.kind or query.status)
+    if whole_in_order:
         # The whole list in the service order: the page's pumps found on the order keys' index first, and only
         # they joined (the joins over every pump, sorted for one page, grew with the fleet)
         ids = _urgency_page(session, (page - 1) * query.page_size, query.page_size)
@@ -72,7 +73,7 @@ def service_list(session: Session, query: ListQuery) -> dict:
     else:
         rows = session.execute(ordered.limit(query.page_size).offset((page - 1) * query.page_size)).all()
     analysed = [(pump, result) for pump, result, *_ in rows if result is not None]
-    if order is SORTS["urgency"] and not (query.site or query.machine or query.kind or query.status):
+    if whole_in_order:
         # The whole list in key order, keyless rows last: each keyed row's rank is its place in it.
         first = (page - 1) * query.page_size
         rank_of = {pump.id: first + n for n, (pump, result, *_) in enumerate(rows, start=1)
