@@ -6,7 +6,7 @@
 
 Analyses 12 pumps spread over the fleet alone (compute.one_pump_frames, as after a write) and two 400-pump parts
 (compute.analyse_part, as in a full analysis), recording what fleet.trend.engine gives each step
-(assess_status, apply_priors, oil_condition, leakage_energy) and what the step returns; then calls each step again
+(assess_status, apply_priors, oil_columns, leakage_energy) and what the step returns; then calls each step again
 on copies of its inputs and prints, per step, the median CPU time of this process (one pump: the median over the
 12 pumps of each pump's median of ``--repeat`` calls; a part: of a tenth as many). ``--save`` keeps the recorded
 inputs and outputs; ``--load`` replays saved ones instead of recording, and first checks that each step returns
@@ -36,7 +36,7 @@ from fleet.trend import engine
 from fleet.trend.settings import AnalysisSettings
 from fleet.web import create_app
 
-STEPS = ("assess_status", "apply_priors", "oil_condition", "leakage_energy")
+STEPS = ("assess_status", "apply_priors", "oil_columns", "leakage_energy")
 
 
 def _record(sessions) -> dict:

@@ -175,7 +175,7 @@ def _numbers(column: pd.Series) -> np.ndarray:
 
 def fit_degradation(referred: pd.DataFrame, settings: AnalysisSettings | None = None,
                     kind_of_pump: pd.Series | None = None, shape_priors: pd.DataFrame | None = None,
-                    ) -> tuple[pd.DataFrame, dict[str, LawFits]]:
+                    ) -> tuple[dict[str, np.ndarray], dict[str, LawFits]]:
     """Fit ln(slip_ref) and ln(drain_ref) against interval hours for every pump interval.
 
     referred: refer_readings output with intervals assigned (pump_id, interval_no, interval_hours).
@@ -188,7 +188,8 @@ def fit_degradation(referred: pd.DataFrame, settings: AnalysisSettings | None = 
     raw slip is floored at a small positive value so noise pushing flow above theoretical does not break
     the log. The case drain is measured directly, with a constant relative noise.
 
-    Returns one row per pump interval: pump_id, interval_no, current_hours (latest hours in the interval),
+    Returns the columns of a table (arrays by name, framed by the engine once with the figures that follow)
+    with one row per pump interval: pump_id, interval_no, current_hours (latest hours in the interval),
     and per quantity q in (slip, drain):
     - q_n_points, q_span_hours: the readings fitted;
     - q_a, q_b, q_var_a, q_var_b, q_cov_ab, q_scale, q_dof: the exponential law's line ln q = a + b h;
@@ -259,7 +260,7 @@ def fit_degradation(referred: pd.DataFrame, settings: AnalysisSettings | None = 
     slip_laws.centred_on(drain_laws, g, h, q_slip, slip_sigma(None), s)
     columns.update(_figures(slip_laws, _span(g, h, n_groups), current_hours, "slip", s))
     columns.update(_figures(drain_laws, _span(gd, hd, n_groups), current_hours, "drain", s))
-    return pd.DataFrame(columns), {"slip": slip_laws, "drain": drain_laws}
+    return columns, {"slip": slip_laws, "drain": drain_laws}
 
 
 def enough_data(n_points: np.ndarray, span_hours: np.ndarray, settings: AnalysisSettings) -> np.ndarray:
@@ -286,28 +287,25 @@ def not_enough_reason(n_points: np.ndarray, span_hours: np.ndarray, settings: An
     return np.array(text, dtype=object)
 
 
-def summarise_fits(fits: pd.DataFrame, rated_flow_lpm: np.ndarray, max_flow_lpm: np.ndarray, settings) -> pd.DataFrame:
+def summarise_fits(fits: dict, rated_flow_lpm: np.ndarray, max_flow_lpm: np.ndarray, settings) -> dict:
     """Add the figures people read: eta_v,ref now, its decline per 1000 h, drain % now, data sufficiency.
 
     eta_v,ref = 1 - slip_ref / rated flow, so d(eta)/dh = -d(slip_ref)/dh / rated flow, the growth rate being
     the model-weighted one; the decline is reported positive when the pump is losing efficiency (fraction per
-    1000 h).
+    1000 h). ``fits``: fit_degradation's columns; returns them with these added (arrays by name).
     """
     rated = np.asarray(rated_flow_lpm, dtype=float)
     max_flow = np.asarray(max_flow_lpm, dtype=float)
     ok = {q: enough_data(fits[f"{q}_n_points"], fits[f"{q}_span_hours"], settings) for q in QUANTITIES}
     with np.errstate(invalid="ignore", divide="ignore"):
         added = {
-            "eta_v_ref": np.where(ok["slip"], 1.0 - fits["slip_current_lpm"].to_numpy(float) / rated, np.nan),
-            "eta_v_decline_per_1000h": np.where(
-                ok["slip"], 1000.0 * fits["slip_slope_lpm_per_h"].to_numpy(float) / rated, np.nan),
-            "drain_pct_ref": np.where(ok["drain"], 100.0 * fits["drain_current_lpm"].to_numpy(float) / max_flow,
-                                      np.nan),
+            "eta_v_ref": np.where(ok["slip"], 1.0 - fits["slip_current_lpm"] / rated, np.nan),
+            "eta_v_decline_per_1000h": np.where(ok["slip"], 1000.0 * fits["slip_slope_lpm_per_h"] / rated, np.nan),
+            "drain_pct_ref": np.where(ok["drain"], 100.0 * fits["drain_current_lpm"] / max_flow, np.nan),
             **{f"{q}_enough_data": ok[q] for q in QUANTITIES},
         }
-    # New columns joined once, not inserted one by one into a frame of some thousand columns.
-    out = pd.concat([fits, pd.DataFrame(added, index=fits.index)], axis=1)
+    out = {**fits, **added}
     for q in QUANTITIES:  # a law is named only where there is a trend (as Series.where(ok, None), on the array)
         name = f"{q}_wear_law"
-        out.isetitem(out.columns.get_loc(name), np.where(ok[q], fits[name].to_numpy(object), None))
+        out[name] = np.where(ok[q], np.asarray(fits[name], dtype=object), None)
     return out

@@ -6,7 +6,6 @@ hydraulic power becomes heat in the oil and is paid for through the motor.
 """
 
 import numpy as np
-import pandas as pd
 
 from fleet.physics.energy import leakage_cost_per_year, overhaul_payback_years
 from fleet.physics.leakage import leakage_power_kw
@@ -32,8 +31,9 @@ def leakage_energy(
     motor_efficiency,
     tariff_per_kwh,
     overhaul_cost,
-) -> pd.DataFrame:
-    """Leakage power now (kW) at the working pressure, its yearly cost, the saving of an overhaul and its payback.
+) -> dict[str, np.ndarray]:
+    """Leakage power now (kW) at the working pressure, its yearly cost, the saving of an overhaul and its payback,
+    as arrays by name.
 
     slip_ref_start_lpm: the fitted slip at the interval start (e^a), taken as what an overhaul restores.
     """
@@ -52,13 +52,11 @@ def leakage_energy(
         leakage_cost_per_year(loss_new, motor_efficiency, hours_per_year, tariff_per_kwh), dtype=float
     )
     saving = cost_now - cost_new
-    return pd.DataFrame(
-        {
-            "typical_pressure_bar": p_work,
-            "leakage_kw": loss_now,
-            "energy_cost_per_year": cost_now,
-            "energy_cost_new_per_year": cost_new,
-            "overhaul_saving_per_year": saving,
-            "overhaul_payback_years": np.asarray(overhaul_payback_years(overhaul_cost, saving), dtype=float),
-        }
-    )
+    return {
+        "typical_pressure_bar": p_work,
+        "leakage_kw": loss_now,
+        "energy_cost_per_year": cost_now,
+        "energy_cost_new_per_year": cost_new,
+        "overhaul_saving_per_year": saving,
+        "overhaul_payback_years": np.asarray(overhaul_payback_years(overhaul_cost, saving), dtype=float),
+    }

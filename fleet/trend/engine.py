@@ -25,7 +25,7 @@ from fleet.trend.energy import leakage_energy, typical_pressure_bar
 from fleet.trend.grouped import group_median, group_time_max, pair_codes
 from fleet.trend.intervals import assign_intervals, interval_lives
 from fleet.trend.linear import t_quantile
-from fleet.trend.oil_condition import OIL_COLUMNS, oil_condition
+from fleet.trend.oil_condition import OIL_COLUMNS, oil_columns
 from fleet.trend.referral import refer_readings
 from fleet.trend.remaining_life import (
     LIMIT_NAMES,
@@ -144,9 +144,10 @@ def _current_rows(pumps: pd.Index, interval: np.ndarray, fit_pumps: np.ndarray, 
     return rows
 
 
-def _last_usable(referred: pd.DataFrame, pumps: pd.Index, interval: np.ndarray) -> pd.DataFrame:
-    """Per pump (``pumps``, each in its current ``interval``): last reading of that interval (flag), last usable
-    eta/drain, case drain jump ratio."""
+def _last_usable(referred: pd.DataFrame, pumps: pd.Index, interval: np.ndarray) -> dict:
+    """Per pump (``pumps``, each in its current ``interval``): last reading of that interval (flag, a Series on
+    ``pumps``), last usable eta/drain, case drain jump ratio (arrays in the pumps' order), as columns by name:
+    the pump rows take them as they are, never framed on their own."""
     n = len(pumps)
     pos = pumps.get_indexer(referred["pump_id"].to_numpy())
     interval = np.asarray(interval, dtype=np.int64)
@@ -175,12 +176,12 @@ def _last_usable(referred: pd.DataFrame, pumps: pd.Index, interval: np.ndarray) 
     earlier[latest_at[latest_at >= 0]] = False
     median_before = group_median(group[earlier], drain[earlier], n)
     median_before = np.where(np.bincount(group[earlier], minlength=n) >= 3, median_before, np.nan)
-    return pd.DataFrame({
+    return {
         "last_flag": last_flag,
         "last_eta_v_ref": last_of(eta, good & ~np.isnan(eta)),
         "last_drain_pct_ref": last_of(drain_pct, good & ~np.isnan(drain_pct)),
         "drain_jump_ratio": last_of(drain, drains) / median_before,
-    }, index=index)
+    }
 
 
 def _latest_taken(referred: pd.DataFrame, pumps: pd.Index) -> pd.Series:
@@ -194,17 +195,35 @@ def _latest_taken(referred: pd.DataFrame, pumps: pd.Index) -> pd.Series:
     return pd.Series(group_time_max(pos[known], taken.to_numpy()[known], len(pumps)), index=pumps)
 
 
-def _past_margin(fits: pd.DataFrame, limits: dict[str, np.ndarray], last: pd.DataFrame, eta_v_limit: np.ndarray,
+def _past_margin(cur: dict, limits: dict[str, np.ndarray], last: dict, eta_v_limit: np.ndarray,
                  drain_limit_pct: np.ndarray):
     """How far beyond its limits a pump is, ln(value / limit) of the worst limit (fitted, else last reading)."""
     with np.errstate(divide="ignore", invalid="ignore"):
-        slip = np.log(fits["slip_current_lpm"].to_numpy(float) / limits["slip"])
-        drain = np.log(fits["drain_current_lpm"].to_numpy(float) / limits["drain"])
-        raw_slip = np.log((1.0 - last["last_eta_v_ref"].to_numpy(float)) / (1.0 - eta_v_limit))
-        raw_drain = np.log(last["last_drain_pct_ref"].to_numpy(float) / drain_limit_pct)
-    slip = np.where(fits["slip_enough_data"].to_numpy(bool), slip, raw_slip)
-    drain = np.where(fits["drain_enough_data"].to_numpy(bool), drain, raw_drain)
+        slip = np.log(np.asarray(cur["slip_current_lpm"], dtype=float) / limits["slip"])
+        drain = np.log(np.asarray(cur["drain_current_lpm"], dtype=float) / limits["drain"])
+        raw_slip = np.log((1.0 - last["last_eta_v_ref"]) / (1.0 - eta_v_limit))
+        raw_drain = np.log(last["last_drain_pct_ref"] / drain_limit_pct)
+    slip = np.where(cur["slip_enough_data"], slip, raw_slip)
+    drain = np.where(cur["drain_enough_data"], drain, raw_drain)
     return np.fmax(slip, drain)
+
+
+def _current_columns(fit_table: pd.DataFrame, fits: dict, rows: np.ndarray) -> dict[str, np.ndarray]:
+    """Each pump's current interval's row of the fits (``rows``, -1: none) as arrays by name: taken from the
+    columns by position where every pump has one (a write's pump, most fleets); else the frame's reindex, whose
+    missing rows are all NaN (a flag or a count then not bool or int), as its columns are read."""
+    if len(rows) and rows.min() >= 0:
+        return {name: np.asarray(values)[rows] for name, values in fits.items()}
+    taken = fit_table.set_axis(pd.RangeIndex(len(fit_table))).reindex(rows)
+    return {name: taken[name].to_numpy() for name in taken.columns}
+
+
+def _counts(values: np.ndarray) -> np.ndarray:
+    """A count per pump as int64, none (NaN: no fitted interval) as 0 (Series.fillna(0).astype(np.int64))."""
+    if values.dtype.kind in "iu":
+        return values.astype(np.int64)
+    values = np.asarray(values, dtype=float)
+    return np.where(np.isnan(values), 0.0, values).astype(np.int64)
 
 
 def _rows_of(values: np.ndarray, rows: np.ndarray) -> np.ndarray:
@@ -220,14 +239,14 @@ _POWER_AT = np.array([j for j, m in enumerate(MEMBERS) if m.law == "power"], dty
 _POWERS = tuple(MEMBERS[j].power for j in _POWER_AT)
 
 
-def _wear_law(cur: pd.DataFrame, member_weights: dict[str, np.ndarray]) -> dict[str, np.ndarray | list]:
+def _wear_law(cur: dict, member_weights: dict[str, np.ndarray]) -> dict[str, np.ndarray | list]:
     """wear_law (the law with the most weight), wear_law_weights ({law: weight}) and wear_power (the power law's
     exponent, averaged over its members by weight) of each pump's current interval (member_weights: per quantity,
     per pump and member of MEMBERS, LawFits.weight of that interval). Slip and case drain are
     weighed jointly, so both trends carry the same weights; the slip's are read, the drain's where only the
-    drain has a trend. None (NaN) without a trend. The columns by name, on cur's rows."""
-    slip_ok = cur["slip_enough_data"].to_numpy(bool)
-    drain_ok = cur["drain_enough_data"].to_numpy(bool)
+    drain has a trend. None (NaN) without a trend. The columns by name, on cur's rows (the pumps')."""
+    slip_ok = cur["slip_enough_data"]
+    drain_ok = cur["drain_enough_data"]
     source = np.where(slip_ok, "slip", "drain")
     known = slip_ok | drain_ok
     law = np.where(slip_ok, cur["slip_wear_law"], np.where(drain_ok, cur["drain_wear_law"], None))
@@ -237,15 +256,15 @@ def _wear_law(cur: pd.DataFrame, member_weights: dict[str, np.ndarray]) -> dict[
     }
     as_dicts = [
         {name: float(weights[name][i]) for name in LAWS} if known[i] and law[i] is not None else None
-        for i in range(len(cur))
+        for i in range(len(slip_ok))
     ]
     # The power law's exponent, weighted over its members: above 1 accelerating, below 1 slowing down. The
     # members' weights gathered in one step, then summed member by member in MEMBERS' order (the sums' rounding).
     weights_of = np.where((source == "slip")[:, None], member_weights["slip"][:, _POWER_AT],
                           member_weights["drain"][:, _POWER_AT])
     weights_of = np.nan_to_num(weights_of)
-    power = np.zeros(len(cur))
-    total = np.zeros(len(cur))
+    power = np.zeros(len(slip_ok))
+    total = np.zeros(len(slip_ok))
     for k, exponent in enumerate(_POWERS):
         power, total = power + weights_of[:, k] * exponent, total + weights_of[:, k]
     with np.errstate(invalid="ignore", divide="ignore"):
@@ -256,44 +275,45 @@ def _wear_law(cur: pd.DataFrame, member_weights: dict[str, np.ndarray]) -> dict[
 _DATING_COLUMNS = ["pump_id", "interval_no", "interval_hours", "taken_at"]  # what dates_at_hours reads
 
 
-def _crossing_passed(cur: pd.DataFrame, current_iv: pd.DataFrame, cur_interval: np.ndarray,
-                     referred: pd.DataFrame) -> pd.DataFrame:
+def _crossing_passed(cur: dict, pumps: pd.Index, current_iv: pd.DataFrame, cur_interval: np.ndarray,
+                     referred: pd.DataFrame) -> dict[str, np.ndarray]:
     """For a pump whose trend is already past a limit: when its trend crossed it, estimated from its readings.
 
     crossed_limit names the limit crossed first; crossed_at_hours (hour meter) with _low/_high bounds at the
     analysis confidence, and crossed_date with crossed_date_low/_high (dates interpolated between the
-    readings' hour-meter values). NaN/NaT/None for pumps not past a limit, and for an open bound.
+    readings' hour-meter values). NaN/NaT/None for pumps not past a limit, and for an open bound. Arrays in the
+    order of ``pumps`` (cur's rows), by name (the pump rows take them as they are).
     """
     names = np.array([LIMIT_NAMES[q] for q in QUANTITIES], dtype=object)
     stacked = np.column_stack(
-        [np.where(cur[f"{q}_past"].to_numpy(bool), cur[f"{q}_crossing_hours"].to_numpy(float), np.inf)
+        [np.where(cur[f"{q}_past"], np.asarray(cur[f"{q}_crossing_hours"], dtype=float), np.inf)
          for q in QUANTITIES]
     )
     past = np.isfinite(stacked).any(axis=1)
     first = np.argmin(stacked, axis=1)
-    rows = np.arange(len(cur))
+    rows = np.arange(len(pumps))
     start = current_iv["start_hours"].to_numpy(float)
-    per_day = cur["hours_per_day"].to_numpy(float)
-    out = {"crossed_limit": np.where(past, names[first], None)}  # the columns, framed once
+    per_day = np.asarray(cur["hours_per_day"], dtype=float)
+    out = {"crossed_limit": np.where(past, names[first], None)}
     suffixes = ("", "_low", "_high")
     hours = []
     for suffix, field_ in zip(suffixes, ("crossing_hours", "crossing_low", "crossing_high"), strict=True):
-        h = np.column_stack([cur[f"{q}_{field_}"].to_numpy(float) for q in QUANTITIES])[rows, first]
+        h = np.column_stack([np.asarray(cur[f"{q}_{field_}"], dtype=float) for q in QUANTITIES])[rows, first]
         hours.append(np.where(past, h, np.nan))
         out[f"crossed_at_hours{suffix}"] = start + hours[-1]
     if not past.any():  # nothing to date: skip the readings' search
         for suffix in suffixes:
-            out[f"crossed_date{suffix}"] = np.full(len(cur), np.datetime64("NaT"), dtype="datetime64[ns]")
-        return pd.DataFrame(out, index=cur.index)
+            out[f"crossed_date{suffix}"] = np.full(len(pumps), np.datetime64("NaT"), dtype="datetime64[ns]")
+        return out
     # Only past pumps' readings date a crossing, and only the columns the dating reads.
-    near = referred.loc[referred["pump_id"].isin(cur.index[past]).to_numpy(), _DATING_COLUMNS]
+    near = referred.loc[referred["pump_id"].isin(pumps[past]).to_numpy(), _DATING_COLUMNS]
     # The three figures of every pump dated in one search.
-    keys = pd.DataFrame({"pump_id": np.tile(cur.index.to_numpy(), 3),
+    keys = pd.DataFrame({"pump_id": np.tile(pumps.to_numpy(), 3),
                          "interval_no": np.tile(cur_interval, 3)})
     dates = dates_at_hours(near, keys, np.concatenate(hours), np.tile(per_day, 3)).to_numpy()
     for i, suffix in enumerate(suffixes):
-        out[f"crossed_date{suffix}"] = dates[i * len(cur):(i + 1) * len(cur)]
-    return pd.DataFrame(out, index=cur.index)
+        out[f"crossed_date{suffix}"] = dates[i * len(pumps):(i + 1) * len(pumps)]
+    return out
 
 
 def place_readings(pumps: pd.DataFrame, readings: pd.DataFrame | None, events: pd.DataFrame | None,
@@ -329,32 +349,35 @@ def analyze_fleet(
     intervals = intervals[intervals["pump_id"].isin(pump_tab.index)].reset_index(drop=True)
 
     # Wear trends and remaining life, every pump interval at once.
-    # The fits' figures as a narrow table (a few dozen columns) and the laws as arrays; the members' lines (most
-    # of the columns of FleetAnalysis.fits) are framed only when that is read.
+    # The fits' figures as columns (a few dozen, framed once below with what follows) and the laws as arrays; the
+    # members' lines (most of the columns of FleetAnalysis.fits) are framed only when that is read.
     fits, laws = fit_degradation(referred, s, pump_tab["kind"], shape_priors)
     # The pump figures the limits read, as floats once; each fit row's pump's taken by position (NaN for a pump
     # not in the table, as a reindex on the fits' pumps gives it).
     limit_inputs = {c: pump_tab[c].to_numpy(float)
                     for c in ("eta_v_limit", "drain_limit_pct", "rated_flow_lpm", "max_flow_lpm")}
-    fit_pump = {c: _at_positions(v, pump_tab.index.get_indexer(fits["pump_id"].to_numpy()))
+    fit_pump = {c: _at_positions(v, pump_tab.index.get_indexer(fits["pump_id"]))
                 for c, v in limit_inputs.items()}
     fits = summarise_fits(fits, fit_pump["rated_flow_lpm"], fit_pump["max_flow_lpm"], s)
     limits = limit_flows_lpm(**fit_pump)
-    t = t_quantile(s.confidence, fits["slip_dof"].to_numpy(float))
+    t = t_quantile(s.confidence, fits["slip_dof"])
     with np.errstate(invalid="ignore"):
-        significant = fits["slip_b"].to_numpy(float) > t * np.sqrt(fits["slip_var_b"].to_numpy(float))
+        significant = fits["slip_b"] > t * np.sqrt(fits["slip_var_b"])
     # The fits' rows are the referred readings' pump intervals in order (fit_degradation), so codes line up.
     pairs, group = pair_codes(referred["pump_id"].to_numpy(), referred["interval_no"].to_numpy())
-    assert len(pairs) == len(fits)
+    n_fits = len(fits["pump_id"])
+    assert len(pairs) == n_fits
     taken = referred["taken_at"].to_numpy()
-    per_interval = pd.DataFrame({
+    per_interval = {
         "slip_b_significant": significant,
-        "hours_per_day": interval_hours_per_day(group, taken, referred["hours"].to_numpy(float), len(fits), s),
+        "hours_per_day": interval_hours_per_day(group, taken, referred["hours"].to_numpy(float), n_fits, s),
         "typical_pressure_bar": typical_pressure_bar(group, taken, referred["pressure_bar"].to_numpy(float),
-                                                     referred["flag"].isna().to_numpy(), len(fits),
+                                                     referred["flag"].isna().to_numpy(), n_fits,
                                                      s.typical_window_days),
-    }, index=fits.index)
-    fits = pd.concat([fits, hours_to_limits(fits, laws, limits, s), per_interval], axis=1)  # joined once
+    }
+    fits = {**fits, **hours_to_limits(fits, laws, limits, s), **per_interval}
+    # The fits framed once (FleetAnalysis.fit_table); the pumps' current rows are taken from the columns.
+    fit_table = pd.DataFrame(fits)
 
     # One row per pump: its current interval.
     # By position, as intervals[is_current].set_index("pump_id").reindex(pump_tab.index) gives it (a pump has one
@@ -369,10 +392,8 @@ def analyze_fleet(
     cur_interval = current_iv["interval_no"].fillna(0).to_numpy().astype(np.int64)
     # Each pump's current interval's row of the fits (-1: none), and those rows (a missing one all NaN, as a
     # reindex on the keys gives it): taken by position, the fits are not indexed on their keys.
-    cur_rows = _current_rows(pump_tab.index, cur_interval, fits["pump_id"].to_numpy(), fits["interval_no"].to_numpy())
-    # (The keys' columns ride along, unread: dropping them would copy every block of the fits.)
-    cur = fits.set_axis(pd.RangeIndex(len(fits))).reindex(cur_rows)
-    cur.index = pump_tab.index
+    cur_rows = _current_rows(pump_tab.index, cur_interval, fits["pump_id"], fits["interval_no"])
+    cur = _current_columns(fit_table, fits, cur_rows)
     cur_limits = limit_flows_lpm(**limit_inputs)
     for col in (
         "slip_enough_data",
@@ -385,9 +406,8 @@ def analyze_fleet(
         "upper_bound_open",
     ):
         if cur[col].dtype != bool:  # a pump without a fitted current interval: NaN rows
-            cur[col] = _bools(cur[col])
+            cur[col] = _bools(pd.Series(cur[col]))
     last = _last_usable(referred, pump_tab.index, cur_interval)
-    last.index = pump_tab.index
 
     # The pump rows gathered as one dict of columns (in the order they are shown) and framed once: a frame
     # grown column by column pays pandas' insert for each of about a hundred columns, on every call.
@@ -404,12 +424,12 @@ def analyze_fleet(
         "hours_per_day",
     ):
         res[col] = cur[col]
-    governing = np.array(res["governing_limit"].to_numpy(), dtype=object)  # a copy: text, a missing one as None
+    governing = np.array(res["governing_limit"], dtype=object)  # a copy: text, a missing one as None
     governing[pd.isna(governing)] = None
     res["governing_limit"] = pd.Series(governing, index=pump_tab.index, dtype=object)
     res["confidence"] = np.where(np.isfinite(res["hours_to_limit_low"]), s.confidence, np.nan)
-    res["n_points"] = cur["slip_n_points"].fillna(0).astype(np.int64)
-    res["n_drain_points"] = cur["drain_n_points"].fillna(0).astype(np.int64)
+    res["n_points"] = _counts(cur["slip_n_points"])
+    res["n_drain_points"] = _counts(cur["drain_n_points"])
     res["slip_enough_data"] = cur["slip_enough_data"]
     res["drain_enough_data"] = cur["drain_enough_data"]
     res["slip_b_significant"] = cur["slip_b_significant"]
@@ -429,7 +449,7 @@ def analyze_fleet(
     res.update(last.items())
     # With too little for a trend, the current value is the last usable reading's; *_source says which.
     for col, last_col in (("eta_v_ref", "last_eta_v_ref"), ("drain_pct_ref", "last_drain_pct_ref")):
-        trend_value, last_value = res[col].to_numpy(), res[last_col].to_numpy()  # both on the pumps' index
+        trend_value, last_value = np.asarray(res[col]), np.asarray(res[last_col])  # both in the pumps' order
         from_trend = ~pd.isna(trend_value)
         res[f"{col}_source"] = np.where(from_trend, "trend", np.where(~pd.isna(last_value), "last_reading", None))
         res[col] = np.where(from_trend, trend_value, last_value)
@@ -455,16 +475,17 @@ def analyze_fleet(
         res[dst] = limit_dates(res["last_reading_at"], res[src], res["hours_per_day"]).to_numpy()
 
     res.update(_wear_law(cur, {q: _rows_of(laws[q].weight, cur_rows) for q in QUANTITIES}))
-    res.update(_crossing_passed(cur, current_iv, cur_interval, referred).items())
+    res.update(_crossing_passed(cur, pump_tab.index, current_iv, cur_interval, referred))
     res["past_margin"] = _past_margin(cur, cur_limits, last, limit_inputs["eta_v_limit"],
                                     limit_inputs["drain_limit_pct"])
     res["data_note"] = _data_note(res, current_iv, cur, s)
 
     # Oil condition and the cost of leakage.
-    oil = oil_condition(pump_tab.reset_index(drop=True), referred, samples, now, s)
+    # (As columns, in the pumps' order: framed once with the pump rows, not on their own.)
+    oil = oil_columns(pump_tab, referred, samples, now, s)
     res.update((c, oil[c]) for c in OIL_COLUMNS if c != "cleanliness_target")
     res["cleanliness_target"] = pump_tab["cleanliness_target"]
-    slip_start = cur["slip_start_lpm"].to_numpy(float)
+    slip_start = np.asarray(cur["slip_start_lpm"], dtype=float)
     slip_now = np.where(cur["slip_enough_data"], cur["slip_current_lpm"], np.nan)
     energy = leakage_energy(
         slip_now,
@@ -476,8 +497,7 @@ def analyze_fleet(
         pump_tab["tariff_per_kwh"],
         pump_tab["overhaul_cost"] if "overhaul_cost" in pump_tab else np.nan,
     )
-    energy.index = pump_tab.index
-    res.update(energy.items())
+    res.update(energy)
 
     # Fleet life figures: the separate, labelled prior.
     kind_of = pump_tab["kind"]
@@ -494,7 +514,7 @@ def analyze_fleet(
     first_cols = ["rank", "pump", "kind", "status", "reasons"]
     order = first_cols + [c for c in res if c not in first_cols]
     res = pd.DataFrame({k: res[k] for k in order}, index=pump_tab.index.rename("pump_id"))
-    return FleetAnalysis(res, referred, fits, laws, fleet_priors, intervals, s)
+    return FleetAnalysis(res, referred, fit_table, laws, fleet_priors, intervals, s)
 
 
 def _as_column(value, index: pd.Index):

@@ -28,12 +28,12 @@ def limit_flows_lpm(eta_v_limit, drain_limit_pct, rated_flow_lpm, max_flow_lpm) 
     }
 
 
-def hours_to_limits(fits: pd.DataFrame, laws: dict[str, LawFits], limits_lpm: dict[str, np.ndarray],
-                    settings: AnalysisSettings) -> pd.DataFrame:
+def hours_to_limits(fits: dict, laws: dict[str, LawFits], limits_lpm: dict[str, np.ndarray],
+                    settings: AnalysisSettings) -> dict[str, np.ndarray]:
     """Remaining hours to each limit and to the governing one, for every fitted pump interval.
 
-    fits: fit_degradation's table with summarise_fits' figures; laws: each quantity's fitted laws (its rows as the
-    table's).
+    fits: fit_degradation's columns with summarise_fits' figures; laws: each quantity's fitted laws (its rows as the
+    table's). Returns the columns below as arrays by name.
 
     The crossing comes from the weighed wear laws (fleet.trend.model_average.crossing_band): the median
     crossing of the heaviest law is the forecast, the union of the (1 - confidence) / 2 to (1 + confidence) / 2
@@ -45,19 +45,19 @@ def hours_to_limits(fits: pd.DataFrame, laws: dict[str, LawFits], limits_lpm: di
     figure can be given). Then governing_limit, hours_to_limit, hours_to_limit_low, hours_to_limit_high,
     upper_bound_open for the limit reached first.
     """
-    out = {}  # the columns, framed once
-    now_h = fits["current_hours"].to_numpy(dtype=float)
+    out = {}
+    now_h = np.asarray(fits["current_hours"], dtype=float)
     limits, usables = {}, {}
     for q in QUANTITIES:
         limits[q] = np.asarray(limits_lpm[q], dtype=float)
-        usables[q] = fits[f"{q}_enough_data"].to_numpy(dtype=bool) & np.isfinite(limits[q]) & (limits[q] > 0)
+        usables[q] = np.asarray(fits[f"{q}_enough_data"], dtype=bool) & np.isfinite(limits[q]) & (limits[q] > 0)
     # Both limits' crossings, every law's, in one search (for one pump its steps' fixed cost is most of it).
     bands = crossing_bands([(laws[q], np.where(usables[q], limits[q], np.nan), now_h) for q in QUANTITIES],
                            settings.confidence)
     for q, (x_low, x_hat, x_high) in zip(QUANTITIES, bands, strict=True):
         limit, usable = limits[q], usables[q]
         has_limit = np.isfinite(limit) & (limit > 0)
-        current = fits[f"{q}_current_lpm"].to_numpy(dtype=float)
+        current = np.asarray(fits[f"{q}_current_lpm"], dtype=float)
         past = usable & (current >= limit)
 
         with np.errstate(invalid="ignore"):
@@ -88,7 +88,7 @@ def hours_to_limits(fits: pd.DataFrame, laws: dict[str, LawFits], limits_lpm: di
     first = np.argmin(np.where(np.isfinite(hours), hours, np.inf), axis=1)
     names = np.array([LIMIT_NAMES[q] for q in QUANTITIES], dtype=object)
     out["governing_limit"] = np.where(any_finite, names[first], None)
-    rows = np.arange(len(fits))
+    rows = np.arange(len(now_h))
     for col in ("hours_to_limit", "hours_low", "hours_high", "upper_open"):
         stacked = np.column_stack([out[f"{q}_{col}"] for q in QUANTITIES])
         picked = stacked[rows, first]
@@ -97,7 +97,7 @@ def hours_to_limits(fits: pd.DataFrame, laws: dict[str, LawFits], limits_lpm: di
             out["upper_bound_open"] = np.where(any_finite, picked.astype(bool), False)
         else:
             out[target] = np.where(any_finite, picked.astype(float), np.nan)
-    return pd.DataFrame(out, index=fits.index)
+    return out
 
 
 _TREND_WORDS = {"slip": "volumetric efficiency", "drain": "case drain"}
