@@ -69,14 +69,15 @@ _FLOAT = np.dtype(float)
 
 class FitColumns(Mapping):
     """The columns of FleetAnalysis.fits by name, in its order, none of them made until read: the table's own by
-    name from the table (as Series), each member's line as a column of its quantity's LawFits arrays. Reading a
-    few dozen of some 1,300 columns (as the kept interval trends do) costs those few, not a Series or a slice of
-    every column."""
+    name from the table (a frame's as Series, a mapping's as it holds them: FleetAnalysis.fit_figures' arrays),
+    each member's line as a column of its quantity's LawFits arrays. Reading a few dozen of some 1,300 columns (as
+    the kept interval trends do) costs those few, not a Series or a slice of every column."""
 
-    def __init__(self, table: pd.DataFrame, laws: dict):
+    def __init__(self, table: pd.DataFrame | Mapping, laws: dict):
         self._table, self._laws = table, laws
+        self._rows = len(table["pump_id"])
         self._own = {}
-        own = table.columns.tolist()
+        own = list(table.keys())
         names = ["pump_id", "interval_no", "current_hours"]
         self._member = {}  # member column name -> (quantity, field, member index)
         for q in QUANTITIES:
@@ -92,7 +93,7 @@ class FitColumns(Mapping):
         where = self._member.get(name)
         if where is None:
             if name not in self._own:
-                if name not in self._table.columns:
+                if name not in self._table:
                     raise KeyError(name)
                 self._own[name] = self._table[name]  # each of the table's columns taken once
             return self._own[name]
@@ -107,7 +108,7 @@ class FitColumns(Mapping):
     def floats(self, names) -> np.ndarray:
         """The columns ``names`` as one float block (rows x names), the members' lines taken per quantity by one
         pick from its fields side by side, not a column at a time."""
-        out = np.empty((len(self._table), len(names)))
+        out = np.empty((self._rows, len(names)))
         fields = tuple((q, self._laws[q].line_fields()) for q in QUANTITIES)
         own, picks = _float_plan(tuple(names), fields)
         for i, name in own:
@@ -126,7 +127,7 @@ class FitColumns(Mapping):
         return len(self._names)
 
     def __contains__(self, name) -> bool:
-        return name in self._member or name in self._table.columns
+        return name in self._member or name in self._table
 
 
 @lru_cache(maxsize=16)
@@ -148,10 +149,11 @@ def _float_plan(names: tuple, fields: tuple) -> tuple:
     return tuple(own), tuple((q, np.array(at), np.array(columns)) for q, (at, columns) in picks.items())
 
 
-def fit_columns(table: pd.DataFrame, laws: dict[str, LawFits]) -> Mapping:
+def fit_columns(table: pd.DataFrame | Mapping, laws: dict[str, LawFits]) -> Mapping:
     """The columns of FleetAnalysis.fits in their order, without framing them (FitColumns): ``table``'s
-    (fit_degradation's, with whatever columns were added after them) as Series, and after each quantity's figures
-    its members' lines (wear_laws.member_columns: hundreds of float arrays per quantity)."""
+    (fit_degradation's, with whatever columns were added after them; a frame's as Series, a mapping's arrays as
+    they are), and after each quantity's figures its members' lines (wear_laws.member_columns: hundreds of float
+    arrays per quantity)."""
     return FitColumns(table, laws)
 
 

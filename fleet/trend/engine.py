@@ -55,7 +55,8 @@ class FleetAnalysis:
 
     results: pd.DataFrame
     readings: pd.DataFrame
-    fit_table: pd.DataFrame  # the fits' own figures (fleet.trend.degradation.fit_degradation and what follows)
+    fit_figures: dict  # the fits' own figures as arrays by name (fleet.trend.degradation.fit_degradation and what
+    # follows), framed only when read as such (fit_table)
     laws: dict  # each quantity's fitted wear laws (LawFits), rows as fit_table's
     priors: pd.DataFrame
     intervals: pd.DataFrame
@@ -77,9 +78,15 @@ class FleetAnalysis:
             "leakage_kw": float(np.nansum(res["leakage_kw"])),
         }
 
+    @cached_property
+    def fit_table(self) -> pd.DataFrame:
+        """The fits' own figures framed: one row per pump interval (no member's lines)."""
+        return pd.DataFrame(self.fit_figures)
+
     def fit_columns(self) -> dict:
-        """The columns of ``fits`` by name, in order, none of the members' hundreds of lines framed."""
-        return fit_columns(self.fit_table, self.laws)
+        """The columns of ``fits`` by name, in order, none of them framed (the fits' own figures as arrays, the
+        members' hundreds of lines sliced from the laws when read)."""
+        return fit_columns(self.fit_figures, self.laws)
 
     @cached_property
     def fits(self) -> pd.DataFrame:
@@ -208,13 +215,13 @@ def _past_margin(cur: dict, limits: dict[str, np.ndarray], last: dict, eta_v_lim
     return np.fmax(slip, drain)
 
 
-def _current_columns(fit_table: pd.DataFrame, fits: dict, rows: np.ndarray) -> dict[str, np.ndarray]:
+def _current_columns(fits: dict, rows: np.ndarray) -> dict[str, np.ndarray]:
     """Each pump's current interval's row of the fits (``rows``, -1: none) as arrays by name: taken from the
-    columns by position where every pump has one (a write's pump, most fleets); else the frame's reindex, whose
-    missing rows are all NaN (a flag or a count then not bool or int), as its columns are read."""
+    columns by position where every pump has one (a write's pump, most fleets); else by the fits' frame's reindex,
+    whose missing rows are all NaN (a flag or a count then not bool or int), as its columns are read."""
     if len(rows) and rows.min() >= 0:
         return {name: np.asarray(values)[rows] for name, values in fits.items()}
-    taken = fit_table.set_axis(pd.RangeIndex(len(fit_table))).reindex(rows)
+    taken = pd.DataFrame(fits).reindex(rows)
     return {name: taken[name].to_numpy() for name in taken.columns}
 
 
@@ -375,9 +382,7 @@ def analyze_fleet(
                                                      referred["flag"].isna().to_numpy(), n_fits,
                                                      s.typical_window_days),
     }
-    fits = {**fits, **hours_to_limits(fits, laws, limits, s), **per_interval}
-    # The fits framed once (FleetAnalysis.fit_table); the pumps' current rows are taken from the columns.
-    fit_table = pd.DataFrame(fits)
+    fits = {**fits, **hours_to_limits(fits, laws, limits, s), **per_interval}  # framed only if read so (fit_table)
 
     # One row per pump: its current interval.
     # By position, as intervals[is_current].set_index("pump_id").reindex(pump_tab.index) gives it (a pump has one
@@ -393,7 +398,7 @@ def analyze_fleet(
     # Each pump's current interval's row of the fits (-1: none), and those rows (a missing one all NaN, as a
     # reindex on the keys gives it): taken by position, the fits are not indexed on their keys.
     cur_rows = _current_rows(pump_tab.index, cur_interval, fits["pump_id"], fits["interval_no"])
-    cur = _current_columns(fit_table, fits, cur_rows)
+    cur = _current_columns(fits, cur_rows)
     cur_limits = limit_flows_lpm(**limit_inputs)
     for col in (
         "slip_enough_data",
@@ -514,7 +519,7 @@ def analyze_fleet(
     first_cols = ["rank", "pump", "kind", "status", "reasons"]
     order = first_cols + [c for c in res if c not in first_cols]
     res = pd.DataFrame({k: res[k] for k in order}, index=pump_tab.index.rename("pump_id"))
-    return FleetAnalysis(res, referred, fit_table, laws, fleet_priors, intervals, s)
+    return FleetAnalysis(res, referred, fits, laws, fleet_priors, intervals, s)
 
 
 def _as_column(value, index: pd.Index):
