@@ -4,7 +4,7 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from fleet.trend.oil_condition import _positions, column_floats, latest_lab_results, oil_condition, plain_floats
+from fleet.trend.oil_condition import _positions, column_floats, latest_lab_results, oil_columns, plain_floats
 from fleet.trend.settings import AnalysisSettings
 
 NOW = pd.Timestamp("2025-06-30")
@@ -54,7 +54,9 @@ def test_pump_takes_its_machines_result_against_its_own_target():
             "nu100": 6.8,
         }
     )
-    oil = oil_condition(pumps, readings, _samples(), NOW, AnalysisSettings())
+    columns = oil_columns(pumps, readings, _samples(), NOW, AnalysisSettings())
+    columns["cleanliness_target"] = columns["cleanliness_target"].to_numpy()  # the pumps' own, in their order
+    oil = pd.DataFrame(columns, index=pd.Index(pumps["pump_id"].to_numpy(), name="pump_id"))
     # ISO 4406: 19/17/14 against 18/16/13 is one scale step over on every channel.
     assert oil.loc[10, "cleanliness_code"] == "19/17/≥14" and oil.loc[10, "cleanliness_steps_over"] == 1
     assert oil.loc[10, "low_count"]

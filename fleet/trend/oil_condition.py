@@ -174,26 +174,14 @@ def _no_time_dtype() -> np.dtype:
     return pd.to_datetime(pd.Series([np.nan], dtype=object)).dtype
 
 
-def oil_condition(
-    pumps: pd.DataFrame, readings: pd.DataFrame, samples, now, settings: AnalysisSettings
-) -> pd.DataFrame:
-    """One row per pump_id with OIL_COLUMNS.
-
-    A lab result belongs to a reservoir (machine), so each pump takes its current machine's latest result.
-    Water above the limit: common practice, no source (about 400-500 ppm for mineral oil).
-
-    Plain arrays per pump (taken by position from the machines' and the readings' figures, oil_columns), framed
-    once.
-    """
-    index = pd.Index(pumps["pump_id"].to_numpy(), name="pump_id")
-    columns = oil_columns(pumps, readings, samples, now, settings)
-    columns["cleanliness_target"] = columns["cleanliness_target"].set_axis(index)
-    return pd.DataFrame(columns, index=index)
-
-
 def oil_columns(pumps: pd.DataFrame, readings: pd.DataFrame, samples, now, settings: AnalysisSettings) -> dict:
-    """oil_condition's OIL_COLUMNS as a dict, in the pumps' order: arrays, and the pumps' cleanliness_target
-    column as they have it (a Series, its dtype kept)."""
+    """Each pump's oil condition, OIL_COLUMNS as a dict in the pumps' order: arrays, and the pumps'
+    cleanliness_target column as they have it (a Series, its dtype kept). The engine frames them once with the
+    pump rows.
+
+    A lab result belongs to a reservoir (machine), so each pump takes its current machine's latest result, found
+    with the readings' temperatures by position (_positions). Water above the limit: common practice, no source
+    (about 400-500 ppm for mineral oil)."""
     pump_ids = pumps["pump_id"].to_numpy()
     n = len(pump_ids)
     if samples is None or len(samples) == 0:
