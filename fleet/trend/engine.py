@@ -356,8 +356,8 @@ def analyze_fleet(
     intervals = intervals[intervals["pump_id"].isin(pump_tab.index)].reset_index(drop=True)
 
     # Wear trends and remaining life, every pump interval at once.
-    # The fits' figures as columns (a few dozen, framed once below with what follows) and the laws as arrays; the
-    # members' lines (most of the columns of FleetAnalysis.fits) are framed only when that is read.
+    # The fits' figures as columns (a few dozen, with what is added below; framed only when read as a frame,
+    # FleetAnalysis.fit_table) and the laws as arrays; the members' lines likewise (FleetAnalysis.fits).
     fits, laws = fit_degradation(referred, s, pump_tab["kind"], shape_priors)
     # The pump figures the limits read, as floats once; each fit row's pump's taken by position (NaN for a pump
     # not in the table, as a reindex on the fits' pumps gives it).

@@ -179,9 +179,9 @@ def oil_columns(pumps: pd.DataFrame, readings: pd.DataFrame, samples, now, setti
     cleanliness_target column as they have it (a Series, its dtype kept). The engine frames them once with the
     pump rows.
 
-    A lab result belongs to a reservoir (machine), so each pump takes its current machine's latest result, found
-    with the readings' temperatures by position (_positions). Water above the limit: common practice, no source
-    (about 400-500 ppm for mineral oil)."""
+    A lab result belongs to a reservoir (machine), so each pump takes its current machine's latest result; the
+    pumps are found among the machines and among the readings' temperatures by a sorted search (_positions).
+    Water above the limit: common practice, no source (about 400-500 ppm for mineral oil)."""
     pump_ids = pumps["pump_id"].to_numpy()
     n = len(pump_ids)
     if samples is None or len(samples) == 0:
