@@ -193,6 +193,35 @@ def test_efficiency_figure_carries_points_band_limit_and_events():
     assert 'id="chart-x"' in html and "<script" in html and "plotly.min.js" not in html
 
 
+def test_limit_labels_start_clear_of_an_event_that_opens_the_axis():
+    """An event's label runs down the left side of its line from the top of the plot, where an upper limit's label
+    sits at the left end: with an overhaul at the start of the axis (before the first reading) the limits' labels
+    start a few pixels right of its line; with no event in the axis' first tenth they stay at the left end."""
+    readings = {"taken_at": ["2025-01-06T08:00:00+00:00", "2025-06-02T08:10:00+00:00", "2026-11-30T07:55:00+00:00"],
+                "oil_temp_c": [48.0, 61.0, 52.0]}
+
+    def label_starts(events):
+        spec = charts.temperature_figure(readings, 10.0, 80.0, events)
+        labels = [a for a in spec["layout"]["annotations"] if a["text"].endswith("limit")]
+        assert [a["text"] for a in labels] == ["upper limit", "lower limit"]
+        assert {a["xanchor"] for a in labels} == {"left"}
+        return {(a["xref"], a["x"], a.get("xshift", 0)) for a in labels}
+
+    overhaul = {"date": "2024-12-20", "kind_label": "Overhaul"}  # 17 days before the first of 708 days of readings
+    assert label_starts([overhaul]) == {("x", "2024-12-20", 6)}  # 6 px right of its line
+    assert label_starts(None) == {("x domain", 0, 0)}  # the axis' left end
+    assert label_starts([{"date": "2025-11-20", "kind_label": "Inspection"}]) == {("x domain", 0, 0)}  # mid-axis
+    # two in the first tenth, one at the far end: clear of the later of the two
+    assert label_starts([overhaul, {"date": "2025-02-15", "kind_label": "Filter change"},
+                         {"date": "2026-11-29", "kind_label": "Inspection"}]) == {("x", "2025-02-15", 6)}
+    # an hours axis the same way: an overhaul at the interval's start
+    drain = charts.drain_figure({"hours": [100.0, 4000.0, 10000.0], "case_drain_pct": [2.0, 2.5, 3.0],
+                                 "case_drain_pct_ref": [2.1, 2.4, 3.1]}, 6.0,
+                                [{"chart_hours": 0.0, "kind_label": "Overhaul"}])
+    assert [(a["xref"], a["x"], a["xshift"]) for a in drain["layout"]["annotations"] if a["text"] == "limit"] == [
+        ("x", 0.0, 6)]
+
+
 def test_efficiency_axis_keeps_the_readings_in_view_when_the_band_opens_far_ahead():
     """A band that opens to -800 % far ahead would squash the readings into a line: the axis spans the readings,
     the trend and its forecast, the limit and the band over the readings, and never goes below zero."""

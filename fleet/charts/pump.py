@@ -57,6 +57,7 @@ class _Marks:
     def __init__(self):
         self.shapes: list[dict] = []
         self.annotations: list[dict] = []
+        self.event_xs: list = []
 
     def limit(self, value, text: str) -> None:
         if _present(value):
@@ -72,17 +73,48 @@ class _Marks:
         for event in events or ():
             x = event.get(x_key)
             if _present(x):
+                self.event_xs.append(x)
                 self.shapes.append({"type": "line", "yref": "y domain", "y0": 0, "y1": 1, "xref": "x", "x0": x,
                                     "x1": x, "line": {"color": EVENT, "dash": "dot", "width": 1.5}})
                 self.annotations.append({"x": x, "y": 1, "yref": "paper", "text": str(event["kind_label"]),
                                          "showarrow": False, "textangle": -90, "xanchor": "right",
                                          "yanchor": "top", "font": {"color": EVENT, "size": 10}})
 
-    def layout(self, axes: dict) -> dict:
+    def layout(self, axes: dict, xs=()) -> dict:
+        """The marks' shapes and labels with ``axes``; ``xs``: the traces' x values (numbers, or ISO dates and times),
+        which with the events span the x axis. An event's label runs down the left side of its line from the top of
+        the plot, where an upper limit's label at the left end sits too: with events in the first tenth of the axis
+        (an overhaul that opens the readings), the limits' labels start just right of the last of them."""
+        start = _last_opening_event(self.event_xs, xs) if self.event_xs else None
+        if start is not None:
+            for label in self.annotations:
+                if label.get("xref") == "x domain":  # a limit's: on the event's x, a few pixels right of its line
+                    label.update(xref="x", x=start, xshift=6)
         marks = {"shapes": self.shapes} if self.shapes else {}
         if self.annotations:
             marks["annotations"] = self.annotations
         return {**marks, **axes}
+
+
+def _axis_values(values) -> np.ndarray:
+    """x values as floats: numbers as they are, ISO dates and times ("2026-12-03", "2026-12-03T08:08") as minutes."""
+    values = list(values)
+    if values and isinstance(values[0], str):
+        return np.array(values, dtype="datetime64[m]").astype("int64").astype(float)
+    return np.asarray(values, dtype=float)
+
+
+def _last_opening_event(event_xs, xs):
+    """The x of the last event in the first tenth of the x axis that ``xs`` and the events span; None where none
+    is there."""
+    events = _axis_values(event_xs)
+    every = np.concatenate([_axis_values(xs), events])
+    every = every[np.isfinite(every)]
+    if not len(every) or every.max() <= every.min():
+        return None
+    share = (events - every.min()) / (every.max() - every.min())
+    opening = np.flatnonzero(share <= 0.1)
+    return event_xs[int(opening[np.argmax(share[opening])])] if len(opening) else None
 
 
 def efficiency_figure(readings, band, limit, events: list[dict] | None = None) -> dict:
@@ -119,7 +151,9 @@ def efficiency_figure(readings, band, limit, events: list[dict] | None = None) -
     shown = _efficiency_range(readings, band, limit)
     # Whole percent ticks repeat themselves on an axis a few percent tall (85 %, 85 %, 86 %): one decimal there.
     narrow = shown is not None and shown[1] - shown[0] < 0.06
-    layout = marks.layout(_axes("running hours (h)", "volumetric efficiency", ".1%" if narrow else ".0%"))
+    spanned = [hours, _numbers(band["hours"])] if band is not None and len(band["hours"]) else [hours]
+    layout = marks.layout(_axes("running hours (h)", "volumetric efficiency", ".1%" if narrow else ".0%"),
+                          np.concatenate(spanned))
     if shown is not None:
         layout["yaxis"]["range"] = shown
     if not np.isfinite(_numbers(readings["eta_v_ref"])).any() and (band is None or not len(band["hours"])):
@@ -165,7 +199,7 @@ def drain_figure(readings, limit_pct, events: list[dict] | None = None) -> dict:
     marks = _Marks()
     marks.limit(limit_pct, "limit")
     marks.events(events, "chart_hours")
-    return plain_figure(traces, marks.layout(_axes("running hours (h)", "case drain, % of max flow")))
+    return plain_figure(traces, marks.layout(_axes("running hours (h)", "case drain, % of max flow"), hours))
 
 
 def temperature_figure(readings, min_c, max_c, events: list[dict] | None = None, unit: str = "degC") -> dict:
@@ -178,14 +212,16 @@ def temperature_figure(readings, min_c, max_c, events: list[dict] | None = None,
 
     min_c, max_c = (None if v is None else float(shown([v])[0]) for v in (min_c, max_c))
     # plotly draws wall-clock times: the local time without its offset (the page names the zone)
-    traces = [_scatter([text[:16] for text in readings["taken_at"]], shown(readings["oil_temp_c"]), "lines+markers",
+    taken = [text[:16] for text in readings["taken_at"]]
+    traces = [_scatter(taken, shown(readings["oil_temp_c"]), "lines+markers",
                        name="oil temperature", marker={"color": ACCENT, "symbol": "square", "size": 6},
                        line={"color": ACCENT, "width": 1})]
     marks = _Marks()
     marks.limit(max_c, "upper limit")
     marks.limit(min_c, "lower limit")
     marks.events(events, "date")
-    return plain_figure(traces, marks.layout(_axes("date (site time)", f"oil temperature ({units.shown(unit)})")))
+    return plain_figure(traces, marks.layout(_axes("date (site time)", f"oil temperature ({units.shown(unit)})"),
+                                             taken))
 
 
 def cleanliness_figure(samples, target: tuple | None) -> dict:
